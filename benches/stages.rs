@@ -1,0 +1,51 @@
+//! Per-stage timings on a seeded synthetic 1024 x 1024 16-bit frame with ~300 nuclei of 14 px
+//! (the size the speed targets talk about). Run: `cargo bench --bench stages`.
+
+use caravan::image2d::Image;
+use caravan::params::SegmentParams;
+use caravan::preprocess::{gaussian_blur, prepare, tophat};
+use caravan::segment::{choose_threshold, segment_frame, split_touching};
+use caravan::synth::{Scenario, Scene, SynthParams};
+use divan::{black_box, Bencher};
+use std::sync::LazyLock;
+
+static FRAME: LazyLock<Image> = LazyLock::new(|| {
+    let mut p = SynthParams::new(Scenario::Dish, 1024, 1024, 1);
+    p.nuclei = 300;
+    let scene = Scene::simulate(&p);
+    Image::from_shape_vec((1024, 1024), scene.render(0).into_iter().map(f32::from).collect()).unwrap()
+});
+static PARAMS: LazyLock<SegmentParams> = LazyLock::new(|| SegmentParams::for_diameter(14.0));
+
+fn main() {
+    divan::main();
+}
+
+#[divan::bench]
+fn gaussian_sigma_1_4(b: Bencher) {
+    b.bench(|| gaussian_blur(black_box(&FRAME), 1.4));
+}
+
+#[divan::bench]
+fn tophat_background(b: Bencher) {
+    b.bench(|| tophat(black_box(&FRAME), 29, 7.0));
+}
+
+#[divan::bench]
+fn otsu_on_prepared(b: Bencher) {
+    let prepared = prepare(&FRAME, &PARAMS);
+    b.bench(|| choose_threshold(black_box(prepared.as_slice().unwrap()), PARAMS.threshold));
+}
+
+#[divan::bench]
+fn edt_seeds_watershed(b: Bencher) {
+    let prepared = prepare(&FRAME, &PARAMS);
+    let t = choose_threshold(prepared.as_slice().unwrap(), PARAMS.threshold);
+    let mask: Vec<bool> = prepared.iter().map(|&v| v as f64 > t).collect();
+    b.bench(|| split_touching(black_box(&mask), 1024, 1024, PARAMS.seed_h_px));
+}
+
+#[divan::bench]
+fn whole_frame(b: Bencher) {
+    b.bench(|| segment_frame(black_box(&FRAME), 0, &PARAMS));
+}

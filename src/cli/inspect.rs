@@ -1,0 +1,54 @@
+//! `caravan inspect FILE`: what a recording holds, before any long run.
+
+use super::InputArgs;
+use caravan::segment::diameter::estimate_diameter;
+use caravan::stack::CalibrationSource;
+use caravan::Result;
+use clap::Args;
+
+#[derive(Args)]
+pub struct InspectArgs {
+    #[command(flatten)]
+    input: InputArgs,
+}
+
+pub fn run(args: InspectArgs) -> Result<()> {
+    let mut stack = args.input.open()?;
+    let info = stack.info().clone();
+    let c = info.calibration;
+    let source = |s: CalibrationSource| {
+        serde_json::to_value(s)
+            .ok()
+            .and_then(|v| v.as_str().map(String::from))
+            .unwrap_or_default()
+    };
+    println!("file         {}", info.path.display());
+    println!("container    {} ({}, {})", info.container, info.byte_order, info.layout);
+    println!("frames       {} of {} x {} px", info.frames, info.width, info.height);
+    println!(
+        "samples      {:?}, {} per pixel, channel {} of {}, {} Z plane(s)",
+        info.sample_type, info.samples_per_pixel, info.channel, info.channels, info.z_planes
+    );
+    println!("compression  {}", info.compression);
+    println!("on disk      {:.1} MiB", info.bytes_on_disk as f64 / (1 << 20) as f64);
+    match c.pixel_size_um {
+        Some(p) => println!("pixel size   {p} µm ({})", source(c.pixel_size_source)),
+        None => println!("pixel size   unknown (give --pixel-size)"),
+    }
+    match c.frame_interval_s {
+        Some(t) => println!("interval     {t} s ({})", source(c.frame_interval_source)),
+        None => println!("interval     unknown (give --interval)"),
+    }
+    let frame = stack.read_frame(0)?;
+    match estimate_diameter(&frame.to_image()) {
+        Some(d) => {
+            let um = c
+                .pixel_size_um
+                .map(|p| format!(" = {:.1} µm", d * p))
+                .unwrap_or_default();
+            println!("nucleus size {d:.1} px{um} (estimated on frame 0 by scale selection)");
+        }
+        None => println!("nucleus size no blob stands out in frame 0"),
+    }
+    Ok(())
+}

@@ -1,0 +1,166 @@
+//! Argument parsing and the mapping of errors to one-line messages and exit codes.
+//! Exit codes: 0 done; 2 bad input or parameters; 3 an output could not be written.
+
+mod demo;
+mod inspect;
+mod preview;
+mod segment;
+mod synth;
+
+use caravan::params::{parse_pixel_size_um, parse_seconds, BackgroundMethod, Length, SegmentParams, ThresholdMethod};
+use caravan::pipeline::DiameterSource;
+use caravan::stack::{OpenOptions, Stack, ZMode};
+use caravan::Result;
+use clap::{Args, Parser, Subcommand, ValueEnum};
+use std::path::PathBuf;
+
+#[derive(Parser)]
+#[command(
+    name = "caravan",
+    version,
+    about = "Segment and track fluorescent nuclei in time-lapse TIFF recordings (research software)"
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Describe a recording: size, sample type, compression, calibration, typical nucleus size.
+    Inspect(inspect::InspectArgs),
+    /// Write one frame with its segmentation outlines as a PNG, for tuning parameters.
+    Preview(preview::PreviewArgs),
+    /// Segment every frame and write detections.csv and run.json.
+    Segment(segment::SegmentArgs),
+    /// Write a synthetic recording with ground truth.
+    Synth(synth::SynthArgs),
+    /// Synthesize a recording, segment it, and score the result against the truth.
+    Demo(demo::DemoArgs),
+}
+
+/// Runs the command line and returns the process exit code.
+pub fn run() -> i32 {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Inspect(a) => inspect::run(a),
+        Command::Preview(a) => preview::run(a),
+        Command::Segment(a) => segment::run(a),
+        Command::Synth(a) => synth::run(a),
+        Command::Demo(a) => demo::run(a),
+    };
+    match result {
+        Ok(()) => 0,
+        Err(e) => {
+            eprintln!("caravan: {e}");
+            e.exit_code()
+        }
+    }
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum ZChoice {
+    /// Refuse stacks with several Z planes.
+    Refuse,
+    /// Maximum-intensity projection over Z.
+    Max,
+}
+
+/// How to open a recording.
+#[derive(Args, Clone)]
+struct InputArgs {
+    /// A TIFF/BigTIFF stack or a folder of single-frame TIFFs.
+    input: PathBuf,
+    /// Channel to read (0-based) when the recording has several.
+    #[arg(long)]
+    channel: Option<usize>,
+    /// What to do with several Z planes per time point.
+    #[arg(long, value_enum, default_value = "refuse")]
+    z: ZChoice,
+    /// Pixel size (e.g. 0.65um, 650nm); wins over the file's metadata.
+    #[arg(long, value_parser = parse_pixel_size_um)]
+    pixel_size: Option<f64>,
+    /// Frame interval (e.g. 300s, 5min); wins over the file's metadata.
+    #[arg(long, value_parser = parse_seconds)]
+    interval: Option<f64>,
+    /// Refuse frames that would decode to more than this many MiB (guards against damaged
+    /// headers and decompression bombs).
+    #[arg(long, default_value_t = 2048)]
+    max_frame_mb: u64,
+}
+
+impl InputArgs {
+    fn open(&self) -> Result<Stack> {
+        let options = OpenOptions {
+            channel: self.channel,
+            z: match self.z {
+                ZChoice::Refuse => ZMode::Refuse,
+                ZChoice::Max => ZMode::Max,
+            },
+            max_frame_bytes: self.max_frame_mb.saturating_mul(1 << 20),
+            pixel_size_um: self.pixel_size,
+            frame_interval_s: self.interval,
+        };
+        Stack::open(&self.input, &options)
+    }
+}
+
+/// Segmentation parameters; unset ones are derived from the diameter.
+#[derive(Args, Clone)]
+struct SegmentationArgs {
+    /// Typical nucleus diameter (e.g. 14px or 9um); estimated from the data when not given.
+    #[arg(long)]
+    diameter: Option<Length>,
+    /// Threshold rule: otsu, triangle, li, or a fixed number.
+    #[arg(long, default_value = "otsu")]
+    threshold: ThresholdMethod,
+    /// Background removal: tophat or none.
+    #[arg(long, default_value = "tophat")]
+    background: BackgroundMethod,
+    /// Gaussian smoothing sigma in px (default: diameter/10, at least 1).
+    #[arg(long)]
+    smoothing: Option<f64>,
+    /// Seed height h in px of distance: smaller splits more (default: 0.06 x diameter, at least 1).
+    #[arg(long)]
+    seed_h: Option<f64>,
+    /// Smallest object kept, px (default: 20% of a disc of the diameter).
+    #[arg(long)]
+    min_area: Option<f64>,
+    /// Largest object kept, px (default: 5 discs of the diameter).
+    #[arg(long)]
+    max_area: Option<f64>,
+}
+
+impl SegmentationArgs {
+    /// Resolves the diameter (estimating it if needed) and builds validated parameters.
+    fn resolve(&self, stack: &mut Stack) -> Result<(DiameterSource, SegmentParams)> {
+        let diameter = caravan::pipeline::resolve_diameter(stack, self.diameter)?;
+        let d = match diameter {
+            DiameterSource::Given(d) | DiameterSource::Estimated(d) => d,
+        };
+        let mut p = SegmentParams::for_diameter(d);
+        p.threshold = self.threshold;
+        p.background = self.background;
+        if let Some(v) = self.smoothing {
+            p.smoothing_sigma_px = v;
+        }
+        if let Some(v) = self.seed_h {
+            p.seed_h_px = v;
+        }
+        if let Some(v) = self.min_area {
+            p.min_area_px = v;
+        }
+        if let Some(v) = self.max_area {
+            p.max_area_px = v;
+        }
+        p.validate()?;
+        Ok((diameter, p))
+    }
+}
+
+fn describe_diameter(d: DiameterSource) -> String {
+    match d {
+        DiameterSource::Given(v) => format!("{v:.1} px (given)"),
+        DiameterSource::Estimated(v) => format!("{v:.1} px (estimated)"),
+    }
+}

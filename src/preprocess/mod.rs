@@ -1,0 +1,33 @@
+//! Preparing a frame for thresholding: Gaussian smoothing against shot noise, and background
+//! subtraction against uneven illumination. Thresholds live in `segment`.
+
+mod background;
+mod gaussian;
+
+pub use background::{grey_closing_square, grey_opening_square, max_filter_square, min_filter_square, tophat};
+pub use gaussian::{convolve_separable, gaussian_blur, gaussian_derivative_kernel, gaussian_kernel, gaussian_laplace};
+
+use crate::image2d::Image;
+use crate::params::{BackgroundMethod, SegmentParams};
+
+/// Smooths, then removes the background as the parameters ask. The result is the image that
+/// thresholds see; it is non-negative after background subtraction.
+pub fn prepare(raw: &Image, params: &SegmentParams) -> Image {
+    let smoothed = gaussian_blur(raw, params.smoothing_sigma_px as f32);
+    match params.background {
+        BackgroundMethod::None => smoothed,
+        BackgroundMethod::Tophat => tophat(
+            &smoothed,
+            background_window(params.diameter_px),
+            (params.diameter_px / 2.0) as f32,
+        ),
+    }
+}
+
+/// Side of the square structuring element for background estimation: an odd number of pixels
+/// about twice the nucleus diameter, so that a window always reaches past a nucleus into the
+/// background around it (common practice: clearly larger than the objects).
+pub fn background_window(diameter_px: f64) -> usize {
+    let side = (2.0 * diameter_px).ceil() as usize;
+    side | 1
+}

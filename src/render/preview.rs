@@ -1,0 +1,102 @@
+//! The tuning preview: one frame, contrast-stretched, with every object's outline in a colour
+//! and a caption with the frame number and the object count.
+
+use super::font::{draw_text, text_width};
+use image::{Rgb, RgbImage};
+use imageproc::drawing::draw_filled_rect_mut;
+use imageproc::rect::Rect;
+
+/// Outline colours, our own choice: twelve saturated hues that stand out on grey and from
+/// each other; objects cycle through them by label.
+pub const PALETTE: [[u8; 3]; 12] = [
+    [255, 196, 0],
+    [0, 220, 255],
+    [255, 64, 160],
+    [120, 255, 60],
+    [255, 120, 40],
+    [150, 110, 255],
+    [0, 255, 170],
+    [255, 255, 90],
+    [255, 80, 80],
+    [60, 160, 255],
+    [210, 255, 140],
+    [255, 150, 220],
+];
+
+/// Maps intensities linearly so that the 0.5th percentile is black and the 99.8th white
+/// (common practice for fluorescence display: ignores hot pixels and the darkest noise).
+pub fn stretch_to_u8(values: &[f32]) -> Vec<u8> {
+    let mut sorted: Vec<f32> = values.iter().copied().filter(|v| v.is_finite()).collect();
+    if sorted.is_empty() {
+        return vec![0; values.len()];
+    }
+    sorted.sort_by(f32::total_cmp);
+    let at = |q: f64| sorted[((sorted.len() - 1) as f64 * q).round() as usize];
+    let (lo, hi) = (at(0.005), at(0.998));
+    let span = if hi > lo { hi - lo } else { 1.0 };
+    values
+        .iter()
+        .map(|&v| {
+            if v.is_finite() {
+                ((v - lo) / span * 255.0).clamp(0.0, 255.0) as u8
+            } else {
+                0
+            }
+        })
+        .collect()
+}
+
+/// Renders the preview: grey frame, outlines (object pixels with a 4-neighbour of another
+/// label) coloured by label, and a caption `t=FRAME n=COUNT` in the top-left corner.
+pub fn outline_preview(
+    values: &[f32],
+    labels: &[u32],
+    width: usize,
+    height: usize,
+    frame: usize,
+    count: usize,
+) -> RgbImage {
+    let grey = stretch_to_u8(values);
+    let mut img = RgbImage::from_fn(width as u32, height as u32, |x, y| {
+        let g = grey[y as usize * width + x as usize];
+        Rgb([g, g, g])
+    });
+    for y in 0..height {
+        for x in 0..width {
+            let l = labels[y * width + x];
+            if l != 0 && is_edge(labels, width, height, x, y) {
+                img.put_pixel(x as u32, y as u32, Rgb(PALETTE[(l as usize - 1) % PALETTE.len()]));
+            }
+        }
+    }
+    caption(&mut img, &format!("t={frame} n={count}"));
+    img
+}
+
+fn is_edge(labels: &[u32], width: usize, height: usize, x: usize, y: usize) -> bool {
+    let l = labels[y * width + x];
+    let differs = |xx: usize, yy: usize| labels[yy * width + xx] != l;
+    x == 0
+        || y == 0
+        || x + 1 == width
+        || y + 1 == height
+        || differs(x - 1, y)
+        || differs(x + 1, y)
+        || differs(x, y - 1)
+        || differs(x, y + 1)
+}
+
+fn caption(img: &mut RgbImage, text: &str) {
+    let scale = if img.width() >= 512 { 3 } else { 2 };
+    let (w, h) = (text_width(text, scale) + 2 * scale, 7 * scale);
+    if w > img.width() || h > img.height() {
+        return;
+    }
+    draw_filled_rect_mut(img, Rect::at(0, 0).of_size(w, h), Rgb([0, 0, 0]));
+    let (iw, ih) = (img.width(), img.height());
+    draw_text(text, scale, scale, scale, |x, y| {
+        if x < iw && y < ih {
+            img.put_pixel(x, y, Rgb([255, 255, 255]));
+        }
+    });
+}

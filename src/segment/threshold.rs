@@ -1,0 +1,310 @@
+//! Global thresholds from a grey-level histogram: Otsu, triangle and Li, binned exactly as
+//! scikit-image 0.26 bins them so results can be compared number for number:
+//! integer images get one bin per integer from min to max; float images 256 equal bins over
+//! [min, max] (numpy's `histogram` edges and bin assignment).
+
+/// A grey-level histogram with bin centres.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Histogram {
+    /// Pixel count per bin.
+    pub counts: Vec<u64>,
+    /// Centre value of each bin.
+    pub centers: Vec<f64>,
+    /// Whether bins are single integer levels (changes Li's tolerance).
+    pub integer_levels: bool,
+}
+
+impl Histogram {
+    /// One bin per integer level from the minimum to the maximum value.
+    ///
+    /// Returns `None` for an empty input.
+    pub fn of_integers(values: &[u32]) -> Option<Histogram> {
+        let (&lo, &hi) = (values.iter().min()?, values.iter().max()?);
+        let mut counts = vec![0u64; (hi - lo) as usize + 1];
+        for &v in values {
+            counts[(v - lo) as usize] += 1;
+        }
+        let centers = (lo..=hi).map(|v| v as f64).collect();
+        Some(Histogram {
+            counts,
+            centers,
+            integer_levels: true,
+        })
+    }
+
+    /// `nbins` equal bins over [min, max] of the finite values, as `numpy.histogram`;
+    /// non-finite values are ignored. Returns `None` when no value is finite.
+    pub fn of_floats(values: impl Iterator<Item = f64> + Clone, nbins: usize) -> Option<Histogram> {
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        for v in values.clone().filter(|v| v.is_finite()) {
+            lo = lo.min(v);
+            hi = hi.max(v);
+        }
+        if lo > hi {
+            return None;
+        }
+        if lo == hi {
+            // numpy widens a zero-width range to [v - 0.5, v + 0.5].
+            lo -= 0.5;
+            hi += 0.5;
+        }
+        let edges = linspace(lo, hi, nbins + 1);
+        let mut counts = vec![0u64; nbins];
+        let denom = hi - lo;
+        for v in values.filter(|v| v.is_finite()) {
+            counts[numpy_bin(v, lo, denom, &edges, nbins)] += 1;
+        }
+        let centers = edges.windows(2).map(|e| (e[0] + e[1]) / 2.0).collect();
+        Some(Histogram {
+            counts,
+            centers,
+            integer_levels: false,
+        })
+    }
+
+    /// Total pixels counted.
+    pub fn total(&self) -> u64 {
+        self.counts.iter().sum()
+    }
+
+    fn is_single_level(&self) -> bool {
+        self.counts.iter().filter(|&&c| c > 0).count() <= 1
+    }
+
+    fn first_nonzero_center(&self) -> f64 {
+        self.counts
+            .iter()
+            .position(|&c| c > 0)
+            .map(|i| self.centers[i])
+            .unwrap_or(0.0)
+    }
+}
+
+/// numpy's `linspace(start, stop, num)`: `i·step + start`, last value set to `stop`.
+fn linspace(start: f64, stop: f64, num: usize) -> Vec<f64> {
+    let step = (stop - start) / (num - 1) as f64;
+    let mut v: Vec<f64> = (0..num).map(|i| i as f64 * step + start).collect();
+    v[num - 1] = stop;
+    v
+}
+
+/// Bin index as numpy computes it, including its correction against the actual edges.
+fn numpy_bin(v: f64, lo: f64, denom: f64, edges: &[f64], nbins: usize) -> usize {
+    let mut i = (((v - lo) / denom) * nbins as f64) as isize;
+    if i == nbins as isize {
+        i -= 1;
+    }
+    if v < edges[i as usize] {
+        i -= 1;
+    }
+    if v >= edges[i as usize + 1] && i != nbins as isize - 1 {
+        i += 1;
+    }
+    i as usize
+}
+
+/// Otsu's threshold: the bin centre maximising the between-class variance; foreground is
+/// `value > threshold`. Ties go to the first maximum.
+///
+/// # Method
+/// N. Otsu (1979), "A Threshold Selection Method from Gray-Level Histograms", IEEE Trans.
+/// Systems, Man, and Cybernetics 9(1):62–66, doi:10.1109/TSMC.1979.4310076.
+/// The arithmetic replicates scikit-image 0.26 `threshold_otsu` step by step (counts held as
+/// float32, class weights accumulated in float32, class means in float64) so that near-ties are
+/// broken the same way.
+pub fn otsu_threshold(hist: &Histogram) -> f64 {
+    if hist.is_single_level() {
+        return hist.first_nonzero_center();
+    }
+    let n = hist.counts.len();
+    let counts: Vec<f32> = hist.counts.iter().map(|&c| c as f32).collect();
+    let weighted: Vec<f64> = counts.iter().zip(&hist.centers).map(|(&c, &x)| c as f64 * x).collect();
+    let mut w1 = vec![0f32; n];
+    let mut s1 = vec![0f64; n];
+    let (mut acc_w, mut acc_s) = (0f32, 0f64);
+    for i in 0..n {
+        acc_w += counts[i];
+        acc_s += weighted[i];
+        w1[i] = acc_w;
+        s1[i] = acc_s;
+    }
+    let mut w2 = vec![0f32; n];
+    let mut s2 = vec![0f64; n];
+    let (mut acc_w, mut acc_s) = (0f32, 0f64);
+    for i in (0..n).rev() {
+        acc_w += counts[i];
+        acc_s += weighted[i];
+        w2[i] = acc_w;
+        s2[i] = acc_s;
+    }
+    let mut best = (f64::NEG_INFINITY, 0usize);
+    for k in 0..n - 1 {
+        let mean1 = s1[k] / w1[k] as f64;
+        let mean2 = s2[k + 1] / w2[k + 1] as f64;
+        let d = mean1 - mean2;
+        let var = (w1[k] * w2[k + 1]) as f64 * (d * d);
+        if var > best.0 {
+            best = (var, k);
+        }
+    }
+    hist.centers[best.1]
+}
+
+/// Triangle threshold: the bin farthest from the line joining the histogram peak to the far
+/// end of its longer tail.
+///
+/// # Method
+/// G. W. Zack, W. E. Rogers & S. A. Latt (1977), "Automatic measurement of sister chromatid
+/// exchange frequency", J. Histochem. Cytochem. 25(7):741–753, doi:10.1177/25.7.70454.
+/// Follows scikit-image 0.26 `threshold_triangle` (no ImageJ offset constant).
+pub fn triangle_threshold(hist: &Histogram) -> f64 {
+    let n = hist.counts.len();
+    let peak = first_argmax(&hist.counts);
+    let low = hist.counts.iter().position(|&c| c > 0).unwrap_or(0);
+    let high = hist.counts.iter().rposition(|&c| c > 0).unwrap_or(0);
+    if low == high {
+        return hist.centers[low];
+    }
+    let flip = (peak as isize - low as isize) < (high as isize - peak as isize);
+    let h: Vec<u64> = if flip {
+        hist.counts.iter().rev().copied().collect()
+    } else {
+        hist.counts.clone()
+    };
+    let (low, peak) = if flip {
+        (n - high - 1, n - peak - 1)
+    } else {
+        (low, peak)
+    };
+    let width = (peak - low) as f64;
+    let peak_height = h[peak] as f64;
+    let norm = (peak_height * peak_height + width * width).sqrt();
+    let (ph, wd) = (peak_height / norm, width / norm);
+    let mut best = (f64::NEG_INFINITY, 0usize);
+    for x in 0..(peak - low) {
+        let length = ph * x as f64 - wd * h[x + low] as f64;
+        if length > best.0 {
+            best = (length, x);
+        }
+    }
+    let level = best.1 + low;
+    hist.centers[if flip { n - level - 1 } else { level }]
+}
+
+/// Li's minimum cross-entropy threshold, iterated from the mean until it moves less than
+/// the tolerance (0.5 for integer levels, half a bin otherwise).
+///
+/// # Method
+/// C. H. Li & C. K. Lee (1993), "Minimum cross entropy thresholding", Pattern Recognit.
+/// 26(4):617–625, doi:10.1016/0031-3203(93)90115-D; iteration of C. H. Li & P. K. S. Tam
+/// (1998), Pattern Recognit. Lett. 19(8):771–776, doi:10.1016/S0167-8655(98)00057-9.
+/// As scikit-image, values are shifted so the minimum is 0 (the logarithms need positive means).
+/// Departure: float images iterate over the 256-bin histogram rather than every pixel.
+pub fn li_threshold(hist: &Histogram) -> f64 {
+    if hist.is_single_level() {
+        return hist.first_nonzero_center();
+    }
+    let lo = hist.first_nonzero_center();
+    let x: Vec<f64> = hist.centers.iter().map(|c| c - lo).collect();
+    let w: Vec<f64> = hist.counts.iter().map(|&c| c as f32 as f64).collect();
+    let tolerance = if hist.integer_levels { 0.5 } else { (x[1] - x[0]) / 2.0 };
+    let total: f64 = w.iter().sum();
+    let mut t_next = x.iter().zip(&w).map(|(a, b)| a * b).sum::<f64>() / total;
+    let mut t_curr = -2.0 * tolerance;
+    while (t_next - t_curr).abs() > tolerance {
+        t_curr = t_next;
+        let (mut sf, mut wf, mut sb, mut wb) = (0.0, 0.0, 0.0, 0.0);
+        for (a, b) in x.iter().zip(&w) {
+            if *a > t_curr {
+                sf += a * b;
+                wf += b;
+            } else {
+                sb += a * b;
+                wb += b;
+            }
+        }
+        let (mean_fore, mean_back) = (sf / wf, sb / wb);
+        if mean_back == 0.0 || wf == 0.0 {
+            break;
+        }
+        t_next = (mean_back - mean_fore) / (mean_back.ln() - mean_fore.ln());
+    }
+    t_next + lo
+}
+
+fn first_argmax(v: &[u64]) -> usize {
+    let mut best = 0;
+    for (i, &c) in v.iter().enumerate() {
+        if c > v[best] {
+            best = i;
+        }
+    }
+    best
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn bimodal() -> Vec<u32> {
+        // Source: METHODS.md §1 bimodal sample, counts[v] = round(1000 e^{-(v-30)²/50}) +
+        // round(500 e^{-(v-90)²/200}).
+        let mut v = Vec::new();
+        for level in 0..256u32 {
+            let x = level as f64;
+            let c = (1000.0 * (-(x - 30.0).powi(2) / 50.0).exp()).round()
+                + (500.0 * (-(x - 90.0).powi(2) / 200.0).exp()).round();
+            v.extend(std::iter::repeat_n(level, c as usize));
+        }
+        v
+    }
+
+    #[test]
+    fn otsu_matches_methods_check_values() {
+        // Source: METHODS.md §1 (skimage 0.26 threshold_otsu).
+        let h = Histogram::of_integers(&[0, 0, 1, 1, 2, 8, 9, 9, 10, 10]).unwrap();
+        assert_eq!(otsu_threshold(&h), 2.0);
+        let f = Histogram::of_floats([0., 0., 1., 1., 2., 8., 9., 9., 10., 10.].into_iter(), 256).unwrap();
+        assert_eq!(otsu_threshold(&f), 2.01171875);
+        let b = [0u32, 1, 2, 3, 100, 101, 255, 255, 254, 5];
+        assert_eq!(otsu_threshold(&Histogram::of_integers(&b).unwrap()), 101.0);
+        assert_eq!(
+            otsu_threshold(&Histogram::of_floats(b.iter().map(|&v| v as f64), 256).unwrap()),
+            101.103515625
+        );
+        let c = [100u32, 100, 101, 103, 3000, 3010, 3020, 4095];
+        assert_eq!(otsu_threshold(&Histogram::of_integers(&c).unwrap()), 103.0);
+        assert_eq!(
+            otsu_threshold(&Histogram::of_floats(c.iter().map(|&v| v as f64), 256).unwrap()),
+            107.802734375
+        );
+        let bi = bimodal();
+        assert_eq!(bi.len(), 25064, "N from METHODS.md §1");
+        assert_eq!(otsu_threshold(&Histogram::of_integers(&bi).unwrap()), 60.0);
+        assert_eq!(
+            otsu_threshold(&Histogram::of_floats(bi.iter().map(|&v| v as f64), 256).unwrap()),
+            58.8046875
+        );
+    }
+
+    #[test]
+    fn triangle_and_li_match_methods_check_values() {
+        // Source: METHODS.md §2 (skimage 0.26): triangle 44, Li 53.1075347162524.
+        let h = Histogram::of_integers(&bimodal()).unwrap();
+        assert_eq!(triangle_threshold(&h), 44.0);
+        assert!(
+            (li_threshold(&h) - 53.1075347162524).abs() < 1e-9,
+            "{}",
+            li_threshold(&h)
+        );
+    }
+
+    #[test]
+    fn constant_image_returns_its_value() {
+        // Source: skimage threshold_otsu/li/triangle return the single value of a flat image.
+        let h = Histogram::of_integers(&[7, 7, 7]).unwrap();
+        assert_eq!(otsu_threshold(&h), 7.0);
+        assert_eq!(li_threshold(&h), 7.0);
+        assert_eq!(triangle_threshold(&h), 7.0);
+    }
+}

@@ -1,0 +1,247 @@
+//! Reading recordings: multi-page TIFF and BigTIFF files, or folders of single-frame TIFFs,
+//! streamed one frame at a time so that memory never grows with the frame count.
+//!
+//! This module owns decoding (through the `tiff` crate: strips, tiles, LZW, Deflate, PackBits,
+//! predictors, both byte orders), the mapping of OME-XML planes to TIFF pages, calibration, and
+//! the size limits that refuse decompression bombs and truncated files before any large
+//! allocation. It never segments.
+
+mod calibration;
+mod folder;
+mod lenient_lzw;
+mod ome;
+mod tiff_file;
+pub mod write;
+
+pub use calibration::{Calibration, CalibrationSource};
+pub use ome::{OmePixels, PlaneIndex};
+
+use crate::error::{Error, Result};
+use crate::image2d::{self, Image};
+use serde::Serialize;
+use std::path::{Path, PathBuf};
+
+/// The sample types Caravan reads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum SampleType {
+    /// 8-bit unsigned integer.
+    U8,
+    /// 16-bit unsigned integer.
+    U16,
+    /// 32-bit unsigned integer.
+    U32,
+    /// 32-bit IEEE float.
+    F32,
+}
+
+impl SampleType {
+    /// Bytes per sample.
+    pub fn bytes(self) -> u64 {
+        match self {
+            SampleType::U8 => 1,
+            SampleType::U16 => 2,
+            SampleType::U32 | SampleType::F32 => 4,
+        }
+    }
+
+    /// Whether samples are integers (thresholds then bin one level per integer).
+    pub fn is_integer(self) -> bool {
+        !matches!(self, SampleType::F32)
+    }
+}
+
+/// Pixel data of one frame, in its stored type.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Pixels {
+    /// 8-bit unsigned.
+    U8(Vec<u8>),
+    /// 16-bit unsigned.
+    U16(Vec<u16>),
+    /// 32-bit unsigned.
+    U32(Vec<u32>),
+    /// 32-bit float.
+    F32(Vec<f32>),
+}
+
+impl Pixels {
+    /// Number of samples held.
+    pub fn len(&self) -> usize {
+        match self {
+            Pixels::U8(v) => v.len(),
+            Pixels::U16(v) => v.len(),
+            Pixels::U32(v) => v.len(),
+            Pixels::F32(v) => v.len(),
+        }
+    }
+
+    /// True when no samples are held.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Every sample as `f32` (exact up to 2^24 for integers).
+    pub fn to_f32(&self) -> Vec<f32> {
+        match self {
+            Pixels::U8(v) => v.iter().map(|&p| p as f32).collect(),
+            Pixels::U16(v) => v.iter().map(|&p| p as f32).collect(),
+            Pixels::U32(v) => v.iter().map(|&p| p as f32).collect(),
+            Pixels::F32(v) => v.clone(),
+        }
+    }
+}
+
+/// One decoded frame.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Frame {
+    /// Frame number, from 0.
+    pub index: usize,
+    /// Columns.
+    pub width: usize,
+    /// Rows.
+    pub height: usize,
+    /// Row-major samples.
+    pub pixels: Pixels,
+}
+
+impl Frame {
+    /// The frame as a float image for the per-pixel stages.
+    pub fn to_image(&self) -> Image {
+        image2d::from_vec(self.width, self.height, self.pixels.to_f32())
+    }
+}
+
+/// How a Z dimension is handled.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum ZMode {
+    /// Refuse recordings with more than one Z plane (3D is not supported yet).
+    #[default]
+    Refuse,
+    /// Maximum-intensity projection over Z.
+    Max,
+}
+
+/// Options for opening a recording.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct OpenOptions {
+    /// Channel (0-based) when pages hold several samples or OME-XML declares several channels.
+    pub channel: Option<usize>,
+    /// Z handling.
+    pub z: ZMode,
+    /// Refuse frames whose decoded size exceeds this many bytes (decompression bombs).
+    pub max_frame_bytes: u64,
+    /// Pixel size given on the command line; wins over metadata.
+    pub pixel_size_um: Option<f64>,
+    /// Frame interval given on the command line; wins over metadata.
+    pub frame_interval_s: Option<f64>,
+}
+
+impl Default for OpenOptions {
+    fn default() -> Self {
+        OpenOptions {
+            channel: None,
+            z: ZMode::Refuse,
+            max_frame_bytes: 2 << 30,
+            pixel_size_um: None,
+            frame_interval_s: None,
+        }
+    }
+}
+
+/// What a recording holds, known after opening and before decoding any pixels.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StackInfo {
+    /// The file or folder opened.
+    pub path: PathBuf,
+    /// `tiff`, `bigtiff` or `folder`.
+    pub container: String,
+    /// Columns.
+    pub width: usize,
+    /// Rows.
+    pub height: usize,
+    /// Time points.
+    pub frames: usize,
+    /// Stored sample type.
+    pub sample_type: SampleType,
+    /// Samples per pixel in each page.
+    pub samples_per_pixel: usize,
+    /// Channels declared by OME-XML (1 without it).
+    pub channels: usize,
+    /// Z planes declared by OME-XML (1 without it).
+    pub z_planes: usize,
+    /// Channel read.
+    pub channel: usize,
+    /// Compression of the first page, by name.
+    pub compression: String,
+    /// `strips` or `tiles`.
+    pub layout: String,
+    /// `little-endian` or `big-endian`.
+    pub byte_order: String,
+    /// Total bytes on disk.
+    pub bytes_on_disk: u64,
+    /// Pixel size and frame interval, with where each came from.
+    pub calibration: Calibration,
+}
+
+/// An open recording, read frame by frame.
+pub struct Stack {
+    info: StackInfo,
+    source: Source,
+}
+
+enum Source {
+    File(Box<tiff_file::TiffStack>),
+    Folder(Box<folder::FolderStack>),
+}
+
+impl Stack {
+    /// Opens a TIFF/BigTIFF file or a folder of single-frame TIFFs and checks every page's
+    /// declared size against the file and the memory limit, before any pixel is decoded.
+    ///
+    /// # Errors
+    /// [`Error::Input`] naming the path (and frame) for anything unreadable or refused.
+    pub fn open(path: &Path, options: &OpenOptions) -> Result<Stack> {
+        let meta =
+            std::fs::metadata(path).map_err(|e| Error::input(path, format!("cannot open: {}", io_reason(&e))))?;
+        let (info, source) = if meta.is_dir() {
+            let s = folder::FolderStack::open(path, options)?;
+            (s.info().clone(), Source::Folder(Box::new(s)))
+        } else {
+            let s = tiff_file::TiffStack::open(path, options)?;
+            (s.info().clone(), Source::File(Box::new(s)))
+        };
+        Ok(Stack { info, source })
+    }
+
+    /// What the recording holds.
+    pub fn info(&self) -> &StackInfo {
+        &self.info
+    }
+
+    /// Decodes frame `t` (0-based).
+    ///
+    /// # Errors
+    /// [`Error::Input`] naming the path and frame when the data cannot be decoded.
+    pub fn read_frame(&mut self, t: usize) -> Result<Frame> {
+        if t >= self.info.frames {
+            return Err(Error::input(
+                &self.info.path,
+                format!("frame {t} requested but the recording has {} frames", self.info.frames),
+            ));
+        }
+        match &mut self.source {
+            Source::File(s) => s.read_frame(t),
+            Source::Folder(s) => s.read_frame(t),
+        }
+    }
+}
+
+/// A short reason for an I/O error, without the OS error number noise.
+pub(crate) fn io_reason(e: &std::io::Error) -> String {
+    match e.kind() {
+        std::io::ErrorKind::NotFound => "no such file or folder".into(),
+        std::io::ErrorKind::PermissionDenied => "permission denied".into(),
+        _ => e.to_string(),
+    }
+}

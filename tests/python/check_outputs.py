@@ -1,0 +1,79 @@
+"""Independent readers for Caravan's outputs (run by tests/cli.rs in CI).
+
+usage: check_outputs.py SYNTH_DIR SEGMENT_DIR PREVIEW_PNG
+
+- recording.tif, truth_labels.tif, labels.tif: read with tifffile; shapes and OME metadata.
+- truth.csv: every truth point is the centroid of its label in truth_labels.tif (numpy).
+- detections.csv: every row agrees with skimage.measure.regionprops on labels.tif and the
+  recording (centroid, area, intensities, axis lengths, orientation).
+- run.json: parses, and its counts agree with detections.csv.
+- the preview: Pillow opens it as an RGB PNG of the frame size.
+"""
+import csv
+import json
+import math
+import sys
+
+import numpy as np
+import tifffile
+from PIL import Image
+from skimage.measure import regionprops
+
+syn, seg, png = sys.argv[1:4]
+rec = tifffile.imread(f"{syn}/recording.tif")
+with tifffile.TiffFile(f"{syn}/recording.tif") as tf:
+    assert tf.is_ome, "recording carries OME-XML"
+    pixels = tf.ome_metadata
+    assert 'PhysicalSizeX="0.65"' in pixels and 'TimeIncrement="300' in pixels, pixels[:400]
+truth_labels = tifffile.imread(f"{syn}/truth_labels.tif")
+labels = tifffile.imread(f"{seg}/labels.tif")
+assert rec.dtype == np.uint16 and rec.shape == truth_labels.shape == labels.shape, (rec.shape, labels.shape)
+T, H, W = rec.shape
+
+with open(f"{syn}/truth.csv", newline="") as f:
+    truth = list(csv.DictReader(f))
+assert list(truth[0].keys()) == ["track_id", "parent_id", "frame", "x", "y"]
+for row in truth:
+    t, tid = int(row["frame"]), int(row["track_id"])
+    ys, xs = np.nonzero(truth_labels[t] == tid)
+    assert abs(xs.mean() - float(row["x"])) < 1e-3 and abs(ys.mean() - float(row["y"])) < 1e-3, row
+
+with open(f"{seg}/detections.csv", newline="") as f:
+    dets = list(csv.DictReader(f))
+by_key = {(int(d["frame"]), int(d["object"])): d for d in dets}
+checked = 0
+for t in range(T):
+    props = regionprops(labels[t].astype(np.int64), intensity_image=rec[t].astype(np.float64))
+    assert len(props) == sum(1 for k in by_key if k[0] == t), f"frame {t}: object count"
+    for p in props:
+        d = by_key[(t, p.label)]
+        cy, cx = p.centroid
+        assert abs(float(d["x"]) - cx) < 1e-3 and abs(float(d["y"]) - cy) < 1e-3, (d, p.centroid)
+        assert int(d["area_px"]) == p.area
+        assert abs(float(d["mean_intensity"]) - p.intensity_mean) < 1e-3 * max(1, p.intensity_mean)
+        assert abs(float(d["major_axis_px"]) - p.axis_major_length) < 1e-3
+        assert abs(float(d["minor_axis_px"]) - p.axis_minor_length) < 1e-3
+        assert abs(float(d["equivalent_diameter_px"]) - p.equivalent_diameter_area) < 1e-3
+        if p.axis_major_length - p.axis_minor_length > 0.5:
+            # skimage: angle between rows (axis 0) and the major axis; ours: angle from +x
+            # toward +y. The major axis as a (row, col) direction is (cos o, sin o) for
+            # skimage; ours is (sin a, cos a). Compare axes, sign-free.
+            o = p.orientation
+            a = math.radians(float(d["orientation_deg"]))
+            dot = abs(math.cos(o) * math.sin(a) + math.sin(o) * math.cos(a))
+            assert dot > 0.999, (d["orientation_deg"], o)
+        border = p.bbox[0] == 0 or p.bbox[1] == 0 or p.bbox[2] == H or p.bbox[3] == W
+        assert int(d["touches_border"]) == int(border)
+        assert float(d["x_um"]) == round(float(d["x"]) * 0.65, 4) or abs(float(d["x_um"]) - float(d["x"]) * 0.65) < 1e-3
+        assert abs(float(d["time_s"]) - 300.0 * t) < 1e-6
+        checked += 1
+
+with open(f"{seg}/run.json") as f:
+    run = json.load(f)
+assert run["counts"]["detections"] == len(dets) == checked
+assert run["counts"]["frames"] == T == len(run["per_frame"])
+assert run["input"]["stack"]["calibration"]["pixel_size_source"] == "ome-xml"
+
+img = Image.open(png)
+assert img.format == "PNG" and img.mode == "RGB" and img.size == (W, H), (img.format, img.mode, img.size)
+print(f"independent readers: {checked} detections, {len(truth)} truth points checked")

@@ -1,0 +1,282 @@
+//! Reading stacks written by a general-purpose reference writer (tifffile, see
+//! fixtures/make_fixtures.py for the version and the pixel formulas), back pixel-exact.
+
+use caravan::stack::{CalibrationSource, OpenOptions, Pixels, Stack, ZMode};
+use std::path::{Path, PathBuf};
+
+const T: usize = 3;
+const H: usize = 29;
+const W: usize = 37;
+
+fn fixture(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/tiff").join(name)
+}
+
+/// The formulas of fixtures/make_fixtures.py `values()`, recomputed here.
+fn expected(dtype: &str, t: usize) -> Pixels {
+    let idx = (0..H).flat_map(|y| (0..W).map(move |x| (x as u64, y as u64)));
+    let t = t as u64;
+    match dtype {
+        "u8" => Pixels::U8(idx.map(|(x, y)| ((x * 37 + y * 101 + t * 1009) % 256) as u8).collect()),
+        "u16" => Pixels::U16(
+            idx.map(|(x, y)| ((x * 2741 + y * 977 + t * 30011) % 65536) as u16)
+                .collect(),
+        ),
+        "u32" => Pixels::U32(
+            idx.map(|(x, y)| (((x * 2741 + y * 977 + t * 30011) * 65537) % (1 << 32)) as u32)
+                .collect(),
+        ),
+        _ => Pixels::F32(
+            idx.map(|(x, y)| (((x * 37 + y * 101 + t * 1009) % 4099) as f64 / 7.0 - 50.0) as f32)
+                .collect(),
+        ),
+    }
+}
+
+fn open(name: &str, options: &OpenOptions) -> caravan::Result<Stack> {
+    Stack::open(&fixture(name), options)
+}
+
+#[test]
+fn every_variant_reads_back_pixel_exact() {
+    let mut checked = 0;
+    for dtype in ["u8", "u16", "u32", "f32"] {
+        for comp in ["none", "lzw", "deflate", "packbits"] {
+            for layout in ["strips", "tiles"] {
+                for order in ["le", "be"] {
+                    for kind in ["classic", "bigtiff"] {
+                        let name = format!("{dtype}_{comp}_{layout}_{order}_{kind}.tif");
+                        let mut s = open(&name, &OpenOptions::default()).unwrap_or_else(|e| panic!("{name}: {e}"));
+                        let info = s.info().clone();
+                        assert_eq!((info.width, info.height, info.frames), (W, H, T), "{name}");
+                        assert_eq!(info.layout, layout, "{name}");
+                        assert_eq!(
+                            info.container,
+                            if kind == "bigtiff" { "bigtiff" } else { "tiff" },
+                            "{name}"
+                        );
+                        assert_eq!(
+                            info.byte_order,
+                            if order == "le" { "little-endian" } else { "big-endian" },
+                            "{name}"
+                        );
+                        assert_eq!(info.compression, comp, "{name}");
+                        for t in 0..T {
+                            assert_eq!(s.read_frame(t).unwrap().pixels, expected(dtype, t), "{name} frame {t}");
+                        }
+                        checked += 1;
+                    }
+                }
+            }
+        }
+    }
+    assert_eq!(checked, 128);
+}
+
+#[test]
+fn predictors_are_undone() {
+    for (name, dtype) in [
+        ("u16_deflate_predictor2.tif", "u16"),
+        ("f32_deflate_predictor3.tif", "f32"),
+    ] {
+        let mut s = open(name, &OpenOptions::default()).unwrap();
+        for t in 0..T {
+            assert_eq!(s.read_frame(t).unwrap().pixels, expected(dtype, t), "{name}");
+        }
+    }
+}
+
+#[test]
+fn ome_xml_channels_z_and_calibration() {
+    // Fixture: TZCYX, 4 x 3 x 2, value = t*1000 + z*100 + c*10 + (x+y)%7; 0.5 µm, 2 min.
+    let e = open("ome_tzcyx.ome.tif", &OpenOptions::default())
+        .err()
+        .unwrap()
+        .to_string();
+    assert!(e.contains("2 channels") && e.contains("--channel"), "{e}");
+    let one_channel = OpenOptions {
+        channel: Some(1),
+        ..OpenOptions::default()
+    };
+    let e = open("ome_tzcyx.ome.tif", &one_channel).err().unwrap().to_string();
+    assert!(e.contains("3 Z planes") && e.contains("--z max"), "{e}");
+    let mut s = open(
+        "ome_tzcyx.ome.tif",
+        &OpenOptions {
+            z: ZMode::Max,
+            ..one_channel
+        },
+    )
+    .unwrap();
+    let info = s.info().clone();
+    assert_eq!((info.frames, info.channels, info.z_planes), (4, 2, 3));
+    assert_eq!(info.calibration.pixel_size_um, Some(0.5));
+    assert_eq!(info.calibration.pixel_size_source, CalibrationSource::OmeXml);
+    assert_eq!(info.calibration.frame_interval_s, Some(120.0));
+    let Pixels::U16(p) = s.read_frame(3).unwrap().pixels else {
+        panic!()
+    };
+    // Maximum over z = 0..2 at channel 1, time 3: 3000 + 200 + 10 + (x+y)%7.
+    for y in 0..H {
+        for x in 0..W {
+            assert_eq!(p[y * W + x] as usize, 3210 + (x + y) % 7);
+        }
+    }
+}
+
+#[test]
+fn plane_delta_t_and_resolution_tags_and_overrides() {
+    let s = open("ome_deltat.ome.tif", &OpenOptions::default()).unwrap();
+    assert_eq!(s.info().calibration.frame_interval_s, Some(1.5));
+    assert_eq!(
+        s.info().calibration.frame_interval_source,
+        CalibrationSource::OmePlaneDeltaT
+    );
+    let s = open("resolution_cm.tif", &OpenOptions::default()).unwrap();
+    // Source: METHODS.md §10, 20000 px per cm -> 0.5 µm.
+    assert_eq!(s.info().calibration.pixel_size_um, Some(0.5));
+    assert_eq!(
+        s.info().calibration.pixel_size_source,
+        CalibrationSource::ResolutionTags
+    );
+    let s = open(
+        "resolution_cm.tif",
+        &OpenOptions {
+            pixel_size_um: Some(0.65),
+            frame_interval_s: Some(60.0),
+            ..OpenOptions::default()
+        },
+    )
+    .unwrap();
+    assert_eq!(s.info().calibration.pixel_size_um, Some(0.65));
+    assert_eq!(s.info().calibration.pixel_size_source, CalibrationSource::CommandLine);
+}
+
+#[test]
+fn rgb_pages_need_a_channel() {
+    for name in ["rgb_interleaved.tif", "rgb_planar.tif"] {
+        let e = open(name, &OpenOptions::default()).err().unwrap().to_string();
+        assert!(e.contains("3 samples per pixel") && e.contains("--channel"), "{e}");
+        let mut s = open(
+            name,
+            &OpenOptions {
+                channel: Some(1),
+                ..OpenOptions::default()
+            },
+        )
+        .unwrap();
+        // Channel 1 was written from the u8 formula at t = 1.
+        assert_eq!(s.read_frame(0).unwrap().pixels, expected("u8", 1), "{name}");
+    }
+}
+
+#[test]
+fn folder_is_read_in_natural_order() {
+    let mut s = open("folder", &OpenOptions::default()).unwrap();
+    assert_eq!(s.info().frames, 12);
+    for t in 0..12 {
+        let Pixels::U16(p) = s.read_frame(t).unwrap().pixels else {
+            panic!()
+        };
+        assert_eq!(p[0] as usize, (t + 1) * 100, "frame {t} must be file t{}", t + 1);
+    }
+}
+
+#[test]
+fn unsupported_sample_type_is_named() {
+    let e = open("i16.tif", &OpenOptions::default()).err().unwrap().to_string();
+    assert!(e.contains("16-bit signed integer samples are not supported"), "{e}");
+}
+
+/// The minimal 3x2 uint16 TIFF of METHODS.md §10 (146 bytes, 10 tags, one strip), built by hand.
+fn minimal_tiff(big_endian: bool, width: u32, height: u32) -> Vec<u8> {
+    let mut b: Vec<u8> = Vec::new();
+    let u16b = |v: u16| if big_endian { v.to_be_bytes() } else { v.to_le_bytes() };
+    let u32b = |v: u32| if big_endian { v.to_be_bytes() } else { v.to_le_bytes() };
+    b.extend(if big_endian { *b"MM" } else { *b"II" });
+    b.extend(u16b(42));
+    b.extend(u32b(8));
+    let entries: [(u16, u16, u32); 10] = [
+        (256, 3, width),
+        (257, 3, height),
+        (258, 3, 16),
+        (259, 3, 1),
+        (262, 3, 1),
+        (273, 4, 134),
+        (277, 3, 1),
+        (278, 3, height),
+        (279, 4, 12),
+        (284, 3, 1),
+    ];
+    b.extend(u16b(entries.len() as u16));
+    for (tag, ty, value) in entries {
+        b.extend(u16b(tag));
+        b.extend(u16b(ty));
+        b.extend(u32b(1));
+        if ty == 3 {
+            b.extend(u16b(value as u16));
+            b.extend([0, 0]);
+        } else {
+            b.extend(u32b(value));
+        }
+    }
+    b.extend(u32b(0));
+    for v in [1u16, 2, 3, 256, 513, 65535] {
+        b.extend(u16b(v));
+    }
+    b
+}
+
+#[test]
+fn hand_built_minimal_tiff_in_both_byte_orders() {
+    // Source: METHODS.md §10 check (own writer, read back by Pillow 13): 146 bytes, pixels
+    // [[1,2,3],[256,513,65535]], headers 49 49 2a 00 08 00 00 00 / 4d 4d 00 2a 00 00 00 08.
+    let dir = tempfile::tempdir().unwrap();
+    for be in [false, true] {
+        let bytes = minimal_tiff(be, 3, 2);
+        assert_eq!(bytes.len(), 146);
+        let p = dir.path().join(format!("min{be}.tif"));
+        std::fs::write(&p, &bytes).unwrap();
+        let mut s = Stack::open(&p, &OpenOptions::default()).unwrap();
+        assert_eq!(
+            s.read_frame(0).unwrap().pixels,
+            Pixels::U16(vec![1, 2, 3, 256, 513, 65535])
+        );
+    }
+}
+
+#[test]
+fn bombs_and_truncations_are_errors_not_panics() {
+    let dir = tempfile::tempdir().unwrap();
+    // A header that declares 100000 x 100000 16-bit pixels (20 GB) over 12 bytes of data.
+    let bomb = dir.path().join("bomb.tif");
+    std::fs::write(&bomb, minimal_tiff(false, 100_000, 100_000)).unwrap();
+    let e = Stack::open(&bomb, &OpenOptions::default())
+        .err()
+        .expect("refused")
+        .to_string();
+    assert!(
+        e.starts_with(&format!("{}, frame 0:", bomb.display())) && e.contains("limit"),
+        "{e}"
+    );
+    // Truncations of a real stack at the header, inside directories and inside pixel data.
+    let good = std::fs::read(fixture("u16_none_strips_le_classic.tif")).unwrap();
+    for cut in [0, 3, 9, 200, 3000, 6700] {
+        let p = dir.path().join(format!("cut{cut}.tif"));
+        std::fs::write(&p, &good[..cut]).unwrap();
+        let result = Stack::open(&p, &OpenOptions::default())
+            .and_then(|mut s| (0..s.info().frames).try_for_each(|t| s.read_frame(t).map(|_| ())));
+        let e = result
+            .err()
+            .unwrap_or_else(|| panic!("cut at {cut} must fail"))
+            .to_string();
+        assert!(e.starts_with(&p.display().to_string()), "{e}");
+    }
+    let not_tiff = dir.path().join("notes.tif");
+    std::fs::write(&not_tiff, b"these are my notes").unwrap();
+    assert!(Stack::open(&not_tiff, &OpenOptions::default())
+        .err()
+        .unwrap()
+        .to_string()
+        .contains("is not a TIFF file"));
+}
