@@ -112,6 +112,13 @@ fn numpy_bin(v: f64, lo: f64, denom: f64, edges: &[f64], nbins: usize) -> usize 
 /// The arithmetic replicates scikit-image 0.26 `threshold_otsu` step by step (counts held as
 /// float32, class weights accumulated in float32, class means in float64) so that near-ties are
 /// broken the same way.
+///
+/// ```
+/// use caravan::segment::threshold::{otsu_threshold, Histogram};
+/// // METHODS.md §1 check value (scikit-image 0.26): a six-way tie, the first maximum wins.
+/// let h = Histogram::of_integers(&[0, 0, 1, 1, 2, 8, 9, 9, 10, 10]).unwrap();
+/// assert_eq!(otsu_threshold(&h), 2.0);
+/// ```
 pub fn otsu_threshold(hist: &Histogram) -> f64 {
     if hist.is_single_level() {
         return hist.first_nonzero_center();
