@@ -21,6 +21,7 @@
 
 pub mod error;
 pub mod image2d;
+pub mod link;
 pub mod output;
 pub mod params;
 pub mod pipeline;

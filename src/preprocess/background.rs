@@ -18,11 +18,60 @@ use crate::image2d::Image;
 /// computed with the van Herk / Gil–Werman running extrema, M. van Herk (1992), Pattern
 /// Recognit. Lett. 13(7):517–521, doi:10.1016/0167-8655(92)90069-C, and J. Gil & M. Werman
 /// (1993), IEEE PAMI 15(5):504–507, doi:10.1109/34.211471.
-/// Departure: the opening is smoothed with a Gaussian of `smooth_sigma` before subtraction.
+///
+/// Departures: the opening is smoothed with a Gaussian of `smooth_sigma` before subtraction;
+/// and for windows of 16 px and more the background is estimated on an image reduced by block
+/// minima of `window / 8` px (the background varies slowly by assumption, so a coarse grid
+/// holds it), then brought back by bilinear interpolation. That costs a bias of at most
+/// `(f − 1)/2` px times the illumination slope, and makes the step about 8x cheaper.
 pub fn tophat(image: &Image, window: usize, smooth_sigma: f32) -> Image {
-    let background = gaussian_blur(&grey_opening_square(image, window), smooth_sigma);
+    let background = background_estimate(image, window, smooth_sigma);
     let mut out = image - &background;
     out.mapv_inplace(|v| v.max(0.0));
+    out
+}
+
+/// The smoothed opening that [`tophat`] subtracts.
+pub fn background_estimate(image: &Image, window: usize, smooth_sigma: f32) -> Image {
+    let factor = (window / 8).max(1);
+    if factor == 1 {
+        return gaussian_blur(&grey_opening_square(image, window), smooth_sigma);
+    }
+    let small = block_min(image, factor);
+    let small_window = (window / factor) | 1;
+    let small_background = gaussian_blur(&grey_opening_square(&small, small_window), smooth_sigma / factor as f32);
+    upsample_bilinear(&small_background, factor, image.dim())
+}
+
+/// Minimum over non-overlapping `f` x `f` blocks (edge blocks over what exists).
+fn block_min(image: &Image, f: usize) -> Image {
+    let (h, w) = image.dim();
+    let mut out = Image::from_elem((h.div_ceil(f), w.div_ceil(f)), f32::INFINITY);
+    for ((y, x), &v) in image.indexed_iter() {
+        let o = &mut out[[y / f, x / f]];
+        *o = o.min(v);
+    }
+    out
+}
+
+/// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points.
+fn upsample_bilinear(small: &Image, f: usize, (h, w): (usize, usize)) -> Image {
+    let (sh, sw) = small.dim();
+    let coordinate = |i: usize, n: usize| {
+        let c = ((i as f32 + 0.5) / f as f32 - 0.5).clamp(0.0, (n - 1) as f32);
+        let i0 = c.floor() as usize;
+        (i0, (i0 + 1).min(n - 1), c - i0 as f32)
+    };
+    let columns: Vec<(usize, usize, f32)> = (0..w).map(|x| coordinate(x, sw)).collect();
+    let mut out = Image::zeros((h, w));
+    for y in 0..h {
+        let (y0, y1, fy) = coordinate(y, sh);
+        for (x, &(x0, x1, fx)) in columns.iter().enumerate() {
+            let top = small[[y0, x0]] * (1.0 - fx) + small[[y0, x1]] * fx;
+            let bottom = small[[y1, x0]] * (1.0 - fx) + small[[y1, x1]] * fx;
+            out[[y, x]] = top * (1.0 - fy) + bottom * fy;
+        }
+    }
     out
 }
 
@@ -114,6 +163,29 @@ mod tests {
                     .fold(f32::INFINITY, f32::min);
                 assert_eq!(v, want, "k={k} i={i}");
             }
+        }
+    }
+
+    #[test]
+    fn reduced_background_follows_a_gentle_ramp() {
+        // Source: own derivation (doc comment of `tophat`): block minima of f px bias the
+        // background by at most (f-1)/2 px x slope in each axis; here f = 3, slope 0.05 per px
+        // in x and 0.02 in y, so the residual off the spots stays below 0.05 + 0.02 + rounding,
+        // and a 9x9 spot of +100 keeps its height within that.
+        let img = Image::from_shape_fn((120, 160), |(y, x)| {
+            let spot = if (50..59).contains(&y) && (70..79).contains(&x) {
+                100.0
+            } else {
+                0.0
+            };
+            200.0 + 0.05 * x as f32 + 0.02 * y as f32 + spot
+        });
+        let out = tophat(&img, 29, 0.0);
+        assert!((out[[54, 74]] - 100.0).abs() < 0.1, "{}", out[[54, 74]]);
+        // Interior points only: within a window of the border the reflection makes any opening
+        // lag the ramp (METHODS.md §3 shows the same artefact for a disk).
+        for (y, x) in [(20, 20), (100, 140), (60, 20), (30, 120)] {
+            assert!(out[[y, x]] < 0.1, "({y},{x}): {}", out[[y, x]]);
         }
     }
 
