@@ -67,7 +67,7 @@ fn candidate_links(sources: &[[f64; 2]], targets: &[[f64; 2]], max_step: f64) ->
             pairs.push((i, hit.item as usize, hit.distance));
         }
     }
-    pairs.sort_by(|a, b| (a.0, a.1).cmp(&(b.0, b.1)));
+    pairs.sort_by_key(|a| (a.0, a.1));
     pairs
 }
 
