@@ -42,7 +42,15 @@ fn edt_seeds_watershed(b: Bencher) {
     let prepared = prepare(&FRAME, &PARAMS);
     let t = choose_threshold(prepared.as_slice().unwrap(), PARAMS.threshold);
     let mask: Vec<bool> = prepared.iter().map(|&v| v as f64 > t).collect();
-    b.bench(|| split_touching(black_box(&mask), 1024, 1024, PARAMS.seed_h_px));
+    b.bench(|| {
+        split_touching(
+            black_box(&mask),
+            1024,
+            1024,
+            PARAMS.seed_h_px,
+            PARAMS.distance_smoothing_px,
+        )
+    });
 }
 
 #[divan::bench]

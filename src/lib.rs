@@ -19,6 +19,7 @@
 //! integer coordinates, 0-based; `x` is the column and `y` the row. Frames are numbered from 0.
 //! Lengths carry their unit in the name (`pixel_size_um`), times too (`frame_interval_s`).
 
+pub mod analyze;
 pub mod error;
 pub mod image2d;
 pub mod link;

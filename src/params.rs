@@ -177,8 +177,10 @@ pub struct SegmentParams {
     pub background: BackgroundMethod,
     /// Gaussian smoothing sigma in pixels (default: diameter / 10, at least 1).
     pub smoothing_sigma_px: f64,
-    /// h of the h-maxima seeds, in pixels of distance (default: 0.06 x diameter, at least 1).
+    /// h of the h-maxima seeds, in pixels of distance (default: 0.04 x diameter, at least 0.5).
     pub seed_h_px: f64,
+    /// Gaussian sigma applied to the distance map before seeding (default: diameter / 14).
+    pub distance_smoothing_px: f64,
     /// Objects smaller than this many pixels are dropped (default: 20% of a disc of the diameter).
     pub min_area_px: f64,
     /// Objects larger than this many pixels are dropped (default: 5 discs of the diameter).
@@ -194,7 +196,8 @@ impl SegmentParams {
             threshold: ThresholdMethod::Otsu,
             background: BackgroundMethod::Tophat,
             smoothing_sigma_px: (diameter_px / 10.0).max(1.0),
-            seed_h_px: (0.06 * diameter_px).max(1.0),
+            seed_h_px: (0.04 * diameter_px).max(0.5),
+            distance_smoothing_px: diameter_px / 14.0,
             min_area_px: (0.2 * disc).max(4.0),
             max_area_px: 5.0 * disc,
         }
@@ -212,6 +215,13 @@ impl SegmentParams {
         }
         positive("--smoothing", self.smoothing_sigma_px)?;
         positive("--seed-h", self.seed_h_px)?;
+        if !(self.distance_smoothing_px >= 0.0 && self.distance_smoothing_px.is_finite()) {
+            return Err(Error::parameter(
+                "distance_smoothing_px",
+                self.distance_smoothing_px,
+                "must be 0 or positive",
+            ));
+        }
         positive("--min-area", self.min_area_px)?;
         if self.max_area_px <= self.min_area_px {
             return Err(Error::parameter(

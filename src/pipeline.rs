@@ -2,13 +2,16 @@
 //! diameter), segmenting frames in parallel batches while keeping frame order, progress on a
 //! terminal, and the `segment` run with its outputs. No per-pixel work happens here.
 
+use crate::analyze::{summarize_track, write_per_track, TrackSummary};
 use crate::error::{Error, Result};
+use crate::link::nearest_neighbour_distances;
+use crate::link::online::{LinkParams, OnlineLinker};
 use crate::output::{ensure_dir, fnv1a64_file, write_atomic, AtomicFile};
 use crate::params::{Length, SegmentParams};
 use crate::segment::{diameter::estimate_diameter, segment_frame, FrameSegmentation};
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::Stack;
-use crate::tracks::{write_detections, write_detections_header};
+use crate::tracks::{write_detections, write_detections_header, write_tracks, TrackedDetection};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
@@ -144,7 +147,7 @@ pub struct FrameSummary {
     pub objects: usize,
 }
 
-/// What `segment` produced.
+/// What a `segment` or `track` run produced.
 #[derive(Debug, Clone)]
 pub struct SegmentRun {
     /// Output folder.
@@ -153,6 +156,10 @@ pub struct SegmentRun {
     pub diameter: DiameterSource,
     /// One entry per frame.
     pub frames: Vec<FrameSummary>,
+    /// One entry per track (empty without linking).
+    pub tracks: Vec<TrackSummary>,
+    /// Quality figures of the linking (absent without linking).
+    pub linking_qc: Option<LinkingQc>,
     /// Human-readable warnings (also in run.json).
     pub warnings: Vec<String>,
 }
@@ -164,15 +171,33 @@ impl SegmentRun {
     }
 }
 
-/// Options of a `segment` run beyond the segmentation parameters.
+/// Options of a run beyond the segmentation parameters.
 #[derive(Debug, Clone, Default)]
 pub struct SegmentOutputs {
     /// Also write `labels.tif` (one 32-bit label image per frame).
     pub labels: bool,
+    /// Link detections into tracks (`tracks.csv`, `per_track.csv`).
+    pub linking: Option<LinkParams>,
+}
+
+/// Figures that tell whether linking can be trusted.
+#[derive(Debug, Clone, Serialize)]
+pub struct LinkingQc {
+    /// Median displacement of accepted links, px.
+    pub median_step_px: Option<f64>,
+    /// Median nearest-neighbour distance over all detections, px.
+    pub median_neighbour_distance_px: Option<f64>,
+    /// Median step / median neighbour distance; above 0.5 linking is ambiguous (common practice).
+    pub ambiguity_ratio: Option<f64>,
+    /// Share of links longer than 80% of the maximum step (many suggest raising it).
+    pub near_max_step_fraction: Option<f64>,
+    /// Share of tracks with fewer than 10 points (common practice: too short for statistics).
+    pub short_track_fraction: Option<f64>,
 }
 
 /// Segments every frame of an open recording and writes `detections.csv` (and optionally
-/// `labels.tif`) plus `run.json` into `dir`, each atomically.
+/// `labels.tif`, and with linking `tracks.csv` and `per_track.csv`) plus `run.json` into `dir`,
+/// each atomically.
 pub fn run_segment(
     stack: &mut Stack,
     diameter: DiameterSource,
@@ -189,14 +214,22 @@ pub fn run_segment(
     let mut csv = AtomicFile::create(&dir.join("detections.csv"))?;
     write_detections_header(&mut csv).map_err(|e| csv.error(e))?;
     let mut frames = Vec::with_capacity(info.frames);
-    let mut handle = |seg: &FrameSegmentation, csv: &mut AtomicFile| -> Result<()> {
+    let mut linker = outputs.linking.map(OnlineLinker::new);
+    let mut tracked: Vec<TrackedDetection> = Vec::new();
+    let mut neighbour_distances: Vec<f64> = Vec::new();
+    let mut handle = |seg: FrameSegmentation, csv: &mut AtomicFile| -> Result<Vec<u32>> {
         write_detections(csv, &seg.detections, &calibration).map_err(|e| csv.error(e))?;
         frames.push(FrameSummary {
             frame: seg.frame,
             threshold: seg.threshold.is_finite().then_some(seg.threshold),
             objects: seg.detections.len(),
         });
-        Ok(())
+        if let Some(l) = linker.as_mut() {
+            let points: Vec<[f64; 2]> = seg.detections.iter().map(|d| [d.x, d.y]).collect();
+            neighbour_distances.extend(nearest_neighbour_distances(&points).into_iter().flatten());
+            tracked.extend(l.push(seg.detections));
+        }
+        Ok(seg.labels)
     };
     let mut segmented = SegmentedFrames::new(stack, params, progress_bar(info.frames as u64, "frames"));
     if outputs.labels {
@@ -209,21 +242,31 @@ pub fn run_segment(
             None,
             |_| {
                 let seg = segmented.next().expect("one result per frame")?;
-                handle(&seg, &mut csv)?;
-                Ok(seg.labels)
+                handle(seg, &mut csv)
             },
         )?;
     } else {
         for seg in segmented {
-            handle(&seg?, &mut csv)?;
+            handle(seg?, &mut csv)?;
         }
     }
     csv.commit()?;
-    let warnings = warnings_for(&frames, &info);
+    let (tracks, linking_qc) = match outputs.linking {
+        Some(link) => {
+            let tracks = write_track_outputs(dir, &mut tracked, &calibration)?;
+            let qc = linking_qc(&tracked, &tracks, &mut neighbour_distances, link.max_step_px);
+            (tracks, Some(qc))
+        }
+        None => (Vec::new(), None),
+    };
+    let mut warnings = warnings_for(&frames, &info);
+    warnings.extend(linking_qc.as_ref().map(linking_warnings).unwrap_or_default());
     let run = SegmentRun {
         dir: dir.to_path_buf(),
         diameter,
         frames,
+        tracks,
+        linking_qc,
         warnings,
     };
     let checksum = fnv1a64_file(&info.path).ok().map(|h| format!("{h:016x}"));
@@ -232,17 +275,101 @@ pub fn run_segment(
         "command": command,
         "research_use": "Caravan is research software; statistics are only as good as the segmentation they rest on.",
         "input": { "stack": info, "fnv1a64": checksum },
-        "parameters": { "diameter": diameter, "segment": params },
-        "counts": { "frames": run.frames.len(), "detections": run.detections() },
+        "parameters": { "diameter": diameter, "segment": params, "link": outputs.linking },
+        "counts": { "frames": run.frames.len(), "detections": run.detections(), "tracks": run.tracks.len() },
+        "linking_qc": run.linking_qc,
         "per_frame": run.frames,
         "warnings": run.warnings,
-        "timings_s": { "segment": started.elapsed().as_secs_f64() },
+        "timings_s": { "segment_and_link": started.elapsed().as_secs_f64() },
     });
     write_atomic(
         &dir.join("run.json"),
         &serde_json::to_vec_pretty(&record).expect("serialisable"),
     )?;
     Ok(run)
+}
+
+/// Sorts tracked detections by track then frame, writes `tracks.csv` and `per_track.csv`, and
+/// returns the per-track summaries.
+fn write_track_outputs(
+    dir: &Path,
+    tracked: &mut [TrackedDetection],
+    calibration: &crate::stack::Calibration,
+) -> Result<Vec<TrackSummary>> {
+    tracked.sort_by_key(|p| (p.track_id, p.detection.frame));
+    let mut file = AtomicFile::create(&dir.join("tracks.csv"))?;
+    write_tracks(&mut file, tracked, calibration).map_err(|e| file.error(e))?;
+    file.commit()?;
+    let summaries: Vec<TrackSummary> = tracked
+        .chunk_by(|a, b| a.track_id == b.track_id)
+        .map(|run| {
+            let pts: Vec<(usize, f64, f64)> = run
+                .iter()
+                .map(|p| (p.detection.frame, p.detection.x, p.detection.y))
+                .collect();
+            summarize_track(run[0].track_id, run[0].parent_id, &pts)
+        })
+        .collect();
+    let mut file = AtomicFile::create(&dir.join("per_track.csv"))?;
+    write_per_track(&mut file, &summaries, calibration).map_err(|e| file.error(e))?;
+    file.commit()?;
+    Ok(summaries)
+}
+
+fn median(v: &mut [f64]) -> Option<f64> {
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(f64::total_cmp);
+    let m = v.len();
+    Some(if m % 2 == 1 {
+        v[m / 2]
+    } else {
+        0.5 * (v[m / 2 - 1] + v[m / 2])
+    })
+}
+
+fn linking_qc(
+    tracked: &[TrackedDetection],
+    tracks: &[TrackSummary],
+    neighbour: &mut [f64],
+    max_step_px: f64,
+) -> LinkingQc {
+    let mut steps: Vec<f64> = tracked.iter().filter_map(|p| p.link_cost_px2).map(f64::sqrt).collect();
+    let near = (!steps.is_empty())
+        .then(|| steps.iter().filter(|&&s| s > 0.8 * max_step_px).count() as f64 / steps.len() as f64);
+    let median_step_px = median(&mut steps);
+    let median_neighbour_distance_px = median(neighbour);
+    let ambiguity_ratio = match (median_step_px, median_neighbour_distance_px) {
+        (Some(s), Some(n)) if n > 0.0 => Some(s / n),
+        _ => None,
+    };
+    let short =
+        (!tracks.is_empty()).then(|| tracks.iter().filter(|t| t.points < 10).count() as f64 / tracks.len() as f64);
+    LinkingQc {
+        median_step_px,
+        median_neighbour_distance_px,
+        ambiguity_ratio,
+        near_max_step_fraction: near,
+        short_track_fraction: short,
+    }
+}
+
+fn linking_warnings(qc: &LinkingQc) -> Vec<String> {
+    let mut w = Vec::new();
+    if let Some(r) = qc.ambiguity_ratio.filter(|&r| r > 0.5) {
+        w.push(format!("linking is ambiguous: median step is {r:.2} of the median neighbour distance (above 0.5); image more often or keep prediction on"));
+    }
+    if let Some(f) = qc.near_max_step_fraction.filter(|&f| f > 0.05) {
+        w.push(format!(
+            "{:.0}% of links are near the maximum step; consider raising --max-step",
+            100.0 * f
+        ));
+    }
+    if let Some(f) = qc.short_track_fraction.filter(|&f| f > 0.5) {
+        w.push(format!("{:.0}% of tracks have fewer than 10 points", 100.0 * f));
+    }
+    w
 }
 
 fn warnings_for(frames: &[FrameSummary], info: &crate::stack::StackInfo) -> Vec<String> {

@@ -1,14 +1,15 @@
 //! `caravan demo`: our own scenario end to end, as a first look at what the tool does.
 
+use caravan::link::online::LinkParams;
 use caravan::params::SegmentParams;
 use caravan::pipeline::{resolve_diameter, run_segment, DiameterSource, SegmentOutputs};
-use caravan::score::match_points;
+use caravan::score::{link_scores, match_points};
 use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{write_recording, Scenario, SynthParams};
-use caravan::tracks::read_track_points;
+use caravan::tracks::{read_track_points, TrackPoint};
 use caravan::{Error, Result};
 use clap::Args;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 #[derive(Args)]
 pub struct DemoArgs {
@@ -28,52 +29,82 @@ pub fn run(args: DemoArgs) -> Result<()> {
         DiameterSource::Given(d) | DiameterSource::Estimated(d) => d,
     };
     println!("Estimated nucleus diameter: {d:.1} px (truth: {:.1} px)", p.diameter_px);
-    let run_dir = args.output.join("segmentation");
+    let run_dir = args.output.join("tracking");
+    let outputs = SegmentOutputs {
+        labels: true,
+        linking: Some(LinkParams::for_diameter(d)),
+    };
     let run = run_segment(
         &mut stack,
         diameter,
         &SegmentParams::for_diameter(d),
         &run_dir,
-        &SegmentOutputs { labels: true },
+        &outputs,
         "demo",
     )?;
-    let truth_text =
-        std::fs::read_to_string(&synth.truth_csv).map_err(|e| Error::input(&synth.truth_csv, e.to_string()))?;
-    let truth = read_track_points(&truth_text).map_err(|e| Error::input(&synth.truth_csv, e))?;
-    let detections =
-        std::fs::read_to_string(run_dir.join("detections.csv")).map_err(|e| Error::input(&run_dir, e.to_string()))?;
-    let mut counts = caravan::score::MatchCounts::default();
+    let truth = read_points(&synth.truth_csv)?;
+    let found = read_points(&run_dir.join("tracks.csv"))?;
+    let mut detection = caravan::score::MatchCounts::default();
     for t in 0..p.frames {
-        let r: Vec<(f64, f64)> = truth.iter().filter(|q| q.frame == t).map(|q| (q.x, q.y)).collect();
-        let f: Vec<(f64, f64)> = detections
-            .lines()
-            .skip(1)
-            .filter_map(|l| {
-                let c: Vec<&str> = l.split(',').collect();
-                (c[0].parse::<usize>().ok()? == t).then(|| Some((c[2].parse().ok()?, c[3].parse().ok()?)))?
-            })
-            .collect();
-        counts.add(match_points(&r, &f, d / 2.0));
+        let pick = |v: &[TrackPoint]| {
+            v.iter()
+                .filter(|q| q.frame == t)
+                .map(|q| (q.x, q.y))
+                .collect::<Vec<_>>()
+        };
+        detection.add(match_points(&pick(&truth), &pick(&found), d / 2.0));
     }
+    let links = link_scores(&truth, &found, d / 2.0);
+    let cal = stack.info().calibration;
+    let mut speeds: Vec<f64> = run
+        .tracks
+        .iter()
+        .filter(|t| t.points >= 10)
+        .filter_map(|t| t.mean_speed_px_per_frame)
+        .collect();
+    let mut ratios: Vec<f64> = run
+        .tracks
+        .iter()
+        .filter(|t| t.points >= 10)
+        .filter_map(|t| t.directionality_ratio)
+        .collect();
+    let to_um_min = cal.pixel_size_um.unwrap_or(1.0) / (cal.frame_interval_s.unwrap_or(60.0) / 60.0);
     println!(
-        "{} frames, {:.1} nuclei per frame on average",
+        "{} frames, {:.1} nuclei per frame, {} tracks",
         run.frames.len(),
-        run.detections() as f64 / run.frames.len() as f64
+        run.detections() as f64 / run.frames.len() as f64,
+        run.tracks.len()
     );
     println!(
-        "detection F1 against the truth: {:.3} (precision {:.3}, recall {:.3})",
-        counts.f1(),
-        counts.precision(),
-        counts.recall()
+        "tracks of 10+ points: median speed {:.2} µm/min, median directionality {:.2}",
+        median(&mut speeds) * to_um_min,
+        median(&mut ratios)
     );
     println!(
-        "outputs:\n  recording   {}\n  truth       {}\n  detections  {}\n  labels      {}\n  run record  {}",
-        synth.recording.display(),
-        synth.truth_csv.display(),
-        run_dir.join("detections.csv").display(),
-        run_dir.join("labels.tif").display(),
-        run_dir.join("run.json").display()
+        "against the truth: detection F1 {:.3}; link precision {:.3}, recall {:.3}, identity switches {}",
+        detection.f1(),
+        links.precision(),
+        links.recall(),
+        links.identity_switches
     );
+    for w in &run.warnings {
+        println!("warning: {w}");
+    }
+    let show = |name: &str| run_dir.join(name).display().to_string();
+    println!("outputs:\n  recording   {}\n  truth       {}\n  tracks      {}\n  per track   {}\n  detections  {}\n  labels      {}\n  run record  {}", synth.recording.display(), synth.truth_csv.display(), show("tracks.csv"), show("per_track.csv"), show("detections.csv"), show("labels.tif"), show("run.json"));
     println!("Research software: statistics are only as good as the segmentation they rest on.");
     Ok(())
+}
+
+fn read_points(path: &Path) -> Result<Vec<TrackPoint>> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::input(path, e.to_string()))?;
+    read_track_points(&text).map_err(|e| Error::input(path, e))
+}
+
+fn median(v: &mut [f64]) -> f64 {
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
 }

@@ -6,6 +6,7 @@ mod inspect;
 mod preview;
 mod segment;
 mod synth;
+mod track;
 
 use caravan::params::{parse_pixel_size_um, parse_seconds, BackgroundMethod, Length, SegmentParams, ThresholdMethod};
 use caravan::pipeline::DiameterSource;
@@ -33,9 +34,11 @@ enum Command {
     Preview(preview::PreviewArgs),
     /// Segment every frame and write detections.csv and run.json.
     Segment(segment::SegmentArgs),
+    /// Segment every frame and link nuclei into tracks (tracks.csv, per_track.csv, run.json).
+    Track(track::TrackArgs),
     /// Write a synthetic recording with ground truth.
     Synth(synth::SynthArgs),
-    /// Synthesize a recording, segment it, and score the result against the truth.
+    /// Synthesize a recording, track it, and score the result against the truth.
     Demo(demo::DemoArgs),
 }
 
@@ -46,6 +49,7 @@ pub fn run() -> i32 {
         Command::Inspect(a) => inspect::run(a),
         Command::Preview(a) => preview::run(a),
         Command::Segment(a) => segment::run(a),
+        Command::Track(a) => track::run(a),
         Command::Synth(a) => synth::run(a),
         Command::Demo(a) => demo::run(a),
     };
@@ -120,7 +124,7 @@ struct SegmentationArgs {
     /// Gaussian smoothing sigma in px (default: diameter/10, at least 1).
     #[arg(long)]
     smoothing: Option<f64>,
-    /// Seed height h in px of distance: smaller splits more (default: 0.06 x diameter, at least 1).
+    /// Seed height h in px of the smoothed distance map: smaller splits more (default: 0.04 x diameter, at least 0.5).
     #[arg(long)]
     seed_h: Option<f64>,
     /// Smallest object kept, px (default: 20% of a disc of the diameter).

@@ -28,7 +28,10 @@ pub fn run(args: SegmentArgs) -> Result<()> {
         diameter,
         &params,
         &args.output,
-        &SegmentOutputs { labels: args.labels },
+        &SegmentOutputs {
+            labels: args.labels,
+            linking: None,
+        },
         "segment",
     )?;
     println!(

@@ -2,7 +2,10 @@
 //! framework: candidate links within a maximum step (k-d tree), the bipartite candidate graph
 //! split into independent components, and each component solved optimally by Hungarian
 //! assignment with birth and death alternatives, so that a detection may start a new track
-//! rather than take a bad link. Tracks, gap closing and divisions build on it. No file I/O.
+//! rather than take a bad link. [`online::OnlineLinker`] turns it into tracks frame by frame.
+//! No file I/O.
+
+pub mod online;
 
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use pathfinding::prelude::{kuhn_munkres, Matrix};
@@ -18,6 +21,9 @@ pub struct FrameLinks {
     pub deaths: Vec<usize>,
     /// The birth/death alternative cost used (squared px).
     pub alternative_cost: f64,
+    /// For each link (same order), the cheapest competing choice: another candidate of its
+    /// source or of its target, or the alternative cost.
+    pub second_best: Vec<f64>,
 }
 
 /// Links `sources` (frame t) to `targets` (frame t+1) by minimum total squared displacement,
@@ -49,9 +55,40 @@ pub fn link_frames(sources: &[[f64; 2]], targets: &[[f64; 2]], max_step: f64) ->
         }
     }
     out.links.sort_by_key(|l| l.0);
+    out.second_best = out
+        .links
+        .iter()
+        .map(|&(s, t, _)| {
+            candidates
+                .iter()
+                .filter(|c| (c.0 == s) != (c.1 == t))
+                .map(|c| c.2)
+                .fold(alternative_cost, f64::min)
+        })
+        .collect();
     out.deaths = (0..sources.len()).filter(|&i| !linked_source[i]).collect();
     out.births = (0..targets.len()).filter(|&j| !linked_target[j]).collect();
     out
+}
+
+/// Distance from each point to its nearest other point (`None` for a lone point), via a k-d
+/// tree; used for the linking ambiguity ratio.
+pub fn nearest_neighbour_distances(points: &[[f64; 2]]) -> Vec<Option<f64>> {
+    if points.len() < 2 {
+        return vec![None; points.len()];
+    }
+    let tree: ImmutableKdTree<f64, 2> = ImmutableKdTree::new_from_slice(points).expect("finite points");
+    let two = std::num::NonZero::new(2usize).expect("non-zero");
+    points
+        .iter()
+        .map(|p| {
+            tree.query(p)
+                .nearest_n::<SquaredEuclidean<f64>>(two)
+                .execute()
+                .get(1)
+                .map(|h| h.distance.sqrt())
+        })
+        .collect()
 }
 
 /// All `(source, target, squared distance)` pairs within `max_step`, found with a k-d tree.
@@ -112,14 +149,30 @@ fn components(n_sources: usize, n_targets: usize, candidates: &[(usize, usize, f
     by_root.into_values().collect()
 }
 
+/// Costs in squared px become integers in units of 1/1000 px² (the solver needs `Ord`
+/// weights); the rounding moves a total by at most 0.0005 px² per assigned pair.
+pub fn scale_cost(cost: f64) -> i64 {
+    (cost * 1000.0).round() as i64
+}
+
+/// The row-to-column assignment of minimum total cost of a square integer matrix.
+///
+/// # Method
+/// Hungarian algorithm (Kuhn 1955; Munkres 1957) via `pathfinding::kuhn_munkres`, which
+/// maximises, on the negated costs.
+pub fn hungarian_min_cost(cost: &Matrix<i64>) -> Vec<usize> {
+    let weights =
+        Matrix::from_vec(cost.rows, cost.columns, cost.as_ref().iter().map(|&v| -v).collect()).expect("same shape");
+    kuhn_munkres(&weights).1
+}
+
 /// Solves one component's (n+m)x(m+n) LAP and returns its links.
 fn solve_component(c: &Component, candidates: &[(usize, usize, f64)], alternative: f64) -> Vec<(usize, usize, f64)> {
     let (n, m) = (c.sources.len(), c.targets.len());
     let size = n + m;
-    // Integer costs: squared px in units of 1/1000; forbidden entries cost more than any
-    // complete assignment of allowed ones, and the weights (negated costs) stay far from overflow.
-    let scale = 1000.0;
-    let alt = (alternative * scale).round() as i64;
+    // Forbidden entries cost more than any complete assignment of allowed ones, and the
+    // weights (negated costs) stay far from overflow.
+    let alt = scale_cost(alternative);
     let forbidden = (alt + 1) * (size as i64 + 1);
     let mut cost = Matrix::new(size, size, forbidden);
     let row_of = |s: usize| c.sources.iter().position(|&x| x == s).expect("source in component");
@@ -127,7 +180,7 @@ fn solve_component(c: &Component, candidates: &[(usize, usize, f64)], alternativ
     let mut min_link = i64::MAX;
     for &k in &c.edges {
         let (s, t, d2) = candidates[k];
-        let v = (d2 * scale).round() as i64;
+        let v = scale_cost(d2);
         cost[(row_of(s), col_of(t))] = v;
         min_link = min_link.min(v);
     }
@@ -141,8 +194,7 @@ fn solve_component(c: &Component, candidates: &[(usize, usize, f64)], alternativ
         let (s, t, _) = candidates[k];
         cost[(n + col_of(t), m + row_of(s))] = min_link; // auxiliary block, Lᵀ pattern
     }
-    let weights = Matrix::from_vec(size, size, cost.as_ref().iter().map(|&v| -v).collect()).expect("square");
-    let (_, assignment) = kuhn_munkres(&weights);
+    let assignment = hungarian_min_cost(&cost);
     let mut links = Vec::new();
     for (i, &j) in assignment.iter().enumerate().take(n) {
         if j < m && cost[(i, j)] < forbidden {
@@ -163,6 +215,15 @@ fn solve_component(c: &Component, candidates: &[(usize, usize, f64)], alternativ
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn second_best_is_the_cheapest_competitor() {
+        // Hand-derived: source 0 has candidates at squared distances 1 and 9; alternative is
+        // 1.05 x 9 = 9.45, so the second best of link 0->0 is 9.
+        let r = link_frames(&[[0.0, 0.0]], &[[1.0, 0.0], [0.0, 3.0]], 5.0);
+        assert_eq!(r.links, vec![(0, 0, 1.0)]);
+        assert_eq!(r.second_best, vec![9.0]);
+    }
 
     #[test]
     fn methods_lap_check_value() {

@@ -1,6 +1,7 @@
 //! Accuracy of detections against ground truth: one-to-one centroid matching (optimal, by
 //! Hungarian assignment) and IoU matching of label images. The tracking measures come later.
 
+use crate::tracks::TrackPoint;
 use pathfinding::prelude::{kuhn_munkres, Matrix};
 use std::collections::HashMap;
 
@@ -97,6 +98,73 @@ pub fn matched_pairs(reference: &[(f64, f64)], found: &[(f64, f64)], max_distanc
         .collect()
 }
 
+/// Link accuracy of tracks against ground truth.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize)]
+pub struct LinkScores {
+    /// Links in the truth (consecutive frames of one true track).
+    pub true_links: usize,
+    /// Links in the result (consecutive frames of one result track).
+    pub found_links: usize,
+    /// Result links whose two ends match the same true track.
+    pub correct_links: usize,
+    /// Result links whose two ends match two different true tracks.
+    pub identity_switches: usize,
+}
+
+impl LinkScores {
+    /// Correct links / result links.
+    pub fn precision(&self) -> f64 {
+        ratio(self.correct_links, self.found_links)
+    }
+    /// Correct links / true links.
+    pub fn recall(&self) -> f64 {
+        ratio(self.correct_links, self.true_links)
+    }
+}
+
+/// Scores the links of `found` tracks against `truth` tracks: per frame, points are matched
+/// one to one within `max_distance` ([`matched_pairs`]); a result link is correct when both of
+/// its ends match points of the same true track in consecutive frames.
+pub fn link_scores(truth: &[TrackPoint], found: &[TrackPoint], max_distance: f64) -> LinkScores {
+    let frames: std::collections::BTreeSet<usize> = truth.iter().chain(found).map(|p| p.frame).collect();
+    let mut truth_of: HashMap<(usize, u32), u32> = HashMap::new();
+    for &t in &frames {
+        let tr: Vec<&TrackPoint> = truth.iter().filter(|p| p.frame == t).collect();
+        let fo: Vec<&TrackPoint> = found.iter().filter(|p| p.frame == t).collect();
+        let xy = |v: &[&TrackPoint]| v.iter().map(|p| (p.x, p.y)).collect::<Vec<_>>();
+        for (i, j) in matched_pairs(&xy(&tr), &xy(&fo), max_distance) {
+            truth_of.insert((t, fo[j].track_id), tr[i].track_id);
+        }
+    }
+    let mut scores = LinkScores {
+        true_links: consecutive(truth).len(),
+        ..LinkScores::default()
+    };
+    for (a, b) in consecutive(found) {
+        scores.found_links += 1;
+        match (
+            truth_of.get(&(a.frame, a.track_id)),
+            truth_of.get(&(b.frame, b.track_id)),
+        ) {
+            (Some(x), Some(y)) if x == y => scores.correct_links += 1,
+            (Some(_), Some(_)) => scores.identity_switches += 1,
+            _ => {}
+        }
+    }
+    scores
+}
+
+/// Pairs of points of one track in consecutive frames.
+fn consecutive(points: &[TrackPoint]) -> Vec<(&TrackPoint, &TrackPoint)> {
+    let mut sorted: Vec<&TrackPoint> = points.iter().collect();
+    sorted.sort_by_key(|p| (p.track_id, p.frame));
+    sorted
+        .windows(2)
+        .filter(|w| w[0].track_id == w[1].track_id && w[1].frame == w[0].frame + 1)
+        .map(|w| (w[0], w[1]))
+        .collect()
+}
+
 /// Result of matching two label images by intersection over union.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
 pub struct IouScore {
@@ -150,6 +218,39 @@ pub fn iou_match(reference: &[u32], test: &[u32]) -> IouScore {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn link_scores_count_correct_links_and_switches() {
+        // Hand-built: two true tracks moving right at y = 0 and y = 10 over frames 0..3 (6 true
+        // links); the result swaps identities between frames 1 and 2: 4 correct links, 2 switches.
+        let p = |id, frame, x: f64, y: f64| TrackPoint {
+            track_id: id,
+            parent_id: None,
+            frame,
+            x,
+            y,
+        };
+        let truth: Vec<TrackPoint> = (0..4)
+            .flat_map(|f| [p(1, f, f as f64, 0.0), p(2, f, f as f64, 10.0)])
+            .collect();
+        let found: Vec<TrackPoint> = (0..4)
+            .flat_map(|f| {
+                let (a, b) = if f < 2 { (7, 8) } else { (8, 7) };
+                [p(a, f, f as f64 + 0.2, 0.0), p(b, f, f as f64, 10.3)]
+            })
+            .collect();
+        let s = link_scores(&truth, &found, 2.0);
+        assert_eq!(
+            s,
+            LinkScores {
+                true_links: 6,
+                found_links: 6,
+                correct_links: 4,
+                identity_switches: 2
+            }
+        );
+        assert!((s.precision() - 4.0 / 6.0).abs() < 1e-12);
+    }
 
     #[test]
     fn iou_matching_catches_a_split() {

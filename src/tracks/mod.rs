@@ -33,6 +33,21 @@ pub struct Detection {
     pub touches_border: bool,
 }
 
+/// A detection placed on a track.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TrackedDetection {
+    /// Track identifier (from 1, in order of first appearance).
+    pub track_id: u32,
+    /// The track this one divided from, if any.
+    pub parent_id: Option<u32>,
+    /// The detection itself.
+    pub detection: Detection,
+    /// Squared displacement from the predicted position (px²); `None` where a track starts.
+    pub link_cost_px2: Option<f64>,
+    /// Confidence of the link into this point (see `link::online::confidence`).
+    pub link_confidence: Option<f64>,
+}
+
 /// The header of `detections.csv`.
 pub const DETECTIONS_HEADER: &str = "frame,object,x,y,x_um,y_um,time_s,area_px,equivalent_diameter_px,mean_intensity,total_intensity,major_axis_px,minor_axis_px,orientation_deg,touches_border";
 
@@ -45,29 +60,55 @@ pub fn write_detections_header(out: &mut impl Write) -> io::Result<()> {
 /// printed with fixed decimals so that outputs are byte-identical between runs.
 pub fn write_detections(out: &mut impl Write, detections: &[Detection], calibration: &Calibration) -> io::Result<()> {
     for d in detections {
-        let (xu, yu) = match calibration.pixel_size_um {
-            Some(s) => (format!("{:.4}", d.x * s), format!("{:.4}", d.y * s)),
-            None => (String::new(), String::new()),
-        };
-        let t = calibration
-            .frame_interval_s
-            .map(|s| format!("{:.3}", d.frame as f64 * s))
-            .unwrap_or_default();
+        writeln!(out, "{},{},{}", d.frame, d.label, measurement_fields(d, calibration))?;
+    }
+    Ok(())
+}
+
+/// `x,y,x_um,y_um,time_s,area_px,...,touches_border` of one detection.
+fn measurement_fields(d: &Detection, calibration: &Calibration) -> String {
+    let (xu, yu) = match calibration.pixel_size_um {
+        Some(s) => (format!("{:.4}", d.x * s), format!("{:.4}", d.y * s)),
+        None => (String::new(), String::new()),
+    };
+    let t = calibration
+        .frame_interval_s
+        .map(|s| format!("{:.3}", d.frame as f64 * s))
+        .unwrap_or_default();
+    format!(
+        "{:.4},{:.4},{xu},{yu},{t},{},{:.4},{:.4},{:.2},{:.4},{:.4},{:.3},{}",
+        d.x,
+        d.y,
+        d.area_px,
+        d.equivalent_diameter_px,
+        d.mean_intensity,
+        d.total_intensity,
+        d.major_axis_px,
+        d.minor_axis_px,
+        d.orientation_deg,
+        d.touches_border as u8
+    )
+}
+
+/// The header of `tracks.csv`.
+pub const TRACKS_HEADER: &str = "track_id,parent_id,frame,x,y,x_um,y_um,time_s,area_px,equivalent_diameter_px,mean_intensity,total_intensity,major_axis_px,minor_axis_px,orientation_deg,touches_border,object,link_cost_px2,link_confidence";
+
+/// Writes `tracks.csv`: the header, then `points` in the order given (callers sort by track,
+/// then frame). Link columns are empty where a track starts.
+pub fn write_tracks(out: &mut impl Write, points: &[TrackedDetection], calibration: &Calibration) -> io::Result<()> {
+    writeln!(out, "{TRACKS_HEADER}")?;
+    for p in points {
+        let parent = p.parent_id.map(|v| v.to_string()).unwrap_or_default();
+        let cost = p.link_cost_px2.map(|c| format!("{c:.4}")).unwrap_or_default();
+        let confidence = p.link_confidence.map(|c| format!("{c:.4}")).unwrap_or_default();
+        let d = &p.detection;
         writeln!(
             out,
-            "{},{},{:.4},{:.4},{xu},{yu},{t},{},{:.4},{:.4},{:.2},{:.4},{:.4},{:.3},{}",
+            "{},{parent},{},{},{},{cost},{confidence}",
+            p.track_id,
             d.frame,
-            d.label,
-            d.x,
-            d.y,
-            d.area_px,
-            d.equivalent_diameter_px,
-            d.mean_intensity,
-            d.total_intensity,
-            d.major_axis_px,
-            d.minor_axis_px,
-            d.orientation_deg,
-            d.touches_border as u8
+            measurement_fields(d, calibration),
+            d.label
         )?;
     }
     Ok(())

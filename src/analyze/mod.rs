@@ -1,0 +1,139 @@
+//! Statistics of tracks. This first piece summarises each track (span, path length, net
+//! displacement, directionality ratio, mean speed, mean direction); population statistics
+//! come later. No drawing here.
+
+use crate::stack::Calibration;
+use serde::Serialize;
+use std::io::{self, Write};
+
+/// One track's summary, in pixels and frames (physical units are derived when writing).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TrackSummary {
+    /// Track identifier.
+    pub track_id: u32,
+    /// The track it divided from, if any.
+    pub parent_id: Option<u32>,
+    /// First frame.
+    pub first_frame: usize,
+    /// Last frame.
+    pub last_frame: usize,
+    /// Points on the track.
+    pub points: usize,
+    /// Sum of step lengths, px.
+    pub path_length_px: f64,
+    /// Distance from the first to the last point, px.
+    pub net_displacement_px: f64,
+    /// Net displacement / path length (`None` for a track that never moved).
+    pub directionality_ratio: Option<f64>,
+    /// Path length / frames elapsed, px per frame (`None` for single points).
+    pub mean_speed_px_per_frame: Option<f64>,
+    /// Direction of the net displacement, degrees from +x toward +y (`None` if zero).
+    pub mean_direction_deg: Option<f64>,
+}
+
+/// Summarises a track from its `(frame, x, y)` points in frame order.
+///
+/// # Method
+/// Straightness (directionality ratio) and speed as in D. M. Gorelik & A. Gautreau (2014),
+/// "Quantitative and unbiased analysis of directional persistence in cell migration", Nat.
+/// Protoc. 9(8):1931–1943, doi:10.1038/nprot.2014.131. The ratio falls with track duration, so
+/// compare it only between tracks of equal span and frame interval.
+pub fn summarize_track(track_id: u32, parent_id: Option<u32>, points: &[(usize, f64, f64)]) -> TrackSummary {
+    let path: f64 = points
+        .windows(2)
+        .map(|w| (w[1].1 - w[0].1).hypot(w[1].2 - w[0].2))
+        .sum();
+    let (first, last) = (points[0], points[points.len() - 1]);
+    let (dx, dy) = (last.1 - first.1, last.2 - first.2);
+    let net = dx.hypot(dy);
+    let elapsed = (last.0 - first.0) as f64;
+    TrackSummary {
+        track_id,
+        parent_id,
+        first_frame: first.0,
+        last_frame: last.0,
+        points: points.len(),
+        path_length_px: path,
+        net_displacement_px: net,
+        directionality_ratio: (path > 0.0).then(|| net / path),
+        mean_speed_px_per_frame: (elapsed > 0.0).then(|| path / elapsed),
+        mean_direction_deg: (net > 0.0).then(|| dy.atan2(dx).to_degrees()),
+    }
+}
+
+/// The header of `per_track.csv`.
+pub const PER_TRACK_HEADER: &str = "track_id,parent_id,first_frame,last_frame,points,duration_s,path_length_px,net_displacement_px,path_length_um,net_displacement_um,directionality_ratio,mean_speed_px_per_frame,mean_speed_um_per_min,mean_direction_deg";
+
+/// Writes `per_track.csv`; physical columns are empty when uncalibrated, and undefined
+/// values (a single point, a track that never moved) are empty.
+pub fn write_per_track(out: &mut impl Write, tracks: &[TrackSummary], calibration: &Calibration) -> io::Result<()> {
+    writeln!(out, "{PER_TRACK_HEADER}")?;
+    let opt = |v: Option<f64>, digits: usize| v.map(|x| format!("{x:.digits$}")).unwrap_or_default();
+    let um = calibration.pixel_size_um;
+    let dt = calibration.frame_interval_s;
+    for t in tracks {
+        let duration = dt.map(|s| s * (t.last_frame - t.first_frame) as f64);
+        let speed_um_min = match (t.mean_speed_px_per_frame, um, dt) {
+            (Some(v), Some(p), Some(s)) => Some(v * p / (s / 60.0)),
+            _ => None,
+        };
+        writeln!(
+            out,
+            "{},{},{},{},{},{},{:.4},{:.4},{},{},{},{},{},{}",
+            t.track_id,
+            t.parent_id.map(|p| p.to_string()).unwrap_or_default(),
+            t.first_frame,
+            t.last_frame,
+            t.points,
+            opt(duration, 3),
+            t.path_length_px,
+            t.net_displacement_px,
+            opt(um.map(|p| p * t.path_length_px), 4),
+            opt(um.map(|p| p * t.net_displacement_px), 4),
+            opt(t.directionality_ratio, 6),
+            opt(t.mean_speed_px_per_frame, 6),
+            opt(speed_um_min, 6),
+            opt(t.mean_direction_deg, 3)
+        )?;
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn worked_track_from_methods() {
+        // Source: METHODS.md §9 worked track (µm), (0,0),(1,0),(2,1),(2,2),(3,2),(5,2), Δt = 2 min:
+        // path 6.414214, net 5.385165, ratio 0.839567, mean speed 0.641421 µm/min.
+        let pts: Vec<(usize, f64, f64)> = [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
+            .iter()
+            .enumerate()
+            .map(|(i, p)| (i, p.0, p.1))
+            .collect();
+        let s = summarize_track(1, None, &pts);
+        assert!((s.path_length_px - 6.414214).abs() < 1e-6);
+        assert!((s.net_displacement_px - 5.385165).abs() < 1e-6);
+        assert!((s.directionality_ratio.unwrap() - 0.839567).abs() < 1e-6);
+        let cal = Calibration {
+            pixel_size_um: Some(1.0),
+            frame_interval_s: Some(120.0),
+            ..Calibration::unknown()
+        };
+        let mut buf = Vec::new();
+        write_per_track(&mut buf, &[s], &cal).unwrap();
+        let row: Vec<String> = String::from_utf8(buf)
+            .unwrap()
+            .lines()
+            .nth(1)
+            .unwrap()
+            .split(',')
+            .map(String::from)
+            .collect();
+        assert_eq!(row[12], "0.641421");
+        assert_eq!(row[5], "600.000");
+        // atan2(2, 5) = 21.801° (trigonometry).
+        assert_eq!(row[13], "21.801");
+    }
+}
