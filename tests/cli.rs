@@ -39,7 +39,7 @@ fn synth(dir: &Path) -> String {
 }
 
 #[test]
-fn segment_is_identical_whatever_the_thread_count() {
+fn track_is_identical_whatever_the_thread_count() {
     let dir = tempfile::tempdir().unwrap();
     let rec = synth(dir.path());
     let inspect = ok(&caravan(&["inspect", &rec], "1"));
@@ -52,7 +52,7 @@ fn segment_is_identical_whatever_the_thread_count() {
         let out = dir.path().join(format!("seg{threads}"));
         let text = ok(&caravan(
             &[
-                "segment",
+                "track",
                 &rec,
                 "-o",
                 out.to_str().unwrap(),
@@ -62,10 +62,10 @@ fn segment_is_identical_whatever_the_thread_count() {
             ],
             threads,
         ));
-        assert!(text.contains("5 frames"), "{text}");
+        assert!(text.contains("5 frames") && text.contains("tracks"), "{text}");
         outputs.push(out);
     }
-    for name in ["detections.csv", "labels.tif"] {
+    for name in ["detections.csv", "labels.tif", "tracks.csv", "per_track.csv"] {
         let a = std::fs::read(outputs[0].join(name)).unwrap();
         let b = std::fs::read(outputs[1].join(name)).unwrap();
         assert!(a == b, "{name} differs between 1 and 2 threads");
@@ -177,7 +177,7 @@ fn outputs_pass_independent_python_readers() {
     let rec = synth(dir.path());
     let seg = dir.path().join("seg");
     ok(&caravan(
-        &["segment", &rec, "-o", seg.to_str().unwrap(), "--labels"],
+        &["track", &rec, "-o", seg.to_str().unwrap(), "--labels"],
         "2",
     ));
     let png = dir.path().join("p.png");

@@ -68,12 +68,36 @@ for t in range(T):
         assert abs(float(d["time_s"]) - 300.0 * t) < 1e-6
         checked += 1
 
+with open(f"{seg}/tracks.csv", newline="") as f:
+    tracks = list(csv.DictReader(f))
+assert list(tracks[0].keys())[:5] == ["track_id", "parent_id", "frame", "x", "y"]
+assert len(tracks) == len(dets), "every detection is on a track"
+keys = [(int(r["track_id"]), int(r["frame"])) for r in tracks]
+assert keys == sorted(keys) and len(set(keys)) == len(keys), "sorted by track then frame, one point per frame"
+for r in tracks:
+    d = by_key[(int(r["frame"]), int(r["object"]))]
+    assert (r["x"], r["y"], r["area_px"]) == (d["x"], d["y"], d["area_px"])
+    if r["link_confidence"]:
+        assert 0.0 <= float(r["link_confidence"]) <= 1.0 and float(r["link_cost_px2"]) >= 0.0
+with open(f"{seg}/per_track.csv", newline="") as f:
+    per_track = {int(r["track_id"]): r for r in csv.DictReader(f)}
+assert sum(int(r["points"]) for r in per_track.values()) == len(tracks)
+for tid, r in per_track.items():
+    pts = np.array([[float(q["x"]), float(q["y"])] for q in tracks if int(q["track_id"]) == tid])
+    path = np.hypot(*np.diff(pts, axis=0).T).sum() if len(pts) > 1 else 0.0
+    net = np.hypot(*(pts[-1] - pts[0]))
+    assert abs(path - float(r["path_length_px"])) < 2e-3 * max(1, len(pts)), (tid, path, r["path_length_px"])
+    assert abs(net - float(r["net_displacement_px"])) < 2e-3
+    if path > 0:
+        assert abs(net / path - float(r["directionality_ratio"])) < 1e-3
+
 with open(f"{seg}/run.json") as f:
     run = json.load(f)
 assert run["counts"]["detections"] == len(dets) == checked
 assert run["counts"]["frames"] == T == len(run["per_frame"])
 assert run["input"]["stack"]["calibration"]["pixel_size_source"] == "ome-xml"
+assert run["counts"]["tracks"] == len(per_track)
 
 img = Image.open(png)
 assert img.format == "PNG" and img.mode == "RGB" and img.size == (W, H), (img.format, img.mode, img.size)
-print(f"independent readers: {checked} detections, {len(truth)} truth points checked")
+print(f"independent readers: {checked} detections, {len(per_track)} tracks, {len(truth)} truth points checked")
