@@ -8,6 +8,7 @@ use crate::link::nearest_neighbour_distances;
 use crate::link::online::{LinkParams, OnlineLinker};
 use crate::output::{ensure_dir, fnv1a64_file, write_atomic, AtomicFile};
 use crate::params::{Length, SegmentParams};
+use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
 use crate::segment::{diameter::estimate_diameter, segment_frame, FrameSegmentation};
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::Stack;
@@ -160,6 +161,8 @@ pub struct SegmentRun {
     pub tracks: Vec<TrackSummary>,
     /// Quality figures of the linking (absent without linking).
     pub linking_qc: Option<LinkingQc>,
+    /// The QC movie, when rendered.
+    pub movie: Option<MovieOutputs>,
     /// Human-readable warnings (also in run.json).
     pub warnings: Vec<String>,
 }
@@ -178,6 +181,8 @@ pub struct SegmentOutputs {
     pub labels: bool,
     /// Link detections into tracks (`tracks.csv`, `per_track.csv`).
     pub linking: Option<LinkParams>,
+    /// With linking: render the QC movie and contact sheet.
+    pub movie: Option<MovieOptions>,
 }
 
 /// Figures that tell whether linking can be trusted.
@@ -217,6 +222,10 @@ pub fn run_segment(
     let mut linker = outputs.linking.map(OnlineLinker::new);
     let mut tracked: Vec<TrackedDetection> = Vec::new();
     let mut neighbour_distances: Vec<f64> = Vec::new();
+    let mut spool = match (outputs.linking, outputs.movie) {
+        (Some(_), Some(_)) => Some(OutlineSpool::create(dir)?),
+        _ => None,
+    };
     let mut handle = |seg: FrameSegmentation, csv: &mut AtomicFile| -> Result<Vec<u32>> {
         write_detections(csv, &seg.detections, &calibration).map_err(|e| csv.error(e))?;
         frames.push(FrameSummary {
@@ -224,6 +233,9 @@ pub fn run_segment(
             threshold: seg.threshold.is_finite().then_some(seg.threshold),
             objects: seg.detections.len(),
         });
+        if let Some(s) = spool.as_mut() {
+            s.push(&seg.labels, info.width, info.height)?;
+        }
         if let Some(l) = linker.as_mut() {
             let points: Vec<[f64; 2]> = seg.detections.iter().map(|d| [d.x, d.y]).collect();
             neighbour_distances.extend(nearest_neighbour_distances(&points).into_iter().flatten());
@@ -259,6 +271,10 @@ pub fn run_segment(
         }
         None => (Vec::new(), None),
     };
+    let movie = match (spool.as_mut(), outputs.movie) {
+        (Some(s), Some(options)) => Some(render_movie(stack, s, &overlay(&tracked, &frames), &options, dir)?),
+        _ => None,
+    };
     let mut warnings = warnings_for(&frames, &info);
     warnings.extend(linking_qc.as_ref().map(linking_warnings).unwrap_or_default());
     let run = SegmentRun {
@@ -267,6 +283,7 @@ pub fn run_segment(
         frames,
         tracks,
         linking_qc,
+        movie,
         warnings,
     };
     let checksum = fnv1a64_file(&info.path).ok().map(|h| format!("{h:016x}"));
@@ -275,9 +292,10 @@ pub fn run_segment(
         "command": command,
         "research_use": "Caravan is research software; statistics are only as good as the segmentation they rest on.",
         "input": { "stack": info, "fnv1a64": checksum },
-        "parameters": { "diameter": diameter, "segment": params, "link": outputs.linking },
+        "parameters": { "diameter": diameter, "segment": params, "link": outputs.linking, "movie": outputs.movie },
         "counts": { "frames": run.frames.len(), "detections": run.detections(), "tracks": run.tracks.len() },
         "linking_qc": run.linking_qc,
+        "count_jumps": count_jumps(&run.frames),
         "per_frame": run.frames,
         "warnings": run.warnings,
         "timings_s": { "segment_and_link": started.elapsed().as_secs_f64() },
@@ -314,6 +332,18 @@ fn write_track_outputs(
     write_per_track(&mut file, &summaries, calibration).map_err(|e| file.error(e))?;
     file.commit()?;
     Ok(summaries)
+}
+
+/// Per-frame track ids of labels and track positions, for the movie.
+fn overlay(tracked: &[TrackedDetection], frames: &[FrameSummary]) -> TrackOverlay {
+    let mut track_of_label: Vec<Vec<u32>> = frames.iter().map(|f| vec![0; f.objects]).collect();
+    let mut points: Vec<Vec<(u32, f64, f64)>> = vec![Vec::new(); frames.len()];
+    for p in tracked {
+        let d = &p.detection;
+        track_of_label[d.frame][d.label as usize - 1] = p.track_id;
+        points[d.frame].push((p.track_id, d.x, d.y));
+    }
+    TrackOverlay { track_of_label, points }
 }
 
 fn median(v: &mut [f64]) -> Option<f64> {
@@ -372,8 +402,30 @@ fn linking_warnings(qc: &LinkingQc) -> Vec<String> {
     w
 }
 
+/// Frames whose object count changes from the previous frame by more than a quarter and by
+/// more than 5 objects (our own rule: a segmentation failure, a focus jump or a shutter glitch
+/// usually shows as such a jump, while real births and departures change counts slowly).
+pub fn count_jumps(frames: &[FrameSummary]) -> Vec<usize> {
+    frames
+        .windows(2)
+        .filter(|w| {
+            let (a, b) = (w[0].objects as f64, w[1].objects as f64);
+            (b - a).abs() > (0.25 * a).max(5.0)
+        })
+        .map(|w| w[1].frame)
+        .collect()
+}
+
 fn warnings_for(frames: &[FrameSummary], info: &crate::stack::StackInfo) -> Vec<String> {
     let mut w = Vec::new();
+    let jumps = count_jumps(frames);
+    if !jumps.is_empty() {
+        let list: Vec<String> = jumps.iter().map(|f| f.to_string()).collect();
+        w.push(format!(
+            "object count jumps by more than a quarter at frame(s): {}; check them with preview",
+            list.join(" ")
+        ));
+    }
     let empty: Vec<String> = frames
         .iter()
         .filter(|f| f.objects == 0)
@@ -393,4 +445,25 @@ fn warnings_for(frames: &[FrameSummary], info: &crate::stack::StackInfo) -> Vec<
         w.push("no frame interval in the metadata or on the command line: time_s is empty".into());
     }
     w
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn count_jumps_flag_sudden_changes_only() {
+        // Hand-made counts: 100 -> 104 is normal, 104 -> 60 a jump, 60 -> 62 normal, 62 -> 3 a jump
+        // (59 > 15.5), 3 -> 7 not (4 < 5).
+        let frames: Vec<FrameSummary> = [100, 104, 60, 62, 3, 7]
+            .iter()
+            .enumerate()
+            .map(|(frame, &objects)| FrameSummary {
+                frame,
+                threshold: None,
+                objects,
+            })
+            .collect();
+        assert_eq!(count_jumps(&frames), vec![2, 4]);
+    }
 }

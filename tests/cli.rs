@@ -176,10 +176,7 @@ fn outputs_pass_independent_python_readers() {
     let dir = tempfile::tempdir().unwrap();
     let rec = synth(dir.path());
     let seg = dir.path().join("seg");
-    ok(&caravan(
-        &["track", &rec, "-o", seg.to_str().unwrap(), "--labels"],
-        "2",
-    ));
+    ok(&caravan(&["track", &rec, "-o", seg.to_str().unwrap(), "--labels"], "2"));
     let png = dir.path().join("p.png");
     ok(&caravan(
         &["preview", &rec, "--frame", "1", "-o", png.to_str().unwrap()],

@@ -91,6 +91,7 @@ fn track_scenario(p: &SynthParams, prediction: Prediction) -> LinkScores {
     let outputs = SegmentOutputs {
         labels: false,
         linking: Some(link),
+        movie: None,
     };
     let out = dir.path().join("run");
     run_segment(

@@ -3,6 +3,7 @@
 use caravan::link::online::LinkParams;
 use caravan::params::SegmentParams;
 use caravan::pipeline::{resolve_diameter, run_segment, DiameterSource, SegmentOutputs};
+use caravan::render::movie::MovieOptions;
 use caravan::score::{link_scores, match_points};
 use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{write_recording, Scenario, SynthParams};
@@ -33,6 +34,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
     let outputs = SegmentOutputs {
         labels: true,
         linking: Some(LinkParams::for_diameter(d)),
+        movie: Some(MovieOptions::default()),
     };
     let run = run_segment(
         &mut stack,
@@ -91,7 +93,10 @@ pub fn run(args: DemoArgs) -> Result<()> {
         println!("warning: {w}");
     }
     let show = |name: &str| run_dir.join(name).display().to_string();
-    println!("outputs:\n  recording   {}\n  truth       {}\n  tracks      {}\n  per track   {}\n  detections  {}\n  labels      {}\n  run record  {}", synth.recording.display(), synth.truth_csv.display(), show("tracks.csv"), show("per_track.csv"), show("detections.csv"), show("labels.tif"), show("run.json"));
+    if let Some(m) = &run.movie {
+        println!("QC movie: {} frames of {}x{} px", m.frames, m.size.0, m.size.1);
+    }
+    println!("outputs:\n  recording   {}\n  truth       {}\n  tracks      {}\n  per track   {}\n  detections  {}\n  labels      {}\n  run record  {}\n  QC movie    {}\n  QC sheet    {}", synth.recording.display(), synth.truth_csv.display(), show("tracks.csv"), show("per_track.csv"), show("detections.csv"), show("labels.tif"), show("run.json"), show("qc_movie.gif"), show("qc_sheet.png"));
     println!("Research software: statistics are only as good as the segmentation they rest on.");
     Ok(())
 }

@@ -31,6 +31,7 @@ pub fn run(args: SegmentArgs) -> Result<()> {
         &SegmentOutputs {
             labels: args.labels,
             linking: None,
+            movie: None,
         },
         "segment",
     )?;

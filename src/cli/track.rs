@@ -4,6 +4,7 @@ use super::{describe_diameter, InputArgs, SegmentationArgs};
 use caravan::link::online::{LinkParams, Prediction};
 use caravan::params::Length;
 use caravan::pipeline::{run_segment, SegmentOutputs};
+use caravan::render::movie::MovieOptions;
 use caravan::{Error, Result};
 use clap::Args;
 use std::path::PathBuf;
@@ -24,6 +25,15 @@ pub struct TrackArgs {
     /// Constant-velocity motion prediction: on or off.
     #[arg(long, default_value = "on")]
     prediction: Prediction,
+    /// Longest side of the QC movie in px (larger recordings are downscaled).
+    #[arg(long, default_value_t = 512)]
+    qc_size: usize,
+    /// Put every k-th frame in the QC movie (for long recordings).
+    #[arg(long, default_value_t = 1)]
+    qc_every: usize,
+    /// Skip the QC movie and contact sheet.
+    #[arg(long)]
+    no_movie: bool,
     #[command(flatten)]
     segmentation: SegmentationArgs,
 }
@@ -33,6 +43,13 @@ pub fn run(args: TrackArgs) -> Result<()> {
     let (diameter, params) = args.segmentation.resolve(&mut stack)?;
     let mut link = LinkParams::for_diameter(params.diameter_px);
     link.prediction = args.prediction;
+    if args.qc_size < 64 || args.qc_every == 0 {
+        return Err(Error::parameter(
+            "--qc-size/--qc-every",
+            format!("{}/{}", args.qc_size, args.qc_every),
+            "the movie needs at least 64 px and every >= 1",
+        ));
+    }
     if let Some(step) = args.max_step {
         link.max_step_px = step.to_pixels("--max-step", stack.info().calibration.pixel_size_um)?;
         if link.max_step_px < 0.5 {
@@ -46,6 +63,11 @@ pub fn run(args: TrackArgs) -> Result<()> {
     let outputs = SegmentOutputs {
         labels: args.labels,
         linking: Some(link),
+        movie: (!args.no_movie).then_some(MovieOptions {
+            max_side_px: args.qc_size,
+            every: args.qc_every,
+            ..MovieOptions::default()
+        }),
     };
     let run = run_segment(&mut stack, diameter, &params, &args.output, &outputs, "track")?;
     println!(

@@ -1,7 +1,8 @@
-//! Drawing for people: the preview PNG of one frame with its segmentation outlines. Analysis
-//! is never done here.
+//! Drawing for people: the preview PNG of one frame with its segmentation outlines, and the QC
+//! movie with its contact sheet. Analysis is never done here.
 
 mod font;
+pub mod movie;
 mod preview;
 
-pub use preview::{outline_preview, stretch_to_u8, PALETTE};
+pub use preview::{caption, is_edge, outline_preview, stretch_to_u8, PALETTE};

@@ -73,7 +73,9 @@ pub fn outline_preview(
     img
 }
 
-fn is_edge(labels: &[u32], width: usize, height: usize, x: usize, y: usize) -> bool {
+/// Whether object pixel (x, y) lies on its object's outline: on the image border or next to a
+/// pixel of another label (4-neighbourhood).
+pub fn is_edge(labels: &[u32], width: usize, height: usize, x: usize, y: usize) -> bool {
     let l = labels[y * width + x];
     let differs = |xx: usize, yy: usize| labels[yy * width + xx] != l;
     x == 0
@@ -86,7 +88,8 @@ fn is_edge(labels: &[u32], width: usize, height: usize, x: usize, y: usize) -> b
         || differs(x, y + 1)
 }
 
-fn caption(img: &mut RgbImage, text: &str) {
+/// Writes `text` in white on a black box in the top-left corner.
+pub fn caption(img: &mut RgbImage, text: &str) {
     let scale = if img.width() >= 512 { 3 } else { 2 };
     let (w, h) = (text_width(text, scale) + 2 * scale, 7 * scale);
     if w > img.width() || h > img.height() {

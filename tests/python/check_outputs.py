@@ -98,6 +98,11 @@ assert run["counts"]["frames"] == T == len(run["per_frame"])
 assert run["input"]["stack"]["calibration"]["pixel_size_source"] == "ome-xml"
 assert run["counts"]["tracks"] == len(per_track)
 
+movie = Image.open(f"{seg}/qc_movie.gif")
+assert movie.format == "GIF" and movie.size == (W, H) and movie.n_frames == T, (movie.format, movie.size, movie.n_frames)
+sheet = Image.open(f"{seg}/qc_sheet.png")
+assert sheet.format == "PNG" and sheet.size[0] > W and sheet.size[1] >= H, sheet.size
+
 img = Image.open(png)
 assert img.format == "PNG" and img.mode == "RGB" and img.size == (W, H), (img.format, img.mode, img.size)
 print(f"independent readers: {checked} detections, {len(per_track)} tracks, {len(truth)} truth points checked")

@@ -1,0 +1,391 @@
+//! The QC overlay movie: every frame, contrast-stretched to 8 bits and downscaled when large,
+//! each nucleus outlined in the colour of its final track, a fading tail of recent positions,
+//! and the frame number and time; plus a contact sheet of evenly spaced frames.
+//!
+//! It shows final track ids, so it is drawn after linking: outlines are spooled to a compact
+//! file during segmentation ([`OutlineSpool`]) and the frames are decoded a second time, one at
+//! a time, so memory stays bounded by a frame.
+
+use super::font::{draw_text, text_width};
+use super::{is_edge, PALETTE};
+use crate::error::{Error, Result};
+use crate::output::AtomicFile;
+use crate::stack::Stack;
+use image::{Rgb, RgbImage};
+use imageproc::drawing::draw_line_segment_mut;
+use std::fs::File;
+use std::io::{BufReader, BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
+
+/// Entries of the palette kept for grey levels; then the overlay colours at `SHADES`
+/// brightness levels (for fading tails), then white.
+const GREYS: usize = 200;
+const SHADES: [f32; 4] = [1.0, 0.75, 0.5, 0.3];
+/// Palette index of the caption text (white) and its box (black).
+const WHITE: u8 = 255;
+const BLACK: u8 = 0;
+/// Points in a tail, the current one included.
+const TAIL: usize = 8;
+
+/// Options of the movie.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct MovieOptions {
+    /// Longest side of the movie in pixels; larger recordings are downscaled by an integer factor.
+    pub max_side_px: usize,
+    /// Render every k-th frame.
+    pub every: usize,
+    /// Frames in the contact sheet.
+    pub sheet_frames: usize,
+}
+
+impl Default for MovieOptions {
+    fn default() -> Self {
+        MovieOptions {
+            max_side_px: 512,
+            every: 1,
+            sheet_frames: 12,
+        }
+    }
+}
+
+/// Outline pixels of every frame, written during segmentation and read back in frame order.
+pub struct OutlineSpool {
+    path: PathBuf,
+    writer: Option<BufWriter<File>>,
+}
+
+impl OutlineSpool {
+    /// A spool file next to the outputs (hidden name; removed when dropped).
+    pub fn create(dir: &Path) -> Result<OutlineSpool> {
+        let path = dir.join(format!(".outlines.partial-{}", std::process::id()));
+        let file = File::create(&path).map_err(|e| Error::output(&path, e))?;
+        Ok(OutlineSpool {
+            path,
+            writer: Some(BufWriter::new(file)),
+        })
+    }
+
+    /// Appends one frame's outline pixels as (pixel index, label) pairs.
+    pub fn push(&mut self, labels: &[u32], width: usize, height: usize) -> Result<()> {
+        let mut pairs: Vec<u32> = Vec::new();
+        for (i, &l) in labels.iter().enumerate() {
+            if l != 0 && is_edge(labels, width, height, i % width, i / width) {
+                pairs.extend([i as u32, l]);
+            }
+        }
+        let w = self.writer.as_mut().expect("still writing");
+        let bytes: Vec<u8> = std::iter::once((pairs.len() / 2) as u32)
+            .chain(pairs)
+            .flat_map(u32::to_le_bytes)
+            .collect();
+        w.write_all(&bytes).map_err(|e| Error::output(&self.path, e))
+    }
+
+    fn reader(&mut self) -> Result<BufReader<File>> {
+        if let Some(w) = self.writer.take() {
+            w.into_inner().map_err(|e| Error::output(&self.path, e.into_error()))?;
+        }
+        Ok(BufReader::new(
+            File::open(&self.path).map_err(|e| Error::output(&self.path, e))?,
+        ))
+    }
+}
+
+impl Drop for OutlineSpool {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_file(&self.path);
+    }
+}
+
+fn read_outline(r: &mut impl Read, path: &Path) -> Result<Vec<(u32, u32)>> {
+    let mut word = [0u8; 4];
+    let mut next = |r: &mut dyn Read| -> Result<u32> {
+        r.read_exact(&mut word).map_err(|e| Error::output(path, e))?;
+        Ok(u32::from_le_bytes(word))
+    };
+    let n = next(r)?;
+    (0..n).map(|_| Ok((next(r)?, next(r)?))).collect()
+}
+
+/// What the movie needs to know of the tracks, per frame.
+pub struct TrackOverlay {
+    /// For each frame, the final track id of each label (index = label − 1).
+    pub track_of_label: Vec<Vec<u32>>,
+    /// For each frame, `(track id, x, y)` of the points present.
+    pub points: Vec<Vec<(u32, f64, f64)>>,
+}
+
+/// Paths written by [`render_movie`].
+#[derive(Debug, Clone)]
+pub struct MovieOutputs {
+    /// The animated GIF.
+    pub movie: PathBuf,
+    /// The contact-sheet PNG.
+    pub sheet: PathBuf,
+    /// Frames in the movie.
+    pub frames: usize,
+    /// Movie width and height.
+    pub size: (usize, usize),
+}
+
+/// Renders `qc_movie.gif` and `qc_sheet.png` into `dir` (a second pass over the frames).
+///
+/// Colours: 240 grey levels plus our overlay palette, fixed for the whole movie so that a
+/// track keeps its colour; the contrast stretch is taken from the first frame and kept, so
+/// that bleaching shows as dimming rather than being hidden.
+pub fn render_movie(
+    stack: &mut Stack,
+    spool: &mut OutlineSpool,
+    overlay: &TrackOverlay,
+    options: &MovieOptions,
+    dir: &Path,
+) -> Result<MovieOutputs> {
+    let info = stack.info().clone();
+    let (w, h) = (info.width, info.height);
+    let factor = w.max(h).div_ceil(options.max_side_px.max(16)).max(1);
+    let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
+    let stretch = Stretch::from_values(&stack.read_frame(0)?.pixels.to_f32());
+    let out = MovieOutputs {
+        movie: dir.join("qc_movie.gif"),
+        sheet: dir.join("qc_sheet.png"),
+        frames: info.frames.div_ceil(options.every.max(1)),
+        size: (mw, mh),
+    };
+    let mut file = AtomicFile::create(&out.movie)?;
+    let gif_error = |e: gif::EncodingError| Error::output(&out.movie, std::io::Error::other(e.to_string()));
+    let mut sheet = ContactSheet::new(options.sheet_frames.min(out.frames).max(1), out.frames, mw, mh);
+    {
+        let mut encoder = gif::Encoder::new(&mut file, mw as u16, mh as u16, &palette()).map_err(gif_error)?;
+        encoder.set_repeat(gif::Repeat::Infinite).map_err(gif_error)?;
+        let mut reader = spool.reader()?;
+        for t in 0..info.frames {
+            let outline = read_outline(&mut reader, &spool.path)?;
+            if t % options.every.max(1) != 0 {
+                continue;
+            }
+            let raw = stack.read_frame(t)?.pixels.to_f32();
+            let mut canvas = downscale_grey(&raw, w, h, factor, &stretch);
+            draw_tails(&mut canvas, overlay, t, factor);
+            for (i, l) in outline {
+                let track = overlay.track_of_label[t].get(l as usize - 1).copied().unwrap_or(0);
+                let (x, y) = (i as usize % w / factor, i as usize / w / factor);
+                canvas.put_pixel(x as u32, y as u32, image::Luma([track_colour(track)]));
+            }
+            let time = info
+                .calibration
+                .frame_interval_s
+                .map(|s| format_time(t as f64 * s))
+                .unwrap_or_default();
+            caption_indexed(&mut canvas, &format!("t={t} {time}"));
+            sheet.offer(t / options.every.max(1), &canvas);
+            let frame = gif::Frame {
+                width: mw as u16,
+                height: mh as u16,
+                delay: 10,
+                buffer: std::borrow::Cow::Borrowed(canvas.as_raw()),
+                ..gif::Frame::default()
+            };
+            encoder.write_frame(&frame).map_err(gif_error)?;
+        }
+    }
+    file.commit()?;
+    sheet.write(&out.sheet)?;
+    Ok(out)
+}
+
+/// The fixed palette: 240 greys, then our overlay colours; entry 255 is white.
+fn palette() -> Vec<u8> {
+    let mut p = Vec::with_capacity(768);
+    for i in 0..GREYS {
+        let g = (i * 255 / (GREYS - 1)) as u8;
+        p.extend([g, g, g]);
+    }
+    for shade in SHADES {
+        for c in PALETTE {
+            p.extend(c.map(|v| (v as f32 * shade).round() as u8));
+        }
+    }
+    p.resize(255 * 3, 0);
+    p.extend([255, 255, 255]);
+    p
+}
+
+/// Palette index of a track's colour (track 0 = unknown gets white).
+fn track_colour(track: u32) -> u8 {
+    faded_colour(track, 0)
+}
+
+/// A track's colour at shade `level` (0 = full brightness, higher = dimmer).
+fn faded_colour(track: u32, level: usize) -> u8 {
+    if track == 0 {
+        return WHITE;
+    }
+    (GREYS + level.min(SHADES.len() - 1) * PALETTE.len() + (track as usize - 1) % PALETTE.len()) as u8
+}
+
+/// Linear display mapping fixed from a reference frame (0.5th to 99.8th percentile).
+struct Stretch {
+    lo: f32,
+    span: f32,
+}
+
+impl Stretch {
+    fn from_values(v: &[f32]) -> Stretch {
+        let mut s: Vec<f32> = v.iter().copied().filter(|x| x.is_finite()).collect();
+        if s.is_empty() {
+            return Stretch { lo: 0.0, span: 1.0 };
+        }
+        s.sort_by(f32::total_cmp);
+        let at = |q: f64| s[((s.len() - 1) as f64 * q).round() as usize];
+        let (lo, hi) = (at(0.005), at(0.998));
+        Stretch {
+            lo,
+            span: if hi > lo { hi - lo } else { 1.0 },
+        }
+    }
+
+    fn grey_index(&self, v: f32) -> u8 {
+        if !v.is_finite() {
+            return 0;
+        }
+        (((v - self.lo) / self.span).clamp(0.0, 1.0) * (GREYS - 1) as f32).round() as u8
+    }
+}
+
+/// Box-averaged downscale by an integer factor into palette grey indices.
+fn downscale_grey(raw: &[f32], w: usize, h: usize, factor: usize, stretch: &Stretch) -> image::GrayImage {
+    let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
+    let mut sum = vec![0f32; mw * mh];
+    let mut count = vec![0f32; mw * mh];
+    for y in 0..h {
+        for x in 0..w {
+            let k = (y / factor) * mw + x / factor;
+            sum[k] += raw[y * w + x];
+            count[k] += 1.0;
+        }
+    }
+    let data = sum.iter().zip(&count).map(|(s, c)| stretch.grey_index(s / c)).collect();
+    image::GrayImage::from_raw(mw as u32, mh as u32, data).expect("sized buffer")
+}
+
+/// Lines through each present track's last `TAIL` positions, in its colour, older segments
+/// dimmer.
+fn draw_tails(canvas: &mut image::GrayImage, overlay: &TrackOverlay, t: usize, factor: usize) {
+    let first = t.saturating_sub(TAIL - 1);
+    for &(track, _, _) in &overlay.points[t] {
+        let path: Vec<(f32, f32)> = (first..=t)
+            .filter_map(|f| overlay.points[f].iter().find(|p| p.0 == track))
+            .map(|p| (p.1 as f32 / factor as f32, p.2 as f32 / factor as f32))
+            .collect();
+        let n = path.len();
+        for (k, seg) in path.windows(2).enumerate() {
+            let age = n - 2 - k;
+            let level = age * SHADES.len() / TAIL;
+            draw_line_segment_mut(canvas, seg[0], seg[1], image::Luma([faded_colour(track, level)]));
+        }
+    }
+}
+
+fn caption_indexed(canvas: &mut image::GrayImage, text: &str) {
+    let scale = if canvas.width() >= 400 { 2 } else { 1 };
+    let (bw, bh) = (text_width(text, scale) + 2 * scale, 7 * scale);
+    if bw > canvas.width() || bh > canvas.height() {
+        return;
+    }
+    for y in 0..bh {
+        for x in 0..bw {
+            canvas.put_pixel(x, y, image::Luma([BLACK]));
+        }
+    }
+    let (cw, ch) = (canvas.width(), canvas.height());
+    draw_text(text, scale, scale, scale, |x, y| {
+        if x < cw && y < ch {
+            canvas.put_pixel(x, y, image::Luma([WHITE]));
+        }
+    });
+}
+
+/// `12m`, `1h05m` or `30s`: a short caption in the letters our bitmap font has.
+fn format_time(seconds: f64) -> String {
+    let s = seconds.round() as u64;
+    match s {
+        0..=119 => format!("{s}s"),
+        120..=3599 => format!("{}m", s / 60),
+        _ => format!("{}h{:02}m", s / 3600, (s % 3600) / 60),
+    }
+}
+
+/// A grid of evenly spaced movie frames, kept as they are rendered (bounded memory).
+struct ContactSheet {
+    picks: Vec<usize>,
+    tiles: Vec<image::GrayImage>,
+    size: (usize, usize),
+}
+
+impl ContactSheet {
+    fn new(count: usize, frames: usize, w: usize, h: usize) -> Self {
+        let picks = (0..count)
+            .map(|i| if count == 1 { 0 } else { i * (frames - 1) / (count - 1) })
+            .collect();
+        ContactSheet {
+            picks,
+            tiles: Vec::new(),
+            size: (w, h),
+        }
+    }
+
+    fn offer(&mut self, index: usize, canvas: &image::GrayImage) {
+        if self.picks.contains(&index) && self.tiles.len() < self.picks.len() {
+            self.tiles.push(canvas.clone());
+        }
+    }
+
+    fn write(&self, path: &Path) -> Result<()> {
+        let columns = (self.tiles.len() as f64).sqrt().ceil().max(1.0) as usize;
+        let rows = self.tiles.len().div_ceil(columns).max(1);
+        // Thumbnails of at most 256 px a side, by keeping every k-th pixel.
+        let step = self.size.0.max(self.size.1).div_ceil(256).max(1);
+        let (w, h) = (self.size.0.div_ceil(step), self.size.1.div_ceil(step));
+        let gap = 4;
+        let pal = palette();
+        let mut sheet = RgbImage::from_pixel(
+            (columns * (w + gap) + gap) as u32,
+            (rows * (h + gap) + gap) as u32,
+            Rgb([32, 32, 32]),
+        );
+        for (k, tile) in self.tiles.iter().enumerate() {
+            let (ox, oy) = (gap + (k % columns) * (w + gap), gap + (k / columns) * (h + gap));
+            for (x, y, p) in tile
+                .enumerate_pixels()
+                .filter(|(x, y, _)| *x as usize % step == 0 && *y as usize % step == 0)
+            {
+                let i = p.0[0] as usize * 3;
+                let (tx, ty) = (x / step as u32, y / step as u32);
+                sheet.put_pixel(ox as u32 + tx, oy as u32 + ty, Rgb([pal[i], pal[i + 1], pal[i + 2]]));
+            }
+        }
+        let mut bytes = Vec::new();
+        sheet
+            .write_to(&mut std::io::Cursor::new(&mut bytes), image::ImageFormat::Png)
+            .map_err(|e| Error::output(path, std::io::Error::other(e)))?;
+        crate::output::write_atomic(path, &bytes)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn time_captions_and_palette() {
+        assert_eq!(format_time(30.0), "30s");
+        assert_eq!(format_time(600.0), "10m");
+        assert_eq!(format_time(3900.0), "1h05m");
+        // GIF global colour tables hold 256 RGB entries (GIF89a specification, §19).
+        assert_eq!(palette().len(), 768);
+        assert_eq!(track_colour(1), GREYS as u8);
+        assert_eq!(track_colour(13), GREYS as u8);
+        assert_eq!(faded_colour(1, 3), (GREYS + 3 * PALETTE.len()) as u8);
+        assert!(GREYS + SHADES.len() * PALETTE.len() < 255, "white stays the last entry");
+    }
+}
