@@ -77,12 +77,17 @@ pub fn progress_bar(len: u64, what: &str) -> ProgressBar {
 }
 
 /// Segmented frames of a recording, in frame order. Frames are decoded in batches of a few per
-/// worker thread and segmented in parallel, so memory is bounded by the batch, not the length.
+/// worker thread; while one batch is segmented in parallel the next is decoded, so reading
+/// overlaps computing, and memory is bounded by two batches, not by the recording's length.
 pub struct SegmentedFrames<'a> {
     stack: &'a mut Stack,
     params: &'a SegmentParams,
+    /// Frames not decoded yet.
     range: std::ops::Range<usize>,
+    /// Decoded, waiting to be segmented.
+    decoded: Vec<crate::stack::Frame>,
     ready: VecDeque<FrameSegmentation>,
+    failed: Option<Error>,
     batch: usize,
     progress: ProgressBar,
 }
@@ -96,44 +101,74 @@ impl<'a> SegmentedFrames<'a> {
             stack,
             params,
             range: 0..frames,
+            decoded: Vec::new(),
             ready: VecDeque::new(),
+            failed: None,
             batch,
             progress,
         }
     }
 
-    fn fill(&mut self) -> Result<()> {
-        let end = (self.range.start + self.batch).min(self.range.end);
-        let mut decoded = Vec::with_capacity(end - self.range.start);
-        for t in self.range.start..end {
-            decoded.push(self.stack.read_frame(t)?);
+    fn decode_batch(
+        stack: &mut Stack,
+        range: &mut std::ops::Range<usize>,
+        batch: usize,
+    ) -> Result<Vec<crate::stack::Frame>> {
+        let end = (range.start + batch).min(range.end);
+        let frames = (range.start..end)
+            .map(|t| stack.read_frame(t))
+            .collect::<Result<Vec<_>>>();
+        range.start = end;
+        frames
+    }
+
+    fn fill(&mut self) {
+        if self.decoded.is_empty() {
+            match Self::decode_batch(self.stack, &mut self.range, self.batch) {
+                Ok(frames) => self.decoded = frames,
+                Err(e) => {
+                    self.failed = Some(e);
+                    return;
+                }
+            }
         }
-        self.range.start = end;
+        let current = std::mem::take(&mut self.decoded);
         let params = self.params;
-        let done: Vec<FrameSegmentation> = decoded
-            .par_iter()
-            .map(|f| segment_frame(&f.to_image(), f.index, params))
-            .collect();
+        let (stack, range, batch) = (&mut *self.stack, &mut self.range, self.batch);
+        let (next, done) = rayon::join(
+            || Self::decode_batch(stack, range, batch),
+            || {
+                current
+                    .par_iter()
+                    .map(|f| segment_frame(&f.to_image(), f.index, params))
+                    .collect::<Vec<_>>()
+            },
+        );
         self.progress.inc(done.len() as u64);
         self.ready.extend(done);
-        Ok(())
+        match next {
+            Ok(frames) => self.decoded = frames,
+            Err(e) => self.failed = Some(e),
+        }
     }
 }
 
 impl Iterator for SegmentedFrames<'_> {
     type Item = Result<FrameSegmentation>;
     fn next(&mut self) -> Option<Self::Item> {
-        if self.ready.is_empty() && !self.range.is_empty() {
-            if let Err(e) = self.fill() {
-                self.range.start = self.range.end;
-                return Some(Err(e));
-            }
+        if self.ready.is_empty() && self.failed.is_none() && !(self.decoded.is_empty() && self.range.is_empty()) {
+            self.fill();
         }
-        let item = self.ready.pop_front().map(Ok);
-        if item.is_none() {
-            self.progress.finish_and_clear();
+        if let Some(seg) = self.ready.pop_front() {
+            return Some(Ok(seg));
         }
-        item
+        if let Some(e) = self.failed.take() {
+            self.range.start = self.range.end;
+            self.decoded.clear();
+            return Some(Err(e));
+        }
+        self.progress.finish_and_clear();
+        None
     }
 }
 
@@ -263,6 +298,7 @@ pub fn run_segment(
         }
     }
     csv.commit()?;
+    let first_pass_s = started.elapsed().as_secs_f64();
     let (tracks, linking_qc) = match outputs.linking {
         Some(link) => {
             let tracks = write_track_outputs(dir, &mut tracked, &calibration)?;
@@ -271,6 +307,7 @@ pub fn run_segment(
         }
         None => (Vec::new(), None),
     };
+    let movie_started = Instant::now();
     let movie = match (spool.as_mut(), outputs.movie) {
         (Some(s), Some(options)) => Some(render_movie(stack, s, &overlay(&tracked, &frames), &options, dir)?),
         _ => None,
@@ -298,7 +335,11 @@ pub fn run_segment(
         "count_jumps": count_jumps(&run.frames),
         "per_frame": run.frames,
         "warnings": run.warnings,
-        "timings_s": { "segment_and_link": started.elapsed().as_secs_f64() },
+        "timings_s": {
+            "read_segment_link": first_pass_s,
+            "movie": movie_started.elapsed().as_secs_f64(),
+            "total": started.elapsed().as_secs_f64(),
+        },
     });
     write_atomic(
         &dir.join("run.json"),
