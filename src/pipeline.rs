@@ -387,7 +387,8 @@ fn overlay(tracked: &[TrackedDetection], frames: &[FrameSummary]) -> TrackOverla
     TrackOverlay { track_of_label, points }
 }
 
-fn median(v: &mut [f64]) -> Option<f64> {
+/// The median of the values (mean of the two middle ones for an even count); `None` if empty.
+pub fn median(v: &mut [f64]) -> Option<f64> {
     if v.is_empty() {
         return None;
     }

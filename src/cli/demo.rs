@@ -2,7 +2,7 @@
 
 use caravan::link::online::LinkParams;
 use caravan::params::SegmentParams;
-use caravan::pipeline::{resolve_diameter, run_segment, DiameterSource, SegmentOutputs};
+use caravan::pipeline::{median, resolve_diameter, run_segment, DiameterSource, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
 use caravan::score::{link_scores, match_points};
 use caravan::stack::{OpenOptions, Stack};
@@ -79,8 +79,8 @@ pub fn run(args: DemoArgs) -> Result<()> {
     );
     println!(
         "tracks of 10+ points: median speed {:.2} µm/min, median directionality {:.2}",
-        median(&mut speeds) * to_um_min,
-        median(&mut ratios)
+        median(&mut speeds).unwrap_or(f64::NAN) * to_um_min,
+        median(&mut ratios).unwrap_or(f64::NAN)
     );
     println!(
         "against the truth: detection F1 {:.3}; link precision {:.3}, recall {:.3}, identity switches {}",
@@ -104,12 +104,4 @@ pub fn run(args: DemoArgs) -> Result<()> {
 fn read_points(path: &Path) -> Result<Vec<TrackPoint>> {
     let text = std::fs::read_to_string(path).map_err(|e| Error::input(path, e.to_string()))?;
     read_track_points(&text).map_err(|e| Error::input(path, e))
-}
-
-fn median(v: &mut [f64]) -> f64 {
-    if v.is_empty() {
-        return f64::NAN;
-    }
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
 }

@@ -162,6 +162,51 @@ impl SegmentationArgs {
     }
 }
 
+/// What every whole-recording run needs: the input, the output folder, label output and the
+/// segmentation parameters.
+#[derive(Args, Clone)]
+struct RunArgs {
+    #[command(flatten)]
+    input: InputArgs,
+    /// Output folder.
+    #[arg(short, long)]
+    output: PathBuf,
+    /// Also write labels.tif, one 32-bit label image per frame.
+    #[arg(long)]
+    labels: bool,
+    #[command(flatten)]
+    segmentation: SegmentationArgs,
+}
+
+impl RunArgs {
+    /// Opens the recording and resolves the segmentation parameters (refusing bad ones before
+    /// any long work starts).
+    fn start(&self) -> Result<(Stack, DiameterSource, SegmentParams)> {
+        let mut stack = self.input.open()?;
+        let (diameter, params) = self.segmentation.resolve(&mut stack)?;
+        Ok((stack, diameter, params))
+    }
+}
+
+/// Prints what a run produced, its warnings, and where it went.
+fn print_summary(run: &caravan::pipeline::SegmentRun) {
+    let tracks = if run.linking_qc.is_some() {
+        format!(", {} tracks", run.tracks.len())
+    } else {
+        String::new()
+    };
+    println!(
+        "{} frames, {} detections{tracks}, diameter {}",
+        run.frames.len(),
+        run.detections(),
+        describe_diameter(run.diameter)
+    );
+    for w in &run.warnings {
+        println!("warning: {w}");
+    }
+    println!("wrote {}", run.dir.display());
+}
+
 fn describe_diameter(d: DiameterSource) -> String {
     match d {
         DiameterSource::Given(v) => format!("{v:.1} px (given)"),

@@ -1,24 +1,17 @@
 //! `caravan track FILE -o DIR`: segment every frame and link the nuclei into tracks.
 
-use super::{describe_diameter, InputArgs, SegmentationArgs};
+use super::{print_summary, RunArgs};
 use caravan::link::online::{LinkParams, Prediction};
 use caravan::params::Length;
 use caravan::pipeline::{run_segment, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
 use caravan::{Error, Result};
 use clap::Args;
-use std::path::PathBuf;
 
 #[derive(Args)]
 pub struct TrackArgs {
     #[command(flatten)]
-    input: InputArgs,
-    /// Output folder.
-    #[arg(short, long)]
-    output: PathBuf,
-    /// Also write labels.tif, one 32-bit label image per frame.
-    #[arg(long)]
-    labels: bool,
+    run: RunArgs,
     /// Longest step between frames (e.g. 8px or 5um; default 0.6 x diameter).
     #[arg(long)]
     max_step: Option<Length>,
@@ -34,15 +27,9 @@ pub struct TrackArgs {
     /// Skip the QC movie and contact sheet.
     #[arg(long)]
     no_movie: bool,
-    #[command(flatten)]
-    segmentation: SegmentationArgs,
 }
 
 pub fn run(args: TrackArgs) -> Result<()> {
-    let mut stack = args.input.open()?;
-    let (diameter, params) = args.segmentation.resolve(&mut stack)?;
-    let mut link = LinkParams::for_diameter(params.diameter_px);
-    link.prediction = args.prediction;
     if args.qc_size < 64 || args.qc_every == 0 {
         return Err(Error::parameter(
             "--qc-size/--qc-every",
@@ -50,6 +37,9 @@ pub fn run(args: TrackArgs) -> Result<()> {
             "the movie needs at least 64 px and every >= 1",
         ));
     }
+    let (mut stack, diameter, params) = args.run.start()?;
+    let mut link = LinkParams::for_diameter(params.diameter_px);
+    link.prediction = args.prediction;
     if let Some(step) = args.max_step {
         link.max_step_px = step.to_pixels("--max-step", stack.info().calibration.pixel_size_um)?;
         if link.max_step_px < 0.5 {
@@ -60,26 +50,17 @@ pub fn run(args: TrackArgs) -> Result<()> {
             ));
         }
     }
-    let outputs = SegmentOutputs {
-        labels: args.labels,
-        linking: Some(link),
-        movie: (!args.no_movie).then_some(MovieOptions {
-            max_side_px: args.qc_size,
-            every: args.qc_every,
-            ..MovieOptions::default()
-        }),
+    let movie = MovieOptions {
+        max_side_px: args.qc_size,
+        every: args.qc_every,
+        ..MovieOptions::default()
     };
-    let run = run_segment(&mut stack, diameter, &params, &args.output, &outputs, "track")?;
-    println!(
-        "{} frames, {} detections, {} tracks, diameter {}",
-        run.frames.len(),
-        run.detections(),
-        run.tracks.len(),
-        describe_diameter(diameter)
-    );
-    for w in &run.warnings {
-        println!("warning: {w}");
-    }
-    println!("wrote {}", run.dir.display());
+    let outputs = SegmentOutputs {
+        labels: args.run.labels,
+        linking: Some(link),
+        movie: (!args.no_movie).then_some(movie),
+    };
+    let run = run_segment(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
+    print_summary(&run);
     Ok(())
 }

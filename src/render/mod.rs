@@ -5,4 +5,4 @@ mod font;
 pub mod movie;
 mod preview;
 
-pub use preview::{caption, is_edge, outline_preview, stretch_to_u8, PALETTE};
+pub use preview::{caption, is_edge, outline_preview, stretch_to_u8, DisplayRange, PALETTE};

@@ -7,7 +7,7 @@
 //! a time, so memory stays bounded by a frame.
 
 use super::font::{draw_text, text_width};
-use super::{is_edge, PALETTE};
+use super::{is_edge, DisplayRange, PALETTE};
 use crate::error::{Error, Result};
 use crate::output::AtomicFile;
 use crate::stack::Stack;
@@ -144,7 +144,7 @@ pub fn render_movie(
     let (w, h) = (info.width, info.height);
     let factor = w.max(h).div_ceil(options.max_side_px.max(16)).max(1);
     let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
-    let stretch = Stretch::from_values(&stack.read_frame(0)?.pixels.to_f32());
+    let stretch = DisplayRange::from_values(&stack.read_frame(0)?.pixels.to_f32());
     let out = MovieOutputs {
         movie: dir.join("qc_movie.gif"),
         sheet: dir.join("qc_sheet.png"),
@@ -223,37 +223,8 @@ fn faded_colour(track: u32, level: usize) -> u8 {
     (GREYS + level.min(SHADES.len() - 1) * PALETTE.len() + (track as usize - 1) % PALETTE.len()) as u8
 }
 
-/// Linear display mapping fixed from a reference frame (0.5th to 99.8th percentile).
-struct Stretch {
-    lo: f32,
-    span: f32,
-}
-
-impl Stretch {
-    fn from_values(v: &[f32]) -> Stretch {
-        let mut s: Vec<f32> = v.iter().copied().filter(|x| x.is_finite()).collect();
-        if s.is_empty() {
-            return Stretch { lo: 0.0, span: 1.0 };
-        }
-        s.sort_by(f32::total_cmp);
-        let at = |q: f64| s[((s.len() - 1) as f64 * q).round() as usize];
-        let (lo, hi) = (at(0.005), at(0.998));
-        Stretch {
-            lo,
-            span: if hi > lo { hi - lo } else { 1.0 },
-        }
-    }
-
-    fn grey_index(&self, v: f32) -> u8 {
-        if !v.is_finite() {
-            return 0;
-        }
-        (((v - self.lo) / self.span).clamp(0.0, 1.0) * (GREYS - 1) as f32).round() as u8
-    }
-}
-
 /// Box-averaged downscale by an integer factor into palette grey indices.
-fn downscale_grey(raw: &[f32], w: usize, h: usize, factor: usize, stretch: &Stretch) -> image::GrayImage {
+fn downscale_grey(raw: &[f32], w: usize, h: usize, factor: usize, stretch: &DisplayRange) -> image::GrayImage {
     let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
     let mut sum = vec![0f32; mw * mh];
     let mut count = vec![0f32; mw * mh];
@@ -264,7 +235,11 @@ fn downscale_grey(raw: &[f32], w: usize, h: usize, factor: usize, stretch: &Stre
             count[k] += 1.0;
         }
     }
-    let data = sum.iter().zip(&count).map(|(s, c)| stretch.grey_index(s / c)).collect();
+    let data = sum
+        .iter()
+        .zip(&count)
+        .map(|(s, c)| (stretch.unit(s / c) * (GREYS - 1) as f32).round() as u8)
+        .collect();
     image::GrayImage::from_raw(mw as u32, mh as u32, data).expect("sized buffer")
 }
 

@@ -23,27 +23,45 @@ pub const PALETTE: [[u8; 3]; 12] = [
     [255, 150, 220],
 ];
 
-/// Maps intensities linearly so that the 0.5th percentile is black and the 99.8th white
-/// (common practice for fluorescence display: ignores hot pixels and the darkest noise).
-pub fn stretch_to_u8(values: &[f32]) -> Vec<u8> {
-    let mut sorted: Vec<f32> = values.iter().copied().filter(|v| v.is_finite()).collect();
-    if sorted.is_empty() {
-        return vec![0; values.len()];
+/// A linear display mapping: the 0.5th percentile of a reference image to black and the
+/// 99.8th to white (common practice for fluorescence display: ignores hot pixels and the
+/// darkest noise).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct DisplayRange {
+    lo: f32,
+    span: f32,
+}
+
+impl DisplayRange {
+    /// The range of the finite values of `reference`.
+    pub fn from_values(reference: &[f32]) -> DisplayRange {
+        let mut sorted: Vec<f32> = reference.iter().copied().filter(|v| v.is_finite()).collect();
+        if sorted.is_empty() {
+            return DisplayRange { lo: 0.0, span: 1.0 };
+        }
+        sorted.sort_by(f32::total_cmp);
+        let at = |q: f64| sorted[((sorted.len() - 1) as f64 * q).round() as usize];
+        let (lo, hi) = (at(0.005), at(0.998));
+        DisplayRange {
+            lo,
+            span: if hi > lo { hi - lo } else { 1.0 },
+        }
     }
-    sorted.sort_by(f32::total_cmp);
-    let at = |q: f64| sorted[((sorted.len() - 1) as f64 * q).round() as usize];
-    let (lo, hi) = (at(0.005), at(0.998));
-    let span = if hi > lo { hi - lo } else { 1.0 };
-    values
-        .iter()
-        .map(|&v| {
-            if v.is_finite() {
-                ((v - lo) / span * 255.0).clamp(0.0, 255.0) as u8
-            } else {
-                0
-            }
-        })
-        .collect()
+
+    /// `v` mapped to [0, 1] (non-finite values to 0).
+    pub fn unit(&self, v: f32) -> f32 {
+        if v.is_finite() {
+            ((v - self.lo) / self.span).clamp(0.0, 1.0)
+        } else {
+            0.0
+        }
+    }
+}
+
+/// Maps intensities to 8 bits with the [`DisplayRange`] of the values themselves.
+pub fn stretch_to_u8(values: &[f32]) -> Vec<u8> {
+    let range = DisplayRange::from_values(values);
+    values.iter().map(|&v| (range.unit(v) * 255.0) as u8).collect()
 }
 
 /// Renders the preview: grey frame, outlines (object pixels with a 4-neighbour of another
