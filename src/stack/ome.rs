@@ -45,6 +45,8 @@ pub struct OmePixels {
     pub size_t: usize,
     /// PhysicalSizeX in µm, when given.
     pub physical_size_x_um: Option<f64>,
+    /// PhysicalSizeY in µm, when given.
+    pub physical_size_y_um: Option<f64>,
     /// TimeIncrement in s, when given.
     pub time_increment_s: Option<f64>,
     /// Median difference of consecutive Plane DeltaT values (first Z, first C), in s.
@@ -89,6 +91,12 @@ impl OmePixels {
             "PhysicalSizeX",
             length_unit_um,
         )?;
+        let physical_size_y_um = physical(
+            pixels.attribute("PhysicalSizeY"),
+            pixels.attribute("PhysicalSizeYUnit"),
+            "PhysicalSizeY",
+            length_unit_um,
+        )?;
         let time_increment_s = physical(
             pixels.attribute("TimeIncrement"),
             pixels.attribute("TimeIncrementUnit"),
@@ -103,6 +111,7 @@ impl OmePixels {
             size_c: size("SizeC")?,
             size_t: size("SizeT")?,
             physical_size_x_um,
+            physical_size_y_um,
             time_increment_s,
             median_delta_t_s: None,
             tiff_data: Vec::new(),
@@ -150,6 +159,15 @@ impl OmePixels {
             stride *= size;
         }
         number
+    }
+
+    /// An error message when pixels are not square (X and Y sizes differ by more than 1%):
+    /// every length Caravan reports assumes square pixels.
+    pub fn non_square(&self) -> Option<String> {
+        let (x, y) = (self.physical_size_x_um?, self.physical_size_y_um?);
+        ((x - y).abs() > 0.01 * x.max(y)).then(|| {
+            format!("has non-square pixels ({x} x {y} µm); Caravan assumes square pixels: resample, or give --pixel-size to accept one size for both axes")
+        })
     }
 
     /// Total planes declared.
@@ -272,6 +290,17 @@ mod tests {
         assert_eq!(p.time_increment_s, Some(300.0));
         let p = pixels(r#"PhysicalSizeX="0.5" PhysicalSizeXUnit="μm""#, "");
         assert_eq!(p.physical_size_x_um, Some(0.5));
+    }
+
+    #[test]
+    fn non_square_pixels_are_noticed() {
+        let p = pixels(r#"PhysicalSizeX="0.5" PhysicalSizeY="0.65""#, "");
+        assert!(p.non_square().unwrap().contains("non-square"));
+        assert_eq!(
+            pixels(r#"PhysicalSizeX="0.5" PhysicalSizeY="0.502""#, "").non_square(),
+            None
+        );
+        assert_eq!(pixels(r#"PhysicalSizeX="0.5""#, "").non_square(), None);
     }
 
     #[test]

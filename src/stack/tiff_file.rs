@@ -88,6 +88,13 @@ impl TiffStack {
             Some(Err(problem)) => return Err(Error::input(path, problem)),
             None => None,
         };
+        if let Some(problem) = ome
+            .as_ref()
+            .and_then(OmePixels::non_square)
+            .filter(|_| options.pixel_size_um.is_none())
+        {
+            return Err(Error::input(path, problem));
+        }
         let layout_plan = plan_frames(path, &pages, ome.as_ref(), options)?;
         check_pages(path, &pages, &layout_plan.frame_ifds, options, file_len)?;
         let first = &pages[layout_plan.frame_ifds[0][0]];
