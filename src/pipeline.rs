@@ -218,6 +218,34 @@ pub struct SegmentOutputs {
     pub linking: Option<LinkParams>,
     /// With linking: render the QC movie and contact sheet.
     pub movie: Option<MovieOptions>,
+    /// Replace the outputs of an earlier run in the same folder (otherwise refused).
+    pub replace: bool,
+}
+
+/// Every file a run may write; a replacing run removes the ones it did not write this time,
+/// so that a folder never mixes two runs.
+pub const RUN_OUTPUTS: [&str; 7] = [
+    "detections.csv",
+    "labels.tif",
+    "tracks.csv",
+    "per_track.csv",
+    "qc_movie.gif",
+    "qc_sheet.png",
+    "run.json",
+];
+
+/// Refuses a folder that holds an earlier run's outputs, unless replacing is asked for.
+///
+/// # Errors
+/// [`Error::Input`] naming the folder.
+pub fn check_output_dir(dir: &Path, replace: bool) -> Result<()> {
+    if !replace && dir.join("run.json").exists() {
+        return Err(Error::input(
+            dir,
+            "holds the outputs of an earlier run (run.json); choose another folder or give --force to replace them",
+        ));
+    }
+    Ok(())
 }
 
 /// Figures that tell whether linking can be trusted.
@@ -247,6 +275,7 @@ pub fn run_segment(
     command: &str,
 ) -> Result<SegmentRun> {
     params.validate()?;
+    check_output_dir(dir, outputs.replace)?;
     ensure_dir(dir)?;
     let started = Instant::now();
     let info = stack.info().clone();
@@ -345,6 +374,7 @@ pub fn run_segment(
         &dir.join("run.json"),
         &serde_json::to_vec_pretty(&record).expect("serialisable"),
     )?;
+    remove_stale_outputs(dir, outputs);
     Ok(run)
 }
 
@@ -373,6 +403,21 @@ fn write_track_outputs(
     write_per_track(&mut file, &summaries, calibration).map_err(|e| file.error(e))?;
     file.commit()?;
     Ok(summaries)
+}
+
+/// After a successful run, removes outputs of an earlier run that this one did not write.
+fn remove_stale_outputs(dir: &Path, outputs: &SegmentOutputs) {
+    let linked = outputs.linking.is_some();
+    let movie = linked && outputs.movie.is_some();
+    let written = |name: &str| match name {
+        "labels.tif" => outputs.labels,
+        "tracks.csv" | "per_track.csv" => linked,
+        "qc_movie.gif" | "qc_sheet.png" => movie,
+        _ => true,
+    };
+    for name in RUN_OUTPUTS.iter().filter(|n| !written(n)) {
+        let _ = std::fs::remove_file(dir.join(name));
+    }
 }
 
 /// Per-frame track ids of labels and track positions, for the movie.

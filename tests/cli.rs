@@ -230,3 +230,39 @@ fn synth_is_deterministic_for_a_seed() {
     assert!(a == b, "same seed, same bytes");
     assert!(a.0 != c.0, "another seed, another recording");
 }
+
+#[test]
+fn an_earlier_run_is_kept_unless_forced() {
+    let dir = tempfile::tempdir().unwrap();
+    let rec = synth(dir.path());
+    let out = dir.path().join("run");
+    let out_s = out.to_str().unwrap();
+    ok(&caravan(&["track", &rec, "-o", out_s, "--diameter", "14px"], "2"));
+    let before = std::fs::read(out.join("tracks.csv")).unwrap();
+    let again = caravan(&["track", &rec, "-o", out_s, "--diameter", "12px"], "2");
+    assert_eq!(again.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&again.stderr);
+    assert!(err.contains("earlier run") && err.contains("--force"), "{err}");
+    assert_eq!(
+        std::fs::read(out.join("tracks.csv")).unwrap(),
+        before,
+        "earlier outputs intact"
+    );
+    ok(&caravan(
+        &[
+            "track",
+            &rec,
+            "-o",
+            out_s,
+            "--diameter",
+            "14px",
+            "--force",
+            "--no-movie",
+        ],
+        "2",
+    ));
+    assert!(
+        out.join("tracks.csv").exists() && !out.join("qc_movie.gif").exists(),
+        "no stale movie from the earlier run"
+    );
+}

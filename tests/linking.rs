@@ -92,6 +92,7 @@ fn track_scenario(p: &SynthParams, prediction: Prediction) -> LinkScores {
         labels: false,
         linking: Some(link),
         movie: None,
+        replace: false,
     };
     let out = dir.path().join("run");
     run_segment(

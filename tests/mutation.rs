@@ -7,7 +7,11 @@ use std::path::Path;
 
 fn read_all(path: &Path) -> Result<(), String> {
     // A 64 MiB frame limit bounds what a damaged header can make us allocate.
-    let options = OpenOptions { max_frame_bytes: 64 << 20, channel: Some(0), ..OpenOptions::default() };
+    let options = OpenOptions {
+        max_frame_bytes: 64 << 20,
+        channel: Some(0),
+        ..OpenOptions::default()
+    };
     let mut s = Stack::open(path, &options).map_err(|e| e.to_string())?;
     for t in 0..s.info().frames {
         s.read_frame(t).map_err(|e| e.to_string())?;
@@ -55,9 +59,16 @@ fn mutated_fixtures_never_panic() {
             Ok(Ok(())) => {}
             Ok(Err(message)) => {
                 errors += 1;
-                assert!(message.starts_with(&target.display().to_string()), "case {case}: error must name the file: {message}");
+                assert!(
+                    message.starts_with(&target.display().to_string()),
+                    "case {case}: error must name the file: {message}"
+                );
             }
-            Err(_) => panic!("case {case} ({}, mutation {}) panicked", names[case % names.len()], case % 3),
+            Err(_) => panic!(
+                "case {case} ({}, mutation {}) panicked",
+                names[case % names.len()],
+                case % 3
+            ),
         }
     }
     // Most mutations must be caught as errors (not silently read): truncations always are.

@@ -35,6 +35,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         labels: true,
         linking: Some(LinkParams::for_diameter(d)),
         movie: Some(MovieOptions::default()),
+        replace: true,
     };
     let run = run_segment(
         &mut stack,

@@ -174,6 +174,9 @@ struct RunArgs {
     /// Also write labels.tif, one 32-bit label image per frame.
     #[arg(long)]
     labels: bool,
+    /// Replace the outputs of an earlier run in the output folder.
+    #[arg(long)]
+    force: bool,
     #[command(flatten)]
     segmentation: SegmentationArgs,
 }
@@ -182,6 +185,7 @@ impl RunArgs {
     /// Opens the recording and resolves the segmentation parameters (refusing bad ones before
     /// any long work starts).
     fn start(&self) -> Result<(Stack, DiameterSource, SegmentParams)> {
+        caravan::pipeline::check_output_dir(&self.output, self.force)?;
         let mut stack = self.input.open()?;
         let (diameter, params) = self.segmentation.resolve(&mut stack)?;
         Ok((stack, diameter, params))

@@ -17,6 +17,7 @@ pub fn run(args: SegmentArgs) -> Result<()> {
         labels: args.run.labels,
         linking: None,
         movie: None,
+        replace: args.run.force,
     };
     let run = run_segment(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
     print_summary(&run);

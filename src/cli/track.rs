@@ -59,6 +59,7 @@ pub fn run(args: TrackArgs) -> Result<()> {
         labels: args.run.labels,
         linking: Some(link),
         movie: (!args.no_movie).then_some(movie),
+        replace: args.run.force,
     };
     let run = run_segment(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
     print_summary(&run);
