@@ -110,7 +110,6 @@ fn split_unit(t: &str) -> (&str, &str) {
     let cut = t
         .find(|c: char| !(c.is_ascii_digit() || c == '.' || c == '-' || c == '+' || c == 'e' || c == 'E'))
         .unwrap_or(t.len());
-    // An exponent marker directly followed by letters belongs to the unit, not the number.
     (t[..cut].trim(), t[cut..].trim())
 }
 

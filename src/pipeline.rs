@@ -266,7 +266,7 @@ pub struct LinkingQc {
 /// Segments every frame of an open recording and writes `detections.csv` (and optionally
 /// `labels.tif`, and with linking `tracks.csv` and `per_track.csv`) plus `run.json` into `dir`,
 /// each atomically.
-pub fn run_segment(
+pub fn run_recording(
     stack: &mut Stack,
     diameter: DiameterSource,
     params: &SegmentParams,

@@ -10,7 +10,7 @@
 use caravan::link::online::{LinkParams, Prediction};
 use caravan::link::{hungarian_min_cost, scale_cost};
 use caravan::params::SegmentParams;
-use caravan::pipeline::{run_segment, DiameterSource, SegmentOutputs};
+use caravan::pipeline::{run_recording, DiameterSource, SegmentOutputs};
 use caravan::score::{link_scores, LinkScores};
 use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{write_recording, Rng, Scenario, SynthParams};
@@ -95,7 +95,7 @@ fn track_scenario(p: &SynthParams, prediction: Prediction) -> LinkScores {
         replace: false,
     };
     let out = dir.path().join("run");
-    run_segment(
+    run_recording(
         &mut stack,
         DiameterSource::Given(p.diameter_px),
         &SegmentParams::for_diameter(p.diameter_px),

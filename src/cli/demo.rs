@@ -1,8 +1,9 @@
 //! `caravan demo`: our own scenario end to end, as a first look at what the tool does.
 
+use caravan::analyze::TrackSummary;
 use caravan::link::online::LinkParams;
 use caravan::params::SegmentParams;
-use caravan::pipeline::{median, resolve_diameter, run_segment, DiameterSource, SegmentOutputs};
+use caravan::pipeline::{median, resolve_diameter, run_recording, DiameterSource, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
 use caravan::score::{link_scores, match_points};
 use caravan::stack::{OpenOptions, Stack};
@@ -37,7 +38,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         movie: Some(MovieOptions::default()),
         replace: true,
     };
-    let run = run_segment(
+    let run = run_recording(
         &mut stack,
         diameter,
         &SegmentParams::for_diameter(d),
@@ -59,18 +60,8 @@ pub fn run(args: DemoArgs) -> Result<()> {
     }
     let links = link_scores(&truth, &found, d / 2.0);
     let cal = stack.info().calibration;
-    let mut speeds: Vec<f64> = run
-        .tracks
-        .iter()
-        .filter(|t| t.points >= 10)
-        .filter_map(|t| t.mean_speed_px_per_frame)
-        .collect();
-    let mut ratios: Vec<f64> = run
-        .tracks
-        .iter()
-        .filter(|t| t.points >= 10)
-        .filter_map(|t| t.directionality_ratio)
-        .collect();
+    let mut speeds = of_long_tracks(&run.tracks, |t| t.mean_speed_px_per_frame);
+    let mut ratios = of_long_tracks(&run.tracks, |t| t.directionality_ratio);
     let to_um_min = cal.pixel_size_um.unwrap_or(1.0) / (cal.frame_interval_s.unwrap_or(60.0) / 60.0);
     println!(
         "{} frames, {:.1} nuclei per frame, {} tracks",
@@ -105,4 +96,10 @@ pub fn run(args: DemoArgs) -> Result<()> {
 fn read_points(path: &Path) -> Result<Vec<TrackPoint>> {
     let text = std::fs::read_to_string(path).map_err(|e| Error::input(path, e.to_string()))?;
     read_track_points(&text).map_err(|e| Error::input(path, e))
+}
+
+/// A per-track value over tracks of 10 or more points (common practice: shorter tracks inflate
+/// the scatter of straightness and speed).
+fn of_long_tracks(tracks: &[TrackSummary], value: impl Fn(&TrackSummary) -> Option<f64>) -> Vec<f64> {
+    tracks.iter().filter(|t| t.points >= 10).filter_map(value).collect()
 }

@@ -1,7 +1,7 @@
 //! `caravan segment FILE -o DIR`: every frame's nuclei into detections.csv and run.json.
 
 use super::{print_summary, RunArgs};
-use caravan::pipeline::{run_segment, SegmentOutputs};
+use caravan::pipeline::{run_recording, SegmentOutputs};
 use caravan::Result;
 use clap::Args;
 
@@ -19,7 +19,7 @@ pub fn run(args: SegmentArgs) -> Result<()> {
         movie: None,
         replace: args.run.force,
     };
-    let run = run_segment(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
+    let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
     print_summary(&run);
     Ok(())
 }

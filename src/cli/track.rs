@@ -3,7 +3,7 @@
 use super::{print_summary, RunArgs};
 use caravan::link::online::{LinkParams, Prediction};
 use caravan::params::Length;
-use caravan::pipeline::{run_segment, SegmentOutputs};
+use caravan::pipeline::{run_recording, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
 use caravan::{Error, Result};
 use clap::Args;
@@ -61,7 +61,7 @@ pub fn run(args: TrackArgs) -> Result<()> {
         movie: (!args.no_movie).then_some(movie),
         replace: args.run.force,
     };
-    let run = run_segment(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
+    let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
     print_summary(&run);
     Ok(())
 }

@@ -81,11 +81,6 @@ pub fn grey_opening_square(image: &Image, window: usize) -> Image {
     max_filter_square(&min_filter_square(image, window), window)
 }
 
-/// Grey-scale closing (dilation then erosion) by a flat square.
-pub fn grey_closing_square(image: &Image, window: usize) -> Image {
-    min_filter_square(&max_filter_square(image, window), window)
-}
-
 /// Running minimum over a `window` x `window` square (grey erosion).
 pub fn min_filter_square(image: &Image, window: usize) -> Image {
     filter_square(image, window, f32::min)

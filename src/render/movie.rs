@@ -111,7 +111,7 @@ fn read_outline(r: &mut impl Read, path: &Path) -> Result<Vec<(u32, u32)>> {
 pub struct TrackOverlay {
     /// For each frame, the final track id of each label (index = label − 1).
     pub track_of_label: Vec<Vec<u32>>,
-    /// For each frame, `(track id, x, y)` of the points present.
+    /// For each frame, `(track id, x, y)` of the points present, in ascending track id.
     pub points: Vec<Vec<(u32, f64, f64)>>,
 }
 
@@ -249,7 +249,14 @@ fn draw_tails(canvas: &mut image::GrayImage, overlay: &TrackOverlay, t: usize, f
     let first = t.saturating_sub(TAIL - 1);
     for &(track, _, _) in &overlay.points[t] {
         let path: Vec<(f32, f32)> = (first..=t)
-            .filter_map(|f| overlay.points[f].iter().find(|p| p.0 == track))
+            // Points of a frame are in ascending track id (tracks are sorted before the overlay
+            // is built), so each lookup is a binary search, not a scan.
+            .filter_map(|f| {
+                overlay.points[f]
+                    .binary_search_by_key(&track, |p| p.0)
+                    .ok()
+                    .map(|i| &overlay.points[f][i])
+            })
             .map(|p| (p.1 as f32 / factor as f32, p.2 as f32 / factor as f32))
             .collect();
         let n = path.len();

@@ -126,13 +126,17 @@ impl LinkScores {
 /// one to one within `max_distance` ([`matched_pairs`]); a result link is correct when both of
 /// its ends match points of the same true track in consecutive frames.
 pub fn link_scores(truth: &[TrackPoint], found: &[TrackPoint], max_distance: f64) -> LinkScores {
-    let frames: std::collections::BTreeSet<usize> = truth.iter().chain(found).map(|p| p.frame).collect();
+    let mut by_frame: std::collections::BTreeMap<usize, (Vec<&TrackPoint>, Vec<&TrackPoint>)> = Default::default();
+    for p in truth {
+        by_frame.entry(p.frame).or_default().0.push(p);
+    }
+    for p in found {
+        by_frame.entry(p.frame).or_default().1.push(p);
+    }
     let mut truth_of: HashMap<(usize, u32), u32> = HashMap::new();
-    for &t in &frames {
-        let tr: Vec<&TrackPoint> = truth.iter().filter(|p| p.frame == t).collect();
-        let fo: Vec<&TrackPoint> = found.iter().filter(|p| p.frame == t).collect();
+    for (&t, (tr, fo)) in &by_frame {
         let xy = |v: &[&TrackPoint]| v.iter().map(|p| (p.x, p.y)).collect::<Vec<_>>();
-        for (i, j) in matched_pairs(&xy(&tr), &xy(&fo), max_distance) {
+        for (i, j) in matched_pairs(&xy(tr), &xy(fo), max_distance) {
             truth_of.insert((t, fo[j].track_id), tr[i].track_id);
         }
     }

@@ -106,7 +106,7 @@ impl Scene {
         }
         let mut frames = vec![cells.clone()];
         for _ in 1..params.frames {
-            step(&mut cells, &mut rng, params, &m);
+            step(&mut cells, &mut rng, &m);
             cells.retain(|c| inside_margin(c, params));
             replenish(&mut cells, &mut rng, params, &m, &mut next_id);
             separate(&mut cells, &m);
@@ -222,7 +222,7 @@ fn new_nucleus(rng: &mut Rng, p: &SynthParams, m: &Motion, next_id: &mut u32, at
     }
 }
 
-fn step(cells: &mut [Nucleus], rng: &mut Rng, p: &SynthParams, m: &Motion) {
+fn step(cells: &mut [Nucleus], rng: &mut Rng, m: &Motion) {
     for c in cells.iter_mut() {
         c.vx = m.drift_x + m.persistence * (c.vx - m.drift_x) + m.kick * rng.normal();
         c.vy = m.persistence * c.vy + m.kick * rng.normal();
@@ -241,7 +241,6 @@ fn step(cells: &mut [Nucleus], rng: &mut Rng, p: &SynthParams, m: &Motion) {
             }
         }
     }
-    let _ = p;
 }
 
 fn inside_margin(c: &Nucleus, p: &SynthParams) -> bool {
