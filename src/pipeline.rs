@@ -4,8 +4,9 @@
 
 use crate::analyze::{summarize_track, write_per_track, TrackSummary};
 use crate::error::{Error, Result};
-use crate::link::nearest_neighbour_distances;
+use crate::link::divide::DivisionEvent;
 use crate::link::online::{LinkParams, OnlineLinker};
+use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::output::{ensure_dir, fnv1a64_file, write_atomic, AtomicFile};
 use crate::params::{Length, SegmentParams};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
@@ -196,6 +197,8 @@ pub struct SegmentRun {
     pub tracks: Vec<TrackSummary>,
     /// Quality figures of the linking (absent without linking).
     pub linking_qc: Option<LinkingQc>,
+    /// Gaps closed and divisions found (absent without linking).
+    pub resolution: Option<TrackResolution>,
     /// The QC movie, when rendered.
     pub movie: Option<MovieOutputs>,
     /// Human-readable warnings (also in run.json).
@@ -328,17 +331,22 @@ pub fn run_recording(
     }
     csv.commit()?;
     let first_pass_s = started.elapsed().as_secs_f64();
-    let (tracks, linking_qc) = match outputs.linking {
+    let (tracks, linking_qc, resolution) = match outputs.linking {
         Some(link) => {
+            let resolution = resolve_tracks(&mut tracked, &link);
             let tracks = write_track_outputs(dir, &mut tracked, &calibration)?;
             let qc = linking_qc(&tracked, &tracks, &mut neighbour_distances, link.max_step_px);
-            (tracks, Some(qc))
+            (tracks, Some(qc), Some(resolution))
         }
-        None => (Vec::new(), None),
+        None => (Vec::new(), None, None),
     };
     let movie_started = Instant::now();
     let movie = match (spool.as_mut(), outputs.movie) {
-        (Some(s), Some(options)) => Some(render_movie(stack, s, &overlay(&tracked, &frames), &options, dir)?),
+        (Some(s), Some(options)) => {
+            let divisions = resolution.as_ref().map(|r| r.divisions.as_slice()).unwrap_or_default();
+            let overlay = overlay(&tracked, &frames, divisions);
+            Some(render_movie(stack, s, &overlay, &options, dir)?)
+        }
         _ => None,
     };
     let mut warnings = warnings_for(&frames, &info);
@@ -349,6 +357,7 @@ pub fn run_recording(
         frames,
         tracks,
         linking_qc,
+        resolution,
         movie,
         warnings,
     };
@@ -361,6 +370,8 @@ pub fn run_recording(
         "parameters": { "diameter": diameter, "segment": params, "link": outputs.linking, "movie": outputs.movie },
         "counts": { "frames": run.frames.len(), "detections": run.detections(), "tracks": run.tracks.len() },
         "linking_qc": run.linking_qc,
+        "gaps_closed": run.resolution.as_ref().map(|r| r.gaps_closed),
+        "divisions": run.resolution.as_ref().map(|r| &r.divisions),
         "count_jumps": count_jumps(&run.frames),
         "per_frame": run.frames,
         "warnings": run.warnings,
@@ -420,8 +431,8 @@ fn remove_stale_outputs(dir: &Path, outputs: &SegmentOutputs) {
     }
 }
 
-/// Per-frame track ids of labels and track positions, for the movie.
-fn overlay(tracked: &[TrackedDetection], frames: &[FrameSummary]) -> TrackOverlay {
+/// Per-frame track ids of labels, track positions and division marks, for the movie.
+fn overlay(tracked: &[TrackedDetection], frames: &[FrameSummary], divisions: &[DivisionEvent]) -> TrackOverlay {
     let mut track_of_label: Vec<Vec<u32>> = frames.iter().map(|f| vec![0; f.objects]).collect();
     let mut points: Vec<Vec<(u32, f64, f64)>> = vec![Vec::new(); frames.len()];
     for p in tracked {
@@ -429,7 +440,12 @@ fn overlay(tracked: &[TrackedDetection], frames: &[FrameSummary]) -> TrackOverla
         track_of_label[d.frame][d.label as usize - 1] = p.track_id;
         points[d.frame].push((p.track_id, d.x, d.y));
     }
-    TrackOverlay { track_of_label, points }
+    let divisions = divisions.iter().map(|e| (e.frame, e.x, e.y)).collect();
+    TrackOverlay {
+        track_of_label,
+        points,
+        divisions,
+    }
 }
 
 /// The median of the values (mean of the two middle ones for an even count); `None` if empty.

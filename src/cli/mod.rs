@@ -4,6 +4,7 @@
 mod demo;
 mod inspect;
 mod preview;
+mod score;
 mod segment;
 mod synth;
 mod track;
@@ -38,6 +39,8 @@ enum Command {
     Track(track::TrackArgs),
     /// Write a synthetic recording with ground truth.
     Synth(synth::SynthArgs),
+    /// Compare tracks with ground truth: detection, TRA/DET, MOTA/MOTP, links, divisions.
+    Score(score::ScoreArgs),
     /// Synthesize a recording, track it, and score the result against the truth.
     Demo(demo::DemoArgs),
 }
@@ -51,6 +54,7 @@ pub fn run() -> i32 {
         Command::Segment(a) => segment::run(a),
         Command::Track(a) => track::run(a),
         Command::Synth(a) => synth::run(a),
+        Command::Score(a) => score::run(a),
         Command::Demo(a) => demo::run(a),
     };
     match result {
@@ -194,10 +198,14 @@ impl RunArgs {
 
 /// Prints what a run produced, its warnings, and where it went.
 fn print_summary(run: &caravan::pipeline::SegmentRun) {
-    let tracks = if run.linking_qc.is_some() {
-        format!(", {} tracks", run.tracks.len())
-    } else {
-        String::new()
+    let tracks = match &run.resolution {
+        Some(r) => format!(
+            ", {} tracks ({} gaps closed, {} divisions)",
+            run.tracks.len(),
+            r.gaps_closed,
+            r.divisions.len()
+        ),
+        None => String::new(),
     };
     println!(
         "{} frames, {} detections{tracks}, diameter {}",

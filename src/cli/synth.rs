@@ -26,6 +26,21 @@ pub struct SynthArgs {
     /// Mean nucleus diameter in px.
     #[arg(long, default_value_t = 14.0)]
     diameter: f64,
+    /// Drift along +x in px per frame (default: 2.5 for the stripe, 0 otherwise).
+    #[arg(long)]
+    drift: Option<f64>,
+    /// Probability per nucleus and frame of dividing.
+    #[arg(long, default_value_t = 0.0)]
+    divisions: f64,
+    /// Probability per nucleus and frame of being missed for one frame.
+    #[arg(long, default_value_t = 0.0)]
+    dropouts: f64,
+    /// Peak nucleus signal in photons at frame 0 (background is 60).
+    #[arg(long, default_value_t = 600.0)]
+    signal: f64,
+    /// Fraction of signal lost per frame to photobleaching.
+    #[arg(long, default_value_t = 0.002)]
+    bleach: f64,
     /// Seed of every random choice.
     #[arg(long, default_value_t = 1)]
     seed: u64,
@@ -41,6 +56,20 @@ pub fn run(args: SynthArgs) -> Result<()> {
         p.nuclei = n;
     }
     p.diameter_px = args.diameter;
+    if let Some(v) = args.drift {
+        p.drift_px_per_frame = v;
+    }
+    p.division_rate = args.divisions;
+    p.dropout_rate = args.dropouts;
+    p.signal_photons = args.signal;
+    if !(0.0..0.5).contains(&args.bleach) {
+        return Err(Error::parameter(
+            "--bleach",
+            args.bleach,
+            "must be from 0 to 0.5 per frame",
+        ));
+    }
+    p.bleach_per_frame = args.bleach;
     p.seed = args.seed;
     p.compression = args.compression;
     let out = write_recording(&args.output, &p)?;

@@ -1,7 +1,7 @@
 //! `caravan track FILE -o DIR`: segment every frame and link the nuclei into tracks.
 
 use super::{print_summary, RunArgs};
-use caravan::link::online::{LinkParams, Prediction};
+use caravan::link::online::{Divisions, LinkParams, Prediction};
 use caravan::params::Length;
 use caravan::pipeline::{run_recording, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
@@ -18,6 +18,12 @@ pub struct TrackArgs {
     /// Constant-velocity motion prediction: on or off.
     #[arg(long, default_value = "on")]
     prediction: Prediction,
+    /// Longest run of missing frames that gap closing may bridge (0 switches gap closing off).
+    #[arg(long, default_value_t = 2)]
+    max_gap: usize,
+    /// Division detection: on or off.
+    #[arg(long, default_value = "on")]
+    divisions: Divisions,
     /// Longest side of the QC movie in px (larger recordings are downscaled).
     #[arg(long, default_value_t = 512)]
     qc_size: usize,
@@ -30,6 +36,13 @@ pub struct TrackArgs {
 }
 
 pub fn run(args: TrackArgs) -> Result<()> {
+    if args.max_gap > 50 {
+        return Err(Error::parameter(
+            "--max-gap",
+            args.max_gap,
+            "gap closing bridges at most 50 missing frames",
+        ));
+    }
     if args.qc_size < 64 || args.qc_every == 0 {
         return Err(Error::parameter(
             "--qc-size/--qc-every",
@@ -40,6 +53,8 @@ pub fn run(args: TrackArgs) -> Result<()> {
     let (mut stack, diameter, params) = args.run.start()?;
     let mut link = LinkParams::for_diameter(params.diameter_px);
     link.prediction = args.prediction;
+    link.max_gap_frames = args.max_gap;
+    link.divisions = args.divisions;
     if let Some(step) = args.max_step {
         link.max_step_px = step.to_pixels("--max-step", stack.info().calibration.pixel_size_um)?;
         if link.max_step_px < 0.5 {

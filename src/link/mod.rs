@@ -5,10 +5,15 @@
 //! rather than take a bad link. [`online::OnlineLinker`] turns it into tracks frame by frame.
 //! No file I/O.
 
+pub mod close;
+pub mod divide;
+pub mod kalman;
 pub mod online;
 
+use crate::tracks::TrackedDetection;
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use pathfinding::prelude::{kuhn_munkres, Matrix};
+use serde::Serialize;
 
 /// The outcome of linking one frame to the next.
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -39,16 +44,36 @@ pub struct FrameLinks {
 /// Naval Res. Logist. Q. 2:83–97; J. Munkres (1957), J. SIAM 5(1):32–38) on integer-scaled
 /// costs. Candidates come from a k-d tree (J. L. Bentley (1975), Commun. ACM 18(9):509–517).
 pub fn link_frames(sources: &[[f64; 2]], targets: &[[f64; 2]], max_step: f64) -> FrameLinks {
-    let candidates = candidate_links(sources, targets, max_step);
+    link_frames_gated(sources, &vec![max_step; sources.len()], targets)
+}
+
+/// As [`link_frames`], with a search radius of its own for each source (a motion model's
+/// gate); the alternative cost is still 1.05 x the largest allowed link cost.
+pub fn link_frames_gated(sources: &[[f64; 2]], radii: &[f64], targets: &[[f64; 2]]) -> FrameLinks {
+    let candidates = candidate_links(sources, radii, targets);
     let alternative_cost = 1.05 * candidates.iter().map(|c| c.2).fold(0.0, f64::max);
+    assign_with_alternatives(sources.len(), targets.len(), &candidates, alternative_cost)
+}
+
+/// The LAP with birth and death alternatives over given candidate links
+/// `(source, target, cost)` (sorted by source, then target): every source is linked to at most
+/// one target and vice versa, and every object may instead end or start a track at
+/// `alternative_cost`, so that no link is forced. Used for frame-to-frame linking and for gap
+/// closing over track segments (Jaqaman et al. 2008, see [`link_frames`]).
+pub fn assign_with_alternatives(
+    n_sources: usize,
+    n_targets: usize,
+    candidates: &[(usize, usize, f64)],
+    alternative_cost: f64,
+) -> FrameLinks {
     let mut out = FrameLinks {
         alternative_cost,
         ..FrameLinks::default()
     };
-    let mut linked_source = vec![false; sources.len()];
-    let mut linked_target = vec![false; targets.len()];
-    for component in components(sources.len(), targets.len(), &candidates) {
-        for (s, t, c) in solve_component(&component, &candidates, alternative_cost) {
+    let mut linked_source = vec![false; n_sources];
+    let mut linked_target = vec![false; n_targets];
+    for component in components(n_sources, n_targets, candidates) {
+        for (s, t, c) in solve_component(&component, candidates, alternative_cost) {
             linked_source[s] = true;
             linked_target[t] = true;
             out.links.push((s, t, c));
@@ -66,9 +91,58 @@ pub fn link_frames(sources: &[[f64; 2]], targets: &[[f64; 2]], max_step: f64) ->
                 .fold(alternative_cost, f64::min)
         })
         .collect();
-    out.deaths = (0..sources.len()).filter(|&i| !linked_source[i]).collect();
-    out.births = (0..targets.len()).filter(|&j| !linked_target[j]).collect();
+    out.deaths = (0..n_sources).filter(|&i| !linked_source[i]).collect();
+    out.births = (0..n_targets).filter(|&j| !linked_target[j]).collect();
     out
+}
+
+/// What the global steps after frame-to-frame linking did.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct TrackResolution {
+    /// Gaps bridged by gap closing.
+    pub gaps_closed: usize,
+    /// Division events, in frame order, with final track ids.
+    pub divisions: Vec<divide::DivisionEvent>,
+}
+
+/// The global steps after online linking: gap closing, then division detection (as the
+/// parameters say), then track ids renumbered from 1 in order of first appearance (first
+/// frame, then object label), so that ids do not depend on how segments were joined.
+pub fn resolve_tracks(points: &mut [TrackedDetection], params: &online::LinkParams) -> TrackResolution {
+    let gaps_closed = close::close_gaps(points, params).len();
+    let mut divisions = match params.divisions {
+        online::Divisions::On => divide::detect_divisions(points, params, &divide::DivisionRules::default()),
+        online::Divisions::Off => Vec::new(),
+    };
+    let new_id = renumber_tracks(points);
+    for e in divisions.iter_mut() {
+        e.mother = new_id[&e.mother];
+        e.daughters = e.daughters.map(|d| new_id[&d]);
+        e.daughters.sort_unstable();
+    }
+    TrackResolution { gaps_closed, divisions }
+}
+
+/// Renumbers tracks 1, 2, ... by (first frame, first label) and returns the old-to-new map.
+fn renumber_tracks(points: &mut [TrackedDetection]) -> std::collections::BTreeMap<u32, u32> {
+    let mut first: std::collections::BTreeMap<u32, (usize, u32)> = Default::default();
+    for p in points.iter() {
+        let key = (p.detection.frame, p.detection.label);
+        let e = first.entry(p.track_id).or_insert(key);
+        *e = (*e).min(key);
+    }
+    let mut order: Vec<(usize, u32, u32)> = first.iter().map(|(&id, &(f, l))| (f, l, id)).collect();
+    order.sort_unstable();
+    let new_id: std::collections::BTreeMap<u32, u32> = order
+        .iter()
+        .enumerate()
+        .map(|(k, &(_, _, id))| (id, k as u32 + 1))
+        .collect();
+    for p in points.iter_mut() {
+        p.track_id = new_id[&p.track_id];
+        p.parent_id = p.parent_id.map(|m| new_id[&m]);
+    }
+    new_id
 }
 
 /// Distance from each point to its nearest other point (`None` for a lone point), via a k-d
@@ -91,16 +165,16 @@ pub fn nearest_neighbour_distances(points: &[[f64; 2]]) -> Vec<Option<f64>> {
         .collect()
 }
 
-/// All `(source, target, squared distance)` pairs within `max_step`, found with a k-d tree.
-fn candidate_links(sources: &[[f64; 2]], targets: &[[f64; 2]], max_step: f64) -> Vec<(usize, usize, f64)> {
+/// All `(source, target, squared distance)` pairs within each source's radius, found with a
+/// k-d tree.
+fn candidate_links(sources: &[[f64; 2]], radii: &[f64], targets: &[[f64; 2]]) -> Vec<(usize, usize, f64)> {
     if sources.is_empty() || targets.is_empty() {
         return Vec::new();
     }
     let tree: ImmutableKdTree<f64, 2> = ImmutableKdTree::new_from_slice(targets).expect("non-empty, finite points");
-    let r2 = max_step * max_step;
     let mut pairs = Vec::new();
-    for (i, s) in sources.iter().enumerate() {
-        for hit in tree.query(s).within::<SquaredEuclidean<f64>>(r2).execute() {
+    for (i, (s, r)) in sources.iter().zip(radii).enumerate() {
+        for hit in tree.query(s).within::<SquaredEuclidean<f64>>(r * r).execute() {
             pairs.push((i, hit.item as usize, hit.distance));
         }
     }

@@ -113,7 +113,12 @@ pub struct TrackOverlay {
     pub track_of_label: Vec<Vec<u32>>,
     /// For each frame, `(track id, x, y)` of the points present, in ascending track id.
     pub points: Vec<Vec<(u32, f64, f64)>>,
+    /// Divisions as `(mother's last frame, x, y)`: marked for a few frames from the next one.
+    pub divisions: Vec<(usize, f64, f64)>,
 }
+
+/// Frames during which a division stays marked.
+const DIVISION_MARK_FRAMES: usize = 4;
 
 /// Paths written by [`render_movie`].
 #[derive(Debug, Clone)]
@@ -166,6 +171,7 @@ pub fn render_movie(
             let raw = stack.read_frame(t)?.pixels.to_f32();
             let mut canvas = downscale_grey(&raw, w, h, factor, &stretch);
             draw_tails(&mut canvas, overlay, t, factor);
+            draw_division_marks(&mut canvas, overlay, t, factor);
             for (i, l) in outline {
                 let track = overlay.track_of_label[t].get(l as usize - 1).copied().unwrap_or(0);
                 let (x, y) = (i as usize % w / factor, i as usize / w / factor);
@@ -264,6 +270,22 @@ fn draw_tails(canvas: &mut image::GrayImage, overlay: &TrackOverlay, t: usize, f
             let age = n - 2 - k;
             let level = age * SHADES.len() / TAIL;
             draw_line_segment_mut(canvas, seg[0], seg[1], image::Luma([faded_colour(track, level)]));
+        }
+    }
+}
+
+/// A white four-pointed star (a plus with a hollow centre, our own mark) where a nucleus
+/// divided, from the daughters' first frame for [`DIVISION_MARK_FRAMES`] frames.
+fn draw_division_marks(canvas: &mut image::GrayImage, overlay: &TrackOverlay, t: usize, factor: usize) {
+    for &(frame, x, y) in &overlay.divisions {
+        if t <= frame || t > frame + DIVISION_MARK_FRAMES {
+            continue;
+        }
+        let (cx, cy) = (x as f32 / factor as f32, y as f32 / factor as f32);
+        for (dx, dy) in [(1.0, 0.0), (-1.0, 0.0), (0.0, 1.0), (0.0, -1.0)] {
+            let from = (cx + 3.0 * dx, cy + 3.0 * dy);
+            let to = (cx + 8.0 * dx, cy + 8.0 * dy);
+            draw_line_segment_mut(canvas, from, to, image::Luma([WHITE]));
         }
     }
 }

@@ -1,5 +1,9 @@
 //! Accuracy of detections against ground truth: one-to-one centroid matching (optimal, by
-//! Hungarian assignment) and IoU matching of label images. The tracking measures come later.
+//! Hungarian assignment) and IoU matching of label images; the tracking measures are in
+//! [`tracking`].
+
+pub mod files;
+pub mod tracking;
 
 use crate::tracks::TrackPoint;
 use pathfinding::prelude::{kuhn_munkres, Matrix};

@@ -71,6 +71,12 @@ pub struct SynthParams {
     pub pixel_size_um: f64,
     /// Frame interval written into the OME-XML, s.
     pub frame_interval_s: f64,
+    /// Drift along +x, px per frame (the stripe's collective migration; 0 elsewhere).
+    pub drift_px_per_frame: f64,
+    /// Probability per nucleus and frame of dividing into two daughters.
+    pub division_rate: f64,
+    /// Probability per nucleus and frame of being missed for one frame (out of focus).
+    pub dropout_rate: f64,
     /// Seed of every random choice.
     pub seed: u64,
     /// Compression of the written recording.
@@ -99,6 +105,9 @@ impl SynthParams {
             read_noise: 3.0,
             pixel_size_um: 0.65,
             frame_interval_s: 300.0,
+            drift_px_per_frame: if scenario == Scenario::Stripe { 2.5 } else { 0.0 },
+            division_rate: 0.0,
+            dropout_rate: 0.0,
             seed: 1,
             compression: TiffCompression::Deflate,
         }
@@ -121,6 +130,28 @@ impl SynthParams {
                 "--diameter",
                 self.diameter_px,
                 "must be at least 4 px and at most a third of the frame",
+            ));
+        }
+        let rate_ok = |r: f64| (0.0..=0.5).contains(&r);
+        if !rate_ok(self.division_rate) || !rate_ok(self.dropout_rate) {
+            return Err(Error::parameter(
+                "--divisions/--dropouts",
+                format!("{}/{}", self.division_rate, self.dropout_rate),
+                "rates are probabilities per frame from 0 to 0.5",
+            ));
+        }
+        if self.drift_px_per_frame.is_nan() || self.drift_px_per_frame.abs() > self.diameter_px {
+            return Err(Error::parameter(
+                "--drift",
+                self.drift_px_per_frame,
+                "must be at most one diameter per frame",
+            ));
+        }
+        if !(self.signal_photons > 0.0 && self.signal_photons <= 60000.0) {
+            return Err(Error::parameter(
+                "--signal",
+                self.signal_photons,
+                "must be 0 to 60000 photons",
             ));
         }
         Ok(())

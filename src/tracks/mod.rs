@@ -164,7 +164,7 @@ pub fn read_track_points(text: &str) -> Result<Vec<TrackPoint>, String> {
     for (n, line) in lines.enumerate().filter(|(_, l)| !l.trim().is_empty()) {
         let cells: Vec<&str> = line.split(',').map(str::trim).collect();
         let get = |i: usize| cells.get(i).copied().ok_or(format!("line {}: too few columns", n + 2));
-        let bad = |what: &str| format!("line {}: {what} is not a number", n + 2);
+        let bad = |what: &str| format!("line {}: {what} is not a finite number", n + 2);
         points.push(TrackPoint {
             track_id: get(ti)?.parse().map_err(|_| bad("track_id"))?,
             parent_id: match pi.map(get).transpose()? {
@@ -172,11 +172,15 @@ pub fn read_track_points(text: &str) -> Result<Vec<TrackPoint>, String> {
                 Some(v) => Some(v.parse().map_err(|_| bad("parent_id"))?),
             },
             frame: get(fi)?.parse().map_err(|_| bad("frame"))?,
-            x: get(xi)?.parse().map_err(|_| bad("x"))?,
-            y: get(yi)?.parse().map_err(|_| bad("y"))?,
+            x: finite(get(xi)?).ok_or_else(|| bad("x"))?,
+            y: finite(get(yi)?).ok_or_else(|| bad("y"))?,
         });
     }
     Ok(points)
+}
+
+fn finite(cell: &str) -> Option<f64> {
+    cell.parse::<f64>().ok().filter(|v| v.is_finite())
 }
 
 #[cfg(test)]

@@ -1,0 +1,389 @@
+//! Division detection: a mother nucleus whose track ends where two daughters begin, on
+//! either side of where the mother was going, with the sizes and brightness of a nucleus split
+//! in two. Daughters become tracks of their own whose `parent_id` is the mother's.
+
+use super::kalman::ConstantVelocity;
+use super::online::{LinkParams, Prediction};
+use crate::tracks::TrackedDetection;
+use serde::Serialize;
+use std::collections::{BTreeMap, BTreeSet};
+
+/// One division: the mother's last point and its two daughters.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct DivisionEvent {
+    /// The mother's last frame (daughters start in the next one).
+    pub frame: usize,
+    /// Mother track id.
+    pub mother: u32,
+    /// Daughter track ids, ascending.
+    pub daughters: [u32; 2],
+    /// The mother's last position, px.
+    pub x: f64,
+    /// The mother's last position, px.
+    pub y: f64,
+}
+
+/// Our own consistency rules for a division (after gap closing, between consecutive frames).
+/// Real daughter nuclei are smaller than the mother and about equal; their DNA together is the
+/// mother's, so their summed brightness is close to hers.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct DivisionRules {
+    /// Each daughter's area over the mother's (median of her last 3 points): allowed range.
+    pub daughter_area_ratio: (f64, f64),
+    /// The larger daughter's area over the smaller's: at most.
+    pub sister_area_ratio: f64,
+    /// Summed daughter total intensity over the mother's: allowed range.
+    pub intensity_ratio: (f64, f64),
+    /// The mother's area (median of her last 3 points) over her earlier median area: at most.
+    /// A nucleus does not double in area within a few frames before dividing; an object that
+    /// does is more likely two nuclei segmented as one, whose separation is not a division.
+    pub mother_growth_ratio: f64,
+    /// The mother must have been tracked for at least this many points: with less history her
+    /// size cannot be judged (an object that appears and splits at once is most often two
+    /// nuclei segmented as one).
+    pub min_mother_points: usize,
+    /// Daughters must each be tracked for at least this many points (a one-frame
+    /// over-segmentation flicker looks like a division otherwise), unless the recording ends.
+    pub min_daughter_points: usize,
+}
+
+impl Default for DivisionRules {
+    fn default() -> Self {
+        DivisionRules {
+            daughter_area_ratio: (0.3, 0.85),
+            sister_area_ratio: 2.0,
+            intensity_ratio: (0.6, 1.6),
+            mother_growth_ratio: 1.5,
+            min_mother_points: 3,
+            min_daughter_points: 3,
+        }
+    }
+}
+
+/// A candidate division before conflicts are resolved.
+#[derive(Debug, Clone, Copy)]
+struct Candidate {
+    cost: f64,
+    mother: usize,
+    daughters: [usize; 2],
+}
+
+/// Finds divisions among tracks and re-labels the daughters: a daughter that continued the
+/// mother's track is cut off into a new track; both daughters get the mother's id as
+/// `parent_id`. New ids start above the largest id in use. Returns the events in frame order.
+///
+/// A candidate is a mother point `m` at frame `f` and two daughter points `a`, `b` at `f+1`,
+/// each the first point of its track after `f` (one may continue the mother's own track), with
+/// both daughters within the maximum step of `m`, the midpoint of the daughters closer to the
+/// mother's predicted position than half the daughters' distance and than half the maximum
+/// step, and sizes and brightness within [`DivisionRules`]. Its cost is the squared distance
+/// from the predicted position to the daughters' midpoint; candidates are accepted in
+/// ascending cost, each point used once.
+///
+/// # Method
+/// Divisions as splitting events in the sense of the segment step of Jaqaman et al. (2008),
+/// Nat. Methods 5(8):695–702, doi:10.1038/nmeth.1237, where splits are scored with an
+/// intensity ratio; here the intensity and size rules are explicit bounds of our own
+/// (documented in [`DivisionRules`]), and conflicts are resolved greedily by cost.
+pub fn detect_divisions(
+    points: &mut [TrackedDetection],
+    params: &LinkParams,
+    rules: &DivisionRules,
+) -> Vec<DivisionEvent> {
+    let tracks = track_index(points);
+    let last_frame = points.iter().map(|p| p.detection.frame).max().unwrap_or(0);
+    let mut candidates = find_candidates(points, &tracks, params, rules, last_frame);
+    candidates.sort_by(|a, b| a.cost.total_cmp(&b.cost).then(a.mother.cmp(&b.mother)));
+    let mut used = BTreeSet::new();
+    let mut accepted: Vec<Candidate> = Vec::new();
+    for c in candidates {
+        let ends = [c.mother, c.daughters[0], c.daughters[1]];
+        if ends.iter().all(|k| !used.contains(k)) {
+            used.extend(ends);
+            accepted.push(c);
+        }
+    }
+    accepted.sort_by_key(|c| (points[c.mother].detection.frame, points[c.mother].track_id));
+    let mut next_id = points.iter().map(|p| p.track_id).max().unwrap_or(0) + 1;
+    accepted
+        .iter()
+        .map(|c| apply_division(points, c, &mut next_id))
+        .collect()
+}
+
+/// For each track id, the indices of its points in frame order.
+fn track_index(points: &[TrackedDetection]) -> BTreeMap<u32, Vec<usize>> {
+    let mut tracks: BTreeMap<u32, Vec<usize>> = BTreeMap::new();
+    for (k, p) in points.iter().enumerate() {
+        tracks.entry(p.track_id).or_default().push(k);
+    }
+    for v in tracks.values_mut() {
+        v.sort_by_key(|&k| points[k].detection.frame);
+    }
+    tracks
+}
+
+fn find_candidates(
+    points: &[TrackedDetection],
+    tracks: &BTreeMap<u32, Vec<usize>>,
+    params: &LinkParams,
+    rules: &DivisionRules,
+    last_frame: usize,
+) -> Vec<Candidate> {
+    // Points that may be a daughter: the first point of a track (after frame 0), or the point
+    // after any mother point on the same track.
+    let mut starts_by_frame: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
+    for pts in tracks.values() {
+        let first = pts[0];
+        if points[first].detection.frame > 0 {
+            starts_by_frame
+                .entry(points[first].detection.frame)
+                .or_default()
+                .push(first);
+        }
+    }
+    let mut out = Vec::new();
+    let max2 = params.max_step_px * params.max_step_px;
+    for pts in tracks.values() {
+        for (pos, &m) in pts.iter().enumerate() {
+            let f = points[m].detection.frame;
+            let continuation = pts
+                .get(pos + 1)
+                .copied()
+                .filter(|&k| points[k].detection.frame == f + 1);
+            let mut daughters: Vec<usize> = continuation.into_iter().collect();
+            daughters.extend(starts_by_frame.get(&(f + 1)).into_iter().flatten().copied());
+            daughters.retain(|&k| distance2(&points[m], &points[k]) <= max2);
+            let gap_after = continuation.is_none() && pos + 1 < pts.len();
+            if daughters.len() < 2 || gap_after || pos + 1 < rules.min_mother_points {
+                continue;
+            }
+            let predicted = predicted_after(points, &pts[..=pos], params);
+            let mother = MotherFigures::of(points, &pts[..=pos]);
+            for (i, &a) in daughters.iter().enumerate() {
+                for &b in &daughters[i + 1..] {
+                    // A mother whose track goes on must have it go on as one of the daughters.
+                    if continuation.is_some_and(|c| a != c && b != c) {
+                        continue;
+                    }
+                    if !persists(points, tracks, a, rules, last_frame)
+                        || !persists(points, tracks, b, rules, last_frame)
+                    {
+                        continue;
+                    }
+                    if let Some(cost) = division_cost(points, predicted, &mother, [a, b], params, rules) {
+                        out.push(Candidate {
+                            cost,
+                            mother: m,
+                            daughters: [a, b],
+                        });
+                    }
+                }
+            }
+        }
+    }
+    out
+}
+
+/// Area and total intensity of a mother: medians over her last three points; and the median
+/// area of her points before those (`None` with fewer than three).
+struct MotherFigures {
+    area: f64,
+    intensity: f64,
+    earlier_area: Option<f64>,
+}
+
+impl MotherFigures {
+    fn of(points: &[TrackedDetection], history: &[usize]) -> Self {
+        let split = history.len().saturating_sub(3);
+        let (earlier, recent) = history.split_at(split);
+        let median_of = |ks: &[usize], f: fn(&crate::tracks::Detection) -> f64| {
+            let mut v: Vec<f64> = ks.iter().map(|&k| f(&points[k].detection)).collect();
+            crate::pipeline::median(&mut v)
+        };
+        MotherFigures {
+            area: median_of(recent, |d| d.area_px).unwrap_or(0.0),
+            intensity: median_of(recent, |d| d.total_intensity).unwrap_or(0.0),
+            earlier_area: (earlier.len() >= 3)
+                .then(|| median_of(earlier, |d| d.area_px))
+                .flatten(),
+        }
+    }
+}
+
+/// Where the mother would be one frame after her last point of `history`.
+fn predicted_after(points: &[TrackedDetection], history: &[usize], params: &LinkParams) -> [f64; 2] {
+    let at = |k: usize| [points[k].detection.x, points[k].detection.y];
+    if params.prediction == Prediction::Off || history.len() < 2 {
+        return at(history[history.len() - 1]);
+    }
+    let mut f = ConstantVelocity::started_at(at(history[0]), params.motion_noise);
+    for &k in &history[1..] {
+        f.step(at(k));
+    }
+    f.predicted_position()
+}
+
+/// Whether the daughter's track (from point `k` on) is long enough, or reaches the end.
+fn persists(
+    points: &[TrackedDetection],
+    tracks: &BTreeMap<u32, Vec<usize>>,
+    k: usize,
+    rules: &DivisionRules,
+    last_frame: usize,
+) -> bool {
+    let frame = points[k].detection.frame;
+    let track = &tracks[&points[k].track_id];
+    let after = track.iter().filter(|&&j| points[j].detection.frame >= frame).count();
+    let end = points[*track.last().expect("non-empty track")].detection.frame;
+    after >= rules.min_daughter_points || end == last_frame
+}
+
+/// The cost of a candidate, or `None` where a rule fails.
+fn division_cost(
+    points: &[TrackedDetection],
+    predicted: [f64; 2],
+    mother: &MotherFigures,
+    daughters: [usize; 2],
+    params: &LinkParams,
+    rules: &DivisionRules,
+) -> Option<f64> {
+    let (a, b) = (&points[daughters[0]].detection, &points[daughters[1]].detection);
+    let mid = [(a.x + b.x) / 2.0, (a.y + b.y) / 2.0];
+    let off2 = (mid[0] - predicted[0]).powi(2) + (mid[1] - predicted[1]).powi(2);
+    let half_apart2 = ((a.x - b.x).powi(2) + (a.y - b.y).powi(2)) / 4.0;
+    let within = |v: f64, (lo, hi): (f64, f64)| v >= lo && v <= hi;
+    let ok = off2 < half_apart2
+        && off2 <= (0.5 * params.max_step_px).powi(2)
+        && mother.area > 0.0
+        && mother.intensity > 0.0
+        && mother
+            .earlier_area
+            .is_none_or(|e| mother.area <= rules.mother_growth_ratio * e)
+        && within(a.area_px / mother.area, rules.daughter_area_ratio)
+        && within(b.area_px / mother.area, rules.daughter_area_ratio)
+        && a.area_px.max(b.area_px) <= rules.sister_area_ratio * a.area_px.min(b.area_px)
+        && within(
+            (a.total_intensity + b.total_intensity) / mother.intensity,
+            rules.intensity_ratio,
+        );
+    ok.then_some(off2)
+}
+
+fn distance2(p: &TrackedDetection, q: &TrackedDetection) -> f64 {
+    (p.detection.x - q.detection.x).powi(2) + (p.detection.y - q.detection.y).powi(2)
+}
+
+/// Cuts a daughter that continues the mother's track into a new track, sets both daughters'
+/// parent, and clears their link fields (each daughter starts a track).
+fn apply_division(points: &mut [TrackedDetection], c: &Candidate, next_id: &mut u32) -> DivisionEvent {
+    let mother_id = points[c.mother].track_id;
+    let frame = points[c.mother].detection.frame;
+    let mut daughter_ids = [0u32; 2];
+    for (slot, &k) in c.daughters.iter().enumerate() {
+        let old = points[k].track_id;
+        let new = if old == mother_id {
+            *next_id += 1;
+            let new = *next_id - 1;
+            for p in points.iter_mut() {
+                if p.track_id == old && p.detection.frame > frame {
+                    p.track_id = new;
+                }
+            }
+            new
+        } else {
+            old
+        };
+        for p in points.iter_mut().filter(|p| p.track_id == new) {
+            p.parent_id = Some(mother_id);
+        }
+        points[k].link_cost_px2 = None;
+        points[k].link_confidence = None;
+        daughter_ids[slot] = new;
+    }
+    daughter_ids.sort_unstable();
+    DivisionEvent {
+        frame,
+        mother: mother_id,
+        daughters: daughter_ids,
+        x: points[c.mother].detection.x,
+        y: points[c.mother].detection.y,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::link::online::OnlineLinker;
+    use crate::tracks::Detection;
+
+    fn nucleus(frame: usize, label: u32, x: f64, y: f64, area: f64) -> Detection {
+        Detection {
+            frame,
+            label,
+            x,
+            y,
+            area_px: area,
+            equivalent_diameter_px: 2.0 * (area / std::f64::consts::PI).sqrt(),
+            mean_intensity: 500.0,
+            total_intensity: 500.0 * area,
+            major_axis_px: 14.0,
+            minor_axis_px: 14.0,
+            orientation_deg: 0.0,
+            touches_border: false,
+        }
+    }
+
+    /// A mother moving +1 px/frame in x for frames 0..=4, daughters from frame 5 on, moving
+    /// apart vertically by ±`spread` px at frame 5, with areas `daughter_area` (mother 150).
+    fn division_movie(spread: f64, daughter_area: f64) -> Vec<TrackedDetection> {
+        let params = LinkParams::for_diameter(14.0);
+        let mut linker = OnlineLinker::new(params);
+        let mut out = Vec::new();
+        for t in 0..10 {
+            let x = 30.0 + t as f64;
+            let frame = if t < 5 {
+                vec![nucleus(t, 1, x, 50.0, 150.0)]
+            } else {
+                let s = spread + 0.5 * (t - 5) as f64;
+                vec![
+                    nucleus(t, 1, x, 50.0 - s, daughter_area),
+                    nucleus(t, 2, x, 50.0 + s, daughter_area),
+                ]
+            };
+            out.extend(linker.push(frame));
+        }
+        out
+    }
+
+    #[test]
+    fn a_division_makes_two_daughters_of_the_mother() {
+        // Hand-built: daughters of 0.56 x the mother's area 4 px either side of her path; the
+        // online linker continues the mother into one daughter, division detection cuts it.
+        let mut points = division_movie(4.0, 84.0);
+        let params = LinkParams::for_diameter(14.0);
+        let events = detect_divisions(&mut points, &params, &DivisionRules::default());
+        assert_eq!(events.len(), 1, "{events:?}");
+        let e = &events[0];
+        assert_eq!((e.frame, e.mother), (4, 1));
+        for d in e.daughters {
+            let pts: Vec<_> = points.iter().filter(|p| p.track_id == d).collect();
+            assert_eq!(pts.len(), 5);
+            assert!(pts.iter().all(|p| p.parent_id == Some(1) && p.detection.frame >= 5));
+        }
+        assert!(points
+            .iter()
+            .filter(|p| p.track_id == 1)
+            .all(|p| p.detection.frame <= 4));
+    }
+
+    #[test]
+    fn full_size_neighbours_are_not_daughters() {
+        // Hand-built: the same geometry, but the "daughters" are as large as the mother
+        // (area ratio 1 > 0.85): a neighbour appearing, not a division.
+        let mut points = division_movie(4.0, 150.0);
+        let params = LinkParams::for_diameter(14.0);
+        assert!(detect_divisions(&mut points, &params, &DivisionRules::default()).is_empty());
+        assert!(points.iter().all(|p| p.parent_id.is_none()));
+    }
+}

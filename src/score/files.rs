@@ -1,0 +1,142 @@
+//! Scoring from files: a ground-truth folder (or CSV) and a run folder (or tracks CSV), with
+//! the matching radius and border margin derived from the truth when not given.
+
+use super::tracking::{score_tracks, TrackingScore};
+use crate::error::{Error, Result};
+use crate::link::nearest_neighbour_distances;
+use crate::pipeline::median;
+use crate::tracks::{read_track_points, TrackPoint};
+use serde::Serialize;
+use std::path::{Path, PathBuf};
+
+/// What is known about the reference besides its points.
+#[derive(Debug, Clone, Serialize)]
+pub struct ScoreSetup {
+    /// The reference CSV read.
+    pub truth_csv: PathBuf,
+    /// The result CSV read.
+    pub tracks_csv: PathBuf,
+    /// Matching radius, px, and where it came from.
+    pub match_radius_px: f64,
+    /// `given`, `half the synthetic diameter` or `half the median neighbour distance`.
+    pub match_radius_source: &'static str,
+    /// Points closer than this to the image border are left out on both sides, px.
+    pub border_margin_px: f64,
+    /// Frame size, when the truth folder says it (`scenario.json`).
+    pub frame_size: Option<(usize, usize)>,
+}
+
+/// A folder holding `name`, or the file itself.
+fn file_in(path: &Path, name: &str) -> PathBuf {
+    if path.is_dir() {
+        path.join(name)
+    } else {
+        path.to_path_buf()
+    }
+}
+
+/// Reads a tracks-like CSV, naming the file in any error.
+pub fn read_points(path: &Path) -> Result<Vec<TrackPoint>> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::input(path, e.to_string()))?;
+    read_track_points(&text).map_err(|e| Error::input(path, e))
+}
+
+/// Scores the tracks in `tracks` (a CSV, or a run folder holding `tracks.csv`) against the
+/// truth in `truth` (a CSV with `track_id, parent_id, frame, x, y`, or a folder holding
+/// `truth.csv` and, from `caravan synth`, `scenario.json`).
+///
+/// Defaults: the matching radius is half the nucleus diameter of a synthetic truth, else half
+/// the median nearest-neighbour distance of the truth points (so that a point can match only
+/// its own nucleus); the border margin is half the synthetic diameter when the frame size is
+/// known (a nucleus cut by the border has no well-defined centre), else 0.
+///
+/// # Errors
+/// Missing or malformed files, a margin without a known frame size, non-positive radius.
+pub fn score_files(
+    truth: &Path,
+    tracks: &Path,
+    match_radius_px: Option<f64>,
+    border_margin_px: Option<f64>,
+) -> Result<(ScoreSetup, TrackingScore)> {
+    let truth_csv = file_in(truth, "truth.csv");
+    let tracks_csv = file_in(tracks, "tracks.csv");
+    let reference = read_points(&truth_csv)?;
+    let result = read_points(&tracks_csv)?;
+    let (diameter, frame_size) = synthetic_facts(truth)?;
+    let (radius, source) = match (match_radius_px, diameter) {
+        (Some(r), _) => (r, "given"),
+        (None, Some(d)) => (d / 2.0, "half the synthetic diameter"),
+        (None, None) => (
+            half_neighbour_distance(&reference),
+            "half the median neighbour distance",
+        ),
+    };
+    if !(radius > 0.0 && radius.is_finite()) {
+        return Err(Error::parameter(
+            "--match-radius",
+            radius,
+            "must be a positive number of px (give it when the truth has no two points in one frame)",
+        ));
+    }
+    let margin = border_margin_px.unwrap_or(match (diameter, frame_size) {
+        (Some(d), Some(_)) => d / 2.0,
+        _ => 0.0,
+    });
+    if margin > 0.0 && frame_size.is_none() {
+        return Err(Error::parameter(
+            "--border-margin",
+            margin,
+            "needs the frame size, which only a synthetic truth folder (scenario.json) gives",
+        ));
+    }
+    let keep = |v: Vec<TrackPoint>| inside(v, margin, frame_size);
+    let score = score_tracks(&keep(reference), &keep(result), radius);
+    let setup = ScoreSetup {
+        truth_csv,
+        tracks_csv,
+        match_radius_px: radius,
+        match_radius_source: source,
+        border_margin_px: margin,
+        frame_size,
+    };
+    Ok((setup, score))
+}
+
+/// Nucleus diameter (px) and frame size of a synthetic truth.
+type SyntheticFacts = (Option<f64>, Option<(usize, usize)>);
+
+/// Diameter and frame size from a synthetic truth folder's `scenario.json`, if there is one.
+fn synthetic_facts(truth: &Path) -> Result<SyntheticFacts> {
+    let path = truth.join("scenario.json");
+    if !truth.is_dir() || !path.exists() {
+        return Ok((None, None));
+    }
+    let text = std::fs::read_to_string(&path).map_err(|e| Error::input(&path, e.to_string()))?;
+    let v: serde_json::Value =
+        serde_json::from_str(&text).map_err(|e| Error::input(&path, format!("not valid JSON: {e}")))?;
+    let s = &v["synth"];
+    let size = s["width"].as_u64().zip(s["height"].as_u64());
+    Ok((s["diameter_px"].as_f64(), size.map(|(w, h)| (w as usize, h as usize))))
+}
+
+fn half_neighbour_distance(points: &[TrackPoint]) -> f64 {
+    let mut frames: std::collections::BTreeMap<usize, Vec<[f64; 2]>> = Default::default();
+    for p in points {
+        frames.entry(p.frame).or_default().push([p.x, p.y]);
+    }
+    let mut d: Vec<f64> = frames
+        .values()
+        .flat_map(|f| nearest_neighbour_distances(f).into_iter().flatten())
+        .collect();
+    median(&mut d).map(|m| m / 2.0).unwrap_or(f64::NAN)
+}
+
+/// Points at least `margin` px inside the frame (all points when the size is unknown).
+fn inside(points: Vec<TrackPoint>, margin: f64, size: Option<(usize, usize)>) -> Vec<TrackPoint> {
+    let Some((w, h)) = size else { return points };
+    let (w, h) = (w as f64, h as f64);
+    points
+        .into_iter()
+        .filter(|q| q.x >= margin && q.y >= margin && q.x <= w - 1.0 - margin && q.y <= h - 1.0 - margin)
+        .collect()
+}
