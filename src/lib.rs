@@ -9,8 +9,9 @@
 //! | [`preprocess`] | smoothing and background subtraction |
 //! | [`segment`] | thresholds, distance transform, seeds, seeded watershed, object measurements |
 //! | [`synth`] | synthetic recordings with ground truth (our own scenarios) |
-//! | [`score`] | accuracy of detections against ground truth |
-//! | [`render`] | drawing overlays (the preview PNG) |
+//! | [`link`] | frame-to-frame assignment, Kalman prediction, gap closing, divisions |
+//! | [`score`] | accuracy of detections and tracks against ground truth (TRA/DET, MOTA, divisions) |
+//! | [`render`] | drawing overlays (the preview PNG, the QC movie) |
 //! | [`tracks`] | the `Detection` type and its CSV form |
 //! | [`pipeline`] | streaming orchestration over a whole recording, progress, run records |
 //! | [`params`] | every tunable parameter with its default, unit and valid range |

@@ -165,14 +165,7 @@ fn bad_input_gives_one_line_exit_2_and_no_outputs() {
 fn outputs_pass_independent_python_readers() {
     // tifffile, numpy, scikit-image and the csv/json modules read what Caravan wrote and
     // recompute the measurements; CI provides CARAVAN_PYTHON (a venv with those packages).
-    let Ok(python) = std::env::var("CARAVAN_PYTHON") else {
-        assert!(
-            std::env::var("CI").is_err(),
-            "CI must set CARAVAN_PYTHON for the independent readers"
-        );
-        eprintln!("CARAVAN_PYTHON not set: independent-reader check skipped outside CI");
-        return;
-    };
+    let Some(python) = ci_python() else { return };
     let dir = tempfile::tempdir().unwrap();
     let rec = synth(dir.path());
     let seg = dir.path().join("seg");
@@ -182,21 +175,14 @@ fn outputs_pass_independent_python_readers() {
         &["preview", &rec, "--frame", "1", "-o", png.to_str().unwrap()],
         "2",
     ));
-    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/python/check_outputs.py");
-    let out = Command::new(python)
-        .args([
-            script,
+    run_python(
+        &python,
+        "check_outputs.py",
+        &[
             dir.path().join("syn").to_str().unwrap(),
             seg.to_str().unwrap(),
             png.to_str().unwrap(),
-        ])
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}\n{}",
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
+        ],
     );
 }
 
@@ -264,5 +250,94 @@ fn an_earlier_run_is_kept_unless_forced() {
     assert!(
         out.join("tracks.csv").exists() && !out.join("qc_movie.gif").exists(),
         "no stale movie from the earlier run"
+    );
+}
+
+/// The Python of CI's virtual environment, or `None` outside CI (where the check is skipped).
+fn ci_python() -> Option<String> {
+    match std::env::var("CARAVAN_PYTHON") {
+        Ok(p) => Some(p),
+        Err(_) => {
+            assert!(std::env::var("CI").is_err(), "CI must set CARAVAN_PYTHON");
+            eprintln!("CARAVAN_PYTHON not set: independent-reader check skipped outside CI");
+            None
+        }
+    }
+}
+
+/// Runs one of tests/python/ and fails with its output unless it succeeds.
+fn run_python(python: &str, script: &str, args: &[&str]) {
+    let path = format!("{}/tests/python/{script}", env!("CARGO_MANIFEST_DIR"));
+    let out = Command::new(python).arg(path).args(args).output().unwrap();
+    assert!(
+        out.status.success(),
+        "{}\n{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+#[test]
+fn score_writes_json_that_an_independent_reader_confirms() {
+    // A dividing dish, tracked and scored through the command line; then scipy's
+    // linear_sum_assignment re-derives the detection counts, and the published AOGM and
+    // CLEAR-MOT formulas re-derive TRA, DET and MOTA from the written counts.
+    let dir = tempfile::tempdir().unwrap();
+    let syn = dir.path().join("div");
+    let run = dir.path().join("run");
+    let (syn_s, run_s) = (syn.to_str().unwrap(), run.to_str().unwrap());
+    ok(&caravan(
+        &[
+            "synth",
+            "-o",
+            syn_s,
+            "--size",
+            "192x192",
+            "--frames",
+            "30",
+            "--divisions",
+            "0.02",
+            "--seed",
+            "9",
+        ],
+        "1",
+    ));
+    let rec = syn.join("recording.tif");
+    ok(&caravan(
+        &[
+            "track",
+            rec.to_str().unwrap(),
+            "-o",
+            run_s,
+            "--diameter",
+            "14px",
+            "--no-movie",
+        ],
+        "2",
+    ));
+    let printed = ok(&caravan(&["score", "--truth", syn_s, "--tracks", run_s], "1"));
+    assert!(printed.contains("TRA") && printed.contains("MOTA"), "{printed}");
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(run.join("score.json")).unwrap()).unwrap();
+    assert!(json["score"]["tra"].as_f64().unwrap() > 0.9);
+    let bad = caravan(
+        &[
+            "score",
+            "--truth",
+            dir.path().join("nothing").to_str().unwrap(),
+            "--tracks",
+            run_s,
+        ],
+        "1",
+    );
+    assert_eq!(bad.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&bad.stderr);
+    assert_eq!(stderr.trim().lines().count(), 1, "{stderr}");
+    assert!(stderr.contains("nothing"), "{stderr}");
+    let Some(python) = ci_python() else { return };
+    run_python(
+        &python,
+        "check_score.py",
+        &[syn_s, run_s, run.join("score.json").to_str().unwrap()],
     );
 }

@@ -7,14 +7,14 @@
 //! on both sides (a nucleus cut by the border has no well-defined centre), so that the link
 //! scores measure linking rather than the segmentation of slivers.
 
+mod common;
+
 use caravan::link::online::{LinkParams, Prediction};
 use caravan::link::{hungarian_min_cost, scale_cost};
-use caravan::params::SegmentParams;
-use caravan::pipeline::{run_recording, DiameterSource, SegmentOutputs};
 use caravan::score::{link_scores, LinkScores};
-use caravan::stack::{OpenOptions, Stack};
-use caravan::synth::{write_recording, Rng, Scenario, SynthParams};
+use caravan::synth::{Rng, Scenario, SynthParams};
 use caravan::tracks::{read_track_points, TrackPoint};
+use common::track_synthetic;
 use pathfinding::prelude::Matrix;
 
 fn assign(cost: &[Vec<f64>]) -> f64 {
@@ -83,27 +83,9 @@ fn scaled_hungarian_matches_scipy() {
 }
 
 fn track_scenario(p: &SynthParams, prediction: Prediction) -> LinkScores {
-    let dir = tempfile::tempdir().unwrap();
-    let synth = write_recording(&dir.path().join("syn"), p).unwrap();
-    let mut stack = Stack::open(&synth.recording, &OpenOptions::default()).unwrap();
     let mut link = LinkParams::for_diameter(p.diameter_px);
     link.prediction = prediction;
-    let outputs = SegmentOutputs {
-        labels: false,
-        linking: Some(link),
-        movie: None,
-        replace: false,
-    };
-    let out = dir.path().join("run");
-    run_recording(
-        &mut stack,
-        DiameterSource::Given(p.diameter_px),
-        &SegmentParams::for_diameter(p.diameter_px),
-        &out,
-        &outputs,
-        "test",
-    )
-    .unwrap();
+    let scene = track_synthetic(p, link);
     let margin = p.diameter_px / 2.0;
     let (w, h) = (p.width as f64, p.height as f64);
     let inside = |q: &TrackPoint| q.x >= margin && q.y >= margin && q.x <= w - 1.0 - margin && q.y <= h - 1.0 - margin;
@@ -114,8 +96,8 @@ fn track_scenario(p: &SynthParams, prediction: Prediction) -> LinkScores {
             .filter(inside)
             .collect()
     };
-    let truth = read(&synth.truth_csv);
-    let found = read(&out.join("tracks.csv"));
+    let truth = read(&scene.syn.join("truth.csv"));
+    let found = read(&scene.run.join("tracks.csv"));
     let s = link_scores(&truth, &found, p.diameter_px / 2.0);
     eprintln!(
         "{:?} prediction {prediction:?}: precision {:.4} recall {:.4} {s:?}",

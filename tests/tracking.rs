@@ -7,37 +7,19 @@
 //! (common practice for centroid matching), points within half a diameter of the border left
 //! out on both sides.
 
+mod common;
+
 use caravan::link::online::{Divisions, LinkParams, Prediction};
-use caravan::params::SegmentParams;
-use caravan::pipeline::{median, run_recording, DiameterSource, SegmentOutputs};
+use caravan::pipeline::median;
 use caravan::score::files::{read_points, score_files};
 use caravan::score::tracking::TrackingScore;
-use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{write_recording, Scenario, SynthParams};
+use common::track_synthetic;
 
 /// Synthesizes `p`, tracks it with `link`, and scores the tracks.
 fn track_and_score(p: &SynthParams, link: LinkParams) -> TrackingScore {
-    let dir = tempfile::tempdir().unwrap();
-    let syn = dir.path().join("syn");
-    let synth = write_recording(&syn, p).unwrap();
-    let mut stack = Stack::open(&synth.recording, &OpenOptions::default()).unwrap();
-    let outputs = SegmentOutputs {
-        labels: false,
-        linking: Some(link),
-        movie: None,
-        replace: false,
-    };
-    let run = dir.path().join("run");
-    run_recording(
-        &mut stack,
-        DiameterSource::Given(p.diameter_px),
-        &SegmentParams::for_diameter(p.diameter_px),
-        &run,
-        &outputs,
-        "test",
-    )
-    .unwrap();
-    let (_, score) = score_files(&syn, &run, None, None).unwrap();
+    let scene = track_synthetic(p, link);
+    let (_, score) = score_files(&scene.syn, &scene.run, None, None).unwrap();
     eprintln!(
         "{:?} drift {} divisions {} dropouts {} | prediction {:?} max gap {} divisions {:?}: TRA {:.4} DET {:.4} MOTA {:.4} links P {:.4} R {:.4} switches {} MT {:.3} divisions {}/{} spurious {}",
         p.scenario, p.drift_px_per_frame, p.division_rate, p.dropout_rate,

@@ -5,13 +5,12 @@ use caravan::link::online::LinkParams;
 use caravan::params::SegmentParams;
 use caravan::pipeline::{median, resolve_diameter, run_recording, DiameterSource, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
-use caravan::score::{link_scores, match_points};
+use caravan::score::files::score_files;
 use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{write_recording, Scenario, SynthParams};
-use caravan::tracks::{read_track_points, TrackPoint};
-use caravan::{Error, Result};
+use caravan::Result;
 use clap::Args;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 #[derive(Args)]
 pub struct DemoArgs {
@@ -23,7 +22,9 @@ pub struct DemoArgs {
 pub fn run(args: DemoArgs) -> Result<()> {
     let mut p = SynthParams::new(Scenario::Stripe, 512, 384, 30);
     p.seed = 2026;
-    println!("Synthesizing a stripe of migrating nuclei (our own invented scenario) ...");
+    p.division_rate = 0.005;
+    p.dropout_rate = 0.01;
+    println!("Synthesizing a stripe of migrating, occasionally dividing nuclei (our own invented scenario) ...");
     let synth = write_recording(&args.output.join("synthetic"), &p)?;
     let mut stack = Stack::open(&synth.recording, &OpenOptions::default())?;
     let diameter = resolve_diameter(&mut stack, None)?;
@@ -46,19 +47,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         &outputs,
         "demo",
     )?;
-    let truth = read_points(&synth.truth_csv)?;
-    let found = read_points(&run_dir.join("tracks.csv"))?;
-    let mut detection = caravan::score::MatchCounts::default();
-    for t in 0..p.frames {
-        let pick = |v: &[TrackPoint]| {
-            v.iter()
-                .filter(|q| q.frame == t)
-                .map(|q| (q.x, q.y))
-                .collect::<Vec<_>>()
-        };
-        detection.add(match_points(&pick(&truth), &pick(&found), d / 2.0));
-    }
-    let links = link_scores(&truth, &found, d / 2.0);
+    let (_, score) = score_files(&args.output.join("synthetic"), &run_dir, None, None)?;
     let cal = stack.info().calibration;
     let mut speeds = of_long_tracks(&run.tracks, |t| t.mean_speed_px_per_frame);
     let mut ratios = of_long_tracks(&run.tracks, |t| t.directionality_ratio);
@@ -74,13 +63,11 @@ pub fn run(args: DemoArgs) -> Result<()> {
         median(&mut speeds).unwrap_or(f64::NAN) * to_um_min,
         median(&mut ratios).unwrap_or(f64::NAN)
     );
-    println!(
-        "against the truth: detection F1 {:.3}; link precision {:.3}, recall {:.3}, identity switches {}",
-        detection.f1(),
-        links.precision(),
-        links.recall(),
-        links.identity_switches
-    );
+    if let Some(r) = &run.resolution {
+        println!("{} gaps closed, {} divisions found", r.gaps_closed, r.divisions.len());
+    }
+    println!("against the truth (caravan score):");
+    super::score::print_score(&score);
     for w in &run.warnings {
         println!("warning: {w}");
     }
@@ -91,11 +78,6 @@ pub fn run(args: DemoArgs) -> Result<()> {
     println!("outputs:\n  recording   {}\n  truth       {}\n  tracks      {}\n  per track   {}\n  detections  {}\n  labels      {}\n  run record  {}\n  QC movie    {}\n  QC sheet    {}", synth.recording.display(), synth.truth_csv.display(), show("tracks.csv"), show("per_track.csv"), show("detections.csv"), show("labels.tif"), show("run.json"), show("qc_movie.gif"), show("qc_sheet.png"));
     println!("Research software: statistics are only as good as the segmentation they rest on.");
     Ok(())
-}
-
-fn read_points(path: &Path) -> Result<Vec<TrackPoint>> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::input(path, e.to_string()))?;
-    read_track_points(&text).map_err(|e| Error::input(path, e))
 }
 
 /// A per-track value over tracks of 10 or more points (common practice: shorter tracks inflate

@@ -38,6 +38,10 @@ pub struct DivisionRules {
     /// A nucleus does not double in area within a few frames before dividing; an object that
     /// does is more likely two nuclei segmented as one, whose separation is not a division.
     pub mother_growth_ratio: f64,
+    /// The mother's area over the median area of all detections in her frame: at most. Two
+    /// touching nuclei segmented as one for a long time pass the growth rule; they stand out
+    /// as an object about twice the typical nucleus.
+    pub mother_to_typical_area: f64,
     /// The mother must have been tracked for at least this many points: with less history her
     /// size cannot be judged (an object that appears and splits at once is most often two
     /// nuclei segmented as one).
@@ -54,6 +58,7 @@ impl Default for DivisionRules {
             sister_area_ratio: 2.0,
             intensity_ratio: (0.6, 1.6),
             mother_growth_ratio: 1.5,
+            mother_to_typical_area: 1.6,
             min_mother_points: 3,
             min_daughter_points: 3,
         }
@@ -142,6 +147,7 @@ fn find_candidates(
                 .push(first);
         }
     }
+    let typical_area = median_area_by_frame(points);
     let mut out = Vec::new();
     let max2 = params.max_step_px * params.max_step_px;
     for pts in tracks.values() {
@@ -160,6 +166,9 @@ fn find_candidates(
             }
             let predicted = predicted_after(points, &pts[..=pos], params);
             let mother = MotherFigures::of(points, &pts[..=pos]);
+            if mother.area > rules.mother_to_typical_area * typical_area[&f] {
+                continue;
+            }
             for (i, &a) in daughters.iter().enumerate() {
                 for &b in &daughters[i + 1..] {
                     // A mother whose track goes on must have it go on as one of the daughters.
@@ -183,6 +192,18 @@ fn find_candidates(
         }
     }
     out
+}
+
+/// The median detection area of each frame.
+fn median_area_by_frame(points: &[TrackedDetection]) -> BTreeMap<usize, f64> {
+    let mut areas: BTreeMap<usize, Vec<f64>> = BTreeMap::new();
+    for p in points {
+        areas.entry(p.detection.frame).or_default().push(p.detection.area_px);
+    }
+    areas
+        .into_iter()
+        .map(|(f, mut v)| (f, crate::pipeline::median(&mut v).unwrap_or(0.0)))
+        .collect()
 }
 
 /// Area and total intensity of a mother: medians over her last three points; and the median

@@ -1,0 +1,84 @@
+"""Independent check of `caravan score` and of division records (run by tests/cli.rs in CI).
+
+usage: check_score.py SYNTH_DIR RUN_DIR SCORE_JSON
+
+- Detection counts: per frame, truth.csv and tracks.csv points (border margin and matching
+  radius as score.json's setup says) matched one to one by scipy.optimize.linear_sum_assignment
+  (maximum matches within the radius, then minimum total distance); TP/FP/FN must agree.
+- TRA and DET recomputed from the AOGM counts with the published weights (Matula et al. 2015:
+  NS 5, FN 10, FP 1, ED 1, EA 1.5, EC 1), MOTA from the CLEAR-MOT counts (Bernardin &
+  Stiefelhagen 2008).
+- run.json divisions agree with tracks.csv: each daughter's parent_id is the mother, the
+  mother's last frame is the event frame, each daughter starts one frame later.
+"""
+import csv
+import json
+import sys
+from collections import defaultdict
+
+import numpy as np
+from scipy.optimize import linear_sum_assignment
+
+syn, run, score_path = sys.argv[1:4]
+doc = json.load(open(score_path))
+setup, s = doc["setup"], doc["score"]
+r, m = setup["match_radius_px"], setup["border_margin_px"]
+W, H = setup["frame_size"]
+
+
+def points(path):
+    out = defaultdict(list)
+    with open(path, newline="") as f:
+        for row in csv.DictReader(f):
+            x, y = float(row["x"]), float(row["y"])
+            if m <= x <= W - 1 - m and m <= y <= H - 1 - m:
+                out[int(row["frame"])].append((x, y))
+    return out
+
+
+truth, found = points(f"{syn}/truth.csv"), points(f"{run}/tracks.csv")
+tp = fp = fn = 0
+for t in set(truth) | set(found):
+    a, b = np.array(truth.get(t, [])).reshape(-1, 2), np.array(found.get(t, [])).reshape(-1, 2)
+    k = 0
+    if len(a) and len(b):
+        d = np.hypot(a[:, None, 0] - b[None, :, 0], a[:, None, 1] - b[None, :, 1])
+        big = 1e6
+        cost = np.where(d <= r, d, big)
+        rows, cols = linear_sum_assignment(cost)
+        k = int((cost[rows, cols] < big).sum())
+    tp += k
+    fp += len(b) - k
+    fn += len(a) - k
+# Reference points covered by a merged detection count as splits, not misses, in Caravan's
+# AOGM; the plain one-to-one matching counts them as misses.
+det = s["detection"]
+assert (tp, fp) == (det["true_positives"], det["false_positives"]), ((tp, fp, fn), det)
+assert fn == det["false_negatives"] + s["aogm_counts"]["splits"], (fn, det, s["aogm_counts"])
+
+c = s["aogm_counts"]
+w = dict(splits=5, false_negatives=10, false_positives=1, edges_to_delete=1, edges_to_add=1.5, edges_to_change=1)
+aogm = sum(w[k] * c[k] for k in w)
+aogm0 = 10 * c["reference_vertices"] + 1.5 * c["reference_edges"]
+assert abs(aogm - s["aogm"]) < 1e-9 and abs((1 - min(aogm, aogm0) / aogm0) - s["tra"]) < 1e-9
+aogmd = 5 * c["splits"] + 10 * c["false_negatives"] + c["false_positives"]
+assert abs((1 - min(aogmd, 10 * c["reference_vertices"]) / (10 * c["reference_vertices"])) - s["det"]) < 1e-9
+mot = s["clear_mot"]
+errors = mot["false_negatives"] + mot["false_positives"] + mot["identity_switches"]
+assert abs(1 - errors / mot["reference_points"] - mot["mota"]) < 1e-9
+
+run_record = json.load(open(f"{run}/run.json"))
+tracks = defaultdict(list)
+with open(f"{run}/tracks.csv", newline="") as f:
+    for row in csv.DictReader(f):
+        tracks[int(row["track_id"])].append((int(row["frame"]), row["parent_id"]))
+events = run_record["divisions"]
+assert isinstance(run_record["gaps_closed"], int) and run_record["gaps_closed"] >= 0
+for e in events:
+    assert max(f for f, _ in tracks[e["mother"]]) == e["frame"], e
+    for d in e["daughters"]:
+        assert min(f for f, _ in tracks[d]) == e["frame"] + 1, e
+        assert all(p == str(e["mother"]) for _, p in tracks[d]), e
+with_parent = {t for t, pts in tracks.items() if pts[0][1]}
+assert with_parent == {d for e in events for d in e["daughters"]}
+print(f"score checked: {tp} matches, TRA {s['tra']:.4f}; {len(events)} divisions consistent")
