@@ -2,6 +2,12 @@
 //! displacement, directionality ratio, mean speed, mean direction); population statistics
 //! come later. No drawing here.
 
+pub mod circular;
+pub mod collective;
+pub mod motility;
+pub mod msd;
+pub mod stats;
+
 use crate::stack::Calibration;
 use serde::Serialize;
 use std::io::{self, Write};

@@ -1,0 +1,151 @@
+//! Collective measures per frame: the order parameter of velocities, nearest-neighbour
+//! distance and local density, and the correlation of neighbours' velocity fluctuations
+//! against their distance.
+
+use kiddo::{ImmutableKdTree, SquaredEuclidean};
+use serde::Serialize;
+
+/// Order parameter φ = |Σ v̂ᵢ| / N of unit velocity vectors (zero vectors left out); `None`
+/// without any moving object.
+///
+/// # Method
+/// T. Vicsek, A. Czirók, E. Ben-Jacob, I. Cohen & O. Shochet (1995), "Novel type of phase
+/// transition in a system of self-driven particles", Phys. Rev. Lett. 75(6):1226–1229,
+/// doi:10.1103/PhysRevLett.75.1226. 1 for perfect alignment, about 1/√N for random headings.
+pub fn order_parameter(velocities: &[[f64; 2]]) -> Option<f64> {
+    let units: Vec<[f64; 2]> = velocities.iter().filter_map(|&v| unit(v)).collect();
+    if units.is_empty() {
+        return None;
+    }
+    let (sx, sy) = units.iter().fold((0.0, 0.0), |(a, b), u| (a + u[0], b + u[1]));
+    Some(sx.hypot(sy) / units.len() as f64)
+}
+
+fn unit(v: [f64; 2]) -> Option<[f64; 2]> {
+    let n = v[0].hypot(v[1]);
+    (n > 0.0).then(|| [v[0] / n, v[1] / n])
+}
+
+/// Accumulated cosines of pairs of directions, binned by distance.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PairCorrelation {
+    /// Upper edge of each distance bin (the first bin starts at 0).
+    pub bin_edges: Vec<f64>,
+    /// Sum of cosines per bin.
+    pub cosine_sum: Vec<f64>,
+    /// Pairs per bin.
+    pub pairs: Vec<usize>,
+}
+
+impl PairCorrelation {
+    /// Empty bins with the given upper edges (ascending).
+    pub fn new(bin_edges: Vec<f64>) -> Self {
+        let n = bin_edges.len();
+        PairCorrelation {
+            bin_edges,
+            cosine_sum: vec![0.0; n],
+            pairs: vec![0; n],
+        }
+    }
+
+    /// Adds every pair of one frame within the last edge: the cosine between their direction
+    /// vectors (vectors of zero length are left out).
+    pub fn add_frame(&mut self, positions: &[[f64; 2]], vectors: &[[f64; 2]]) {
+        let Some(&reach) = self.bin_edges.last() else { return };
+        for i in 0..positions.len() {
+            let Some(ui) = unit(vectors[i]) else { continue };
+            for j in i + 1..positions.len() {
+                let Some(uj) = unit(vectors[j]) else { continue };
+                let d = (positions[i][0] - positions[j][0]).hypot(positions[i][1] - positions[j][1]);
+                if d > reach {
+                    continue;
+                }
+                let bin = self.bin_edges.iter().position(|&e| d <= e).expect("within the last edge");
+                self.cosine_sum[bin] += ui[0] * uj[0] + ui[1] * uj[1];
+                self.pairs[bin] += 1;
+            }
+        }
+    }
+
+    /// Mean cosine per bin (`None` for empty bins).
+    pub fn means(&self) -> Vec<Option<f64>> {
+        self.cosine_sum
+            .iter()
+            .zip(&self.pairs)
+            .map(|(&s, &n)| (n > 0).then(|| s / n as f64))
+            .collect()
+    }
+}
+
+/// Velocity fluctuations δvᵢ = vᵢ − ⟨v⟩ of one frame, so that a common drift does not make
+/// every pair look correlated.
+///
+/// # Method
+/// A. Cavagna, A. Cimarelli, I. Giardina, G. Parisi, R. Santagati, F. Stefanini & M. Viale
+/// (2010), "Scale-free correlations in starling flocks", PNAS 107(26):11865–11870,
+/// doi:10.1073/pnas.1005766107.
+pub fn fluctuations(velocities: &[[f64; 2]]) -> Vec<[f64; 2]> {
+    let n = velocities.len().max(1) as f64;
+    let (mx, my) = velocities.iter().fold((0.0, 0.0), |(a, b), v| (a + v[0], b + v[1]));
+    velocities.iter().map(|v| [v[0] - mx / n, v[1] - my / n]).collect()
+}
+
+/// Distance to the nearest other point and the local density of each point, estimated as
+/// `k / (π r_k²)` with `r_k` the distance to the k-th nearest neighbour; `None` where there
+/// are too few points.
+///
+/// # Method
+/// k-nearest-neighbour density: D. O. Loftsgaarden & C. P. Quesenberry (1965), "A
+/// nonparametric estimate of a multivariate density function", Ann. Math. Stat.
+/// 36(3):1049–1051, doi:10.1214/aoms/1177700079.
+pub fn neighbour_distance_and_density(points: &[[f64; 2]], k: usize) -> Vec<(Option<f64>, Option<f64>)> {
+    if points.len() < 2 {
+        return vec![(None, None); points.len()];
+    }
+    let tree: ImmutableKdTree<f64, 2> = ImmutableKdTree::new_from_slice(points).expect("finite points");
+    let want = std::num::NonZero::new(k + 1).expect("non-zero");
+    points
+        .iter()
+        .map(|p| {
+            let hits = tree.query(p).nearest_n::<SquaredEuclidean<f64>>(want).execute();
+            let nearest = hits.get(1).map(|h| h.distance.sqrt());
+            let density = hits
+                .get(k)
+                .map(|h| h.distance)
+                .filter(|&r2| r2 > 0.0)
+                .map(|r2| k as f64 / (std::f64::consts::PI * r2));
+            (nearest, density)
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn methods_order_parameter_and_neighbour_check() {
+        // Source: METHODS.md §9: velocities (1,0),(0.8,0.6),(0.6,−0.8),(−1,0): φ = 0.353553,
+        // first three 0.802773; positions (0,0),(3,0),(0,4),(20,20): pairs within 5 have
+        // cosines 0.8, 0.6, 0, mean 0.466667.
+        let v = [[1.0, 0.0], [0.8, 0.6], [0.6, -0.8], [-1.0, 0.0]];
+        assert!((order_parameter(&v).unwrap() - 0.353553).abs() < 1e-6);
+        assert!((order_parameter(&v[..3]).unwrap() - 0.802773).abs() < 1e-6);
+        let mut c = PairCorrelation::new(vec![5.0]);
+        c.add_frame(&[[0.0, 0.0], [3.0, 0.0], [0.0, 4.0], [20.0, 20.0]], &v);
+        assert_eq!(c.pairs, vec![3]);
+        assert!((c.means()[0].unwrap() - 0.466667).abs() < 1e-6);
+    }
+
+    #[test]
+    fn fluctuations_remove_common_drift_and_density_of_a_grid() {
+        // Hand-derived: two velocities (2,0) and (4,0) have mean (3,0), fluctuations (∓1,0).
+        assert_eq!(fluctuations(&[[2.0, 0.0], [4.0, 0.0]]), vec![[-1.0, 0.0], [1.0, 0.0]]);
+        // A unit square grid has density 1 per unit area (geometry): the 4th neighbour of an
+        // interior point is at distance 1 → 4/π ≈ 1.27; its nearest at 1.
+        let grid: Vec<[f64; 2]> = (0..7).flat_map(|i| (0..7).map(move |j| [i as f64, j as f64])).collect();
+        let centre = neighbour_distance_and_density(&grid, 4)[3 * 7 + 3];
+        assert_eq!(centre.0, Some(1.0));
+        assert!((centre.1.unwrap() - 4.0 / std::f64::consts::PI).abs() < 1e-12);
+    }
+}

@@ -1,0 +1,171 @@
+//! Per-track motility measures in analysis units (µm and minutes when calibrated, else pixels
+//! and frames): duration, path, net displacement, speeds, directionality, direction, forward
+//! migration index and turning angles.
+
+use super::msd::Path;
+use serde::Serialize;
+
+/// One track's motility.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Motility {
+    /// Track id.
+    pub track_id: u32,
+    /// Points.
+    pub points: usize,
+    /// First frame.
+    pub first_frame: usize,
+    /// Time from first to last point.
+    pub duration: f64,
+    /// Sum of step lengths.
+    pub path_length: f64,
+    /// Distance from first to last point.
+    pub net_displacement: f64,
+    /// Path length / duration.
+    pub mean_speed: Option<f64>,
+    /// Net displacement / path length.
+    pub directionality_ratio: Option<f64>,
+    /// The ratio over the first `fixed_elapsed_frames` frames only (comparable between tracks
+    /// of different lengths); `None` for shorter tracks.
+    pub directionality_at_fixed_time: Option<f64>,
+    /// Direction of the net displacement, degrees from +x toward +y.
+    pub mean_direction_deg: Option<f64>,
+    /// Forward migration index: displacement along the axis / path length.
+    pub forward_migration_index: Option<f64>,
+    /// Mean absolute turning angle between consecutive steps, degrees.
+    pub mean_abs_turning_deg: Option<f64>,
+}
+
+/// One step between consecutive frames of a track.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Step {
+    /// Track id.
+    pub track_id: u32,
+    /// Frame the step starts at.
+    pub frame: usize,
+    /// Instantaneous speed (step length / frame interval).
+    pub speed: f64,
+    /// Heading, degrees from +x toward +y.
+    pub heading_deg: f64,
+    /// Turning angle from the previous step, degrees in (−180, 180] (`None` for the first).
+    pub turning_deg: Option<f64>,
+}
+
+/// Per-track measures of `path` (frames ascending) with frames `frame_interval` apart.
+///
+/// # Method
+/// Directionality ratio (straightness), speeds and turning angles as in R. Gorelik &
+/// A. Gautreau (2014), Nat. Protoc. 9(8):1931–1943, doi:10.1038/nprot.2014.131; the forward
+/// migration index as the net displacement along an axis over the path length (common practice
+/// in chemotaxis assays). The ratio falls with track duration, so the ratio at a fixed elapsed
+/// time is the one to compare.
+pub fn motility(track_id: u32, path: &Path, frame_interval: f64, axis_deg: f64, fixed_elapsed_frames: usize) -> Motility {
+    let (first, last) = (path[0], path[path.len() - 1]);
+    let length = path_length(path);
+    let (dx, dy) = (last.1 - first.1, last.2 - first.2);
+    let net = dx.hypot(dy);
+    let duration = (last.0 - first.0) as f64 * frame_interval;
+    let axis = axis_deg.to_radians();
+    let turns: Vec<f64> = steps(track_id, path, frame_interval)
+        .iter()
+        .filter_map(|s| s.turning_deg)
+        .map(f64::abs)
+        .collect();
+    let early: Vec<(usize, f64, f64)> = path.iter().copied().filter(|p| p.0 <= first.0 + fixed_elapsed_frames).collect();
+    let reaches = path.iter().any(|p| p.0 == first.0 + fixed_elapsed_frames);
+    Motility {
+        track_id,
+        points: path.len(),
+        first_frame: first.0,
+        duration,
+        path_length: length,
+        net_displacement: net,
+        mean_speed: (duration > 0.0).then(|| length / duration),
+        directionality_ratio: (length > 0.0).then(|| net / length),
+        directionality_at_fixed_time: reaches.then(|| straightness(&early)).flatten(),
+        mean_direction_deg: (net > 0.0).then(|| dy.atan2(dx).to_degrees()),
+        forward_migration_index: (length > 0.0).then(|| (dx * axis.cos() + dy * axis.sin()) / length),
+        mean_abs_turning_deg: (!turns.is_empty()).then(|| turns.iter().sum::<f64>() / turns.len() as f64),
+    }
+}
+
+fn path_length(path: &Path) -> f64 {
+    path.windows(2).map(|w| (w[1].1 - w[0].1).hypot(w[1].2 - w[0].2)).sum()
+}
+
+fn straightness(path: &Path) -> Option<f64> {
+    let length = path_length(path);
+    let (a, b) = (path[0], path[path.len() - 1]);
+    (length > 0.0).then(|| (b.1 - a.1).hypot(b.2 - a.2) / length)
+}
+
+/// Steps between consecutive frames (steps across a gap are left out, and the turning angle
+/// after a gap is undefined).
+pub fn steps(track_id: u32, path: &Path, frame_interval: f64) -> Vec<Step> {
+    let mut out: Vec<Step> = Vec::new();
+    for w in path.windows(2).filter(|w| w[1].0 == w[0].0 + 1) {
+        let (dx, dy) = (w[1].1 - w[0].1, w[1].2 - w[0].2);
+        let heading = dy.atan2(dx).to_degrees();
+        let turning = out
+            .last()
+            .filter(|prev| prev.frame + 1 == w[0].0 && (dx != 0.0 || dy != 0.0))
+            .map(|prev| wrap_degrees(heading - prev.heading_deg));
+        out.push(Step {
+            track_id,
+            frame: w[0].0,
+            speed: dx.hypot(dy) / frame_interval,
+            heading_deg: heading,
+            turning_deg: turning,
+        });
+    }
+    out
+}
+
+/// An angle in degrees wrapped to (−180, 180].
+fn wrap_degrees(a: f64) -> f64 {
+    let r = a.rem_euclid(360.0);
+    if r > 180.0 {
+        r - 360.0
+    } else {
+        r
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn methods_worked_track() {
+        // Source: METHODS.md §9 worked track (µm), Δt = 2 min: path 6.414214, net 5.385165,
+        // ratio 0.839567, mean speed 0.641421 µm/min, FMI_x 0.779519, FMI_y 0.311808, turning
+        // angles 45, 45, −90, 0.
+        let t: Vec<(usize, f64, f64)> = [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
+            .iter()
+            .enumerate()
+            .map(|(i, p)| (i, p.0, p.1))
+            .collect();
+        let m = motility(1, &t, 2.0, 0.0, 3);
+        assert!((m.path_length - 6.414214).abs() < 1e-6 && (m.net_displacement - 5.385165).abs() < 1e-6);
+        assert!((m.directionality_ratio.unwrap() - 0.839567).abs() < 1e-6);
+        assert!((m.mean_speed.unwrap() - 0.641421).abs() < 1e-6);
+        assert!((m.forward_migration_index.unwrap() - 0.779519).abs() < 1e-6);
+        let y = motility(1, &t, 2.0, 90.0, 3);
+        assert!((y.forward_migration_index.unwrap() - 0.311808).abs() < 1e-6);
+        let turns: Vec<f64> = steps(1, &t, 2.0).iter().filter_map(|s| s.turning_deg).collect();
+        let want = [45.0, 45.0, -90.0, 0.0];
+        assert!(turns.iter().zip(want).all(|(a, b)| (a - b).abs() < 1e-9), "{turns:?}");
+        // Over the first 3 frames: (0,0)→(2,2), path 1 + √2 + 1 (hand-derived).
+        let early = 8f64.sqrt() / (2.0 + 2f64.sqrt());
+        assert!((m.directionality_at_fixed_time.unwrap() - early).abs() < 1e-12);
+    }
+
+    #[test]
+    fn methods_zigzag_sampling_bias() {
+        // Source: METHODS.md §9: a zig-zag (i, ±0.5), i = 0..8, has directionality 0.707107
+        // sampled every frame and 1.0 every second frame.
+        let z: Vec<(usize, f64, f64)> = (0..=8).map(|i| (i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 })).collect();
+        assert!((motility(1, &z, 1.0, 0.0, 4).directionality_ratio.unwrap() - 0.707107).abs() < 1e-6);
+        let every2: Vec<(usize, f64, f64)> = z.iter().step_by(2).map(|p| (p.0 / 2, p.1, p.2)).collect();
+        assert!((motility(1, &every2, 2.0, 0.0, 2).directionality_ratio.unwrap() - 1.0).abs() < 1e-12);
+    }
+}
