@@ -60,7 +60,11 @@ impl PairCorrelation {
                 if d > reach {
                     continue;
                 }
-                let bin = self.bin_edges.iter().position(|&e| d <= e).expect("within the last edge");
+                let bin = self
+                    .bin_edges
+                    .iter()
+                    .position(|&e| d <= e)
+                    .expect("within the last edge");
                 self.cosine_sum[bin] += ui[0] * uj[0] + ui[1] * uj[1];
                 self.pairs[bin] += 1;
             }

@@ -6,7 +6,11 @@ pub mod circular;
 pub mod collective;
 pub mod motility;
 pub mod msd;
+pub mod outputs;
+pub mod population;
+pub mod run;
 pub mod stats;
+pub mod table;
 
 use crate::stack::Calibration;
 use serde::Serialize;

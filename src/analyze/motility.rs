@@ -58,7 +58,13 @@ pub struct Step {
 /// migration index as the net displacement along an axis over the path length (common practice
 /// in chemotaxis assays). The ratio falls with track duration, so the ratio at a fixed elapsed
 /// time is the one to compare.
-pub fn motility(track_id: u32, path: &Path, frame_interval: f64, axis_deg: f64, fixed_elapsed_frames: usize) -> Motility {
+pub fn motility(
+    track_id: u32,
+    path: &Path,
+    frame_interval: f64,
+    axis_deg: f64,
+    fixed_elapsed_frames: usize,
+) -> Motility {
     let (first, last) = (path[0], path[path.len() - 1]);
     let length = path_length(path);
     let (dx, dy) = (last.1 - first.1, last.2 - first.2);
@@ -70,7 +76,11 @@ pub fn motility(track_id: u32, path: &Path, frame_interval: f64, axis_deg: f64, 
         .filter_map(|s| s.turning_deg)
         .map(f64::abs)
         .collect();
-    let early: Vec<(usize, f64, f64)> = path.iter().copied().filter(|p| p.0 <= first.0 + fixed_elapsed_frames).collect();
+    let early: Vec<(usize, f64, f64)> = path
+        .iter()
+        .copied()
+        .filter(|p| p.0 <= first.0 + fixed_elapsed_frames)
+        .collect();
     let reaches = path.iter().any(|p| p.0 == first.0 + fixed_elapsed_frames);
     Motility {
         track_id,
@@ -162,9 +172,13 @@ mod tests {
     #[test]
     fn methods_zigzag_sampling_bias() {
         // Source: METHODS.md §9: a zig-zag (i, ±0.5), i = 0..8, has directionality 0.707107
-        // sampled every frame and 1.0 every second frame.
-        let z: Vec<(usize, f64, f64)> = (0..=8).map(|i| (i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 })).collect();
-        assert!((motility(1, &z, 1.0, 0.0, 4).directionality_ratio.unwrap() - 0.707107).abs() < 1e-6);
+        // (= 1/√2) sampled every frame and 1.0 every second frame.
+        let z: Vec<(usize, f64, f64)> = (0..=8)
+            .map(|i| (i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 }))
+            .collect();
+        assert!(
+            (motility(1, &z, 1.0, 0.0, 4).directionality_ratio.unwrap() - std::f64::consts::FRAC_1_SQRT_2).abs() < 1e-6
+        );
         let every2: Vec<(usize, f64, f64)> = z.iter().step_by(2).map(|p| (p.0 / 2, p.1, p.2)).collect();
         assert!((motility(1, &every2, 2.0, 0.0, 2).directionality_ratio.unwrap() - 1.0).abs() < 1e-12);
     }

@@ -52,7 +52,11 @@ pub fn msd(tracks: &[&Path], max_lag: usize, frame_interval: f64) -> Vec<MsdPoin
         .map(|(lag, &(sum, sum2, n))| {
             let nf = n as f64;
             let mean = sum / nf;
-            let var = if n > 1 { (sum2 - nf * mean * mean).max(0.0) / (nf - 1.0) } else { 0.0 };
+            let var = if n > 1 {
+                (sum2 - nf * mean * mean).max(0.0) / (nf - 1.0)
+            } else {
+                0.0
+            };
             MsdPoint {
                 lag_frames: lag,
                 lag: lag as f64 * frame_interval,
@@ -120,7 +124,10 @@ pub fn fit_furth(points: &[MsdPoint]) -> Option<FurthFit> {
             jtr,
         )?;
         // Steps in log space keep D and P positive.
-        let trial = [theta[0] * (step[0] / theta[0]).clamp(-5.0, 5.0).exp(), theta[1] * (step[1] / theta[1]).clamp(-5.0, 5.0).exp()];
+        let trial = [
+            theta[0] * (step[0] / theta[0]).clamp(-5.0, 5.0).exp(),
+            theta[1] * (step[1] / theta[1]).clamp(-5.0, 5.0).exp(),
+        ];
         let next = sse(trial);
         if next < current {
             let converged = (current - next) <= 1e-15 * current.max(1e-300);
@@ -206,7 +213,10 @@ fn linear_slope(xy: &[(f64, f64)]) -> Option<f64> {
         return None;
     }
     let n = xy.len() as f64;
-    let (mx, my) = (xy.iter().map(|p| p.0).sum::<f64>() / n, xy.iter().map(|p| p.1).sum::<f64>() / n);
+    let (mx, my) = (
+        xy.iter().map(|p| p.0).sum::<f64>() / n,
+        xy.iter().map(|p| p.1).sum::<f64>() / n,
+    );
     let sxx: f64 = xy.iter().map(|p| (p.0 - mx).powi(2)).sum();
     (sxx > 0.0).then(|| xy.iter().map(|p| (p.0 - mx) * (p.1 - my)).sum::<f64>() / sxx)
 }
@@ -237,7 +247,12 @@ pub fn autocorrelation(tracks: &[&Path], max_lag: usize, frame_interval: f64) ->
         let steps: HashMap<usize, (f64, f64)> = track
             .windows(2)
             .filter(|w| w[1].0 == w[0].0 + 1)
-            .map(|w| (w[0].0, ((w[1].1 - w[0].1) / frame_interval, (w[1].2 - w[0].2) / frame_interval)))
+            .map(|w| {
+                (
+                    w[0].0,
+                    ((w[1].1 - w[0].1) / frame_interval, (w[1].2 - w[0].2) / frame_interval),
+                )
+            })
             .collect();
         for (&f, &(vx, vy)) in &steps {
             for (lag, s) in sums.iter_mut().enumerate() {
@@ -295,7 +310,10 @@ mod tests {
         let vacf = [0.45, 0.25, 0.083333, 0.375, 0.5];
         let dacf = [1.0, 0.603553, 0.235702, 0.853553, 1.0];
         for (k, q) in a.iter().enumerate() {
-            assert!((q.velocity - vacf[k]).abs() < 1e-6 && (q.direction - dacf[k]).abs() < 1e-6, "{q:?}");
+            assert!(
+                (q.velocity - vacf[k]).abs() < 1e-6 && (q.direction - dacf[k]).abs() < 1e-6,
+                "{q:?}"
+            );
         }
     }
 
@@ -317,7 +335,10 @@ mod tests {
             })
             .collect();
         let f = fit_furth(&pts).unwrap();
-        assert!((f.diffusion - 2.0).abs() < 1e-6 && (f.persistence - 5.0).abs() < 1e-6, "{f:?}");
+        assert!(
+            (f.diffusion - 2.0).abs() < 1e-6 && (f.persistence - 5.0).abs() < 1e-6,
+            "{f:?}"
+        );
         assert!((f.speed.powi(2) - 0.8).abs() < 1e-6);
         assert!((anomalous_exponent(&pts[..5]).unwrap() - 1.853275).abs() < 1e-6);
         assert!((anomalous_exponent(&pts[10..]).unwrap() - 1.393237).abs() < 1e-6);

@@ -22,7 +22,8 @@ pub fn erfc(x: f64) -> f64 {
             + t * (0.37409196
                 + t * (0.09678418
                     + t * (-0.18628806
-                        + t * (0.27886807 + t * (-1.13520398 + t * (1.48851587 + t * (-0.82215223 + t * 0.17087277))))))));
+                        + t * (0.27886807
+                            + t * (-1.13520398 + t * (1.48851587 + t * (-0.82215223 + t * 0.17087277))))))));
     let r = t * poly.exp();
     if x >= 0.0 {
         r
@@ -108,8 +109,8 @@ fn exact_two_sided(n1: usize, n2: usize, u_max: f64) -> f64 {
     // counts[m][u]: arrangements of the first-sample ranks giving U = u, built by adding one
     // element of either sample at a time.
     let mut table = vec![vec![vec![0f64; max_u + 1]; n2 + 1]; n1 + 1];
-    for b in 0..=n2 {
-        table[0][b][0] = 1.0;
+    for row in table[0].iter_mut() {
+        row[0] = 1.0;
     }
     for a in 1..=n1 {
         table[a][0][0] = 1.0;
@@ -234,7 +235,11 @@ mod tests {
         let flat = |g: &[Vec<f64>]| g.concat();
         let pooled = mann_whitney(&flat(&ctrl), &flat(&kd)).unwrap();
         assert!((pooled.p - 0.037258).abs() < 1e-6, "{}", pooled.p);
-        let means = |g: &[Vec<f64>]| g.iter().map(|v| v.iter().sum::<f64>() / v.len() as f64).collect::<Vec<_>>();
+        let means = |g: &[Vec<f64>]| {
+            g.iter()
+                .map(|v| v.iter().sum::<f64>() / v.len() as f64)
+                .collect::<Vec<_>>()
+        };
         assert!((mann_whitney(&means(&ctrl), &means(&kd)).unwrap().p - 0.7).abs() < 1e-12);
         let boot = hierarchical_bootstrap(&ctrl, 20000, &mut Rng::new(1));
         let m = boot.iter().sum::<f64>() / boot.len() as f64;

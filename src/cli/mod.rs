@@ -1,6 +1,7 @@
 //! Argument parsing and the mapping of errors to one-line messages and exit codes.
 //! Exit codes: 0 done; 2 bad input or parameters; 3 an output could not be written.
 
+mod analyze;
 mod demo;
 mod inspect;
 mod preview;
@@ -39,6 +40,8 @@ enum Command {
     Track(track::TrackArgs),
     /// Write a synthetic recording with ground truth.
     Synth(synth::SynthArgs),
+    /// Migration statistics of a run or any tracks CSV: tables, summary.json, report.html.
+    Analyze(analyze::AnalyzeArgs),
     /// Compare tracks with ground truth: detection, TRA/DET, MOTA/MOTP, links, divisions.
     Score(score::ScoreArgs),
     /// Synthesize a recording, track it, and score the result against the truth.
@@ -55,6 +58,7 @@ pub fn run() -> i32 {
         Command::Track(a) => track::run(a),
         Command::Synth(a) => synth::run(a),
         Command::Score(a) => score::run(a),
+        Command::Analyze(a) => analyze::run(a),
         Command::Demo(a) => demo::run(a),
     };
     match result {

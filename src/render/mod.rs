@@ -3,6 +3,8 @@
 
 mod font;
 pub mod movie;
+pub mod plots;
 mod preview;
+pub mod report;
 
 pub use preview::{caption, is_edge, outline_preview, stretch_to_u8, DisplayRange, PALETTE};

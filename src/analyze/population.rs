@@ -1,0 +1,196 @@
+//! The whole analysis of one set of tracks: per-track motility, population MSD and its fits,
+//! autocorrelations, circular statistics of directions, and collective measures per frame.
+
+use super::circular::{circular_summary, v_test, CircularSummary, VTest};
+use super::collective::{fluctuations, neighbour_distance_and_density, order_parameter, PairCorrelation};
+use super::motility::{motility, steps, Motility, Step};
+use super::msd::{anomalous_exponent, autocorrelation, fit_furth, msd, AutocorrelationPoint, FurthFit, MsdPoint, Path};
+use super::table::{Track, Units};
+use crate::pipeline::median;
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// Choices of the analysis.
+#[derive(Debug, Clone, Serialize)]
+pub struct AnalysisOptions {
+    /// Direction of interest for the forward migration index and the V-test, degrees from +x
+    /// toward +y.
+    pub axis_deg: f64,
+    /// Elapsed frames for the directionality ratio at a fixed time.
+    pub fixed_elapsed_frames: usize,
+    /// Lags (frames) of the Fürth fit and the anomalous exponent; `None`: 1 to a quarter of the
+    /// median track span (common practice: fit lags ≤ N/4, METHODS.md §9), at least 3.
+    pub fit_lags: Option<(usize, usize)>,
+    /// Neighbours for the local density estimate.
+    pub density_neighbours: usize,
+}
+
+impl Default for AnalysisOptions {
+    fn default() -> Self {
+        AnalysisOptions {
+            axis_deg: 0.0,
+            fixed_elapsed_frames: 10,
+            fit_lags: None,
+            density_neighbours: 5,
+        }
+    }
+}
+
+/// Collective figures of one frame.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct FrameOrder {
+    /// Frame.
+    pub frame: usize,
+    /// Objects with a velocity (a point in the next frame).
+    pub moving: usize,
+    /// Order parameter of their velocities.
+    pub order_parameter: Option<f64>,
+    /// Mean nearest-neighbour distance of all objects present.
+    pub mean_neighbour_distance: Option<f64>,
+    /// Median local density (objects per unit area).
+    pub median_density: Option<f64>,
+}
+
+/// One distance bin of the neighbour correlation.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct CorrelationBin {
+    /// Lower edge of the distance bin.
+    pub from: f64,
+    /// Upper edge.
+    pub to: f64,
+    /// Mean cosine between neighbours' velocity fluctuations.
+    pub correlation: Option<f64>,
+    /// Pairs.
+    pub pairs: usize,
+}
+
+/// Everything computed for one set of tracks.
+#[derive(Debug, Clone, Serialize)]
+pub struct Analysis {
+    /// Units of every length and time below.
+    pub units: Units,
+    /// The options used.
+    pub options: AnalysisOptions,
+    /// Per track.
+    pub tracks: Vec<Motility>,
+    /// Every step.
+    pub steps: Vec<Step>,
+    /// Population MSD.
+    pub msd: Vec<MsdPoint>,
+    /// Persistent random walk fit (`None` without enough lags or when the fit fails).
+    pub furth: Option<FurthFit>,
+    /// Anomalous exponent over `exponent_lags`.
+    pub anomalous_exponent: Option<f64>,
+    /// Lags (frames) of the fits.
+    pub fit_lags: (usize, usize),
+    /// Velocity and direction autocorrelation.
+    pub autocorrelation: Vec<AutocorrelationPoint>,
+    /// Directions of the tracks' net displacements.
+    pub directions: Option<CircularSummary>,
+    /// V-test toward the axis.
+    pub v_test: Option<VTest>,
+    /// Per frame.
+    pub frames: Vec<FrameOrder>,
+    /// Neighbour velocity-fluctuation correlation by distance.
+    pub neighbour_correlation: Vec<CorrelationBin>,
+}
+
+/// Analyses `tracks` (already filtered) in `units`.
+pub fn analyze_tracks(tracks: &[Track], units: &Units, options: &AnalysisOptions) -> Analysis {
+    let dt = units.time_per_frame;
+    let paths: Vec<&Path> = tracks.iter().map(|t| t.path.as_slice()).collect();
+    let motility_rows: Vec<Motility> = tracks
+        .iter()
+        .map(|t| motility(t.id, &t.path, dt, options.axis_deg, options.fixed_elapsed_frames))
+        .collect();
+    let step_rows: Vec<Step> = tracks.iter().flat_map(|t| steps(t.id, &t.path, dt)).collect();
+    let mut spans: Vec<f64> = tracks
+        .iter()
+        .map(|t| (t.path[t.path.len() - 1].0 - t.path[0].0) as f64)
+        .collect();
+    let longest = spans.iter().copied().fold(0.0, f64::max) as usize;
+    let median_span = median(&mut spans).unwrap_or(0.0);
+    let fit_lags = options.fit_lags.unwrap_or((1, ((median_span / 4.0) as usize).max(3)));
+    let msd_points = msd(&paths, (longest / 2).max(fit_lags.1).min(500), dt);
+    let fitted: Vec<MsdPoint> = msd_points
+        .iter()
+        .copied()
+        .filter(|q| q.lag_frames >= fit_lags.0 && q.lag_frames <= fit_lags.1)
+        .collect();
+    let angles: Vec<f64> = motility_rows
+        .iter()
+        .filter_map(|m| m.mean_direction_deg)
+        .map(f64::to_radians)
+        .collect();
+    let (frames, neighbour_correlation) = collective(tracks, dt, options.density_neighbours);
+    Analysis {
+        units: units.clone(),
+        options: options.clone(),
+        tracks: motility_rows,
+        steps: step_rows,
+        furth: fit_furth(&fitted),
+        anomalous_exponent: anomalous_exponent(&fitted),
+        fit_lags,
+        msd: msd_points,
+        autocorrelation: autocorrelation(&paths, longest.clamp(1, 20), dt),
+        directions: circular_summary(&angles),
+        v_test: v_test(&angles, options.axis_deg),
+        frames,
+        neighbour_correlation,
+    }
+}
+
+/// Positions and velocities per frame, then the per-frame figures and the pooled neighbour
+/// correlation (bins one median neighbour distance wide, eight of them).
+fn collective(tracks: &[Track], dt: f64, k: usize) -> (Vec<FrameOrder>, Vec<CorrelationBin>) {
+    type FrameData = (Vec<[f64; 2]>, Vec<([f64; 2], [f64; 2])>);
+    let mut by_frame: BTreeMap<usize, FrameData> = BTreeMap::new();
+    for t in tracks {
+        for (i, &(f, x, y)) in t.path.iter().enumerate() {
+            let e = by_frame.entry(f).or_default();
+            e.0.push([x, y]);
+            if let Some(&(g, x2, y2)) = t.path.get(i + 1).filter(|n| n.0 == f + 1) {
+                debug_assert_eq!(g, f + 1);
+                e.1.push(([x, y], [(x2 - x) / dt, (y2 - y) / dt]));
+            }
+        }
+    }
+    let mut frames = Vec::with_capacity(by_frame.len());
+    let mut all_nn = Vec::new();
+    for (&f, (positions, moving)) in &by_frame {
+        let nd = neighbour_distance_and_density(positions, k);
+        let nn: Vec<f64> = nd.iter().filter_map(|p| p.0).collect();
+        let mut dens: Vec<f64> = nd.iter().filter_map(|p| p.1).collect();
+        all_nn.extend(&nn);
+        let velocities: Vec<[f64; 2]> = moving.iter().map(|m| m.1).collect();
+        frames.push(FrameOrder {
+            frame: f,
+            moving: moving.len(),
+            order_parameter: order_parameter(&velocities),
+            mean_neighbour_distance: (!nn.is_empty()).then(|| nn.iter().sum::<f64>() / nn.len() as f64),
+            median_density: median(&mut dens),
+        });
+    }
+    let width = median(&mut all_nn).unwrap_or(0.0);
+    if width <= 0.0 {
+        return (frames, Vec::new());
+    }
+    let mut corr = PairCorrelation::new((1..=8).map(|i| i as f64 * width).collect());
+    for (_, moving) in by_frame.values() {
+        let positions: Vec<[f64; 2]> = moving.iter().map(|m| m.0).collect();
+        let velocities: Vec<[f64; 2]> = moving.iter().map(|m| m.1).collect();
+        corr.add_frame(&positions, &fluctuations(&velocities));
+    }
+    let bins = corr
+        .means()
+        .iter()
+        .enumerate()
+        .map(|(i, &c)| CorrelationBin {
+            from: i as f64 * width,
+            to: (i + 1) as f64 * width,
+            correlation: c,
+            pairs: corr.pairs[i],
+        })
+        .collect();
+    (frames, bins)
+}

@@ -1,0 +1,116 @@
+//! `analyze` end to end: read tracks, filter, compute, and write every table, `summary.json`
+//! and `report.html` atomically into one folder.
+
+use super::outputs::{
+    summary, write_autocorrelation, write_msd, write_neighbour_correlation, write_order, write_steps, write_track_stats,
+};
+use super::population::{analyze_tracks, Analysis, AnalysisOptions};
+use super::table::{apply_filters, read_tracks, CalibrationOverride, Filters, TrackTable};
+use crate::error::{Error, Result};
+use crate::output::{ensure_dir, write_atomic, AtomicFile};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// Files an analysis writes.
+pub const ANALYSIS_OUTPUTS: [&str; 8] = [
+    "track_stats.csv",
+    "steps.csv",
+    "msd.csv",
+    "autocorrelation.csv",
+    "order.csv",
+    "neighbour_correlation.csv",
+    "summary.json",
+    "report.html",
+];
+
+/// What an analysis run produced.
+pub struct AnalysisRun {
+    /// Output folder.
+    pub dir: PathBuf,
+    /// The tracks as read (before filtering).
+    pub table: TrackTable,
+    /// The results.
+    pub analysis: Analysis,
+    /// `summary.json`'s population block.
+    pub summary: serde_json::Value,
+}
+
+/// The default output folder: `analysis/` inside a run folder, else `<name>_analysis/` beside
+/// a CSV.
+pub fn default_output_dir(input: &Path) -> PathBuf {
+    if input.is_dir() {
+        input.join("analysis")
+    } else {
+        let stem = input
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        input.with_file_name(format!("{stem}_analysis"))
+    }
+}
+
+/// Reads, filters and analyses `input`, then writes the outputs into `dir`.
+///
+/// # Errors
+/// Unreadable or malformed input; no track left after filtering; outputs not writable.
+pub fn run_analysis(
+    input: &Path,
+    calibration: CalibrationOverride,
+    filters: &Filters,
+    options: &AnalysisOptions,
+    dir: &Path,
+) -> Result<AnalysisRun> {
+    let table = read_tracks(input, calibration)?;
+    let kept = apply_filters(&table.tracks, filters);
+    if kept.is_empty() {
+        return Err(Error::input(
+            &table.source,
+            format!(
+                "no track left after filtering ({} tracks read; at least {} points each required, --min-points)",
+                table.tracks.len(),
+                filters.min_points
+            ),
+        ));
+    }
+    let analysis = analyze_tracks(&kept, &table.units, options);
+    ensure_dir(dir)?;
+    write_table(dir, "track_stats.csv", |w| write_track_stats(w, &analysis))?;
+    write_table(dir, "steps.csv", |w| write_steps(w, &analysis))?;
+    write_table(dir, "msd.csv", |w| write_msd(w, &analysis))?;
+    write_table(dir, "autocorrelation.csv", |w| write_autocorrelation(w, &analysis))?;
+    write_table(dir, "order.csv", |w| write_order(w, &analysis))?;
+    write_table(dir, "neighbour_correlation.csv", |w| {
+        write_neighbour_correlation(w, &analysis)
+    })?;
+    let population = summary(&analysis);
+    let record = serde_json::json!({
+        "caravan_version": crate::VERSION,
+        "research_use": "Caravan is research software; statistics are only as good as the segmentation they rest on.",
+        "input": table.source,
+        "tracks_read": table.tracks.len(),
+        "units": table.units,
+        "filters": filters,
+        "options": options,
+        "population": population,
+    });
+    write_atomic(
+        &dir.join("summary.json"),
+        &serde_json::to_vec_pretty(&record).expect("serialisable"),
+    )?;
+    let run = AnalysisRun {
+        dir: dir.to_path_buf(),
+        table,
+        analysis,
+        summary: population,
+    };
+    let html = crate::render::report::analysis_report(&run);
+    write_atomic(&dir.join("report.html"), html.as_bytes())?;
+    Ok(run)
+}
+
+/// Writes one table atomically.
+pub fn write_table(dir: &Path, name: &str, fill: impl FnOnce(&mut AtomicFile) -> std::io::Result<()>) -> Result<()> {
+    let mut file = AtomicFile::create(&dir.join(name))?;
+    fill(&mut file).and_then(|_| file.flush()).map_err(|e| file.error(e))?;
+    file.commit()
+}

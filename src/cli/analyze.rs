@@ -1,0 +1,189 @@
+//! `caravan analyze RUN_DIR | TRACKS.csv`: migration statistics, tidy tables and a report.
+
+use caravan::analyze::population::AnalysisOptions;
+use caravan::analyze::run::{default_output_dir, run_analysis};
+use caravan::analyze::table::{CalibrationOverride, Filters, Region};
+use caravan::params::{parse_pixel_size_um, parse_seconds};
+use caravan::{Error, Result};
+use clap::{Args, ValueEnum};
+use std::path::PathBuf;
+
+#[derive(Clone, Copy, ValueEnum)]
+enum RoiUnits {
+    /// Pixels of the recording.
+    Px,
+    /// Micrometres (needs a calibration).
+    Um,
+}
+
+/// Filters and choices shared by `analyze` and `compare`.
+#[derive(Args, Clone)]
+pub struct AnalysisArgs {
+    /// Direction of interest in degrees from +x toward +y (forward migration index, V-test).
+    #[arg(long, default_value_t = 0.0)]
+    axis: f64,
+    /// Leave out tracks with fewer points (after the other filters).
+    #[arg(long, default_value_t = 10)]
+    min_points: usize,
+    /// Half-open frame range A..B (frames A to B−1).
+    #[arg(long)]
+    frames: Option<String>,
+    /// Region of interest: rect:x0,y0,x1,y1 or poly:x,y;x,y;x,y (each track keeps its longest
+    /// run inside).
+    #[arg(long)]
+    roi: Option<String>,
+    /// Units of --roi.
+    #[arg(long, value_enum, default_value = "px")]
+    roi_units: RoiUnits,
+    /// Elapsed frames of the fixed-time directionality ratio.
+    #[arg(long, default_value_t = 10)]
+    fixed_time_frames: usize,
+    /// Lags A..B (frames, inclusive) of the MSD fits (default 1 to a quarter of the median
+    /// track span).
+    #[arg(long)]
+    fit_lags: Option<String>,
+    /// Pixel size (e.g. 0.65um); wins over run.json and the CSV.
+    #[arg(long, value_parser = parse_pixel_size_um)]
+    pixel_size: Option<f64>,
+    /// Frame interval (e.g. 5min); wins over run.json and the CSV.
+    #[arg(long, value_parser = parse_seconds)]
+    interval: Option<f64>,
+}
+
+#[derive(Args)]
+pub struct AnalyzeArgs {
+    /// A run folder (tracks.csv, run.json) or any CSV with track_id, frame, x, y.
+    input: PathBuf,
+    /// Output folder (default: analysis/ in a run folder, NAME_analysis/ beside a CSV).
+    #[arg(short, long)]
+    output: Option<PathBuf>,
+    /// Replace an earlier analysis in the output folder.
+    #[arg(long)]
+    force: bool,
+    #[command(flatten)]
+    analysis: AnalysisArgs,
+}
+
+/// Parses `A..B` into a pair.
+fn range(name: &str, text: &str) -> Result<(usize, usize)> {
+    let bad = || Error::parameter(name, text, "expected A..B with whole numbers A < B");
+    let (a, b) = text.split_once("..").ok_or_else(bad)?;
+    let (a, b): (usize, usize) = (
+        a.trim().parse().map_err(|_| bad())?,
+        b.trim().parse().map_err(|_| bad())?,
+    );
+    if a >= b {
+        return Err(bad());
+    }
+    Ok((a, b))
+}
+
+impl AnalysisArgs {
+    /// The calibration given on the command line.
+    pub fn calibration(&self) -> CalibrationOverride {
+        CalibrationOverride {
+            pixel_size_um: self.pixel_size,
+            frame_interval_s: self.interval,
+        }
+    }
+
+    /// Options and filters, validated; the region is scaled to analysis units when those are
+    /// µm (`length_per_px`), which the caller learns from the input.
+    pub fn resolve(&self, length_per_px: Option<f64>) -> Result<(AnalysisOptions, Filters)> {
+        if !self.axis.is_finite() {
+            return Err(Error::parameter("--axis", self.axis, "must be a number of degrees"));
+        }
+        let fit_lags = self.fit_lags.as_deref().map(|t| range("--fit-lags", t)).transpose()?;
+        if fit_lags.is_some_and(|(a, b)| a == 0 || b - a < 2) {
+            return Err(Error::parameter(
+                "--fit-lags",
+                self.fit_lags.as_deref().unwrap_or_default(),
+                "needs lags from 1 on and at least three of them",
+            ));
+        }
+        let scale = match (self.roi_units, length_per_px) {
+            (RoiUnits::Px, Some(s)) => s,
+            (RoiUnits::Px, None) => 1.0,
+            (RoiUnits::Um, Some(_)) => 1.0,
+            (RoiUnits::Um, None) if self.roi.is_some() => {
+                return Err(Error::parameter(
+                    "--roi-units",
+                    "um",
+                    "the tracks are not calibrated; give --pixel-size and --interval or use px",
+                ))
+            }
+            (RoiUnits::Um, None) => 1.0,
+        };
+        let region = self
+            .roi
+            .as_deref()
+            .map(|t| Region::parse(t, scale).map_err(|e| Error::parameter("--roi", t, e)))
+            .transpose()?;
+        let options = AnalysisOptions {
+            axis_deg: self.axis,
+            fixed_elapsed_frames: self.fixed_time_frames.max(1),
+            fit_lags,
+            ..AnalysisOptions::default()
+        };
+        let filters = Filters {
+            min_points: self.min_points.max(2),
+            frames: self.frames.as_deref().map(|t| range("--frames", t)).transpose()?,
+            region,
+        };
+        Ok((options, filters))
+    }
+}
+
+pub fn run(args: AnalyzeArgs) -> Result<()> {
+    let dir = args.output.clone().unwrap_or_else(|| default_output_dir(&args.input));
+    if !args.force && dir.join("summary.json").exists() {
+        return Err(Error::input(
+            &dir,
+            "holds an earlier analysis (summary.json); choose another folder or give --force",
+        ));
+    }
+    // The region's scale depends on the calibration, which reading the tracks decides.
+    let table = caravan::analyze::table::read_tracks(&args.input, args.analysis.calibration())?;
+    let calibrated = (table.units.length == "um").then_some(table.units.length_per_px);
+    let (options, filters) = args.analysis.resolve(calibrated)?;
+    let run = run_analysis(&args.input, args.analysis.calibration(), &filters, &options, &dir)?;
+    print_analysis(&run);
+    Ok(())
+}
+
+/// A few headline numbers and where everything went.
+pub fn print_analysis(run: &caravan::analyze::run::AnalysisRun) {
+    let a = &run.analysis;
+    let s = &run.summary;
+    let speed = format!("mean_speed_{}", a.units.speed());
+    println!(
+        "{} of {} tracks analysed ({} and {}); mean speed {:.3} {}/{}, directionality {:.3}",
+        a.tracks.len(),
+        run.table.tracks.len(),
+        a.units.length,
+        a.units.time,
+        s[&speed]["mean"].as_f64().unwrap_or(f64::NAN),
+        a.units.length,
+        a.units.time,
+        s["directionality_ratio"]["mean"].as_f64().unwrap_or(f64::NAN)
+    );
+    if let Some(f) = &a.furth {
+        println!(
+            "persistent random walk (lags {}-{}): D = {:.4} {}²/{}, persistence {:.3} {}",
+            f.lag_range_frames.0,
+            f.lag_range_frames.1,
+            f.diffusion,
+            a.units.length,
+            a.units.time,
+            f.persistence,
+            a.units.time
+        );
+    }
+    if let Some(d) = &a.directions {
+        println!(
+            "directions: mean resultant length {:.3}, Rayleigh p = {:.3e}",
+            d.mean_resultant_length, d.rayleigh_p
+        );
+    }
+    println!("wrote {} (report.html, summary.json, tables)", run.dir.display());
+}

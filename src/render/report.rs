@@ -1,0 +1,399 @@
+//! The self-contained HTML report (inline SVG charts, no network, no external files) of an
+//! analysis and of a comparison of conditions. Every piece of text that comes from a file or
+//! a manifest is escaped.
+
+use super::plots::{histogram, line_chart, rose, strip_chart, trajectories, Series, Strip};
+use crate::analyze::run::AnalysisRun;
+use serde_json::Value;
+use std::fmt::Write;
+
+/// Escapes text for HTML element content and attribute values.
+pub fn escape_html(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            _ => out.push(c),
+        }
+    }
+    out
+}
+
+const STYLE: &str = "body{font-family:Georgia,'Times New Roman',serif;max-width:1120px;margin:2em auto;padding:0 1em;color:#1d2a2e;background:#fbfaf7}\
+h1{font-weight:normal;border-bottom:3px double #00707a;padding-bottom:.2em}h2{font-weight:normal;color:#00707a;margin-top:1.6em}\
+.note{background:#f1ede4;border-left:4px solid #c85a14;padding:.6em 1em}\
+.grid{display:flex;flex-wrap:wrap;gap:14px}figure{margin:0;background:#fff;border:1px solid #ddd6c8;padding:6px}\
+figcaption{font-size:.85em;color:#555;max-width:520px}table{border-collapse:collapse;font-size:.9em}\
+td,th{border-bottom:1px solid #ddd6c8;padding:.25em .8em;text-align:left}pre{background:#fff;border:1px solid #ddd6c8;padding:.6em;overflow:auto;font-size:.8em}";
+
+/// Opens a page with its title.
+fn page_start(title: &str) -> String {
+    format!(
+        "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\"><title>{}</title><style>{STYLE}</style></head><body><h1>{}</h1>\
+<p class=\"note\">Caravan is research software. Statistics are only as good as the segmentation and tracking they rest on: check the QC movie before trusting these numbers.</p>",
+        escape_html(title),
+        escape_html(title)
+    )
+}
+
+/// Closes a page; the script records how many charts rendered (read by the browser test).
+fn page_end(html: &mut String) {
+    html.push_str(
+        "<script>document.body.setAttribute('data-charts', String(document.querySelectorAll('figure svg').length));</script></body></html>",
+    );
+}
+
+fn figure(html: &mut String, id: &str, svg: &str, caption: &str) {
+    let _ = write!(
+        html,
+        "<figure id=\"{id}\">{svg}<figcaption>{}</figcaption></figure>",
+        escape_html(caption)
+    );
+}
+
+fn number(v: &Value) -> String {
+    match v.as_f64() {
+        Some(x) if x.abs() >= 1e4 || (x != 0.0 && x.abs() < 1e-3) => format!("{x:.3e}"),
+        Some(x) => format!("{x:.4}"),
+        None => "–".into(),
+    }
+}
+
+/// Rows of key numbers from the population summary (every number, flattened).
+fn summary_table(html: &mut String, summary: &Value) {
+    html.push_str("<table><tr><th>statistic</th><th>value</th></tr>");
+    fn walk(html: &mut String, prefix: &str, v: &Value) {
+        match v {
+            Value::Object(m) => {
+                for (k, x) in m {
+                    let key = if prefix.is_empty() {
+                        k.clone()
+                    } else {
+                        format!("{prefix} · {k}")
+                    };
+                    walk(html, &key, x);
+                }
+            }
+            Value::Array(a) => {
+                let text: Vec<String> = a.iter().map(number).collect();
+                let _ = write!(
+                    html,
+                    "<tr><td>{}</td><td>{}</td></tr>",
+                    escape_html(prefix),
+                    text.join(" – ")
+                );
+            }
+            _ => {
+                let _ = write!(html, "<tr><td>{}</td><td>{}</td></tr>", escape_html(prefix), number(v));
+            }
+        }
+    }
+    walk(html, "", summary);
+    html.push_str("</table>");
+}
+
+/// The report of `caravan analyze`.
+pub fn analysis_report(run: &AnalysisRun) -> String {
+    let a = &run.analysis;
+    let (l, t) = (a.units.length, a.units.time);
+    let mut html = page_start("Caravan migration analysis");
+    let _ = write!(
+        html,
+        "<p>Tracks from <code>{}</code>: {} read, {} analysed. Units: {} and {} ({}).</p>",
+        escape_html(&run.table.source.display().to_string()),
+        run.table.tracks.len(),
+        a.tracks.len(),
+        l,
+        t,
+        escape_html(&a.units.source)
+    );
+    html.push_str("<h2>Population statistics</h2>");
+    summary_table(&mut html, &run.summary);
+    html.push_str("<h2>Charts</h2><div class=\"grid\">");
+    let kept: Vec<Vec<(f64, f64)>> = run
+        .table
+        .tracks
+        .iter()
+        .filter(|tr| a.tracks.iter().any(|m| m.track_id == tr.id))
+        .map(|tr| tr.path.iter().map(|p| (p.1, p.2)).collect())
+        .collect();
+    figure(
+        &mut html,
+        "trajectories",
+        &trajectories("Trajectories from a common origin", l, &kept, 300),
+        "Each analysed track moved to start at the origin (at most 300 shown).",
+    );
+    let angles: Vec<f64> = a.tracks.iter().filter_map(|m| m.mean_direction_deg).collect();
+    figure(
+        &mut html,
+        "rose",
+        &rose("Directions of net displacement", &angles, 18),
+        "Share of tracks per 20° sector; 0° is +x, 90° is +y (down in the image).",
+    );
+    figure(
+        &mut html,
+        "msd",
+        &msd_chart(run),
+        "MSD with overlapping windows; the line is the persistent random walk fitted over the stated lags.",
+    );
+    let speeds: Vec<f64> = a.tracks.iter().filter_map(|m| m.mean_speed).collect();
+    figure(
+        &mut html,
+        "speed",
+        &histogram("Mean speed per track", &format!("{l}/{t}"), &speeds, 20),
+        "Path length over duration, per track.",
+    );
+    let ratios: Vec<f64> = a.tracks.iter().filter_map(|m| m.directionality_ratio).collect();
+    figure(
+        &mut html,
+        "directionality",
+        &histogram(
+            "Directionality ratio per track",
+            "net displacement / path length",
+            &ratios,
+            20,
+        ),
+        "Depends on track duration: compare the fixed-time ratio in the table between conditions.",
+    );
+    let order: Vec<(f64, f64)> = a
+        .frames
+        .iter()
+        .filter_map(|f| f.order_parameter.map(|o| (f.frame as f64 * a.units.time_per_frame, o)))
+        .collect();
+    figure(
+        &mut html,
+        "order",
+        &line_chart(
+            "Order parameter over time",
+            &format!("time ({t})"),
+            "order parameter",
+            &[Series {
+                label: "φ".into(),
+                points: order,
+                markers: false,
+            }],
+            false,
+        ),
+        "Alignment of velocities per frame: 1 all alike, about 1/√N for random headings.",
+    );
+    let dacf: Vec<(f64, f64)> = a
+        .autocorrelation
+        .iter()
+        .map(|q| (q.lag_frames as f64 * a.units.time_per_frame, q.direction))
+        .collect();
+    figure(
+        &mut html,
+        "autocorrelation",
+        &line_chart(
+            "Direction autocorrelation",
+            &format!("lag ({t})"),
+            "⟨û(t)·û(t+lag)⟩",
+            &[Series {
+                label: "direction".into(),
+                points: dacf,
+                markers: true,
+            }],
+            false,
+        ),
+        "Unbiased by speed; a slow decay means persistent migration.",
+    );
+    let nc: Vec<(f64, f64)> = a
+        .neighbour_correlation
+        .iter()
+        .filter_map(|b| b.correlation.map(|c| ((b.from + b.to) / 2.0, c)))
+        .collect();
+    figure(
+        &mut html,
+        "neighbours",
+        &line_chart(
+            "Neighbour velocity-fluctuation correlation",
+            &format!("distance ({l})"),
+            "mean cosine",
+            &[Series {
+                label: "C(r)".into(),
+                points: nc,
+                markers: true,
+            }],
+            false,
+        ),
+        "Correlation of velocity fluctuations (common drift removed) between pairs of cells, by distance.",
+    );
+    html.push_str("</div>");
+    if let Some(record) = &run.table.run_record {
+        qc_section(&mut html, record);
+    }
+    html.push_str("<h2>Analysis parameters</h2>");
+    let params = serde_json::json!({ "options": a.options, "units": a.units });
+    let _ = write!(
+        html,
+        "<pre>{}</pre>",
+        escape_html(&serde_json::to_string_pretty(&params).unwrap_or_default())
+    );
+    page_end(&mut html);
+    html
+}
+
+fn msd_chart(run: &AnalysisRun) -> String {
+    let a = &run.analysis;
+    let (l, t) = (a.units.length, a.units.time);
+    let data: Vec<(f64, f64)> = a.msd.iter().map(|q| (q.lag, q.msd)).collect();
+    let mut series = vec![Series {
+        label: "MSD".into(),
+        points: data,
+        markers: true,
+    }];
+    if let Some(f) = &a.furth {
+        let (lo, hi) = (f.lag_range_frames.0 as f64, f.lag_range_frames.1 as f64);
+        let dt = a.units.time_per_frame;
+        let fit = (0..=40)
+            .map(|k| lo * dt * (hi / lo).powf(k as f64 / 40.0))
+            .map(|lag| (lag, crate::analyze::msd::furth_msd(lag, f.diffusion, f.persistence)))
+            .collect();
+        series.push(Series {
+            label: format!("fit D = {:.3} {l}²/{t}, P = {:.2} {t}", f.diffusion, f.persistence),
+            points: fit,
+            markers: false,
+        });
+    }
+    line_chart(
+        "Mean squared displacement",
+        &format!("lag ({t})"),
+        &format!("MSD ({l}²)"),
+        &series,
+        true,
+    )
+}
+
+/// Objects and threshold per frame, warnings and flags of the tracking run.
+fn qc_section(html: &mut String, record: &Value) {
+    html.push_str("<h2>Tracking run: quality control</h2><div class=\"grid\">");
+    let per_frame = record["per_frame"].as_array().cloned().unwrap_or_default();
+    let pick = |key: &str| -> Vec<(f64, f64)> {
+        per_frame
+            .iter()
+            .filter_map(|f| Some((f["frame"].as_f64()?, f[key].as_f64()?)))
+            .collect()
+    };
+    figure(
+        html,
+        "objects",
+        &line_chart(
+            "Objects per frame",
+            "frame",
+            "objects",
+            &[Series {
+                label: "objects".into(),
+                points: pick("objects"),
+                markers: false,
+            }],
+            false,
+        ),
+        "Sudden jumps mean segmentation trouble (flagged below).",
+    );
+    figure(
+        html,
+        "threshold",
+        &line_chart(
+            "Threshold per frame",
+            "frame",
+            "grey level",
+            &[Series {
+                label: "threshold".into(),
+                points: pick("threshold"),
+                markers: false,
+            }],
+            false,
+        ),
+        "A drifting threshold follows bleaching; jumps deserve a look.",
+    );
+    html.push_str("</div><ul>");
+    let _ = write!(
+        html,
+        "<li>gaps closed: {}; divisions: {}</li>",
+        number(&record["gaps_closed"]),
+        record["divisions"].as_array().map(|d| d.len()).unwrap_or(0)
+    );
+    for w in record["warnings"].as_array().into_iter().flatten() {
+        let _ = write!(
+            html,
+            "<li>warning: {}</li>",
+            escape_html(w.as_str().unwrap_or_default())
+        );
+    }
+    html.push_str("</ul><h2>Tracking parameters</h2>");
+    let _ = write!(
+        html,
+        "<pre>{}</pre>",
+        escape_html(&serde_json::to_string_pretty(&record["parameters"]).unwrap_or_default())
+    );
+}
+
+/// One compared statistic for the comparison report.
+pub struct ComparedStatistic {
+    /// Name with unit.
+    pub name: String,
+    /// Per condition: cells and replicate means.
+    pub strips: Vec<Strip>,
+}
+
+/// The report of `caravan compare`: the comparison table (already rendered rows), one strip
+/// chart per statistic, and the warnings.
+pub fn comparison_report(
+    manifest: &str,
+    table_rows: &[Vec<String>],
+    header: &[&str],
+    stats: &[ComparedStatistic],
+    warnings: &[String],
+) -> String {
+    let mut html = page_start("Caravan comparison of conditions");
+    let _ = write!(html, "<p>Manifest <code>{}</code>.</p>", escape_html(manifest));
+    if !warnings.is_empty() {
+        html.push_str("<div class=\"note\"><ul>");
+        for w in warnings {
+            let _ = write!(html, "<li>{}</li>", escape_html(w));
+        }
+        html.push_str("</ul></div>");
+    }
+    html.push_str("<h2>Differences between conditions</h2><table><tr>");
+    for h in header {
+        let _ = write!(html, "<th>{}</th>", escape_html(h));
+    }
+    html.push_str("</tr>");
+    for row in table_rows {
+        html.push_str("<tr>");
+        for c in row {
+            let _ = write!(html, "<td>{}</td>", escape_html(c));
+        }
+        html.push_str("</tr>");
+    }
+    html.push_str("</table><h2>Per condition</h2><div class=\"grid\">");
+    for (k, s) in stats.iter().enumerate() {
+        figure(
+            &mut html,
+            &format!("statistic-{k}"),
+            &strip_chart(&s.name, &s.name, &s.strips),
+            "Small grey points: tracks; large points: replicate means, the independent units of the test.",
+        );
+    }
+    html.push_str("</div>");
+    page_end(&mut html);
+    html
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn markup_in_names_is_escaped() {
+        // HTML 5 specification, §13.1.2: text content must not contain "<" or "&" unescaped.
+        assert_eq!(
+            escape_html("<b>dish & \"1\"</b>"),
+            "&lt;b&gt;dish &amp; &quot;1&quot;&lt;/b&gt;"
+        );
+    }
+}
