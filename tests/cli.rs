@@ -341,3 +341,87 @@ fn score_writes_json_that_an_independent_reader_confirms() {
         &[syn_s, run_s, run.join("score.json").to_str().unwrap()],
     );
 }
+
+#[test]
+fn analyze_and_compare_pass_independent_readers() {
+    // Two invented conditions (a drifting stripe and a wandering dish), three replicates each,
+    // tracked (which also analyses each run into analysis/), then compared from a manifest;
+    // numpy and scipy recompute the statistics from tracks.csv and replicates.csv.
+    let dir = tempfile::tempdir().unwrap();
+    let mut manifest = String::from("path,condition,replicate,label\n");
+    for seed in 1..=3 {
+        for scenario in ["stripe", "dish"] {
+            let name = format!("{scenario}{seed}");
+            let syn = dir.path().join(format!("syn_{name}"));
+            let seed_text = seed.to_string();
+            ok(&caravan(
+                &[
+                    "synth",
+                    "-o",
+                    syn.to_str().unwrap(),
+                    "--scenario",
+                    scenario,
+                    "--size",
+                    "192x192",
+                    "--frames",
+                    "20",
+                    "--seed",
+                    &seed_text,
+                ],
+                "1",
+            ));
+            let run = dir.path().join(&name);
+            let rec = syn.join("recording.tif");
+            let out = ok(&caravan(
+                &[
+                    "track",
+                    rec.to_str().unwrap(),
+                    "-o",
+                    run.to_str().unwrap(),
+                    "--diameter",
+                    "14px",
+                    "--no-movie",
+                ],
+                "2",
+            ));
+            assert!(out.contains("report:"), "{out}");
+            assert!(run.join("analysis/report.html").exists() && run.join("analysis/summary.json").exists());
+            manifest.push_str(&format!("{name},{scenario},embryo{seed},<i>{name}</i>\n"));
+        }
+    }
+    let manifest_path = dir.path().join("manifest.csv");
+    std::fs::write(&manifest_path, manifest).unwrap();
+    let cmp = dir.path().join("cmp");
+    let printed = ok(&caravan(
+        &["compare", manifest_path.to_str().unwrap(), "-o", cmp.to_str().unwrap()],
+        "2",
+    ));
+    assert!(printed.contains("no Mann-Whitney test can reach p < 0.05"), "{printed}");
+    let html = std::fs::read_to_string(cmp.join("report.html")).unwrap();
+    assert!(html.contains("&lt;i&gt;stripe1&lt;/i&gt;") && !html.contains("<i>stripe1</i>"));
+    // A manifest naming a missing file is refused before any work, naming the line.
+    std::fs::write(&manifest_path, "path,condition,replicate\nstripe1,a,1\nnowhere,b,1\n").unwrap();
+    let bad = caravan(
+        &[
+            "compare",
+            manifest_path.to_str().unwrap(),
+            "-o",
+            dir.path().join("c2").to_str().unwrap(),
+        ],
+        "1",
+    );
+    assert_eq!(bad.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&bad.stderr);
+    assert!(stderr.contains("line 3") && stderr.contains("nowhere"), "{stderr}");
+    assert!(!dir.path().join("c2").exists());
+    let Some(python) = ci_python() else { return };
+    run_python(
+        &python,
+        "check_analysis.py",
+        &[
+            dir.path().join("stripe1").to_str().unwrap(),
+            dir.path().join("stripe1/analysis").to_str().unwrap(),
+            cmp.to_str().unwrap(),
+        ],
+    );
+}

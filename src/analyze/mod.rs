@@ -4,6 +4,7 @@
 
 pub mod circular;
 pub mod collective;
+pub mod compare;
 pub mod motility;
 pub mod msd;
 pub mod outputs;

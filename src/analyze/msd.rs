@@ -244,7 +244,8 @@ pub struct AutocorrelationPoint {
 pub fn autocorrelation(tracks: &[&Path], max_lag: usize, frame_interval: f64) -> Vec<AutocorrelationPoint> {
     let mut sums = vec![(0.0f64, 0.0f64, 0usize); max_lag + 1];
     for track in tracks {
-        let steps: HashMap<usize, (f64, f64)> = track
+        // Frame order (a BTreeMap), so that sums are added in the same order on every run.
+        let steps: std::collections::BTreeMap<usize, (f64, f64)> = track
             .windows(2)
             .filter(|w| w[1].0 == w[0].0 + 1)
             .map(|w| {

@@ -60,19 +60,7 @@ pub fn run_analysis(
     options: &AnalysisOptions,
     dir: &Path,
 ) -> Result<AnalysisRun> {
-    let table = read_tracks(input, calibration)?;
-    let kept = apply_filters(&table.tracks, filters);
-    if kept.is_empty() {
-        return Err(Error::input(
-            &table.source,
-            format!(
-                "no track left after filtering ({} tracks read; at least {} points each required, --min-points)",
-                table.tracks.len(),
-                filters.min_points
-            ),
-        ));
-    }
-    let analysis = analyze_tracks(&kept, &table.units, options);
+    let (table, analysis) = analyze_input(input, calibration, filters, options)?;
     ensure_dir(dir)?;
     write_table(dir, "track_stats.csv", |w| write_track_stats(w, &analysis))?;
     write_table(dir, "steps.csv", |w| write_steps(w, &analysis))?;
@@ -106,6 +94,32 @@ pub fn run_analysis(
     let html = crate::render::report::analysis_report(&run);
     write_atomic(&dir.join("report.html"), html.as_bytes())?;
     Ok(run)
+}
+
+/// Reads, filters and analyses `input` without writing anything.
+///
+/// # Errors
+/// Unreadable or malformed input; no track left after filtering.
+pub fn analyze_input(
+    input: &Path,
+    calibration: CalibrationOverride,
+    filters: &Filters,
+    options: &AnalysisOptions,
+) -> Result<(TrackTable, Analysis)> {
+    let table = read_tracks(input, calibration)?;
+    let kept = apply_filters(&table.tracks, filters);
+    if kept.is_empty() {
+        return Err(Error::input(
+            &table.source,
+            format!(
+                "no track left after filtering ({} tracks read; at least {} points each required, --min-points)",
+                table.tracks.len(),
+                filters.min_points
+            ),
+        ));
+    }
+    let analysis = analyze_tracks(&kept, &table.units, options);
+    Ok((table, analysis))
 }
 
 /// Writes one table atomically.

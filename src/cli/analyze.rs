@@ -151,6 +151,28 @@ pub fn run(args: AnalyzeArgs) -> Result<()> {
     Ok(())
 }
 
+/// The default analysis of a fresh run folder into its `analysis/`, reported but not fatal:
+/// a run whose tracks are all short still has its tracking outputs.
+pub fn analyze_run_folder(dir: &std::path::Path) -> Option<caravan::analyze::run::AnalysisRun> {
+    let out = default_output_dir(dir);
+    match run_analysis(
+        dir,
+        CalibrationOverride::default(),
+        &Filters::default(),
+        &AnalysisOptions::default(),
+        &out,
+    ) {
+        Ok(run) => {
+            println!("report: {}", out.join("report.html").display());
+            Some(run)
+        }
+        Err(e) => {
+            println!("warning: no migration analysis: {e}");
+            None
+        }
+    }
+}
+
 /// A few headline numbers and where everything went.
 pub fn print_analysis(run: &caravan::analyze::run::AnalysisRun) {
     let a = &run.analysis;

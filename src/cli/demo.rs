@@ -1,9 +1,8 @@
 //! `caravan demo`: our own scenario end to end, as a first look at what the tool does.
 
-use caravan::analyze::TrackSummary;
 use caravan::link::online::LinkParams;
 use caravan::params::SegmentParams;
-use caravan::pipeline::{median, resolve_diameter, run_recording, DiameterSource, SegmentOutputs};
+use caravan::pipeline::{resolve_diameter, run_recording, DiameterSource, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
 use caravan::score::files::score_files;
 use caravan::stack::{OpenOptions, Stack};
@@ -48,20 +47,11 @@ pub fn run(args: DemoArgs) -> Result<()> {
         "demo",
     )?;
     let (_, score) = score_files(&args.output.join("synthetic"), &run_dir, None, None)?;
-    let cal = stack.info().calibration;
-    let mut speeds = of_long_tracks(&run.tracks, |t| t.mean_speed_px_per_frame);
-    let mut ratios = of_long_tracks(&run.tracks, |t| t.directionality_ratio);
-    let to_um_min = cal.pixel_size_um.unwrap_or(1.0) / (cal.frame_interval_s.unwrap_or(60.0) / 60.0);
     println!(
         "{} frames, {:.1} nuclei per frame, {} tracks",
         run.frames.len(),
         run.detections() as f64 / run.frames.len() as f64,
         run.tracks.len()
-    );
-    println!(
-        "tracks of 10+ points: median speed {:.2} µm/min, median directionality {:.2}",
-        median(&mut speeds).unwrap_or(f64::NAN) * to_um_min,
-        median(&mut ratios).unwrap_or(f64::NAN)
     );
     if let Some(r) = &run.resolution {
         println!("{} gaps closed, {} divisions found", r.gaps_closed, r.divisions.len());
@@ -76,12 +66,10 @@ pub fn run(args: DemoArgs) -> Result<()> {
         println!("QC movie: {} frames of {}x{} px", m.frames, m.size.0, m.size.1);
     }
     println!("outputs:\n  recording   {}\n  truth       {}\n  tracks      {}\n  per track   {}\n  detections  {}\n  labels      {}\n  run record  {}\n  QC movie    {}\n  QC sheet    {}", synth.recording.display(), synth.truth_csv.display(), show("tracks.csv"), show("per_track.csv"), show("detections.csv"), show("labels.tif"), show("run.json"), show("qc_movie.gif"), show("qc_sheet.png"));
+    if let Some(analysis) = super::analyze::analyze_run_folder(&run_dir) {
+        println!("migration statistics (tracks of 10+ points):");
+        super::analyze::print_analysis(&analysis);
+    }
     println!("Research software: statistics are only as good as the segmentation they rest on.");
     Ok(())
-}
-
-/// A per-track value over tracks of 10 or more points (common practice: shorter tracks inflate
-/// the scatter of straightness and speed).
-fn of_long_tracks(tracks: &[TrackSummary], value: impl Fn(&TrackSummary) -> Option<f64>) -> Vec<f64> {
-    tracks.iter().filter(|t| t.points >= 10).filter_map(value).collect()
 }

@@ -2,6 +2,7 @@
 //! Exit codes: 0 done; 2 bad input or parameters; 3 an output could not be written.
 
 mod analyze;
+mod compare;
 mod demo;
 mod inspect;
 mod preview;
@@ -42,6 +43,8 @@ enum Command {
     Synth(synth::SynthArgs),
     /// Migration statistics of a run or any tracks CSV: tables, summary.json, report.html.
     Analyze(analyze::AnalyzeArgs),
+    /// Compare conditions from a manifest (path, condition, replicate), replicates as the unit.
+    Compare(compare::CompareArgs),
     /// Compare tracks with ground truth: detection, TRA/DET, MOTA/MOTP, links, divisions.
     Score(score::ScoreArgs),
     /// Synthesize a recording, track it, and score the result against the truth.
@@ -59,6 +62,7 @@ pub fn run() -> i32 {
         Command::Synth(a) => synth::run(a),
         Command::Score(a) => score::run(a),
         Command::Analyze(a) => analyze::run(a),
+        Command::Compare(a) => compare::run(a),
         Command::Demo(a) => demo::run(a),
     };
     match result {

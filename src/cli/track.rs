@@ -33,6 +33,9 @@ pub struct TrackArgs {
     /// Skip the QC movie and contact sheet.
     #[arg(long)]
     no_movie: bool,
+    /// Skip the migration analysis (analysis/ with report.html) that follows tracking.
+    #[arg(long)]
+    no_analysis: bool,
 }
 
 pub fn run(args: TrackArgs) -> Result<()> {
@@ -78,5 +81,8 @@ pub fn run(args: TrackArgs) -> Result<()> {
     };
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
     print_summary(&run);
+    if !args.no_analysis {
+        super::analyze::analyze_run_folder(&args.run.output);
+    }
     Ok(())
 }

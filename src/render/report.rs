@@ -28,7 +28,7 @@ h1{font-weight:normal;border-bottom:3px double #00707a;padding-bottom:.2em}h2{fo
 .note{background:#f1ede4;border-left:4px solid #c85a14;padding:.6em 1em}\
 .grid{display:flex;flex-wrap:wrap;gap:14px}figure{margin:0;background:#fff;border:1px solid #ddd6c8;padding:6px}\
 figcaption{font-size:.85em;color:#555;max-width:520px}table{border-collapse:collapse;font-size:.9em}\
-td,th{border-bottom:1px solid #ddd6c8;padding:.25em .8em;text-align:left}pre{background:#fff;border:1px solid #ddd6c8;padding:.6em;overflow:auto;font-size:.8em}";
+td,th{border-bottom:1px solid #ddd6c8;padding:.25em .8em;text-align:left}.wide{overflow-x:auto;max-width:100%}pre{background:#fff;border:1px solid #ddd6c8;padding:.6em;overflow:auto;font-size:.8em}";
 
 /// Opens a page with its title.
 fn page_start(title: &str) -> String {
@@ -63,11 +63,36 @@ fn number(v: &Value) -> String {
     }
 }
 
-/// Rows of key numbers from the population summary (every number, flattened).
+/// The population summary as a table: statistics with a mean get one row (mean, median,
+/// standard deviation, n); other entries are flattened to one row each.
 fn summary_table(html: &mut String, summary: &Value) {
-    html.push_str("<table><tr><th>statistic</th><th>value</th></tr>");
+    html.push_str("<div class=\"wide\"><table><tr><th>statistic</th><th>value or mean</th><th>median</th><th>standard deviation</th><th>n</th></tr>");
+    fn row(html: &mut String, name: &str, cells: [String; 4]) {
+        let _ = write!(html, "<tr><td>{}</td>", escape_html(name));
+        for c in cells {
+            let _ = write!(html, "<td>{c}</td>");
+        }
+        html.push_str("</tr>");
+    }
     fn walk(html: &mut String, prefix: &str, v: &Value) {
         match v {
+            Value::Object(m) if m.contains_key("mean") => {
+                let n = m
+                    .get("n")
+                    .and_then(Value::as_u64)
+                    .map(|n| n.to_string())
+                    .unwrap_or_default();
+                row(
+                    html,
+                    prefix,
+                    [
+                        number(&m["mean"]),
+                        number(&m["median"]),
+                        number(&m["standard_deviation"]),
+                        n,
+                    ],
+                );
+            }
             Value::Object(m) => {
                 for (k, x) in m {
                     let key = if prefix.is_empty() {
@@ -80,20 +105,17 @@ fn summary_table(html: &mut String, summary: &Value) {
             }
             Value::Array(a) => {
                 let text: Vec<String> = a.iter().map(number).collect();
-                let _ = write!(
+                row(
                     html,
-                    "<tr><td>{}</td><td>{}</td></tr>",
-                    escape_html(prefix),
-                    text.join(" – ")
+                    prefix,
+                    [text.join(" – "), String::new(), String::new(), String::new()],
                 );
             }
-            _ => {
-                let _ = write!(html, "<tr><td>{}</td><td>{}</td></tr>", escape_html(prefix), number(v));
-            }
+            _ => row(html, prefix, [number(v), String::new(), String::new(), String::new()]),
         }
     }
     walk(html, "", summary);
-    html.push_str("</table>");
+    html.push_str("</table></div>");
 }
 
 /// The report of `caravan analyze`.
@@ -344,6 +366,7 @@ pub struct ComparedStatistic {
 /// chart per statistic, and the warnings.
 pub fn comparison_report(
     manifest: &str,
+    entries: &[Vec<String>],
     table_rows: &[Vec<String>],
     header: &[&str],
     stats: &[ComparedStatistic],
@@ -351,6 +374,17 @@ pub fn comparison_report(
 ) -> String {
     let mut html = page_start("Caravan comparison of conditions");
     let _ = write!(html, "<p>Manifest <code>{}</code>.</p>", escape_html(manifest));
+    html.push_str(
+        "<h2>Recordings</h2><table><tr><th>path</th><th>condition</th><th>replicate</th><th>labels</th></tr>",
+    );
+    for row in entries {
+        html.push_str("<tr>");
+        for c in row {
+            let _ = write!(html, "<td>{}</td>", escape_html(c));
+        }
+        html.push_str("</tr>");
+    }
+    html.push_str("</table>");
     if !warnings.is_empty() {
         html.push_str("<div class=\"note\"><ul>");
         for w in warnings {
@@ -358,7 +392,7 @@ pub fn comparison_report(
         }
         html.push_str("</ul></div>");
     }
-    html.push_str("<h2>Differences between conditions</h2><table><tr>");
+    html.push_str("<h2>Differences between conditions</h2><div class=\"wide\"><table><tr>");
     for h in header {
         let _ = write!(html, "<th>{}</th>", escape_html(h));
     }
@@ -370,7 +404,7 @@ pub fn comparison_report(
         }
         html.push_str("</tr>");
     }
-    html.push_str("</table><h2>Per condition</h2><div class=\"grid\">");
+    html.push_str("</table></div><h2>Per condition</h2><div class=\"grid\">");
     for (k, s) in stats.iter().enumerate() {
         figure(
             &mut html,

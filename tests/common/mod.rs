@@ -12,7 +12,8 @@ use std::path::PathBuf;
 pub struct TrackedScene {
     /// Keeps the folder alive until the scene is dropped.
     _dir: tempfile::TempDir,
-    /// The synth folder.
+    /// The synth folder (not every test crate that shares this module reads it).
+    #[allow(dead_code)]
     pub syn: PathBuf,
     /// The run folder.
     pub run: PathBuf,

@@ -1,0 +1,511 @@
+//! Comparing conditions without pseudo-replication: per-replicate summaries (the replicate is
+//! the embryo, dish or lane, not the cell), differences between conditions with a hierarchical
+//! bootstrap confidence interval, a Mann–Whitney test on replicate means, effect sizes, and
+//! warnings where the design cannot support a test.
+
+use super::population::{Analysis, AnalysisOptions};
+use super::run::{analyze_input, write_table};
+use super::stats::{cohens_d, hierarchical_bootstrap, mann_whitney, mean_sd, quantile};
+use super::table::{CalibrationOverride, Filters};
+use crate::error::{Error, Result};
+use crate::output::{ensure_dir, write_atomic};
+use crate::synth::Rng;
+use serde::Serialize;
+use std::collections::BTreeMap;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// One row of the manifest.
+#[derive(Debug, Clone, Serialize)]
+pub struct ManifestEntry {
+    /// Line in the manifest (header = 1).
+    pub line: usize,
+    /// Run folder or tracks CSV, resolved against the manifest's folder.
+    pub path: PathBuf,
+    /// Condition name.
+    pub condition: String,
+    /// Biological replicate (embryo, dish, lane).
+    pub replicate: String,
+    /// Other columns, carried along.
+    pub labels: BTreeMap<String, String>,
+}
+
+/// Reads a manifest with columns `path, condition, replicate` (others kept as labels) and
+/// checks that every path exists before any work starts.
+///
+/// # Errors
+/// Unreadable manifest, missing columns or values, a path that does not exist (naming the
+/// line), fewer than two conditions.
+pub fn read_manifest(path: &Path) -> Result<Vec<ManifestEntry>> {
+    let bad = |problem: String| Error::input(path, problem);
+    let mut reader = csv::ReaderBuilder::new()
+        .trim(csv::Trim::All)
+        .from_path(path)
+        .map_err(|e| bad(e.to_string()))?;
+    let header: Vec<String> = reader
+        .headers()
+        .map_err(|e| bad(e.to_string()))?
+        .iter()
+        .map(String::from)
+        .collect();
+    let col = |name: &str| {
+        header
+            .iter()
+            .position(|h| h.trim_start_matches('\u{feff}') == name)
+            .ok_or_else(|| bad(format!("missing column {name} (needs path, condition, replicate)")))
+    };
+    let (pi, ci, ri) = (col("path")?, col("condition")?, col("replicate")?);
+    let base = path.parent().unwrap_or(Path::new("."));
+    let mut out = Vec::new();
+    for (k, record) in reader.records().enumerate() {
+        let line = k + 2;
+        let record = record.map_err(|e| bad(format!("line {line}: {e}")))?;
+        let get = |i: usize, what: &str| {
+            record
+                .get(i)
+                .filter(|v| !v.is_empty())
+                .map(String::from)
+                .ok_or_else(|| bad(format!("line {line}: empty {what}")))
+        };
+        let target = base.join(get(pi, "path")?);
+        if !target.exists() {
+            return Err(bad(format!("line {line}: {} does not exist", target.display())));
+        }
+        let labels = header
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| ![pi, ci, ri].contains(i))
+            .map(|(i, h)| (h.clone(), record.get(i).unwrap_or_default().to_string()))
+            .collect();
+        out.push(ManifestEntry {
+            line,
+            path: target,
+            condition: get(ci, "condition")?,
+            replicate: get(ri, "replicate")?,
+            labels,
+        });
+    }
+    let conditions: std::collections::BTreeSet<&str> = out.iter().map(|e| e.condition.as_str()).collect();
+    if conditions.len() < 2 {
+        return Err(bad(format!(
+            "needs at least two conditions, found {}",
+            conditions.len()
+        )));
+    }
+    Ok(out)
+}
+
+/// The per-track statistics compared, with the name they carry in the outputs.
+fn statistics(a: &Analysis) -> Vec<(String, Vec<f64>)> {
+    let n = a.options.fixed_elapsed_frames;
+    let col =
+        |f: &dyn Fn(&super::motility::Motility) -> Option<f64>| a.tracks.iter().filter_map(f).collect::<Vec<f64>>();
+    vec![
+        (format!("mean_speed_{}", a.units.speed()), col(&|m| m.mean_speed)),
+        (
+            format!("directionality_ratio_at_{n}_frames"),
+            col(&|m| m.directionality_at_fixed_time),
+        ),
+        ("forward_migration_index".into(), col(&|m| m.forward_migration_index)),
+        ("mean_abs_turning_angle_deg".into(), col(&|m| m.mean_abs_turning_deg)),
+    ]
+}
+
+/// One replicate's values of one statistic.
+#[derive(Debug, Clone, Serialize)]
+pub struct ReplicateValues {
+    /// Condition.
+    pub condition: String,
+    /// Replicate.
+    pub replicate: String,
+    /// Per-track values (all files of the replicate pooled).
+    pub values: Vec<f64>,
+}
+
+/// The comparison of one statistic between a condition and the reference condition.
+#[derive(Debug, Clone, Serialize)]
+pub struct Difference {
+    /// Statistic name (with unit).
+    pub statistic: String,
+    /// Reference condition (the manifest's first).
+    pub reference: String,
+    /// Compared condition.
+    pub condition: String,
+    /// Replicates in each.
+    pub replicates: (usize, usize),
+    /// Tracks in each.
+    pub tracks: (usize, usize),
+    /// Mean of replicate means in each.
+    pub means: (f64, f64),
+    /// condition − reference.
+    pub difference: f64,
+    /// 95% hierarchical bootstrap interval of the difference.
+    pub ci95: (f64, f64),
+    /// Two-sided bootstrap p: twice the smaller share of resampled differences on either side
+    /// of 0.
+    pub bootstrap_p: f64,
+    /// Mann–Whitney test on replicate means.
+    pub mann_whitney_u: Option<f64>,
+    /// Its two-sided p.
+    pub mann_whitney_p: Option<f64>,
+    /// `exact` or `asymptotic`.
+    pub mann_whitney_method: Option<&'static str>,
+    /// Rank-biserial correlation (effect size of the test).
+    pub rank_biserial: Option<f64>,
+    /// Cohen's d of replicate means.
+    pub cohens_d: Option<f64>,
+}
+
+/// Everything `compare` found.
+pub struct Comparison {
+    /// The manifest read.
+    pub entries: Vec<ManifestEntry>,
+    /// Conditions in manifest order.
+    pub conditions: Vec<String>,
+    /// Per statistic, per replicate.
+    pub replicates: BTreeMap<String, Vec<ReplicateValues>>,
+    /// Statistic names in order.
+    pub statistic_names: Vec<String>,
+    /// Differences from the reference condition.
+    pub differences: Vec<Difference>,
+    /// Warnings about the design.
+    pub warnings: Vec<String>,
+}
+
+/// Bootstrap resamples per condition.
+pub const BOOTSTRAP_RESAMPLES: usize = 10_000;
+
+/// Analyses every entry of the manifest and compares the conditions.
+///
+/// # Errors
+/// Any entry that cannot be analysed (naming its file), or entries with different units.
+pub fn compare(
+    entries: Vec<ManifestEntry>,
+    calibration: CalibrationOverride,
+    filters: &Filters,
+    options: &AnalysisOptions,
+    seed: u64,
+) -> Result<Comparison> {
+    let mut conditions: Vec<String> = Vec::new();
+    let mut replicates: BTreeMap<String, Vec<ReplicateValues>> = BTreeMap::new();
+    let mut names = Vec::new();
+    let mut units: Option<(String, &'static str, &'static str)> = None;
+    for e in &entries {
+        if !conditions.contains(&e.condition) {
+            conditions.push(e.condition.clone());
+        }
+        let (table, analysis) = analyze_input(&e.path, calibration, filters, options)?;
+        let these = (
+            table.source.display().to_string(),
+            analysis.units.length,
+            analysis.units.time,
+        );
+        match &units {
+            Some(u) if (u.1, u.2) != (these.1, these.2) => {
+                return Err(Error::input(
+                    &table.source,
+                    format!(
+                        "is in {} and {}, but {} is in {} and {}; give --pixel-size and --interval for all",
+                        these.1, these.2, u.0, u.1, u.2
+                    ),
+                ))
+            }
+            Some(_) => {}
+            None => units = Some(these),
+        }
+        names.clear();
+        for (name, values) in statistics(&analysis) {
+            names.push(name.clone());
+            let reps = replicates.entry(name).or_default();
+            match reps
+                .iter_mut()
+                .find(|r| r.condition == e.condition && r.replicate == e.replicate)
+            {
+                Some(r) => r.values.extend(values),
+                None => reps.push(ReplicateValues {
+                    condition: e.condition.clone(),
+                    replicate: e.replicate.clone(),
+                    values,
+                }),
+            }
+        }
+    }
+    let mut rng = Rng::new(seed);
+    let mut differences = Vec::new();
+    for name in &names {
+        for other in &conditions[1..] {
+            differences.push(difference(name, &replicates[name], &conditions[0], other, &mut rng));
+        }
+    }
+    let warnings = design_warnings(&conditions, &replicates, &names);
+    Ok(Comparison {
+        entries,
+        conditions,
+        replicates,
+        statistic_names: names,
+        differences,
+        warnings,
+    })
+}
+
+fn replicate_means(reps: &[ReplicateValues], condition: &str) -> (Vec<Vec<f64>>, Vec<f64>) {
+    let groups: Vec<Vec<f64>> = reps
+        .iter()
+        .filter(|r| r.condition == condition && !r.values.is_empty())
+        .map(|r| r.values.clone())
+        .collect();
+    let means = groups.iter().map(|g| g.iter().sum::<f64>() / g.len() as f64).collect();
+    (groups, means)
+}
+
+fn difference(name: &str, reps: &[ReplicateValues], reference: &str, other: &str, rng: &mut Rng) -> Difference {
+    let (ref_groups, ref_means) = replicate_means(reps, reference);
+    let (oth_groups, oth_means) = replicate_means(reps, other);
+    let mean = |v: &[f64]| mean_sd(v).map(|m| m.0).unwrap_or(f64::NAN);
+    let boot_ref = hierarchical_bootstrap(&ref_groups, BOOTSTRAP_RESAMPLES, rng);
+    let boot_oth = hierarchical_bootstrap(&oth_groups, BOOTSTRAP_RESAMPLES, rng);
+    let diffs: Vec<f64> = boot_oth.iter().zip(&boot_ref).map(|(a, b)| a - b).collect();
+    let share =
+        |pred: &dyn Fn(f64) -> bool| diffs.iter().filter(|&&d| pred(d)).count() as f64 / diffs.len().max(1) as f64;
+    let mw = mann_whitney(&oth_means, &ref_means);
+    Difference {
+        statistic: name.to_string(),
+        reference: reference.to_string(),
+        condition: other.to_string(),
+        replicates: (ref_means.len(), oth_means.len()),
+        tracks: (
+            ref_groups.iter().map(Vec::len).sum(),
+            oth_groups.iter().map(Vec::len).sum(),
+        ),
+        means: (mean(&ref_means), mean(&oth_means)),
+        difference: mean(&oth_means) - mean(&ref_means),
+        ci95: (
+            quantile(&diffs, 0.025).unwrap_or(f64::NAN),
+            quantile(&diffs, 0.975).unwrap_or(f64::NAN),
+        ),
+        bootstrap_p: if diffs.is_empty() {
+            f64::NAN
+        } else {
+            (2.0 * share(&|d| d <= 0.0).min(share(&|d| d >= 0.0))).min(1.0)
+        },
+        mann_whitney_u: mw.map(|m| m.u1),
+        mann_whitney_p: mw.map(|m| m.p),
+        mann_whitney_method: mw.map(|m| m.method),
+        rank_biserial: mw.map(|m| m.rank_biserial),
+        cohens_d: cohens_d(&oth_means, &ref_means),
+    }
+}
+
+/// The smallest two-sided p a Mann–Whitney test can give for n₁ vs n₂ replicates without
+/// ties: 2 / C(n₁+n₂, n₁) (complete separation).
+pub fn smallest_possible_p(n1: usize, n2: usize) -> f64 {
+    let mut c = 1.0;
+    for k in 0..n1.min(n2) {
+        c = c * (n1 + n2 - k) as f64 / (k + 1) as f64;
+    }
+    (2.0 / c).min(1.0)
+}
+
+fn design_warnings(
+    conditions: &[String],
+    replicates: &BTreeMap<String, Vec<ReplicateValues>>,
+    names: &[String],
+) -> Vec<String> {
+    let Some(first) = names.first().and_then(|n| replicates.get(n)) else {
+        return Vec::new();
+    };
+    let mut w = Vec::new();
+    let count = |c: &str| first.iter().filter(|r| r.condition == c).count();
+    for other in &conditions[1..] {
+        let (a, b) = (count(&conditions[0]), count(other));
+        let p = smallest_possible_p(a, b);
+        if p >= 0.05 {
+            w.push(format!(
+                "{} vs {}: with {a} and {b} replicates no Mann-Whitney test can reach p < 0.05 (smallest possible p = {p:.3}); plan at least 5-6 replicates per condition",
+                conditions[0], other
+            ));
+        }
+    }
+    for c in conditions {
+        if count(c) == 1 {
+            w.push(format!("{c}: one replicate only; its cells are not independent, so no test between conditions can rest on them"));
+        }
+    }
+    let mut sizes: Vec<f64> = first.iter().map(|r| r.values.len() as f64).collect();
+    if crate::pipeline::median(&mut sizes).is_some_and(|m| m <= 1.0) {
+        w.push("most replicates hold a single track: cells seem to be listed as replicates; the replicate is the embryo, dish or lane".into());
+    }
+    w
+}
+
+/// Writes `replicates.csv`, `comparison.csv`, `summary.json` and `report.html` into `dir`.
+///
+/// # Errors
+/// Outputs not writable.
+pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<()> {
+    ensure_dir(dir)?;
+    write_table(dir, "replicates.csv", |w| write_replicates(w, c))?;
+    write_table(dir, "comparison.csv", |w| {
+        writeln!(w, "{}", COMPARISON_HEADER.join(","))?;
+        for row in comparison_rows(c) {
+            writeln!(w, "{}", row.iter().map(|s| csv_cell(s)).collect::<Vec<_>>().join(","))?;
+        }
+        Ok(())
+    })?;
+    let record = serde_json::json!({
+        "caravan_version": crate::VERSION,
+        "research_use": "Caravan is research software; statistics are only as good as the segmentation they rest on.",
+        "manifest": manifest,
+        "entries": c.entries,
+        "conditions": c.conditions,
+        "bootstrap_resamples": BOOTSTRAP_RESAMPLES,
+        "differences": c.differences,
+        "warnings": c.warnings,
+    });
+    write_atomic(
+        &dir.join("summary.json"),
+        &serde_json::to_vec_pretty(&record).expect("serialisable"),
+    )?;
+    let stats: Vec<crate::render::report::ComparedStatistic> = c
+        .statistic_names
+        .iter()
+        .map(|name| crate::render::report::ComparedStatistic {
+            name: name.clone(),
+            strips: c
+                .conditions
+                .iter()
+                .map(|cond| {
+                    let (groups, means) = replicate_means(&c.replicates[name], cond);
+                    crate::render::plots::Strip {
+                        name: cond.clone(),
+                        values: groups.concat(),
+                        replicate_means: means,
+                    }
+                })
+                .collect(),
+        })
+        .collect();
+    let entries: Vec<Vec<String>> = c
+        .entries
+        .iter()
+        .map(|e| {
+            let labels: Vec<String> = e.labels.iter().map(|(k, v)| format!("{k}: {v}")).collect();
+            vec![
+                e.path.display().to_string(),
+                e.condition.clone(),
+                e.replicate.clone(),
+                labels.join("; "),
+            ]
+        })
+        .collect();
+    let html = crate::render::report::comparison_report(
+        &manifest.display().to_string(),
+        &entries,
+        &comparison_rows(c),
+        &COMPARISON_HEADER,
+        &stats,
+        &c.warnings,
+    );
+    write_atomic(&dir.join("report.html"), html.as_bytes())
+}
+
+/// Columns of `comparison.csv` (and the report's table).
+pub const COMPARISON_HEADER: [&str; 16] = [
+    "statistic",
+    "reference",
+    "condition",
+    "replicates_reference",
+    "replicates_condition",
+    "tracks_reference",
+    "tracks_condition",
+    "mean_reference",
+    "mean_condition",
+    "difference",
+    "ci95_low",
+    "ci95_high",
+    "bootstrap_p",
+    "mann_whitney_p",
+    "rank_biserial",
+    "cohens_d",
+];
+
+fn comparison_rows(c: &Comparison) -> Vec<Vec<String>> {
+    let f = |v: f64| {
+        if v.is_finite() {
+            format!("{v:.6}")
+        } else {
+            String::new()
+        }
+    };
+    let o = |v: Option<f64>| v.map(f).unwrap_or_default();
+    c.differences
+        .iter()
+        .map(|d| {
+            vec![
+                d.statistic.clone(),
+                d.reference.clone(),
+                d.condition.clone(),
+                d.replicates.0.to_string(),
+                d.replicates.1.to_string(),
+                d.tracks.0.to_string(),
+                d.tracks.1.to_string(),
+                f(d.means.0),
+                f(d.means.1),
+                f(d.difference),
+                f(d.ci95.0),
+                f(d.ci95.1),
+                f(d.bootstrap_p),
+                o(d.mann_whitney_p),
+                o(d.rank_biserial),
+                o(d.cohens_d),
+            ]
+        })
+        .collect()
+}
+
+/// A CSV cell, quoted when it holds a comma, quote or line break (RFC 4180).
+fn csv_cell(s: &str) -> String {
+    if s.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+fn write_replicates(w: &mut impl Write, c: &Comparison) -> std::io::Result<()> {
+    writeln!(w, "statistic,condition,replicate,tracks,mean,standard_deviation")?;
+    for name in &c.statistic_names {
+        for r in &c.replicates[name] {
+            let (m, sd) = mean_sd(&r.values).unwrap_or((f64::NAN, None));
+            writeln!(
+                w,
+                "{},{},{},{},{},{}",
+                csv_cell(name),
+                csv_cell(&r.condition),
+                csv_cell(&r.replicate),
+                r.values.len(),
+                if m.is_finite() {
+                    format!("{m:.6}")
+                } else {
+                    String::new()
+                },
+                sd.map(|s| format!("{s:.6}")).unwrap_or_default()
+            )?;
+        }
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn smallest_p_for_few_replicates() {
+        // Source: METHODS.md §9: 3 vs 3 embryos, smallest possible two-sided MWU p = 0.1;
+        // 5 vs 5: 2/252 = 0.0079 (binomial coefficient C(10,5) = 252).
+        assert!((smallest_possible_p(3, 3) - 0.1).abs() < 1e-12);
+        assert!((smallest_possible_p(5, 5) - 2.0 / 252.0).abs() < 1e-12);
+        assert!(smallest_possible_p(2, 2) >= 0.05 && smallest_possible_p(4, 4) < 0.05);
+    }
+}

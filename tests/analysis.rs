@@ -1,0 +1,201 @@
+//! Migration statistics end to end: a directed stream and a random-wandering dish from our own
+//! synthetic scenarios are told apart, a hand-written tracks CSV is analysed with values
+//! derived by hand, and the HTML report opens in a real headless browser without console
+//! errors and with every chart present.
+
+mod common;
+
+use caravan::analyze::population::AnalysisOptions;
+use caravan::analyze::run::run_analysis;
+use caravan::analyze::table::{CalibrationOverride, Filters};
+use caravan::link::online::LinkParams;
+use caravan::synth::{Scenario, SynthParams};
+use common::track_synthetic;
+use std::path::Path;
+use std::process::Command;
+
+fn analyse(run: &Path) -> serde_json::Value {
+    let out = run.join("analysis");
+    run_analysis(
+        run,
+        CalibrationOverride::default(),
+        &Filters::default(),
+        &AnalysisOptions::default(),
+        &out,
+    )
+    .unwrap();
+    serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap()
+}
+
+#[test]
+fn a_directed_stream_and_a_wandering_dish_are_told_apart() {
+    // Target: Rayleigh p < 0.01 for the stream; its directionality ratio clearly higher.
+    let stream = SynthParams::new(Scenario::Stripe, 384, 256, 30);
+    let dish = SynthParams::new(Scenario::Dish, 384, 256, 30);
+    let s = track_synthetic(&stream, LinkParams::for_diameter(14.0));
+    let d = track_synthetic(&dish, LinkParams::for_diameter(14.0));
+    let (s, d) = (analyse(&s.run), analyse(&d.run));
+    let p = |v: &serde_json::Value| {
+        v["population"]["directions"]["rayleigh_test"]["p_value"]
+            .as_f64()
+            .unwrap()
+    };
+    let ratio = |v: &serde_json::Value| v["population"]["directionality_ratio"]["mean"].as_f64().unwrap();
+    eprintln!(
+        "stream p {:.3e} ratio {:.3}; dish p {:.3e} ratio {:.3}",
+        p(&s),
+        ratio(&s),
+        p(&d),
+        ratio(&d)
+    );
+    assert!(p(&s) < 0.01);
+    assert!(ratio(&s) > ratio(&d) + 0.2);
+    // The stream moves along +x (0°): its V-test toward 0° is significant too.
+    assert!(s["population"]["v_test"]["p_value"].as_f64().unwrap() < 0.01);
+}
+
+/// Straight tracks at 2 px/frame along +x with 0.5 µm pixels and 1-minute frames: speed
+/// 1 µm/min, directionality 1, forward migration index 1 along 0°, MSD(lag n) = n² µm²
+/// (ballistic), order parameter 1 (hand-derived).
+fn straight_tracks_csv(path: &Path, tracks: usize, speed_px: f64) {
+    let mut text = String::from("track_id,frame,x,y,x_um,y_um,time_s\n");
+    for id in 1..=tracks {
+        for f in 0..12 {
+            let (x, y) = (10.0 + speed_px * f as f64, 20.0 * id as f64);
+            text.push_str(&format!("{id},{f},{x},{y},{},{},{}\n", x * 0.5, y * 0.5, 60 * f));
+        }
+    }
+    std::fs::write(path, text).unwrap();
+}
+
+#[test]
+fn a_hand_written_csv_gives_hand_derived_statistics() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("model_output.csv");
+    straight_tracks_csv(&csv, 4, 2.0);
+    let out = dir.path().join("a");
+    let run = run_analysis(
+        &csv,
+        CalibrationOverride::default(),
+        &Filters::default(),
+        &AnalysisOptions::default(),
+        &out,
+    )
+    .unwrap();
+    let s = &run.summary;
+    assert_eq!(run.analysis.units.length, "um");
+    assert!((s["mean_speed_um_per_min"]["mean"].as_f64().unwrap() - 1.0).abs() < 1e-12);
+    assert!((s["directionality_ratio"]["mean"].as_f64().unwrap() - 1.0).abs() < 1e-12);
+    assert!((s["forward_migration_index"]["mean"].as_f64().unwrap() - 1.0).abs() < 1e-12);
+    assert!((s["order_parameter"]["mean"].as_f64().unwrap() - 1.0).abs() < 1e-12);
+    for q in &run.analysis.msd {
+        let n = q.lag_frames as f64;
+        assert!((q.msd - n * n).abs() < 1e-9, "{q:?}");
+    }
+    assert!((run.analysis.anomalous_exponent.unwrap() - 2.0).abs() < 1e-9);
+    for name in caravan::analyze::run::ANALYSIS_OUTPUTS {
+        assert!(out.join(name).exists(), "{name}");
+    }
+}
+
+/// Chromium from the distribution (installed by .ci/run); `None` outside CI when absent.
+fn chromium() -> Option<String> {
+    let path = std::env::var("CARAVAN_CHROMIUM").unwrap_or_else(|_| "/usr/bin/chromium".into());
+    if Path::new(&path).exists() {
+        return Some(path);
+    }
+    assert!(std::env::var("CI").is_err(), "CI must provide Chromium at {path}");
+    eprintln!("no Chromium at {path}: browser check skipped outside CI");
+    None
+}
+
+/// Opens `page` headless and returns the DOM after scripts ran, failing on console messages.
+fn open_in_browser(browser: &str, page: &Path, profile: &Path) -> String {
+    let out = Command::new(browser)
+        .args([
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-quic",
+            "--no-first-run",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            "--enable-logging=stderr",
+            "--v=0",
+            "--virtual-time-budget=3000",
+            &format!("--user-data-dir={}", profile.display()),
+            "--dump-dom",
+            &format!("file://{}", page.display()),
+        ])
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    let console: Vec<&str> = stderr.lines().filter(|l| l.contains("CONSOLE")).collect();
+    assert!(console.is_empty(), "console messages: {console:?}");
+    String::from_utf8(out.stdout).unwrap()
+}
+
+#[test]
+fn reports_open_in_a_browser_with_every_chart() {
+    let dir = tempfile::tempdir().unwrap();
+    let scene = track_synthetic(
+        &SynthParams::new(Scenario::Stripe, 256, 192, 20),
+        LinkParams::for_diameter(14.0),
+    );
+    analyse(&scene.run);
+    // A hand-written comparison: two conditions of three replicates (straight tracks at two
+    // speeds), one file name carrying markup that must show as text.
+    let mut manifest = String::from("path,condition,replicate\n");
+    for (k, (cond, speed)) in [("slow", 1.0), ("fast", 2.0)].iter().enumerate() {
+        for r in 0..3 {
+            let name = format!("{cond}{r}<b>.csv");
+            straight_tracks_csv(&dir.path().join(&name), 3 + r, *speed + 0.1 * r as f64);
+            manifest.push_str(&format!("{name},{cond},{}\n", 10 * k + r));
+        }
+    }
+    std::fs::write(dir.path().join("m.csv"), manifest).unwrap();
+    let entries = caravan::analyze::compare::read_manifest(&dir.path().join("m.csv")).unwrap();
+    let c = caravan::analyze::compare::compare(
+        entries,
+        CalibrationOverride::default(),
+        &Filters::default(),
+        &AnalysisOptions::default(),
+        1,
+    )
+    .unwrap();
+    caravan::analyze::compare::write_comparison(&c, &dir.path().join("m.csv"), &dir.path().join("cmp")).unwrap();
+    let Some(browser) = chromium() else { return };
+    // 8 analysis charts plus objects and threshold per frame of the tracking run.
+    let dom = open_in_browser(
+        &browser,
+        &scene.run.join("analysis/report.html"),
+        &dir.path().join("p1"),
+    );
+    assert!(
+        dom.contains("data-charts=\"10\""),
+        "{}",
+        &dom[dom.len().saturating_sub(300)..]
+    );
+    for id in [
+        "trajectories",
+        "rose",
+        "msd",
+        "speed",
+        "directionality",
+        "order",
+        "autocorrelation",
+        "neighbours",
+        "objects",
+        "threshold",
+    ] {
+        assert!(dom.contains(&format!("id=\"{id}\"")), "{id}");
+    }
+    // One strip chart per compared statistic (4).
+    let dom = open_in_browser(&browser, &dir.path().join("cmp/report.html"), &dir.path().join("p2"));
+    assert!(dom.contains("data-charts=\"4\""));
+    assert!(
+        dom.contains("slow0&lt;b&gt;.csv"),
+        "file names with markup show as text"
+    );
+}
