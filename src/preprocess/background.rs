@@ -46,12 +46,16 @@ pub fn background_estimate(image: &Image, window: usize, smooth_sigma: f32) -> I
 /// Minimum over non-overlapping `f` x `f` blocks (edge blocks over what exists).
 fn block_min(image: &Image, f: usize) -> Image {
     let (h, w) = image.dim();
-    let mut out = Image::from_elem((h.div_ceil(f), w.div_ceil(f)), f32::INFINITY);
-    for ((y, x), &v) in image.indexed_iter() {
-        let o = &mut out[[y / f, x / f]];
-        *o = o.min(v);
+    let (sh, sw) = (h.div_ceil(f), w.div_ceil(f));
+    let mut out = vec![f32::INFINITY; sh * sw];
+    let src = image.as_slice().expect("standard layout");
+    for (y, row) in src.chunks_exact(w).enumerate() {
+        let target = &mut out[(y / f) * sw..(y / f + 1) * sw];
+        for (o, block) in target.iter_mut().zip(row.chunks(f)) {
+            *o = block.iter().fold(*o, |m, &v| m.min(v));
+        }
     }
-    out
+    Image::from_shape_vec((sh, sw), out).expect("sized buffer")
 }
 
 /// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points.
@@ -63,16 +67,18 @@ fn upsample_bilinear(small: &Image, f: usize, (h, w): (usize, usize)) -> Image {
         (i0, (i0 + 1).min(n - 1), c - i0 as f32)
     };
     let columns: Vec<(usize, usize, f32)> = (0..w).map(|x| coordinate(x, sw)).collect();
-    let mut out = Image::zeros((h, w));
-    for y in 0..h {
+    let src = small.as_slice().expect("standard layout");
+    let mut out = vec![0f32; h * w];
+    for (y, row) in out.chunks_exact_mut(w).enumerate() {
         let (y0, y1, fy) = coordinate(y, sh);
-        for (x, &(x0, x1, fx)) in columns.iter().enumerate() {
-            let top = small[[y0, x0]] * (1.0 - fx) + small[[y0, x1]] * fx;
-            let bottom = small[[y1, x0]] * (1.0 - fx) + small[[y1, x1]] * fx;
-            out[[y, x]] = top * (1.0 - fy) + bottom * fy;
+        let (r0, r1) = (&src[y0 * sw..(y0 + 1) * sw], &src[y1 * sw..(y1 + 1) * sw]);
+        for (o, &(x0, x1, fx)) in row.iter_mut().zip(&columns) {
+            let top = r0[x0] * (1.0 - fx) + r0[x1] * fx;
+            let bottom = r1[x0] * (1.0 - fx) + r1[x1] * fx;
+            *o = top * (1.0 - fy) + bottom * fy;
         }
     }
-    out
+    Image::from_shape_vec((h, w), out).expect("sized buffer")
 }
 
 /// Grey-scale opening (erosion then dilation) by a flat `window` x `window` square, borders by
@@ -86,57 +92,83 @@ pub fn min_filter_square(image: &Image, window: usize) -> Image {
     filter_square(image, window, f32::min)
 }
 
-/// Running maximum over a `window` x `window` square (grey dilation).
+/// Running maximum over a `window` x `window` square (reflected borders).
 pub fn max_filter_square(image: &Image, window: usize) -> Image {
     filter_square(image, window, f32::max)
 }
 
-fn filter_square(image: &Image, window: usize, pick: fn(f32, f32) -> f32) -> Image {
-    let mut rows = image.clone();
-    for mut row in rows.rows_mut() {
-        let line: Vec<f32> = row.to_vec();
-        running_extreme(&line, window, pick, row.as_slice_mut().expect("contiguous row"));
+/// A separable running extreme: rows, then columns, reusing one set of line buffers. Generic
+/// over `pick` so that the comparison is inlined rather than called through a pointer.
+fn filter_square<F: Fn(f32, f32) -> f32 + Copy>(image: &Image, window: usize, pick: F) -> Image {
+    let (h, w) = image.dim();
+    let mut scratch = LineScratch::default();
+    let mut rows = vec![0f32; h * w];
+    let src = image.as_slice().expect("standard layout");
+    for (line, out) in src.chunks_exact(w).zip(rows.chunks_exact_mut(w)) {
+        running_extreme_with(line, window, pick, out, &mut scratch);
     }
-    let mut out = rows.clone();
-    let mut column = vec![0f32; rows.nrows()];
-    let mut result = vec![0f32; rows.nrows()];
-    for x in 0..rows.ncols() {
+    let mut out = vec![0f32; h * w];
+    let mut column = vec![0f32; h];
+    let mut result = vec![0f32; h];
+    for x in 0..w {
         for (y, c) in column.iter_mut().enumerate() {
-            *c = rows[[y, x]];
+            *c = rows[y * w + x];
         }
-        running_extreme(&column, window, pick, &mut result);
+        running_extreme_with(&column, window, pick, &mut result, &mut scratch);
         for (y, r) in result.iter().enumerate() {
-            out[[y, x]] = *r;
+            out[y * w + x] = *r;
         }
     }
-    out
+    Image::from_shape_vec((h, w), out).expect("sized buffer")
 }
 
-/// van Herk / Gil–Werman: extreme over a centred window in O(1) per sample, using block-wise
-/// prefix and suffix extremes of the reflected line.
+/// Buffers of the van Herk/Gil-Werman running extreme, reused line after line.
+#[derive(Default)]
+struct LineScratch {
+    padded: Vec<f32>,
+    prefix: Vec<f32>,
+    suffix: Vec<f32>,
+}
+
+#[cfg(test)]
 fn running_extreme(line: &[f32], window: usize, pick: fn(f32, f32) -> f32, out: &mut [f32]) {
+    running_extreme_with(line, window, pick, out, &mut LineScratch::default());
+}
+
+/// Running extreme of `line` over `window` (odd) with reflected borders, in O(n) whatever the
+/// window: block-wise prefix and suffix extremes (M. van Herk (1992), Pattern Recognit. Lett.
+/// 13(7):517–521; J. Gil & M. Werman (1993), IEEE PAMI 15(5):504–507).
+fn running_extreme_with<F: Fn(f32, f32) -> f32 + Copy>(
+    line: &[f32],
+    window: usize,
+    pick: F,
+    out: &mut [f32],
+    s: &mut LineScratch,
+) {
     let n = line.len();
     let k = window.max(1);
     let r = k / 2;
-    let padded: Vec<f32> = (0..n + 2 * r)
-        .map(|i| line[reflect(i as isize - r as isize, n)])
-        .collect();
-    let m = padded.len();
-    let mut prefix = padded.clone();
-    let mut suffix = padded.clone();
-    for i in 1..m {
-        if i % k != 0 {
-            prefix[i] = pick(prefix[i - 1], padded[i]);
+    s.padded.clear();
+    s.padded
+        .extend((0..n + 2 * r).map(|i| line[reflect(i as isize - r as isize, n)]));
+    let m = s.padded.len();
+    s.prefix.clear();
+    s.prefix.extend_from_slice(&s.padded);
+    s.suffix.clear();
+    s.suffix.extend_from_slice(&s.padded);
+    for block in s.prefix.chunks_mut(k) {
+        for i in 1..block.len() {
+            block[i] = pick(block[i - 1], block[i]);
         }
     }
-    for i in (0..m.saturating_sub(1)).rev() {
-        if (i + 1) % k != 0 {
-            suffix[i] = pick(suffix[i + 1], padded[i]);
+    for block in s.suffix.chunks_mut(k) {
+        for i in (0..block.len().saturating_sub(1)).rev() {
+            block[i] = pick(block[i + 1], block[i]);
         }
     }
+    debug_assert!(m >= n + k - 1);
     for (i, o) in out.iter_mut().enumerate() {
-        let end = i + k - 1;
-        *o = pick(suffix[i], prefix[end]);
+        *o = pick(s.suffix[i], s.prefix[i + k - 1]);
     }
 }
 

@@ -11,70 +11,113 @@ const FAR: f64 = f64::INFINITY;
 /// Theory of Computing 8:415–428, doi:10.4086/toc.2012.v008a019 (algorithm DT(f), with the
 /// parabola intersection `s` and the pop rule `s ≤ z[k]`); `spacing` scales the axis.
 pub fn squared_distance_1d(f: &[f64], spacing: f64, out: &mut [f64]) {
-    let n = f.len();
-    let s2 = spacing * spacing;
-    let mut v = vec![0usize; n];
-    let mut z = vec![0f64; n + 1];
-    let mut k = 0usize;
-    let first = match f.iter().position(|x| x.is_finite()) {
-        Some(i) => i,
-        None => {
-            out.iter_mut().for_each(|o| *o = FAR);
-            return;
-        }
-    };
-    v[0] = first;
-    z[0] = f64::NEG_INFINITY;
-    z[1] = f64::INFINITY;
-    for q in first + 1..n {
-        if !f[q].is_finite() {
-            continue;
-        }
-        loop {
-            let p = v[k];
-            let s = ((f[q] + s2 * (q * q) as f64) - (f[p] + s2 * (p * p) as f64)) / (2.0 * s2 * (q as f64 - p as f64));
-            if s <= z[k] {
-                // z[0] is -inf, so this pops only while k > 0.
-                k -= 1;
+    let mut scratch = Envelope::default();
+    scratch.transform(f, spacing, out);
+}
+
+/// Reusable buffers of the lower envelope (one allocation per image, not per line).
+#[derive(Default)]
+struct Envelope {
+    v: Vec<usize>,
+    z: Vec<f64>,
+}
+
+impl Envelope {
+    fn transform(&mut self, f: &[f64], spacing: f64, out: &mut [f64]) {
+        let n = f.len();
+        let s2 = spacing * spacing;
+        self.v.resize(n, 0);
+        self.z.resize(n + 1, 0.0);
+        let (v, z) = (&mut self.v, &mut self.z);
+        let mut k = 0usize;
+        let first = match f.iter().position(|x| x.is_finite()) {
+            Some(i) => i,
+            None => {
+                out.iter_mut().for_each(|o| *o = FAR);
+                return;
+            }
+        };
+        v[0] = first;
+        z[0] = f64::NEG_INFINITY;
+        z[1] = f64::INFINITY;
+        for q in first + 1..n {
+            if !f[q].is_finite() {
                 continue;
             }
-            k += 1;
-            v[k] = q;
-            z[k] = s;
-            z[k + 1] = f64::INFINITY;
-            break;
+            loop {
+                let p = v[k];
+                let s =
+                    ((f[q] + s2 * (q * q) as f64) - (f[p] + s2 * (p * p) as f64)) / (2.0 * s2 * (q as f64 - p as f64));
+                if s <= z[k] {
+                    // z[0] is -inf, so this pops only while k > 0.
+                    k -= 1;
+                    continue;
+                }
+                k += 1;
+                v[k] = q;
+                z[k] = s;
+                z[k + 1] = f64::INFINITY;
+                break;
+            }
         }
-    }
-    let mut k = 0;
-    for (q, o) in out.iter_mut().enumerate() {
-        while z[k + 1] < q as f64 {
-            k += 1;
+        let mut k = 0;
+        for (q, o) in out.iter_mut().enumerate() {
+            while z[k + 1] < q as f64 {
+                k += 1;
+            }
+            let d = q as f64 - v[k] as f64;
+            *o = s2 * d * d + f[v[k]];
         }
-        let d = q as f64 - v[k] as f64;
-        *o = s2 * d * d + f[v[k]];
     }
 }
 
 /// Squared Euclidean distance to the nearest background pixel, for a row-major mask
 /// (`true` = foreground); `spacing = (row, column)` physical steps. Background pixels get 0.
 /// Without any background pixel the result is infinite.
+///
+/// The column pass of a binary mask needs no envelope: the distance to the nearest background
+/// pixel in the same column comes from one downward and one upward scan over whole rows
+/// (phase 1 of A. Meijster, J. B. T. M. Roerdink & W. H. Hesselink (2000), "A general
+/// algorithm for computing distance transforms in linear time", in Mathematical Morphology and
+/// its Applications to Image and Signal Processing, Kluwer, pp. 331–340), which reads memory in
+/// order; the row pass is the envelope above.
 pub fn squared_edt(mask: &[bool], width: usize, height: usize, spacing: (f64, f64)) -> Vec<f64> {
-    let mut columns_done = vec![0f64; width * height];
-    let mut line = vec![0f64; height];
-    let mut out_line = vec![0f64; height];
-    for x in 0..width {
-        for y in 0..height {
-            line[y] = if mask[y * width + x] { FAR } else { 0.0 };
-        }
-        squared_distance_1d(&line, spacing.0, &mut out_line);
-        for y in 0..height {
-            columns_done[y * width + x] = out_line[y];
+    // Rows to the nearest background pixel of the column (u32::MAX: none).
+    let mut g = vec![u32::MAX; width * height];
+    for y in 0..height {
+        for x in 0..width {
+            let i = y * width + x;
+            g[i] = if !mask[i] {
+                0
+            } else if y > 0 {
+                g[i - width].saturating_add(1)
+            } else {
+                u32::MAX
+            };
         }
     }
+    for y in (0..height.saturating_sub(1)).rev() {
+        for x in 0..width {
+            let i = y * width + x;
+            let below = g[i + width].saturating_add(1);
+            if below < g[i] {
+                g[i] = below;
+            }
+        }
+    }
+    let row_step2 = spacing.0 * spacing.0;
     let mut out = vec![0f64; width * height];
+    let mut line = vec![0f64; width];
+    let mut envelope = Envelope::default();
     for y in 0..height {
-        let row = &columns_done[y * width..(y + 1) * width];
-        squared_distance_1d(row, spacing.1, &mut out[y * width..(y + 1) * width]);
+        for (l, &d) in line.iter_mut().zip(&g[y * width..(y + 1) * width]) {
+            *l = if d == u32::MAX {
+                FAR
+            } else {
+                row_step2 * (d as f64) * (d as f64)
+            };
+        }
+        envelope.transform(&line, spacing.1, &mut out[y * width..(y + 1) * width]);
     }
     out
 }

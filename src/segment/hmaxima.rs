@@ -1,74 +1,63 @@
 //! Seeds for the watershed: the h-maxima of the distance map, i.e. maxima whose dynamic
 //! (height above the saddle to a taller peak) is at least `h`.
 
-use std::cmp::Ordering;
-use std::collections::BinaryHeap;
+/// Levels per pixel of distance when values are quantised for the bucket queue: 1/256 px is
+/// far below the precision of a segmented outline.
+pub const LEVELS_PER_UNIT: f64 = 256.0;
 
-/// Marks the h-maxima of `values` inside `mask`: pixels where `values − R(values − h) ≥ h`,
-/// with `R` the grey reconstruction by dilation under `values` (8-connected).
+/// Marks the h-maxima of `values` (non-negative, e.g. a distance map) inside `mask`: pixels
+/// where `values − R(values − h) ≥ h`, with `R` the grey reconstruction by dilation under
+/// `values` (8-connected).
 ///
 /// # Method
 /// P. Soille (2003), *Morphological Image Analysis*, 2nd ed., Springer, §6.3.4 (h-maxima via
-/// reconstruction); reconstruction by priority-queue propagation, L. Vincent (1993),
-/// "Morphological grayscale reconstruction in image analysis", IEEE Trans. Image Process.
-/// 2(2):176–201, doi:10.1109/83.217222. As scikit-image `h_maxima`, the marker is lowered by a
-/// further `2·ε·|v|` so that a dynamic exactly equal to `h` keeps its seed.
+/// reconstruction); reconstruction by propagation from the highest level down, L. Vincent
+/// (1993), "Morphological grayscale reconstruction in image analysis", IEEE Trans. Image
+/// Process. 2(2):176–201, doi:10.1109/83.217222, with a hierarchical (bucket) queue over values
+/// quantised to 1/[`LEVELS_PER_UNIT`] (departure: values are rounded to that step). As
+/// scikit-image `h_maxima`, a dynamic exactly equal to `h` keeps its seed.
 pub fn h_maxima(values: &[f32], mask: &[bool], width: usize, height: usize, h: f64) -> Vec<bool> {
     let n = values.len();
-    let mut rec = vec![f64::NEG_INFINITY; n];
-    let mut heap = BinaryHeap::new();
-    for i in 0..n {
-        if mask[i] {
-            let v = values[i] as f64;
-            let marker = v - h - 2.0 * f64::EPSILON * v.abs();
-            rec[i] = marker;
-            heap.push(Item {
-                value: marker,
-                index: i,
-            });
-        }
+    // f32 arithmetic: distances of a frame are far below 2^24 / 256, so the product is exact
+    // enough and `as u32` saturates.
+    let level = |v: f32| (v.max(0.0) * LEVELS_PER_UNIT as f32 + 0.5) as u32;
+    let levels: Vec<u32> = values.iter().map(|&v| level(v)).collect();
+    let h_levels = (h * LEVELS_PER_UNIT).round().max(0.0) as u32;
+    // Marker = value − h (as levels, floored at 0); reconstruction starts from it.
+    let mut rec: Vec<u32> = levels.iter().map(|&v| v.saturating_sub(h_levels)).collect();
+    let top = (0..n).filter(|&i| mask[i]).map(|i| rec[i]).max().unwrap_or(0) as usize;
+    let mut buckets: Vec<Vec<u32>> = vec![Vec::new(); top + 1];
+    // A pixel whose marker is at level 0 can raise nothing (every level is ≥ 0), so it is
+    // never queued; level 0 is not processed.
+    for i in (0..n).filter(|&i| mask[i] && rec[i] > 0) {
+        buckets[rec[i] as usize].push(i as u32);
     }
-    while let Some(Item { value, index }) = heap.pop() {
-        if value < rec[index] {
-            continue;
-        }
-        for q in neighbours8(index, width, height) {
-            if !mask[q] {
-                continue;
+    for current in (1..=top).rev() {
+        let mut cursor = 0;
+        while cursor < buckets[current].len() {
+            let p = buckets[current][cursor] as usize;
+            cursor += 1;
+            if rec[p] as usize != current {
+                continue; // raised after it was queued at this level
             }
-            let candidate = value.min(values[q] as f64);
-            if candidate > rec[q] {
-                rec[q] = candidate;
-                heap.push(Item {
-                    value: candidate,
-                    index: q,
-                });
+            for q in neighbours8(p, width, height) {
+                if !mask[q] {
+                    continue;
+                }
+                let candidate = (current as u32).min(levels[q]);
+                if candidate > rec[q] {
+                    rec[q] = candidate;
+                    buckets[candidate as usize].push(q as u32);
+                }
             }
         }
+        buckets[current] = Vec::new();
     }
-    (0..n).map(|i| mask[i] && values[i] as f64 - rec[i] >= h).collect()
+    (0..n)
+        .map(|i| mask[i] && levels[i] >= h_levels && levels[i] - rec[i] >= h_levels)
+        .collect()
 }
 
-#[derive(PartialEq)]
-struct Item {
-    value: f64,
-    index: usize,
-}
-impl Eq for Item {}
-impl PartialOrd for Item {
-    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
-        Some(self.cmp(other))
-    }
-}
-impl Ord for Item {
-    fn cmp(&self, other: &Self) -> Ordering {
-        self.value
-            .total_cmp(&other.value)
-            .then_with(|| other.index.cmp(&self.index))
-    }
-}
-
-/// The up-to-8 neighbours of a pixel inside the image.
 pub(crate) fn neighbours8(i: usize, width: usize, height: usize) -> impl Iterator<Item = usize> {
     let (x, y) = ((i % width) as isize, (i / width) as isize);
     const OFFSETS: [(isize, isize); 8] = [(-1, -1), (0, -1), (1, -1), (-1, 0), (1, 0), (-1, 1), (0, 1), (1, 1)];

@@ -1,31 +1,74 @@
 //! Mask clean-up and label bookkeeping: hole filling, connected components, size filtering
 //! and canonical relabelling.
 
-use super::hmaxima::{neighbours4, neighbours8};
+use super::hmaxima::neighbours8;
 
 /// Fills holes: background regions (4-connected) that do not reach the image border become
 /// foreground. A nucleus with a dim nucleolus is one object, not a ring.
+///
+/// Background runs of each row are joined with the overlapping runs of the row above by
+/// union-find (a run-based two-pass labelling, as in K. Wu, E. Otoo & K. Suzuki (2009),
+/// "Optimizing two-pass connected-component labeling algorithms", Pattern Anal. Appl.
+/// 12:117–135, doi:10.1007/s10044-008-0109-y), so the cost follows the number of runs rather
+/// than a flood over every background pixel.
 pub fn fill_holes(mask: &mut [bool], width: usize, height: usize) {
-    let n = mask.len();
-    let mut outside = vec![false; n];
-    let mut stack: Vec<usize> = Vec::new();
-    for i in 0..n {
-        let (x, y) = (i % width, i / width);
-        let border = x == 0 || y == 0 || x + 1 == width || y + 1 == height;
-        if border && !mask[i] && !outside[i] {
-            outside[i] = true;
-            stack.push(i);
+    // Runs of background: (row, start, end exclusive).
+    let mut runs: Vec<(usize, usize, usize)> = Vec::new();
+    let mut row_start = Vec::with_capacity(height + 1);
+    for y in 0..height {
+        row_start.push(runs.len());
+        let row = &mask[y * width..(y + 1) * width];
+        let mut x = 0;
+        while x < width {
+            if row[x] {
+                x += 1;
+                continue;
+            }
+            let start = x;
+            while x < width && !row[x] {
+                x += 1;
+            }
+            runs.push((y, start, x));
         }
     }
-    while let Some(p) = stack.pop() {
-        for q in neighbours4(p, width, height) {
-            if !mask[q] && !outside[q] {
-                outside[q] = true;
-                stack.push(q);
+    row_start.push(runs.len());
+    let mut parent: Vec<usize> = (0..runs.len()).collect();
+    fn find(p: &mut [usize], mut i: usize) -> usize {
+        while p[i] != i {
+            p[i] = p[p[i]];
+            i = p[i];
+        }
+        i
+    }
+    for y in 1..height {
+        let (above, here) = (row_start[y - 1]..row_start[y], row_start[y]..row_start[y + 1]);
+        let mut a = above.start;
+        for r in here {
+            let (_, s, e) = runs[r];
+            while a < above.end && runs[a].2 <= s {
+                a += 1;
+            }
+            let mut b = a;
+            while b < above.end && runs[b].1 < e {
+                let (ra, rb) = (find(&mut parent, b), find(&mut parent, r));
+                parent[ra.max(rb)] = ra.min(rb);
+                b += 1;
             }
         }
     }
-    mask.iter_mut().zip(&outside).for_each(|(m, o)| *m = !*o);
+    let mut outside = vec![false; runs.len()];
+    for (k, &(y, s, e)) in runs.iter().enumerate() {
+        if y == 0 || y + 1 == height || s == 0 || e == width {
+            let root = find(&mut parent, k);
+            outside[root] = true;
+        }
+    }
+    for (k, &(y, s, e)) in runs.iter().enumerate() {
+        let root = find(&mut parent, k);
+        if !outside[root] {
+            mask[y * width + s..y * width + e].iter_mut().for_each(|m| *m = true);
+        }
+    }
 }
 
 /// Labels the 8-connected components of `mask` 1, 2, ... in raster order of their first pixel.

@@ -58,7 +58,7 @@ pub fn choose_threshold(values: &[f32], method: ThresholdMethod) -> f64 {
     if let ThresholdMethod::Fixed(t) = method {
         return t;
     }
-    let Some(hist) = Histogram::of_floats(values.iter().map(|&v| v as f64), THRESHOLD_BINS) else {
+    let Some(hist) = Histogram::of_f32(values, THRESHOLD_BINS) else {
         return f64::INFINITY;
     };
     if hist.counts.iter().filter(|&&c| c > 0).count() < 2 {
@@ -86,7 +86,10 @@ pub fn split_touching(
 ) -> Vec<u32> {
     let squared = distance_transform::squared_edt(mask, width, height, (1.0, 1.0));
     let levels: Vec<u32> = squared.iter().map(|&d| d.min(u32::MAX as f64 / 2.0) as u32).collect();
-    let distance: Vec<f32> = squared.iter().map(|&d| d.sqrt() as f32).collect();
+    let distance: Vec<f32> = squared
+        .iter()
+        .map(|&d| if d > 0.0 { d.sqrt() as f32 } else { 0.0 })
+        .collect();
     let distance = if distance_smoothing_px > 0.0 {
         gaussian_blur(
             &crate::image2d::from_vec(width, height, distance),

@@ -35,11 +35,26 @@ impl Histogram {
     /// `nbins` equal bins over [min, max] of the finite values, as `numpy.histogram`;
     /// non-finite values are ignored. Returns `None` when no value is finite.
     pub fn of_floats(values: impl Iterator<Item = f64> + Clone, nbins: usize) -> Option<Histogram> {
-        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-        for v in values.clone().filter(|v| v.is_finite()) {
-            lo = lo.min(v);
-            hi = hi.max(v);
-        }
+        let (lo, hi) = values
+            .clone()
+            .filter(|v| v.is_finite())
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(v), hi.max(v)));
+        Self::binned(values, lo, hi, nbins)
+    }
+
+    /// As [`Histogram::of_floats`] over `f32` values, with the range found in `f32` (exact:
+    /// every `f32` is an `f64`), for whole frames.
+    pub fn of_f32(values: &[f32], nbins: usize) -> Option<Histogram> {
+        let (lo, hi) = values
+            .iter()
+            .filter(|v| v.is_finite())
+            .fold((f32::INFINITY, f32::NEG_INFINITY), |(lo, hi), &v| {
+                (lo.min(v), hi.max(v))
+            });
+        Self::binned(values.iter().map(|&v| v as f64), lo as f64, hi as f64, nbins)
+    }
+
+    fn binned(values: impl Iterator<Item = f64>, mut lo: f64, mut hi: f64, nbins: usize) -> Option<Histogram> {
         if lo > hi {
             return None;
         }
@@ -51,8 +66,13 @@ impl Histogram {
         let edges = linspace(lo, hi, nbins + 1);
         let mut counts = vec![0u64; nbins];
         let denom = hi - lo;
+        // Runs of equal values (a clamped background is mostly exact zeros) reuse their bin.
+        let mut last = (f64::NAN, 0usize);
         for v in values.filter(|v| v.is_finite()) {
-            counts[numpy_bin(v, lo, denom, &edges, nbins)] += 1;
+            if v != last.0 {
+                last = (v, numpy_bin(v, lo, denom, &edges, nbins));
+            }
+            counts[last.1] += 1;
         }
         let centers = edges.windows(2).map(|e| (e[0] + e[1]) / 2.0).collect();
         Some(Histogram {

@@ -1,0 +1,55 @@
+#!/usr/bin/env bash
+# End-to-end speed against the plain scientific-Python way (benches/python_baseline.py:
+# scipy + scikit-image, one process), on the same synthetic recording, in the same run,
+# alternating, with both accuracies against the truth.
+#
+#   bash benches/versus_python.sh [WORK_DIR] [ROUNDS]     # ~4 min with 3 rounds
+#
+# Prints the median wall time of each, their ratio, the peak resident memory of each
+# (/usr/bin/time), and detection F1, TRA and link recall of each (caravan score).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+work="${1:-$(mktemp -d)}"
+rounds="${2:-3}"
+mkdir -p "$work"
+cargo build --release --locked --quiet
+bin="$PWD/target/release/caravan"
+venv="${TMPDIR:-/tmp}/caravan-bench-venv"
+[ -x "$venv/bin/python" ] || python3 -m venv "$venv"
+"$venv/bin/pip" install --quiet numpy==2.4.6 scipy==1.17.1 scikit-image==0.26.0 tifffile==2026.3.3
+
+rec="$work/rec"
+[ -f "$rec/recording.tif" ] || "$bin" synth -o "$rec" --size 1024x1024 --frames 100 --nuclei 300 \
+  --compression none --seed 11 >/dev/null
+
+measure() { # label, command...: appends "seconds kilobytes" to $work/label.times
+  local label=$1; shift
+  /usr/bin/time -f "%e %M" -o "$work/$label.last" "$@" >/dev/null
+  cat "$work/$label.last" >>"$work/$label.times"
+}
+rm -f "$work"/caravan.times "$work"/python.times
+for _ in $(seq "$rounds"); do
+  measure caravan "$bin" track "$rec/recording.tif" -o "$work/caravan_run" --diameter 14px \
+    --no-movie --no-analysis --force
+  measure python "$venv/bin/python" benches/python_baseline.py "$rec/recording.tif" "$work/python_tracks.csv" 14
+done
+"$bin" score --truth "$rec" --tracks "$work/caravan_run" -o "$work/caravan_score.json" >/dev/null
+"$bin" score --truth "$rec" --tracks "$work/python_tracks.csv" -o "$work/python_score.json" >/dev/null
+
+python3 - "$work" "$rounds" <<'PY'
+import json, statistics, sys, os, platform
+work, rounds = sys.argv[1], int(sys.argv[2])
+def times(label):
+    rows = [l.split() for l in open(f"{work}/{label}.times") if l.strip()]
+    return statistics.median(float(r[0]) for r in rows), max(int(r[1]) for r in rows) / 1024
+(ct, cm), (pt, pm) = times("caravan"), times("python")
+cs = json.load(open(f"{work}/caravan_score.json"))["score"]
+ps = json.load(open(f"{work}/python_score.json"))["score"]
+cpu = next((l.split(":", 1)[1].strip() for l in open("/proc/cpuinfo") if l.startswith("model name")), platform.processor())
+print(f"machine: {os.cpu_count()} cores, {cpu}; {rounds} rounds, 100 frames of 1024x1024 px, ~300 nuclei")
+print("| | median wall time | peak memory | detection F1 | TRA | link recall |")
+print("|---|---|---|---|---|---|")
+for name, t, m, s in (("caravan track", ct, cm, cs), ("Python script", pt, pm, ps)):
+    print(f"| {name} | {t:.2f} s | {m:.0f} MB | {s['detection_f1']:.4f} | {s['tra']:.4f} | {s['link_recall']:.4f} |")
+print(f"speed ratio (Python / caravan): {pt / ct:.1f}x; {100 * 1024 * 1024 / 1e6 / ct:.1f} vs {100 * 1024 * 1024 / 1e6 / pt:.1f} megapixels per second")
+PY
