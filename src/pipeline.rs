@@ -3,6 +3,7 @@
 //! terminal, and the `segment` run with its outputs. No per-pixel work happens here.
 
 use crate::analyze::{summarize_track, write_per_track, TrackSummary};
+use crate::checkpoint::{CheckpointLog, Fingerprint, FrameRecord};
 use crate::error::{Error, Result};
 use crate::link::divide::DivisionEvent;
 use crate::link::online::{LinkParams, OnlineLinker};
@@ -96,12 +97,17 @@ pub struct SegmentedFrames<'a> {
 impl<'a> SegmentedFrames<'a> {
     /// Iterates over all frames of `stack`.
     pub fn new(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar) -> Self {
+        Self::starting_at(stack, params, progress, 0)
+    }
+
+    /// Iterates over the frames of `stack` from `first` on.
+    pub fn starting_at(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar, first: usize) -> Self {
         let frames = stack.info().frames;
         let batch = 2 * rayon::current_num_threads().max(1);
         SegmentedFrames {
             stack,
             params,
-            range: 0..frames,
+            range: first.min(frames)..frames,
             decoded: Vec::new(),
             ready: VecDeque::new(),
             failed: None,
@@ -223,6 +229,10 @@ pub struct SegmentOutputs {
     pub movie: Option<MovieOptions>,
     /// Replace the outputs of an earlier run in the same folder (otherwise refused).
     pub replace: bool,
+    /// Keep a checkpoint every this many frames (not with `labels`).
+    pub checkpoint_every: Option<usize>,
+    /// Continue from the folder's checkpoint.
+    pub resume: bool,
 }
 
 /// Every file a run may write; a replacing run removes the ones it did not write this time,
@@ -283,34 +293,32 @@ pub fn run_recording(
     let started = Instant::now();
     let info = stack.info().clone();
     let calibration = info.calibration;
-    let mut csv = AtomicFile::create(&dir.join("detections.csv"))?;
-    write_detections_header(&mut csv).map_err(|e| csv.error(e))?;
-    let mut frames = Vec::with_capacity(info.frames);
-    let mut linker = outputs.linking.map(OnlineLinker::new);
-    let mut tracked: Vec<TrackedDetection> = Vec::new();
-    let mut neighbour_distances: Vec<f64> = Vec::new();
-    let mut spool = match (outputs.linking, outputs.movie) {
-        (Some(_), Some(_)) => Some(OutlineSpool::create(dir)?),
-        _ => None,
-    };
-    let mut handle = |seg: FrameSegmentation, csv: &mut AtomicFile| -> Result<Vec<u32>> {
-        write_detections(csv, &seg.detections, &calibration).map_err(|e| csv.error(e))?;
-        frames.push(FrameSummary {
-            frame: seg.frame,
-            threshold: seg.threshold.is_finite().then_some(seg.threshold),
-            objects: seg.detections.len(),
-        });
+    remove_stale_partials(dir);
+    let mut pass = FirstPass::new(dir, outputs, &info)?;
+    let (mut checkpoint, replayed) = start_checkpoint(dir, outputs, &info, params, diameter)?;
+    for record in replayed {
+        pass.take(record)?;
+    }
+    let mut spool = pass.spool(dir, outputs, checkpoint.is_some())?;
+    let first = checkpoint.as_ref().map_or(0, |c| c.frames_done());
+    let progress = progress_bar(info.frames as u64, "frames");
+    progress.set_position(first as u64);
+    let mut segmented = SegmentedFrames::starting_at(stack, params, progress, first);
+    let mut handle = |seg: FrameSegmentation| -> Result<Vec<u32>> {
         if let Some(s) = spool.as_mut() {
             s.push(&seg.labels, info.width, info.height)?;
         }
-        if let Some(l) = linker.as_mut() {
-            let points: Vec<[f64; 2]> = seg.detections.iter().map(|d| [d.x, d.y]).collect();
-            neighbour_distances.extend(nearest_neighbour_distances(&points).into_iter().flatten());
-            tracked.extend(l.push(seg.detections));
+        let record = FrameRecord {
+            frame: seg.frame,
+            threshold: seg.threshold.is_finite().then_some(seg.threshold),
+            detections: seg.detections,
+        };
+        if let Some(c) = checkpoint.as_mut() {
+            c.record(&record, || spool.as_mut().map_or(Ok(0), |s| s.flushed_len()))?;
         }
+        pass.take(record)?;
         Ok(seg.labels)
     };
-    let mut segmented = SegmentedFrames::new(stack, params, progress_bar(info.frames as u64, "frames"));
     if outputs.labels {
         write_stack::<u32, _>(
             &dir.join("labels.tif"),
@@ -321,14 +329,21 @@ pub fn run_recording(
             None,
             |_| {
                 let seg = segmented.next().expect("one result per frame")?;
-                handle(seg, &mut csv)
+                handle(seg)
             },
         )?;
     } else {
         for seg in segmented {
-            handle(seg?, &mut csv)?;
+            handle(seg?)?;
         }
     }
+    let FirstPass {
+        csv,
+        frames,
+        mut tracked,
+        mut neighbour_distances,
+        ..
+    } = pass;
     csv.commit()?;
     let first_pass_s = started.elapsed().as_secs_f64();
     let (tracks, linking_qc, resolution) = match outputs.linking {
@@ -386,7 +401,105 @@ pub fn run_recording(
         &serde_json::to_vec_pretty(&record).expect("serialisable"),
     )?;
     remove_stale_outputs(dir, outputs);
+    drop(spool);
+    if let Some(c) = checkpoint {
+        c.finish();
+    }
     Ok(run)
+}
+
+/// The first pass's accumulators: detections.csv, per-frame summaries, the online linker and
+/// its output. Frames come in from segmentation or from a checkpoint's log alike.
+struct FirstPass {
+    csv: AtomicFile,
+    calibration: crate::stack::Calibration,
+    frames: Vec<FrameSummary>,
+    linker: Option<OnlineLinker>,
+    tracked: Vec<TrackedDetection>,
+    neighbour_distances: Vec<f64>,
+}
+
+impl FirstPass {
+    fn new(dir: &Path, outputs: &SegmentOutputs, info: &crate::stack::StackInfo) -> Result<FirstPass> {
+        let mut csv = AtomicFile::create(&dir.join("detections.csv"))?;
+        write_detections_header(&mut csv).map_err(|e| csv.error(e))?;
+        Ok(FirstPass {
+            csv,
+            calibration: info.calibration,
+            frames: Vec::with_capacity(info.frames),
+            linker: outputs.linking.map(OnlineLinker::new),
+            tracked: Vec::new(),
+            neighbour_distances: Vec::new(),
+        })
+    }
+
+    /// The outline spool of the movie (durable inside the checkpoint when checkpointing).
+    fn spool(&self, dir: &Path, outputs: &SegmentOutputs, checkpointing: bool) -> Result<Option<OutlineSpool>> {
+        if outputs.linking.is_none() || outputs.movie.is_none() {
+            return Ok(None);
+        }
+        Ok(Some(if checkpointing {
+            let path = crate::checkpoint::outlines_path(dir);
+            let resuming = !self.frames.is_empty();
+            OutlineSpool::durable(&path, resuming)?
+        } else {
+            OutlineSpool::create(dir)?
+        }))
+    }
+
+    /// Writes one frame's detections, records its summary and links it.
+    fn take(&mut self, record: FrameRecord) -> Result<()> {
+        write_detections(&mut self.csv, &record.detections, &self.calibration).map_err(|e| self.csv.error(e))?;
+        self.frames.push(FrameSummary {
+            frame: record.frame,
+            threshold: record.threshold,
+            objects: record.detections.len(),
+        });
+        if let Some(l) = self.linker.as_mut() {
+            let points: Vec<[f64; 2]> = record.detections.iter().map(|d| [d.x, d.y]).collect();
+            self.neighbour_distances
+                .extend(nearest_neighbour_distances(&points).into_iter().flatten());
+            self.tracked.extend(l.push(record.detections));
+        }
+        Ok(())
+    }
+}
+
+/// Starts checkpointing (or resumes, returning the logged frames) as the options say.
+/// Checkpoints are not kept with `labels.tif`, whose pages cannot be continued.
+fn start_checkpoint(
+    dir: &Path,
+    outputs: &SegmentOutputs,
+    info: &crate::stack::StackInfo,
+    params: &SegmentParams,
+    diameter: DiameterSource,
+) -> Result<(Option<CheckpointLog>, Vec<FrameRecord>)> {
+    let every = match outputs.checkpoint_every {
+        Some(k) if !outputs.labels => k,
+        _ if outputs.resume => {
+            return Err(Error::parameter(
+                "--resume",
+                "",
+                "needs checkpoints, which are not kept with --labels",
+            ))
+        }
+        _ => return Ok((None, Vec::new())),
+    };
+    let fingerprint = Fingerprint {
+        input: info.path.display().to_string(),
+        bytes: info.bytes_on_disk,
+        shape: (info.frames, info.height, info.width),
+        parameters: serde_json::json!({
+            "diameter": diameter, "segment": params, "link": outputs.linking, "movie": outputs.movie,
+        })
+        .to_string(),
+    };
+    if outputs.resume {
+        let (log, records) = CheckpointLog::resume(dir, fingerprint, every)?;
+        Ok((Some(log), records))
+    } else {
+        Ok((Some(CheckpointLog::start(dir, fingerprint, every)?), Vec::new()))
+    }
 }
 
 /// Sorts tracked detections by track then frame, writes `tracks.csv` and `per_track.csv`, and
@@ -414,6 +527,19 @@ fn write_track_outputs(
     write_per_track(&mut file, &summaries, calibration).map_err(|e| file.error(e))?;
     file.commit()?;
     Ok(summaries)
+}
+
+/// Removes half-written files that an interrupted earlier run left (hidden `*.partial-PID`
+/// names of other processes), so that a resumed or repeated run leaves a clean folder.
+fn remove_stale_partials(dir: &Path) {
+    let own = format!(".partial-{}", std::process::id());
+    let Ok(entries) = std::fs::read_dir(dir) else { return };
+    for entry in entries.flatten() {
+        let name = entry.file_name().to_string_lossy().into_owned();
+        if name.starts_with('.') && name.contains(".partial-") && !name.ends_with(&own) {
+            let _ = std::fs::remove_file(entry.path());
+        }
+    }
 }
 
 /// After a successful run, removes outputs of an earlier run that this one did not write.

@@ -425,3 +425,118 @@ fn analyze_and_compare_pass_independent_readers() {
         ],
     );
 }
+
+/// run.json without its timings (the one part that differs between runs).
+fn run_record_without_timings(dir: &Path) -> serde_json::Value {
+    let mut v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("run.json")).unwrap()).unwrap();
+    v.as_object_mut().unwrap().remove("timings_s");
+    v
+}
+
+#[test]
+fn a_run_killed_mid_way_resumes_to_identical_outputs() {
+    // SIGKILL once the checkpoint holds 10 frames, then --resume: every output equals that of
+    // an uninterrupted run byte for byte (run.json but for its timings), and no half-written
+    // or checkpoint file is left behind.
+    let dir = tempfile::tempdir().unwrap();
+    let syn = dir.path().join("syn");
+    ok(&caravan(
+        &[
+            "synth",
+            "-o",
+            syn.to_str().unwrap(),
+            "--scenario",
+            "stripe",
+            "--size",
+            "512x512",
+            "--frames",
+            "80",
+            "--seed",
+            "5",
+        ],
+        "1",
+    ));
+    let rec = syn.join("recording.tif");
+    let track = |out: &Path, extra: &[&str]| {
+        let mut args = vec![
+            "track",
+            rec.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "--diameter",
+            "14px",
+            "--no-analysis",
+            "--checkpoint-every",
+            "5",
+        ];
+        args.extend_from_slice(extra);
+        args.into_iter().map(String::from).collect::<Vec<_>>()
+    };
+    let whole = dir.path().join("whole");
+    ok(&caravan(
+        &track(&whole, &[]).iter().map(String::as_str).collect::<Vec<_>>(),
+        "2",
+    ));
+    let killed = dir.path().join("killed");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_caravan"))
+        .args(track(&killed, &[]))
+        .env("RAYON_NUM_THREADS", "1")
+        .stdout(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    let state = killed.join(".checkpoint/state.json");
+    let started = std::time::Instant::now();
+    loop {
+        let done = std::fs::read_to_string(&state)
+            .ok()
+            .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
+            .and_then(|v| v["frames_done"].as_u64())
+            .unwrap_or(0);
+        if done >= 10 {
+            break;
+        }
+        assert!(started.elapsed().as_secs() < 60, "no checkpoint appeared");
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    }
+    child.kill().unwrap(); // SIGKILL on Unix
+    let status = child.wait().unwrap();
+    assert!(!status.success(), "the run was killed before it finished");
+    assert!(!killed.join("run.json").exists());
+    ok(&caravan(
+        &track(&killed, &["--resume"])
+            .iter()
+            .map(String::as_str)
+            .collect::<Vec<_>>(),
+        "2",
+    ));
+    for name in [
+        "detections.csv",
+        "tracks.csv",
+        "per_track.csv",
+        "qc_movie.gif",
+        "qc_sheet.png",
+    ] {
+        assert_eq!(
+            std::fs::read(whole.join(name)).unwrap(),
+            std::fs::read(killed.join(name)).unwrap(),
+            "{name}"
+        );
+    }
+    assert_eq!(run_record_without_timings(&whole), run_record_without_timings(&killed));
+    let leftovers: Vec<String> = std::fs::read_dir(&killed)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.starts_with('.'))
+        .collect();
+    assert!(leftovers.is_empty(), "{leftovers:?}");
+    // A finished run keeps no checkpoint: resuming it is refused with exit code 2.
+    let other = caravan(
+        &track(&dir.path().join("whole"), &["--resume", "--max-gap", "1"])
+            .iter()
+            .map(String::as_str)
+            .collect::<Vec<_>>(),
+        "1",
+    );
+    assert_eq!(other.status.code(), Some(2));
+}

@@ -37,6 +37,8 @@ pub fn run(args: DemoArgs) -> Result<()> {
         linking: Some(LinkParams::for_diameter(d)),
         movie: Some(MovieOptions::default()),
         replace: true,
+        checkpoint_every: None,
+        resume: false,
     };
     let run = run_recording(
         &mut stack,

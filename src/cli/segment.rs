@@ -18,6 +18,8 @@ pub fn run(args: SegmentArgs) -> Result<()> {
         linking: None,
         movie: None,
         replace: args.run.force,
+        checkpoint_every: None,
+        resume: false,
     };
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
     print_summary(&run);

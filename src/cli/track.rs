@@ -33,12 +33,22 @@ pub struct TrackArgs {
     /// Skip the QC movie and contact sheet.
     #[arg(long)]
     no_movie: bool,
+    /// Make the run resumable: log progress to the folder's .checkpoint/ every K frames
+    /// (0: no checkpoints; not kept with --labels).
+    #[arg(long, default_value_t = 25)]
+    checkpoint_every: usize,
+    /// Continue an interrupted run from its checkpoint (same input and parameters); the
+    /// outputs are byte-identical to an uninterrupted run's.
+    #[arg(long)]
+    resume: bool,
     /// Skip the migration analysis (analysis/ with report.html) that follows tracking.
     #[arg(long)]
     no_analysis: bool,
 }
 
-pub fn run(args: TrackArgs) -> Result<()> {
+pub fn run(mut args: TrackArgs) -> Result<()> {
+    // Resuming continues a run in the same folder, so its partial outputs are expected.
+    args.run.force |= args.resume;
     if args.max_gap > 50 {
         return Err(Error::parameter(
             "--max-gap",
@@ -78,6 +88,8 @@ pub fn run(args: TrackArgs) -> Result<()> {
         linking: Some(link),
         movie: (!args.no_movie).then_some(movie),
         replace: args.run.force,
+        checkpoint_every: (args.checkpoint_every > 0).then_some(args.checkpoint_every),
+        resume: args.resume,
     };
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
     print_summary(&run);

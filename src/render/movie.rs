@@ -52,6 +52,8 @@ impl Default for MovieOptions {
 pub struct OutlineSpool {
     path: PathBuf,
     writer: Option<BufWriter<File>>,
+    /// Removed when dropped (a temporary spool), or kept (a checkpoint's).
+    temporary: bool,
 }
 
 impl OutlineSpool {
@@ -62,7 +64,32 @@ impl OutlineSpool {
         Ok(OutlineSpool {
             path,
             writer: Some(BufWriter::new(file)),
+            temporary: true,
         })
+    }
+
+    /// A spool that survives a crash, for checkpoints: created empty, or with `append`
+    /// continued after what it holds.
+    pub fn durable(path: &Path, append: bool) -> Result<OutlineSpool> {
+        let file = if append {
+            std::fs::OpenOptions::new().append(true).open(path)
+        } else {
+            File::create(path)
+        }
+        .map_err(|e| Error::output(path, e))?;
+        Ok(OutlineSpool {
+            path: path.to_path_buf(),
+            writer: Some(BufWriter::new(file)),
+            temporary: false,
+        })
+    }
+
+    /// Makes everything pushed so far durable and returns the spool's length in bytes.
+    pub fn flushed_len(&mut self) -> Result<u64> {
+        let w = self.writer.as_mut().expect("still writing");
+        w.flush().map_err(|e| Error::output(&self.path, e))?;
+        w.get_ref().sync_data().map_err(|e| Error::output(&self.path, e))?;
+        Ok(w.get_ref().metadata().map_err(|e| Error::output(&self.path, e))?.len())
     }
 
     /// Appends one frame's outline pixels as (pixel index, label) pairs.
@@ -93,7 +120,9 @@ impl OutlineSpool {
 
 impl Drop for OutlineSpool {
     fn drop(&mut self) {
-        let _ = std::fs::remove_file(&self.path);
+        if self.temporary {
+            let _ = std::fs::remove_file(&self.path);
+        }
     }
 }
 

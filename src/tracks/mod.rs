@@ -5,7 +5,7 @@ use crate::stack::Calibration;
 use std::io::{self, Write};
 
 /// One segmented nucleus in one frame.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Detection {
     /// Frame number, from 0.
     pub frame: usize,

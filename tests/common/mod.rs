@@ -30,6 +30,8 @@ pub fn track_synthetic(p: &SynthParams, link: LinkParams) -> TrackedScene {
         linking: Some(link),
         movie: None,
         replace: false,
+        checkpoint_every: None,
+        resume: false,
     };
     let run = dir.path().join("run");
     run_recording(
