@@ -32,6 +32,7 @@ pub mod preprocess;
 pub mod render;
 pub mod score;
 pub mod segment;
+pub mod shard;
 pub mod stack;
 pub mod synth;
 pub mod tracks;

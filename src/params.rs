@@ -3,7 +3,7 @@
 //! before any work starts.
 
 use crate::error::{Error, Result};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::str::FromStr;
 
 /// A length given either in pixels or in micrometres (`12px`, `8um`, `8µm`; a bare number is px).
@@ -114,7 +114,7 @@ fn split_unit(t: &str) -> (&str, &str) {
 }
 
 /// How the foreground threshold is chosen for each frame.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase", tag = "method", content = "value")]
 pub enum ThresholdMethod {
     /// Otsu (1979), maximum between-class variance.
@@ -145,7 +145,7 @@ impl FromStr for ThresholdMethod {
 }
 
 /// How uneven illumination is removed before thresholding.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum BackgroundMethod {
     /// White top-hat: subtract a smoothed grey opening larger than a nucleus.
@@ -166,7 +166,7 @@ impl FromStr for BackgroundMethod {
 }
 
 /// Parameters of per-frame segmentation, all lengths in pixels once resolved.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct SegmentParams {
     /// Typical nucleus diameter in pixels; everything else scales with it.
     pub diameter_px: f64,

@@ -24,7 +24,7 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 /// How the nucleus diameter was obtained.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, serde::Deserialize)]
 #[serde(rename_all = "kebab-case", tag = "source", content = "px")]
 pub enum DiameterSource {
     /// Given with `--diameter`.
@@ -98,6 +98,12 @@ impl<'a> SegmentedFrames<'a> {
     /// Iterates over all frames of `stack`.
     pub fn new(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar) -> Self {
         Self::starting_at(stack, params, progress, 0)
+    }
+
+    /// Stops before frame `end` (a shard's range).
+    pub fn until(mut self, end: usize) -> Self {
+        self.range.end = self.range.end.min(end);
+        self
     }
 
     /// Iterates over the frames of `stack` from `first` on.
@@ -292,7 +298,6 @@ pub fn run_recording(
     ensure_dir(dir)?;
     let started = Instant::now();
     let info = stack.info().clone();
-    let calibration = info.calibration;
     remove_stale_partials(dir);
     let mut pass = FirstPass::new(dir, outputs, &info)?;
     let (mut checkpoint, replayed) = start_checkpoint(dir, outputs, &info, params, diameter)?;
@@ -337,6 +342,40 @@ pub fn run_recording(
             handle(seg?)?;
         }
     }
+    let run = finish_run(
+        stack,
+        pass,
+        spool.as_mut(),
+        diameter,
+        params,
+        dir,
+        outputs,
+        command,
+        started,
+    )?;
+    drop(spool);
+    if let Some(c) = checkpoint {
+        c.finish();
+    }
+    Ok(run)
+}
+
+/// After the first pass (segmented or replayed): resolves tracks, writes the track tables,
+/// renders the movie from the outline spool, and writes `run.json`.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn finish_run(
+    stack: &mut Stack,
+    pass: FirstPass,
+    spool: Option<&mut OutlineSpool>,
+    diameter: DiameterSource,
+    params: &SegmentParams,
+    dir: &Path,
+    outputs: &SegmentOutputs,
+    command: &str,
+    started: Instant,
+) -> Result<SegmentRun> {
+    let info = stack.info().clone();
+    let calibration = info.calibration;
     let FirstPass {
         csv,
         frames,
@@ -356,7 +395,7 @@ pub fn run_recording(
         None => (Vec::new(), None, None),
     };
     let movie_started = Instant::now();
-    let movie = match (spool.as_mut(), outputs.movie) {
+    let movie = match (spool, outputs.movie) {
         (Some(s), Some(options)) => {
             let divisions = resolution.as_ref().map(|r| r.divisions.as_slice()).unwrap_or_default();
             let overlay = overlay(&tracked, &frames, divisions);
@@ -401,16 +440,12 @@ pub fn run_recording(
         &serde_json::to_vec_pretty(&record).expect("serialisable"),
     )?;
     remove_stale_outputs(dir, outputs);
-    drop(spool);
-    if let Some(c) = checkpoint {
-        c.finish();
-    }
     Ok(run)
 }
 
 /// The first pass's accumulators: detections.csv, per-frame summaries, the online linker and
 /// its output. Frames come in from segmentation or from a checkpoint's log alike.
-struct FirstPass {
+pub(crate) struct FirstPass {
     csv: AtomicFile,
     calibration: crate::stack::Calibration,
     frames: Vec<FrameSummary>,
@@ -420,7 +455,7 @@ struct FirstPass {
 }
 
 impl FirstPass {
-    fn new(dir: &Path, outputs: &SegmentOutputs, info: &crate::stack::StackInfo) -> Result<FirstPass> {
+    pub(crate) fn new(dir: &Path, outputs: &SegmentOutputs, info: &crate::stack::StackInfo) -> Result<FirstPass> {
         let mut csv = AtomicFile::create(&dir.join("detections.csv"))?;
         write_detections_header(&mut csv).map_err(|e| csv.error(e))?;
         Ok(FirstPass {
@@ -448,7 +483,7 @@ impl FirstPass {
     }
 
     /// Writes one frame's detections, records its summary and links it.
-    fn take(&mut self, record: FrameRecord) -> Result<()> {
+    pub(crate) fn take(&mut self, record: FrameRecord) -> Result<()> {
         write_detections(&mut self.csv, &record.detections, &self.calibration).map_err(|e| self.csv.error(e))?;
         self.frames.push(FrameSummary {
             frame: record.frame,
@@ -531,7 +566,7 @@ fn write_track_outputs(
 
 /// Removes half-written files that an interrupted earlier run left (hidden `*.partial-PID`
 /// names of other processes), so that a resumed or repeated run leaves a clean folder.
-fn remove_stale_partials(dir: &Path) {
+pub(crate) fn remove_stale_partials(dir: &Path) {
     let own = format!(".partial-{}", std::process::id());
     let Ok(entries) = std::fs::read_dir(dir) else { return };
     for entry in entries.flatten() {

@@ -540,3 +540,97 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
     );
     assert_eq!(other.status.code(), Some(2));
 }
+
+#[test]
+fn shards_linked_equal_one_track_run() {
+    // Split stages: frames 0..12 and 12..30 segmented apart (even in the other order), then
+    // linked: every output equals one `track` run byte for byte; run.json but for the command
+    // name and timings. Shards that leave a gap are refused with exit code 2.
+    let dir = tempfile::tempdir().unwrap();
+    let syn = dir.path().join("syn");
+    ok(&caravan(
+        &[
+            "synth",
+            "-o",
+            syn.to_str().unwrap(),
+            "--scenario",
+            "dish",
+            "--size",
+            "256x256",
+            "--frames",
+            "30",
+            "--divisions",
+            "0.01",
+            "--seed",
+            "8",
+        ],
+        "1",
+    ));
+    let rec = syn.join("recording.tif");
+    let rec = rec.to_str().unwrap();
+    let path = |name: &str| dir.path().join(name).to_str().unwrap().to_string();
+    ok(&caravan(
+        &[
+            "track",
+            rec,
+            "-o",
+            &path("whole"),
+            "--diameter",
+            "14px",
+            "--no-analysis",
+        ],
+        "2",
+    ));
+    ok(&caravan(
+        &[
+            "segment",
+            rec,
+            "--frames",
+            "12..30",
+            "-o",
+            &path("b"),
+            "--diameter",
+            "14px",
+        ],
+        "2",
+    ));
+    ok(&caravan(
+        &[
+            "segment",
+            rec,
+            "--frames",
+            "0..12",
+            "-o",
+            &path("a"),
+            "--diameter",
+            "14px",
+        ],
+        "1",
+    ));
+    ok(&caravan(
+        &["link", &path("b"), &path("a"), "-o", &path("linked"), "--no-analysis"],
+        "2",
+    ));
+    for name in [
+        "detections.csv",
+        "tracks.csv",
+        "per_track.csv",
+        "qc_movie.gif",
+        "qc_sheet.png",
+    ] {
+        assert_eq!(
+            std::fs::read(dir.path().join("whole").join(name)).unwrap(),
+            std::fs::read(dir.path().join("linked").join(name)).unwrap(),
+            "{name}"
+        );
+    }
+    let strip = |name: &str| {
+        let mut v = run_record_without_timings(&dir.path().join(name));
+        v.as_object_mut().unwrap().remove("command");
+        v
+    };
+    assert_eq!(strip("whole"), strip("linked"));
+    let gap = caravan(&["link", &path("b"), "-o", &path("gap")], "1");
+    assert_eq!(gap.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&gap.stderr).contains("frame 0"));
+}

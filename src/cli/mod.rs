@@ -5,6 +5,7 @@ mod analyze;
 mod compare;
 mod demo;
 mod inspect;
+mod link;
 mod preview;
 mod score;
 mod segment;
@@ -39,6 +40,8 @@ enum Command {
     Segment(segment::SegmentArgs),
     /// Segment every frame and link nuclei into tracks (tracks.csv, per_track.csv, run.json).
     Track(track::TrackArgs),
+    /// Join shards from `segment --frames` into tracks, tables and the QC movie.
+    Link(link::LinkArgs),
     /// Write a synthetic recording with ground truth.
     Synth(synth::SynthArgs),
     /// Migration statistics of a run or any tracks CSV: tables, summary.json, report.html.
@@ -60,6 +63,7 @@ pub fn run() -> i32 {
         Command::Segment(a) => segment::run(a),
         Command::Track(a) => track::run(a),
         Command::Synth(a) => synth::run(a),
+        Command::Link(a) => link::run(a),
         Command::Score(a) => score::run(a),
         Command::Analyze(a) => analyze::run(a),
         Command::Compare(a) => compare::run(a),
@@ -107,7 +111,11 @@ struct InputArgs {
 
 impl InputArgs {
     fn open(&self) -> Result<Stack> {
-        let options = OpenOptions {
+        Stack::open(&self.input, &self.options())
+    }
+
+    fn options(&self) -> OpenOptions {
+        OpenOptions {
             channel: self.channel,
             z: match self.z {
                 ZChoice::Refuse => ZMode::Refuse,
@@ -116,8 +124,7 @@ impl InputArgs {
             max_frame_bytes: self.max_frame_mb.saturating_mul(1 << 20),
             pixel_size_um: self.pixel_size,
             frame_interval_s: self.interval,
-        };
-        Stack::open(&self.input, &options)
+        }
     }
 }
 

@@ -1,17 +1,25 @@
-//! `caravan segment FILE -o DIR`: every frame's nuclei into detections.csv and run.json.
+//! `caravan segment FILE -o DIR`: every frame's nuclei into detections.csv and run.json; with
+//! `--frames A..B`, a shard of frames A to B−1 for `caravan link` (split stages).
 
 use super::{print_summary, RunArgs};
 use caravan::pipeline::{run_recording, SegmentOutputs};
-use caravan::Result;
+use caravan::shard::write_shard;
+use caravan::{Error, Result};
 use clap::Args;
 
 #[derive(Args)]
 pub struct SegmentArgs {
     #[command(flatten)]
     run: RunArgs,
+    /// Segment only frames A to B−1 (half-open A..B) into a shard for `caravan link`.
+    #[arg(long)]
+    frames: Option<String>,
 }
 
 pub fn run(args: SegmentArgs) -> Result<()> {
+    if let Some(range) = &args.frames {
+        return run_shard(&args, range);
+    }
     let (mut stack, diameter, params) = args.run.start()?;
     let outputs = SegmentOutputs {
         labels: args.run.labels,
@@ -23,5 +31,40 @@ pub fn run(args: SegmentArgs) -> Result<()> {
     };
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
     print_summary(&run);
+    Ok(())
+}
+
+fn run_shard(args: &SegmentArgs, text: &str) -> Result<()> {
+    let bad = || Error::parameter("--frames", text, "expected A..B with whole numbers A < B");
+    let (a, b) = text.split_once("..").ok_or_else(bad)?;
+    let range = (
+        a.trim().parse().map_err(|_| bad())?,
+        b.trim().parse().map_err(|_| bad())?,
+    );
+    if args.run.labels {
+        return Err(Error::parameter(
+            "--labels",
+            "",
+            "shards do not carry labels.tif; segment without --frames for labels",
+        ));
+    }
+    let mut run = args.run.clone();
+    run.force = true; // a shard folder is checked for an earlier shard instead
+    let (mut stack, diameter, params) = run.start()?;
+    let info = write_shard(
+        &mut stack,
+        &args.run.input.options(),
+        diameter,
+        &params,
+        range,
+        &args.run.output,
+        args.run.force,
+    )?;
+    println!(
+        "shard of frames {}..{} written to {}",
+        info.frames.0,
+        info.frames.1,
+        args.run.output.display()
+    );
     Ok(())
 }

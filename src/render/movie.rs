@@ -84,6 +84,12 @@ impl OutlineSpool {
         })
     }
 
+    /// Appends outline records written by another spool (a shard's), unchanged.
+    pub fn append_raw(&mut self, bytes: &[u8]) -> Result<()> {
+        let w = self.writer.as_mut().expect("still writing");
+        w.write_all(bytes).map_err(|e| Error::output(&self.path, e))
+    }
+
     /// Makes everything pushed so far durable and returns the spool's length in bytes.
     pub fn flushed_len(&mut self) -> Result<u64> {
         let w = self.writer.as_mut().expect("still writing");

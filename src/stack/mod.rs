@@ -112,7 +112,7 @@ impl Frame {
 }
 
 /// How a Z dimension is handled.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
 #[serde(rename_all = "lowercase")]
 pub enum ZMode {
     /// Refuse recordings with more than one Z plane (3D is not supported yet).
@@ -123,7 +123,7 @@ pub enum ZMode {
 }
 
 /// Options for opening a recording.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
 pub struct OpenOptions {
     /// Channel (0-based) when pages hold several samples or OME-XML declares several channels.
     pub channel: Option<usize>,
