@@ -21,6 +21,7 @@
 //! Lengths carry their unit in the name (`pixel_size_um`), times too (`frame_interval_s`).
 
 pub mod analyze;
+pub mod batch;
 pub mod checkpoint;
 pub mod error;
 pub mod image2d;

@@ -30,13 +30,30 @@ pub struct ManifestEntry {
     pub labels: BTreeMap<String, String>,
 }
 
-/// Reads a manifest with columns `path, condition, replicate` (others kept as labels) and
-/// checks that every path exists before any work starts.
+/// Reads a manifest with columns `path, condition, replicate` (others kept as labels) for a
+/// comparison: every path must exist (checked before any work starts) and there must be two
+/// conditions or more.
 ///
 /// # Errors
 /// Unreadable manifest, missing columns or values, a path that does not exist (naming the
 /// line), fewer than two conditions.
 pub fn read_manifest(path: &Path) -> Result<Vec<ManifestEntry>> {
+    let entries = read_manifest_entries(path)?;
+    let conditions: std::collections::BTreeSet<&str> = entries.iter().map(|e| e.condition.as_str()).collect();
+    if conditions.len() < 2 {
+        return Err(Error::input(
+            path,
+            format!("needs at least two conditions to compare, found {}", conditions.len()),
+        ));
+    }
+    Ok(entries)
+}
+
+/// Reads a manifest's rows (any number of conditions), checking every path exists.
+///
+/// # Errors
+/// As [`read_manifest`], but one condition is enough.
+pub fn read_manifest_entries(path: &Path) -> Result<Vec<ManifestEntry>> {
     let bad = |problem: String| Error::input(path, problem);
     let mut reader = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
@@ -84,13 +101,6 @@ pub fn read_manifest(path: &Path) -> Result<Vec<ManifestEntry>> {
             replicate: get(ri, "replicate")?,
             labels,
         });
-    }
-    let conditions: std::collections::BTreeSet<&str> = out.iter().map(|e| e.condition.as_str()).collect();
-    if conditions.len() < 2 {
-        return Err(bad(format!(
-            "needs at least two conditions, found {}",
-            conditions.len()
-        )));
     }
     Ok(out)
 }

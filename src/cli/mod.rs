@@ -2,6 +2,7 @@
 //! Exit codes: 0 done; 2 bad input or parameters; 3 an output could not be written.
 
 mod analyze;
+mod batch;
 mod compare;
 mod demo;
 mod inspect;
@@ -46,6 +47,8 @@ enum Command {
     Synth(synth::SynthArgs),
     /// Migration statistics of a run or any tracks CSV: tables, summary.json, report.html.
     Analyze(analyze::AnalyzeArgs),
+    /// Track every recording of a manifest (path, condition, replicate), then compare them.
+    Batch(batch::BatchArgs),
     /// Compare conditions from a manifest (path, condition, replicate), replicates as the unit.
     Compare(compare::CompareArgs),
     /// Compare tracks with ground truth: detection, TRA/DET, MOTA/MOTP, links, divisions.
@@ -67,6 +70,7 @@ pub fn run() -> i32 {
         Command::Score(a) => score::run(a),
         Command::Analyze(a) => analyze::run(a),
         Command::Compare(a) => compare::run(a),
+        Command::Batch(a) => batch::run(a),
         Command::Demo(a) => demo::run(a),
     };
     match result {
@@ -130,7 +134,7 @@ impl InputArgs {
 
 /// Segmentation parameters; unset ones are derived from the diameter.
 #[derive(Args, Clone)]
-struct SegmentationArgs {
+pub(crate) struct SegmentationArgs {
     /// Typical nucleus diameter (e.g. 14px or 9um); estimated from the data when not given.
     #[arg(long)]
     diameter: Option<Length>,
@@ -156,7 +160,7 @@ struct SegmentationArgs {
 
 impl SegmentationArgs {
     /// Resolves the diameter (estimating it if needed) and builds validated parameters.
-    fn resolve(&self, stack: &mut Stack) -> Result<(DiameterSource, SegmentParams)> {
+    pub(crate) fn resolve(&self, stack: &mut Stack) -> Result<(DiameterSource, SegmentParams)> {
         let diameter = caravan::pipeline::resolve_diameter(stack, self.diameter)?;
         let d = match diameter {
             DiameterSource::Given(d) | DiameterSource::Estimated(d) => d,
