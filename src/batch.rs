@@ -10,7 +10,13 @@ use std::path::{Path, PathBuf};
 pub fn slug(text: &str) -> String {
     let s: String = text
         .chars()
-        .map(|c| if c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.') { c } else { '_' })
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.') {
+                c
+            } else {
+                '_'
+            }
+        })
         .collect();
     let s = s.trim_matches('.').to_string();
     if s.is_empty() {
@@ -32,14 +38,21 @@ pub fn run_folders(entries: &[ManifestEntry], out: &Path) -> Vec<PathBuf> {
                 .file_stem()
                 .map(|s| s.to_string_lossy().trim_end_matches(".ome").to_string())
                 .unwrap_or_default();
-            out.join("runs").join(slug(&e.condition)).join(slug(&e.replicate)).join(slug(&stem))
+            out.join("runs")
+                .join(slug(&e.condition))
+                .join(slug(&e.replicate))
+                .join(slug(&stem))
         })
         .collect();
     base.iter()
         .zip(entries)
         .map(|(p, e)| {
             if base.iter().filter(|q| *q == p).count() > 1 {
-                p.with_file_name(format!("{}-line{}", p.file_name().unwrap_or_default().to_string_lossy(), e.line))
+                p.with_file_name(format!(
+                    "{}-line{}",
+                    p.file_name().unwrap_or_default().to_string_lossy(),
+                    e.line
+                ))
             } else {
                 p.clone()
             }
@@ -55,7 +68,10 @@ pub fn write_runs_manifest(entries: &[ManifestEntry], folders: &[PathBuf], out: 
     labels.sort();
     labels.dedup();
     let mut w = csv::Writer::from_writer(Vec::new());
-    let header = ["path", "condition", "replicate"].into_iter().map(String::from).chain(labels.iter().map(|l| l.to_string()));
+    let header = ["path", "condition", "replicate"]
+        .into_iter()
+        .map(String::from)
+        .chain(labels.iter().map(|l| l.to_string()));
     w.write_record(header).map_err(|e| Error::output(&path, e.into()))?;
     for (e, folder) in entries.iter().zip(folders) {
         let rel = folder.strip_prefix(out).unwrap_or(folder).display().to_string();
@@ -64,7 +80,9 @@ pub fn write_runs_manifest(entries: &[ManifestEntry], folders: &[PathBuf], out: 
             .chain(labels.iter().map(|l| e.labels.get(*l).cloned().unwrap_or_default()));
         w.write_record(row).map_err(|e| Error::output(&path, e.into()))?;
     }
-    let bytes = w.into_inner().map_err(|e| Error::output(&path, std::io::Error::other(e.to_string())))?;
+    let bytes = w
+        .into_inner()
+        .map_err(|e| Error::output(&path, std::io::Error::other(e.to_string())))?;
     crate::output::write_atomic(&path, &bytes)?;
     Ok(path)
 }
@@ -86,7 +104,10 @@ mod tests {
             replicate: "e1".into(),
             labels: Default::default(),
         };
-        let f = run_folders(&[entry(2, "a/m.ome.tif"), entry(3, "b/m.ome.tif"), entry(4, "c/n.tif")], Path::new("out"));
+        let f = run_folders(
+            &[entry(2, "a/m.ome.tif"), entry(3, "b/m.ome.tif"), entry(4, "c/n.tif")],
+            Path::new("out"),
+        );
         assert_eq!(f[0], PathBuf::from("out/runs/kd_1/e1/m-line2"));
         assert_eq!(f[1], PathBuf::from("out/runs/kd_1/e1/m-line3"));
         assert_eq!(f[2], PathBuf::from("out/runs/kd_1/e1/n"));

@@ -71,7 +71,10 @@ pub fn run(args: BatchArgs) -> Result<()> {
     if failed > 0 {
         return Err(Error::input(
             &args.manifest,
-            format!("{failed} of {} recordings failed (see above); the others are complete", entries.len()),
+            format!(
+                "{failed} of {} recordings failed (see above); the others are complete",
+                entries.len()
+            ),
         ));
     }
     println!("wrote {}", args.output.display());
@@ -114,8 +117,14 @@ fn compare_runs(runs: &Path, out: &Path) {
         return;
     };
     let dir = out.join("comparison");
-    let result = compare(entries, CalibrationOverride::default(), &Filters::default(), &AnalysisOptions::default(), 2020)
-        .and_then(|c| write_comparison(&c, runs, &dir).map(|_| c));
+    let result = compare(
+        entries,
+        CalibrationOverride::default(),
+        &Filters::default(),
+        &AnalysisOptions::default(),
+        2020,
+    )
+    .and_then(|c| write_comparison(&c, runs, &dir).map(|_| c));
     match result {
         Ok(c) => {
             for w in &c.warnings {

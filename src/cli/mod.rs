@@ -12,6 +12,7 @@ mod score;
 mod segment;
 mod synth;
 mod track;
+mod workflow;
 
 use caravan::params::{parse_pixel_size_um, parse_seconds, BackgroundMethod, Length, SegmentParams, ThresholdMethod};
 use caravan::pipeline::DiameterSource;
@@ -41,6 +42,8 @@ enum Command {
     Segment(segment::SegmentArgs),
     /// Segment every frame and link nuclei into tracks (tracks.csv, per_track.csv, run.json).
     Track(track::TrackArgs),
+    /// Write a Snakemake workflow (Snakefile, config.json) that runs a manifest on a cluster.
+    Workflow(workflow::WorkflowArgs),
     /// Join shards from `segment --frames` into tracks, tables and the QC movie.
     Link(link::LinkArgs),
     /// Write a synthetic recording with ground truth.
@@ -71,6 +74,7 @@ pub fn run() -> i32 {
         Command::Analyze(a) => analyze::run(a),
         Command::Compare(a) => compare::run(a),
         Command::Batch(a) => batch::run(a),
+        Command::Workflow(a) => workflow::run(a),
         Command::Demo(a) => demo::run(a),
     };
     match result {

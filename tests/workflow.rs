@@ -1,0 +1,121 @@
+//! Batches and the cluster workflow: `caravan batch` over a manifest of three synthetic
+//! recordings, then the Snakemake workflow written by `caravan workflow` run locally
+//! (`--cores 2`) on the same manifest: every result identical. Snakemake comes from the Python
+//! package index (installed by .ci/run; set CARAVAN_SNAKEMAKE elsewhere).
+
+use std::path::Path;
+use std::process::{Command, Output};
+
+fn caravan(args: &[&str], cwd: &Path) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_caravan"))
+        .args(args)
+        .current_dir(cwd)
+        .output()
+        .unwrap()
+}
+
+fn ok(out: Output) -> String {
+    assert!(
+        out.status.success(),
+        "{}\n{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout).unwrap()
+}
+
+#[test]
+fn batch_skips_what_is_done_and_the_workflow_gives_the_same_results() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let mut manifest = String::from("path,condition,replicate\n");
+    for (k, (scenario, condition)) in [("dish", "control"), ("dish", "control"), ("stripe", "stream")]
+        .iter()
+        .enumerate()
+    {
+        let name = format!("rec{k}");
+        ok(caravan(
+            &[
+                "synth",
+                "-o",
+                &name,
+                "--scenario",
+                scenario,
+                "--size",
+                "160x160",
+                "--frames",
+                "18",
+                "--seed",
+                &(k + 1).to_string(),
+            ],
+            d,
+        ));
+        manifest.push_str(&format!("{name}/recording.tif,{condition},embryo{k}\n"));
+    }
+    std::fs::write(d.join("m.csv"), manifest).unwrap();
+    let first = ok(caravan(&["batch", "m.csv", "-o", "batch", "--diameter", "14px"], d));
+    assert_eq!(first.matches("tracked ").count(), 3, "{first}");
+    assert!(d.join("batch/comparison/summary.json").exists());
+    let again = ok(caravan(&["batch", "m.csv", "-o", "batch", "--diameter", "14px"], d));
+    assert_eq!(again.matches("already complete").count(), 3, "{again}");
+
+    ok(caravan(
+        &[
+            "workflow",
+            "m.csv",
+            "-o",
+            "wf",
+            "--shard-frames",
+            "7",
+            "--segment-args",
+            "--diameter 14px",
+        ],
+        d,
+    ));
+    let snakemake = match std::env::var("CARAVAN_SNAKEMAKE") {
+        Ok(s) => s,
+        Err(_) => {
+            assert!(std::env::var("CI").is_err(), "CI must set CARAVAN_SNAKEMAKE");
+            eprintln!("CARAVAN_SNAKEMAKE not set: workflow run skipped outside CI");
+            return;
+        }
+    };
+    let run = Command::new(snakemake)
+        .args(["--cores", "2", "--quiet"])
+        .current_dir(d.join("wf"))
+        .output()
+        .unwrap();
+    assert!(
+        run.status.success(),
+        "{}\n{}",
+        String::from_utf8_lossy(&run.stdout),
+        String::from_utf8_lossy(&run.stderr)
+    );
+    for k in 0..3 {
+        let condition = if k == 2 { "stream" } else { "control" };
+        let rel = format!("runs/{condition}/embryo{k}/recording");
+        for name in [
+            "detections.csv",
+            "tracks.csv",
+            "per_track.csv",
+            "qc_movie.gif",
+            "analysis/track_stats.csv",
+            "analysis/msd.csv",
+        ] {
+            assert_eq!(
+                std::fs::read(d.join("batch").join(&rel).join(name)).unwrap(),
+                std::fs::read(d.join("wf").join(&rel).join(name)).unwrap(),
+                "{rel}/{name}"
+            );
+        }
+        let population = |root: &str| -> serde_json::Value {
+            let text = std::fs::read_to_string(d.join(root).join(&rel).join("analysis/summary.json")).unwrap();
+            serde_json::from_str::<serde_json::Value>(&text).unwrap()["population"].clone()
+        };
+        assert_eq!(population("batch"), population("wf"));
+    }
+    assert_eq!(
+        std::fs::read(d.join("batch/comparison/comparison.csv")).unwrap(),
+        std::fs::read(d.join("wf/comparison/comparison.csv")).unwrap()
+    );
+}
