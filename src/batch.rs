@@ -95,7 +95,7 @@ mod tests {
     fn folder_names_are_safe_and_unique() {
         // Hand-derived: markup and separators become '_'; two rows of one recording in one
         // condition and replicate get their manifest line appended.
-        assert_eq!(slug("ctrl <b>/../x"), "ctrl__b___.._x");
+        assert_eq!(slug("ctrl <b>/../x"), "ctrl__b__.._x");
         assert_eq!(slug("..."), "_");
         let entry = |line: usize, path: &str| ManifestEntry {
             line,
