@@ -23,6 +23,9 @@ pub struct FrameRecord {
     pub threshold: Option<f64>,
     /// The frame's detections, in label order.
     pub detections: Vec<Detection>,
+    /// NaN or infinite pixels replaced before segmentation.
+    #[serde(default)]
+    pub nonfinite_pixels: usize,
 }
 
 /// What a checkpoint must match to be resumed: the same input and the same parameters.
@@ -223,6 +226,7 @@ mod tests {
             frame,
             threshold: Some(0.1 + frame as f64 / 3.0),
             detections: Vec::new(),
+            nonfinite_pixels: frame,
         }
     }
 

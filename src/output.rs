@@ -76,6 +76,64 @@ impl Drop for AtomicFile {
     }
 }
 
+/// A hidden folder inside a run folder where all of a run's outputs are written; they are
+/// moved into the run folder together only when every one of them is complete, so a run that
+/// fails half-way (a full disk, a bad frame at the end) leaves the earlier run's outputs as
+/// they were. Removed when dropped without publishing.
+pub struct Staging {
+    dir: PathBuf,
+    work: PathBuf,
+    published: bool,
+}
+
+impl Staging {
+    /// Creates `dir/.staging-PID`.
+    ///
+    /// # Errors
+    /// [`Error::Output`] when it cannot be created.
+    pub fn new(dir: &Path) -> Result<Staging> {
+        let work = dir.join(format!(".staging-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&work);
+        std::fs::create_dir_all(&work).map_err(|e| Error::output(&work, e))?;
+        Ok(Staging {
+            dir: dir.to_path_buf(),
+            work,
+            published: false,
+        })
+    }
+
+    /// Where outputs are written.
+    pub fn path(&self) -> &Path {
+        &self.work
+    }
+
+    /// Moves the staged files named in `names` (those that exist) into the run folder, in
+    /// order (put the run record last), and removes the staging folder.
+    ///
+    /// # Errors
+    /// [`Error::Output`] when a rename fails.
+    pub fn publish(mut self, names: &[&str]) -> Result<()> {
+        for name in names {
+            let from = self.work.join(name);
+            if from.exists() {
+                let to = self.dir.join(name);
+                std::fs::rename(&from, &to).map_err(|e| Error::output(&to, e))?;
+            }
+        }
+        self.published = true;
+        let _ = std::fs::remove_dir_all(&self.work);
+        Ok(())
+    }
+}
+
+impl Drop for Staging {
+    fn drop(&mut self) {
+        if !self.published {
+            let _ = std::fs::remove_dir_all(&self.work);
+        }
+    }
+}
+
 /// Writes a whole file atomically.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     let mut f = AtomicFile::create(path)?;

@@ -8,7 +8,7 @@ use crate::error::{Error, Result};
 use crate::link::divide::DivisionEvent;
 use crate::link::online::{LinkParams, OnlineLinker};
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
-use crate::output::{ensure_dir, fnv1a64_file, write_atomic, AtomicFile};
+use crate::output::{ensure_dir, fnv1a64_file, write_atomic, AtomicFile, Staging};
 use crate::params::{Length, SegmentParams};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
 use crate::segment::{diameter::estimate_diameter, segment_frame, FrameSegmentation};
@@ -194,6 +194,8 @@ pub struct FrameSummary {
     pub threshold: Option<f64>,
     /// Objects found.
     pub objects: usize,
+    /// NaN or infinite pixels replaced before segmentation.
+    pub nonfinite_pixels: usize,
 }
 
 /// What a `segment` or `track` run produced.
@@ -299,12 +301,14 @@ pub fn run_recording(
     let started = Instant::now();
     let info = stack.info().clone();
     remove_stale_partials(dir);
-    let mut pass = FirstPass::new(dir, outputs, &info)?;
+    let staging = Staging::new(dir)?;
+    let work = staging.path().to_path_buf();
+    let mut pass = FirstPass::new(&work, outputs, &info)?;
     let (mut checkpoint, replayed) = start_checkpoint(dir, outputs, &info, params, diameter)?;
     for record in replayed {
         pass.take(record)?;
     }
-    let mut spool = pass.spool(dir, outputs, checkpoint.is_some())?;
+    let mut spool = pass.spool(dir, &work, outputs, checkpoint.is_some())?;
     let first = checkpoint.as_ref().map_or(0, |c| c.frames_done());
     let progress = progress_bar(info.frames as u64, "frames");
     progress.set_position(first as u64);
@@ -317,6 +321,7 @@ pub fn run_recording(
             frame: seg.frame,
             threshold: seg.threshold.is_finite().then_some(seg.threshold),
             detections: seg.detections,
+            nonfinite_pixels: seg.nonfinite_pixels,
         };
         if let Some(c) = checkpoint.as_mut() {
             c.record(&record, || spool.as_mut().map_or(Ok(0), |s| s.flushed_len()))?;
@@ -326,7 +331,7 @@ pub fn run_recording(
     };
     if outputs.labels {
         write_stack::<u32, _>(
-            &dir.join("labels.tif"),
+            &work.join("labels.tif"),
             info.width,
             info.height,
             info.frames,
@@ -342,18 +347,20 @@ pub fn run_recording(
             handle(seg?)?;
         }
     }
-    let run = finish_run(
+    let mut run = finish_run(
         stack,
         pass,
         spool.as_mut(),
         diameter,
         params,
-        dir,
+        &work,
         outputs,
         command,
         started,
     )?;
     drop(spool);
+    publish(staging, dir, outputs)?;
+    run.dir = dir.to_path_buf();
     if let Some(c) = checkpoint {
         c.finish();
     }
@@ -439,8 +446,15 @@ pub(crate) fn finish_run(
         &dir.join("run.json"),
         &serde_json::to_vec_pretty(&record).expect("serialisable"),
     )?;
-    remove_stale_outputs(dir, outputs);
     Ok(run)
+}
+
+/// Moves a run's staged outputs into the run folder (run.json last) and removes the outputs of
+/// an earlier run that this one did not write.
+pub(crate) fn publish(staging: Staging, dir: &Path, outputs: &SegmentOutputs) -> Result<()> {
+    staging.publish(&RUN_OUTPUTS)?;
+    remove_stale_outputs(dir, outputs);
+    Ok(())
 }
 
 /// The first pass's accumulators: detections.csv, per-frame summaries, the online linker and
@@ -469,7 +483,13 @@ impl FirstPass {
     }
 
     /// The outline spool of the movie (durable inside the checkpoint when checkpointing).
-    fn spool(&self, dir: &Path, outputs: &SegmentOutputs, checkpointing: bool) -> Result<Option<OutlineSpool>> {
+    fn spool(
+        &self,
+        dir: &Path,
+        work: &Path,
+        outputs: &SegmentOutputs,
+        checkpointing: bool,
+    ) -> Result<Option<OutlineSpool>> {
         if outputs.linking.is_none() || outputs.movie.is_none() {
             return Ok(None);
         }
@@ -478,7 +498,7 @@ impl FirstPass {
             let resuming = !self.frames.is_empty();
             OutlineSpool::durable(&path, resuming)?
         } else {
-            OutlineSpool::create(dir)?
+            OutlineSpool::create(work)?
         }))
     }
 
@@ -489,6 +509,7 @@ impl FirstPass {
             frame: record.frame,
             threshold: record.threshold,
             objects: record.detections.len(),
+            nonfinite_pixels: record.nonfinite_pixels,
         });
         if let Some(l) = self.linker.as_mut() {
             let points: Vec<[f64; 2]> = record.detections.iter().map(|d| [d.x, d.y]).collect();
@@ -573,6 +594,10 @@ pub(crate) fn remove_stale_partials(dir: &Path) {
         let name = entry.file_name().to_string_lossy().into_owned();
         if name.starts_with('.') && name.contains(".partial-") && !name.ends_with(&own) {
             let _ = std::fs::remove_file(entry.path());
+        }
+        let own_staging = format!(".staging-{}", std::process::id());
+        if name.starts_with(".staging-") && name != own_staging {
+            let _ = std::fs::remove_dir_all(entry.path());
         }
     }
 }
@@ -702,6 +727,18 @@ fn warnings_for(frames: &[FrameSummary], info: &crate::stack::StackInfo) -> Vec<
             empty.join(" ")
         ));
     }
+    let nonfinite: Vec<String> = frames
+        .iter()
+        .filter(|f| f.nonfinite_pixels > 0)
+        .map(|f| format!("{} ({} px)", f.frame, f.nonfinite_pixels))
+        .collect();
+    if !nonfinite.is_empty() {
+        w.push(format!(
+            "NaN or infinite pixels, replaced by the frame's lowest value, in {} frame(s): {}",
+            nonfinite.len(),
+            nonfinite.join(" ")
+        ));
+    }
     if info.calibration.pixel_size_um.is_none() {
         w.push("no pixel size in the metadata or on the command line: physical columns are empty".into());
     }
@@ -726,6 +763,7 @@ mod tests {
                 frame,
                 threshold: None,
                 objects,
+                nonfinite_pixels: 0,
             })
             .collect();
         assert_eq!(count_jumps(&frames), vec![2, 4]);

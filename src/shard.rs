@@ -99,6 +99,7 @@ pub fn write_shard(
             frame: seg.frame,
             threshold: seg.threshold.is_finite().then_some(seg.threshold),
             detections: seg.detections,
+            nonfinite_pixels: seg.nonfinite_pixels,
         };
         writeln!(log, "{}", serde_json::to_string(&record).expect("serialisable"))
             .map_err(|e| Error::output(&log_temp, e))?;
@@ -189,9 +190,11 @@ pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
     ensure_dir(dir)?;
     remove_stale_partials(dir);
     let started = Instant::now();
-    let mut pass = FirstPass::new(dir, outputs, &info)?;
+    let staging = crate::output::Staging::new(dir)?;
+    let work = staging.path().to_path_buf();
+    let mut pass = FirstPass::new(&work, outputs, &info)?;
     let mut spool = match (outputs.linking, outputs.movie) {
-        (Some(_), Some(_)) => Some(OutlineSpool::create(dir)?),
+        (Some(_), Some(_)) => Some(OutlineSpool::create(&work)?),
         _ => None,
     };
     for (d, _) in &shards {
@@ -204,17 +207,21 @@ pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
             s.append_raw(&bytes)?;
         }
     }
-    finish_run(
+    let mut run = finish_run(
         stack,
         pass,
         spool.as_mut(),
         first.diameter,
         &first.segment,
-        dir,
+        &work,
         outputs,
         "link",
         started,
-    )
+    )?;
+    drop(spool);
+    crate::pipeline::publish(staging, dir, outputs)?;
+    run.dir = dir.to_path_buf();
+    Ok(run)
 }
 
 fn read_log(path: &Path) -> Result<Vec<FrameRecord>> {

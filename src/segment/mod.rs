@@ -31,10 +31,14 @@ pub struct FrameSegmentation {
     pub labels: Vec<u32>,
     /// The measured objects, in label order.
     pub detections: Vec<Detection>,
+    /// NaN or infinite pixels, replaced by the frame's lowest finite value.
+    pub nonfinite_pixels: usize,
 }
 
 /// Segments one frame (`raw` in stored intensities) with the given parameters.
 pub fn segment_frame(raw: &Image, frame: usize, params: &SegmentParams) -> FrameSegmentation {
+    let (raw, nonfinite_pixels) = replace_nonfinite(raw);
+    let raw = raw.as_ref();
     let (h, w) = raw.dim();
     let prepared = prepare(raw, params);
     let values = prepared.as_slice().expect("standard layout");
@@ -49,7 +53,28 @@ pub fn segment_frame(raw: &Image, frame: usize, params: &SegmentParams) -> Frame
         threshold,
         labels,
         detections,
+        nonfinite_pixels,
     }
+}
+
+/// Float recordings may hold NaN or infinite pixels (a failed acquisition, a division by zero
+/// in earlier processing). They carry no intensity, so they are replaced by the lowest finite
+/// value of the frame (the background side), and counted so the run can warn; otherwise a
+/// NaN would spread through smoothing and an infinity would become a nucleus of infinite
+/// brightness in the tables.
+fn replace_nonfinite(raw: &Image) -> (std::borrow::Cow<'_, Image>, usize) {
+    let count = raw.iter().filter(|v| !v.is_finite()).count();
+    if count == 0 {
+        return (std::borrow::Cow::Borrowed(raw), 0);
+    }
+    let floor = raw
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite())
+        .fold(f32::INFINITY, f32::min);
+    let floor = if floor.is_finite() { floor } else { 0.0 };
+    let cleaned = raw.mapv(|v| if v.is_finite() { v } else { floor });
+    (std::borrow::Cow::Owned(cleaned), count)
 }
 
 /// The threshold for one prepared frame. A frame without contrast (all one value) gets an
