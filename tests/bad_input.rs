@@ -236,3 +236,63 @@ fn a_run_that_cannot_write_leaves_the_earlier_outputs() {
         .collect();
     assert!(hidden.is_empty(), "{hidden:?}");
 }
+
+#[test]
+fn nonsense_parameters_are_refused_before_any_work() {
+    // Zero or unknown-unit lengths, a maximum step of 0, gaps and movie sizes out of range, a
+    // frame range beyond the recording, and a parameter file with a misspelt key (the closest
+    // valid key suggested): exit code 2 and no output folder content.
+    let dir = tempfile::tempdir().unwrap();
+    let rec = good_recording(dir.path());
+    let rec = rec.to_str().unwrap();
+    let out = dir.path().join("out");
+    let o = out.to_str().unwrap();
+    let toml = dir.path().join("p.toml");
+    std::fs::write(&toml, "diameter = \"14px\"\nmax_gpa = 1\n").unwrap();
+    let t = toml.to_str().unwrap();
+    let cases: Vec<(Vec<&str>, &str)> = vec![
+        (vec!["track", rec, "-o", o, "--diameter", "0px"], "positive"),
+        (
+            vec!["track", rec, "-o", o, "--diameter", "14parsecs"],
+            "unknown length unit",
+        ),
+        (
+            vec!["track", rec, "-o", o, "--diameter", "14px", "--max-step", "0px"],
+            "positive",
+        ),
+        (
+            vec!["track", rec, "-o", o, "--diameter", "14px", "--max-gap", "99"],
+            "--max-gap",
+        ),
+        (
+            vec!["track", rec, "-o", o, "--diameter", "14px", "--qc-size", "10"],
+            "--qc-size",
+        ),
+        (
+            vec!["segment", rec, "-o", o, "--diameter", "14px", "--frames", "0..99"],
+            "3 frames",
+        ),
+        (vec!["track", rec, "-o", o, "--params", t], "did you mean \"max_gap\""),
+    ];
+    for (args, message) in cases {
+        let result = caravan(&args);
+        let stderr = String::from_utf8_lossy(&result.stderr);
+        assert_eq!(result.status.code(), Some(2), "{args:?}: {stderr}");
+        assert!(stderr.contains(message), "{args:?}: {stderr}");
+        let written = std::fs::read_dir(&out).map(|d| d.count()).unwrap_or(0);
+        assert_eq!(written, 0, "{args:?} wrote outputs");
+    }
+    // A valid file applies, and the command line wins over it.
+    std::fs::write(
+        &toml,
+        "diameter = \"14px\"\nmax_gap = 1\nno_movie = true\nno_analysis = true\n",
+    )
+    .unwrap();
+    let result = caravan(&["track", rec, "-o", o, "--params", t, "--max-gap", "0"]);
+    assert!(result.status.success(), "{}", String::from_utf8_lossy(&result.stderr));
+    let record: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
+    assert_eq!(record["parameters"]["link"]["max_gap_frames"], 0);
+    assert_eq!(record["parameters"]["diameter"]["px"], 14.0);
+    assert!(!out.join("qc_movie.gif").exists());
+}

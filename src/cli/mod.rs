@@ -7,6 +7,7 @@ mod compare;
 mod demo;
 mod inspect;
 mod link;
+mod param_file;
 mod preview;
 mod score;
 mod segment;
@@ -18,12 +19,13 @@ use caravan::params::{parse_pixel_size_um, parse_seconds, BackgroundMethod, Leng
 use caravan::pipeline::DiameterSource;
 use caravan::stack::{OpenOptions, Stack, ZMode};
 use caravan::Result;
-use clap::{Args, Parser, Subcommand, ValueEnum};
+use clap::{Args, CommandFactory, FromArgMatches, Parser, Subcommand, ValueEnum};
 use std::path::PathBuf;
 
 #[derive(Parser)]
 #[command(
     name = "caravan",
+    after_help = "Any command also takes --params FILE.toml: its options from a file (keys as the long options); the command line wins.",
     version,
     about = "Segment and track fluorescent nuclei in time-lapse TIFF recordings (research software)"
 )]
@@ -62,7 +64,23 @@ enum Command {
 
 /// Runs the command line and returns the process exit code.
 pub fn run() -> i32 {
-    let cli = Cli::parse();
+    let args = match param_file::expand(std::env::args_os().collect()) {
+        Ok(a) => a,
+        Err(e) => {
+            eprintln!("caravan: {e}");
+            return e.exit_code();
+        }
+    };
+    // A later occurrence of an option wins, so the command line overrides a parameter file.
+    let mut command = Cli::command();
+    let names: Vec<String> = command.get_subcommands().map(|s| s.get_name().to_string()).collect();
+    for name in names {
+        command = command.mut_subcommand(name, |s| s.args_override_self(true));
+    }
+    let cli = match Cli::from_arg_matches(&command.get_matches_from(args)) {
+        Ok(c) => c,
+        Err(e) => e.exit(),
+    };
     let result = match cli.command {
         Command::Inspect(a) => inspect::run(a),
         Command::Preview(a) => preview::run(a),
