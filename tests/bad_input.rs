@@ -296,3 +296,70 @@ fn nonsense_parameters_are_refused_before_any_work() {
     assert_eq!(record["parameters"]["diameter"]["px"], 14.0);
     assert!(!out.join("qc_movie.gif").exists());
 }
+
+#[test]
+fn unreadable_input_and_unwritable_output_are_named() {
+    // File permissions bind everybody but root; as root (as in CI) the command runs as the
+    // unprivileged user "nobody" through setpriv(1) (util-linux).
+    use std::os::unix::fs::PermissionsExt;
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::set_permissions(dir.path(), std::fs::Permissions::from_mode(0o755)).unwrap();
+    let rec = good_recording(dir.path());
+    for p in [dir.path().join("syn"), rec.clone()] {
+        std::fs::set_permissions(
+            &p,
+            std::fs::Permissions::from_mode(if p.is_dir() { 0o755 } else { 0o644 }),
+        )
+        .unwrap();
+    }
+    let secret = dir.path().join("secret.tif");
+    std::fs::copy(&rec, &secret).unwrap();
+    std::fs::set_permissions(&secret, std::fs::Permissions::from_mode(0o000)).unwrap();
+    let locked = dir.path().join("locked");
+    std::fs::create_dir(&locked).unwrap();
+    std::fs::set_permissions(&locked, std::fs::Permissions::from_mode(0o555)).unwrap();
+    let root = Command::new("id")
+        .arg("-u")
+        .output()
+        .map(|o| o.stdout == b"0\n")
+        .unwrap_or(false);
+    // A copy of the binary inside the world-readable temp folder: the build folder's parents
+    // may not be open to other users.
+    let bin = dir.path().join("caravan");
+    std::fs::copy(env!("CARGO_BIN_EXE_caravan"), &bin).unwrap();
+    std::fs::set_permissions(&bin, std::fs::Permissions::from_mode(0o755)).unwrap();
+    let run = |args: &[&str]| -> Output {
+        if root {
+            Command::new("setpriv")
+                .args(["--reuid=65534", "--regid=65534", "--clear-groups", "--"])
+                .arg(&bin)
+                .args(args)
+                .output()
+                .expect("setpriv (util-linux) runs the command as nobody")
+        } else {
+            Command::new(&bin).args(args).output().unwrap()
+        }
+    };
+    let unreadable = run(&["inspect", secret.to_str().unwrap()]);
+    let stderr = String::from_utf8_lossy(&unreadable.stderr);
+    assert_eq!(unreadable.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("secret.tif") && stderr.contains("ermission denied"),
+        "{stderr}"
+    );
+    let out = locked.join("run");
+    let unwritable = run(&[
+        "track",
+        rec.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+        "--diameter",
+        "14px",
+    ]);
+    let stderr = String::from_utf8_lossy(&unwritable.stderr);
+    assert_eq!(unwritable.status.code(), Some(3), "{stderr}");
+    assert!(
+        stderr.contains("locked") && stderr.contains("ermission denied"),
+        "{stderr}"
+    );
+}
