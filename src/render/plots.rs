@@ -2,6 +2,7 @@
 //! or log-log), origin-centred trajectories, a rose diagram of directions, histograms, and
 //! strip charts of values per condition with replicate means. Our own muted palette on white.
 
+use plotters::coord::ranged1d::ValueFormatter;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -80,29 +81,38 @@ pub fn line_chart(title: &str, x_desc: &str, y_desc: &str, series: &[Series], lo
             let (y0, y1) = (y0.max(1e-12), y1.max(y0 * 10.0));
             let mut chart =
                 b.build_cartesian_2d((x0 * 0.8..x1 * 1.25).log_scale(), (y0 * 0.8..y1 * 1.25).log_scale())?;
-            chart.configure_mesh().x_desc(x_desc).y_desc(y_desc).draw()?;
-            for (i, s) in series.iter().enumerate() {
-                draw_series(&mut chart, s, i, keep)?;
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE.mix(0.8))
-                .border_style(BLACK)
-                .draw()?;
+            fill_chart(&mut chart, series, x_desc, y_desc, keep)?;
         } else {
             let mut chart = b.build_cartesian_2d(x0..x1, y0..y1)?;
-            chart.configure_mesh().x_desc(x_desc).y_desc(y_desc).draw()?;
-            for (i, s) in series.iter().enumerate() {
-                draw_series(&mut chart, s, i, keep)?;
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE.mix(0.8))
-                .border_style(BLACK)
-                .draw()?;
+            fill_chart(&mut chart, series, x_desc, y_desc, keep)?;
         }
         Ok(())
     })
+}
+
+/// Axes, every series and the legend of a line chart (linear or logarithmic axes alike).
+fn fill_chart<'a, DB: DrawingBackend + 'a, X, Y>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
+    series: &[Series],
+    x_desc: &str,
+    y_desc: &str,
+    keep: impl Fn(&&(f64, f64)) -> bool + Copy,
+) -> DrawResult
+where
+    X: Ranged<ValueType = f64> + ValueFormatter<f64>,
+    Y: Ranged<ValueType = f64> + ValueFormatter<f64>,
+    DB::ErrorType: 'static,
+{
+    chart.configure_mesh().x_desc(x_desc).y_desc(y_desc).draw()?;
+    for (i, s) in series.iter().enumerate() {
+        draw_series(chart, s, i, keep)?;
+    }
+    chart
+        .configure_series_labels()
+        .background_style(WHITE.mix(0.8))
+        .border_style(BLACK)
+        .draw()?;
+    Ok(())
 }
 
 fn draw_series<'a, DB: DrawingBackend + 'a, X, Y>(
