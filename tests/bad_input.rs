@@ -138,6 +138,11 @@ fn unusual_recordings_are_refused_or_run_with_warnings() {
     write_pages::<colortype::Gray16>(&folder.join("t1.tif"), &[(32, 32, vec![0; 1024])]);
     write_pages::<colortype::Gray16>(&folder.join("t2.tif"), &[(20, 32, vec![0; 640])]);
     refused(&out, &track(&folder, &out), "t2.tif");
+    // Pages of several samples (RGB) need a channel.
+    let rgb = d.join("rgb.tif");
+    write_pages::<colortype::RGB16>(&rgb, &[(16, 16, vec![0; 768])]);
+    let e = refused(&out, &track(&rgb, &out), "rgb.tif");
+    assert!(e.contains("--channel"), "{e}");
     // A folder without frames, and sample types Caravan does not read.
     let empty = d.join("nothing");
     std::fs::create_dir(&empty).unwrap();
