@@ -64,6 +64,16 @@ fn svg(draw: impl FnOnce(&DrawingArea<SVGBackend<'_>, Shift>) -> DrawResult) -> 
     out
 }
 
+/// A chart with its caption and room for the axis labels.
+fn framed<'a, 'b>(root: &'a DrawingArea<SVGBackend<'b>, Shift>, title: &str) -> ChartBuilder<'a, 'b, SVGBackend<'b>> {
+    let mut b = ChartBuilder::on(root);
+    b.caption(title, FONT)
+        .margin(12)
+        .x_label_area_size(36)
+        .y_label_area_size(56);
+    b
+}
+
 /// A line chart; with `log`, both axes are logarithmic (non-positive points are left out).
 pub fn line_chart(title: &str, x_desc: &str, y_desc: &str, series: &[Series], log: bool) -> String {
     let keep = |p: &&(f64, f64)| !log || (p.0 > 0.0 && p.1 > 0.0);
@@ -71,11 +81,7 @@ pub fn line_chart(title: &str, x_desc: &str, y_desc: &str, series: &[Series], lo
     let (x0, x1) = span(all().map(|p| p.0), if log { 0.0 } else { 0.02 });
     let (y0, y1) = span(all().map(|p| p.1), if log { 0.0 } else { 0.05 });
     svg(|root| {
-        let mut b = ChartBuilder::on(root);
-        b.caption(title, FONT)
-            .margin(12)
-            .x_label_area_size(36)
-            .y_label_area_size(56);
+        let mut b = framed(root, title);
         if log {
             let (x0, x1) = (x0.max(1e-12), x1.max(x0 * 10.0));
             let (y0, y1) = (y0.max(1e-12), y1.max(y0 * 10.0));
@@ -152,12 +158,7 @@ pub fn trajectories(title: &str, unit: &str, tracks: &[Vec<(f64, f64)>], limit: 
         .fold(1e-9, f64::max)
         * 1.05;
     svg(|root| {
-        let mut chart = ChartBuilder::on(root)
-            .caption(title, FONT)
-            .margin(12)
-            .x_label_area_size(36)
-            .y_label_area_size(56)
-            .build_cartesian_2d(-reach..reach, reach..-reach)?;
+        let mut chart = framed(root, title).build_cartesian_2d(-reach..reach, reach..-reach)?;
         chart
             .configure_mesh()
             .x_desc(format!("x ({unit})"))
@@ -228,12 +229,8 @@ pub fn histogram(title: &str, x_desc: &str, values: &[f64], bins: usize) -> Stri
     }
     let top = counts.iter().copied().max().unwrap_or(0).max(1) as f64 * 1.1;
     svg(|root| {
-        let mut chart = ChartBuilder::on(root)
-            .caption(format!("{title} (n = {})", values.len()), FONT)
-            .margin(12)
-            .x_label_area_size(36)
-            .y_label_area_size(48)
-            .build_cartesian_2d(lo..hi, 0.0..top)?;
+        let mut chart =
+            framed(root, &format!("{title} (n = {})", values.len())).build_cartesian_2d(lo..hi, 0.0..top)?;
         chart.configure_mesh().x_desc(x_desc).y_desc("tracks").draw()?;
         chart.draw_series(counts.iter().enumerate().map(|(k, &c)| {
             let x = lo + k as f64 * width;
@@ -264,12 +261,7 @@ pub fn strip_chart(title: &str, y_desc: &str, groups: &[Strip]) -> String {
         0.08,
     );
     svg(|root| {
-        let mut chart = ChartBuilder::on(root)
-            .caption(title, FONT)
-            .margin(12)
-            .x_label_area_size(36)
-            .y_label_area_size(56)
-            .build_cartesian_2d(-0.5..groups.len() as f64 - 0.5, y0..y1)?;
+        let mut chart = framed(root, title).build_cartesian_2d(-0.5..groups.len() as f64 - 0.5, y0..y1)?;
         chart
             .configure_mesh()
             .disable_x_mesh()

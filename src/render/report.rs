@@ -354,6 +354,23 @@ fn qc_section(html: &mut String, record: &Value) {
     );
 }
 
+/// A table of text cells (escaped), scrolling sideways when wide.
+fn table(html: &mut String, header: &[&str], rows: &[Vec<String>]) {
+    html.push_str("<div class=\"wide\"><table><tr>");
+    for h in header {
+        let _ = write!(html, "<th>{}</th>", escape_html(h));
+    }
+    html.push_str("</tr>");
+    for row in rows {
+        html.push_str("<tr>");
+        for c in row {
+            let _ = write!(html, "<td>{}</td>", escape_html(c));
+        }
+        html.push_str("</tr>");
+    }
+    html.push_str("</table></div>");
+}
+
 /// One compared statistic for the comparison report.
 pub struct ComparedStatistic {
     /// Name with unit.
@@ -374,17 +391,8 @@ pub fn comparison_report(
 ) -> String {
     let mut html = page_start("Caravan comparison of conditions");
     let _ = write!(html, "<p>Manifest <code>{}</code>.</p>", escape_html(manifest));
-    html.push_str(
-        "<h2>Recordings</h2><table><tr><th>path</th><th>condition</th><th>replicate</th><th>labels</th></tr>",
-    );
-    for row in entries {
-        html.push_str("<tr>");
-        for c in row {
-            let _ = write!(html, "<td>{}</td>", escape_html(c));
-        }
-        html.push_str("</tr>");
-    }
-    html.push_str("</table>");
+    html.push_str("<h2>Recordings</h2>");
+    table(&mut html, &["path", "condition", "replicate", "labels"], entries);
     if !warnings.is_empty() {
         html.push_str("<div class=\"note\"><ul>");
         for w in warnings {
@@ -392,19 +400,9 @@ pub fn comparison_report(
         }
         html.push_str("</ul></div>");
     }
-    html.push_str("<h2>Differences between conditions</h2><div class=\"wide\"><table><tr>");
-    for h in header {
-        let _ = write!(html, "<th>{}</th>", escape_html(h));
-    }
-    html.push_str("</tr>");
-    for row in table_rows {
-        html.push_str("<tr>");
-        for c in row {
-            let _ = write!(html, "<td>{}</td>", escape_html(c));
-        }
-        html.push_str("</tr>");
-    }
-    html.push_str("</table></div><h2>Per condition</h2><div class=\"grid\">");
+    html.push_str("<h2>Differences between conditions</h2>");
+    table(&mut html, header, table_rows);
+    html.push_str("<h2>Per condition</h2><div class=\"grid\">");
     for (k, s) in stats.iter().enumerate() {
         figure(
             &mut html,
