@@ -1,6 +1,7 @@
-//! Statistics of tracks. This first piece summarises each track (span, path length, net
-//! displacement, directionality ratio, mean speed, mean direction); population statistics
-//! come later. No drawing here.
+//! Statistics of tracks: the per-track summary written with every run (`per_track.csv`, in
+//! pixels and frames), and the migration analysis of `caravan analyze` and `compare` in
+//! physical units (reading, filters, motility, MSD and its fits, circular statistics,
+//! collective order, condition comparison). No drawing here.
 
 pub mod circular;
 pub mod collective;
