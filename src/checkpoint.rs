@@ -41,6 +41,18 @@ pub struct Fingerprint {
     pub parameters: String,
 }
 
+impl Fingerprint {
+    /// The fingerprint of a recording (as described by `info`) and the run's parameters.
+    pub fn of(info: &crate::stack::StackInfo, parameters: serde_json::Value) -> Fingerprint {
+        Fingerprint {
+            input: info.path.display().to_string(),
+            bytes: info.bytes_on_disk,
+            shape: (info.frames, info.height, info.width),
+            parameters: parameters.to_string(),
+        }
+    }
+}
+
 #[derive(Debug, Serialize, Deserialize)]
 struct State {
     caravan_version: String,
@@ -114,7 +126,17 @@ impl CheckpointLog {
         if outlines.exists() {
             truncate(&outlines, state.outlines_bytes)?;
         }
-        let records = read_records(&log_path, state.frames_done)?;
+        let records = read_frame_log(&log_path, 0)?;
+        if records.len() != state.frames_done {
+            return Err(Error::input(
+                &log_path,
+                format!(
+                    "damaged checkpoint: {} frames logged, {} expected",
+                    records.len(),
+                    state.frames_done
+                ),
+            ));
+        }
         let file = OpenOptions::new()
             .append(true)
             .open(&log_path)
@@ -184,26 +206,22 @@ fn truncate(path: &Path, bytes: u64) -> Result<()> {
     f.set_len(bytes).map_err(|e| Error::output(path, e))
 }
 
-fn read_records(path: &Path, expected: usize) -> Result<Vec<FrameRecord>> {
+/// Reads a frame log (one JSON record per line) whose frames must run from `first` on, one
+/// after another; shared by checkpoints (from frame 0) and shards (from their first frame).
+///
+/// # Errors
+/// An unreadable file, a damaged line, or frames out of order (naming the line).
+pub fn read_frame_log(path: &Path, first: usize) -> Result<Vec<FrameRecord>> {
     let file = File::open(path).map_err(|e| Error::input(path, e.to_string()))?;
-    let mut records = Vec::with_capacity(expected);
+    let mut records = Vec::new();
     for (k, line) in BufReader::new(file).lines().enumerate() {
         let line = line.map_err(|e| Error::input(path, e.to_string()))?;
         let record: FrameRecord = serde_json::from_str(&line)
-            .map_err(|e| Error::input(path, format!("line {}: damaged checkpoint: {e}", k + 1)))?;
-        if record.frame != k {
+            .map_err(|e| Error::input(path, format!("line {}: damaged frame log: {e}", k + 1)))?;
+        if record.frame != first + k {
             return Err(Error::input(path, format!("line {}: frames out of order", k + 1)));
         }
         records.push(record);
-    }
-    if records.len() != expected {
-        return Err(Error::input(
-            path,
-            format!(
-                "damaged checkpoint: {} frames logged, {expected} expected",
-                records.len()
-            ),
-        ));
     }
     Ok(records)
 }

@@ -541,15 +541,10 @@ fn start_checkpoint(
         }
         _ => return Ok((None, Vec::new())),
     };
-    let fingerprint = Fingerprint {
-        input: info.path.display().to_string(),
-        bytes: info.bytes_on_disk,
-        shape: (info.frames, info.height, info.width),
-        parameters: serde_json::json!({
-            "diameter": diameter, "segment": params, "link": outputs.linking, "movie": outputs.movie,
-        })
-        .to_string(),
-    };
+    let parameters = serde_json::json!({
+        "diameter": diameter, "segment": params, "link": outputs.linking, "movie": outputs.movie,
+    });
+    let fingerprint = Fingerprint::of(info, parameters);
     if outputs.resume {
         let (log, records) = CheckpointLog::resume(dir, fingerprint, every)?;
         Ok((Some(log), records))

@@ -15,7 +15,7 @@ use crate::pipeline::{
 use crate::render::movie::OutlineSpool;
 use crate::stack::Stack;
 use serde::{Deserialize, Serialize};
-use std::io::{BufRead, BufReader, BufWriter, Write};
+use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
@@ -37,13 +37,10 @@ pub struct ShardInfo {
 }
 
 fn fingerprint(stack: &Stack, diameter: DiameterSource, params: &SegmentParams) -> Fingerprint {
-    let info = stack.info();
-    Fingerprint {
-        input: info.path.display().to_string(),
-        bytes: info.bytes_on_disk,
-        shape: (info.frames, info.height, info.width),
-        parameters: serde_json::json!({ "diameter": diameter, "segment": params }).to_string(),
-    }
+    Fingerprint::of(
+        stack.info(),
+        serde_json::json!({ "diameter": diameter, "segment": params }),
+    )
 }
 
 /// Segments frames `range` of `stack` into the shard folder `dir`.
@@ -197,8 +194,8 @@ pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
         (Some(_), Some(_)) => Some(OutlineSpool::create(&work)?),
         _ => None,
     };
-    for (d, _) in &shards {
-        for record in read_log(&d.join("frames.jsonl"))? {
+    for (d, shard) in &shards {
+        for record in crate::checkpoint::read_frame_log(&d.join("frames.jsonl"), shard.frames.0)? {
             pass.take(record)?;
         }
         if let Some(s) = spool.as_mut() {
@@ -222,17 +219,4 @@ pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
     crate::pipeline::publish(staging, dir, outputs)?;
     run.dir = dir.to_path_buf();
     Ok(run)
-}
-
-fn read_log(path: &Path) -> Result<Vec<FrameRecord>> {
-    let file = std::fs::File::open(path).map_err(|e| Error::input(path, e.to_string()))?;
-    BufReader::new(file)
-        .lines()
-        .enumerate()
-        .map(|(k, line)| {
-            let line = line.map_err(|e| Error::input(path, e.to_string()))?;
-            serde_json::from_str(&line)
-                .map_err(|e| Error::input(path, format!("line {}: damaged shard log: {e}", k + 1)))
-        })
-        .collect()
 }

@@ -17,13 +17,18 @@ fn ok(out: &Output) -> String {
     String::from_utf8(out.stdout.clone()).unwrap()
 }
 
+/// `caravan synth -o FOLDER OPTIONS...`; returns the recording's path.
+fn synth_into(folder: &Path, options: &[&str]) -> String {
+    let mut args = vec!["synth", "-o", folder.to_str().unwrap()];
+    args.extend_from_slice(options);
+    ok(&caravan(&args, "1"));
+    folder.join("recording.tif").to_str().unwrap().to_string()
+}
+
 fn synth(dir: &Path) -> String {
-    let rec = dir.join("syn");
-    ok(&caravan(
+    synth_into(
+        &dir.join("syn"),
         &[
-            "synth",
-            "-o",
-            rec.to_str().unwrap(),
             "--scenario",
             "crowded",
             "--size",
@@ -33,9 +38,7 @@ fn synth(dir: &Path) -> String {
             "--seed",
             "4",
         ],
-        "1",
-    ));
-    rec.join("recording.tif").to_str().unwrap().to_string()
+    )
 }
 
 #[test]
@@ -286,11 +289,9 @@ fn score_writes_json_that_an_independent_reader_confirms() {
     let syn = dir.path().join("div");
     let run = dir.path().join("run");
     let (syn_s, run_s) = (syn.to_str().unwrap(), run.to_str().unwrap());
-    ok(&caravan(
+    synth_into(
+        Path::new(syn_s),
         &[
-            "synth",
-            "-o",
-            syn_s,
             "--size",
             "192x192",
             "--frames",
@@ -300,8 +301,7 @@ fn score_writes_json_that_an_independent_reader_confirms() {
             "--seed",
             "9",
         ],
-        "1",
-    ));
+    );
     let rec = syn.join("recording.tif");
     ok(&caravan(
         &[
@@ -354,11 +354,9 @@ fn analyze_and_compare_pass_independent_readers() {
             let name = format!("{scenario}{seed}");
             let syn = dir.path().join(format!("syn_{name}"));
             let seed_text = seed.to_string();
-            ok(&caravan(
+            synth_into(
+                &syn,
                 &[
-                    "synth",
-                    "-o",
-                    syn.to_str().unwrap(),
                     "--scenario",
                     scenario,
                     "--size",
@@ -368,8 +366,7 @@ fn analyze_and_compare_pass_independent_readers() {
                     "--seed",
                     &seed_text,
                 ],
-                "1",
-            ));
+            );
             let run = dir.path().join(&name);
             let rec = syn.join("recording.tif");
             let out = ok(&caravan(
@@ -426,6 +423,23 @@ fn analyze_and_compare_pass_independent_readers() {
     );
 }
 
+/// The tables and the QC movie of two run folders are byte-identical.
+fn assert_same_run_outputs(a: &Path, b: &Path) {
+    for name in [
+        "detections.csv",
+        "tracks.csv",
+        "per_track.csv",
+        "qc_movie.gif",
+        "qc_sheet.png",
+    ] {
+        assert_eq!(
+            std::fs::read(a.join(name)).unwrap(),
+            std::fs::read(b.join(name)).unwrap(),
+            "{name}"
+        );
+    }
+}
+
 /// run.json without its timings (the one part that differs between runs).
 fn run_record_without_timings(dir: &Path) -> serde_json::Value {
     let mut v: serde_json::Value =
@@ -441,11 +455,9 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
     // or checkpoint file is left behind.
     let dir = tempfile::tempdir().unwrap();
     let syn = dir.path().join("syn");
-    ok(&caravan(
+    synth_into(
+        &syn,
         &[
-            "synth",
-            "-o",
-            syn.to_str().unwrap(),
             "--scenario",
             "stripe",
             "--size",
@@ -455,8 +467,7 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
             "--seed",
             "5",
         ],
-        "1",
-    ));
+    );
     let rec = syn.join("recording.tif");
     let track = |out: &Path, extra: &[&str]| {
         let mut args = vec![
@@ -510,19 +521,7 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
             .collect::<Vec<_>>(),
         "2",
     ));
-    for name in [
-        "detections.csv",
-        "tracks.csv",
-        "per_track.csv",
-        "qc_movie.gif",
-        "qc_sheet.png",
-    ] {
-        assert_eq!(
-            std::fs::read(whole.join(name)).unwrap(),
-            std::fs::read(killed.join(name)).unwrap(),
-            "{name}"
-        );
-    }
+    assert_same_run_outputs(&whole, &killed);
     assert_eq!(run_record_without_timings(&whole), run_record_without_timings(&killed));
     let leftovers: Vec<String> = std::fs::read_dir(&killed)
         .unwrap()
@@ -548,11 +547,9 @@ fn shards_linked_equal_one_track_run() {
     // name and timings. Shards that leave a gap are refused with exit code 2.
     let dir = tempfile::tempdir().unwrap();
     let syn = dir.path().join("syn");
-    ok(&caravan(
+    synth_into(
+        &syn,
         &[
-            "synth",
-            "-o",
-            syn.to_str().unwrap(),
             "--scenario",
             "dish",
             "--size",
@@ -564,8 +561,7 @@ fn shards_linked_equal_one_track_run() {
             "--seed",
             "8",
         ],
-        "1",
-    ));
+    );
     let rec = syn.join("recording.tif");
     let rec = rec.to_str().unwrap();
     let path = |name: &str| dir.path().join(name).to_str().unwrap().to_string();
@@ -611,19 +607,7 @@ fn shards_linked_equal_one_track_run() {
         &["link", &path("b"), &path("a"), "-o", &path("linked"), "--no-analysis"],
         "2",
     ));
-    for name in [
-        "detections.csv",
-        "tracks.csv",
-        "per_track.csv",
-        "qc_movie.gif",
-        "qc_sheet.png",
-    ] {
-        assert_eq!(
-            std::fs::read(dir.path().join("whole").join(name)).unwrap(),
-            std::fs::read(dir.path().join("linked").join(name)).unwrap(),
-            "{name}"
-        );
-    }
+    assert_same_run_outputs(&dir.path().join("whole"), &dir.path().join("linked"));
     let strip = |name: &str| {
         let mut v = run_record_without_timings(&dir.path().join(name));
         v.as_object_mut().unwrap().remove("command");

@@ -356,11 +356,7 @@ pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<(
     ensure_dir(dir)?;
     write_table(dir, "replicates.csv", |w| write_replicates(w, c))?;
     write_table(dir, "comparison.csv", |w| {
-        writeln!(w, "{}", COMPARISON_HEADER.join(","))?;
-        for row in comparison_rows(c) {
-            writeln!(w, "{}", row.iter().map(|s| csv_cell(s)).collect::<Vec<_>>().join(","))?;
-        }
-        Ok(())
+        write_csv_rows(w, &COMPARISON_HEADER, &comparison_rows(c))
     })?;
     let record = serde_json::json!({
         "caravan_version": crate::VERSION,
@@ -473,37 +469,47 @@ fn comparison_rows(c: &Comparison) -> Vec<Vec<String>> {
         .collect()
 }
 
-/// A CSV cell, quoted when it holds a comma, quote or line break (RFC 4180).
-fn csv_cell(s: &str) -> String {
-    if s.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
+/// Writes a header and rows as CSV (the csv crate quotes cells that need it, RFC 4180).
+fn write_csv_rows(w: &mut impl Write, header: &[&str], rows: &[Vec<String>]) -> std::io::Result<()> {
+    let mut out = csv::Writer::from_writer(w);
+    out.write_record(header)?;
+    for row in rows {
+        out.write_record(row)?;
     }
+    out.flush()
 }
 
 fn write_replicates(w: &mut impl Write, c: &Comparison) -> std::io::Result<()> {
-    writeln!(w, "statistic,condition,replicate,tracks,mean,standard_deviation")?;
+    let f = |v: f64| {
+        if v.is_finite() {
+            format!("{v:.6}")
+        } else {
+            String::new()
+        }
+    };
+    let mut rows = Vec::new();
     for name in &c.statistic_names {
         for r in &c.replicates[name] {
             let (m, sd) = mean_sd(&r.values).unwrap_or((f64::NAN, None));
-            writeln!(
-                w,
-                "{},{},{},{},{},{}",
-                csv_cell(name),
-                csv_cell(&r.condition),
-                csv_cell(&r.replicate),
-                r.values.len(),
-                if m.is_finite() {
-                    format!("{m:.6}")
-                } else {
-                    String::new()
-                },
-                sd.map(|s| format!("{s:.6}")).unwrap_or_default()
-            )?;
+            rows.push(vec![
+                name.clone(),
+                r.condition.clone(),
+                r.replicate.clone(),
+                r.values.len().to_string(),
+                f(m),
+                sd.map(f).unwrap_or_default(),
+            ]);
         }
     }
-    Ok(())
+    let header = [
+        "statistic",
+        "condition",
+        "replicate",
+        "tracks",
+        "mean",
+        "standard_deviation",
+    ];
+    write_csv_rows(w, &header, &rows)
 }
 
 #[cfg(test)]

@@ -64,20 +64,6 @@ pub struct AnalyzeArgs {
     analysis: AnalysisArgs,
 }
 
-/// Parses `A..B` into a pair.
-fn range(name: &str, text: &str) -> Result<(usize, usize)> {
-    let bad = || Error::parameter(name, text, "expected A..B with whole numbers A < B");
-    let (a, b) = text.split_once("..").ok_or_else(bad)?;
-    let (a, b): (usize, usize) = (
-        a.trim().parse().map_err(|_| bad())?,
-        b.trim().parse().map_err(|_| bad())?,
-    );
-    if a >= b {
-        return Err(bad());
-    }
-    Ok((a, b))
-}
-
 impl AnalysisArgs {
     /// The calibration given on the command line.
     pub fn calibration(&self) -> CalibrationOverride {
@@ -93,7 +79,11 @@ impl AnalysisArgs {
         if !self.axis.is_finite() {
             return Err(Error::parameter("--axis", self.axis, "must be a number of degrees"));
         }
-        let fit_lags = self.fit_lags.as_deref().map(|t| range("--fit-lags", t)).transpose()?;
+        let fit_lags = self
+            .fit_lags
+            .as_deref()
+            .map(|t| super::half_open_range("--fit-lags", t))
+            .transpose()?;
         if fit_lags.is_some_and(|(a, b)| a == 0 || b - a < 2) {
             return Err(Error::parameter(
                 "--fit-lags",
@@ -127,7 +117,11 @@ impl AnalysisArgs {
         };
         let filters = Filters {
             min_points: self.min_points.max(2),
-            frames: self.frames.as_deref().map(|t| range("--frames", t)).transpose()?,
+            frames: self
+                .frames
+                .as_deref()
+                .map(|t| super::half_open_range("--frames", t))
+                .transpose()?,
             region,
         };
         Ok((options, filters))

@@ -237,6 +237,20 @@ impl RunArgs {
     }
 }
 
+/// Parses `A..B` (whole numbers, A < B) for the option `name`.
+pub(crate) fn half_open_range(name: &str, text: &str) -> Result<(usize, usize)> {
+    let bad = || caravan::Error::parameter(name, text, "expected A..B with whole numbers A < B");
+    let (a, b) = text.split_once("..").ok_or_else(bad)?;
+    let (a, b): (usize, usize) = (
+        a.trim().parse().map_err(|_| bad())?,
+        b.trim().parse().map_err(|_| bad())?,
+    );
+    if a >= b {
+        return Err(bad());
+    }
+    Ok((a, b))
+}
+
 /// Prints what a run produced, its warnings, and where it went.
 fn print_summary(run: &caravan::pipeline::SegmentRun) {
     let tracks = match &run.resolution {

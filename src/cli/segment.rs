@@ -35,12 +35,7 @@ pub fn run(args: SegmentArgs) -> Result<()> {
 }
 
 fn run_shard(args: &SegmentArgs, text: &str) -> Result<()> {
-    let bad = || Error::parameter("--frames", text, "expected A..B with whole numbers A < B");
-    let (a, b) = text.split_once("..").ok_or_else(bad)?;
-    let range = (
-        a.trim().parse().map_err(|_| bad())?,
-        b.trim().parse().map_err(|_| bad())?,
-    );
+    let range = super::half_open_range("--frames", text)?;
     if args.run.labels {
         return Err(Error::parameter(
             "--labels",

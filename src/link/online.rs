@@ -20,14 +20,19 @@ pub enum Prediction {
     On,
 }
 
+/// Parses a switch written `on` or `off`.
+fn on_off(s: &str) -> Result<bool, String> {
+    match s {
+        "on" => Ok(true),
+        "off" => Ok(false),
+        _ => Err(format!("{s:?}: expected on or off")),
+    }
+}
+
 impl std::str::FromStr for Prediction {
     type Err = String;
     fn from_str(s: &str) -> Result<Self, String> {
-        match s {
-            "on" => Ok(Prediction::On),
-            "off" => Ok(Prediction::Off),
-            _ => Err(format!("{s:?}: expected on or off")),
-        }
+        Ok(if on_off(s)? { Prediction::On } else { Prediction::Off })
     }
 }
 
@@ -59,11 +64,7 @@ pub enum Divisions {
 impl std::str::FromStr for Divisions {
     type Err = String;
     fn from_str(s: &str) -> Result<Self, String> {
-        match s {
-            "on" => Ok(Divisions::On),
-            "off" => Ok(Divisions::Off),
-            _ => Err(format!("{s:?}: expected on or off")),
-        }
+        Ok(if on_off(s)? { Divisions::On } else { Divisions::Off })
     }
 }
 
