@@ -8,7 +8,7 @@ use crate::error::{Error, Result};
 use crate::link::divide::DivisionEvent;
 use crate::link::online::{LinkParams, OnlineLinker};
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
-use crate::output::{ensure_dir, fnv1a64_file, write_atomic, AtomicFile, Staging};
+use crate::output::{crc32_file, ensure_dir, write_atomic, AtomicFile, Staging};
 use crate::params::{Length, SegmentParams};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
 use crate::segment::{diameter::estimate_diameter, segment_frame, FrameSegmentation};
@@ -185,6 +185,38 @@ impl Iterator for SegmentedFrames<'_> {
     }
 }
 
+/// Runs `consume` on the segmented frames `range` of `stack`, in frame order, while the next
+/// frames are being segmented: a producer thread drives [`SegmentedFrames`] (whose work runs
+/// on the worker pool) and hands results over a short queue, so writing tables, logging and
+/// linking on the calling thread no longer leave the workers idle between batches.
+/// Returns what `consume` returns; if it stops early, the producer stops at its next frame.
+pub fn with_segmented_frames<T>(
+    stack: &mut Stack,
+    params: &SegmentParams,
+    progress: ProgressBar,
+    range: std::ops::Range<usize>,
+    consume: impl FnOnce(&mut dyn Iterator<Item = Result<FrameSegmentation>>) -> T,
+) -> T {
+    let queue = 2 * rayon::current_num_threads().max(1);
+    std::thread::scope(|scope| {
+        let (sender, receiver) = std::sync::mpsc::sync_channel(queue);
+        let producer = scope.spawn(move || {
+            let frames = SegmentedFrames::starting_at(stack, params, progress, range.start).until(range.end);
+            for seg in frames {
+                if sender.send(seg).is_err() {
+                    break;
+                }
+            }
+        });
+        let result = consume(&mut receiver.iter());
+        drop(receiver);
+        if let Err(panic) = producer.join() {
+            std::panic::resume_unwind(panic);
+        }
+        result
+    })
+}
+
 /// Per-frame facts kept for the run record.
 #[derive(Debug, Clone, Serialize)]
 pub struct FrameSummary {
@@ -312,7 +344,6 @@ pub fn run_recording(
     let first = checkpoint.as_ref().map_or(0, |c| c.frames_done());
     let progress = progress_bar(info.frames as u64, "frames");
     progress.set_position(first as u64);
-    let mut segmented = SegmentedFrames::starting_at(stack, params, progress, first);
     let mut handle = |seg: FrameSegmentation| -> Result<Vec<u32>> {
         if let Some(s) = spool.as_mut() {
             s.push(&seg.labels, info.width, info.height)?;
@@ -329,24 +360,28 @@ pub fn run_recording(
         pass.take(record)?;
         Ok(seg.labels)
     };
-    if outputs.labels {
-        write_stack::<u32, _>(
-            &work.join("labels.tif"),
-            info.width,
-            info.height,
-            info.frames,
-            TiffCompression::Deflate,
-            None,
-            |_| {
-                let seg = segmented.next().expect("one result per frame")?;
-                handle(seg)
-            },
-        )?;
-    } else {
-        for seg in segmented {
-            handle(seg?)?;
+    let frames = first..info.frames;
+    with_segmented_frames(stack, params, progress, frames, |segmented| {
+        if outputs.labels {
+            write_stack::<u32, _>(
+                &work.join("labels.tif"),
+                info.width,
+                info.height,
+                info.frames,
+                TiffCompression::Deflate,
+                None,
+                |_| {
+                    let seg = segmented.next().expect("one result per frame")?;
+                    handle(seg)
+                },
+            )
+        } else {
+            for seg in segmented {
+                handle(seg?)?;
+            }
+            Ok(())
         }
-    }
+    })?;
     let mut run = finish_run(
         stack,
         pass,
@@ -422,12 +457,12 @@ pub(crate) fn finish_run(
         movie,
         warnings,
     };
-    let checksum = fnv1a64_file(&info.path).ok().map(|h| format!("{h:016x}"));
+    let checksum = crc32_file(&info.path).ok().map(|h| format!("{h:08x}"));
     let record = serde_json::json!({
         "caravan_version": crate::VERSION,
         "command": command,
         "research_use": "Caravan is research software; statistics are only as good as the segmentation they rest on.",
-        "input": { "stack": info, "fnv1a64": checksum },
+        "input": { "stack": info, "crc32": checksum },
         "parameters": { "diameter": diameter, "segment": params, "link": outputs.linking, "movie": outputs.movie },
         "counts": { "frames": run.frames.len(), "detections": run.detections(), "tracks": run.tracks.len() },
         "linking_qc": run.linking_qc,

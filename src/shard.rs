@@ -9,8 +9,8 @@ use crate::error::{Error, Result};
 use crate::output::{ensure_dir, write_atomic};
 use crate::params::SegmentParams;
 use crate::pipeline::{
-    finish_run, progress_bar, remove_stale_partials, DiameterSource, FirstPass, SegmentOutputs, SegmentRun,
-    SegmentedFrames,
+    finish_run, progress_bar, remove_stale_partials, with_segmented_frames, DiameterSource, FirstPass, SegmentOutputs,
+    SegmentRun,
 };
 use crate::render::movie::OutlineSpool;
 use crate::stack::Stack;
@@ -89,18 +89,21 @@ pub fn write_shard(
     let mut log = BufWriter::new(std::fs::File::create(&log_temp).map_err(|e| Error::output(&log_temp, e))?);
     let mut spool = OutlineSpool::durable(&outlines_temp, false)?;
     let progress = progress_bar((range.1 - range.0) as u64, "frames");
-    for seg in SegmentedFrames::starting_at(stack, params, progress, range.0).until(range.1) {
-        let seg = seg?;
-        spool.push(&seg.labels, w, h)?;
-        let record = FrameRecord {
-            frame: seg.frame,
-            threshold: seg.threshold.is_finite().then_some(seg.threshold),
-            detections: seg.detections,
-            nonfinite_pixels: seg.nonfinite_pixels,
-        };
-        writeln!(log, "{}", serde_json::to_string(&record).expect("serialisable"))
-            .map_err(|e| Error::output(&log_temp, e))?;
-    }
+    with_segmented_frames(stack, params, progress, range.0..range.1, |segmented| -> Result<()> {
+        for seg in segmented {
+            let seg = seg?;
+            spool.push(&seg.labels, w, h)?;
+            let record = FrameRecord {
+                frame: seg.frame,
+                threshold: seg.threshold.is_finite().then_some(seg.threshold),
+                detections: seg.detections,
+                nonfinite_pixels: seg.nonfinite_pixels,
+            };
+            writeln!(log, "{}", serde_json::to_string(&record).expect("serialisable"))
+                .map_err(|e| Error::output(&log_temp, e))?;
+        }
+        Ok(())
+    })?;
     let file = log.into_inner().map_err(|e| Error::output(&log_temp, e.into_error()))?;
     file.sync_all().map_err(|e| Error::output(&log_temp, e))?;
     spool.flushed_len()?;

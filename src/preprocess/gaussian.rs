@@ -9,6 +9,11 @@ pub fn gaussian_kernel(sigma: f32) -> Vec<f32> {
     gaussian_derivative_kernel(sigma, 0)
 }
 
+/// Half-width `r = int(4σ + 0.5)` of the kernels: how far a filtered pixel reads.
+pub fn gaussian_radius(sigma: f32) -> usize {
+    (4.0 * sigma as f64 + 0.5) as usize
+}
+
 /// Kernel of the Gaussian (order 0) or its second derivative (order 2), built as scipy's
 /// `_gaussian_kernel1d`: the sampled Gaussian is normalised to sum 1, then multiplied by the
 /// derivative polynomial (for order 2: `x²/σ⁴ - 1/σ²`).
@@ -16,8 +21,8 @@ pub fn gaussian_kernel(sigma: f32) -> Vec<f32> {
 /// # Panics
 /// For orders other than 0 and 2 (a caller bug).
 pub fn gaussian_derivative_kernel(sigma: f32, order: u8) -> Vec<f32> {
+    let radius = gaussian_radius(sigma) as i64;
     let sigma = sigma as f64;
-    let radius = (4.0 * sigma + 0.5) as i64;
     let phi: Vec<f64> = (-radius..=radius)
         .map(|x| (-0.5 * (x * x) as f64 / (sigma * sigma)).exp())
         .collect();

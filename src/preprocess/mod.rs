@@ -5,7 +5,9 @@ mod background;
 mod gaussian;
 
 pub use background::{background_estimate, grey_opening_square, max_filter_square, min_filter_square, tophat};
-pub use gaussian::{convolve_separable, gaussian_blur, gaussian_derivative_kernel, gaussian_kernel, gaussian_laplace};
+pub use gaussian::{
+    convolve_separable, gaussian_blur, gaussian_derivative_kernel, gaussian_kernel, gaussian_laplace, gaussian_radius,
+};
 
 use crate::image2d::Image;
 use crate::params::{BackgroundMethod, SegmentParams};

@@ -13,9 +13,9 @@ pub const LEVELS_PER_UNIT: f64 = 256.0;
 /// P. Soille (2003), *Morphological Image Analysis*, 2nd ed., Springer, §6.3.4 (h-maxima via
 /// reconstruction); reconstruction by propagation from the highest level down, L. Vincent
 /// (1993), "Morphological grayscale reconstruction in image analysis", IEEE Trans. Image
-/// Process. 2(2):176–201, doi:10.1109/83.217222, with a hierarchical (bucket) queue over values
-/// quantised to 1/[`LEVELS_PER_UNIT`] (departure: values are rounded to that step). As
-/// scikit-image `h_maxima`, a dynamic exactly equal to `h` keeps its seed.
+/// Process. 2(2):176–201, doi:10.1109/83.217222, over values quantised to
+/// 1/[`LEVELS_PER_UNIT`] (departure: values are rounded to that step), highest level first from
+/// a hierarchical queue with one last-in-first-out list per level. As scikit-image `h_maxima`, a dynamic exactly equal to `h` keeps its seed.
 pub fn h_maxima(values: &[f32], mask: &[bool], width: usize, height: usize, h: f64) -> Vec<bool> {
     let n = values.len();
     // f32 arithmetic: distances of a frame are far below 2^24 / 256, so the product is exact
@@ -25,37 +25,67 @@ pub fn h_maxima(values: &[f32], mask: &[bool], width: usize, height: usize, h: f
     let h_levels = (h * LEVELS_PER_UNIT).round().max(0.0) as u32;
     // Marker = value − h (as levels, floored at 0); reconstruction starts from it.
     let mut rec: Vec<u32> = levels.iter().map(|&v| v.saturating_sub(h_levels)).collect();
-    let top = (0..n).filter(|&i| mask[i]).map(|i| rec[i]).max().unwrap_or(0) as usize;
-    let mut buckets: Vec<Vec<u32>> = vec![Vec::new(); top + 1];
     // A pixel whose marker is at level 0 can raise nothing (every level is ≥ 0), so it is
-    // never queued; level 0 is not processed.
+    // never queued. Entries left behind by a later raise are skipped when they come up.
+    let top = (0..n).filter(|&i| mask[i]).map(|i| rec[i]).max().unwrap_or(0);
+    let mut queue = LevelQueue::new(top);
     for i in (0..n).filter(|&i| mask[i] && rec[i] > 0) {
-        buckets[rec[i] as usize].push(i as u32);
+        queue.push(rec[i], i as u32);
     }
     for current in (1..=top).rev() {
-        let mut cursor = 0;
-        while cursor < buckets[current].len() {
-            let p = buckets[current][cursor] as usize;
-            cursor += 1;
-            if rec[p] as usize != current {
-                continue; // raised after it was queued at this level
+        while let Some(p) = queue.pop(current) {
+            let p = p as usize;
+            if rec[p] != current {
+                continue;
             }
             for q in neighbours8(p, width, height) {
                 if !mask[q] {
                     continue;
                 }
-                let candidate = (current as u32).min(levels[q]);
+                let candidate = current.min(levels[q]);
                 if candidate > rec[q] {
                     rec[q] = candidate;
-                    buckets[candidate as usize].push(q as u32);
+                    queue.push(candidate, q as u32);
                 }
             }
         }
-        buckets[current] = Vec::new();
     }
     (0..n)
         .map(|i| mask[i] && levels[i] >= h_levels && levels[i] - rec[i] >= h_levels)
         .collect()
+}
+
+/// A hierarchical queue: one last-in-first-out list per integer level, all lists threaded
+/// through one entry buffer (no allocation per level).
+struct LevelQueue {
+    /// Most recent entry of each level.
+    head: Vec<u32>,
+    /// (pixel, next entry of the same level).
+    entries: Vec<(u32, u32)>,
+}
+
+impl LevelQueue {
+    const NONE: u32 = u32::MAX;
+
+    fn new(top: u32) -> LevelQueue {
+        LevelQueue {
+            head: vec![Self::NONE; top as usize + 1],
+            entries: Vec::new(),
+        }
+    }
+
+    fn push(&mut self, level: u32, pixel: u32) {
+        let head = &mut self.head[level as usize];
+        self.entries.push((pixel, *head));
+        *head = (self.entries.len() - 1) as u32;
+    }
+
+    fn pop(&mut self, level: u32) -> Option<u32> {
+        let head = &mut self.head[level as usize];
+        let (pixel, next) = *self.entries.get(*head as usize)?;
+        *head = next;
+        Some(pixel)
+    }
 }
 
 pub(crate) fn neighbours8(i: usize, width: usize, height: usize) -> impl Iterator<Item = usize> {

@@ -97,30 +97,34 @@ pub fn label_components(mask: &[bool], width: usize, height: usize) -> (Vec<u32>
 /// Drops objects whose area is outside `[min_area, max_area]` and renumbers the rest 1, 2, ...
 /// in raster order of their first pixel, so labels do not depend on seed order.
 pub fn filter_and_relabel(labels: &mut [u32], min_area: f64, max_area: f64) -> u32 {
-    let top = labels.iter().copied().max().unwrap_or(0) as usize;
+    let foreground: Vec<u32> = (0..labels.len() as u32).filter(|&i| labels[i as usize] != 0).collect();
+    filter_and_relabel_pixels(labels, &foreground, min_area, max_area)
+}
+
+/// [`filter_and_relabel`] for a label image that is zero outside `pixels` (indices in any
+/// order): only those pixels are read and rewritten.
+pub fn filter_and_relabel_pixels(labels: &mut [u32], pixels: &[u32], min_area: f64, max_area: f64) -> u32 {
+    let top = pixels.iter().map(|&i| labels[i as usize]).max().unwrap_or(0) as usize;
     let mut area = vec![0u64; top + 1];
-    for &l in labels.iter() {
-        area[l as usize] += 1;
+    let mut first = vec![u32::MAX; top + 1];
+    for &i in pixels {
+        let l = labels[i as usize] as usize;
+        area[l] += 1;
+        first[l] = first[l].min(i);
     }
+    let mut kept: Vec<usize> = (1..=top)
+        .filter(|&l| area[l] > 0 && (min_area..=max_area).contains(&(area[l] as f64)))
+        .collect();
+    kept.sort_unstable_by_key(|&l| first[l]);
     let mut new_id = vec![0u32; top + 1];
-    let mut next = 0;
-    for l in labels.iter_mut() {
-        if *l == 0 {
-            continue;
-        }
-        let old = *l as usize;
-        let a = area[old] as f64;
-        if a < min_area || a > max_area {
-            *l = 0;
-            continue;
-        }
-        if new_id[old] == 0 {
-            next += 1;
-            new_id[old] = next;
-        }
-        *l = new_id[old];
+    for (k, &l) in kept.iter().enumerate() {
+        new_id[l] = k as u32 + 1;
     }
-    next
+    for &i in pixels {
+        let l = &mut labels[i as usize];
+        *l = new_id[*l as usize];
+    }
+    kept.len() as u32
 }
 
 #[cfg(test)]
@@ -146,5 +150,14 @@ mod tests {
         let mut l = labels.clone();
         assert_eq!(filter_and_relabel(&mut l, 2.0, 100.0), 1);
         assert_eq!(l[24], 0);
+    }
+
+    #[test]
+    fn relabelling_follows_the_first_pixel_in_raster_order() {
+        // Hand-made: label 7 starts at pixel 1, label 3 at pixel 2, label 5 (one pixel) is
+        // dropped by the minimum area; 7 becomes 1 and 3 becomes 2.
+        let mut l = vec![0, 7, 3, 3, 7, 5, 0, 3];
+        assert_eq!(filter_and_relabel(&mut l, 2.0, 10.0), 2);
+        assert_eq!(l, vec![0, 1, 2, 2, 1, 0, 0, 2]);
     }
 }

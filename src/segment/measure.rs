@@ -20,8 +20,25 @@ pub fn measure_objects(
     height: usize,
     frame: usize,
 ) -> Vec<Detection> {
+    let foreground: Vec<u32> = (0..labels.len() as u32).filter(|&i| labels[i as usize] != 0).collect();
+    measure_object_pixels(labels, &foreground, count, intensity, width, height, frame)
+}
+
+/// [`measure_objects`] reading only `pixels` (indices in any order), outside which `labels`
+/// is zero. Sums of integer intensities are exact in any order.
+pub fn measure_object_pixels(
+    labels: &[u32],
+    pixels: &[u32],
+    count: u32,
+    intensity: &[f32],
+    width: usize,
+    height: usize,
+    frame: usize,
+) -> Vec<Detection> {
     let mut acc = vec![Moments::default(); count as usize + 1];
-    for (i, &l) in labels.iter().enumerate() {
+    for &i in pixels {
+        let i = i as usize;
+        let l = labels[i];
         if l == 0 {
             continue;
         }

@@ -8,12 +8,15 @@ pub mod distance_transform;
 pub mod hmaxima;
 pub mod label;
 pub mod measure;
+mod split;
 pub mod threshold;
 pub mod watershed;
 
+pub use split::split_touching;
+
 use crate::image2d::Image;
 use crate::params::{SegmentParams, ThresholdMethod};
-use crate::preprocess::{gaussian_blur, prepare};
+use crate::preprocess::prepare;
 use crate::tracks::Detection;
 use threshold::Histogram;
 
@@ -45,9 +48,11 @@ pub fn segment_frame(raw: &Image, frame: usize, params: &SegmentParams) -> Frame
     let threshold = choose_threshold(values, params.threshold);
     let mut mask: Vec<bool> = values.iter().map(|&v| v as f64 > threshold).collect();
     label::fill_holes(&mut mask, w, h);
-    let mut labels = split_touching(&mask, w, h, params.seed_h_px, params.distance_smoothing_px);
-    let count = label::filter_and_relabel(&mut labels, params.min_area_px, params.max_area_px);
-    let detections = measure::measure_objects(&labels, count, raw.as_slice().expect("standard layout"), w, h, frame);
+    let (mut labels, foreground) =
+        split::split_touching_with_pixels(&mask, w, h, params.seed_h_px, params.distance_smoothing_px);
+    let count = label::filter_and_relabel_pixels(&mut labels, &foreground, params.min_area_px, params.max_area_px);
+    let intensity = raw.as_slice().expect("standard layout");
+    let detections = measure::measure_object_pixels(&labels, &foreground, count, intensity, w, h, frame);
     FrameSegmentation {
         frame,
         threshold,
@@ -95,39 +100,6 @@ pub fn choose_threshold(values: &[f32], method: ThresholdMethod) -> f64 {
         ThresholdMethod::Li => threshold::li_threshold(&hist),
         ThresholdMethod::Fixed(t) => t,
     }
-}
-
-/// Distance transform, h-maxima seeds and seeded watershed over a foreground mask. Seeds are
-/// taken on the distance map smoothed by `distance_smoothing_px` (0 = not smoothed): the exact
-/// EDT of a pixelated outline has ridges of spurious maxima (square roots of neighbouring
-/// integers), which a light smoothing removes while necks between touching nuclei remain;
-/// flooding still follows the exact squared distances.
-pub fn split_touching(
-    mask: &[bool],
-    width: usize,
-    height: usize,
-    seed_h_px: f64,
-    distance_smoothing_px: f64,
-) -> Vec<u32> {
-    let squared = distance_transform::squared_edt(mask, width, height, (1.0, 1.0));
-    let levels: Vec<u32> = squared.iter().map(|&d| d.min(u32::MAX as f64 / 2.0) as u32).collect();
-    let distance: Vec<f32> = squared
-        .iter()
-        .map(|&d| if d > 0.0 { d.sqrt() as f32 } else { 0.0 })
-        .collect();
-    let distance = if distance_smoothing_px > 0.0 {
-        gaussian_blur(
-            &crate::image2d::from_vec(width, height, distance),
-            distance_smoothing_px as f32,
-        )
-        .into_raw_vec_and_offset()
-        .0
-    } else {
-        distance
-    };
-    let seed_mask = hmaxima::h_maxima(&distance, mask, width, height, seed_h_px);
-    let (seeds, _) = label::label_components(&seed_mask, width, height);
-    watershed::seeded_watershed(&levels, mask, &seeds, width, height)
 }
 
 #[cfg(test)]

@@ -45,41 +45,41 @@ impl Histogram {
     /// As [`Histogram::of_floats`] over `f32` values, with the range found in `f32` (exact:
     /// every `f32` is an `f64`), for whole frames.
     pub fn of_f32(values: &[f32], nbins: usize) -> Option<Histogram> {
-        let (lo, hi) = values
-            .iter()
-            .filter(|v| v.is_finite())
-            .fold((f32::INFINITY, f32::NEG_INFINITY), |(lo, hi), &v| {
+        if !values.iter().all(|v| v.is_finite()) {
+            let finite = values.iter().filter(|v| v.is_finite());
+            let (lo, hi) = finite.fold((f32::INFINITY, f32::NEG_INFINITY), |(lo, hi), &v| {
                 (lo.min(v), hi.max(v))
             });
-        Self::binned(values.iter().map(|&v| v as f64), lo as f64, hi as f64, nbins)
+            return Self::binned(values.iter().map(|&v| v as f64), lo as f64, hi as f64, nbins);
+        }
+        let (lo, hi) = min_max_finite(values)?;
+        let (lo, hi) = widened_range(lo as f64, hi as f64);
+        let edges = linspace(lo, hi, nbins + 1);
+        let counts = count_bins_f32(values, lo, hi - lo, &edges);
+        Some(Self::from_counts(counts, &edges))
     }
 
-    fn binned(values: impl Iterator<Item = f64>, mut lo: f64, mut hi: f64, nbins: usize) -> Option<Histogram> {
+    fn binned(values: impl Iterator<Item = f64>, lo: f64, hi: f64, nbins: usize) -> Option<Histogram> {
         if lo > hi {
             return None;
         }
-        if lo == hi {
-            // numpy widens a zero-width range to [v - 0.5, v + 0.5].
-            lo -= 0.5;
-            hi += 0.5;
-        }
+        let (lo, hi) = widened_range(lo, hi);
         let edges = linspace(lo, hi, nbins + 1);
+        let last = nbins - 1;
         let mut counts = vec![0u64; nbins];
-        let denom = hi - lo;
-        // Runs of equal values (a clamped background is mostly exact zeros) reuse their bin.
-        let mut last = (f64::NAN, 0usize);
         for v in values.filter(|v| v.is_finite()) {
-            if v != last.0 {
-                last = (v, numpy_bin(v, lo, denom, &edges, nbins));
-            }
-            counts[last.1] += 1;
+            counts[numpy_bin(numpy_guess(v, lo, hi - lo, last), v, &edges)] += 1;
         }
+        Some(Self::from_counts(counts, &edges))
+    }
+
+    fn from_counts(counts: Vec<u64>, edges: &[f64]) -> Histogram {
         let centers = edges.windows(2).map(|e| (e[0] + e[1]) / 2.0).collect();
-        Some(Histogram {
+        Histogram {
             counts,
             centers,
             integer_levels: false,
-        })
+        }
     }
 
     /// Total pixels counted.
@@ -108,19 +108,89 @@ fn linspace(start: f64, stop: f64, num: usize) -> Vec<f64> {
     v
 }
 
-/// Bin index as numpy computes it, including its correction against the actual edges.
-fn numpy_bin(v: f64, lo: f64, denom: f64, edges: &[f64], nbins: usize) -> usize {
-    let mut i = (((v - lo) / denom) * nbins as f64) as isize;
-    if i == nbins as isize {
-        i -= 1;
+/// numpy widens a zero-width range to [v - 0.5, v + 0.5].
+fn widened_range(lo: f64, hi: f64) -> (f64, f64) {
+    if lo == hi {
+        (lo - 0.5, hi + 0.5)
+    } else {
+        (lo, hi)
     }
-    if v < edges[i as usize] {
-        i -= 1;
+}
+
+/// Smallest and largest of values that are all finite (`None` when empty), over eight lanes
+/// so that the loop vectorises.
+fn min_max_finite(values: &[f32]) -> Option<(f32, f32)> {
+    let first = *values.first()?;
+    let (mut lo, mut hi) = ([first; 8], [first; 8]);
+    let chunks = values.chunks_exact(8);
+    let rest = chunks.remainder();
+    for chunk in chunks {
+        for k in 0..8 {
+            lo[k] = if chunk[k] < lo[k] { chunk[k] } else { lo[k] };
+            hi[k] = if chunk[k] > hi[k] { chunk[k] } else { hi[k] };
+        }
     }
-    if v >= edges[i as usize + 1] && i != nbins as isize - 1 {
-        i += 1;
+    let lo = lo.iter().chain(rest).fold(first, |m, &v| if v < m { v } else { m });
+    let hi = hi.iter().chain(rest).fold(first, |m, &v| if v > m { v } else { m });
+    Some((lo, hi))
+}
+
+/// Counts per bin of finite `f32` values within [edges[0], edges[last + 1]], as numpy assigns
+/// them: the bin of `v` is the last one whose lower edge is ≤ `v`. For an `f32` value that
+/// comparison is exact against the edge rounded up to the next `f32`, so the whole loop runs in
+/// `f32`: a first guess from the value's position in the range, then corrections against
+/// those edges (one step at most, except when the range is narrow for `f32` precision), over
+/// four interleaved tallies (a frame has long stretches of one bin, which would otherwise
+/// chain every increment on the same counter).
+fn count_bins_f32(values: &[f32], lo: f64, denom: f64, edges: &[f64]) -> Vec<u64> {
+    let nbins = edges.len() - 1;
+    let last = nbins - 1;
+    let lower: Vec<f32> = edges.iter().map(|&e| f32_at_or_above(e)).collect();
+    let (lo32, scale) = (lo as f32, (nbins as f64 / denom) as f32);
+    let mut tallies = vec![0u64; 4 * nbins];
+    for (k, &v) in values.iter().enumerate() {
+        let mut i = (((v - lo32) * scale) as usize).min(last);
+        while v < lower[i] {
+            i -= 1;
+        }
+        while i < last && v >= lower[i + 1] {
+            i += 1;
+        }
+        tallies[(k & 3) * nbins + i] += 1;
     }
-    i as usize
+    (0..nbins)
+        .map(|i| (0..4).map(|t| tallies[t * nbins + i]).sum())
+        .collect()
+}
+
+/// The smallest `f32` that is ≥ `x` (finite `x` within the `f32` range).
+fn f32_at_or_above(x: f64) -> f32 {
+    let near = x as f32;
+    if (near as f64) >= x {
+        near
+    } else if near >= 0.0 {
+        f32::from_bits(near.to_bits() + 1)
+    } else {
+        f32::from_bits(near.to_bits() - 1)
+    }
+}
+
+/// numpy's first guess of a value's bin, `(v − lo) / (hi − lo) · nbins`, truncated, with the
+/// top edge put into the last bin (`as usize` saturates, so the result is in 0..=last).
+#[inline(always)]
+fn numpy_guess(v: f64, lo: f64, denom: f64, last: usize) -> usize {
+    ((((v - lo) / denom) * (last + 1) as f64) as usize).min(last)
+}
+
+/// numpy's correction of a guess against the actual edges, one bin each way
+/// (`v` lies in [edges[0], edges[last + 1]]).
+#[inline(always)]
+fn numpy_bin(guess: usize, v: f64, edges: &[f64]) -> usize {
+    let last = edges.len() - 2;
+    let mut i = guess;
+    i -= (v < edges[i]) as usize;
+    i += ((v >= edges[i + 1]) & (i != last)) as usize;
+    i
 }
 
 /// Otsu's threshold: the bin centre maximising the between-class variance; foreground is
@@ -324,6 +394,32 @@ mod tests {
             "{}",
             li_threshold(&h)
         );
+    }
+
+    #[test]
+    fn float_bins_match_numpy_at_edges_and_narrow_ranges() {
+        // Source: numpy 2.4.6, np.histogram(a.astype(np.float64), bins, range=(a.min(), a.max()))
+        // (float64, as scikit-image bins its float64 images). (1) bins=256 over float32 values
+        // k/256 (k = 0..=256), the float32 just below each k/256 (k >= 1), 0.3 and 0.7: two
+        // per bin, three in bins 76, 179 and 255. (2) bins=16 over the float32 values
+        // 1000 + k·2⁻¹⁴ (k = 0..=40), a range where bin edges fall between float32 values:
+        // [3, 2, 3, 2, 3, 2, 3, 2, 3, 2, 3, 2, 3, 2, 3, 3].
+        let mut a: Vec<f32> = (0..=256).map(|k| k as f32 / 256.0).collect();
+        a.extend((1..=256).map(|k| f32::from_bits((k as f32 / 256.0).to_bits() - 1)));
+        a.extend([0.3, 0.7]);
+        let h = Histogram::of_f32(&a, 256).unwrap();
+        for (bin, &count) in h.counts.iter().enumerate() {
+            let want = if [76, 179, 255].contains(&bin) { 3 } else { 2 };
+            assert_eq!(count, want, "bin {bin}");
+        }
+        let b: Vec<f32> = (0..=40).map(|k| 1000.0 + k as f32 * 2f32.powi(-14)).collect();
+        let h = Histogram::of_f32(&b, 16).unwrap();
+        assert_eq!(h.counts, [3, 2, 3, 2, 3, 2, 3, 2, 3, 2, 3, 2, 3, 2, 3, 3]);
+        // The general path (f64 values, NaN skipped) agrees.
+        let with_nan = b.iter().map(|&v| v as f64).chain([f64::NAN]);
+        assert_eq!(Histogram::of_floats(with_nan, 16).unwrap().counts, h.counts);
+        let f32_with_nan: Vec<f32> = b.iter().copied().chain([f32::NAN, f32::INFINITY]).collect();
+        assert_eq!(Histogram::of_f32(&f32_with_nan, 16).unwrap().counts, h.counts);
     }
 
     #[test]

@@ -6,7 +6,7 @@ usage: check_outputs.py SYNTH_DIR SEGMENT_DIR PREVIEW_PNG
 - truth.csv: every truth point is the centroid of its label in truth_labels.tif (numpy).
 - detections.csv: every row agrees with skimage.measure.regionprops on labels.tif and the
   recording (centroid, area, intensities, axis lengths, orientation).
-- run.json: parses, and its counts agree with detections.csv.
+- run.json: parses, its counts agree with detections.csv, its input CRC-32 with zlib's.
 - the preview: Pillow opens it as an RGB PNG of the frame size.
 """
 import csv
@@ -97,6 +97,10 @@ assert run["counts"]["detections"] == len(dets) == checked
 assert run["counts"]["frames"] == T == len(run["per_frame"])
 assert run["input"]["stack"]["calibration"]["pixel_size_source"] == "ome-xml"
 assert run["counts"]["tracks"] == len(per_track)
+# The input checksum is CRC-32 as zlib computes it (Python standard library).
+import zlib
+with open(f"{syn}/recording.tif", "rb") as f:
+    assert run["input"]["crc32"] == f"{zlib.crc32(f.read()):08x}", run["input"]["crc32"]
 
 movie = Image.open(f"{seg}/qc_movie.gif")
 assert movie.format == "GIF" and movie.size == (W, H) and movie.n_frames == T, (movie.format, movie.size, movie.n_frames)
