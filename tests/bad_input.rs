@@ -175,6 +175,50 @@ fn unusual_recordings_are_refused_or_run_with_warnings() {
 }
 
 #[test]
+fn a_frame_that_is_foreground_wall_to_wall_is_one_object() {
+    // Bright everywhere but a dark spot inside the frame: without background subtraction the
+    // spot is the only background, hole filling closes it, and the mask covers the whole
+    // frame. There is then no distance to any background pixel; this once asked for 16 GiB
+    // and aborted. Now the frame is one object touching the border.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("bright.tif");
+    let page: Vec<u16> = (0..64 * 64)
+        .map(|i| {
+            if (30..35).contains(&(i % 64)) && (30..35).contains(&(i / 64)) {
+                0
+            } else {
+                1000
+            }
+        })
+        .collect();
+    write_pages::<colortype::Gray16>(&file, &vec![(64, 64, page); 3]);
+    let run = dir.path().join("run");
+    let result = caravan(&[
+        "track",
+        file.to_str().unwrap(),
+        "-o",
+        run.to_str().unwrap(),
+        "--diameter",
+        "10px",
+        "--background",
+        "none",
+        "--max-area",
+        "10000",
+        "--no-analysis",
+    ]);
+    assert!(result.status.success(), "{}", String::from_utf8_lossy(&result.stderr));
+    let detections = std::fs::read_to_string(run.join("detections.csv")).unwrap();
+    let rows: Vec<&str> = detections.lines().skip(1).collect();
+    assert_eq!(rows.len(), 3, "{detections}");
+    // Area 64 x 64 = 4096 px, centroid (31.5, 31.5), touching the border.
+    assert!(
+        rows.iter()
+            .all(|r| r.contains(",31.5000,31.5000,") && r.contains(",4096,") && r.ends_with(",1")),
+        "{detections}"
+    );
+}
+
+#[test]
 fn nan_and_infinite_pixels_are_replaced_and_reported() {
     // A float recording with a NaN pixel, an infinite square and a whole NaN frame: the run
     // completes, warns with counts per frame, and no table holds a NaN or infinity.

@@ -25,22 +25,54 @@ use crate::image2d::Image;
 /// holds it), then brought back by bilinear interpolation. That costs a bias of at most
 /// `(f − 1)/2` px times the illumination slope, and makes the step about 8x cheaper.
 pub fn tophat(image: &Image, window: usize, smooth_sigma: f32) -> Image {
-    let background = background_estimate(image, window, smooth_sigma);
-    let mut out = image - &background;
-    out.mapv_inplace(|v| v.max(0.0));
+    let mut out = image.clone();
+    tophat_in_place(&mut out, window, smooth_sigma);
     out
+}
+
+/// [`tophat`] overwriting its input. On the reduced grid the background is interpolated and
+/// subtracted in the same pass, without a full-size background image.
+pub fn tophat_in_place(image: &mut Image, window: usize, smooth_sigma: f32) {
+    let subtract = |v: &mut f32, background: f32| *v = (*v - background).max(0.0);
+    let dim = image.dim();
+    match reduced_background(image, window, smooth_sigma) {
+        Some((small, factor)) => {
+            let values = image.as_slice_mut().expect("standard layout");
+            upsample_bilinear_with(&small, factor, dim, values, subtract);
+        }
+        None => {
+            let background = gaussian_blur(&grey_opening_square(image, window), smooth_sigma);
+            let values = image.as_slice_mut().expect("standard layout");
+            let background = background.as_slice().expect("standard layout");
+            values.iter_mut().zip(background).for_each(|(v, &b)| subtract(v, b));
+        }
+    }
 }
 
 /// The smoothed opening that [`tophat`] subtracts.
 pub fn background_estimate(image: &Image, window: usize, smooth_sigma: f32) -> Image {
+    match reduced_background(image, window, smooth_sigma) {
+        Some((small, factor)) => {
+            let mut out = Image::zeros(image.dim());
+            let values = out.as_slice_mut().expect("standard layout");
+            upsample_bilinear_with(&small, factor, image.dim(), values, |v, b| *v = b);
+            out
+        }
+        None => gaussian_blur(&grey_opening_square(image, window), smooth_sigma),
+    }
+}
+
+/// For windows of 16 px and more: the background on the grid reduced by block minima of
+/// `window / 8` px, with that factor; `None` for smaller windows (estimated at full size).
+fn reduced_background(image: &Image, window: usize, smooth_sigma: f32) -> Option<(Image, usize)> {
     let factor = (window / 8).max(1);
     if factor == 1 {
-        return gaussian_blur(&grey_opening_square(image, window), smooth_sigma);
+        return None;
     }
     let small = block_min(image, factor);
     let small_window = (window / factor) | 1;
-    let small_background = gaussian_blur(&grey_opening_square(&small, small_window), smooth_sigma / factor as f32);
-    upsample_bilinear(&small_background, factor, image.dim())
+    let background = gaussian_blur(&grey_opening_square(&small, small_window), smooth_sigma / factor as f32);
+    Some((background, factor))
 }
 
 /// Minimum over non-overlapping `f` x `f` blocks (edge blocks over what exists).
@@ -58,8 +90,15 @@ fn block_min(image: &Image, f: usize) -> Image {
     Image::from_shape_vec((sh, sw), out).expect("sized buffer")
 }
 
-/// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points.
-fn upsample_bilinear(small: &Image, f: usize, (h, w): (usize, usize)) -> Image {
+/// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points;
+/// each interpolated value is handed to `apply` with the output pixel it belongs to.
+fn upsample_bilinear_with(
+    small: &Image,
+    f: usize,
+    (h, w): (usize, usize),
+    out: &mut [f32],
+    apply: impl Fn(&mut f32, f32),
+) {
     let (sh, sw) = small.dim();
     let coordinate = |i: usize, n: usize| {
         let c = ((i as f32 + 0.5) / f as f32 - 0.5).clamp(0.0, (n - 1) as f32);
@@ -68,17 +107,15 @@ fn upsample_bilinear(small: &Image, f: usize, (h, w): (usize, usize)) -> Image {
     };
     let columns: Vec<(usize, usize, f32)> = (0..w).map(|x| coordinate(x, sw)).collect();
     let src = small.as_slice().expect("standard layout");
-    let mut out = vec![0f32; h * w];
-    for (y, row) in out.chunks_exact_mut(w).enumerate() {
+    for (y, row) in out.chunks_exact_mut(w).take(h).enumerate() {
         let (y0, y1, fy) = coordinate(y, sh);
         let (r0, r1) = (&src[y0 * sw..(y0 + 1) * sw], &src[y1 * sw..(y1 + 1) * sw]);
         for (o, &(x0, x1, fx)) in row.iter_mut().zip(&columns) {
             let top = r0[x0] * (1.0 - fx) + r0[x1] * fx;
             let bottom = r1[x0] * (1.0 - fx) + r1[x1] * fx;
-            *o = top * (1.0 - fy) + bottom * fy;
+            apply(o, top * (1.0 - fy) + bottom * fy);
         }
     }
-    Image::from_shape_vec((h, w), out).expect("sized buffer")
 }
 
 /// Grey-scale opening (erosion then dilation) by a flat `window` x `window` square, borders by

@@ -78,8 +78,10 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
     let mut padded = vec![0f32; w + 2 * rx];
     let across_rows = across.as_slice_mut().expect("standard layout");
     for (src, dst) in image.rows().into_iter().zip(across_rows.chunks_exact_mut(w)) {
-        for (i, p) in padded.iter_mut().enumerate() {
-            *p = src[reflect(i as isize - rx as isize, w)];
+        let src = src.as_slice().expect("standard layout");
+        padded[rx..rx + w].copy_from_slice(src);
+        for i in (0..rx).chain(rx + w..w + 2 * rx) {
+            padded[i] = src[reflect(i as isize - rx as isize, w)];
         }
         // Accumulated tap by tap over the whole row (the same order of additions as a dot
         // product per pixel, so results do not change, but the loop vectorises).

@@ -4,7 +4,9 @@
 mod background;
 mod gaussian;
 
-pub use background::{background_estimate, grey_opening_square, max_filter_square, min_filter_square, tophat};
+pub use background::{
+    background_estimate, grey_opening_square, max_filter_square, min_filter_square, tophat, tophat_in_place,
+};
 pub use gaussian::{
     convolve_separable, gaussian_blur, gaussian_derivative_kernel, gaussian_kernel, gaussian_laplace, gaussian_radius,
 };
@@ -15,15 +17,16 @@ use crate::params::{BackgroundMethod, SegmentParams};
 /// Smooths, then removes the background as the parameters ask. The result is the image that
 /// thresholds see; it is non-negative after background subtraction.
 pub fn prepare(raw: &Image, params: &SegmentParams) -> Image {
-    let smoothed = gaussian_blur(raw, params.smoothing_sigma_px as f32);
+    let mut smoothed = gaussian_blur(raw, params.smoothing_sigma_px as f32);
     match params.background {
-        BackgroundMethod::None => smoothed,
-        BackgroundMethod::Tophat => tophat(
-            &smoothed,
+        BackgroundMethod::None => {}
+        BackgroundMethod::Tophat => tophat_in_place(
+            &mut smoothed,
             background_window(params.diameter_px),
             (params.diameter_px / 2.0) as f32,
         ),
     }
+    smoothed
 }
 
 /// Side of the square structuring element for background estimation: an odd number of pixels

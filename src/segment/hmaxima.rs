@@ -1,6 +1,8 @@
 //! Seeds for the watershed: the h-maxima of the distance map, i.e. maxima whose dynamic
 //! (height above the saddle to a taller peak) is at least `h`.
 
+use super::queue::LevelQueue;
+
 /// Levels per pixel of distance when values are quantised for the bucket queue: 1/256 px is
 /// far below the precision of a segmented outline.
 pub const LEVELS_PER_UNIT: f64 = 256.0;
@@ -15,7 +17,7 @@ pub const LEVELS_PER_UNIT: f64 = 256.0;
 /// (1993), "Morphological grayscale reconstruction in image analysis", IEEE Trans. Image
 /// Process. 2(2):176–201, doi:10.1109/83.217222, over values quantised to
 /// 1/[`LEVELS_PER_UNIT`] (departure: values are rounded to that step), highest level first from
-/// a hierarchical queue with one last-in-first-out list per level. As scikit-image `h_maxima`, a dynamic exactly equal to `h` keeps its seed.
+/// a hierarchical queue ([`LevelQueue`]). As scikit-image `h_maxima`, a dynamic exactly equal to `h` keeps its seed.
 pub fn h_maxima(values: &[f32], mask: &[bool], width: usize, height: usize, h: f64) -> Vec<bool> {
     let n = values.len();
     // f32 arithmetic: distances of a frame are far below 2^24 / 256, so the product is exact
@@ -53,39 +55,6 @@ pub fn h_maxima(values: &[f32], mask: &[bool], width: usize, height: usize, h: f
     (0..n)
         .map(|i| mask[i] && levels[i] >= h_levels && levels[i] - rec[i] >= h_levels)
         .collect()
-}
-
-/// A hierarchical queue: one last-in-first-out list per integer level, all lists threaded
-/// through one entry buffer (no allocation per level).
-struct LevelQueue {
-    /// Most recent entry of each level.
-    head: Vec<u32>,
-    /// (pixel, next entry of the same level).
-    entries: Vec<(u32, u32)>,
-}
-
-impl LevelQueue {
-    const NONE: u32 = u32::MAX;
-
-    fn new(top: u32) -> LevelQueue {
-        LevelQueue {
-            head: vec![Self::NONE; top as usize + 1],
-            entries: Vec::new(),
-        }
-    }
-
-    fn push(&mut self, level: u32, pixel: u32) {
-        let head = &mut self.head[level as usize];
-        self.entries.push((pixel, *head));
-        *head = (self.entries.len() - 1) as u32;
-    }
-
-    fn pop(&mut self, level: u32) -> Option<u32> {
-        let head = &mut self.head[level as usize];
-        let (pixel, next) = *self.entries.get(*head as usize)?;
-        *head = next;
-        Some(pixel)
-    }
 }
 
 pub(crate) fn neighbours8(i: usize, width: usize, height: usize) -> impl Iterator<Item = usize> {

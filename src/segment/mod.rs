@@ -8,6 +8,7 @@ pub mod distance_transform;
 pub mod hmaxima;
 pub mod label;
 pub mod measure;
+mod queue;
 mod split;
 pub mod threshold;
 pub mod watershed;

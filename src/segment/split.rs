@@ -156,6 +156,11 @@ fn find_components(mask: &[bool], width: usize, height: usize, visited: &mut [u3
 /// The split of one window: exact squared EDT, seeds on the (optionally smoothed) distance,
 /// watershed from the seeds over the squared distances. Labels 1, 2, ... by seed order.
 fn split_component(mask: &[bool], width: usize, height: usize, seed_h_px: f64, distance_smoothing_px: f64) -> Vec<u32> {
+    if mask.iter().all(|&m| m) {
+        // Foreground wall to wall: no pixel has a distance to the background (the outside of
+        // the image is not background), so there is nothing to split on.
+        return vec![1; mask.len()];
+    }
     let squared = distance_transform::squared_edt(mask, width, height, (1.0, 1.0));
     let levels: Vec<u32> = squared.iter().map(|&d| d.min(u32::MAX as f64 / 2.0) as u32).collect();
     let distance: Vec<f32> = squared
@@ -175,4 +180,17 @@ fn split_component(mask: &[bool], width: usize, height: usize, seed_h_px: f64, d
     let seed_mask = h_maxima(&distance, mask, width, height, seed_h_px);
     let (seeds, _) = label_components(&seed_mask, width, height);
     watershed::seeded_watershed(&levels, mask, &seeds, width, height)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_mask_without_background_is_one_object() {
+        // A frame that is foreground everywhere has no distance to a background pixel (the
+        // outside of the image is not background): nothing to split, one object.
+        let labels = split_touching(&vec![true; 48 * 32], 48, 32, 0.5, 1.0);
+        assert!(labels.iter().all(|&l| l == 1));
+    }
 }

@@ -45,14 +45,13 @@ impl Histogram {
     /// As [`Histogram::of_floats`] over `f32` values, with the range found in `f32` (exact:
     /// every `f32` is an `f64`), for whole frames.
     pub fn of_f32(values: &[f32], nbins: usize) -> Option<Histogram> {
-        if !values.iter().all(|v| v.is_finite()) {
+        let Some((lo, hi)) = min_max_all_finite(values) else {
             let finite = values.iter().filter(|v| v.is_finite());
             let (lo, hi) = finite.fold((f32::INFINITY, f32::NEG_INFINITY), |(lo, hi), &v| {
                 (lo.min(v), hi.max(v))
             });
             return Self::binned(values.iter().map(|&v| v as f64), lo as f64, hi as f64, nbins);
-        }
-        let (lo, hi) = min_max_finite(values)?;
+        };
         let (lo, hi) = widened_range(lo as f64, hi as f64);
         let edges = linspace(lo, hi, nbins + 1);
         let counts = count_bins_f32(values, lo, hi - lo, &edges);
@@ -117,18 +116,22 @@ fn widened_range(lo: f64, hi: f64) -> (f64, f64) {
     }
 }
 
-/// Smallest and largest of values that are all finite (`None` when empty), over eight lanes
-/// so that the loop vectorises.
-fn min_max_finite(values: &[f32]) -> Option<(f32, f32)> {
+/// Smallest and largest value when every value is finite; `None` when one is not or there
+/// are none. One pass over eight lanes, so that the loop vectorises.
+fn min_max_all_finite(values: &[f32]) -> Option<(f32, f32)> {
     let first = *values.first()?;
-    let (mut lo, mut hi) = ([first; 8], [first; 8]);
+    let (mut lo, mut hi, mut finite) = ([first; 8], [first; 8], [true; 8]);
     let chunks = values.chunks_exact(8);
     let rest = chunks.remainder();
     for chunk in chunks {
         for k in 0..8 {
             lo[k] = if chunk[k] < lo[k] { chunk[k] } else { lo[k] };
             hi[k] = if chunk[k] > hi[k] { chunk[k] } else { hi[k] };
+            finite[k] &= chunk[k].is_finite();
         }
+    }
+    if !(finite.iter().all(|&f| f) && rest.iter().all(|v| v.is_finite())) {
+        return None;
     }
     let lo = lo.iter().chain(rest).fold(first, |m, &v| if v < m { v } else { m });
     let hi = hi.iter().chain(rest).fold(first, |m, &v| if v > m { v } else { m });
@@ -148,15 +151,22 @@ fn count_bins_f32(values: &[f32], lo: f64, denom: f64, edges: &[f64]) -> Vec<u64
     let lower: Vec<f32> = edges.iter().map(|&e| f32_at_or_above(e)).collect();
     let (lo32, scale) = (lo as f32, (nbins as f64 / denom) as f32);
     let mut tallies = vec![0u64; 4 * nbins];
-    for (k, &v) in values.iter().enumerate() {
-        let mut i = (((v - lo32) * scale) as usize).min(last);
-        while v < lower[i] {
-            i -= 1;
+    let mut guesses = [0i32; 2048];
+    for block in values.chunks(guesses.len()) {
+        // Vectorises: a saturating float-to-i32 conversion per value.
+        for (g, &v) in guesses.iter_mut().zip(block) {
+            *g = ((v - lo32) * scale) as i32;
         }
-        while i < last && v >= lower[i + 1] {
-            i += 1;
+        for (k, (&g, &v)) in guesses.iter().zip(block).enumerate() {
+            let mut i = (g.max(0) as usize).min(last);
+            while v < lower[i] {
+                i -= 1;
+            }
+            while i < last && v >= lower[i + 1] {
+                i += 1;
+            }
+            tallies[(k & 3) * nbins + i] += 1;
         }
-        tallies[(k & 3) * nbins + i] += 1;
     }
     (0..nbins)
         .map(|i| (0..4).map(|t| tallies[t * nbins + i]).sum())

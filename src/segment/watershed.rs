@@ -2,6 +2,7 @@
 //! nuclei come out as separate objects.
 
 use super::hmaxima::neighbours4;
+use super::queue::LevelQueue;
 
 /// Floods the mask from labelled seeds, highest distance first, and returns one label per
 /// pixel (0 = background). `levels` are integer flooding levels (here squared distances):
@@ -11,37 +12,28 @@ use super::hmaxima::neighbours4;
 /// F. Meyer (1994), "Topographic distance and watershed lines", Signal Processing 38:113–125,
 /// doi:10.1016/0165-1684(94)90060-4 (priority flooding from markers); L. Vincent & P. Soille
 /// (1991), IEEE PAMI 13(6):583–598, doi:10.1109/34.87344. The priority queue is a hierarchical
-/// (bucket) queue over the integer levels, O(n). Departure: a pixel reached from below (a
+/// queue over the integer levels ([`LevelQueue`]), O(n + levels). Departure: a pixel reached from below (a
 /// maximum without its own seed) joins the current level instead of jumping the queue.
 pub fn seeded_watershed(levels: &[u32], mask: &[bool], seeds: &[u32], width: usize, height: usize) -> Vec<u32> {
     let n = levels.len();
     let mut labels = seeds.to_vec();
     let top = levels.iter().copied().max().unwrap_or(0) as usize;
-    let mut buckets: Vec<Vec<u32>> = vec![Vec::new(); top + 1];
+    let mut queue = LevelQueue::new(top as u32);
     for i in 0..n {
         if labels[i] != 0 {
-            buckets[levels[i] as usize].push(i as u32);
+            queue.push(levels[i], i as u32);
         }
     }
-    let mut level = top;
-    loop {
-        let mut cursor = 0;
-        while cursor < buckets[level].len() {
-            let p = buckets[level][cursor] as usize;
-            cursor += 1;
+    for level in (0..=top as u32).rev() {
+        while let Some(p) = queue.pop(level) {
+            let p = p as usize;
             for q in neighbours4(p, width, height) {
                 if mask[q] && labels[q] == 0 {
                     labels[q] = labels[p];
-                    let lq = (levels[q] as usize).min(level);
-                    buckets[lq].push(q as u32);
+                    queue.push(levels[q].min(level), q as u32);
                 }
             }
         }
-        buckets[level] = Vec::new();
-        if level == 0 {
-            break;
-        }
-        level -= 1;
     }
     labels
 }
