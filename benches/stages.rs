@@ -18,6 +18,8 @@ static FRAME: LazyLock<Image> = LazyLock::new(|| {
 static PARAMS: LazyLock<SegmentParams> = LazyLock::new(|| SegmentParams::for_diameter(14.0));
 
 fn main() {
+    // As the `caravan` binary: freed frame buffers are reused, not returned to the kernel.
+    caravan::keep_freed_memory_for_reuse();
     divan::main();
 }
 

@@ -17,7 +17,8 @@ pub const LEVELS_PER_UNIT: f64 = 256.0;
 /// (1993), "Morphological grayscale reconstruction in image analysis", IEEE Trans. Image
 /// Process. 2(2):176–201, doi:10.1109/83.217222, over values quantised to
 /// 1/[`LEVELS_PER_UNIT`] (departure: values are rounded to that step), highest level first from
-/// a hierarchical queue ([`LevelQueue`]). As scikit-image `h_maxima`, a dynamic exactly equal to `h` keeps its seed.
+/// a hierarchical queue ([`LevelQueue`]). As scikit-image `h_maxima`, a dynamic exactly equal
+/// to `h` keeps its seed.
 pub fn h_maxima(values: &[f32], mask: &[bool], width: usize, height: usize, h: f64) -> Vec<bool> {
     let n = values.len();
     // f32 arithmetic: distances of a frame are far below 2^24 / 256, so the product is exact

@@ -8,7 +8,7 @@ pub mod distance_transform;
 pub mod hmaxima;
 pub mod label;
 pub mod measure;
-mod queue;
+pub mod queue;
 mod split;
 pub mod threshold;
 pub mod watershed;

@@ -11,9 +11,10 @@ use super::queue::LevelQueue;
 /// # Method
 /// F. Meyer (1994), "Topographic distance and watershed lines", Signal Processing 38:113–125,
 /// doi:10.1016/0165-1684(94)90060-4 (priority flooding from markers); L. Vincent & P. Soille
-/// (1991), IEEE PAMI 13(6):583–598, doi:10.1109/34.87344. The priority queue is a hierarchical
-/// queue over the integer levels ([`LevelQueue`]), O(n + levels). Departure: a pixel reached from below (a
-/// maximum without its own seed) joins the current level instead of jumping the queue.
+/// (1991), IEEE PAMI 13(6):583–598, doi:10.1109/34.87344. The priority queue is a
+/// hierarchical queue over the integer levels ([`LevelQueue`]), O(n + levels). Departure: a
+/// pixel reached from below (a maximum without its own seed) joins the current level instead
+/// of jumping the queue.
 pub fn seeded_watershed(levels: &[u32], mask: &[bool], seeds: &[u32], width: usize, height: usize) -> Vec<u32> {
     let n = levels.len();
     let mut labels = seeds.to_vec();
