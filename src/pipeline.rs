@@ -81,7 +81,7 @@ pub fn progress_bar(len: u64, what: &str) -> ProgressBar {
 /// Segmented frames of a recording, in frame order. Frames are decoded in batches of a few per
 /// worker thread; while one batch is segmented in parallel the next is decoded, so reading
 /// overlaps computing, and memory is bounded by two batches, not by the recording's length.
-pub struct SegmentedFrames<'a> {
+struct SegmentedFrames<'a> {
     stack: &'a mut Stack,
     params: &'a SegmentParams,
     /// Frames not decoded yet.
@@ -95,19 +95,14 @@ pub struct SegmentedFrames<'a> {
 }
 
 impl<'a> SegmentedFrames<'a> {
-    /// Iterates over all frames of `stack`.
-    pub fn new(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar) -> Self {
-        Self::starting_at(stack, params, progress, 0)
-    }
-
     /// Stops before frame `end` (a shard's range).
-    pub fn until(mut self, end: usize) -> Self {
+    fn until(mut self, end: usize) -> Self {
         self.range.end = self.range.end.min(end);
         self
     }
 
     /// Iterates over the frames of `stack` from `first` on.
-    pub fn starting_at(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar, first: usize) -> Self {
+    fn starting_at(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar, first: usize) -> Self {
         let frames = stack.info().frames;
         let batch = 2 * rayon::current_num_threads().max(1);
         SegmentedFrames {
@@ -186,8 +181,8 @@ impl Iterator for SegmentedFrames<'_> {
 }
 
 /// Runs `consume` on the segmented frames `range` of `stack`, in frame order, while the next
-/// frames are being segmented: a producer thread drives [`SegmentedFrames`] (whose work runs
-/// on the worker pool) and hands results over a short queue, so writing tables, logging and
+/// frames are being segmented: a producer thread decodes and segments batches (on the worker
+/// pool) and hands results over a short queue, so writing tables, logging and
 /// linking on the calling thread no longer leave the workers idle between batches.
 /// Returns what `consume` returns; if it stops early, the producer stops at its next frame.
 pub fn with_segmented_frames<T>(

@@ -12,15 +12,15 @@ fn caravan(args: &[&str]) -> Output {
 }
 
 fn track(input: &Path, out: &Path) -> Output {
-    caravan(&[
-        "track",
-        input.to_str().unwrap(),
-        "-o",
-        out.to_str().unwrap(),
-        "--diameter",
-        "14px",
-        "--no-analysis",
-    ])
+    track_with(input, out, &[])
+}
+
+/// `track` with the usual options and `extra` ones.
+fn track_with(input: &Path, out: &Path, extra: &[&str]) -> Output {
+    let (input, out) = (input.to_str().unwrap(), out.to_str().unwrap());
+    let mut args = vec!["track", input, "-o", out, "--diameter", "14px", "--no-analysis"];
+    args.extend_from_slice(extra);
+    caravan(&args)
 }
 
 /// Exit code 2, one line on stderr naming `what`, and nothing written in `out`.
@@ -193,19 +193,7 @@ fn a_frame_that_is_foreground_wall_to_wall_is_one_object() {
         .collect();
     write_pages::<colortype::Gray16>(&file, &vec![(64, 64, page); 3]);
     let run = dir.path().join("run");
-    let result = caravan(&[
-        "track",
-        file.to_str().unwrap(),
-        "-o",
-        run.to_str().unwrap(),
-        "--diameter",
-        "10px",
-        "--background",
-        "none",
-        "--max-area",
-        "10000",
-        "--no-analysis",
-    ]);
+    let result = track_with(&file, &run, &["--background", "none", "--max-area", "10000"]);
     assert!(result.status.success(), "{}", String::from_utf8_lossy(&result.stderr));
     let detections = std::fs::read_to_string(run.join("detections.csv")).unwrap();
     let rows: Vec<&str> = detections.lines().skip(1).collect();

@@ -5,6 +5,8 @@ use crate::tracks::Detection;
 /// Measures every labelled object: centroid (x = column, y = row), area, equivalent diameter,
 /// mean and total intensity of `intensity`, major/minor axis and orientation from second
 /// moments, and whether it touches the image border. Objects are returned in label order.
+/// Only `pixels` (indices in any order) are read, outside which `labels` must be zero, so a
+/// frame is not scanned; sums of integer intensities are exact in any order.
 ///
 /// # Method
 /// Image moments, M.-K. Hu (1962), "Visual pattern recognition by moment invariants", IRE
@@ -13,20 +15,6 @@ use crate::tracks::Detection;
 /// covariance (the convention of scikit-image `regionprops`). Orientation is the angle of the
 /// major axis from +x toward +y (image rows grow downward), in degrees within (−90, 90].
 pub fn measure_objects(
-    labels: &[u32],
-    count: u32,
-    intensity: &[f32],
-    width: usize,
-    height: usize,
-    frame: usize,
-) -> Vec<Detection> {
-    let foreground: Vec<u32> = (0..labels.len() as u32).filter(|&i| labels[i as usize] != 0).collect();
-    measure_object_pixels(labels, &foreground, count, intensity, width, height, frame)
-}
-
-/// [`measure_objects`] reading only `pixels` (indices in any order), outside which `labels`
-/// is zero. Sums of integer intensities are exact in any order.
-pub fn measure_object_pixels(
     labels: &[u32],
     pixels: &[u32],
     count: u32,
@@ -118,7 +106,8 @@ mod tests {
                 labels[y * w + x] = 1;
             }
         }
-        let d = &measure_objects(&labels, 1, &vec![2.0; w * h], w, h, 0)[0];
+        let every_pixel: Vec<u32> = (0..(w * h) as u32).collect();
+        let d = &measure_objects(&labels, &every_pixel, 1, &vec![2.0; w * h], w, h, 0)[0];
         assert_eq!((d.x, d.y, d.area_px), (6.0, 2.0, 27.0));
         assert!((d.major_axis_px - 4.0 * (80.0f64 / 12.0).sqrt()).abs() < 1e-9);
         assert!((d.minor_axis_px - 4.0 * (8.0f64 / 12.0).sqrt()).abs() < 1e-9);

@@ -53,7 +53,7 @@ pub fn segment_frame(raw: &Image, frame: usize, params: &SegmentParams) -> Frame
         split::split_touching_with_pixels(&mask, w, h, params.seed_h_px, params.distance_smoothing_px);
     let count = label::filter_and_relabel_pixels(&mut labels, &foreground, params.min_area_px, params.max_area_px);
     let intensity = raw.as_slice().expect("standard layout");
-    let detections = measure::measure_object_pixels(&labels, &foreground, count, intensity, w, h, frame);
+    let detections = measure::measure_objects(&labels, &foreground, count, intensity, w, h, frame);
     FrameSegmentation {
         frame,
         threshold,

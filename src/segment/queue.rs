@@ -53,6 +53,8 @@ mod tests {
 
     #[test]
     fn levels_are_first_in_first_out_and_independent() {
+        // Hand-made: first in, first out within a level (the watershed's tie rule), levels
+        // not mixed, pushes while a level is being emptied come out after the older entries.
         let mut q = LevelQueue::new(3);
         q.push(2, 10);
         q.push(0, 5);

@@ -46,11 +46,7 @@ impl Histogram {
     /// every `f32` is an `f64`), for whole frames.
     pub fn of_f32(values: &[f32], nbins: usize) -> Option<Histogram> {
         let Some((lo, hi)) = min_max_all_finite(values) else {
-            let finite = values.iter().filter(|v| v.is_finite());
-            let (lo, hi) = finite.fold((f32::INFINITY, f32::NEG_INFINITY), |(lo, hi), &v| {
-                (lo.min(v), hi.max(v))
-            });
-            return Self::binned(values.iter().map(|&v| v as f64), lo as f64, hi as f64, nbins);
+            return Self::of_floats(values.iter().map(|&v| v as f64), nbins);
         };
         let (lo, hi) = widened_range(lo as f64, hi as f64);
         let edges = linspace(lo, hi, nbins + 1);

@@ -68,38 +68,32 @@ pub fn write_detections(out: &mut impl Write, detections: &[Detection], calibrat
 /// `x,y,x_um,y_um,time_s,area_px,...,touches_border` of one detection.
 fn measurement_fields(d: &Detection, calibration: &Calibration) -> String {
     let mut out = String::with_capacity(128);
-    let mut field = |v: f64, decimals: usize| {
-        push_fixed(&mut out, v, decimals);
-        out.push(',');
-    };
-    field(d.x, 4);
-    field(d.y, 4);
-    match calibration.pixel_size_um {
-        Some(s) => {
-            field(d.x * s, 4);
-            field(d.y * s, 4);
-        }
-        None => out.push_str(",,"),
-    }
-    if let Some(s) = calibration.frame_interval_s {
-        push_fixed(&mut out, d.frame as f64 * s, 3);
-    }
-    out.push(',');
+    let o = &mut out;
+    push_field(o, Some(d.x), 4);
+    push_field(o, Some(d.y), 4);
+    let size = calibration.pixel_size_um;
+    push_field(o, size.map(|s| d.x * s), 4);
+    push_field(o, size.map(|s| d.y * s), 4);
+    push_field(o, calibration.frame_interval_s.map(|s| d.frame as f64 * s), 3);
     // Areas are whole pixel counts, printed as Rust prints an `f64`.
-    out.push_str(&d.area_px.to_string());
-    out.push(',');
-    let mut field = |v: f64, decimals: usize| {
-        push_fixed(&mut out, v, decimals);
-        out.push(',');
-    };
-    field(d.equivalent_diameter_px, 4);
-    field(d.mean_intensity, 4);
-    field(d.total_intensity, 2);
-    field(d.major_axis_px, 4);
-    field(d.minor_axis_px, 4);
-    field(d.orientation_deg, 3);
-    out.push(if d.touches_border { '1' } else { '0' });
+    o.push_str(&d.area_px.to_string());
+    o.push(',');
+    push_field(o, Some(d.equivalent_diameter_px), 4);
+    push_field(o, Some(d.mean_intensity), 4);
+    push_field(o, Some(d.total_intensity), 2);
+    push_field(o, Some(d.major_axis_px), 4);
+    push_field(o, Some(d.minor_axis_px), 4);
+    push_field(o, Some(d.orientation_deg), 3);
+    o.push(if d.touches_border { '1' } else { '0' });
     out
+}
+
+/// One CSV field and its comma: `v` with fixed decimals, or nothing when absent.
+fn push_field(out: &mut String, v: Option<f64>, decimals: usize) {
+    if let Some(v) = v {
+        push_fixed(out, v, decimals);
+    }
+    out.push(',');
 }
 
 /// Appends `v` with `decimals` digits after the point, exactly as `format!("{v:.decimals$}")`
