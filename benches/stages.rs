@@ -59,3 +59,34 @@ fn edt_seeds_watershed(b: Bencher) {
 fn whole_frame(b: Bencher) {
     b.bench(|| segment_frame(black_box(&FRAME), 0, &PARAMS));
 }
+
+/// One sampled frame of the diameter estimate (a run examines up to five, in parallel): to
+/// compare with `whole_frame`, the per-frame cost it is paid once against.
+#[divan::bench]
+fn diameter_estimate_one_frame(b: Bencher) {
+    b.bench(|| caravan::segment::diameter::examine_frame(black_box(&FRAME), 0, &SegmentParams::for_diameter));
+}
+
+/// The motion estimate over 100 frames of ~300 detections (the frame's nuclei, moved as a
+/// persistent random walk of 3 px per frame).
+#[divan::bench]
+fn motion_estimate_100_frames(b: Bencher) {
+    let mut p = SynthParams::new(Scenario::Dish, 1024, 1024, 100);
+    p.nuclei = 300;
+    p.motion = Some(caravan::synth::PersistentMotion {
+        speed_px_per_frame: 3.0,
+        persistence_frames: 5.0,
+    });
+    let scene = Scene::simulate(&p);
+    let frames: Vec<Vec<[f64; 2]>> = (0..100)
+        .map(|t| {
+            scene
+                .nuclei(t)
+                .iter()
+                .filter(|n| !n.hidden)
+                .map(|n| [n.x, n.y])
+                .collect()
+        })
+        .collect();
+    b.bench(|| caravan::link::estimate::estimate_motion(black_box(&frames), 14.0));
+}

@@ -61,23 +61,38 @@ pub fn run_folders(entries: &[ManifestEntry], out: &Path) -> Vec<PathBuf> {
 }
 
 /// Writes `runs.csv` in `out`: the manifest with each path replaced by its run folder
-/// (relative to `out`), other columns kept; the input of the final comparison.
-pub fn write_runs_manifest(entries: &[ManifestEntry], folders: &[PathBuf], out: &Path) -> Result<PathBuf> {
+/// (relative to `out`), other columns kept, and with `verdicts` (one per entry) a `verdict`
+/// column (empty for a recording that could not be tracked); the input of the final
+/// comparison.
+pub fn write_runs_manifest(
+    entries: &[ManifestEntry],
+    folders: &[PathBuf],
+    verdicts: &[Option<crate::verdict::Verdict>],
+    out: &Path,
+) -> Result<PathBuf> {
     let path = out.join("runs.csv");
-    let mut labels: Vec<&String> = entries.iter().flat_map(|e| e.labels.keys()).collect();
+    let mut labels: Vec<&String> = entries
+        .iter()
+        .flat_map(|e| e.labels.keys())
+        .filter(|l| *l != "verdict")
+        .collect();
     labels.sort();
     labels.dedup();
+    let with_verdict = !verdicts.is_empty();
     let mut w = csv::Writer::from_writer(Vec::new());
     let header = ["path", "condition", "replicate"]
         .into_iter()
         .map(String::from)
-        .chain(labels.iter().map(|l| l.to_string()));
+        .chain(labels.iter().map(|l| l.to_string()))
+        .chain(with_verdict.then(|| "verdict".to_string()));
     w.write_record(header).map_err(|e| Error::output(&path, e.into()))?;
-    for (e, folder) in entries.iter().zip(folders) {
+    for (k, (e, folder)) in entries.iter().zip(folders).enumerate() {
         let rel = folder.strip_prefix(out).unwrap_or(folder).display().to_string();
+        let verdict = verdicts.get(k).copied().flatten().map(|v| v.word().to_string());
         let row = [rel, e.condition.clone(), e.replicate.clone()]
             .into_iter()
-            .chain(labels.iter().map(|l| e.labels.get(*l).cloned().unwrap_or_default()));
+            .chain(labels.iter().map(|l| e.labels.get(*l).cloned().unwrap_or_default()))
+            .chain(with_verdict.then(|| verdict.unwrap_or_default()));
         w.write_record(row).map_err(|e| Error::output(&path, e.into()))?;
     }
     let bytes = w

@@ -14,6 +14,7 @@
 //! | [`render`] | drawing overlays (the preview PNG, the QC movie) |
 //! | [`tracks`] | the `Detection` type and its CSV form |
 //! | [`pipeline`] | streaming orchestration over a whole recording, progress, run records |
+//! | [`verdict`] | whether a run can be trusted: `ok`, `doubtful` or `failed`, with reasons and fixes |
 //! | [`params`] | every tunable parameter with its default, unit and valid range |
 //!
 //! Conventions, stated once: images are indexed `(row, column)` = `(y, x)`; pixel centres sit at
@@ -37,6 +38,7 @@ pub mod shard;
 pub mod stack;
 pub mod synth;
 pub mod tracks;
+pub mod verdict;
 
 pub use error::{Error, Result};
 

@@ -6,15 +6,21 @@ use crate::analyze::{summarize_track, write_per_track, TrackSummary};
 use crate::checkpoint::{CheckpointLog, Fingerprint, FrameRecord};
 use crate::error::{Error, Result};
 use crate::link::divide::DivisionEvent;
-use crate::link::online::{LinkParams, OnlineLinker};
+use crate::link::estimate::MotionSource;
+use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
+use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
 use crate::output::{crc32_file, ensure_dir, write_atomic, AtomicFile, Staging};
 use crate::params::{Length, SegmentParams};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
-use crate::segment::{diameter::estimate_diameter, segment_frame, FrameSegmentation};
+use crate::segment::diameter::{
+    central_crop, combine, examine_frame, sample_frames, Confidence, DiameterEstimate, ESTIMATE_CROP_PX,
+};
+use crate::segment::{segment_frame, FrameSegmentation};
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::Stack;
 use crate::tracks::{write_detections, write_detections_header, write_tracks, TrackedDetection};
+use crate::verdict::{judge, RunFigures, RunVerdict};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
@@ -24,43 +30,67 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 /// How the nucleus diameter was obtained.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, serde::Deserialize)]
-#[serde(rename_all = "kebab-case", tag = "source", content = "px")]
+#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
+#[serde(rename_all = "kebab-case", tag = "source")]
 pub enum DiameterSource {
     /// Given with `--diameter`.
-    Given(f64),
-    /// Estimated by scale selection (median over sampled frames).
-    Estimated(f64),
+    Given {
+        /// The diameter, px.
+        px: f64,
+    },
+    /// Estimated from the recording, with its evidence and confidence.
+    Estimated(DiameterEstimate),
 }
 
-/// The nucleus diameter in pixels: the given length, or an estimate from the first, middle and
-/// last frames (median) when none is given.
-///
-/// # Errors
-/// A physical length without a pixel size, or a recording where no nucleus-like blob stands out.
-pub fn resolve_diameter(stack: &mut Stack, given: Option<Length>) -> Result<DiameterSource> {
-    if let Some(len) = given {
-        return Ok(DiameterSource::Given(
-            len.to_pixels("--diameter", stack.info().calibration.pixel_size_um)?,
-        ));
-    }
-    let n = stack.info().frames;
-    let mut picks = vec![0, n / 2, n - 1];
-    picks.dedup();
-    let mut estimates = Vec::new();
-    for t in picks {
-        if let Some(d) = estimate_diameter(&stack.read_frame(t)?.to_image()) {
-            estimates.push(d);
+impl DiameterSource {
+    /// The diameter in pixels.
+    pub fn px(&self) -> f64 {
+        match self {
+            DiameterSource::Given { px } => *px,
+            DiameterSource::Estimated(e) => e.px,
         }
     }
-    if estimates.is_empty() {
-        return Err(Error::input(
-            &stack.info().path,
-            "no nucleus-like objects stand out in the sampled frames; give --diameter",
-        ));
+}
+
+/// The nucleus diameter in pixels: the given length, or an estimate from up to five frames
+/// spread over the recording (see [`crate::segment::diameter`]); `params_for(d)` gives the
+/// segmentation parameters the run would use at diameter `d`, for the estimate's cross-check.
+///
+/// # Errors
+/// A physical length without a pixel size, or a recording where no nucleus stands out from the
+/// noise in any sampled frame (the message asks for `--diameter` rather than guessing).
+pub fn resolve_diameter(
+    stack: &mut Stack,
+    given: Option<Length>,
+    params_for: &(dyn Fn(f64) -> SegmentParams + Sync),
+) -> Result<DiameterSource> {
+    if let Some(len) = given {
+        return Ok(DiameterSource::Given {
+            px: len.to_pixels("--diameter", stack.info().calibration.pixel_size_um)?,
+        });
     }
-    estimates.sort_by(f64::total_cmp);
-    Ok(DiameterSource::Estimated(estimates[estimates.len() / 2]))
+    let picks = sample_frames(stack.info().frames);
+    // Read in order (one reader), keep only the crop examined, then examine in parallel.
+    let mut crops = Vec::with_capacity(picks.len());
+    for t in picks {
+        crops.push((t, central_crop(&stack.read_frame(t)?.to_image(), ESTIMATE_CROP_PX)));
+    }
+    let frames: Vec<_> = crops
+        .par_iter()
+        .map(|(t, crop)| examine_frame(crop, *t, params_for))
+        .collect();
+    let noise: Vec<String> = frames.iter().map(|f| format!("{:.1}", f.noise_sigma)).collect();
+    let sampled: Vec<String> = frames.iter().map(|f| f.frame.to_string()).collect();
+    combine(frames).map(DiameterSource::Estimated).ok_or_else(|| {
+        Error::input(
+            &stack.info().path,
+            format!(
+                "no nucleus stands out from the noise (noise s.d. {} grey levels) in frames {}; give --diameter",
+                noise.join("/"),
+                sampled.join(", ")
+            ),
+        )
+    })
 }
 
 /// A progress bar on stderr when it is a terminal; hidden (silent) otherwise, e.g. in logs.
@@ -244,6 +274,8 @@ pub struct SegmentRun {
     pub movie: Option<MovieOutputs>,
     /// Human-readable warnings (also in run.json).
     pub warnings: Vec<String>,
+    /// Whether the run can be trusted, with the reasons.
+    pub verdict: RunVerdict,
 }
 
 impl SegmentRun {
@@ -258,8 +290,8 @@ impl SegmentRun {
 pub struct SegmentOutputs {
     /// Also write `labels.tif` (one 32-bit label image per frame).
     pub labels: bool,
-    /// Link detections into tracks (`tracks.csv`, `per_track.csv`).
-    pub linking: Option<LinkParams>,
+    /// Link detections into tracks (`tracks.csv`, `per_track.csv`) with these choices.
+    pub linking: Option<LinkOptions>,
     /// With linking: render the QC movie and contact sheet.
     pub movie: Option<MovieOptions>,
     /// Replace the outputs of an earlier run in the same folder (otherwise refused).
@@ -330,8 +362,8 @@ pub fn run_recording(
     remove_stale_partials(dir);
     let staging = Staging::new(dir)?;
     let work = staging.path().to_path_buf();
-    let mut pass = FirstPass::new(&work, outputs, &info)?;
-    let (mut checkpoint, replayed) = start_checkpoint(dir, outputs, &info, params, diameter)?;
+    let mut pass = FirstPass::new(&work, outputs, &info, params)?;
+    let (mut checkpoint, replayed) = start_checkpoint(dir, outputs, &info, params, &diameter)?;
     for record in replayed {
         pass.take(record)?;
     }
@@ -413,23 +445,27 @@ pub(crate) fn finish_run(
 ) -> Result<SegmentRun> {
     let info = stack.info().clone();
     let calibration = info.calibration;
+    let small_object_share = (pass.object_count > 0).then(|| pass.small_objects as f64 / pass.object_count as f64);
     let FirstPass {
         csv,
         frames,
-        mut tracked,
+        detections,
         mut neighbour_distances,
         ..
     } = pass;
     csv.commit()?;
     let first_pass_s = started.elapsed().as_secs_f64();
-    let (tracks, linking_qc, resolution) = match outputs.linking {
-        Some(link) => {
-            let resolution = resolve_tracks(&mut tracked, &link);
+    let mut tracked = Vec::new();
+    let (tracks, linking_qc, resolution, linking) = match outputs.linking {
+        Some(options) => {
+            let (linking, points) = link_detections(detections, &options, diameter.px());
+            tracked = points;
+            let resolution = resolve_tracks(&mut tracked, &linking.params);
             let tracks = write_track_outputs(dir, &mut tracked, &calibration)?;
-            let qc = linking_qc(&tracked, &tracks, &mut neighbour_distances, link.max_step_px);
-            (tracks, Some(qc), Some(resolution))
+            let qc = linking_qc(&tracked, &tracks, &mut neighbour_distances, linking.params.max_step_px);
+            (tracks, Some(qc), Some(resolution), Some(linking))
         }
-        None => (Vec::new(), None, None),
+        None => (Vec::new(), None, None, None),
     };
     let movie_started = Instant::now();
     let movie = match (spool, outputs.movie) {
@@ -440,25 +476,36 @@ pub(crate) fn finish_run(
         }
         _ => None,
     };
-    let mut warnings = warnings_for(&frames, &info);
-    warnings.extend(linking_qc.as_ref().map(linking_warnings).unwrap_or_default());
+    let warnings = warnings_for(&frames, &info);
+    let figures = run_figures(
+        &frames,
+        &info,
+        &diameter,
+        params,
+        small_object_share,
+        linking.as_ref(),
+        linking_qc.as_ref(),
+    );
+    let verdict = judge(&figures);
     let run = SegmentRun {
         dir: dir.to_path_buf(),
-        diameter,
+        diameter: diameter.clone(),
         frames,
         tracks,
         linking_qc,
         resolution,
         movie,
         warnings,
+        verdict,
     };
     let checksum = crc32_file(&info.path).ok().map(|h| format!("{h:08x}"));
     let record = serde_json::json!({
         "caravan_version": crate::VERSION,
         "command": command,
         "research_use": "Caravan is research software; statistics are only as good as the segmentation they rest on.",
+        "verdict": run.verdict,
         "input": { "stack": info, "crc32": checksum },
-        "parameters": { "diameter": diameter, "segment": params, "link": outputs.linking, "movie": outputs.movie },
+        "parameters": { "diameter": diameter, "segment": params, "link": linking, "movie": outputs.movie },
         "counts": { "frames": run.frames.len(), "detections": run.detections(), "tracks": run.tracks.len() },
         "linking_qc": run.linking_qc,
         "gaps_closed": run.resolution.as_ref().map(|r| r.gaps_closed),
@@ -479,6 +526,58 @@ pub(crate) fn finish_run(
     Ok(run)
 }
 
+/// The figures the verdict is judged from.
+fn run_figures(
+    frames: &[FrameSummary],
+    info: &crate::stack::StackInfo,
+    diameter: &DiameterSource,
+    params: &SegmentParams,
+    small_object_share: Option<f64>,
+    linking: Option<&ResolvedLinking>,
+    qc: Option<&LinkingQc>,
+) -> RunFigures {
+    let low_diameter_confidence = match diameter {
+        DiameterSource::Estimated(e) if e.confidence == Confidence::Low => Some(e.reasons.clone()),
+        _ => None,
+    };
+    let with_next: usize = frames.iter().rev().skip(1).map(|f| f.objects).sum();
+    RunFigures {
+        objects_per_frame: frames.iter().map(|f| f.objects).collect(),
+        frame_area_px: (info.width * info.height) as f64,
+        diameter_px: diameter.px(),
+        min_area_px: params.min_area_px,
+        small_object_share,
+        low_diameter_confidence,
+        count_jumps: count_jumps(frames),
+        persistence: linking
+            .filter(|_| with_next >= 20)
+            .map(|l| l.motion.confident_steps as f64 / with_next as f64),
+        ambiguity_ratio: qc.and_then(|q| q.ambiguity_ratio),
+        near_max_step_fraction: qc.and_then(|q| q.near_max_step_fraction),
+        max_step: linking.map(|l| (l.params.max_step_px, l.max_step_source == MaxStepSource::Given)),
+        short_track_fraction: qc.and_then(|q| q.short_track_fraction),
+        motion_unmeasured: linking
+            .is_some_and(|l| l.motion.source == MotionSource::Diameter && l.max_step_source != MaxStepSource::Given),
+    }
+}
+
+/// Measures the recording's motion from the detections' positions, resolves the linking
+/// parameters from it and the user's options, and links every frame in order.
+fn link_detections(
+    detections: Vec<Vec<crate::tracks::Detection>>,
+    options: &LinkOptions,
+    diameter_px: f64,
+) -> (ResolvedLinking, Vec<TrackedDetection>) {
+    let positions: Vec<Vec<[f64; 2]>> = detections
+        .iter()
+        .map(|frame| frame.iter().map(|d| [d.x, d.y]).collect())
+        .collect();
+    let linking = options.resolve(diameter_px, &positions);
+    let mut linker = OnlineLinker::new(linking.params);
+    let tracked = detections.into_iter().flat_map(|frame| linker.push(frame)).collect();
+    (linking, tracked)
+}
+
 /// Moves a run's staged outputs into the run folder (run.json last) and removes the outputs of
 /// an earlier run that this one did not write.
 pub(crate) fn publish(staging: Staging, dir: &Path, outputs: &SegmentOutputs) -> Result<()> {
@@ -493,21 +592,35 @@ pub(crate) struct FirstPass {
     csv: AtomicFile,
     calibration: crate::stack::Calibration,
     frames: Vec<FrameSummary>,
-    linker: Option<OnlineLinker>,
-    tracked: Vec<TrackedDetection>,
+    /// Each frame's detections, kept for linking (empty without linking).
+    detections: Vec<Vec<crate::tracks::Detection>>,
+    linking: bool,
     neighbour_distances: Vec<f64>,
+    /// Detections at most this large count as barely above the minimum area, px.
+    small_object_limit_px: f64,
+    /// Detections seen, and those barely above the minimum area.
+    object_count: usize,
+    small_objects: usize,
 }
 
 impl FirstPass {
-    pub(crate) fn new(dir: &Path, outputs: &SegmentOutputs, info: &crate::stack::StackInfo) -> Result<FirstPass> {
+    pub(crate) fn new(
+        dir: &Path,
+        outputs: &SegmentOutputs,
+        info: &crate::stack::StackInfo,
+        params: &SegmentParams,
+    ) -> Result<FirstPass> {
         let mut csv = AtomicFile::create(&dir.join("detections.csv"))?;
         write_detections_header(&mut csv).map_err(|e| csv.error(e))?;
         Ok(FirstPass {
             csv,
             calibration: info.calibration,
             frames: Vec::with_capacity(info.frames),
-            linker: outputs.linking.map(OnlineLinker::new),
-            tracked: Vec::new(),
+            detections: Vec::new(),
+            linking: outputs.linking.is_some(),
+            small_object_limit_px: 1.5 * params.min_area_px,
+            object_count: 0,
+            small_objects: 0,
             neighbour_distances: Vec::new(),
         })
     }
@@ -535,17 +648,23 @@ impl FirstPass {
     /// Writes one frame's detections, records its summary and links it.
     pub(crate) fn take(&mut self, record: FrameRecord) -> Result<()> {
         write_detections(&mut self.csv, &record.detections, &self.calibration).map_err(|e| self.csv.error(e))?;
+        self.object_count += record.detections.len();
+        self.small_objects += record
+            .detections
+            .iter()
+            .filter(|d| d.area_px <= self.small_object_limit_px)
+            .count();
         self.frames.push(FrameSummary {
             frame: record.frame,
             threshold: record.threshold,
             objects: record.detections.len(),
             nonfinite_pixels: record.nonfinite_pixels,
         });
-        if let Some(l) = self.linker.as_mut() {
+        if self.linking {
             let points: Vec<[f64; 2]> = record.detections.iter().map(|d| [d.x, d.y]).collect();
             self.neighbour_distances
                 .extend(nearest_neighbour_distances(&points).into_iter().flatten());
-            self.tracked.extend(l.push(record.detections));
+            self.detections.push(record.detections);
         }
         Ok(())
     }
@@ -558,7 +677,7 @@ fn start_checkpoint(
     outputs: &SegmentOutputs,
     info: &crate::stack::StackInfo,
     params: &SegmentParams,
-    diameter: DiameterSource,
+    diameter: &DiameterSource,
 ) -> Result<(Option<CheckpointLog>, Vec<FrameRecord>)> {
     let every = match outputs.checkpoint_every {
         Some(k) if !outputs.labels => k,
@@ -688,8 +807,13 @@ fn linking_qc(
         (Some(s), Some(n)) if n > 0.0 => Some(s / n),
         _ => None,
     };
-    let short =
-        (!tracks.is_empty()).then(|| tracks.iter().filter(|t| t.points < 10).count() as f64 / tracks.len() as f64);
+    let short = (!tracks.is_empty()).then(|| {
+        tracks
+            .iter()
+            .filter(|t| t.points < crate::verdict::SHORT_TRACK_POINTS)
+            .count() as f64
+            / tracks.len() as f64
+    });
     LinkingQc {
         median_step_px,
         median_neighbour_distance_px,
@@ -697,23 +821,6 @@ fn linking_qc(
         near_max_step_fraction: near,
         short_track_fraction: short,
     }
-}
-
-fn linking_warnings(qc: &LinkingQc) -> Vec<String> {
-    let mut w = Vec::new();
-    if let Some(r) = qc.ambiguity_ratio.filter(|&r| r > 0.5) {
-        w.push(format!("linking is ambiguous: median step is {r:.2} of the median neighbour distance (above 0.5); image more often or keep prediction on"));
-    }
-    if let Some(f) = qc.near_max_step_fraction.filter(|&f| f > 0.05) {
-        w.push(format!(
-            "{:.0}% of links are near the maximum step; consider raising --max-step",
-            100.0 * f
-        ));
-    }
-    if let Some(f) = qc.short_track_fraction.filter(|&f| f > 0.5) {
-        w.push(format!("{:.0}% of tracks have fewer than 10 points", 100.0 * f));
-    }
-    w
 }
 
 /// Frames whose object count changes from the previous frame by more than a quarter and by
@@ -732,26 +839,6 @@ pub fn count_jumps(frames: &[FrameSummary]) -> Vec<usize> {
 
 fn warnings_for(frames: &[FrameSummary], info: &crate::stack::StackInfo) -> Vec<String> {
     let mut w = Vec::new();
-    let jumps = count_jumps(frames);
-    if !jumps.is_empty() {
-        let list: Vec<String> = jumps.iter().map(|f| f.to_string()).collect();
-        w.push(format!(
-            "object count jumps by more than a quarter at frame(s): {}; check them with preview",
-            list.join(" ")
-        ));
-    }
-    let empty: Vec<String> = frames
-        .iter()
-        .filter(|f| f.objects == 0)
-        .map(|f| f.frame.to_string())
-        .collect();
-    if !empty.is_empty() {
-        w.push(format!(
-            "no objects found in {} frame(s): {}",
-            empty.len(),
-            empty.join(" ")
-        ));
-    }
     let nonfinite: Vec<String> = frames
         .iter()
         .filter(|f| f.nonfinite_pixels > 0)

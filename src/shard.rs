@@ -36,7 +36,7 @@ pub struct ShardInfo {
     pub open: crate::stack::OpenOptions,
 }
 
-fn fingerprint(stack: &Stack, diameter: DiameterSource, params: &SegmentParams) -> Fingerprint {
+fn fingerprint(stack: &Stack, diameter: &DiameterSource, params: &SegmentParams) -> Fingerprint {
     Fingerprint::of(
         stack.info(),
         serde_json::json!({ "diameter": diameter, "segment": params }),
@@ -76,7 +76,7 @@ pub fn write_shard(
     remove_stale_partials(dir);
     let info = ShardInfo {
         caravan_version: crate::VERSION.into(),
-        fingerprint: fingerprint(stack, diameter, params),
+        fingerprint: fingerprint(stack, &diameter, params),
         frames: range,
         diameter,
         segment: params.clone(),
@@ -179,7 +179,7 @@ pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
     let shards = read_shards(dirs)?;
     let first = &shards[0].1;
     let info = stack.info().clone();
-    let expected = fingerprint(stack, first.diameter, &first.segment);
+    let expected = fingerprint(stack, &first.diameter, &first.segment);
     if expected.bytes != first.fingerprint.bytes || expected.shape != first.fingerprint.shape {
         return Err(Error::input(
             &info.path,
@@ -192,7 +192,7 @@ pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
     let started = Instant::now();
     let staging = crate::output::Staging::new(dir)?;
     let work = staging.path().to_path_buf();
-    let mut pass = FirstPass::new(&work, outputs, &info)?;
+    let mut pass = FirstPass::new(&work, outputs, &info, &first.segment)?;
     let mut spool = match (outputs.linking, outputs.movie) {
         (Some(_), Some(_)) => Some(OutlineSpool::create(&work)?),
         _ => None,
@@ -211,7 +211,7 @@ pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
         stack,
         pass,
         spool.as_mut(),
-        first.diameter,
+        first.diameter.clone(),
         &first.segment,
         &work,
         outputs,

@@ -8,7 +8,7 @@ mod common;
 use caravan::analyze::population::AnalysisOptions;
 use caravan::analyze::run::run_analysis;
 use caravan::analyze::table::{CalibrationOverride, Filters};
-use caravan::link::online::LinkParams;
+use caravan::link::LinkOptions;
 use caravan::synth::{Scenario, SynthParams};
 use common::track_synthetic;
 use std::path::Path;
@@ -32,8 +32,8 @@ fn a_directed_stream_and_a_wandering_dish_are_told_apart() {
     // Target: Rayleigh p < 0.01 for the stream; its directionality ratio clearly higher.
     let stream = SynthParams::new(Scenario::Stripe, 384, 256, 30);
     let dish = SynthParams::new(Scenario::Dish, 384, 256, 30);
-    let s = track_synthetic(&stream, LinkParams::for_diameter(14.0));
-    let d = track_synthetic(&dish, LinkParams::for_diameter(14.0));
+    let s = track_synthetic(&stream, LinkOptions::default());
+    let d = track_synthetic(&dish, LinkOptions::default());
     let (s, d) = (analyse(&s.run), analyse(&d.run));
     let p = |v: &serde_json::Value| {
         v["population"]["directions"]["rayleigh_test"]["p_value"]
@@ -141,7 +141,7 @@ fn reports_open_in_a_browser_with_every_chart() {
     let dir = tempfile::tempdir().unwrap();
     let scene = track_synthetic(
         &SynthParams::new(Scenario::Stripe, 256, 192, 20),
-        LinkParams::for_diameter(14.0),
+        LinkOptions::default(),
     );
     analyse(&scene.run);
     // A hand-written comparison: two conditions of three replicates (straight tracks at two
@@ -176,6 +176,15 @@ fn reports_open_in_a_browser_with_every_chart() {
         dom.contains("data-charts=\"10\""),
         "{}",
         &dom[dom.len().saturating_sub(300)..]
+    );
+    // The tracking run's verdict is the first section (README, "the run's verdict"): this
+    // clean stripe is `ok`, as its run.json says.
+    let verdict = dom.find("id=\"verdict\"").expect("a verdict section");
+    assert!(verdict < dom.find("Population statistics").unwrap());
+    assert!(
+        dom.contains("Tracking run verdict: ok"),
+        "{}",
+        &dom[verdict..verdict + 200]
     );
     for id in [
         "trajectories",

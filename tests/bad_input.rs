@@ -1,6 +1,6 @@
 //! Broken and hostile input through the command line: each failure is one line on stderr
 //! naming the file (and frame where known) with exit code 2 and no output files; valid but
-//! empty recordings run with a warning. And a run that cannot write (a file-size limit, as on
+//! empty recordings run and end with a failed verdict. And a run that cannot write (a file-size limit, as on
 //! a full disk) fails with exit code 3 and leaves the earlier outputs untouched.
 
 use std::path::{Path, PathBuf};
@@ -124,7 +124,7 @@ fn damaged_files_are_refused_with_one_line() {
 }
 
 #[test]
-fn unusual_recordings_are_refused_or_run_with_warnings() {
+fn unusual_recordings_are_refused_or_run_with_a_failed_verdict() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     let out = d.join("out");
@@ -153,7 +153,8 @@ fn unusual_recordings_are_refused_or_run_with_warnings() {
     let i8s = d.join("i8.tif");
     write_pages::<colortype::GrayI8>(&i8s, &[(16, 16, vec![0; 256])]);
     refused(&out, &track(&i8s, &out), "signed");
-    // Valid but empty: 1x1 frames, all-zero and all-saturated frames run with a warning.
+    // Valid but empty: 1x1 frames, all-zero and all-saturated frames run, write their
+    // outputs, and end with a failed verdict (exit code 1, README) that says why.
     for (name, pages) in [
         ("one.tif", vec![(1u32, 1u32, vec![7u16]); 3]),
         ("zero.tif", vec![(64, 64, vec![0u16; 4096]); 3]),
@@ -164,12 +165,14 @@ fn unusual_recordings_are_refused_or_run_with_warnings() {
         let run = d.join(format!("run_{name}"));
         let result = track(&file, &run);
         let stdout = String::from_utf8_lossy(&result.stdout);
-        assert!(
-            result.status.success(),
+        assert_eq!(
+            result.status.code(),
+            Some(1),
             "{name}: {}",
             String::from_utf8_lossy(&result.stderr)
         );
-        assert!(stdout.contains("no objects found in 3 frame(s)"), "{name}: {stdout}");
+        assert!(stdout.starts_with("verdict: failed"), "{name}: {stdout}");
+        assert!(stdout.contains("no object was found in any frame"), "{name}: {stdout}");
         assert!(run.join("run.json").exists());
     }
 }
@@ -329,7 +332,7 @@ fn nonsense_parameters_are_refused_before_any_work() {
     assert!(result.status.success(), "{}", String::from_utf8_lossy(&result.stderr));
     let record: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
-    assert_eq!(record["parameters"]["link"]["max_gap_frames"], 0);
+    assert_eq!(record["parameters"]["link"]["params"]["max_gap_frames"], 0);
     assert_eq!(record["parameters"]["diameter"]["px"], 14.0);
     assert!(!out.join("qc_movie.gif").exists());
 }

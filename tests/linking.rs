@@ -9,8 +9,8 @@
 
 mod common;
 
-use caravan::link::online::{LinkParams, Prediction};
 use caravan::link::{hungarian_min_cost, scale_cost};
+use caravan::link::{LinkOptions, Prediction};
 use caravan::score::{link_scores, LinkScores};
 use caravan::synth::{Rng, Scenario, SynthParams};
 use caravan::tracks::{read_track_points, TrackPoint};
@@ -83,8 +83,10 @@ fn scaled_hungarian_matches_scipy() {
 }
 
 fn track_scenario(p: &SynthParams, prediction: Prediction) -> LinkScores {
-    let mut link = LinkParams::for_diameter(p.diameter_px);
-    link.prediction = prediction;
+    let link = LinkOptions {
+        prediction,
+        ..LinkOptions::default()
+    };
     let scene = track_synthetic(p, link);
     let margin = p.diameter_px / 2.0;
     let (w, h) = (p.width as f64, p.height as f64);

@@ -9,7 +9,7 @@
 
 mod common;
 
-use caravan::link::online::{Divisions, LinkParams, Prediction};
+use caravan::link::{Divisions, LinkOptions, Prediction};
 use caravan::pipeline::median;
 use caravan::score::files::{read_points, score_files};
 use caravan::score::tracking::TrackingScore;
@@ -17,7 +17,7 @@ use caravan::synth::{write_recording, Scenario, SynthParams};
 use common::track_synthetic;
 
 /// Synthesizes `p`, tracks it with `link`, and scores the tracks.
-fn track_and_score(p: &SynthParams, link: LinkParams) -> TrackingScore {
+fn track_and_score(p: &SynthParams, link: LinkOptions) -> TrackingScore {
     let scene = track_synthetic(p, link);
     let (_, score) = score_files(&scene.syn, &scene.run, None, None).unwrap();
     eprintln!(
@@ -38,14 +38,14 @@ fn one_frame_dropouts_are_bridged() {
     let mut p = SynthParams::new(Scenario::Dish, 384, 384, 30);
     p.dropout_rate = 0.05;
     p.seed = 7;
-    let link = LinkParams::for_diameter(p.diameter_px);
+    let link = LinkOptions::default();
     let closed = track_and_score(&p, link);
     assert!(closed.tracks.reference_tracks >= 20);
     assert!(closed.tracks.mostly_tracked >= 0.9, "{:?}", closed.tracks);
     assert!(closed.tra >= 0.97, "TRA {}", closed.tra);
     let open = track_and_score(
         &p,
-        LinkParams {
+        LinkOptions {
             max_gap_frames: 0,
             ..link
         },
@@ -63,7 +63,7 @@ fn divisions_are_recovered_with_the_right_mother() {
         let mut p = SynthParams::new(Scenario::Dish, 384, 384, 40);
         p.division_rate = 0.01;
         p.seed = seed;
-        let s = track_and_score(&p, LinkParams::for_diameter(p.diameter_px)).divisions;
+        let s = track_and_score(&p, LinkOptions::default()).divisions;
         truth += s.reference_events;
         recovered += s.recovered;
         found += s.found_events;
@@ -76,9 +76,9 @@ fn divisions_are_recovered_with_the_right_mother() {
     let mut p = SynthParams::new(Scenario::Dish, 384, 384, 40);
     p.division_rate = 0.01;
     p.seed = 5;
-    let off = LinkParams {
+    let off = LinkOptions {
         divisions: Divisions::Off,
-        ..LinkParams::for_diameter(p.diameter_px)
+        ..LinkOptions::default()
     };
     assert_eq!(track_and_score(&p, off).divisions.found_events, 0);
 }
@@ -87,15 +87,14 @@ fn divisions_are_recovered_with_the_right_mother() {
 fn prediction_helps_a_fast_drifting_stream() {
     // Target: displacement per frame ~40% of the nearest-neighbour distance; link recall ≥ 0.95
     // with prediction on, and prediction beats no prediction (recall and identity switches),
-    // both with the maximum step a user would set for such a stream (12 px for 7 px/frame).
+    // both with the maximum step measured from the recording (defaults).
     let mut p = SynthParams::new(Scenario::Stripe, 384, 384, 20);
     p.nuclei = 80;
     p.drift_px_per_frame = 7.0;
     p.seed = 33;
     let ratio = step_to_neighbour_ratio(&p);
     assert!((0.3..=0.5).contains(&ratio), "step / neighbour distance {ratio}");
-    let mut link = LinkParams::for_diameter(p.diameter_px);
-    link.max_step_px = 12.0;
+    let mut link = LinkOptions::default();
     let on = track_and_score(&p, link);
     link.prediction = Prediction::Off;
     let off = track_and_score(&p, link);
@@ -132,7 +131,7 @@ fn a_dense_stripe_without_divisions_gets_none_and_keeps_its_scores() {
     let mut p = SynthParams::new(Scenario::Stripe, 384, 384, 20);
     p.nuclei = 110;
     p.seed = 32;
-    let s = track_and_score(&p, LinkParams::for_diameter(p.diameter_px));
+    let s = track_and_score(&p, LinkOptions::default());
     assert_eq!(s.divisions.found_events, 0);
     assert!(s.link_precision >= 0.95 && s.link_recall >= 0.95, "{:?}", s.links);
 }

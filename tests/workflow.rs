@@ -119,3 +119,66 @@ fn batch_skips_what_is_done_and_the_workflow_gives_the_same_results() {
         std::fs::read(d.join("wf/comparison/comparison.csv")).unwrap()
     );
 }
+
+#[test]
+fn batch_lists_runs_judged_failed_and_leaves_them_out_of_the_comparison() {
+    // A recording of pure noise forced to a 14 px diameter gives a run whose verdict is
+    // `failed` (README, "the run's verdict"): batch still tracks it, exits 1 (README's exit
+    // codes), names it, writes its verdict into runs.csv and compares the others without it.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let mut manifest = String::from("path,condition,replicate\n");
+    for (k, (scenario, nuclei, condition)) in [
+        ("dish", "30", "control"),
+        ("dish", "0", "control"),
+        ("stripe", "40", "stream"),
+    ]
+    .iter()
+    .enumerate()
+    {
+        let name = format!("rec{k}");
+        let seed = (k + 11).to_string();
+        let args = [
+            "synth",
+            "-o",
+            &name,
+            "--scenario",
+            scenario,
+            "--nuclei",
+            nuclei,
+            "--size",
+            "192x192",
+            "--frames",
+            "20",
+            "--seed",
+            &seed,
+        ];
+        ok(caravan(&args, d));
+        manifest.push_str(&format!("{name}/recording.tif,{condition},embryo{k}\n"));
+    }
+    std::fs::write(d.join("m.csv"), manifest).unwrap();
+    let out = caravan(
+        &["batch", "m.csv", "-o", "batch", "--diameter", "14px", "--no-movie"],
+        d,
+    );
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(1), "{stdout}");
+    let listed = stdout.split("runs whose verdict is failed").nth(1).unwrap_or_default();
+    assert!(
+        listed.contains("embryo1") && !listed.contains("embryo0") && !listed.contains("embryo2"),
+        "{stdout}"
+    );
+    let mut runs = csv::Reader::from_path(d.join("batch/runs.csv")).unwrap();
+    let header = runs.headers().unwrap().clone();
+    let verdict_col = header.iter().position(|h| h == "verdict").expect("a verdict column");
+    let verdicts: Vec<String> = runs.records().map(|r| r.unwrap()[verdict_col].to_string()).collect();
+    assert_eq!(verdicts.len(), 3);
+    assert_eq!(verdicts[1], "failed");
+    assert!(verdicts[0] != "failed" && verdicts[2] != "failed", "{verdicts:?}");
+    let replicates = std::fs::read_to_string(d.join("batch/comparison/replicates.csv")).unwrap();
+    assert!(
+        replicates.contains("embryo0") && replicates.contains("embryo2"),
+        "{replicates}"
+    );
+    assert!(!replicates.contains("embryo1"), "{replicates}");
+}

@@ -3,13 +3,14 @@
 
 use super::analyze::analyze_run_folder;
 use super::track::LinkingArgs;
-use super::SegmentationArgs;
+use super::{Completion, SegmentationArgs};
 use caravan::analyze::compare::{compare, read_manifest, read_manifest_entries, write_comparison};
 use caravan::analyze::population::AnalysisOptions;
 use caravan::analyze::table::{CalibrationOverride, Filters};
 use caravan::batch::{run_folders, write_runs_manifest};
 use caravan::pipeline::run_recording;
 use caravan::stack::{OpenOptions, Stack};
+use caravan::verdict::{RunVerdict, Verdict};
 use caravan::{Error, Result};
 use clap::Args;
 use std::path::{Path, PathBuf};
@@ -34,12 +35,25 @@ pub struct BatchArgs {
 
 /// What happened to one recording.
 enum Outcome {
-    Done,
-    Skipped,
+    /// Tracked now, with this verdict.
+    Done(Verdict),
+    /// Complete already, with this verdict (from its run.json).
+    Skipped(Verdict),
+    /// Could not be tracked.
     Failed(String),
 }
 
-pub fn run(args: BatchArgs) -> Result<()> {
+impl Outcome {
+    /// The run's verdict, when it has one.
+    fn verdict(&self) -> Option<Verdict> {
+        match self {
+            Outcome::Done(v) | Outcome::Skipped(v) => Some(*v),
+            Outcome::Failed(_) => None,
+        }
+    }
+}
+
+pub fn run(args: BatchArgs) -> Result<Completion> {
     args.linking.validate()?;
     let entries = read_manifest_entries(&args.manifest)?;
     let folders = run_folders(&entries, &args.output);
@@ -52,19 +66,29 @@ pub fn run(args: BatchArgs) -> Result<()> {
             s.spawn(|| loop {
                 let k = next.fetch_add(1, Ordering::SeqCst);
                 let Some(entry) = entries.get(k) else { break };
-                let outcome = match track_one(&entry.path, &folders[k], &args) {
-                    Ok(true) => Outcome::Done,
-                    Ok(false) => Outcome::Skipped,
-                    Err(e) => Outcome::Failed(e.to_string()),
-                };
+                let outcome =
+                    track_one(&entry.path, &folders[k], &args).unwrap_or_else(|e| Outcome::Failed(e.to_string()));
                 report(&entry.path, &folders[k], &outcome);
                 outcomes.lock().expect("no panics while held").push((k, outcome));
             });
         }
     });
-    let outcomes = outcomes.into_inner().expect("threads joined");
+    let mut outcomes = outcomes.into_inner().expect("threads joined");
+    outcomes.sort_by_key(|o| o.0);
     let failed = outcomes.iter().filter(|o| matches!(o.1, Outcome::Failed(_))).count();
-    let runs = write_runs_manifest(&entries, &folders, &args.output)?;
+    let verdicts: Vec<Option<Verdict>> = outcomes.iter().map(|o| o.1.verdict()).collect();
+    let runs = write_runs_manifest(&entries, &folders, &verdicts, &args.output)?;
+    let judged_failed: Vec<&Path> = outcomes
+        .iter()
+        .filter(|o| o.1.verdict() == Some(Verdict::Failed))
+        .map(|o| folders[o.0].as_path())
+        .collect();
+    if !judged_failed.is_empty() {
+        println!("runs whose verdict is failed (left out of the comparison; see the verdict in their run.json):");
+        for f in &judged_failed {
+            println!("  {}", f.display());
+        }
+    }
     if failed == 0 && !args.linking.no_analysis {
         compare_runs(&runs, &args.output);
     }
@@ -78,44 +102,61 @@ pub fn run(args: BatchArgs) -> Result<()> {
         ));
     }
     println!("wrote {}", args.output.display());
-    Ok(())
+    Ok(if judged_failed.is_empty() {
+        Completion::Done
+    } else {
+        Completion::VerdictFailed
+    })
 }
 
 fn report(input: &Path, folder: &Path, outcome: &Outcome) {
     match outcome {
-        Outcome::Done => println!("tracked {} -> {}", input.display(), folder.display()),
-        Outcome::Skipped => println!("already complete: {}", folder.display()),
+        Outcome::Done(v) => println!(
+            "tracked {} -> {} (verdict: {})",
+            input.display(),
+            folder.display(),
+            v.word()
+        ),
+        Outcome::Skipped(v) => println!("already complete: {} (verdict: {})", folder.display(), v.word()),
         Outcome::Failed(e) => println!("failed: {e}"),
     }
 }
 
-/// Tracks one recording into `folder`; `Ok(false)` when it was complete already.
-fn track_one(input: &Path, folder: &Path, args: &BatchArgs) -> Result<bool> {
+/// Tracks one recording into `folder`, or finds it complete already.
+fn track_one(input: &Path, folder: &Path, args: &BatchArgs) -> Result<Outcome> {
     if folder.join("run.json").exists() {
-        return Ok(false);
+        return Ok(Outcome::Skipped(recorded_verdict(&folder.join("run.json"))));
     }
     let resume = caravan::checkpoint::checkpoint_dir(folder).join("state.json").exists();
     let mut stack = Stack::open(input, &OpenOptions::default())?;
     let (diameter, params) = args.segmentation.resolve(&mut stack)?;
-    let mut outputs = args
-        .linking
-        .outputs(params.diameter_px, stack.info().calibration.pixel_size_um, resume)?;
+    let mut outputs = args.linking.outputs(stack.info().calibration.pixel_size_um, resume)?;
     outputs.checkpoint_every = Some(25);
     outputs.resume = resume;
-    run_recording(&mut stack, diameter, &params, folder, &outputs, "track")?;
+    let run = run_recording(&mut stack, diameter, &params, folder, &outputs, "track")?;
     if !args.linking.no_analysis {
         analyze_run_folder(folder);
     }
-    Ok(true)
+    Ok(Outcome::Done(run.verdict.verdict))
+}
+
+/// The verdict in a finished run's run.json (`ok` for runs written before verdicts existed).
+fn recorded_verdict(path: &Path) -> Verdict {
+    std::fs::read(path)
+        .ok()
+        .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
+        .and_then(|v| serde_json::from_value::<RunVerdict>(v["verdict"].clone()).ok())
+        .map_or(Verdict::Ok, |v| v.verdict)
 }
 
 /// Compares the conditions of the finished runs into `out/comparison`, when there are two or
 /// more; a failure here is reported, not fatal (the runs stand on their own).
 fn compare_runs(runs: &Path, out: &Path) {
-    let Ok(entries) = read_manifest(runs) else {
+    let Ok(mut entries) = read_manifest(runs) else {
         println!("one condition only: no comparison");
         return;
     };
+    entries.retain(|e| e.labels.get("verdict").map(String::as_str) != Some(Verdict::Failed.word()));
     let dir = out.join("comparison");
     let result = compare(
         entries,

@@ -1,8 +1,8 @@
 //! `caravan demo`: our own scenario end to end, as a first look at what the tool does.
 
-use caravan::link::online::LinkParams;
+use caravan::link::LinkOptions;
 use caravan::params::SegmentParams;
-use caravan::pipeline::{resolve_diameter, run_recording, DiameterSource, SegmentOutputs};
+use caravan::pipeline::{resolve_diameter, run_recording, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
 use caravan::score::files::score_files;
 use caravan::stack::{OpenOptions, Stack};
@@ -26,15 +26,13 @@ pub fn run(args: DemoArgs) -> Result<()> {
     println!("Synthesizing a stripe of migrating, occasionally dividing nuclei (our own invented scenario) ...");
     let synth = write_recording(&args.output.join("synthetic"), &p)?;
     let mut stack = Stack::open(&synth.recording, &OpenOptions::default())?;
-    let diameter = resolve_diameter(&mut stack, None)?;
-    let d = match diameter {
-        DiameterSource::Given(d) | DiameterSource::Estimated(d) => d,
-    };
+    let diameter = resolve_diameter(&mut stack, None, &SegmentParams::for_diameter)?;
+    let d = diameter.px();
     println!("Estimated nucleus diameter: {d:.1} px (truth: {:.1} px)", p.diameter_px);
     let run_dir = args.output.join("tracking");
     let outputs = SegmentOutputs {
         labels: true,
-        linking: Some(LinkParams::for_diameter(d)),
+        linking: Some(LinkOptions::default()),
         movie: Some(MovieOptions::default()),
         replace: true,
         checkpoint_every: None,

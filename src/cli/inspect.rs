@@ -1,7 +1,8 @@
 //! `caravan inspect FILE`: what a recording holds, before any long run.
 
 use super::InputArgs;
-use caravan::segment::diameter::estimate_diameter;
+use caravan::params::SegmentParams;
+use caravan::pipeline::resolve_diameter;
 use caravan::stack::CalibrationSource;
 use caravan::Result;
 use clap::Args;
@@ -39,16 +40,16 @@ pub fn run(args: InspectArgs) -> Result<()> {
         Some(t) => println!("interval     {t} s ({})", source(c.frame_interval_source)),
         None => println!("interval     unknown (give --interval)"),
     }
-    let frame = stack.read_frame(0)?;
-    match estimate_diameter(&frame.to_image()) {
-        Some(d) => {
+    match resolve_diameter(&mut stack, None, &SegmentParams::for_diameter) {
+        Ok(d) => {
+            let px = d.px();
             let um = c
                 .pixel_size_um
-                .map(|p| format!(" = {:.1} µm", d * p))
+                .map(|p| format!(" = {:.1} µm", px * p))
                 .unwrap_or_default();
-            println!("nucleus size {d:.1} px{um} (estimated on frame 0 by scale selection)");
+            println!("nucleus size {px:.1} px{um} ({})", super::describe_diameter(&d));
         }
-        None => println!("nucleus size no blob stands out in frame 0"),
+        Err(e) => println!("nucleus size unknown: {e}"),
     }
     Ok(())
 }

@@ -1,8 +1,8 @@
 //! `caravan link SHARD... -o DIR`: join the shards of one recording (from `segment --frames`)
 //! into tracks, tables and the QC movie, identical to one `track` run.
 
-use super::print_summary;
 use super::track::LinkingArgs;
+use super::{print_summary, Completion};
 use caravan::shard::{link_shards, read_shards};
 use caravan::stack::Stack;
 use caravan::Result;
@@ -27,7 +27,7 @@ pub struct LinkArgs {
     linking: LinkingArgs,
 }
 
-pub fn run(args: LinkArgs) -> Result<()> {
+pub fn run(args: LinkArgs) -> Result<Completion> {
     args.linking.validate()?;
     caravan::pipeline::check_output_dir(&args.output, args.force)?;
     let shards = read_shards(&args.shards)?;
@@ -37,15 +37,13 @@ pub fn run(args: LinkArgs) -> Result<()> {
         .clone()
         .unwrap_or_else(|| PathBuf::from(&first.fingerprint.input));
     let mut stack = Stack::open(&path, &first.open)?;
-    let outputs = args.linking.outputs(
-        first.segment.diameter_px,
-        stack.info().calibration.pixel_size_um,
-        args.force,
-    )?;
+    let outputs = args
+        .linking
+        .outputs(stack.info().calibration.pixel_size_um, args.force)?;
     let run = link_shards(&mut stack, &args.shards, &args.output, &outputs)?;
     print_summary(&run);
     if !args.linking.no_analysis {
         super::analyze::analyze_run_folder(&args.output);
     }
-    Ok(())
+    Ok(Completion::of(run.verdict.verdict))
 }

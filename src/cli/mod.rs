@@ -1,5 +1,6 @@
 //! Argument parsing and the mapping of errors to one-line messages and exit codes.
-//! Exit codes: 0 done; 2 bad input or parameters; 3 an output could not be written.
+//! Exit codes: 0 done; 1 done, but the run's verdict is `failed`; 2 bad input or parameters;
+//! 3 an output could not be written.
 
 mod analyze;
 mod batch;
@@ -18,6 +19,7 @@ mod workflow;
 use caravan::params::{parse_pixel_size_um, parse_seconds, BackgroundMethod, Length, SegmentParams, ThresholdMethod};
 use caravan::pipeline::DiameterSource;
 use caravan::stack::{OpenOptions, Stack, ZMode};
+use caravan::verdict::Verdict;
 use caravan::Result;
 use clap::{Args, CommandFactory, FromArgMatches, Parser, Subcommand, ValueEnum};
 use std::path::PathBuf;
@@ -81,25 +83,49 @@ pub fn run() -> i32 {
         Ok(c) => c,
         Err(e) => e.exit(),
     };
+    let done = |r: Result<()>| r.map(|()| Completion::Done);
     let result = match cli.command {
-        Command::Inspect(a) => inspect::run(a),
-        Command::Preview(a) => preview::run(a),
+        Command::Inspect(a) => done(inspect::run(a)),
+        Command::Preview(a) => done(preview::run(a)),
         Command::Segment(a) => segment::run(a),
         Command::Track(a) => track::run(a),
-        Command::Synth(a) => synth::run(a),
+        Command::Synth(a) => done(synth::run(a)),
         Command::Link(a) => link::run(a),
-        Command::Score(a) => score::run(a),
-        Command::Analyze(a) => analyze::run(a),
-        Command::Compare(a) => compare::run(a),
+        Command::Score(a) => done(score::run(a)),
+        Command::Analyze(a) => done(analyze::run(a)),
+        Command::Compare(a) => done(compare::run(a)),
         Command::Batch(a) => batch::run(a),
-        Command::Workflow(a) => workflow::run(a),
-        Command::Demo(a) => demo::run(a),
+        Command::Workflow(a) => done(workflow::run(a)),
+        Command::Demo(a) => done(demo::run(a)),
     };
     match result {
-        Ok(()) => 0,
+        Ok(Completion::Done) => 0,
+        Ok(Completion::VerdictFailed) => VERDICT_FAILED_EXIT,
         Err(e) => {
             eprintln!("caravan: {e}");
             e.exit_code()
+        }
+    }
+}
+
+/// Exit code of a run that wrote its outputs but whose verdict is `failed`.
+pub const VERDICT_FAILED_EXIT: i32 = 1;
+
+/// How a command that judges its run ended (errors aside).
+pub(crate) enum Completion {
+    /// Outputs written; the verdict is ok or doubtful (or there is none).
+    Done,
+    /// Outputs written, but the verdict is failed.
+    VerdictFailed,
+}
+
+impl Completion {
+    /// The completion of a run with this verdict.
+    pub(crate) fn of(verdict: Verdict) -> Completion {
+        if verdict == Verdict::Failed {
+            Completion::VerdictFailed
+        } else {
+            Completion::Done
         }
     }
 }
@@ -183,10 +209,15 @@ pub(crate) struct SegmentationArgs {
 impl SegmentationArgs {
     /// Resolves the diameter (estimating it if needed) and builds validated parameters.
     pub(crate) fn resolve(&self, stack: &mut Stack) -> Result<(DiameterSource, SegmentParams)> {
-        let diameter = caravan::pipeline::resolve_diameter(stack, self.diameter)?;
-        let d = match diameter {
-            DiameterSource::Given(d) | DiameterSource::Estimated(d) => d,
-        };
+        let diameter = caravan::pipeline::resolve_diameter(stack, self.diameter, &|d| self.params_for(d))?;
+        let p = self.params_for(diameter.px());
+        p.validate()?;
+        Ok((diameter, p))
+    }
+
+    /// The segmentation parameters at diameter `d`: the defaults for it, with every option the
+    /// user gave.
+    fn params_for(&self, d: f64) -> SegmentParams {
         let mut p = SegmentParams::for_diameter(d);
         p.threshold = self.threshold;
         p.background = self.background;
@@ -202,8 +233,7 @@ impl SegmentationArgs {
         if let Some(v) = self.max_area {
             p.max_area_px = v;
         }
-        p.validate()?;
-        Ok((diameter, p))
+        p
     }
 }
 
@@ -251,8 +281,13 @@ pub(crate) fn half_open_range(name: &str, text: &str) -> Result<(usize, usize)> 
     Ok((a, b))
 }
 
-/// Prints what a run produced, its warnings, and where it went.
+/// Prints the run's verdict first (with each finding's reason and fix), then what it
+/// produced, its warnings, and where it went.
 fn print_summary(run: &caravan::pipeline::SegmentRun) {
+    println!("verdict: {}", run.verdict.verdict.word());
+    for f in &run.verdict.findings {
+        println!("  {}: {} (fix: {})", f.level.word(), f.reason, f.fix);
+    }
     let tracks = match &run.resolution {
         Some(r) => format!(
             ", {} tracks ({} gaps closed, {} divisions)",
@@ -266,7 +301,7 @@ fn print_summary(run: &caravan::pipeline::SegmentRun) {
         "{} frames, {} detections{tracks}, diameter {}",
         run.frames.len(),
         run.detections(),
-        describe_diameter(run.diameter)
+        describe_diameter(&run.diameter)
     );
     for w in &run.warnings {
         println!("warning: {w}");
@@ -274,9 +309,20 @@ fn print_summary(run: &caravan::pipeline::SegmentRun) {
     println!("wrote {}", run.dir.display());
 }
 
-fn describe_diameter(d: DiameterSource) -> String {
+fn describe_diameter(d: &DiameterSource) -> String {
     match d {
-        DiameterSource::Given(v) => format!("{v:.1} px (given)"),
-        DiameterSource::Estimated(v) => format!("{v:.1} px (estimated)"),
+        DiameterSource::Given { px } => format!("{px:.1} px (given)"),
+        DiameterSource::Estimated(e) => {
+            let confidence = serde_json::to_value(e.confidence)
+                .ok()
+                .and_then(|v| v.as_str().map(String::from))
+                .unwrap_or_default();
+            let why = if e.reasons.is_empty() {
+                String::new()
+            } else {
+                format!(": {}", e.reasons.join("; "))
+            };
+            format!("{:.1} px (estimated, {confidence} confidence{why})", e.px)
+        }
     }
 }

@@ -52,7 +52,7 @@ pub fn run(args: PreviewArgs) -> Result<()> {
         args.frame,
         seg.detections.len(),
         seg.threshold,
-        describe_diameter(diameter),
+        describe_diameter(&diameter),
         args.output.display()
     );
     Ok(())

@@ -1,7 +1,7 @@
 //! `caravan segment FILE -o DIR`: every frame's nuclei into detections.csv and run.json; with
 //! `--frames A..B`, a shard of frames A to B−1 for `caravan link` (split stages).
 
-use super::{print_summary, RunArgs};
+use super::{print_summary, Completion, RunArgs};
 use caravan::pipeline::{run_recording, SegmentOutputs};
 use caravan::shard::write_shard;
 use caravan::{Error, Result};
@@ -16,9 +16,9 @@ pub struct SegmentArgs {
     frames: Option<String>,
 }
 
-pub fn run(args: SegmentArgs) -> Result<()> {
+pub fn run(args: SegmentArgs) -> Result<Completion> {
     if let Some(range) = &args.frames {
-        return run_shard(&args, range);
+        return run_shard(&args, range).map(|()| Completion::Done);
     }
     let (mut stack, diameter, params) = args.run.start()?;
     let outputs = SegmentOutputs {
@@ -31,7 +31,7 @@ pub fn run(args: SegmentArgs) -> Result<()> {
     };
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
     print_summary(&run);
-    Ok(())
+    Ok(Completion::of(run.verdict.verdict))
 }
 
 fn run_shard(args: &SegmentArgs, text: &str) -> Result<()> {

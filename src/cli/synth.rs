@@ -1,7 +1,7 @@
 //! `caravan synth -o DIR`: a synthetic recording with its ground truth.
 
 use caravan::stack::write::TiffCompression;
-use caravan::synth::{write_recording, Scenario, SynthParams};
+use caravan::synth::{write_recording, Look, PersistentMotion, Scenario, SynthParams};
 use caravan::{Error, Result};
 use clap::Args;
 use std::path::PathBuf;
@@ -41,6 +41,32 @@ pub struct SynthArgs {
     /// Fraction of signal lost per frame to photobleaching.
     #[arg(long, default_value_t = 0.002)]
     bleach: f64,
+    /// Peak nucleus signal as a multiple of the background noise (sets --signal; e.g. 3 for a
+    /// dim recording).
+    #[arg(long, conflicts_with = "signal")]
+    snr: Option<f64>,
+    /// Appearance: plain (smooth) or tissue (texture 0.3, PSF 1.2 px, brightness spread 0.3,
+    /// axis ratio up to 1.3); the four options below override single values.
+    #[arg(long, default_value = "plain")]
+    look: Look,
+    /// Chromatin-like texture amplitude inside nuclei (0 to 1).
+    #[arg(long)]
+    texture: Option<f64>,
+    /// Standard deviation of the point-spread function, px.
+    #[arg(long)]
+    psf: Option<f64>,
+    /// Standard deviation of log brightness between nuclei (lognormal).
+    #[arg(long)]
+    brightness_spread: Option<f64>,
+    /// Largest long-to-short axis ratio of a nucleus.
+    #[arg(long)]
+    max_axis_ratio: Option<f64>,
+    /// Mean speed in px per frame of a persistent random walk (replaces the scenario's motion).
+    #[arg(long, requires = "persistence")]
+    speed: Option<f64>,
+    /// Persistence time of that walk, frames.
+    #[arg(long, requires = "speed")]
+    persistence: Option<f64>,
     /// Seed of every random choice.
     #[arg(long, default_value_t = 1)]
     seed: u64,
@@ -62,6 +88,21 @@ pub fn run(args: SynthArgs) -> Result<()> {
     p.division_rate = args.divisions;
     p.dropout_rate = args.dropouts;
     p.signal_photons = args.signal;
+    if let Some(snr) = args.snr {
+        p.signal_photons = snr * p.background_noise_sd();
+    }
+    p.look = args.look;
+    let look = &mut p.look;
+    look.texture = args.texture.unwrap_or(look.texture);
+    look.psf_sigma_px = args.psf.unwrap_or(look.psf_sigma_px);
+    look.brightness_spread = args.brightness_spread.unwrap_or(look.brightness_spread);
+    look.max_axis_ratio = args.max_axis_ratio.unwrap_or(look.max_axis_ratio);
+    if let (Some(speed), Some(persistence)) = (args.speed, args.persistence) {
+        p.motion = Some(PersistentMotion {
+            speed_px_per_frame: speed,
+            persistence_frames: persistence,
+        });
+    }
     if !(0.0..0.5).contains(&args.bleach) {
         return Err(Error::parameter(
             "--bleach",

@@ -1,7 +1,7 @@
 //! `caravan track FILE -o DIR`: segment every frame and link the nuclei into tracks.
 
-use super::{print_summary, RunArgs};
-use caravan::link::online::{Divisions, LinkParams, Prediction};
+use super::{print_summary, Completion, RunArgs};
+use caravan::link::{Divisions, LinkOptions, Prediction};
 use caravan::params::Length;
 use caravan::pipeline::{run_recording, SegmentOutputs};
 use caravan::render::movie::MovieOptions;
@@ -11,7 +11,8 @@ use clap::Args;
 /// Linking, movie and analysis options, shared by `track` and `link`.
 #[derive(Args, Clone)]
 pub struct LinkingArgs {
-    /// Longest step between frames (e.g. 8px or 5um; default 0.6 x diameter).
+    /// Longest step between frames (e.g. 8px or 5um; default: measured from the recording's
+    /// confident links, at least 0.6 x diameter).
     #[arg(long)]
     max_step: Option<Length>,
     /// Constant-velocity motion prediction: on or off.
@@ -40,13 +41,11 @@ pub struct LinkingArgs {
 impl LinkingArgs {
     /// Checks the options that do not depend on the recording.
     pub fn validate(&self) -> Result<()> {
-        if self.max_gap > 50 {
-            return Err(Error::parameter(
-                "--max-gap",
-                self.max_gap,
-                "gap closing bridges at most 50 missing frames",
-            ));
+        LinkOptions {
+            max_step_px: None,
+            ..self.link_options(None)?
         }
+        .validate()?;
         if self.qc_size < 64 || self.qc_every == 0 {
             return Err(Error::parameter(
                 "--qc-size/--qc-every",
@@ -57,22 +56,24 @@ impl LinkingArgs {
         Ok(())
     }
 
-    /// The run's outputs for a nucleus diameter and pixel size (for `--max-step` in µm).
-    pub fn outputs(&self, diameter_px: f64, pixel_size_um: Option<f64>, replace: bool) -> Result<SegmentOutputs> {
-        let mut link = LinkParams::for_diameter(diameter_px);
-        link.prediction = self.prediction;
-        link.max_gap_frames = self.max_gap;
-        link.divisions = self.divisions;
-        if let Some(step) = self.max_step {
-            link.max_step_px = step.to_pixels("--max-step", pixel_size_um)?;
-            if link.max_step_px < 0.5 {
-                return Err(Error::parameter(
-                    "--max-step",
-                    link.max_step_px,
-                    "must be at least 0.5 px",
-                ));
-            }
-        }
+    /// The linking options, with `--max-step` in px (a length in µm needs the pixel size).
+    fn link_options(&self, pixel_size_um: Option<f64>) -> Result<LinkOptions> {
+        let max_step_px = match (self.max_step, pixel_size_um) {
+            (Some(step), _) => Some(step.to_pixels("--max-step", pixel_size_um)?),
+            (None, _) => None,
+        };
+        Ok(LinkOptions {
+            max_step_px,
+            prediction: self.prediction,
+            max_gap_frames: self.max_gap,
+            divisions: self.divisions,
+        })
+    }
+
+    /// The run's outputs for a pixel size (for `--max-step` in µm).
+    pub fn outputs(&self, pixel_size_um: Option<f64>, replace: bool) -> Result<SegmentOutputs> {
+        let link = self.link_options(pixel_size_um)?;
+        link.validate()?;
         let movie = MovieOptions {
             max_side_px: self.qc_size,
             every: self.qc_every,
@@ -105,16 +106,14 @@ pub struct TrackArgs {
     resume: bool,
 }
 
-pub fn run(mut args: TrackArgs) -> Result<()> {
+pub fn run(mut args: TrackArgs) -> Result<Completion> {
     // Resuming continues a run in the same folder, so its partial outputs are expected.
     args.run.force |= args.resume;
     args.linking.validate()?;
     let (mut stack, diameter, params) = args.run.start()?;
-    let mut outputs = args.linking.outputs(
-        params.diameter_px,
-        stack.info().calibration.pixel_size_um,
-        args.run.force,
-    )?;
+    let mut outputs = args
+        .linking
+        .outputs(stack.info().calibration.pixel_size_um, args.run.force)?;
     outputs.labels = args.run.labels;
     outputs.checkpoint_every = (args.checkpoint_every > 0).then_some(args.checkpoint_every);
     outputs.resume = args.resume;
@@ -123,5 +122,5 @@ pub fn run(mut args: TrackArgs) -> Result<()> {
     if !args.linking.no_analysis {
         super::analyze::analyze_run_folder(&args.run.output);
     }
-    Ok(())
+    Ok(Completion::of(run.verdict.verdict))
 }

@@ -84,7 +84,12 @@ pub fn run(args: WorkflowArgs) -> Result<()> {
     ensure_dir(&args.output)?;
     let out = std::fs::canonicalize(&args.output).map_err(|e| Error::output(&args.output, e))?;
     let folders = run_folders(&entries, Path::new(""));
-    write_runs_manifest(&entries, &folders.iter().map(|f| out.join(f)).collect::<Vec<_>>(), &out)?;
+    write_runs_manifest(
+        &entries,
+        &folders.iter().map(|f| out.join(f)).collect::<Vec<_>>(),
+        &[],
+        &out,
+    )?;
     let caravan = std::env::current_exe().map_err(|e| Error::output(Path::new("caravan"), e))?;
     // The binary is read from config.json, so a lab can point it elsewhere on its cluster.
     const CARAVAN: &str = "'{CARAVAN}'";

@@ -4,8 +4,9 @@
 //! the start of another that begins up to `max_gap_frames` missing frames later.
 
 use super::assign_with_alternatives;
-use super::kalman::{ConstantVelocity, MotionNoise};
-use super::online::{confidence, LinkParams, Prediction};
+use super::motion::{MotionFilter, MotionNoise};
+use super::online::confidence;
+use super::params::{LinkParams, Prediction};
 use crate::tracks::TrackedDetection;
 use std::collections::BTreeMap;
 
@@ -132,13 +133,10 @@ fn segment_ends(points: &[TrackedDetection], params: &LinkParams) -> (Vec<Segmen
     (starts, ends)
 }
 
-/// Velocity at the end of a segment, from a Kalman filter run over its points.
+/// Velocity at the end of a segment, from the motion model run over its points.
 fn end_velocity(seg: &[&TrackedDetection], noise: MotionNoise) -> [f64; 2] {
-    let mut f = ConstantVelocity::started_at([seg[0].detection.x, seg[0].detection.y], noise);
-    for p in &seg[1..] {
-        f.step([p.detection.x, p.detection.y]);
-    }
-    f.velocity()
+    let points = seg.iter().map(|p| (p.detection.frame, [p.detection.x, p.detection.y]));
+    MotionFilter::replay(points, noise).map_or([0.0, 0.0], |f| f.velocity())
 }
 
 /// Renames every joined segment (following chains) and records the join's cost and
@@ -214,13 +212,14 @@ mod tests {
 
     #[test]
     fn a_one_frame_dropout_is_bridged() {
-        // Hand-built: one nucleus moving +2 px/frame along x is missed at frame 3; online linking
+        // Hand-built: one nucleus moving +2 px/frame along x is missed at frame 6; online linking
         // makes two segments, gap closing makes one track with the cost measured from the
-        // constant-velocity prediction (≈ 0: the motion is exactly linear).
+        // motion model's prediction (≈ 0 once six points have made the constant-velocity
+        // model the likely one: the motion is exactly linear).
         let params = LinkParams::for_diameter(14.0);
-        let frames: Vec<Vec<Detection>> = (0..7)
+        let frames: Vec<Vec<Detection>> = (0..10)
             .map(|t| {
-                if t == 3 {
+                if t == 6 {
                     vec![]
                 } else {
                     vec![detection(t, 1, 10.0 + 2.0 * t as f64, 50.0)]
@@ -232,13 +231,13 @@ mod tests {
         let joins = close_gaps(&mut points, &params);
         assert_eq!(joins.len(), 1);
         assert!(points.iter().all(|p| p.track_id == 1));
-        let after = points.iter().find(|p| p.detection.frame == 4).unwrap();
+        let after = points.iter().find(|p| p.detection.frame == 7).unwrap();
         assert!(after.link_cost_px2.unwrap() < 0.5, "{after:?}");
         // Switched off, the segments stay apart.
         let mut off = params;
         off.max_gap_frames = 0;
-        let frames: Vec<Vec<Detection>> = (0..7)
-            .filter(|&t| t != 3)
+        let frames: Vec<Vec<Detection>> = (0..10)
+            .filter(|&t| t != 6)
             .map(|t| vec![detection(t, 1, 10.0 + 2.0 * t as f64, 50.0)])
             .collect();
         let mut points = link_all(frames, &off);

@@ -2,8 +2,8 @@
 //! either side of where the mother was going, with the sizes and brightness of a nucleus split
 //! in two. Daughters become tracks of their own whose `parent_id` is the mother's.
 
-use super::kalman::ConstantVelocity;
-use super::online::{LinkParams, Prediction};
+use super::motion::MotionFilter;
+use super::params::{LinkParams, Prediction};
 use crate::tracks::TrackedDetection;
 use serde::Serialize;
 use std::collections::{BTreeMap, BTreeSet};
@@ -26,7 +26,7 @@ pub struct DivisionEvent {
 /// Our own consistency rules for a division (after gap closing, between consecutive frames).
 /// Real daughter nuclei are smaller than the mother and about equal; their DNA together is the
 /// mother's, so their summed brightness is close to hers.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, serde::Deserialize)]
 pub struct DivisionRules {
     /// Each daughter's area over the mother's (median of her last 3 points): allowed range.
     pub daughter_area_ratio: (f64, f64),
@@ -79,7 +79,7 @@ struct Candidate {
 ///
 /// A candidate is a mother point `m` at frame `f` and two daughter points `a`, `b` at `f+1`,
 /// each the first point of its track after `f` (one may continue the mother's own track), with
-/// both daughters within the maximum step of `m`, the midpoint of the daughters closer to the
+/// both daughters within [`LinkParams::daughter_reach_px`] of `m`, the midpoint of the daughters closer to the
 /// mother's predicted position than half the daughters' distance and than half the maximum
 /// step, and sizes and brightness within [`DivisionRules`]. Its cost is the squared distance
 /// from the predicted position to the daughters' midpoint; candidates are accepted in
@@ -149,7 +149,7 @@ fn find_candidates(
     }
     let typical_area = median_area_by_frame(points);
     let mut out = Vec::new();
-    let max2 = params.max_step_px * params.max_step_px;
+    let max2 = params.daughter_reach_px().powi(2);
     for pts in tracks.values() {
         for (pos, &m) in pts.iter().enumerate() {
             let f = points[m].detection.frame;
@@ -238,11 +238,8 @@ fn predicted_after(points: &[TrackedDetection], history: &[usize], params: &Link
     if params.prediction == Prediction::Off || history.len() < 2 {
         return at(history[history.len() - 1]);
     }
-    let mut f = ConstantVelocity::started_at(at(history[0]), params.motion_noise);
-    for &k in &history[1..] {
-        f.step(at(k));
-    }
-    f.predicted_position()
+    let points = history.iter().map(|&k| (points[k].detection.frame, at(k)));
+    MotionFilter::replay(points, params.motion_noise).map_or(at(history[history.len() - 1]), |f| f.predicted_position())
 }
 
 /// Whether the daughter's track (from point `k` on) is long enough, or reaches the end.

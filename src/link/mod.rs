@@ -7,8 +7,12 @@
 
 pub mod close;
 pub mod divide;
-pub mod kalman;
+pub mod estimate;
+pub mod motion;
 pub mod online;
+pub mod params;
+
+pub use params::{Divisions, LinkOptions, LinkParams, MaxStepSource, Prediction, ResolvedLinking};
 
 use crate::tracks::TrackedDetection;
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
@@ -108,11 +112,11 @@ pub struct TrackResolution {
 /// The global steps after online linking: gap closing, then division detection (as the
 /// parameters say), then track ids renumbered from 1 in order of first appearance (first
 /// frame, then object label), so that ids do not depend on how segments were joined.
-pub fn resolve_tracks(points: &mut [TrackedDetection], params: &online::LinkParams) -> TrackResolution {
+pub fn resolve_tracks(points: &mut [TrackedDetection], params: &LinkParams) -> TrackResolution {
     let gaps_closed = close::close_gaps(points, params).len();
     let mut divisions = match params.divisions {
-        online::Divisions::On => divide::detect_divisions(points, params, &divide::DivisionRules::default()),
-        online::Divisions::Off => Vec::new(),
+        Divisions::On => divide::detect_divisions(points, params, &params.division_rules),
+        Divisions::Off => Vec::new(),
     };
     let new_id = renumber_tracks(points);
     for e in divisions.iter_mut() {

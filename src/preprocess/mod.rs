@@ -3,6 +3,7 @@
 
 mod background;
 mod gaussian;
+mod noise;
 
 pub use background::{
     background_estimate, grey_opening_square, max_filter_square, min_filter_square, tophat, tophat_in_place,
@@ -10,6 +11,7 @@ pub use background::{
 pub use gaussian::{
     convolve_separable, gaussian_blur, gaussian_derivative_kernel, gaussian_kernel, gaussian_laplace, gaussian_radius,
 };
+pub use noise::{immerkaer_sigma, robust_noise_sigma, MEDIAN_ABS_OF_STANDARD_NORMAL};
 
 use crate::image2d::Image;
 use crate::params::{BackgroundMethod, SegmentParams};

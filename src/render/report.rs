@@ -133,6 +133,9 @@ pub fn analysis_report(run: &AnalysisRun) -> String {
         t,
         escape_html(&a.units.source)
     );
+    if let Some(record) = &run.table.run_record {
+        verdict_section(&mut html, record);
+    }
     html.push_str("<h2>Population statistics</h2>");
     summary_table(&mut html, &run.summary);
     html.push_str("<h2>Charts</h2><div class=\"grid\">");
@@ -288,6 +291,34 @@ fn msd_chart(run: &AnalysisRun) -> String {
         &series,
         true,
     )
+}
+
+/// The tracking run's verdict and its findings, first on the page: statistics are only as
+/// good as the segmentation and links they rest on.
+fn verdict_section(html: &mut String, record: &Value) {
+    let Ok(v) = serde_json::from_value::<crate::verdict::RunVerdict>(record["verdict"].clone()) else {
+        return;
+    };
+    let _ = write!(
+        html,
+        "<h2 id=\"verdict\" class=\"verdict-{0}\">Tracking run verdict: {0}</h2>",
+        v.verdict.word()
+    );
+    if v.findings.is_empty() {
+        html.push_str("<p>No check of the run found a problem.</p>");
+        return;
+    }
+    html.push_str("<ul>");
+    for f in &v.findings {
+        let _ = write!(
+            html,
+            "<li><b>{}</b>: {} <i>Fix: {}.</i></li>",
+            f.level.word(),
+            escape_html(&f.reason),
+            escape_html(&f.fix)
+        );
+    }
+    html.push_str("</ul>");
 }
 
 /// Objects and threshold per frame, warnings and flags of the tracking run.

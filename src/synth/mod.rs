@@ -81,6 +81,82 @@ pub struct SynthParams {
     pub seed: u64,
     /// Compression of the written recording.
     pub compression: TiffCompression,
+    /// How real nuclei differ from smooth equal discs (the scenario's own defaults are the
+    /// plain look: no texture, a 1 px point-spread function, brightness spread 0.25).
+    pub look: Look,
+    /// Motion as a persistent random walk of a given speed, instead of the scenario's own.
+    pub motion: Option<PersistentMotion>,
+}
+
+/// The appearance of nuclei: what tissue has and smooth synthetic discs lack.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Look {
+    /// Chromatin-like texture: relative amplitude of the brightness variation inside a
+    /// nucleus (0 = smooth; 0.3 = about ±30%).
+    pub texture: f64,
+    /// Standard deviation of the Gaussian point-spread function, px.
+    pub psf_sigma_px: f64,
+    /// Standard deviation of the natural logarithm of the peak brightness between nuclei
+    /// (brightness is lognormal).
+    pub brightness_spread: f64,
+    /// Largest ratio of the long to the short axis of a nucleus (the ratio is 1 + 0.15·|N(0,1)|,
+    /// capped here).
+    pub max_axis_ratio: f64,
+}
+
+impl Look {
+    /// Smooth, moderately varied nuclei (the scenarios' long-standing look).
+    pub const PLAIN: Look = Look {
+        texture: 0.0,
+        psf_sigma_px: 1.0,
+        brightness_spread: 0.25,
+        max_axis_ratio: 1.5,
+    };
+    /// Closer to nuclei in tissue: textured chromatin, a wider point-spread function (σ 1.2 px),
+    /// brightness varying by a factor of about 1.35 (lognormal σ 0.3) and elongation up to 1.3.
+    pub const TISSUE: Look = Look {
+        texture: 0.3,
+        psf_sigma_px: 1.2,
+        brightness_spread: 0.3,
+        max_axis_ratio: 1.3,
+    };
+}
+
+impl std::str::FromStr for Look {
+    type Err = String;
+    fn from_str(s: &str) -> std::result::Result<Self, String> {
+        match s {
+            "plain" => Ok(Look::PLAIN),
+            "tissue" => Ok(Look::TISSUE),
+            _ => Err(format!("{s:?}: expected plain or tissue")),
+        }
+    }
+}
+
+/// A persistent random walk: each velocity component is an Ornstein-Uhlenbeck process
+/// sampled once per frame, `v(t+1) = a·v(t) + σ_v·√(1 − a²)·N(0, 1)` with `a = exp(−1/P)`,
+/// so the velocity autocorrelation decays as `exp(−lag/P)` and the stationary velocity
+/// components have standard deviation `σ_v` (Uhlenbeck & Ornstein (1930), Phys. Rev.
+/// 36:823–841). The mean speed of a 2D Gaussian velocity is `σ_v·√(π/2)` (the mean of a
+/// Rayleigh distribution), which sets `σ_v` from the requested speed.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PersistentMotion {
+    /// Mean speed (of the random part), px per frame.
+    pub speed_px_per_frame: f64,
+    /// Persistence time P, frames.
+    pub persistence_frames: f64,
+}
+
+impl PersistentMotion {
+    /// Standard deviation of one velocity component, px per frame.
+    pub fn component_sd(&self) -> f64 {
+        self.speed_px_per_frame / (std::f64::consts::PI / 2.0).sqrt()
+    }
+
+    /// The per-frame velocity memory `a = exp(−1/P)`.
+    pub fn memory(&self) -> f64 {
+        (-1.0 / self.persistence_frames).exp()
+    }
 }
 
 impl SynthParams {
@@ -110,7 +186,15 @@ impl SynthParams {
             dropout_rate: 0.0,
             seed: 1,
             compression: TiffCompression::Deflate,
+            look: Look::PLAIN,
+            motion: None,
         }
+    }
+
+    /// Standard deviation of the camera noise over the background at the field's centre,
+    /// grey levels: Poisson noise of the background photons plus read noise.
+    pub fn background_noise_sd(&self) -> f64 {
+        (self.background_photons + self.read_noise * self.read_noise).sqrt()
     }
 
     /// Refuses sizes that cannot make a recording.
@@ -146,6 +230,29 @@ impl SynthParams {
                 self.drift_px_per_frame,
                 "must be at most one diameter per frame",
             ));
+        }
+        let look = &self.look;
+        if !(0.0..=1.0).contains(&look.texture)
+            || !(0.3..=5.0).contains(&look.psf_sigma_px)
+            || !(0.0..=1.5).contains(&look.brightness_spread)
+            || !(1.0..=3.0).contains(&look.max_axis_ratio)
+        {
+            return Err(Error::parameter(
+                "--texture/--psf/--brightness-spread/--max-axis-ratio",
+                format!("{look:?}"),
+                "texture 0 to 1, PSF sigma 0.3 to 5 px, spread 0 to 1.5, axis ratio 1 to 3",
+            ));
+        }
+        if let Some(m) = self.motion {
+            let speed_ok = (0.0..=2.0 * self.diameter_px).contains(&m.speed_px_per_frame);
+            let persistence_ok = m.persistence_frames > 0.0 && m.persistence_frames <= 1000.0;
+            if !(speed_ok && persistence_ok) {
+                return Err(Error::parameter(
+                    "--speed/--persistence",
+                    format!("{}/{}", m.speed_px_per_frame, m.persistence_frames),
+                    "speed 0 to 2 diameters per frame, persistence above 0 and at most 1000 frames",
+                ));
+            }
         }
         if !(self.signal_photons > 0.0 && self.signal_photons <= 60000.0) {
             return Err(Error::parameter(

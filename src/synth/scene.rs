@@ -37,6 +37,17 @@ impl Nucleus {
         0.5 * (self.a + self.b)
     }
 
+    /// Chromatin-like texture at pixel (px, py), in [−1, 1]: value noise (random values on a
+    /// lattice, smoothly interpolated; Perlin (1985), SIGGRAPH Comput. Graph. 19(3):287–296, in
+    /// its simpler value form) in the nucleus's own rotated frame, so the pattern moves and
+    /// turns with it. Two octaves: granules of about 2.5 px and patches of about 6 px.
+    fn texture_at(&self, px: f64, py: f64) -> f64 {
+        let (dx, dy) = (px - self.x, py - self.y);
+        let (c, s) = (self.angle.cos(), self.angle.sin());
+        let (u, v) = (dx * c + dy * s, -dx * s + dy * c);
+        0.6 * value_noise(self.id, 0, u / 2.5, v / 2.5) + 0.4 * value_noise(self.id, 1, u / 6.0, v / 6.0)
+    }
+
     /// Normalised elliptical radius of pixel (px, py): 1 on the boundary.
     fn normalised_radius(&self, px: f64, py: f64) -> f64 {
         let (dx, dy) = (px - self.x, py - self.y);
@@ -64,6 +75,16 @@ struct Motion {
 }
 
 fn motion(p: &SynthParams) -> Motion {
+    let mut m = scenario_motion(p);
+    if let Some(walk) = p.motion {
+        let a = walk.memory();
+        m.persistence = a;
+        m.kick = walk.component_sd() * (1.0 - a * a).sqrt();
+    }
+    m
+}
+
+fn scenario_motion(p: &SynthParams) -> Motion {
     match p.scenario {
         Scenario::Dish => Motion {
             persistence: 0.85,
@@ -142,17 +163,21 @@ impl Scene {
         let p = &self.params;
         let (w, h) = (p.width, p.height);
         let mut signal = vec![0f32; w * h];
+        let texture = p.look.texture;
         for n in self.frames[t].iter().filter(|n| !n.hidden) {
             let edge = 1.5 * n.radius();
             for_each_pixel_near(n, w, h, 2.5, |i, x, y| {
                 let r = n.normalised_radius(x, y);
-                let profile = 1.0 / (1.0 + ((r - 1.0) * edge).exp());
+                let mut profile = 1.0 / (1.0 + ((r - 1.0) * edge).exp());
+                if texture > 0.0 {
+                    profile *= (1.0 + texture * n.texture_at(x, y)).max(0.0);
+                }
                 signal[i] = signal[i].max((n.brightness * profile) as f32);
             });
         }
         // Source of the PSF width: a diffraction-limited spot at 20-40x spans ~1-2 px
-        // (common practice); sigma 1 px.
-        let blurred = gaussian_blur(&image2d::from_vec(w, h, signal), 1.0);
+        // (common practice); sigma 1 px by default, wider in the tissue look.
+        let blurred = gaussian_blur(&image2d::from_vec(w, h, signal), p.look.psf_sigma_px as f32);
         let bleach = (1.0 - p.bleach_per_frame).powi(t as i32);
         let mut rng = Rng::new(p.seed ^ (t as u64 + 1).wrapping_mul(0x9e37_79b9_7f4a_7c15));
         let blurred = blurred.as_slice().expect("standard layout");
@@ -196,6 +221,29 @@ impl Scene {
     }
 }
 
+/// Smoothly interpolated lattice noise in [−1, 1] for nucleus `id` and octave `octave`.
+fn value_noise(id: u32, octave: u32, u: f64, v: f64) -> f64 {
+    let (i, j) = (u.floor(), v.floor());
+    let (fu, fv) = (u - i, v - j);
+    let smooth = |f: f64| f * f * (3.0 - 2.0 * f);
+    let (su, sv) = (smooth(fu), smooth(fv));
+    let at = |di: i64, dj: i64| lattice_value(id, octave, i as i64 + di, j as i64 + dj);
+    let top = at(0, 0) + su * (at(1, 0) - at(0, 0));
+    let bottom = at(0, 1) + su * (at(1, 1) - at(0, 1));
+    top + sv * (bottom - top)
+}
+
+/// A reproducible random value in [−1, 1] for one lattice point (SplitMix64 finaliser as the
+/// hash, as in [`Rng::new`]).
+fn lattice_value(id: u32, octave: u32, i: i64, j: i64) -> f64 {
+    let mut x = (id as u64) << 40 ^ (octave as u64) << 36 ^ ((i as u64) << 18) ^ (j as u64 & 0x3_ffff);
+    x = x.wrapping_add(0x9e37_79b9_7f4a_7c15);
+    x = (x ^ (x >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    x = (x ^ (x >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    x ^= x >> 31;
+    (x >> 11) as f64 / (1u64 << 52) as f64 - 1.0
+}
+
 /// Uneven illumination: a vignette falling to 65% in the corners plus a 15% left-right tilt.
 fn illumination(x: f64, y: f64) -> f64 {
     let r2 = ((x - 0.5).powi(2) + (y - 0.5).powi(2)) / 0.5;
@@ -220,26 +268,33 @@ fn for_each_pixel_near(n: &Nucleus, w: usize, h: usize, pad: f64, mut f: impl Fn
 
 fn new_nucleus(rng: &mut Rng, p: &SynthParams, m: &Motion, next_id: &mut u32, at: Option<(f64, f64)>) -> Nucleus {
     let r = 0.5 * p.diameter_px * (1.0 + 0.08 * rng.normal()).clamp(0.75, 1.25);
-    let aspect = (1.0 + 0.15 * rng.normal().abs()).min(1.5);
+    let aspect = (1.0 + 0.15 * rng.normal().abs()).min(p.look.max_axis_ratio);
     let (x, y) = at.unwrap_or_else(|| {
         let (ylo, yhi) = m.band.unwrap_or((0.0, p.height as f64));
         (rng.range(0.0, p.width as f64), rng.range(ylo + r, yhi - r))
     });
     let id = *next_id;
     *next_id += 1;
-    Nucleus {
+    let mut n = Nucleus {
         id,
         x,
         y,
         a: r * aspect.sqrt(),
         b: r / aspect.sqrt(),
         angle: rng.range(0.0, std::f64::consts::PI),
-        brightness: p.signal_photons * (0.25 * rng.normal()).exp(),
+        brightness: p.signal_photons * (p.look.brightness_spread * rng.normal()).exp(),
         hidden: false,
         vx: m.drift_x,
         vy: 0.0,
         adult_radius: r,
+    };
+    if let Some(walk) = p.motion {
+        // Start from the walk's stationary velocity distribution.
+        let sd = walk.component_sd();
+        n.vx += sd * rng.normal();
+        n.vy = sd * rng.normal();
     }
+    n
 }
 
 /// Daughters are 0.75 of the mother's radius (about 0.56 of her area, our own choice within
@@ -338,6 +393,17 @@ fn replenish(cells: &mut Vec<Nucleus>, rng: &mut Rng, p: &SynthParams, m: &Motio
             },
         };
         let mut n = new_nucleus(rng, p, m, next_id, Some(at));
+        if p.motion.is_some() {
+            // Keep the drawn speed, pointed inward across the border it enters by.
+            n.vx = enter_inward(n.vx - m.drift_x, at.0, w) + m.drift_x;
+            n.vy = enter_inward(n.vy, at.1, h);
+            if cells.iter().all(|c| far_enough(c, &n, m.separation)) {
+                cells.push(n);
+            } else {
+                *next_id -= 1;
+            }
+            continue;
+        }
         // Enter moving inward.
         n.vx = m.drift_x
             + if at.0 < 0.0 {
@@ -359,6 +425,18 @@ fn replenish(cells: &mut Vec<Nucleus>, rng: &mut Rng, p: &SynthParams, m: &Motio
         } else {
             *next_id -= 1;
         }
+    }
+}
+
+/// A velocity component of a nucleus entering at coordinate `at` of a side `0..extent`:
+/// pointed inward when it enters across that side's border, unchanged otherwise.
+fn enter_inward(v: f64, at: f64, extent: f64) -> f64 {
+    if at < 0.0 {
+        v.abs()
+    } else if at > extent {
+        -v.abs()
+    } else {
+        v
     }
 }
 

@@ -1,8 +1,8 @@
 //! Shared by the integration tests that track synthetic recordings.
 
-use caravan::link::online::LinkParams;
+use caravan::link::LinkOptions;
 use caravan::params::SegmentParams;
-use caravan::pipeline::{run_recording, DiameterSource, SegmentOutputs};
+use caravan::pipeline::{resolve_diameter, run_recording, SegmentOutputs};
 use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{write_recording, SynthParams};
 use std::path::PathBuf;
@@ -19,8 +19,9 @@ pub struct TrackedScene {
     pub run: PathBuf,
 }
 
-/// Synthesizes `p` and tracks it with `link` at the true diameter (no movie).
-pub fn track_synthetic(p: &SynthParams, link: LinkParams) -> TrackedScene {
+/// Synthesizes `p` and tracks it with `link` as a user would: the diameter estimated from the
+/// recording, everything else at its defaults (no movie).
+pub fn track_synthetic(p: &SynthParams, link: LinkOptions) -> TrackedScene {
     let dir = tempfile::tempdir().unwrap();
     let syn = dir.path().join("syn");
     let synth = write_recording(&syn, p).unwrap();
@@ -34,14 +35,8 @@ pub fn track_synthetic(p: &SynthParams, link: LinkParams) -> TrackedScene {
         resume: false,
     };
     let run = dir.path().join("run");
-    run_recording(
-        &mut stack,
-        DiameterSource::Given(p.diameter_px),
-        &SegmentParams::for_diameter(p.diameter_px),
-        &run,
-        &outputs,
-        "test",
-    )
-    .unwrap();
+    let diameter = resolve_diameter(&mut stack, None, &SegmentParams::for_diameter).unwrap();
+    let params = SegmentParams::for_diameter(diameter.px());
+    run_recording(&mut stack, diameter, &params, &run, &outputs, "test").unwrap();
     TrackedScene { _dir: dir, syn, run }
 }

@@ -6,7 +6,10 @@ usage: check_outputs.py SYNTH_DIR SEGMENT_DIR PREVIEW_PNG
 - truth.csv: every truth point is the centroid of its label in truth_labels.tif (numpy).
 - detections.csv: every row agrees with skimage.measure.regionprops on labels.tif and the
   recording (centroid, area, intensities, axis lengths, orientation).
-- run.json: parses, its counts agree with detections.csv, its input CRC-32 with zlib's.
+- run.json: parses, its counts agree with detections.csv, its input CRC-32 with zlib's; its
+  verdict agrees with figures recomputed here from detections.csv and tracks.csv (crowding,
+  small objects, short tracks) by the limits the README states, and is the worst level of its
+  findings.
 - the preview: Pillow opens it as an RGB PNG of the frame size.
 """
 import csv
@@ -101,6 +104,25 @@ assert run["counts"]["tracks"] == len(per_track)
 import zlib
 with open(f"{syn}/recording.tif", "rb") as f:
     assert run["input"]["crc32"] == f"{zlib.crc32(f.read()):08x}", run["input"]["crc32"]
+
+# The verdict (README, "the run's verdict"): findings recomputed from the tables.
+verdict = run["verdict"]
+found = {f["check"]: f["level"] for f in verdict["findings"]}
+levels = ["ok", "doubtful", "failed"]
+worst = max((levels.index(f["level"]) for f in verdict["findings"]), default=0)
+assert verdict["verdict"] == levels[worst], verdict
+diameter = run["parameters"]["diameter"]["px"]
+per_frame = sorted(sum(1 for d in dets if int(d["frame"]) == t) for t in range(T))
+coverage = per_frame[(T - 1) // 2] * math.pi * diameter**2 / 4 / (W * H)
+assert ("crowding" in found) == (coverage > 0.6), (coverage, found)
+min_area = run["parameters"]["segment"]["min_area_px"]
+small = sum(1 for d in dets if int(d["area_px"]) <= 1.5 * min_area) / len(dets)
+assert ("small_objects" in found) == (small > 0.15), (small, found)
+points = {}
+for r in tracks:
+    points[r["track_id"]] = points.get(r["track_id"], 0) + 1
+short = sum(1 for n in points.values() if n < 10) / len(points)
+assert ("short_tracks" in found) == (short > 0.5 and T >= 20), (short, T, found)
 
 movie = Image.open(f"{seg}/qc_movie.gif")
 assert movie.format == "GIF" and movie.size == (W, H) and movie.n_frames == T, (movie.format, movie.size, movie.n_frames)
