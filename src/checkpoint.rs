@@ -26,6 +26,9 @@ pub struct FrameRecord {
     /// NaN or infinite pixels replaced before segmentation.
     #[serde(default)]
     pub nonfinite_pixels: usize,
+    /// What the size filter dropped or cut.
+    #[serde(default)]
+    pub size_filter: crate::segment::SizeFilterCounts,
 }
 
 /// What a checkpoint must match to be resumed: the same input and the same parameters.
@@ -245,6 +248,7 @@ mod tests {
             threshold: Some(0.1 + frame as f64 / 3.0),
             detections: Vec::new(),
             nonfinite_pixels: frame,
+            size_filter: Default::default(),
         }
     }
 

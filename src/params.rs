@@ -176,7 +176,9 @@ pub struct SegmentParams {
     pub background: BackgroundMethod,
     /// Gaussian smoothing sigma in pixels (default: diameter / 10, at least 1).
     pub smoothing_sigma_px: f64,
-    /// h of the h-maxima seeds, in pixels of distance (default: 0.04 x diameter, at least 0.5).
+    /// Smallest dynamic of a seed, in pixels of (intensity-weighted) distance (default: 0.01 x
+    /// diameter, at least 0.1; the frame's noise raises it where nuclei are dim, see
+    /// `segment::split`).
     pub seed_h_px: f64,
     /// Gaussian sigma applied to the distance map before seeding (default: diameter / 14).
     pub distance_smoothing_px: f64,
@@ -195,7 +197,7 @@ impl SegmentParams {
             threshold: ThresholdMethod::Otsu,
             background: BackgroundMethod::Tophat,
             smoothing_sigma_px: (diameter_px / 10.0).max(1.0),
-            seed_h_px: (0.04 * diameter_px).max(0.5),
+            seed_h_px: (0.01 * diameter_px).max(0.1),
             distance_smoothing_px: diameter_px / 14.0,
             min_area_px: (0.2 * disc).max(4.0),
             max_area_px: 5.0 * disc,

@@ -253,6 +253,8 @@ pub struct FrameSummary {
     pub objects: usize,
     /// NaN or infinite pixels replaced before segmentation.
     pub nonfinite_pixels: usize,
+    /// Objects the size filter dropped (too small) or cut (too large).
+    pub size_filter: crate::segment::SizeFilterCounts,
 }
 
 /// What a `segment` or `track` run produced.
@@ -380,6 +382,7 @@ pub fn run_recording(
             threshold: seg.threshold.is_finite().then_some(seg.threshold),
             detections: seg.detections,
             nonfinite_pixels: seg.nonfinite_pixels,
+            size_filter: seg.size_filter,
         };
         if let Some(c) = checkpoint.as_mut() {
             c.record(&record, || spool.as_mut().map_or(Ok(0), |s| s.flushed_len()))?;
@@ -659,6 +662,7 @@ impl FirstPass {
             threshold: record.threshold,
             objects: record.detections.len(),
             nonfinite_pixels: record.nonfinite_pixels,
+            size_filter: record.size_filter,
         });
         if self.linking {
             let points: Vec<[f64; 2]> = record.detections.iter().map(|d| [d.x, d.y]).collect();
@@ -876,6 +880,7 @@ mod tests {
                 threshold: None,
                 objects,
                 nonfinite_pixels: 0,
+                size_filter: Default::default(),
             })
             .collect();
         assert_eq!(count_jumps(&frames), vec![2, 4]);

@@ -98,6 +98,7 @@ pub fn write_shard(
                 threshold: seg.threshold.is_finite().then_some(seg.threshold),
                 detections: seg.detections,
                 nonfinite_pixels: seg.nonfinite_pixels,
+                size_filter: seg.size_filter,
             };
             writeln!(log, "{}", serde_json::to_string(&record).expect("serialisable"))
                 .map_err(|e| Error::output(&log_temp, e))?;

@@ -334,11 +334,70 @@ fn score_writes_json_that_an_independent_reader_confirms() {
     let stderr = String::from_utf8_lossy(&bad.stderr);
     assert_eq!(stderr.trim().lines().count(), 1, "{stderr}");
     assert!(stderr.contains("nothing"), "{stderr}");
+    // A crowded recording with pressed nuclei and dropouts, tracked without gap closing, so
+    // that tracks break for every reason the breakdown names.
+    let hard = dir.path().join("hard");
+    let hard_run = dir.path().join("hard_run");
+    let options = [
+        "--scenario",
+        "crowded",
+        "--size",
+        "192x192",
+        "--frames",
+        "30",
+        "--look",
+        "tissue",
+        "--separation",
+        "0.75",
+        "--dropouts",
+        "0.05",
+        "--divisions",
+        "0.01",
+        "--seed",
+        "10",
+    ];
+    let hard_rec = synth_into(&hard, &options);
+    let args = [
+        "track",
+        &hard_rec,
+        "-o",
+        hard_run.to_str().unwrap(),
+        "--max-gap",
+        "0",
+        "--no-movie",
+        "--no-analysis",
+    ];
+    ok(&caravan(&args, "2"));
+    let args = [
+        "score",
+        "--truth",
+        hard.to_str().unwrap(),
+        "--tracks",
+        hard_run.to_str().unwrap(),
+    ];
+    ok(&caravan(&args, "1"));
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(hard_run.join("score.json")).unwrap()).unwrap();
+    let events = &json["score"]["breaks"]["events"];
+    assert!(
+        events["missed_detection"].as_u64().unwrap() > 0 && events["wrong_link"].as_u64().unwrap() > 0,
+        "{events}"
+    );
     let Some(python) = ci_python() else { return };
     run_python(
         &python,
         "check_score.py",
         &[syn_s, run_s, run.join("score.json").to_str().unwrap()],
+    );
+    let hard_score = hard_run.join("score.json");
+    run_python(
+        &python,
+        "check_score.py",
+        &[
+            hard.to_str().unwrap(),
+            hard_run.to_str().unwrap(),
+            hard_score.to_str().unwrap(),
+        ],
     );
 }
 

@@ -195,7 +195,7 @@ pub(crate) struct SegmentationArgs {
     /// Gaussian smoothing sigma in px (default: diameter/10, at least 1).
     #[arg(long)]
     smoothing: Option<f64>,
-    /// Seed height h in px of the smoothed distance map: smaller splits more (default: 0.04 x diameter, at least 0.5).
+    /// Smallest seed dynamic in px of the intensity-weighted distance map: smaller splits more (default: 0.01 x diameter, at least 0.1; raised by the frame's noise).
     #[arg(long)]
     seed_h: Option<f64>,
     /// Smallest object kept, px (default: 20% of a disc of the diameter).

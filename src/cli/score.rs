@@ -79,4 +79,14 @@ pub fn print_score(s: &TrackingScore) {
         "divisions  {} of {} recovered, {} spurious of {} found",
         d.recovered, d.reference_events, d.spurious, d.found_events
     );
+    let (b, m) = (&s.breaks, &s.breaks.by_main_cause);
+    println!(
+        "breaks     {} tracks not mostly tracked, by main cause: missed detection {}, merged with a neighbour {}, wrong link {}, division missed {}, division spurious {}",
+        b.tracks_not_mostly_tracked,
+        m.missed_detection,
+        m.merged_with_neighbour,
+        m.wrong_link,
+        m.division_missed,
+        m.division_spurious
+    );
 }

@@ -67,6 +67,17 @@ pub struct SynthArgs {
     /// Persistence time of that walk, frames.
     #[arg(long, requires = "speed")]
     persistence: Option<f64>,
+    /// Frames before a division during which the mother rounds up and brightens (0: divides
+    /// at once).
+    #[arg(long, default_value_t = 0)]
+    mitosis_frames: usize,
+    /// Probability per nucleus and frame of dimming to 35% for one frame (still in the truth).
+    #[arg(long, default_value_t = 0.0)]
+    dimming: f64,
+    /// Closest approach of two nuclei's centres as a share of the sum of their radii (default:
+    /// the scenario's, 0.85 for crowded); below 1 nuclei press into each other.
+    #[arg(long)]
+    separation: Option<f64>,
     /// Seed of every random choice.
     #[arg(long, default_value_t = 1)]
     seed: u64,
@@ -111,6 +122,9 @@ pub fn run(args: SynthArgs) -> Result<()> {
         ));
     }
     p.bleach_per_frame = args.bleach;
+    p.separation = args.separation;
+    p.mitosis_frames = args.mitosis_frames;
+    p.dimming_rate = args.dimming;
     p.seed = args.seed;
     p.compression = args.compression;
     let out = write_recording(&args.output, &p)?;

@@ -2,6 +2,7 @@
 //! Hungarian assignment) and IoU matching of label images; the tracking measures are in
 //! [`tracking`].
 
+pub mod breaks;
 pub mod files;
 pub mod tracking;
 

@@ -11,15 +11,17 @@ use serde::Serialize;
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 /// A vertex of a tracking graph: (frame, track id).
-type Vertex = (usize, u32);
+pub(crate) type Vertex = (usize, u32);
 
 /// Per-frame matching of result points to reference points.
-struct FrameMatching {
+pub(crate) struct FrameMatching {
     /// Reference vertex of each matched result vertex.
-    truth_of: HashMap<Vertex, Vertex>,
+    pub(crate) truth_of: HashMap<Vertex, Vertex>,
     /// Reference vertices not matched one to one but lying within the radius of a result point
     /// that is matched to another reference: that result point covers several references.
     covered_twice: usize,
+    /// Those reference vertices.
+    pub(crate) merged: BTreeSet<Vertex>,
     counts: MatchCounts,
 }
 
@@ -42,6 +44,7 @@ fn match_frames(truth: &[TrackPoint], found: &[TrackPoint], radius: f64) -> Fram
     let mut out = FrameMatching {
         truth_of: HashMap::new(),
         covered_twice: 0,
+        merged: BTreeSet::new(),
         counts: MatchCounts::default(),
     };
     for t in frames {
@@ -64,6 +67,7 @@ fn match_frames(truth: &[TrackPoint], found: &[TrackPoint], radius: f64) -> Fram
                 .any(|(j, f)| matched_found[j] && (f.x - r.x).powi(2) + (f.y - r.y).powi(2) <= radius * radius);
             if near_matched {
                 out.covered_twice += 1;
+                out.merged.insert((t, r.track_id));
                 matched_truth[i] = true;
             }
         }
@@ -464,6 +468,8 @@ pub struct TrackingScore {
     pub divisions_recovered_fraction: f64,
     /// Spurious / found divisions.
     pub divisions_spurious_fraction: f64,
+    /// What broke the reference tracks that are not mostly tracked.
+    pub breaks: super::breaks::TrackBreaks,
 }
 
 /// Scores `found` tracks against `truth` tracks, matching points within `radius` px.
@@ -488,6 +494,7 @@ pub fn score_tracks(truth: &[TrackPoint], found: &[TrackPoint], radius: f64) -> 
         link_recall: links.recall(),
         links,
         tracks: coverage(truth, &matching),
+        breaks: super::breaks::track_breaks(truth, found, &matching),
         divisions_recovered_fraction: divisions.recovered_fraction(),
         divisions_spurious_fraction: divisions.spurious_fraction(),
         divisions,
@@ -495,10 +502,11 @@ pub fn score_tracks(truth: &[TrackPoint], found: &[TrackPoint], radius: f64) -> 
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
 
-    fn p(track_id: u32, parent_id: Option<u32>, frame: usize, x: f64, y: f64) -> TrackPoint {
+    /// A track point, for hand-built cases (also used by the breakdown's tests).
+    pub(crate) fn p(track_id: u32, parent_id: Option<u32>, frame: usize, x: f64, y: f64) -> TrackPoint {
         TrackPoint {
             track_id,
             parent_id,

@@ -77,6 +77,12 @@ pub struct SynthParams {
     pub division_rate: f64,
     /// Probability per nucleus and frame of being missed for one frame (out of focus).
     pub dropout_rate: f64,
+    /// Frames before a division during which the mother rounds up (axis ratio 1, 85% of her
+    /// radius) and brightens (1.6x: condensed chromatin); 0 = she divides at once.
+    pub mitosis_frames: usize,
+    /// Probability per nucleus and frame of dimming to 35% of its brightness for one frame
+    /// (drifting out of focus), still present in the truth.
+    pub dimming_rate: f64,
     /// Seed of every random choice.
     pub seed: u64,
     /// Compression of the written recording.
@@ -86,6 +92,10 @@ pub struct SynthParams {
     pub look: Look,
     /// Motion as a persistent random walk of a given speed, instead of the scenario's own.
     pub motion: Option<PersistentMotion>,
+    /// Closest approach of two nuclei's centres as a share of the sum of their radii, instead
+    /// of the scenario's own (dish 1.2, crowded 0.85, stripe 1.0): below 1 nuclei press into
+    /// each other, as in packed tissue.
+    pub separation: Option<f64>,
 }
 
 /// The appearance of nuclei: what tissue has and smooth synthetic discs lack.
@@ -102,6 +112,12 @@ pub struct Look {
     /// Largest ratio of the long to the short axis of a nucleus (the ratio is 1 + 0.15·|N(0,1)|,
     /// capped here).
     pub max_axis_ratio: f64,
+    /// Where two nuclei press into each other, each pixel belongs to the nucleus whose boundary
+    /// is farther away (as in the truth labels), and the interface between them is dimmed by
+    /// this share before blurring (the nuclear envelopes and the gap between them: a darker
+    /// seam). 0: overlapping nuclei are drawn one over the other (the brighter wins), with no
+    /// seam.
+    pub seam_depth: f64,
 }
 
 impl Look {
@@ -111,14 +127,17 @@ impl Look {
         psf_sigma_px: 1.0,
         brightness_spread: 0.25,
         max_axis_ratio: 1.5,
+        seam_depth: 0.0,
     };
     /// Closer to nuclei in tissue: textured chromatin, a wider point-spread function (σ 1.2 px),
-    /// brightness varying by a factor of about 1.35 (lognormal σ 0.3) and elongation up to 1.3.
+    /// brightness varying by a factor of about 1.35 (lognormal σ 0.3), elongation up to 1.3,
+    /// and pressed nuclei divided by a seam dimmed by half.
     pub const TISSUE: Look = Look {
         texture: 0.3,
         psf_sigma_px: 1.2,
         brightness_spread: 0.3,
         max_axis_ratio: 1.3,
+        seam_depth: 0.5,
     };
 }
 
@@ -184,10 +203,13 @@ impl SynthParams {
             drift_px_per_frame: if scenario == Scenario::Stripe { 2.5 } else { 0.0 },
             division_rate: 0.0,
             dropout_rate: 0.0,
+            mitosis_frames: 0,
+            dimming_rate: 0.0,
             seed: 1,
             compression: TiffCompression::Deflate,
             look: Look::PLAIN,
             motion: None,
+            separation: None,
         }
     }
 
@@ -217,6 +239,13 @@ impl SynthParams {
             ));
         }
         let rate_ok = |r: f64| (0.0..=0.5).contains(&r);
+        if !rate_ok(self.dimming_rate) || self.mitosis_frames > 10 {
+            return Err(Error::parameter(
+                "--dimming/--mitosis-frames",
+                format!("{}/{}", self.dimming_rate, self.mitosis_frames),
+                "dimming from 0 to 0.5 per frame, mitosis at most 10 frames",
+            ));
+        }
         if !rate_ok(self.division_rate) || !rate_ok(self.dropout_rate) {
             return Err(Error::parameter(
                 "--divisions/--dropouts",
@@ -236,12 +265,22 @@ impl SynthParams {
             || !(0.3..=5.0).contains(&look.psf_sigma_px)
             || !(0.0..=1.5).contains(&look.brightness_spread)
             || !(1.0..=3.0).contains(&look.max_axis_ratio)
+            || !(0.0..=1.0).contains(&look.seam_depth)
         {
             return Err(Error::parameter(
                 "--texture/--psf/--brightness-spread/--max-axis-ratio",
                 format!("{look:?}"),
                 "texture 0 to 1, PSF sigma 0.3 to 5 px, spread 0 to 1.5, axis ratio 1 to 3",
             ));
+        }
+        if let Some(sep) = self.separation {
+            if !(0.5..=3.0).contains(&sep) {
+                return Err(Error::parameter(
+                    "--separation",
+                    sep,
+                    "must be from 0.5 to 3 (a share of the sum of two radii)",
+                ));
+            }
         }
         if let Some(m) = self.motion {
             let speed_ok = (0.0..=2.0 * self.diameter_px).contains(&m.speed_px_per_frame);

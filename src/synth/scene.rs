@@ -30,6 +30,10 @@ pub struct Nucleus {
     vy: f64,
     /// Radius the nucleus grows back to after a division, px.
     adult_radius: f64,
+    /// In mitosis: frames left before the division, and the axes to divide with.
+    mitosis: Option<(usize, f64, f64)>,
+    /// Drawn at this share of its brightness in this frame (1 = as usual).
+    dimmed: f64,
 }
 
 impl Nucleus {
@@ -76,6 +80,9 @@ struct Motion {
 
 fn motion(p: &SynthParams) -> Motion {
     let mut m = scenario_motion(p);
+    if let Some(sep) = p.separation {
+        m.separation = sep;
+    }
     if let Some(walk) = p.motion {
         let a = walk.memory();
         m.persistence = a;
@@ -137,12 +144,15 @@ impl Scene {
             step(&mut cells, &mut rng, &m);
             cells.retain(|c| inside_margin(c, params));
             if params.division_rate > 0.0 {
-                divide(&mut cells, &mut rng, params.division_rate, &mut next_id, &mut parents);
+                divide(&mut cells, &mut rng, params, &mut next_id, &mut parents);
             }
             replenish(&mut cells, &mut rng, params, &m, &mut next_id);
             separate(&mut cells, &m);
             if params.dropout_rate > 0.0 {
                 drop_out(&mut cells, &mut rng, params.dropout_rate);
+            }
+            if params.dimming_rate > 0.0 {
+                dim(&mut cells, &mut rng, params.dimming_rate);
             }
             frames.push(cells.clone());
         }
@@ -162,19 +172,11 @@ impl Scene {
     pub fn render(&self, t: usize) -> Vec<u16> {
         let p = &self.params;
         let (w, h) = (p.width, p.height);
-        let mut signal = vec![0f32; w * h];
-        let texture = p.look.texture;
-        for n in self.frames[t].iter().filter(|n| !n.hidden) {
-            let edge = 1.5 * n.radius();
-            for_each_pixel_near(n, w, h, 2.5, |i, x, y| {
-                let r = n.normalised_radius(x, y);
-                let mut profile = 1.0 / (1.0 + ((r - 1.0) * edge).exp());
-                if texture > 0.0 {
-                    profile *= (1.0 + texture * n.texture_at(x, y)).max(0.0);
-                }
-                signal[i] = signal[i].max((n.brightness * profile) as f32);
-            });
-        }
+        let signal = if p.look.seam_depth > 0.0 {
+            self.pressed_signal(t)
+        } else {
+            self.overlaid_signal(t)
+        };
         // Source of the PSF width: a diffraction-limited spot at 20-40x spans ~1-2 px
         // (common practice); sigma 1 px by default, wider in the tissue look.
         let blurred = gaussian_blur(&image2d::from_vec(w, h, signal), p.look.psf_sigma_px as f32);
@@ -191,6 +193,70 @@ impl Scene {
                     .clamp(0.0, 65535.0) as u16
             })
             .collect()
+    }
+
+    /// Noise-free signal of frame `t` with overlapping nuclei drawn over each other (the
+    /// brighter wins).
+    fn overlaid_signal(&self, t: usize) -> Vec<f32> {
+        let (w, h) = (self.params.width, self.params.height);
+        let mut signal = vec![0f32; w * h];
+        for n in self.frames[t].iter().filter(|n| !n.hidden) {
+            for_each_pixel_near(n, w, h, 2.5, |i, x, y| {
+                signal[i] = signal[i].max(self.nucleus_value(n, x, y) as f32);
+            });
+        }
+        signal
+    }
+
+    /// Noise-free signal of frame `t` with pressed nuclei: each pixel drawn by the nucleus
+    /// whose boundary is farther away (the truth labels' rule), dimmed by `seam_depth` at the
+    /// interface with the runner-up, falling off over about a pixel (a Gaussian of the
+    /// distance to the interface, which is about (r₂ − r₁)·radius/2 for normalised radii r₁ ≤
+    /// r₂).
+    fn pressed_signal(&self, t: usize) -> Vec<f32> {
+        let (w, h) = (self.params.width, self.params.height);
+        let nuclei: Vec<&Nucleus> = self.frames[t].iter().filter(|n| !n.hidden).collect();
+        // Per pixel: (r₁, owner), then r₂.
+        let mut first = vec![(f64::INFINITY, usize::MAX); w * h];
+        let mut second = vec![f64::INFINITY; w * h];
+        for (k, n) in nuclei.iter().enumerate() {
+            for_each_pixel_near(n, w, h, 2.5, |i, x, y| {
+                let r = n.normalised_radius(x, y);
+                if r < first[i].0 {
+                    second[i] = first[i].0;
+                    first[i] = (r, k);
+                } else if r < second[i] {
+                    second[i] = r;
+                }
+            });
+        }
+        let depth = self.params.look.seam_depth;
+        (0..w * h)
+            .map(|i| {
+                let (r1, k) = first[i];
+                if k == usize::MAX {
+                    return 0.0;
+                }
+                let n = nuclei[k];
+                let (x, y) = ((i % w) as f64, (i / w) as f64);
+                let to_interface = (second[i] - r1) * n.radius() / 2.0;
+                let seam = 1.0 - depth * (-(to_interface / 0.75).powi(2)).exp();
+                (self.nucleus_value(n, x, y) * seam) as f32
+            })
+            .collect()
+    }
+
+    /// The brightness of nucleus `n` at pixel (x, y): a soft-edged ellipse, textured.
+    fn nucleus_value(&self, n: &Nucleus, x: f64, y: f64) -> f64 {
+        let r = n.normalised_radius(x, y);
+        let edge = 1.5 * n.radius();
+        let mut profile = 1.0 / (1.0 + ((r - 1.0) * edge).exp());
+        let texture = self.params.look.texture;
+        if texture > 0.0 {
+            profile *= (1.0 + texture * n.texture_at(x, y)).max(0.0);
+        }
+        let mitotic = if n.mitosis.is_some() { MITOTIC_BRIGHTNESS } else { 1.0 };
+        n.brightness * mitotic * n.dimmed * profile
     }
 
     /// The truth label image of frame `t`: each pixel inside a nucleus carries its track id;
@@ -287,6 +353,8 @@ fn new_nucleus(rng: &mut Rng, p: &SynthParams, m: &Motion, next_id: &mut u32, at
         vx: m.drift_x,
         vy: 0.0,
         adult_radius: r,
+        mitosis: None,
+        dimmed: 1.0,
     };
     if let Some(walk) = p.motion {
         // Start from the walk's stationary velocity distribution.
@@ -306,16 +374,37 @@ const DAUGHTER_RADIUS: f64 = 0.75;
 fn divide(
     cells: &mut Vec<Nucleus>,
     rng: &mut Rng,
-    rate: f64,
+    p: &SynthParams,
     next_id: &mut u32,
     parents: &mut std::collections::BTreeMap<u32, u32>,
 ) {
     let mut out = Vec::with_capacity(cells.len() + 4);
-    for c in cells.drain(..) {
-        if c.hidden || rng.uniform() >= rate {
-            grow(&mut out, c);
-            continue;
+    for mut c in cells.drain(..) {
+        match c.mitosis {
+            Some((left, a, b)) if left > 1 => {
+                c.mitosis = Some((left - 1, a, b));
+                out.push(c);
+                continue;
+            }
+            Some((_, a, b)) => {
+                // Divide now, with the axes she had before rounding up.
+                (c.a, c.b) = (a, b);
+            }
+            None => {
+                if c.hidden || rng.uniform() >= p.division_rate {
+                    grow(&mut out, c);
+                    continue;
+                }
+                if p.mitosis_frames > 0 {
+                    let round = MITOTIC_RADIUS * c.radius();
+                    c.mitosis = Some((p.mitosis_frames, c.a, c.b));
+                    (c.a, c.b) = (round, round);
+                    out.push(c);
+                    continue;
+                }
+            }
         }
+        c.mitosis = None;
         let axis = rng.range(0.0, std::f64::consts::PI);
         let offset = 0.8 * DAUGHTER_RADIUS * c.radius();
         for side in [-1.0, 1.0] {
@@ -333,6 +422,23 @@ fn divide(
         }
     }
     *cells = out;
+}
+
+/// A mother in mitosis is round with 85% of her radius and 1.6x as bright (our own choices
+/// within what condensed chromatin looks like in a nuclear marker).
+const MITOTIC_RADIUS: f64 = 0.85;
+const MITOTIC_BRIGHTNESS: f64 = 1.6;
+
+/// One-frame dimming: each nucleus is drawn at 35% of its brightness with probability `rate`,
+/// never twice in a row.
+fn dim(cells: &mut [Nucleus], rng: &mut Rng, rate: f64) {
+    for c in cells.iter_mut() {
+        c.dimmed = if c.dimmed == 1.0 && rng.uniform() < rate {
+            0.35
+        } else {
+            1.0
+        };
+    }
 }
 
 fn grow(out: &mut Vec<Nucleus>, mut c: Nucleus) {

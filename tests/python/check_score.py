@@ -8,6 +8,10 @@ usage: check_score.py SYNTH_DIR RUN_DIR SCORE_JSON
 - TRA and DET recomputed from the AOGM counts with the published weights (Matula et al. 2015:
   NS 5, FN 10, FP 1, ED 1, EA 1.5, EC 1), MOTA from the CLEAR-MOT counts (Bernardin &
   Stiefelhagen 2008).
+- The breaks: reference tracks not mostly tracked (no one result track on 80% of their points)
+  and the cause of each event along them (missed, merged with a neighbour, wrong link,
+  division missed or spurious), rederived from the same per-frame matching as above; both the
+  event totals and the main cause per track must agree with score.json.
 - run.json divisions agree with tracks.csv: each daughter's parent_id is the mother, the
   mother's last frame is the event frame, each daughter starts one frame later.
 """
@@ -66,6 +70,76 @@ assert abs((1 - min(aogmd, 10 * c["reference_vertices"]) / (10 * c["reference_ve
 mot = s["clear_mot"]
 errors = mot["false_negatives"] + mot["false_positives"] + mot["identity_switches"]
 assert abs(1 - errors / mot["reference_points"] - mot["mota"]) < 1e-9
+
+def tracked_points(path):
+    out = defaultdict(list)  # frame -> [(track_id, parent_id, x, y)]
+    with open(path, newline="") as f:
+        for row in csv.DictReader(f):
+            x, y = float(row["x"]), float(row["y"])
+            if m <= x <= W - 1 - m and m <= y <= H - 1 - m:
+                parent = int(row["parent_id"]) if row["parent_id"] else None
+                out[int(row["frame"])].append((int(row["track_id"]), parent, x, y))
+    return out
+
+
+tp_pts, fp_pts = tracked_points(f"{syn}/truth.csv"), tracked_points(f"{run}/tracks.csv")
+found_of, merged = {}, set()
+for t in set(tp_pts) | set(fp_pts):
+    a, b = tp_pts.get(t, []), fp_pts.get(t, [])
+    matched_b = set()
+    if a and b:
+        d = np.array([[np.hypot(p[2] - q[2], p[3] - q[3]) for q in b] for p in a])
+        cost = np.where(d <= r, d, 1e6)
+        for i, j in zip(*linear_sum_assignment(cost)):
+            if cost[i, j] < 1e6:
+                found_of[(t, a[i][0])] = b[j][0]
+                matched_b.add(j)
+    for p in a:
+        if (t, p[0]) not in found_of and any(j in matched_b and np.hypot(p[2] - q[2], p[3] - q[3]) <= r for j, q in enumerate(b)):
+            merged.add((t, p[0]))
+found_first, found_parent = {}, {}
+for t, pts in fp_pts.items():
+    for tid, parent, _, _ in pts:
+        found_first[tid] = min(found_first.get(tid, t), t)
+        if parent is not None:
+            found_parent[tid] = parent
+by_track = defaultdict(list)
+for t, pts in tp_pts.items():
+    for tid, parent, _, _ in pts:
+        by_track[tid].append((t, parent))
+causes = ["missed_detection", "merged_with_neighbour", "wrong_link", "division_missed", "division_spurious"]
+events_total = dict.fromkeys(causes, 0)
+main_total = dict.fromkeys(causes, 0)
+not_mostly = 0
+for tid, pts in by_track.items():
+    pts.sort()
+    cover = defaultdict(int)
+    for t, _ in pts:
+        if (t, tid) in found_of:
+            cover[found_of[(t, tid)]] += 1
+    if max(cover.values(), default=0) >= 0.8 * len(pts):
+        continue
+    not_mostly += 1
+    events, previous = [], None
+    for k, (t, parent) in enumerate(pts):
+        f = found_of.get((t, tid))
+        if f is None:
+            events.append("merged_with_neighbour" if (t, tid) in merged else "missed_detection")
+            continue
+        if previous is not None and previous != f:
+            events.append("division_spurious" if found_parent.get(f) == previous else "wrong_link")
+        elif previous is None and k == 0 and parent is not None and found_first[f] < t:
+            events.append("division_missed")
+        previous = f
+    for e in events:
+        events_total[e] += 1
+    if events:
+        # The cause with the most events; ties to the earliest.
+        main_total[max(causes, key=lambda c: (events.count(c), -events.index(c) if c in events else 0))] += 1
+b = s["breaks"]
+assert b["tracks_not_mostly_tracked"] == not_mostly, (b, not_mostly)
+assert b["events"] == events_total, (b["events"], events_total)
+assert b["by_main_cause"] == main_total, (b["by_main_cause"], main_total)
 
 run_record = json.load(open(f"{run}/run.json"))
 tracks = defaultdict(list)

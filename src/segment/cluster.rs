@@ -1,0 +1,161 @@
+//! Objects too large to be one nucleus: clusters that the seeds could not divide. They are
+//! cut into as many parts as nuclei of the expected size they could hold, never dropped, so a
+//! packed group of nuclei leaves detections (perhaps imperfectly outlined) instead of a hole.
+
+/// Cuts every object of `labels` (zero outside `pixels`) whose area exceeds `max_area` into
+/// `k = round(area / expected_area)` parts (at least 2) by k-means on its pixel coordinates;
+/// the new parts get labels above the current highest. Returns how many objects were cut.
+///
+/// # Method
+/// k-means by Lloyd's iterations, S. P. Lloyd (1982), "Least squares quantization in PCM",
+/// IEEE Trans. Inf. Theory 28(2):129–137, doi:10.1109/TIT.1982.1056489, started from the
+/// farthest-point (maximin) choice of T. F. Gonzalez (1985), "Clustering to minimize the
+/// maximum intercluster distance", Theor. Comput. Sci. 38:293–306, so the result is
+/// deterministic. On pixel coordinates, k-means cuts a blob into compact parts of similar
+/// area, which is what nuclei of one size packed together look like; where they differ in
+/// size the cut is approximate, but each nucleus keeps a detection near its centre.
+pub fn cut_oversized(labels: &mut [u32], pixels: &[u32], width: usize, max_area: f64, expected_area: f64) -> usize {
+    let top = pixels.iter().map(|&i| labels[i as usize]).max().unwrap_or(0) as usize;
+    let mut members: Vec<Vec<u32>> = vec![Vec::new(); top + 1];
+    for &i in pixels {
+        members[labels[i as usize] as usize].push(i);
+    }
+    let mut next = top as u32;
+    let mut cut = 0;
+    for own in members.iter().skip(1) {
+        let area = own.len() as f64;
+        if area <= max_area || expected_area <= 0.0 {
+            continue;
+        }
+        let k = ((area / expected_area).round() as usize).max(2);
+        let points: Vec<[f64; 2]> = own
+            .iter()
+            .map(|&i| [(i as usize % width) as f64, (i as usize / width) as f64])
+            .collect();
+        let parts = k_means(&points, k);
+        for (&i, &part) in own.iter().zip(&parts) {
+            if part > 0 {
+                labels[i as usize] = next + part as u32;
+            }
+        }
+        next += k as u32 - 1;
+        cut += 1;
+    }
+    cut
+}
+
+/// Lloyd's k-means of `points` into `k` groups from a maximin start; returns each point's
+/// group (0..k). Stops when no point changes group, after at most 50 rounds.
+pub fn k_means(points: &[[f64; 2]], k: usize) -> Vec<usize> {
+    let mut centres = maximin_start(points, k);
+    let mut group = vec![usize::MAX; points.len()];
+    for _ in 0..50 {
+        let mut changed = false;
+        for (p, g) in points.iter().zip(group.iter_mut()) {
+            let nearest = nearest_centre(p, &centres);
+            if nearest != *g {
+                *g = nearest;
+                changed = true;
+            }
+        }
+        if !changed {
+            break;
+        }
+        let mut sums = vec![[0.0f64; 3]; centres.len()];
+        for (p, &g) in points.iter().zip(&group) {
+            sums[g][0] += p[0];
+            sums[g][1] += p[1];
+            sums[g][2] += 1.0;
+        }
+        for (c, s) in centres.iter_mut().zip(&sums) {
+            if s[2] > 0.0 {
+                *c = [s[0] / s[2], s[1] / s[2]];
+            }
+        }
+    }
+    group
+}
+
+/// The first centre is the point farthest from the centroid; each next one the point
+/// farthest from the centres chosen so far (ties: the first in order).
+fn maximin_start(points: &[[f64; 2]], k: usize) -> Vec<[f64; 2]> {
+    let n = points.len() as f64;
+    let centroid = points
+        .iter()
+        .fold([0.0, 0.0], |a, p| [a[0] + p[0] / n, a[1] + p[1] / n]);
+    let mut centres = vec![farthest(points, |p| dist2(p, &centroid))];
+    while centres.len() < k.min(points.len()) {
+        let next = farthest(points, |p| {
+            centres.iter().map(|c| dist2(p, c)).fold(f64::INFINITY, f64::min)
+        });
+        centres.push(next);
+    }
+    centres
+}
+
+fn farthest(points: &[[f64; 2]], score: impl Fn(&[f64; 2]) -> f64) -> [f64; 2] {
+    let mut best = (f64::NEG_INFINITY, points[0]);
+    for p in points {
+        let s = score(p);
+        if s > best.0 {
+            best = (s, *p);
+        }
+    }
+    best.1
+}
+
+fn nearest_centre(p: &[f64; 2], centres: &[[f64; 2]]) -> usize {
+    let mut best = (f64::INFINITY, 0);
+    for (g, c) in centres.iter().enumerate() {
+        let d = dist2(p, c);
+        if d < best.0 {
+            best = (d, g);
+        }
+    }
+    best.1
+}
+
+fn dist2(a: &[f64; 2], b: &[f64; 2]) -> f64 {
+    (a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_row_of_squares_is_cut_into_its_squares() {
+        // Source: construction. Three 10x10 squares side by side form one 30x10 object of 300
+        // px; with an expected area of 100 and a maximum of 150 it is cut into 3 parts, each
+        // exactly one square (k-means on a regular grid of three equal squares converges to
+        // their centres).
+        let (w, h) = (40, 12);
+        let mut labels = vec![0u32; w * h];
+        let mut pixels = Vec::new();
+        for y in 1..11 {
+            for x in 5..35 {
+                labels[y * w + x] = 1;
+                pixels.push((y * w + x) as u32);
+            }
+        }
+        assert_eq!(cut_oversized(&mut labels, &pixels, w, 150.0, 100.0), 1);
+        for y in 1..11 {
+            for x in 5..35 {
+                let first_of_square = labels[y * w + 5 + 10 * ((x - 5) / 10)];
+                assert_eq!(labels[y * w + x], first_of_square, "({x}, {y})");
+            }
+        }
+        let mut distinct: Vec<u32> = pixels.iter().map(|&i| labels[i as usize]).collect();
+        distinct.sort_unstable();
+        distinct.dedup();
+        assert_eq!(distinct.len(), 3);
+    }
+
+    #[test]
+    fn objects_within_the_limit_are_left_alone() {
+        let mut labels = vec![1u32; 100];
+        let pixels: Vec<u32> = (0..100).collect();
+        assert_eq!(cut_oversized(&mut labels, &pixels, 10, 100.0, 30.0), 0);
+        assert!(labels.iter().all(|&l| l == 1));
+    }
+}
