@@ -16,6 +16,7 @@
 //! | [`pipeline`] | streaming orchestration over a whole recording, progress, run records |
 //! | [`verdict`] | whether a run can be trusted: `ok`, `doubtful` or `failed`, with reasons and fixes |
 //! | [`params`] | every tunable parameter with its default, unit and valid range |
+//! | [`numeric`] | order statistics and the seeded random generator, shared by the stages |
 //!
 //! Conventions, stated once: images are indexed `(row, column)` = `(y, x)`; pixel centres sit at
 //! integer coordinates, 0-based; `x` is the column and `y` the row. Frames are numbered from 0.
@@ -27,6 +28,7 @@ pub mod checkpoint;
 pub mod error;
 pub mod image2d;
 pub mod link;
+pub mod numeric;
 pub mod output;
 pub mod params;
 pub mod pipeline;

@@ -11,6 +11,7 @@ use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
 use crate::output::{crc32_file, ensure_dir, write_atomic, AtomicFile, Staging};
+use crate::numeric::median;
 use crate::params::{Length, SegmentParams};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
 use crate::segment::diameter::{
@@ -780,20 +781,6 @@ fn overlay(tracked: &[TrackedDetection], frames: &[FrameSummary], divisions: &[D
         points,
         divisions,
     }
-}
-
-/// The median of the values (mean of the two middle ones for an even count); `None` if empty.
-pub fn median(v: &mut [f64]) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(f64::total_cmp);
-    let m = v.len();
-    Some(if m % 2 == 1 {
-        v[m / 2]
-    } else {
-        0.5 * (v[m / 2 - 1] + v[m / 2])
-    })
 }
 
 fn linking_qc(

@@ -10,7 +10,7 @@
 mod common;
 
 use caravan::link::{Divisions, LinkOptions, Prediction};
-use caravan::pipeline::median;
+use caravan::numeric::median;
 use caravan::score::files::{read_points, score_files};
 use caravan::score::tracking::TrackingScore;
 use caravan::synth::{write_recording, Scenario, SynthParams};

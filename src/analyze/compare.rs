@@ -9,7 +9,7 @@ use super::stats::{cohens_d, hierarchical_bootstrap, mann_whitney, mean_sd, quan
 use super::table::{CalibrationOverride, Filters};
 use crate::error::{Error, Result};
 use crate::output::{ensure_dir, write_atomic};
-use crate::synth::Rng;
+use crate::numeric::Rng;
 use serde::Serialize;
 use std::collections::BTreeMap;
 use std::io::Write;
@@ -342,7 +342,7 @@ fn design_warnings(
         }
     }
     let mut sizes: Vec<f64> = first.iter().map(|r| r.values.len() as f64).collect();
-    if crate::pipeline::median(&mut sizes).is_some_and(|m| m <= 1.0) {
+    if crate::numeric::median(&mut sizes).is_some_and(|m| m <= 1.0) {
         w.push("most replicates hold a single track: cells seem to be listed as replicates; the replicate is the embryo, dish or lane".into());
     }
     w

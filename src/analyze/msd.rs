@@ -284,7 +284,7 @@ pub fn autocorrelation(tracks: &[&Path], max_lag: usize, frame_interval: f64) ->
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::synth::Rng;
+    use crate::numeric::Rng;
 
     fn worked_track() -> Vec<(usize, f64, f64)> {
         [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]

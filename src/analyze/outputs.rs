@@ -3,7 +3,7 @@
 
 use super::population::Analysis;
 use super::stats::mean_sd;
-use crate::pipeline::median;
+use crate::numeric::median;
 use serde_json::{json, Map, Value};
 use std::io::{self, Write};
 

@@ -6,7 +6,7 @@ use super::collective::{fluctuations, neighbour_distance_and_density, order_para
 use super::motility::{motility, steps, Motility, Step};
 use super::msd::{anomalous_exponent, autocorrelation, fit_furth, msd, AutocorrelationPoint, FurthFit, MsdPoint, Path};
 use super::table::{Track, Units};
-use crate::pipeline::median;
+use crate::numeric::median;
 use serde::Serialize;
 use std::collections::BTreeMap;
 

@@ -1,7 +1,7 @@
 //! General statistics for comparing conditions: the normal tail, the Mann–Whitney U test, the
 //! hierarchical bootstrap, and effect sizes.
 
-use crate::synth::Rng;
+use crate::numeric::Rng;
 use serde::Serialize;
 
 /// Upper tail of the standard normal, P(Z > z) = erfc(z/√2)/2.
@@ -154,18 +154,7 @@ pub fn hierarchical_bootstrap(groups: &[Vec<f64>], resamples: usize, rng: &mut R
         .collect()
 }
 
-/// The `q` quantile (0–1) of values by linear interpolation between order statistics
-/// (numpy's default rule); `None` when empty.
-pub fn quantile(values: &[f64], q: f64) -> Option<f64> {
-    if values.is_empty() {
-        return None;
-    }
-    let mut v = values.to_vec();
-    v.sort_by(f64::total_cmp);
-    let h = q.clamp(0.0, 1.0) * (v.len() - 1) as f64;
-    let (lo, hi) = (h.floor() as usize, h.ceil() as usize);
-    Some(v[lo] + (h - lo as f64) * (v[hi] - v[lo]))
-}
+pub use crate::numeric::quantile;
 
 /// Mean and sample standard deviation (n − 1); `None` for fewer than one value.
 pub fn mean_sd(v: &[f64]) -> Option<(f64, Option<f64>)> {

@@ -202,7 +202,7 @@ fn median_area_by_frame(points: &[TrackedDetection]) -> BTreeMap<usize, f64> {
     }
     areas
         .into_iter()
-        .map(|(f, mut v)| (f, crate::pipeline::median(&mut v).unwrap_or(0.0)))
+        .map(|(f, mut v)| (f, crate::numeric::median(&mut v).unwrap_or(0.0)))
         .collect()
 }
 
@@ -220,7 +220,7 @@ impl MotherFigures {
         let (earlier, recent) = history.split_at(split);
         let median_of = |ks: &[usize], f: fn(&crate::tracks::Detection) -> f64| {
             let mut v: Vec<f64> = ks.iter().map(|&k| f(&points[k].detection)).collect();
-            crate::pipeline::median(&mut v)
+            crate::numeric::median(&mut v)
         };
         MotherFigures {
             area: median_of(recent, |d| d.area_px).unwrap_or(0.0),

@@ -249,7 +249,7 @@ fn refined_links(frames: &[Vec<[f64; 2]>]) -> Vec<Vec<(usize, usize)>> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::synth::Rng;
+    use crate::numeric::Rng;
 
     /// Points on a jittered grid (spacing `spacing`), each moving as a persistent random walk
     /// (Ornstein-Uhlenbeck velocity with per-axis s.d. `sd` and memory `a`), in a periodic box.

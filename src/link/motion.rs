@@ -341,7 +341,7 @@ impl MotionFilter {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::synth::Rng;
+    use crate::numeric::Rng;
 
     fn cv_only(q: f64, r: f64, p0: f64) -> MotionNoise {
         MotionNoise {

@@ -75,7 +75,7 @@ pub const MEDIAN_ABS_OF_STANDARD_NORMAL: f64 = 0.674_489_750_196_081_7;
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::synth::Rng;
+    use crate::numeric::Rng;
 
     #[test]
     fn immerkaer_check_values() {

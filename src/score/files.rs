@@ -4,7 +4,7 @@
 use super::tracking::{score_tracks, TrackingScore};
 use crate::error::{Error, Result};
 use crate::link::nearest_neighbour_distances;
-use crate::pipeline::median;
+use crate::numeric::median;
 use crate::tracks::{read_track_points, TrackPoint};
 use serde::Serialize;
 use std::path::{Path, PathBuf};

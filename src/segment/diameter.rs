@@ -345,11 +345,9 @@ pub fn combine(frames: Vec<FrameDiameter>) -> Option<DiameterEstimate> {
     })
 }
 
-/// The median of a non-empty list (the lower middle value for an even count, so that the
-/// result is one of the values).
+/// The lower median of a non-empty list ([`crate::numeric::lower_median`]).
 fn median(v: &mut [f64]) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[(v.len() - 1) / 2]
+    crate::numeric::lower_median(v).expect("a non-empty list")
 }
 
 /// Side of the central window of a frame that the estimate examines, px.
@@ -419,7 +417,7 @@ fn local_maxima(response: &Image, sigma: &Image) -> Vec<(usize, usize)> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::synth::Rng;
+    use crate::numeric::Rng;
 
     fn disk(size: usize, r: f64) -> Image {
         let c = (size / 2) as f64;

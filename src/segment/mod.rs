@@ -216,7 +216,7 @@ mod tests {
         // Source: construction. 25 discs of diameter 16 px on a 48 px grid, 3x the noise s.d.
         // above the background (the dim recording of the defaults issue), Gaussian noise;
         // segmented at their diameter, every disc is one object and nothing else is found.
-        let mut rng = crate::synth::Rng::new(21);
+        let mut rng = crate::numeric::Rng::new(21);
         let img = Image::from_shape_fn((240, 240), |(y, x)| {
             let (cy, cx) = ((y / 48) * 48 + 24, (x / 48) * 48 + 24);
             let r2 = (y as f64 - cy as f64).powi(2) + (x as f64 - cx as f64).powi(2);
@@ -261,7 +261,7 @@ mod tests {
         // quarter as bright (peak 300), diameter 14, noise σ 5: Otsu's threshold on the
         // prepared frame lies between the two levels (so the dim disc is lost to it alone), but
         // the dim disc rises above half the threshold and far above the noise: nine objects.
-        let mut rng = crate::synth::Rng::new(23);
+        let mut rng = crate::numeric::Rng::new(23);
         let centres: Vec<(f64, f64, f32)> = (0..9)
             .map(|k| {
                 (
@@ -298,7 +298,7 @@ mod tests {
         // Source: definition (MAD / 0.6745 estimates σ of Gaussian noise); σ = 4 noise with a
         // foreground block of 1000 that must not count, within 5% over ~6,500 samples (every
         // 31st pixel of the 80% that is background).
-        let mut rng = crate::synth::Rng::new(22);
+        let mut rng = crate::numeric::Rng::new(22);
         let mut values: Vec<f32> = (0..500 * 500).map(|_| 4.0 * rng.normal() as f32).collect();
         let mask: Vec<bool> = (0..500 * 500).map(|i| i % 500 < 100).collect();
         for (v, &m) in values.iter_mut().zip(&mask) {

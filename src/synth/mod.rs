@@ -5,10 +5,9 @@
 //! uneven illumination, photobleaching, Poisson shot noise plus Gaussian read noise, and cells
 //! entering and leaving the field. Everything is deterministic for a given seed.
 
-mod rng;
 mod scene;
 
-pub use rng::Rng;
+pub use crate::numeric::Rng;
 pub use scene::{Nucleus, Scene};
 
 use crate::error::{Error, Result};
