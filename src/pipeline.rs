@@ -10,13 +10,13 @@ use crate::link::estimate::MotionSource;
 use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
-use crate::output::{crc32_file, ensure_dir, write_atomic, AtomicFile, Staging};
 use crate::numeric::median;
+use crate::output::{crc32_file, ensure_dir, write_atomic, AtomicFile, Staging};
 use crate::params::{Length, SegmentParams};
+pub use crate::record::{DiameterSource, FrameSummary, LinkingQc};
+use crate::record::{RunCounts, RunInput, RunParameters, RunRecord, Timings, RESEARCH_USE};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
-use crate::segment::diameter::{
-    central_crop, combine, examine_frame, sample_frames, Confidence, DiameterEstimate, ESTIMATE_CROP_PX,
-};
+use crate::segment::diameter::{central_crop, combine, examine_frame, sample_frames, Confidence, ESTIMATE_CROP_PX};
 use crate::segment::{segment_frame, FrameSegmentation};
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::Stack;
@@ -24,34 +24,10 @@ use crate::tracks::{write_detections, write_detections_header, write_tracks, Tra
 use crate::verdict::{judge, RunFigures, RunVerdict};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
-use serde::Serialize;
 use std::collections::VecDeque;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
-
-/// How the nucleus diameter was obtained.
-#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
-#[serde(rename_all = "kebab-case", tag = "source")]
-pub enum DiameterSource {
-    /// Given with `--diameter`.
-    Given {
-        /// The diameter, px.
-        px: f64,
-    },
-    /// Estimated from the recording, with its evidence and confidence.
-    Estimated(DiameterEstimate),
-}
-
-impl DiameterSource {
-    /// The diameter in pixels.
-    pub fn px(&self) -> f64 {
-        match self {
-            DiameterSource::Given { px } => *px,
-            DiameterSource::Estimated(e) => e.px,
-        }
-    }
-}
 
 /// The nucleus diameter in pixels: the given length, or an estimate from up to five frames
 /// spread over the recording (see [`crate::segment::diameter`]); `params_for(d)` gives the
@@ -243,21 +219,6 @@ pub fn with_segmented_frames<T>(
     })
 }
 
-/// Per-frame facts kept for the run record.
-#[derive(Debug, Clone, Serialize)]
-pub struct FrameSummary {
-    /// Frame number.
-    pub frame: usize,
-    /// Threshold used (null when the frame had no contrast).
-    pub threshold: Option<f64>,
-    /// Objects found.
-    pub objects: usize,
-    /// NaN or infinite pixels replaced before segmentation.
-    pub nonfinite_pixels: usize,
-    /// Objects the size filter dropped (too small) or cut (too large).
-    pub size_filter: crate::segment::SizeFilterCounts,
-}
-
 /// What a `segment` or `track` run produced.
 #[derive(Debug, Clone)]
 pub struct SegmentRun {
@@ -329,21 +290,6 @@ pub fn check_output_dir(dir: &Path, replace: bool) -> Result<()> {
         ));
     }
     Ok(())
-}
-
-/// Figures that tell whether linking can be trusted.
-#[derive(Debug, Clone, Serialize)]
-pub struct LinkingQc {
-    /// Median displacement of accepted links, px.
-    pub median_step_px: Option<f64>,
-    /// Median nearest-neighbour distance over all detections, px.
-    pub median_neighbour_distance_px: Option<f64>,
-    /// Median step / median neighbour distance; above 0.5 linking is ambiguous (common practice).
-    pub ambiguity_ratio: Option<f64>,
-    /// Share of links longer than 80% of the maximum step (many suggest raising it).
-    pub near_max_step_fraction: Option<f64>,
-    /// Share of tracks with fewer than 10 points (common practice: too short for statistics).
-    pub short_track_fraction: Option<f64>,
 }
 
 /// Segments every frame of an open recording and writes `detections.csv` (and optionally
@@ -503,30 +449,39 @@ pub(crate) fn finish_run(
         verdict,
     };
     let checksum = crc32_file(&info.path).ok().map(|h| format!("{h:08x}"));
-    let record = serde_json::json!({
-        "caravan_version": crate::VERSION,
-        "command": command,
-        "research_use": "Caravan is research software; statistics are only as good as the segmentation they rest on.",
-        "verdict": run.verdict,
-        "input": { "stack": info, "crc32": checksum },
-        "parameters": { "diameter": diameter, "segment": params, "link": linking, "movie": outputs.movie },
-        "counts": { "frames": run.frames.len(), "detections": run.detections(), "tracks": run.tracks.len() },
-        "linking_qc": run.linking_qc,
-        "gaps_closed": run.resolution.as_ref().map(|r| r.gaps_closed),
-        "divisions": run.resolution.as_ref().map(|r| &r.divisions),
-        "count_jumps": count_jumps(&run.frames),
-        "per_frame": run.frames,
-        "warnings": run.warnings,
-        "timings_s": {
-            "read_segment_link": first_pass_s,
-            "movie": movie_started.elapsed().as_secs_f64(),
-            "total": started.elapsed().as_secs_f64(),
+    let record = RunRecord {
+        caravan_version: crate::VERSION.to_string(),
+        command: command.to_string(),
+        verdict: Some(run.verdict.clone()),
+        input: RunInput {
+            stack: info,
+            crc32: checksum,
         },
-    });
-    write_atomic(
-        &dir.join("run.json"),
-        &serde_json::to_vec_pretty(&record).expect("serialisable"),
-    )?;
+        parameters: RunParameters {
+            diameter,
+            segment: params.clone(),
+            link: linking,
+            movie: outputs.movie,
+        },
+        counts: RunCounts {
+            frames: run.frames.len(),
+            detections: run.detections(),
+            tracks: run.tracks.len(),
+        },
+        linking_qc: run.linking_qc.clone(),
+        gaps_closed: run.resolution.as_ref().map(|r| r.gaps_closed),
+        divisions: run.resolution.as_ref().map(|r| r.divisions.clone()),
+        count_jumps: count_jumps(&run.frames),
+        per_frame: run.frames.clone(),
+        warnings: run.warnings.clone(),
+        timings_s: Timings {
+            read_segment_link: first_pass_s,
+            movie: movie_started.elapsed().as_secs_f64(),
+            total: started.elapsed().as_secs_f64(),
+        },
+        research_use: RESEARCH_USE.to_string(),
+    };
+    write_atomic(&dir.join("run.json"), &record.to_bytes())?;
     Ok(run)
 }
 
@@ -695,10 +650,13 @@ fn start_checkpoint(
         }
         _ => return Ok((None, Vec::new())),
     };
-    let parameters = serde_json::json!({
-        "diameter": diameter, "segment": params, "link": outputs.linking, "movie": outputs.movie,
-    });
-    let fingerprint = Fingerprint::of(info, parameters);
+    let parameters = RunParameters {
+        diameter: diameter.clone(),
+        segment: params.clone(),
+        link: outputs.linking,
+        movie: outputs.movie,
+    };
+    let fingerprint = Fingerprint::of(info, serde_json::to_value(&parameters).expect("plain data"));
     if outputs.resume {
         let (log, records) = CheckpointLog::resume(dir, fingerprint, every)?;
         Ok((Some(log), records))

@@ -208,3 +208,28 @@ fn reports_open_in_a_browser_with_every_chart() {
         "file names with markup show as text"
     );
 }
+
+#[test]
+fn a_run_record_of_another_version_is_not_used_and_the_units_say_so() {
+    // A run.json from an earlier version (its link block has other fields; here a record
+    // with only a calibration of 2 µm/px) beside hand-written tracks whose columns say 0.5
+    // µm/px and 60 s per frame (straight_tracks_csv): the record is not read, the CSV's own
+    // calibration is used, and the units say why.
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("tracks.csv");
+    straight_tracks_csv(&csv, 3, 2.0);
+    let old = r#"{"input": {"stack": {"calibration": {"pixel_size_um": 2.0, "frame_interval_s": 10.0}}}}"#;
+    std::fs::write(dir.path().join("run.json"), old).unwrap();
+    let table = caravan::analyze::table::read_tracks(dir.path(), CalibrationOverride::default()).unwrap();
+    assert!(table.run_record.is_none());
+    assert!((table.units.length_per_px - 0.5).abs() < 1e-12, "{:?}", table.units);
+    assert!(
+        table.units.source.contains("run.json beside the tracks not used"),
+        "{}",
+        table.units.source
+    );
+    // Not JSON at all is an error naming the file.
+    std::fs::write(dir.path().join("run.json"), "{ cut").unwrap();
+    let e = caravan::analyze::table::read_tracks(dir.path(), CalibrationOverride::default()).unwrap_err();
+    assert!(e.to_string().contains("run.json"), "{e}");
+}

@@ -61,7 +61,7 @@ pub struct TrackTable {
     /// The tracks, ascending id.
     pub tracks: Vec<Track>,
     /// The run record beside the tracks, if any (QC summary for the report).
-    pub run_record: Option<serde_json::Value>,
+    pub run_record: Option<crate::record::RunRecord>,
 }
 
 /// Calibration given on the command line (wins over files).
@@ -88,8 +88,11 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
     };
     let text = std::fs::read_to_string(&csv).map_err(|e| Error::input(&csv, e.to_string()))?;
     let rows = parse_rows(&text).map_err(|e| Error::input(&csv, e))?;
-    let run_record = read_run_record(&csv)?;
-    let units = resolve_units(given, run_record.as_ref(), &rows);
+    let (run_record, ignored) = read_run_record(&csv)?;
+    let mut units = resolve_units(given, run_record.as_ref(), &rows);
+    if let Some(why) = ignored {
+        units.source = format!("{} (run.json beside the tracks not used: {why})", units.source);
+    }
     let tracks = build_tracks(&rows, &units).map_err(|e| Error::input(&csv, e))?;
     Ok(TrackTable {
         source: csv,
@@ -163,20 +166,29 @@ fn parse_rows(text: &str) -> std::result::Result<Vec<Row>, String> {
     Ok(rows)
 }
 
-fn read_run_record(csv: &Path) -> Result<Option<serde_json::Value>> {
+/// The run record beside `csv`, if any. A file that is not JSON is an error; JSON that is not a
+/// run record of this version (one written by an earlier version) is not used, and the reason
+/// is returned so the analysis can say so.
+fn read_run_record(csv: &Path) -> Result<(Option<crate::record::RunRecord>, Option<String>)> {
     let path = csv.with_file_name("run.json");
     if !path.exists() {
-        return Ok(None);
+        return Ok((None, None));
     }
     let text = std::fs::read_to_string(&path).map_err(|e| Error::input(&path, e.to_string()))?;
-    serde_json::from_str(&text)
-        .map(Some)
-        .map_err(|e| Error::input(&path, format!("not valid JSON: {e}")))
+    let value: serde_json::Value =
+        serde_json::from_str(&text).map_err(|e| Error::input(&path, format!("not valid JSON: {e}")))?;
+    Ok(match serde_json::from_value(value) {
+        Ok(record) => (Some(record), None),
+        Err(e) => (
+            None,
+            Some(format!("not a run record of Caravan {}: {e}", crate::VERSION)),
+        ),
+    })
 }
 
-fn resolve_units(given: CalibrationOverride, run: Option<&serde_json::Value>, rows: &[Row]) -> Units {
-    let run_cal = run.map(|r| &r["input"]["stack"]["calibration"]);
-    let from_run = |key: &str| run_cal.and_then(|c| c[key].as_f64());
+fn resolve_units(given: CalibrationOverride, run: Option<&crate::record::RunRecord>, rows: &[Row]) -> Units {
+    let run_cal = run.map(|r| r.input.stack.calibration);
+    let from_run = |pick: fn(&crate::stack::Calibration) -> Option<f64>| run_cal.as_ref().and_then(pick);
     let from_csv_px = rows
         .iter()
         .find(|r| r.x.abs() > 1.0)
@@ -191,8 +203,8 @@ fn resolve_units(given: CalibrationOverride, run: Option<&serde_json::Value>, ro
             .or(csv.map(|v| (v, "CSV columns")))
             .filter(|(v, _)| *v > 0.0 && v.is_finite())
     };
-    let px = pick(given.pixel_size_um, from_run("pixel_size_um"), from_csv_px);
-    let dt = pick(given.frame_interval_s, from_run("frame_interval_s"), from_csv_dt);
+    let px = pick(given.pixel_size_um, from_run(|c| c.pixel_size_um), from_csv_px);
+    let dt = pick(given.frame_interval_s, from_run(|c| c.frame_interval_s), from_csv_dt);
     match (px, dt) {
         (Some((p, ps)), Some((s, ss))) => Units {
             length: "um",

@@ -10,7 +10,7 @@ use caravan::analyze::table::{CalibrationOverride, Filters};
 use caravan::batch::{run_folders, write_runs_manifest};
 use caravan::pipeline::run_recording;
 use caravan::stack::{OpenOptions, Stack};
-use caravan::verdict::{RunVerdict, Verdict};
+use caravan::verdict::Verdict;
 use caravan::{Error, Result};
 use clap::Args;
 use std::path::{Path, PathBuf};
@@ -140,12 +140,11 @@ fn track_one(input: &Path, folder: &Path, args: &BatchArgs) -> Result<Outcome> {
     Ok(Outcome::Done(run.verdict.verdict))
 }
 
-/// The verdict in a finished run's run.json (`ok` for runs written before verdicts existed).
+/// The verdict in a finished run's run.json (`ok` when its record has none or is of another version).
 fn recorded_verdict(path: &Path) -> Verdict {
-    std::fs::read(path)
+    caravan::record::RunRecord::read(path)
         .ok()
-        .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
-        .and_then(|v| serde_json::from_value::<RunVerdict>(v["verdict"].clone()).ok())
+        .and_then(|r| r.verdict)
         .map_or(Verdict::Ok, |v| v.verdict)
 }
 

@@ -9,7 +9,7 @@ use serde::Serialize;
 use std::collections::{BTreeMap, BTreeSet};
 
 /// One division: the mother's last point and its two daughters.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
 pub struct DivisionEvent {
     /// The mother's last frame (daughters start in the next one).
     pub frame: usize,

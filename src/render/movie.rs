@@ -28,7 +28,7 @@ const BLACK: u8 = 0;
 const TAIL: usize = 8;
 
 /// Options of the movie.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct MovieOptions {
     /// Longest side of the movie in pixels; larger recordings are downscaled by an integer factor.
     pub max_side_px: usize,

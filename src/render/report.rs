@@ -4,6 +4,7 @@
 
 use super::plots::{histogram, line_chart, rose, strip_chart, trajectories, Series, Strip};
 use crate::analyze::run::AnalysisRun;
+use crate::record::RunRecord;
 use serde_json::Value;
 use std::fmt::Write;
 
@@ -295,8 +296,8 @@ fn msd_chart(run: &AnalysisRun) -> String {
 
 /// The tracking run's verdict and its findings, first on the page: statistics are only as
 /// good as the segmentation and links they rest on.
-fn verdict_section(html: &mut String, record: &Value) {
-    let Ok(v) = serde_json::from_value::<crate::verdict::RunVerdict>(record["verdict"].clone()) else {
+fn verdict_section(html: &mut String, record: &RunRecord) {
+    let Some(v) = &record.verdict else {
         return;
     };
     let _ = write!(
@@ -322,13 +323,13 @@ fn verdict_section(html: &mut String, record: &Value) {
 }
 
 /// Objects and threshold per frame, warnings and flags of the tracking run.
-fn qc_section(html: &mut String, record: &Value) {
+fn qc_section(html: &mut String, record: &RunRecord) {
     html.push_str("<h2>Tracking run: quality control</h2><div class=\"grid\">");
-    let per_frame = record["per_frame"].as_array().cloned().unwrap_or_default();
-    let pick = |key: &str| -> Vec<(f64, f64)> {
-        per_frame
+    let pick = |value: fn(&crate::record::FrameSummary) -> Option<f64>| -> Vec<(f64, f64)> {
+        record
+            .per_frame
             .iter()
-            .filter_map(|f| Some((f["frame"].as_f64()?, f[key].as_f64()?)))
+            .filter_map(|f| Some((f.frame as f64, value(f)?)))
             .collect()
     };
     figure(
@@ -340,7 +341,7 @@ fn qc_section(html: &mut String, record: &Value) {
             "objects",
             &[Series {
                 label: "objects".into(),
-                points: pick("objects"),
+                points: pick(|f| Some(f.objects as f64)),
                 markers: false,
             }],
             false,
@@ -356,7 +357,7 @@ fn qc_section(html: &mut String, record: &Value) {
             "grey level",
             &[Series {
                 label: "threshold".into(),
-                points: pick("threshold"),
+                points: pick(|f| f.threshold),
                 markers: false,
             }],
             false,
@@ -367,21 +368,17 @@ fn qc_section(html: &mut String, record: &Value) {
     let _ = write!(
         html,
         "<li>gaps closed: {}; divisions: {}</li>",
-        number(&record["gaps_closed"]),
-        record["divisions"].as_array().map(|d| d.len()).unwrap_or(0)
+        number(&serde_json::json!(record.gaps_closed)),
+        record.divisions.as_ref().map_or(0, Vec::len)
     );
-    for w in record["warnings"].as_array().into_iter().flatten() {
-        let _ = write!(
-            html,
-            "<li>warning: {}</li>",
-            escape_html(w.as_str().unwrap_or_default())
-        );
+    for w in &record.warnings {
+        let _ = write!(html, "<li>warning: {}</li>", escape_html(w));
     }
     html.push_str("</ul><h2>Tracking parameters</h2>");
     let _ = write!(
         html,
         "<pre>{}</pre>",
-        escape_html(&serde_json::to_string_pretty(&record["parameters"]).unwrap_or_default())
+        escape_html(&serde_json::to_value(&record.parameters).map_or_else(|_| String::new(), |v| format!("{v:#}")))
     );
 }
 

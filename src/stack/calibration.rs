@@ -2,10 +2,10 @@
 //! line, then OME-XML, then baseline TIFF resolution tags (pixel size only); otherwise the run
 //! is uncalibrated and works in pixels and frames.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// Where a calibration value came from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum CalibrationSource {
     /// Given on the command line (wins over metadata).
@@ -21,7 +21,7 @@ pub enum CalibrationSource {
 }
 
 /// Physical calibration of a recording.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Calibration {
     /// Micrometres per pixel (square pixels assumed; X is used).
     pub pixel_size_um: Option<f64>,

@@ -18,11 +18,11 @@ pub use ome::{OmePixels, PlaneIndex};
 
 use crate::error::{Error, Result};
 use crate::image2d::{self, Image};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 
 /// The sample types Caravan reads.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum SampleType {
     /// 8-bit unsigned integer.
@@ -150,7 +150,7 @@ impl Default for OpenOptions {
 }
 
 /// What a recording holds, known after opening and before decoding any pixels.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct StackInfo {
     /// The file or folder opened.
     pub path: PathBuf,

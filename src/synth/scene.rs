@@ -1,9 +1,9 @@
 //! The simulated scene: nuclei as ellipses that move frame by frame, then rendered into
 //! photon counts with optics, illumination, bleaching and camera noise.
 
-use crate::numeric::Rng;
 use super::{truth_points_of, Scenario, SynthParams};
 use crate::image2d;
+use crate::numeric::Rng;
 use crate::preprocess::gaussian_blur;
 use crate::tracks::TrackPoint;
 
