@@ -15,6 +15,7 @@
 //! | [`tracks`] | the `Detection` type and its CSV form |
 //! | [`pipeline`] | streaming orchestration over a whole recording, progress, run records |
 //! | [`verdict`] | whether a run can be trusted: `ok`, `doubtful` or `failed`, with reasons and fixes |
+//! | [`reports`] | analysis and comparison folders: tables from `analyze`, pages from `render` |
 //! | [`record`] | the run record (`run.json`), written and read as one typed structure |
 //! | [`params`] | every tunable parameter with its default, unit and valid range |
 //! | [`numeric`] | order statistics and the seeded random generator, shared by the stages |
@@ -36,6 +37,7 @@ pub mod pipeline;
 pub mod preprocess;
 pub mod record;
 pub mod render;
+pub mod reports;
 pub mod score;
 pub mod segment;
 pub mod shard;

@@ -77,6 +77,16 @@ pub struct RunParameters<L> {
     pub movie: Option<MovieOptions>,
 }
 
+/// The parameters a shard of segmentation depends on (its fingerprint's block): the
+/// diameter and the segmentation parameters.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct SegmentationParameters {
+    /// The nucleus diameter and where it came from.
+    pub diameter: DiameterSource,
+    /// Segmentation.
+    pub segment: SegmentParams,
+}
+
 /// How much a run found.
 #[derive(Debug, Clone, Copy, Serialize, Deserialize)]
 pub struct RunCounts {

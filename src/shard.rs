@@ -37,10 +37,11 @@ pub struct ShardInfo {
 }
 
 fn fingerprint(stack: &Stack, diameter: &DiameterSource, params: &SegmentParams) -> Fingerprint {
-    Fingerprint::of(
-        stack.info(),
-        serde_json::json!({ "diameter": diameter, "segment": params }),
-    )
+    let parameters = crate::record::SegmentationParameters {
+        diameter: diameter.clone(),
+        segment: params.clone(),
+    };
+    Fingerprint::of(stack.info(), serde_json::to_value(&parameters).expect("plain data"))
 }
 
 /// Segments frames `range` of `stack` into the shard folder `dir`.

@@ -6,9 +6,9 @@
 mod common;
 
 use caravan::analyze::population::AnalysisOptions;
-use caravan::analyze::run::run_analysis;
 use caravan::analyze::table::{CalibrationOverride, Filters};
 use caravan::link::LinkOptions;
+use caravan::reports::run_analysis;
 use caravan::synth::{Scenario, SynthParams};
 use common::track_synthetic;
 use std::path::Path;
@@ -93,7 +93,7 @@ fn a_hand_written_csv_gives_hand_derived_statistics() {
         assert!((q.msd - n * n).abs() < 1e-9, "{q:?}");
     }
     assert!((run.analysis.anomalous_exponent.unwrap() - 2.0).abs() < 1e-9);
-    for name in caravan::analyze::run::ANALYSIS_OUTPUTS {
+    for name in caravan::reports::ANALYSIS_OUTPUTS {
         assert!(out.join(name).exists(), "{name}");
     }
 }
@@ -164,7 +164,7 @@ fn reports_open_in_a_browser_with_every_chart() {
         1,
     )
     .unwrap();
-    caravan::analyze::compare::write_comparison(&c, &dir.path().join("m.csv"), &dir.path().join("cmp")).unwrap();
+    caravan::reports::write_comparison(&c, &dir.path().join("m.csv"), &dir.path().join("cmp")).unwrap();
     let Some(browser) = chromium() else { return };
     // 8 analysis charts plus objects and threshold per frame of the tracking run.
     let dom = open_in_browser(

@@ -258,7 +258,9 @@ pub fn compare(
     })
 }
 
-fn replicate_means(reps: &[ReplicateValues], condition: &str) -> (Vec<Vec<f64>>, Vec<f64>) {
+/// The values of each replicate of `condition` (replicates without values left out) and each
+/// replicate's mean.
+pub fn replicate_means(reps: &[ReplicateValues], condition: &str) -> (Vec<Vec<f64>>, Vec<f64>) {
     let groups: Vec<Vec<f64>> = reps
         .iter()
         .filter(|r| r.condition == condition && !r.values.is_empty())
@@ -348,11 +350,12 @@ fn design_warnings(
     w
 }
 
-/// Writes `replicates.csv`, `comparison.csv`, `summary.json` and `report.html` into `dir`.
+/// Writes `replicates.csv`, `comparison.csv` and `summary.json` into `dir` (`crate::reports`
+/// adds `report.html`).
 ///
 /// # Errors
 /// Outputs not writable.
-pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<()> {
+pub fn write_comparison_tables(c: &Comparison, manifest: &Path, dir: &Path) -> Result<()> {
     ensure_dir(dir)?;
     write_table(dir, "replicates.csv", |w| write_replicates(w, c))?;
     write_table(dir, "comparison.csv", |w| {
@@ -372,47 +375,7 @@ pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<(
         &dir.join("summary.json"),
         &serde_json::to_vec_pretty(&record).expect("serialisable"),
     )?;
-    let stats: Vec<crate::render::report::ComparedStatistic> = c
-        .statistic_names
-        .iter()
-        .map(|name| crate::render::report::ComparedStatistic {
-            name: name.clone(),
-            strips: c
-                .conditions
-                .iter()
-                .map(|cond| {
-                    let (groups, means) = replicate_means(&c.replicates[name], cond);
-                    crate::render::plots::Strip {
-                        name: cond.clone(),
-                        values: groups.concat(),
-                        replicate_means: means,
-                    }
-                })
-                .collect(),
-        })
-        .collect();
-    let entries: Vec<Vec<String>> = c
-        .entries
-        .iter()
-        .map(|e| {
-            let labels: Vec<String> = e.labels.iter().map(|(k, v)| format!("{k}: {v}")).collect();
-            vec![
-                e.path.display().to_string(),
-                e.condition.clone(),
-                e.replicate.clone(),
-                labels.join("; "),
-            ]
-        })
-        .collect();
-    let html = crate::render::report::comparison_report(
-        &manifest.display().to_string(),
-        &entries,
-        &comparison_rows(c),
-        &COMPARISON_HEADER,
-        &stats,
-        &c.warnings,
-    );
-    write_atomic(&dir.join("report.html"), html.as_bytes())
+    Ok(())
 }
 
 /// Columns of `comparison.csv` (and the report's table).
@@ -435,7 +398,9 @@ pub const COMPARISON_HEADER: [&str; 16] = [
     "cohens_d",
 ];
 
-fn comparison_rows(c: &Comparison) -> Vec<Vec<String>> {
+/// The rows of `comparison.csv` (and the report's table), numbers with 6 decimals, empty
+/// where not finite.
+pub fn comparison_rows(c: &Comparison) -> Vec<Vec<String>> {
     let f = |v: f64| {
         if v.is_finite() {
             format!("{v:.6}")

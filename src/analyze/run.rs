@@ -1,5 +1,5 @@
-//! `analyze` end to end: read tracks, filter, compute, and write every table, `summary.json`
-//! and `report.html` atomically into one folder.
+//! `analyze` end to end but for the page: read tracks, filter, compute, and write every table
+//! and `summary.json` atomically into one folder (`crate::reports` adds `report.html`).
 
 use super::outputs::{
     summary, write_autocorrelation, write_msd, write_neighbour_correlation, write_order, write_steps, write_track_stats,
@@ -11,8 +11,8 @@ use crate::output::{ensure_dir, write_atomic, AtomicFile};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
-/// Files an analysis writes.
-pub const ANALYSIS_OUTPUTS: [&str; 8] = [
+/// Tables and summary an analysis writes (the report comes on top, from `crate::reports`).
+pub const ANALYSIS_TABLES: [&str; 7] = [
     "track_stats.csv",
     "steps.csv",
     "msd.csv",
@@ -20,7 +20,6 @@ pub const ANALYSIS_OUTPUTS: [&str; 8] = [
     "order.csv",
     "neighbour_correlation.csv",
     "summary.json",
-    "report.html",
 ];
 
 /// What an analysis run produced.
@@ -49,11 +48,11 @@ pub fn default_output_dir(input: &Path) -> PathBuf {
     }
 }
 
-/// Reads, filters and analyses `input`, then writes the outputs into `dir`.
+/// Reads, filters and analyses `input`, then writes the tables and `summary.json` into `dir`.
 ///
 /// # Errors
 /// Unreadable or malformed input; no track left after filtering; outputs not writable.
-pub fn run_analysis(
+pub fn write_analysis_tables(
     input: &Path,
     calibration: CalibrationOverride,
     filters: &Filters,
@@ -85,15 +84,12 @@ pub fn run_analysis(
         &dir.join("summary.json"),
         &serde_json::to_vec_pretty(&record).expect("serialisable"),
     )?;
-    let run = AnalysisRun {
+    Ok(AnalysisRun {
         dir: dir.to_path_buf(),
         table,
         analysis,
         summary: population,
-    };
-    let html = crate::render::report::analysis_report(&run);
-    write_atomic(&dir.join("report.html"), html.as_bytes())?;
-    Ok(run)
+    })
 }
 
 /// Reads, filters and analyses `input` without writing anything.

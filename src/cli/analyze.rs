@@ -1,9 +1,10 @@
 //! `caravan analyze RUN_DIR | TRACKS.csv`: migration statistics, tidy tables and a report.
 
 use caravan::analyze::population::AnalysisOptions;
-use caravan::analyze::run::{default_output_dir, run_analysis};
+use caravan::analyze::run::default_output_dir;
 use caravan::analyze::table::{CalibrationOverride, Filters, Region};
 use caravan::params::{parse_pixel_size_um, parse_seconds};
+use caravan::reports::run_analysis;
 use caravan::{Error, Result};
 use clap::{Args, ValueEnum};
 use std::path::PathBuf;

@@ -4,11 +4,12 @@
 use super::analyze::analyze_run_folder;
 use super::track::LinkingArgs;
 use super::{Completion, SegmentationArgs};
-use caravan::analyze::compare::{compare, read_manifest, read_manifest_entries, write_comparison};
+use caravan::analyze::compare::{compare, read_manifest, read_manifest_entries};
 use caravan::analyze::population::AnalysisOptions;
 use caravan::analyze::table::{CalibrationOverride, Filters};
 use caravan::batch::{run_folders, write_runs_manifest};
 use caravan::pipeline::run_recording;
+use caravan::reports::write_comparison;
 use caravan::stack::{OpenOptions, Stack};
 use caravan::verdict::Verdict;
 use caravan::{Error, Result};

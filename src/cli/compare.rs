@@ -1,7 +1,8 @@
 //! `caravan compare MANIFEST.csv`: conditions compared with replicates as the unit.
 
 use super::analyze::AnalysisArgs;
-use caravan::analyze::compare::{compare, read_manifest, write_comparison};
+use caravan::analyze::compare::{compare, read_manifest};
+use caravan::reports::write_comparison;
 use caravan::{Error, Result};
 use clap::Args;
 use std::path::PathBuf;
