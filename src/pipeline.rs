@@ -747,7 +747,7 @@ fn linking_qc(
     neighbour: &mut [f64],
     max_step_px: f64,
 ) -> LinkingQc {
-    let mut steps: Vec<f64> = tracked.iter().filter_map(|p| p.link_cost_px2).map(f64::sqrt).collect();
+    let mut steps: Vec<f64> = tracked.iter().filter_map(|p| p.distance_from_prediction_px).collect();
     let near = (!steps.is_empty())
         .then(|| steps.iter().filter(|&&s| s > 0.8 * max_step_px).count() as f64 / steps.len() as f64);
     let median_step_px = median(&mut steps);

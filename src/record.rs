@@ -19,12 +19,12 @@ use std::path::Path;
 pub const RESEARCH_USE: &str =
     "Caravan is research software; statistics are only as good as the segmentation they rest on.";
 
-/// The record of one `segment`, `track` or `link` run.
+/// The record of one `segment`, `track` or `join` run.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct RunRecord {
     /// Version of Caravan that wrote it.
     pub caravan_version: String,
-    /// The command (`segment`, `track`, `link`).
+    /// The command (`segment`, `track`, `join`).
     pub command: String,
     /// Whether the run can be trusted, with the reasons (absent in records of versions before
     /// verdicts).

@@ -1,5 +1,5 @@
 //! Split stages for many machines: `segment --frames A..B` writes a shard (the detections and
-//! movie outlines of frames A to B−1, in the checkpoint log format), and `link` joins the
+//! movie outlines of frames A to B−1, in the checkpoint log format), and `join` joins the
 //! shards of one recording into tracks, tables and the QC movie. Linking replays the frames
 //! in order exactly as `track` does, so the outputs are byte-identical to one `track` run
 //! (run.json differs only in its command name and timings).
@@ -177,7 +177,7 @@ pub fn read_shards(dirs: &[PathBuf]) -> Result<Vec<(PathBuf, ShardInfo)>> {
 /// # Errors
 /// Shards that do not fit together or do not belong to `stack`, unreadable logs, outputs not
 /// writable.
-pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &SegmentOutputs) -> Result<SegmentRun> {
+pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &SegmentOutputs) -> Result<SegmentRun> {
     let shards = read_shards(dirs)?;
     let first = &shards[0].1;
     let info = stack.info().clone();
@@ -217,7 +217,7 @@ pub fn link_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
         &first.segment,
         &work,
         outputs,
-        "link",
+        "join",
         started,
     )?;
     drop(spool);

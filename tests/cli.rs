@@ -663,7 +663,7 @@ fn shards_linked_equal_one_track_run() {
         "1",
     ));
     ok(&caravan(
-        &["link", &path("b"), &path("a"), "-o", &path("linked"), "--no-analysis"],
+        &["join", &path("b"), &path("a"), "-o", &path("linked"), "--no-analysis"],
         "2",
     ));
     assert_same_run_outputs(&dir.path().join("whole"), &dir.path().join("linked"));
@@ -673,7 +673,7 @@ fn shards_linked_equal_one_track_run() {
         v
     };
     assert_eq!(strip("whole"), strip("linked"));
-    let gap = caravan(&["link", &path("b"), "-o", &path("gap")], "1");
+    let gap = caravan(&["join", &path("b"), "-o", &path("gap")], "1");
     assert_eq!(gap.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&gap.stderr).contains("frame 0"));
 }

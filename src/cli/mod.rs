@@ -7,7 +7,7 @@ mod batch;
 mod compare;
 mod demo;
 mod inspect;
-mod link;
+mod join;
 mod param_file;
 mod preview;
 mod score;
@@ -49,7 +49,7 @@ enum Command {
     /// Write a Snakemake workflow (Snakefile, config.json) that runs a manifest on a cluster.
     Workflow(workflow::WorkflowArgs),
     /// Join shards from `segment --frames` into tracks, tables and the QC movie.
-    Link(link::LinkArgs),
+    Join(join::JoinArgs),
     /// Write a synthetic recording with ground truth.
     Synth(synth::SynthArgs),
     /// Migration statistics of a run or any tracks CSV: tables, summary.json, report.html.
@@ -90,7 +90,7 @@ pub fn run() -> i32 {
         Command::Segment(a) => segment::run(a),
         Command::Track(a) => track::run(a),
         Command::Synth(a) => done(synth::run(a)),
-        Command::Link(a) => link::run(a),
+        Command::Join(a) => join::run(a),
         Command::Score(a) => done(score::run(a)),
         Command::Analyze(a) => done(analyze::run(a)),
         Command::Compare(a) => done(compare::run(a)),

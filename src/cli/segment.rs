@@ -1,5 +1,5 @@
 //! `caravan segment FILE -o DIR`: every frame's nuclei into detections.csv and run.json; with
-//! `--frames A..B`, a shard of frames A to B−1 for `caravan link` (split stages).
+//! `--frames A..B`, a shard of frames A to B−1 for `caravan join` (split stages).
 
 use super::{print_summary, Completion, RunArgs};
 use caravan::pipeline::{run_recording, SegmentOutputs};
@@ -11,7 +11,7 @@ use clap::Args;
 pub struct SegmentArgs {
     #[command(flatten)]
     run: RunArgs,
-    /// Segment only frames A to B−1 (half-open A..B) into a shard for `caravan link`.
+    /// Segment only frames A to B−1 (half-open A..B) into a shard for `caravan join`.
     #[arg(long)]
     frames: Option<String>,
 }

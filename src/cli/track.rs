@@ -8,7 +8,7 @@ use caravan::render::movie::MovieOptions;
 use caravan::{Error, Result};
 use clap::Args;
 
-/// Linking, movie and analysis options, shared by `track` and `link`.
+/// Linking, movie and analysis options, shared by `track` and `join`.
 #[derive(Args, Clone)]
 pub struct LinkingArgs {
     /// Longest step between frames (e.g. 8px or 5um; default: measured from the recording's

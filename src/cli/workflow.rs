@@ -44,7 +44,7 @@ struct LinkFlags {
     l: LinkingArgs,
 }
 
-/// Refuses options that the segment or link step would refuse, before anything is written.
+/// Refuses options that the segment or join step would refuse, before anything is written.
 fn check_flags(args: &WorkflowArgs) -> Result<bool> {
     let words = |s: &str| s.split_whitespace().map(String::from).collect::<Vec<_>>();
     SegmentFlags::try_parse_from(std::iter::once("segment".to_string()).chain(words(&args.segment_args)))
@@ -94,7 +94,7 @@ pub fn run(args: WorkflowArgs) -> Result<()> {
     // The binary is read from config.json, so a lab can point it elsewhere on its cluster.
     const CARAVAN: &str = "'{CARAVAN}'";
     let mut snake = String::from(
-        "# Written by `caravan workflow`: segment each recording in frame shards, link each\n\
+        "# Written by `caravan workflow`: segment each recording in frame shards, join each\n\
          # recording, then compare the conditions. Run with: snakemake --cores N (or a profile).\n\n",
     );
     let mut final_inputs = Vec::new();
@@ -125,11 +125,11 @@ pub fn run(args: WorkflowArgs) -> Result<()> {
         let shards: Vec<String> = shard_dirs.iter().map(|d| sh(d)).collect();
         let _ = write!(
             snake,
-            "rule link_{k}:\n    input: [{}]\n    output: {}\n    threads: 2\n    shell: {}\n\n",
+            "rule join_{k}:\n    input: [{}]\n    output: {}\n    threads: 2\n    shell: {}\n\n",
             inputs.join(", "),
             py(&format!("{run_dir}/run.json")),
             py(&format!(
-                "{} link {} --recording {} -o {} --force {}",
+                "{} join {} --recording {} -o {} --force {}",
                 CARAVAN,
                 shards.join(" "),
                 sh(&input.display().to_string()),

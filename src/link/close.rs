@@ -174,7 +174,7 @@ fn apply_joins(
         if let Some(&new_id) = renamed.get(&original) {
             if seen_start.insert(original) {
                 let (cost, conf) = first_after_gap[&original];
-                p.link_cost_px2 = Some(cost);
+                p.distance_from_prediction_px = Some(cost.sqrt());
                 p.link_confidence = Some(conf);
             }
             p.track_id = new_id;
@@ -232,7 +232,7 @@ mod tests {
         assert_eq!(joins.len(), 1);
         assert!(points.iter().all(|p| p.track_id == 1));
         let after = points.iter().find(|p| p.detection.frame == 7).unwrap();
-        assert!(after.link_cost_px2.unwrap() < 0.5, "{after:?}");
+        assert!(after.distance_from_prediction_px.unwrap() < 0.5f64.sqrt(), "{after:?}");
         // Switched off, the segments stay apart.
         let mut off = params;
         off.max_gap_frames = 0;

@@ -315,7 +315,7 @@ fn apply_division(points: &mut [TrackedDetection], c: &Candidate, next_id: &mut 
         for p in points.iter_mut().filter(|p| p.track_id == new) {
             p.parent_id = Some(mother_id);
         }
-        points[k].link_cost_px2 = None;
+        points[k].distance_from_prediction_px = None;
         points[k].link_confidence = None;
         daughter_ids[slot] = new;
     }

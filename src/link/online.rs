@@ -103,7 +103,7 @@ impl OnlineLinker {
                 track_id: id,
                 parent_id: None,
                 detection: d,
-                link_cost_px2: cost,
+                distance_from_prediction_px: cost.map(f64::sqrt),
                 link_confidence: confidence,
             });
         }

@@ -42,8 +42,8 @@ pub struct TrackedDetection {
     pub parent_id: Option<u32>,
     /// The detection itself.
     pub detection: Detection,
-    /// Squared displacement from the predicted position (px²); `None` where a track starts.
-    pub link_cost_px2: Option<f64>,
+    /// Distance from the position the track was predicted at, px; `None` where a track starts.
+    pub distance_from_prediction_px: Option<f64>,
     /// Confidence of the link into this point (see `link::online::confidence`).
     pub link_confidence: Option<f64>,
 }
@@ -135,7 +135,7 @@ pub fn push_fixed(out: &mut String, v: f64, decimals: usize) {
 }
 
 /// The header of `tracks.csv`.
-pub const TRACKS_HEADER: &str = "track_id,parent_id,frame,x,y,x_um,y_um,time_s,area_px,equivalent_diameter_px,mean_intensity,total_intensity,major_axis_px,minor_axis_px,orientation_deg,touches_border,object,link_cost_px2,link_confidence";
+pub const TRACKS_HEADER: &str = "track_id,parent_id,frame,x,y,x_um,y_um,time_s,area_px,equivalent_diameter_px,mean_intensity,total_intensity,major_axis_px,minor_axis_px,orientation_deg,touches_border,object,distance_from_prediction_px,link_confidence";
 
 /// Writes `tracks.csv`: the header, then `points` in the order given (callers sort by track,
 /// then frame). Link columns are empty where a track starts.
@@ -143,7 +143,10 @@ pub fn write_tracks(out: &mut impl Write, points: &[TrackedDetection], calibrati
     writeln!(out, "{TRACKS_HEADER}")?;
     for p in points {
         let parent = p.parent_id.map(|v| v.to_string()).unwrap_or_default();
-        let cost = p.link_cost_px2.map(|c| format!("{c:.4}")).unwrap_or_default();
+        let cost = p
+            .distance_from_prediction_px
+            .map(|c| format!("{c:.4}"))
+            .unwrap_or_default();
         let confidence = p.link_confidence.map(|c| format!("{c:.4}")).unwrap_or_default();
         let d = &p.detection;
         writeln!(

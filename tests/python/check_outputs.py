@@ -81,7 +81,7 @@ for r in tracks:
     d = by_key[(int(r["frame"]), int(r["object"]))]
     assert (r["x"], r["y"], r["area_px"]) == (d["x"], d["y"], d["area_px"])
     if r["link_confidence"]:
-        assert 0.0 <= float(r["link_confidence"]) <= 1.0 and float(r["link_cost_px2"]) >= 0.0
+        assert 0.0 <= float(r["link_confidence"]) <= 1.0 and float(r["distance_from_prediction_px"]) >= 0.0
 with open(f"{seg}/per_track.csv", newline="") as f:
     per_track = {int(r["track_id"]): r for r in csv.DictReader(f)}
 assert sum(int(r["points"]) for r in per_track.values()) == len(tracks)

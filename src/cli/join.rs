@@ -1,16 +1,16 @@
-//! `caravan link SHARD... -o DIR`: join the shards of one recording (from `segment --frames`)
+//! `caravan join SHARD... -o DIR`: join the shards of one recording (from `segment --frames`)
 //! into tracks, tables and the QC movie, identical to one `track` run.
 
 use super::track::LinkingArgs;
 use super::{print_summary, Completion};
-use caravan::shard::{link_shards, read_shards};
+use caravan::shard::{join_shards, read_shards};
 use caravan::stack::Stack;
 use caravan::Result;
 use clap::Args;
 use std::path::PathBuf;
 
 #[derive(Args)]
-pub struct LinkArgs {
+pub struct JoinArgs {
     /// Shard folders written by `caravan segment --frames A..B`, covering the recording.
     #[arg(required = true)]
     shards: Vec<PathBuf>,
@@ -27,7 +27,7 @@ pub struct LinkArgs {
     linking: LinkingArgs,
 }
 
-pub fn run(args: LinkArgs) -> Result<Completion> {
+pub fn run(args: JoinArgs) -> Result<Completion> {
     args.linking.validate()?;
     caravan::pipeline::check_output_dir(&args.output, args.force)?;
     let shards = read_shards(&args.shards)?;
@@ -40,7 +40,7 @@ pub fn run(args: LinkArgs) -> Result<Completion> {
     let outputs = args
         .linking
         .outputs(stack.info().calibration.pixel_size_um, args.force)?;
-    let run = link_shards(&mut stack, &args.shards, &args.output, &outputs)?;
+    let run = join_shards(&mut stack, &args.shards, &args.output, &outputs)?;
     print_summary(&run);
     if !args.linking.no_analysis {
         super::analyze::analyze_run_folder(&args.output);
