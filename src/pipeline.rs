@@ -236,8 +236,8 @@ pub struct SegmentRun {
     pub resolution: Option<TrackResolution>,
     /// The QC movie, when rendered.
     pub movie: Option<MovieOutputs>,
-    /// Human-readable warnings (also in run.json).
-    pub warnings: Vec<String>,
+    /// Warnings for the user (their messages are in run.json).
+    pub warnings: Vec<RunWarning>,
     /// Whether the run can be trusted, with the reasons.
     pub verdict: RunVerdict,
 }
@@ -473,7 +473,7 @@ pub(crate) fn finish_run(
         divisions: run.resolution.as_ref().map(|r| r.divisions.clone()),
         count_jumps: count_jumps(&run.frames),
         per_frame: run.frames.clone(),
-        warnings: run.warnings.clone(),
+        warnings: run.warnings.iter().map(RunWarning::message).collect(),
         timings_s: Timings {
             read_segment_link: first_pass_s,
             movie: movie_started.elapsed().as_secs_f64(),
@@ -786,25 +786,55 @@ pub fn count_jumps(frames: &[FrameSummary]) -> Vec<usize> {
         .collect()
 }
 
-fn warnings_for(frames: &[FrameSummary], info: &crate::stack::StackInfo) -> Vec<String> {
+/// A soft problem of a run: the outputs are written, but the user should know. (Problems that
+/// make the outputs doubtful are the verdict's findings, [`crate::verdict`].)
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum RunWarning {
+    /// NaN or infinite pixels were replaced by the frame's lowest value: (frame, pixels) each.
+    NonFinitePixels(Vec<(usize, usize)>),
+    /// No pixel size: the physical columns are empty.
+    NoPixelSize,
+    /// No frame interval: `time_s` is empty.
+    NoFrameInterval,
+}
+
+impl RunWarning {
+    /// The message the console, run.json and the report show.
+    pub fn message(&self) -> String {
+        match self {
+            RunWarning::NonFinitePixels(frames) => {
+                let list: Vec<String> = frames.iter().map(|(t, n)| format!("{t} ({n} px)")).collect();
+                format!(
+                    "NaN or infinite pixels, replaced by the frame's lowest value, in {} frame(s): {}",
+                    frames.len(),
+                    list.join(" ")
+                )
+            }
+            RunWarning::NoPixelSize => {
+                "no pixel size in the metadata or on the command line: physical columns are empty".into()
+            }
+            RunWarning::NoFrameInterval => {
+                "no frame interval in the metadata or on the command line: time_s is empty".into()
+            }
+        }
+    }
+}
+
+fn warnings_for(frames: &[FrameSummary], info: &crate::stack::StackInfo) -> Vec<RunWarning> {
     let mut w = Vec::new();
-    let nonfinite: Vec<String> = frames
+    let nonfinite: Vec<(usize, usize)> = frames
         .iter()
         .filter(|f| f.nonfinite_pixels > 0)
-        .map(|f| format!("{} ({} px)", f.frame, f.nonfinite_pixels))
+        .map(|f| (f.frame, f.nonfinite_pixels))
         .collect();
     if !nonfinite.is_empty() {
-        w.push(format!(
-            "NaN or infinite pixels, replaced by the frame's lowest value, in {} frame(s): {}",
-            nonfinite.len(),
-            nonfinite.join(" ")
-        ));
+        w.push(RunWarning::NonFinitePixels(nonfinite));
     }
     if info.calibration.pixel_size_um.is_none() {
-        w.push("no pixel size in the metadata or on the command line: physical columns are empty".into());
+        w.push(RunWarning::NoPixelSize);
     }
     if info.calibration.frame_interval_s.is_none() {
-        w.push("no frame interval in the metadata or on the command line: time_s is empty".into());
+        w.push(RunWarning::NoFrameInterval);
     }
     w
 }

@@ -59,7 +59,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
     println!("against the truth (caravan score):");
     super::score::print_score(&score);
     for w in &run.warnings {
-        println!("warning: {w}");
+        println!("warning: {}", w.message());
     }
     let show = |name: &str| run_dir.join(name).display().to_string();
     if let Some(m) = &run.movie {

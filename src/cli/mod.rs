@@ -304,7 +304,7 @@ fn print_summary(run: &caravan::pipeline::SegmentRun) {
         describe_diameter(&run.diameter)
     );
     for w in &run.warnings {
-        println!("warning: {w}");
+        println!("warning: {}", w.message());
     }
     println!("wrote {}", run.dir.display());
 }
