@@ -87,7 +87,7 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
         input.to_path_buf()
     };
     let text = std::fs::read_to_string(&csv).map_err(|e| Error::input(&csv, e.to_string()))?;
-    let rows = parse_rows(&text).map_err(|e| Error::input(&csv, e))?;
+    let rows = crate::tracks::read_track_rows(&text).map_err(|e| Error::input(&csv, e))?;
     let (run_record, ignored) = read_run_record(&csv)?;
     let mut units = resolve_units(given, run_record.as_ref(), &rows);
     if let Some(why) = ignored {
@@ -100,70 +100,6 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
         tracks,
         run_record,
     })
-}
-
-/// One row of the CSV.
-struct Row {
-    line: usize,
-    track_id: u32,
-    parent_id: Option<u32>,
-    frame: usize,
-    x: f64,
-    y: f64,
-    x_um: Option<f64>,
-    time_s: Option<f64>,
-}
-
-fn parse_rows(text: &str) -> std::result::Result<Vec<Row>, String> {
-    let mut lines = text.lines().enumerate();
-    let (_, header) = lines.next().ok_or("empty file")?;
-    let header: Vec<&str> = header
-        .split(',')
-        .map(|h| h.trim().trim_start_matches('\u{feff}'))
-        .collect();
-    let col = |name: &str| header.iter().position(|h| *h == name);
-    let need = |name: &str| col(name).ok_or(format!("missing column {name} (needs track_id, frame, x, y)"));
-    let (ti, fi, xi, yi) = (need("track_id")?, need("frame")?, need("x")?, need("y")?);
-    let (pi, xu, ts) = (col("parent_id"), col("x_um"), col("time_s"));
-    let mut rows = Vec::new();
-    for (n, line) in lines.filter(|(_, l)| !l.trim().is_empty()) {
-        let cells: Vec<&str> = line.split(',').map(str::trim).collect();
-        let line_no = n + 1;
-        let cell = |i: usize| cells.get(i).copied().ok_or(format!("line {line_no}: too few columns"));
-        let number = |i: usize, what: &str| -> std::result::Result<f64, String> {
-            cell(i)?
-                .parse::<f64>()
-                .ok()
-                .filter(|v| v.is_finite())
-                .ok_or(format!("line {line_no}: {what} is not a finite number"))
-        };
-        let optional = |i: Option<usize>| {
-            i.and_then(|i| cells.get(i))
-                .and_then(|c| c.parse::<f64>().ok())
-                .filter(|v| v.is_finite())
-        };
-        rows.push(Row {
-            line: line_no,
-            track_id: cell(ti)?
-                .parse()
-                .map_err(|_| format!("line {line_no}: track_id is not a whole number"))?,
-            parent_id: match pi.map(cell).transpose()? {
-                None | Some("") => None,
-                Some(v) => Some(
-                    v.parse()
-                        .map_err(|_| format!("line {line_no}: parent_id is not a whole number"))?,
-                ),
-            },
-            frame: cell(fi)?
-                .parse()
-                .map_err(|_| format!("line {line_no}: frame is not a whole number"))?,
-            x: number(xi, "x")?,
-            y: number(yi, "y")?,
-            x_um: optional(xu),
-            time_s: optional(ts),
-        });
-    }
-    Ok(rows)
 }
 
 /// The run record beside `csv`, if any. A file that is not JSON is an error; JSON that is not a
@@ -186,7 +122,11 @@ fn read_run_record(csv: &Path) -> Result<(Option<crate::record::RunRecord>, Opti
     })
 }
 
-fn resolve_units(given: CalibrationOverride, run: Option<&crate::record::RunRecord>, rows: &[Row]) -> Units {
+fn resolve_units(
+    given: CalibrationOverride,
+    run: Option<&crate::record::RunRecord>,
+    rows: &[crate::tracks::TrackRow],
+) -> Units {
     let run_cal = run.map(|r| r.input.stack.calibration);
     let from_run = |pick: fn(&crate::stack::Calibration) -> Option<f64>| run_cal.as_ref().and_then(pick);
     let from_csv_px = rows
@@ -217,8 +157,8 @@ fn resolve_units(given: CalibrationOverride, run: Option<&crate::record::RunReco
     }
 }
 
-fn build_tracks(rows: &[Row], units: &Units) -> std::result::Result<Vec<Track>, String> {
-    let mut by_id: BTreeMap<u32, (Option<u32>, Vec<&Row>)> = BTreeMap::new();
+fn build_tracks(rows: &[crate::tracks::TrackRow], units: &Units) -> std::result::Result<Vec<Track>, String> {
+    let mut by_id: BTreeMap<u32, (Option<u32>, Vec<&crate::tracks::TrackRow>)> = BTreeMap::new();
     for r in rows {
         let e = by_id.entry(r.track_id).or_insert((r.parent_id, Vec::new()));
         e.1.push(r);

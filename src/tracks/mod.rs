@@ -189,41 +189,115 @@ pub fn write_track_points(out: &mut impl Write, points: &[TrackPoint]) -> io::Re
     Ok(())
 }
 
-/// Reads track points written by [`write_track_points`] (or by hand with the same columns, in
-/// any order; extra columns ignored).
-pub fn read_track_points(text: &str) -> Result<Vec<TrackPoint>, String> {
-    let mut lines = text.lines();
-    let header: Vec<&str> = lines.next().ok_or("empty file")?.split(',').map(str::trim).collect();
-    let col = |name: &str| {
-        header
-            .iter()
-            .position(|h| *h == name)
-            .ok_or(format!("missing column {name}"))
+/// One row of a tracks table as read: the columns every tracks CSV has (`track_id, frame, x,
+/// y`, optionally `parent_id`), the optional calibrated ones (`x_um`, `time_s`), and the line
+/// it came from.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TrackRow {
+    /// Line number in the file (the header is line 1).
+    pub line: usize,
+    /// Track id.
+    pub track_id: u32,
+    /// Mother track id, if any.
+    pub parent_id: Option<u32>,
+    /// Frame number.
+    pub frame: usize,
+    /// Column, px.
+    pub x: f64,
+    /// Row, px.
+    pub y: f64,
+    /// Column in µm, when the table has it and the cell is a finite number.
+    pub x_um: Option<f64>,
+    /// Time in s, when the table has it and the cell is a finite number.
+    pub time_s: Option<f64>,
+}
+
+/// Reads any tracks CSV (ours, a truth table, a model's output): through the `csv` crate, so
+/// quoted fields and a byte-order mark are read as a spreadsheet writes them; columns found by
+/// name, in any order, extra columns ignored; blank lines skipped.
+///
+/// # Errors
+/// An empty file, a missing column (`track_id, frame, x, y`), a short row, an id or frame that
+/// is not a whole number, or a position that is not a finite number, each with its line.
+pub fn read_track_rows(text: &str) -> Result<Vec<TrackRow>, String> {
+    let text = text.trim_start_matches('\u{feff}');
+    // Line numbers from byte offsets: the reader's own count skips blank lines, and a record's
+    // position may point at the line ends before it, so start at its first other byte.
+    // Records come in order, so the count carries on from the previous record (linear time).
+    let bytes = text.as_bytes();
+    let (mut counted_to, mut newlines) = (0usize, 0usize);
+    let mut line_of = |byte: u64| {
+        let start = (byte as usize..bytes.len())
+            .find(|&i| bytes[i] != b'\r' && bytes[i] != b'\n')
+            .unwrap_or(bytes.len());
+        if start >= counted_to {
+            newlines += bytes[counted_to..start].iter().filter(|&&b| b == b'\n').count();
+            counted_to = start;
+        }
+        1 + newlines
     };
-    let (ti, pi, fi, xi, yi) = (
-        col("track_id")?,
-        col("parent_id").ok(),
-        col("frame")?,
-        col("x")?,
-        col("y")?,
-    );
-    let mut points = Vec::new();
-    for (n, line) in lines.enumerate().filter(|(_, l)| !l.trim().is_empty()) {
-        let cells: Vec<&str> = line.split(',').map(str::trim).collect();
-        let get = |i: usize| cells.get(i).copied().ok_or(format!("line {}: too few columns", n + 2));
-        let bad = |what: &str| format!("line {}: {what} is not a finite number", n + 2);
-        points.push(TrackPoint {
-            track_id: get(ti)?.parse().map_err(|_| bad("track_id"))?,
-            parent_id: match pi.map(get).transpose()? {
-                Some("") | None => None,
-                Some(v) => Some(v.parse().map_err(|_| bad("parent_id"))?),
+    let mut reader = csv::ReaderBuilder::new()
+        .flexible(true)
+        .trim(csv::Trim::All)
+        .from_reader(text.as_bytes());
+    let header = reader.headers().map_err(|e| e.to_string())?.clone();
+    if header.is_empty() || header.iter().all(str::is_empty) {
+        return Err("empty file".into());
+    }
+    let col = |name: &str| header.iter().position(|h| h == name);
+    let need = |name: &str| col(name).ok_or(format!("missing column {name} (needs track_id, frame, x, y)"));
+    let (ti, fi, xi, yi) = (need("track_id")?, need("frame")?, need("x")?, need("y")?);
+    let (pi, xu, ts) = (col("parent_id"), col("x_um"), col("time_s"));
+    let mut rows = Vec::new();
+    for record in reader.records() {
+        let record = record.map_err(|e| e.to_string())?;
+        if record.iter().all(str::is_empty) {
+            continue;
+        }
+        let line = record.position().map_or(0, |p| line_of(p.byte()));
+        let cell = |i: usize| record.get(i).ok_or(format!("line {line}: too few columns"));
+        let whole = |i: usize, what: &str| -> Result<u64, String> {
+            cell(i)?
+                .parse()
+                .map_err(|_| format!("line {line}: {what} is not a whole number"))
+        };
+        let number = |i: usize, what: &str| -> Result<f64, String> {
+            finite(cell(i)?).ok_or(format!("line {line}: {what} is not a finite number"))
+        };
+        let optional = |i: Option<usize>| i.and_then(|i| record.get(i)).and_then(finite);
+        let id = |v: u64, what: &str| u32::try_from(v).map_err(|_| format!("line {line}: {what} is too large"));
+        rows.push(TrackRow {
+            line,
+            track_id: id(whole(ti, "track_id")?, "track_id")?,
+            parent_id: match pi.map(cell).transpose()? {
+                None | Some("") => None,
+                Some(_) => Some(id(whole(pi.expect("present"), "parent_id")?, "parent_id")?),
             },
-            frame: get(fi)?.parse().map_err(|_| bad("frame"))?,
-            x: finite(get(xi)?).ok_or_else(|| bad("x"))?,
-            y: finite(get(yi)?).ok_or_else(|| bad("y"))?,
+            frame: whole(fi, "frame")? as usize,
+            x: number(xi, "x")?,
+            y: number(yi, "y")?,
+            x_um: optional(xu),
+            time_s: optional(ts),
         });
     }
-    Ok(points)
+    Ok(rows)
+}
+
+/// Reads a tracks table's points ([`read_track_rows`]).
+///
+/// # Errors
+/// As [`read_track_rows`].
+pub fn read_track_points(text: &str) -> Result<Vec<TrackPoint>, String> {
+    Ok(read_track_rows(text)?
+        .into_iter()
+        .map(|r| TrackPoint {
+            track_id: r.track_id,
+            parent_id: r.parent_id,
+            frame: r.frame,
+            x: r.x,
+            y: r.y,
+        })
+        .collect())
 }
 
 fn finite(cell: &str) -> Option<f64> {
@@ -233,6 +307,33 @@ fn finite(cell: &str) -> Option<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn quoted_fields_a_byte_order_mark_and_blank_lines_are_read() {
+        // Source: RFC 4180 (quoted fields may hold commas) and what spreadsheets write: a
+        // byte-order mark, quoted cells, CRLF line ends, a blank line. Hand-made table.
+        let text = "\u{feff}\"note\",\"track_id\",\"frame\",\"x\",\"y\",\"parent_id\"\r\n\"a, b\",\"3\",\"0\",\"1.5\",\"2\",\"\"\r\n\r\n\"c\",4,1,2.5,3,3\r\n";
+        let rows = read_track_rows(text).unwrap();
+        assert_eq!(rows.len(), 2);
+        assert_eq!(
+            (rows[0].track_id, rows[0].parent_id, rows[0].frame, rows[0].x, rows[0].y),
+            (3, None, 0, 1.5, 2.0)
+        );
+        assert_eq!(rows[0].line, 2);
+        assert_eq!((rows[1].track_id, rows[1].parent_id, rows[1].line), (4, Some(3), 4));
+        assert!(read_track_rows("track_id,frame,x\n1,0,2\n")
+            .unwrap_err()
+            .contains("missing column y"));
+        assert!(read_track_rows("track_id,frame,x,y\n1,0,nan,2\n")
+            .unwrap_err()
+            .contains("line 2: x is not a finite number"));
+        assert!(read_track_rows("track_id,frame,x,y\n1.5,0,1,2\n")
+            .unwrap_err()
+            .contains("line 2: track_id is not a whole number"));
+        assert!(read_track_rows("track_id,frame,x,y\n1,0\n")
+            .unwrap_err()
+            .contains("line 2: too few columns"));
+    }
 
     #[test]
     fn fixed_decimals_match_the_standard_formatter() {
