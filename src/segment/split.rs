@@ -64,7 +64,7 @@ impl Window {
 /// is foreground and connected to the pixel), and h-maxima reconstruction and flooding never
 /// leave a component. Departure: inside a window only the component's own distances are
 /// smoothed, so a neighbouring nucleus no longer lends its distances to this one's seeds (no
-/// change to any detection on the benchmark, crowded and stripe recordings, DEVELOPERS.md).
+/// change to any detection on the benchmark, crowded and stripe recordings, benches/SPEED.md).
 pub fn split_touching(
     mask: &[bool],
     width: usize,
