@@ -102,8 +102,55 @@ pub fn write_runs_manifest(
     Ok(path)
 }
 
+/// Runs `work` once for every entry, `jobs` at a time (default: half the cores, at least one),
+/// each job taking the next entry as it finishes one, and returns the results in manifest
+/// order whatever order they finished in.
+pub fn run_each<T: Send>(
+    entries: &[ManifestEntry],
+    jobs: Option<usize>,
+    work: impl Fn(usize, &ManifestEntry) -> T + Sync,
+) -> Vec<T> {
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let jobs = jobs.unwrap_or((cores / 2).max(1)).clamp(1, entries.len().max(1));
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let done: std::sync::Mutex<Vec<(usize, T)>> = std::sync::Mutex::new(Vec::new());
+    std::thread::scope(|s| {
+        for _ in 0..jobs {
+            s.spawn(|| loop {
+                let k = next.fetch_add(1, std::sync::atomic::Ordering::SeqCst);
+                let Some(entry) = entries.get(k) else { break };
+                let result = work(k, entry);
+                done.lock().expect("no panics while held").push((k, result));
+            });
+        }
+    });
+    let mut done = done.into_inner().expect("threads joined");
+    done.sort_by_key(|d| d.0);
+    done.into_iter().map(|d| d.1).collect()
+}
+
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn results_come_back_in_manifest_order() {
+        // Construction: the earlier entries take longer, so with two jobs they finish last; the
+        // results must still come back in manifest order, each once.
+        let entries: Vec<ManifestEntry> = (0..6)
+            .map(|k| ManifestEntry {
+                line: k + 2,
+                path: format!("r{k}.tif").into(),
+                condition: "c".into(),
+                replicate: k.to_string(),
+                labels: Default::default(),
+            })
+            .collect();
+        let out = run_each(&entries, Some(2), |k, e| {
+            std::thread::sleep(std::time::Duration::from_millis(5 * (6 - k as u64)));
+            e.line
+        });
+        assert_eq!(out, vec![2, 3, 4, 5, 6, 7]);
+    }
     use super::*;
 
     #[test]

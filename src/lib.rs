@@ -14,6 +14,7 @@
 //! | [`render`] | drawing overlays (the preview PNG, the QC movie) |
 //! | [`tracks`] | the `Detection` type and its CSV form |
 //! | [`pipeline`] | streaming orchestration over a whole recording, progress, run records |
+//! | [`workflow`] | the Snakemake workflow of a manifest (shards, joins, comparison) |
 //! | [`verdict`] | whether a run can be trusted: `ok`, `doubtful` or `failed`, with reasons and fixes |
 //! | [`reports`] | analysis and comparison folders: tables from `analyze`, pages from `render` |
 //! | [`record`] | the run record (`run.json`), written and read as one typed structure |
@@ -45,6 +46,7 @@ pub mod stack;
 pub mod synth;
 pub mod tracks;
 pub mod verdict;
+pub mod workflow;
 
 pub use error::{Error, Result};
 

@@ -7,7 +7,7 @@ use super::{Completion, SegmentationArgs};
 use caravan::analyze::compare::{compare, read_manifest, read_manifest_entries};
 use caravan::analyze::population::AnalysisOptions;
 use caravan::analyze::table::{CalibrationOverride, Filters};
-use caravan::batch::{run_folders, write_runs_manifest};
+use caravan::batch::{run_each, run_folders, write_runs_manifest};
 use caravan::pipeline::run_recording;
 use caravan::reports::write_comparison;
 use caravan::stack::{OpenOptions, Stack};
@@ -15,8 +15,6 @@ use caravan::verdict::Verdict;
 use caravan::{Error, Result};
 use clap::Args;
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicUsize, Ordering};
-use std::sync::Mutex;
 
 #[derive(Args)]
 pub struct BatchArgs {
@@ -58,24 +56,14 @@ pub fn run(args: BatchArgs) -> Result<Completion> {
     args.linking.validate()?;
     let entries = read_manifest_entries(&args.manifest)?;
     let folders = run_folders(&entries, &args.output);
-    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
-    let jobs = args.jobs.unwrap_or((cores / 2).max(1)).clamp(1, entries.len().max(1));
-    let next = AtomicUsize::new(0);
-    let outcomes: Mutex<Vec<(usize, Outcome)>> = Mutex::new(Vec::new());
-    std::thread::scope(|s| {
-        for _ in 0..jobs {
-            s.spawn(|| loop {
-                let k = next.fetch_add(1, Ordering::SeqCst);
-                let Some(entry) = entries.get(k) else { break };
-                let outcome =
-                    track_one(&entry.path, &folders[k], &args).unwrap_or_else(|e| Outcome::Failed(e.to_string()));
-                report(&entry.path, &folders[k], &outcome);
-                outcomes.lock().expect("no panics while held").push((k, outcome));
-            });
-        }
-    });
-    let mut outcomes = outcomes.into_inner().expect("threads joined");
-    outcomes.sort_by_key(|o| o.0);
+    let outcomes: Vec<(usize, Outcome)> = run_each(&entries, args.jobs, |k, entry| {
+        let outcome = track_one(&entry.path, &folders[k], &args).unwrap_or_else(|e| Outcome::Failed(e.to_string()));
+        report(&entry.path, &folders[k], &outcome);
+        outcome
+    })
+    .into_iter()
+    .enumerate()
+    .collect();
     let failed = outcomes.iter().filter(|o| matches!(o.1, Outcome::Failed(_))).count();
     let verdicts: Vec<Option<Verdict>> = outcomes.iter().map(|o| o.1.verdict()).collect();
     let runs = write_runs_manifest(&entries, &folders, &verdicts, &args.output)?;
