@@ -7,9 +7,9 @@ use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 use tiff::encoder::{colortype, TiffEncoder};
 
-fn caravan(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_caravan")).args(args).output().unwrap()
-}
+mod common;
+
+use common::caravan;
 
 fn track(input: &Path, out: &Path) -> Output {
     track_with(input, out, &[])

@@ -15,9 +15,8 @@ use caravan::link::{LinkOptions, Prediction};
 use caravan::score::files::score_files;
 use caravan::score::tracking::TrackingScore;
 use caravan::synth::{write_recording, Look, PersistentMotion, Scenario, SynthParams};
-use common::{track_synthetic, TrackedScene};
+use common::{caravan, track_synthetic, TrackedScene};
 use std::path::Path;
-use std::process::Command;
 
 fn score(scene: &TrackedScene, tracks: &Path) -> TrackingScore {
     score_files(&scene.syn, tracks, None, None).unwrap().1
@@ -210,10 +209,6 @@ fn the_diameter_estimate_is_close_to_the_truth() {
         assert!((e.px - d).abs() < (0.1 * d).max(1.5), "{scenario:?} d {d}: {}", e.px);
         assert_ne!(e.confidence, caravan::segment::diameter::Confidence::Low);
     }
-}
-
-fn caravan(args: &[&str]) -> std::process::Output {
-    Command::new(env!("CARGO_BIN_EXE_caravan")).args(args).output().unwrap()
 }
 
 #[test]

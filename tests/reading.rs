@@ -133,7 +133,7 @@ fn plane_delta_t_and_resolution_tags_and_overrides() {
         CalibrationSource::OmePlaneDeltaT
     );
     let s = open("resolution_cm.tif", &OpenOptions::default()).unwrap();
-    // Source: METHODS.md §10, 20000 px per cm -> 0.5 µm.
+    // Source: fixtures/methods/check_values.md §10, 20000 px per cm -> 0.5 µm.
     assert_eq!(s.info().calibration.pixel_size_um, Some(0.5));
     assert_eq!(
         s.info().calibration.pixel_size_source,
@@ -188,7 +188,7 @@ fn unsupported_sample_type_is_named() {
     assert!(e.contains("16-bit signed integer samples are not supported"), "{e}");
 }
 
-/// The minimal 3x2 uint16 TIFF of METHODS.md §10 (146 bytes, 10 tags, one strip), built by hand.
+/// The minimal 3x2 uint16 TIFF of fixtures/methods/check_values.md §10 (146 bytes, 10 tags, one strip), built by hand.
 fn minimal_tiff(big_endian: bool, width: u32, height: u32) -> Vec<u8> {
     let mut b: Vec<u8> = Vec::new();
     let u16b = |v: u16| if big_endian { v.to_be_bytes() } else { v.to_le_bytes() };
@@ -229,7 +229,7 @@ fn minimal_tiff(big_endian: bool, width: u32, height: u32) -> Vec<u8> {
 
 #[test]
 fn hand_built_minimal_tiff_in_both_byte_orders() {
-    // Source: METHODS.md §10 check (own writer, read back by Pillow 13): 146 bytes, pixels
+    // Source: fixtures/methods/check_values.md §10 check (own writer, read back by Pillow 13): 146 bytes, pixels
     // [[1,2,3],[256,513,65535]], headers 49 49 2a 00 08 00 00 00 / 4d 4d 00 2a 00 00 00 08.
     let dir = tempfile::tempdir().unwrap();
     for be in [false, true] {

@@ -91,7 +91,7 @@ mod tests {
 
     #[test]
     fn methods_rayleigh_check() {
-        // Source: METHODS.md §9 (Zar 2010 formula, values recomputed with numpy): angles
+        // Source: fixtures/methods/check_values.md §9 (Zar 2010 formula, values recomputed with numpy): angles
         // 10,20,30,40,200,350°: R = 3.778637, r̄ = 0.629773, z = 2.379683, p = 0.088717,
         // mean 17.6038°.
         let s = circular_summary(&rad(&[10., 20., 30., 40., 200., 350.])).unwrap();
@@ -104,7 +104,7 @@ mod tests {
 
     #[test]
     fn methods_v_test_check() {
-        // Source: METHODS.md §9, angles of Zar's Example 27.2, μ₀ = 90°: r̄ = 0.952137,
+        // Source: fixtures/methods/check_values.md §9, angles of Zar's Example 27.2, μ₀ = 90°: r̄ = 0.952137,
         // θ̄ = 94.0482°, V = 9.497612, u = 4.247461, one-sided normal p = 1.08e-5; Rayleigh
         // z = 9.065643, p = 5.3e-6 (scipy's directional_stats gives the same r̄).
         let a = rad(&[66., 75., 86., 88., 88., 93., 97., 101., 118., 130.]);

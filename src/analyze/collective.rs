@@ -129,7 +129,7 @@ mod tests {
 
     #[test]
     fn methods_order_parameter_and_neighbour_check() {
-        // Source: METHODS.md §9: velocities (1,0),(0.8,0.6),(0.6,−0.8),(−1,0): φ = 0.353553,
+        // Source: fixtures/methods/check_values.md §9: velocities (1,0),(0.8,0.6),(0.6,−0.8),(−1,0): φ = 0.353553,
         // first three 0.802773; positions (0,0),(3,0),(0,4),(20,20): pairs within 5 have
         // cosines 0.8, 0.6, 0, mean 0.466667.
         let v = [[1.0, 0.0], [0.8, 0.6], [0.6, -0.8], [-1.0, 0.0]];

@@ -483,7 +483,7 @@ mod tests {
 
     #[test]
     fn smallest_p_for_few_replicates() {
-        // Source: METHODS.md §9: 3 vs 3 embryos, smallest possible two-sided MWU p = 0.1;
+        // Source: fixtures/methods/check_values.md §9: 3 vs 3 embryos, smallest possible two-sided MWU p = 0.1;
         // 5 vs 5: 2/252 = 0.0079 (binomial coefficient C(10,5) = 252).
         assert!((smallest_possible_p(3, 3) - 0.1).abs() < 1e-12);
         assert!((smallest_possible_p(5, 5) - 2.0 / 252.0).abs() < 1e-12);

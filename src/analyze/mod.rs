@@ -117,7 +117,7 @@ mod tests {
 
     #[test]
     fn worked_track_from_methods() {
-        // Source: METHODS.md §9 worked track (µm), (0,0),(1,0),(2,1),(2,2),(3,2),(5,2), Δt = 2 min:
+        // Source: fixtures/methods/check_values.md §9 worked track (µm), (0,0),(1,0),(2,1),(2,2),(3,2),(5,2), Δt = 2 min:
         // path 6.414214, net 5.385165, ratio 0.839567, mean speed 0.641421 µm/min.
         let pts: Vec<(usize, f64, f64)> = [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
             .iter()

@@ -146,7 +146,7 @@ mod tests {
 
     #[test]
     fn methods_worked_track() {
-        // Source: METHODS.md §9 worked track (µm), Δt = 2 min: path 6.414214, net 5.385165,
+        // Source: fixtures/methods/check_values.md §9 worked track (µm), Δt = 2 min: path 6.414214, net 5.385165,
         // ratio 0.839567, mean speed 0.641421 µm/min, FMI_x 0.779519, FMI_y 0.311808, turning
         // angles 45, 45, −90, 0.
         let t: Vec<(usize, f64, f64)> = [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
@@ -171,7 +171,7 @@ mod tests {
 
     #[test]
     fn methods_zigzag_sampling_bias() {
-        // Source: METHODS.md §9: a zig-zag (i, ±0.5), i = 0..8, has directionality 0.707107
+        // Source: fixtures/methods/check_values.md §9: a zig-zag (i, ±0.5), i = 0..8, has directionality 0.707107
         // (= 1/√2) sampled every frame and 1.0 every second frame.
         let z: Vec<(usize, f64, f64)> = (0..=8)
             .map(|i| (i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 }))

@@ -296,7 +296,7 @@ mod tests {
 
     #[test]
     fn methods_worked_track_msd_and_autocorrelation() {
-        // Source: METHODS.md §9 worked track (µm, Δt = 2 min): MSD lags 1–5 = 1.8, 5.25,
+        // Source: fixtures/methods/check_values.md §9 worked track (µm, Δt = 2 min): MSD lags 1–5 = 1.8, 5.25,
         // 8.666667, 16.5, 29.0 from 5, 4, 3, 2, 1 pairs; VACF lags 0–4 = 0.45, 0.25, 0.083333,
         // 0.375, 0.5 µm²/min²; direction autocorrelation lags 1–4 = 0.603553, 0.235702,
         // 0.853553, 1.0.
@@ -320,7 +320,7 @@ mod tests {
 
     #[test]
     fn methods_furth_check() {
-        // Source: METHODS.md §9: D = 2, P = 5 gives MSD(1, 5, 20) = 0.74923, 14.715178,
+        // Source: fixtures/methods/check_values.md §9: D = 2, P = 5 gives MSD(1, 5, 20) = 0.74923, 14.715178,
         // 120.732626; a fit over lags 1–20 of exact values recovers D = 2, P = 5 (scipy
         // curve_fit); log-log slope 1.853275 over lags 1–5 and 1.393237 over lags 11–20.
         assert!((furth_msd(1.0, 2.0, 5.0) - 0.74923).abs() < 1e-5);

@@ -19,7 +19,7 @@ pub struct AnalysisOptions {
     /// Elapsed frames for the directionality ratio at a fixed time.
     pub fixed_elapsed_frames: usize,
     /// Lags (frames) of the Fürth fit and the anomalous exponent; `None`: 1 to a quarter of the
-    /// median track span (common practice: fit lags ≤ N/4, METHODS.md §9), at least 3.
+    /// median track span (common practice: fit lags ≤ N/4, fixtures/methods/check_values.md §9), at least 3.
     pub fit_lags: Option<(usize, usize)>,
     /// Neighbours for the local density estimate.
     pub density_neighbours: usize,

@@ -195,7 +195,7 @@ mod tests {
 
     #[test]
     fn methods_mann_whitney_checks() {
-        // Source: METHODS.md §9 (scipy 1.17.1 mannwhitneyu): x vs y U₁ = 4, exact p = 0.051948;
+        // Source: fixtures/methods/check_values.md §9 (scipy 1.17.1 mannwhitneyu): x vs y U₁ = 4, exact p = 0.051948;
         // with ties U₁ = 6, p = 0.113903 (asymptotic, tie-corrected).
         let m = mann_whitney(&[1.1, 2.3, 3.0, 4.2, 5.5], &[2.0, 6.1, 7.3, 8.4, 9.0, 10.2]).unwrap();
         assert_eq!((m.u1, m.method), (4.0, "exact"));
@@ -203,13 +203,13 @@ mod tests {
         let m = mann_whitney(&[1., 2., 2., 3., 4.], &[2., 3., 3., 5., 6., 7.]).unwrap();
         assert_eq!((m.u1, m.method), (6.0, "asymptotic"));
         assert!((m.p - 0.113903).abs() < 1e-6, "{}", m.p);
-        // The smallest two-sided p of 3 vs 3 is 0.1 (METHODS.md §9).
+        // The smallest two-sided p of 3 vs 3 is 0.1 (fixtures/methods/check_values.md §9).
         assert!((mann_whitney(&[1., 2., 3.], &[4., 5., 6.]).unwrap().p - 0.1).abs() < 1e-12);
     }
 
     #[test]
     fn methods_pseudo_replication_check() {
-        // Source: METHODS.md §9: pooled cells p = 0.037258 (18 vs 13); embryo means p = 0.7;
+        // Source: fixtures/methods/check_values.md §9: pooled cells p = 0.037258 (18 vs 13); embryo means p = 0.7;
         // hierarchical bootstrap of ctrl ≈ mean of embryo means 0.614857 (assert ±0.005).
         let ctrl = vec![
             vec![0.60, 0.62, 0.61, 0.63, 0.64, 0.62],

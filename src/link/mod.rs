@@ -196,21 +196,13 @@ struct Component {
 /// Splits the bipartite candidate graph into connected components (union-find); objects
 /// without candidates form no component (they simply die or are born).
 fn components(n_sources: usize, n_targets: usize, candidates: &[(usize, usize, f64)]) -> Vec<Component> {
-    let mut parent: Vec<usize> = (0..n_sources + n_targets).collect();
-    fn find(p: &mut [usize], mut i: usize) -> usize {
-        while p[i] != i {
-            p[i] = p[p[i]];
-            i = p[i];
-        }
-        i
-    }
+    let mut sets = crate::numeric::DisjointSets::new(n_sources + n_targets);
     for &(s, t, _) in candidates {
-        let (a, b) = (find(&mut parent, s), find(&mut parent, n_sources + t));
-        parent[a.max(b)] = a.min(b);
+        sets.union(s, n_sources + t);
     }
     let mut by_root: std::collections::BTreeMap<usize, Component> = Default::default();
     for (k, &(s, t, _)) in candidates.iter().enumerate() {
-        let root = find(&mut parent, s);
+        let root = sets.find(s);
         let c = by_root.entry(root).or_insert_with(|| Component {
             sources: vec![],
             targets: vec![],
@@ -305,7 +297,7 @@ mod tests {
 
     #[test]
     fn methods_lap_check_value() {
-        // Source: METHODS.md §7 (own construction checked with scipy linear_sum_assignment):
+        // Source: fixtures/methods/check_values.md §7 (own construction checked with scipy linear_sum_assignment):
         // sources (0,0),(10,0); targets (1,0),(10,2),(30,0); max distance 5 -> alternative
         // 1.05 x 4 = 4.2, links 0->0 and 1->1, target 2 born, no deaths.
         let r = link_frames(&[[0.0, 0.0], [10.0, 0.0]], &[[1.0, 0.0], [10.0, 2.0], [30.0, 0.0]], 5.0);

@@ -355,7 +355,7 @@ mod tests {
 
     #[test]
     fn with_one_model_it_is_the_kalman_filter_of_the_check_value() {
-        // Source: METHODS.md §7 (recomputed by shared/methods/check_values.py with numpy):
+        // Source: fixtures/methods/check_values.md §7 (recomputed by fixtures/methods/check_values.py with numpy):
         // F=[[1,1],[0,1]], H=[1,0], Q=0.1·[[1/3,1/2],[1/2,1]], R=1, x0=[0,0], P0=diag(10,10);
         // after z = 1, 2.1, 2.9: x = [2.915217, 0.920377], P diagonal [0.782838, 0.478714],
         // next predicted position 3.835594. With no switching and all weight on the
@@ -386,7 +386,7 @@ mod tests {
     #[test]
     fn gate_quantile_is_chi_square_two_dof() {
         // Source: the χ² distribution with 2 degrees of freedom is exponential with mean 2, so
-        // its 0.99 quantile is −2 ln(0.01); METHODS.md §7 quotes 9.21.
+        // its 0.99 quantile is −2 ln(0.01); fixtures/methods/check_values.md §7 quotes 9.21.
         assert!((GATE_CHI2_99 - (-2.0 * 0.01f64.ln())).abs() < 1e-12);
         assert!((GATE_CHI2_99 - 9.21).abs() < 0.001);
         assert!((GATE_CHI2 - (-2.0 * 0.001f64.ln())).abs() < 1e-12);

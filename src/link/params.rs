@@ -68,7 +68,7 @@ pub struct LinkOptions {
 
 impl Default for LinkOptions {
     /// Everything measured, prediction on, gaps of up to 2 missing frames closed (common
-    /// practice: 1–3, METHODS.md §7), divisions detected.
+    /// practice: 1–3, fixtures/methods/check_values.md §7), divisions detected.
     fn default() -> Self {
         LinkOptions {
             max_step_px: None,

@@ -44,6 +44,41 @@ pub fn quantile(values: &[f64], q: f64) -> Option<f64> {
     Some(v[lo] + (h - lo as f64) * (v[hi] - v[lo]))
 }
 
+/// Disjoint sets over `0..n` (union-find with path halving), where a union keeps the smaller
+/// index as the root, so roots do not depend on the order of unions.
+///
+/// # Method
+/// R. E. Tarjan & J. van Leeuwen (1984), "Worst-case analysis of set union algorithms",
+/// J. ACM 31(2):245–281, doi:10.1145/62.2160 (path halving).
+#[derive(Debug, Clone)]
+pub struct DisjointSets {
+    parent: Vec<usize>,
+}
+
+impl DisjointSets {
+    /// `n` sets of one element each.
+    pub fn new(n: usize) -> Self {
+        DisjointSets {
+            parent: (0..n).collect(),
+        }
+    }
+
+    /// The root of `i`'s set.
+    pub fn find(&mut self, mut i: usize) -> usize {
+        while self.parent[i] != i {
+            self.parent[i] = self.parent[self.parent[i]];
+            i = self.parent[i];
+        }
+        i
+    }
+
+    /// Joins the sets of `a` and `b` under the smaller root.
+    pub fn union(&mut self, a: usize, b: usize) {
+        let (ra, rb) = (self.find(a), self.find(b));
+        self.parent[ra.max(rb)] = ra.min(rb);
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -60,5 +95,14 @@ mod tests {
         assert_eq!(quantile(&[10.0], 0.9), Some(10.0));
         assert_eq!(median(&mut []), None);
         assert_eq!(lower_median(&mut []), None);
+    }
+
+    #[test]
+    fn disjoint_sets_join_under_the_smallest_index() {
+        // Hand-made: {0}, {1, 3, 4}, {2}; the root of a set is its smallest element.
+        let mut d = DisjointSets::new(5);
+        d.union(4, 3);
+        d.union(3, 1);
+        assert_eq!([d.find(0), d.find(1), d.find(2), d.find(3), d.find(4)], [0, 1, 2, 1, 1]);
     }
 }

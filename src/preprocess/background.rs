@@ -247,7 +247,7 @@ mod tests {
         let out = tophat(&img, 29, 0.0);
         assert!((out[[54, 74]] - 100.0).abs() < 0.1, "{}", out[[54, 74]]);
         // Interior points only: within a window of the border the reflection makes any opening
-        // lag the ramp (METHODS.md §3 shows the same artefact for a disk).
+        // lag the ramp (fixtures/methods/check_values.md §3 shows the same artefact for a disk).
         for (y, x) in [(20, 20), (100, 140), (60, 20), (30, 120)] {
             assert!(out[[y, x]] < 0.1, "({y},{x}): {}", out[[y, x]]);
         }
@@ -257,7 +257,7 @@ mod tests {
     fn tophat_keeps_a_spot_on_a_ramp_whole() {
         // Source: a flat opening leaves a monotone ramp unchanged (erosion and dilation shift
         // it by the same amount), so the top-hat of ramp + spot is the spot alone, 10.
-        // Compare METHODS.md §3: a disk(3) top-hat gives 9.5 because a discrete disk loses
+        // Compare fixtures/methods/check_values.md §3: a disk(3) top-hat gives 9.5 because a discrete disk loses
         // slope next to the spot; a square does not.
         let img = Image::from_shape_fn((21, 41), |(y, x)| {
             0.5 * x as f32

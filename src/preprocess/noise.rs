@@ -79,7 +79,7 @@ mod tests {
 
     #[test]
     fn immerkaer_check_values() {
-        // Source: METHODS.md §13 (recomputed by shared/methods/check_values.py): a 32x32
+        // Source: fixtures/methods/check_values.md §13 (recomputed by fixtures/methods/check_values.py): a 32x32
         // checkerboard (−1)^(i+j) gives σ = 3.342171; the plane 2i + 3j gives 0.
         let checker = Image::from_shape_fn((32, 32), |(i, j)| if (i + j) % 2 == 0 { 1.0 } else { -1.0 });
         assert!((immerkaer_sigma(&checker) - 3.342171).abs() < 1e-6);
@@ -91,7 +91,7 @@ mod tests {
     #[test]
     fn white_noise_level_is_recovered() {
         // Source: the definition of the estimator; Gaussian noise σ = 5 on a constant and on a
-        // tilted background, 256x256 px (METHODS.md §13 quotes 5.0356 for numpy's generator;
+        // tilted background, 256x256 px (fixtures/methods/check_values.md §13 quotes 5.0356 for numpy's generator;
         // ours is another generator, so within 2%).
         let mut rng = Rng::new(3);
         let img = Image::from_shape_fn((256, 256), |(i, j)| {

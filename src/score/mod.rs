@@ -185,7 +185,7 @@ pub struct IouScore {
 
 /// Matches objects of two label images (0 = background) whose IoU exceeds 0.5; for
 /// non-overlapping label images such partners are unique, so this greedy rule equals the
-/// optimal matching (METHODS.md §5).
+/// optimal matching (fixtures/methods/check_values.md §5).
 pub fn iou_match(reference: &[u32], test: &[u32]) -> IouScore {
     let mut area_r: HashMap<u32, u64> = HashMap::new();
     let mut area_t: HashMap<u32, u64> = HashMap::new();
@@ -263,7 +263,7 @@ mod tests {
 
     #[test]
     fn iou_matching_catches_a_split() {
-        // Source: METHODS.md §5 worked example on a 4x9 image: IoU(A1,B7) = 0.75, A2 split
+        // Source: fixtures/methods/check_values.md §5 worked example on a 4x9 image: IoU(A1,B7) = 0.75, A2 split
         // into B8 and B9 with IoU 0.5 each (not > 0.5): TP 1, FP 2, FN 1, F1 = 0.4.
         let (w, h) = (9, 4);
         let mut a = vec![0u32; w * h];

@@ -131,7 +131,7 @@ pub struct AogmCounts {
     pub reference_edges: usize,
 }
 
-/// Weights of the AOGM terms for TRA: NS 5, FN 10, FP 1, ED 1, EA 1.5, EC 1 (METHODS.md §8,
+/// Weights of the AOGM terms for TRA: NS 5, FN 10, FP 1, ED 1, EA 1.5, EC 1 (fixtures/methods/check_values.md §8,
 /// from memory there, as published by Matula et al. 2015).
 pub const TRA_WEIGHTS: [f64; 6] = [5.0, 10.0, 1.0, 1.0, 1.5, 1.0];
 
@@ -518,7 +518,7 @@ pub(crate) mod tests {
 
     #[test]
     fn methods_tra_det_check_1() {
-        // Source: METHODS.md §8 check 1 (formula: Matula et al. 2015 / the challenge's
+        // Source: fixtures/methods/check_values.md §8 check 1 (formula: Matula et al. 2015 / the challenge's
         // evaluation page): reference 2 cells x 3 frames (|V| = 6, |E| = 4); the result misses
         // cell B at t = 2: FN = 1, EA = 1, AOGM = 11.5, AOGM₀ = 66, TRA = 0.825758,
         // DET = 1 − 10/60 = 0.833333.
@@ -541,7 +541,7 @@ pub(crate) mod tests {
 
     #[test]
     fn methods_tra_det_check_2_arithmetic() {
-        // Source: METHODS.md §8 check 2 (arithmetic only): NS 1, FP 2, ED 1, EA 2, EC 1 on the
+        // Source: fixtures/methods/check_values.md §8 check 2 (arithmetic only): NS 1, FP 2, ED 1, EA 2, EC 1 on the
         // same reference: AOGM = 12, TRA = 0.818182, DET = 1 − 7/60 = 0.883333.
         let c = AogmCounts {
             splits: 1,
@@ -620,7 +620,7 @@ pub(crate) mod tests {
 
     #[test]
     fn methods_mota_motp_check() {
-        // Source: METHODS.md §8 CLEAR-MOT check (Bernardin & Stiefelhagen 2008): 4 frames x 2
+        // Source: fixtures/methods/check_values.md §8 CLEAR-MOT check (Bernardin & Stiefelhagen 2008): 4 frames x 2
         // reference objects (8), FN = 1, FP = 1, IDSW = 1 → MOTA = 0.625; 7 matches at distances
         // 0.5, 0.3, 0.2, 0.4, 0.1, 0.6, 0.2 → MOTP = 0.328571. Built here: result track 1
         // follows A; track 2 follows B at frames 0-1; at frame 2 B is missed and a spurious

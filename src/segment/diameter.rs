@@ -75,7 +75,7 @@ pub fn log_noise_gain(s: f64) -> f64 {
 /// at the selected scale (noise σ from [`robust_noise_sigma`], the response of white noise
 /// from [`log_noise_gain`]). Comparing with the noise at each scale is what keeps a noisy
 /// frame from selecting its smallest scale: white noise's normalised response falls as
-/// `1/s`, so an unconstrained maximum over scales lands on the noise (METHODS.md §13).
+/// `1/s`, so an unconstrained maximum over scales lands on the noise (fixtures/methods/check_values.md §13).
 ///
 /// Work is bounded: scales from 1.5 to 24 px in steps of 8%, scales above 3 px computed on
 /// images binned 2x, 4x, ... (binning by the mean divides white noise by the factor).
@@ -129,7 +129,7 @@ pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
         .collect()
 }
 
-/// The diameter of a disc whose LoG response peaks at scale σ (d = 2√2·σ, METHODS.md §6).
+/// The diameter of a disc whose LoG response peaks at scale σ (d = 2√2·σ, fixtures/methods/check_values.md §6).
 pub fn disc_diameter(sigma: f64) -> f64 {
     2.0 * std::f64::consts::SQRT_2 * sigma
 }
@@ -432,7 +432,7 @@ mod tests {
 
     #[test]
     fn scale_selection_matches_scipy_check_values() {
-        // Source: METHODS.md §6 (scipy 1.17.1 ndi.gaussian_laplace, centre pixel of an 81x81
+        // Source: fixtures/methods/check_values.md §6 (scipy 1.17.1 ndi.gaussian_laplace, centre pixel of an 81x81
         // image, σ grid 2.00–10.00 step 0.05): disk r=6 -> 4.25, r=8 -> 5.60, r=10 -> 7.10.
         let sigmas: Vec<f64> = (0..=160).map(|i| 2.0 + 0.05 * i as f64).collect();
         for (r, want) in [(6.0, 4.25), (8.0, 5.60), (10.0, 7.10)] {
@@ -477,7 +477,7 @@ mod tests {
     #[test]
     fn dim_discs_are_sized_in_noise() {
         // Source: construction. Discs of radius 7 (d = 14) with contrast 3x the noise s.d.,
-        // on a grid of 40 px; scale selection of a disc gives d = 2√2·σ* (METHODS.md §6),
+        // on a grid of 40 px; scale selection of a disc gives d = 2√2·σ* (fixtures/methods/check_values.md §6),
         // so the blob diameter is within 10% of 14 and every disc is found, nothing else.
         let mut rng = Rng::new(12);
         let img = Image::from_shape_fn((320, 320), |(y, x)| {

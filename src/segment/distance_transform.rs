@@ -136,7 +136,7 @@ mod tests {
 
     #[test]
     fn one_dimensional_check_value() {
-        // Source: METHODS.md §4, FH 1D on [0,∞,∞,∞,0,∞,∞] -> [0,1,4,1,0,1,4].
+        // Source: fixtures/methods/check_values.md §4, FH 1D on [0,∞,∞,∞,0,∞,∞] -> [0,1,4,1,0,1,4].
         let f = [0.0, FAR, FAR, FAR, 0.0, FAR, FAR];
         let mut out = [0.0; 7];
         squared_distance_1d(&f, 1.0, &mut out);
@@ -152,7 +152,7 @@ mod tests {
 
     #[test]
     fn two_dimensional_check_values() {
-        // Source: METHODS.md §4 (scipy 1.17.1 distance_transform_edt), 5x7 ones with zeros
+        // Source: fixtures/methods/check_values.md §4 (scipy 1.17.1 distance_transform_edt), 5x7 ones with zeros
         // at (2,3) and (0,0).
         let d = squared_edt(&methods_mask(), 7, 5, (1.0, 1.0));
         let want_row0 = [0.0, 1.0, 2.0, 2.0, 2.236068, 2.828427, 3.605551];

@@ -32,14 +32,7 @@ pub fn fill_holes(mask: &mut [bool], width: usize, height: usize) {
         }
     }
     row_start.push(runs.len());
-    let mut parent: Vec<usize> = (0..runs.len()).collect();
-    fn find(p: &mut [usize], mut i: usize) -> usize {
-        while p[i] != i {
-            p[i] = p[p[i]];
-            i = p[i];
-        }
-        i
-    }
+    let mut sets = crate::numeric::DisjointSets::new(runs.len());
     for y in 1..height {
         let (above, here) = (row_start[y - 1]..row_start[y], row_start[y]..row_start[y + 1]);
         let mut a = above.start;
@@ -50,8 +43,7 @@ pub fn fill_holes(mask: &mut [bool], width: usize, height: usize) {
             }
             let mut b = a;
             while b < above.end && runs[b].1 < e {
-                let (ra, rb) = (find(&mut parent, b), find(&mut parent, r));
-                parent[ra.max(rb)] = ra.min(rb);
+                sets.union(b, r);
                 b += 1;
             }
         }
@@ -59,12 +51,12 @@ pub fn fill_holes(mask: &mut [bool], width: usize, height: usize) {
     let mut outside = vec![false; runs.len()];
     for (k, &(y, s, e)) in runs.iter().enumerate() {
         if y == 0 || y + 1 == height || s == 0 || e == width {
-            let root = find(&mut parent, k);
+            let root = sets.find(k);
             outside[root] = true;
         }
     }
     for (k, &(y, s, e)) in runs.iter().enumerate() {
-        let root = find(&mut parent, k);
+        let root = sets.find(k);
         if !outside[root] {
             mask[y * width + s..y * width + e].iter_mut().for_each(|m| *m = true);
         }

@@ -311,7 +311,7 @@ mod tests {
     }
 
     fn two_discs() -> Vec<bool> {
-        // Source: METHODS.md §5, discs r=12 at (20,20) and r=10 at (20,38) in 40x60.
+        // Source: fixtures/methods/check_values.md §5, discs r=12 at (20,20) and r=10 at (20,38) in 40x60.
         let (w, h) = (60, 40);
         (0..w * h)
             .map(|i| {
@@ -330,7 +330,7 @@ mod tests {
 
     #[test]
     fn two_overlapping_discs_split_below_the_neck_dynamic() {
-        // Source: METHODS.md §5 (skimage 0.26): area 725; h = 1, 2, 3 give two objects of
+        // Source: fixtures/methods/check_values.md §5 (skimage 0.26): area 725; h = 1, 2, 3 give two objects of
         // 431 and 294 px; h = 4 gives one of 725 px. Tie lines may go either way, so sizes
         // are checked within a few pixels.
         let mask = two_discs();

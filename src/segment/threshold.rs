@@ -211,7 +211,7 @@ fn numpy_bin(guess: usize, v: f64, edges: &[f64]) -> usize {
 ///
 /// ```
 /// use caravan::segment::threshold::{otsu_threshold, Histogram};
-/// // METHODS.md §1 check value (scikit-image 0.26): a six-way tie, the first maximum wins.
+/// // fixtures/methods/check_values.md §1 check value (scikit-image 0.26): a six-way tie, the first maximum wins.
 /// let h = Histogram::of_integers(&[0, 0, 1, 1, 2, 8, 9, 9, 10, 10]).unwrap();
 /// assert_eq!(otsu_threshold(&h), 2.0);
 /// ```
@@ -350,7 +350,7 @@ mod tests {
     use super::*;
 
     fn bimodal() -> Vec<u32> {
-        // Source: METHODS.md §1 bimodal sample, counts[v] = round(1000 e^{-(v-30)²/50}) +
+        // Source: fixtures/methods/check_values.md §1 bimodal sample, counts[v] = round(1000 e^{-(v-30)²/50}) +
         // round(500 e^{-(v-90)²/200}).
         let mut v = Vec::new();
         for level in 0..256u32 {
@@ -364,7 +364,7 @@ mod tests {
 
     #[test]
     fn otsu_matches_methods_check_values() {
-        // Source: METHODS.md §1 (skimage 0.26 threshold_otsu).
+        // Source: fixtures/methods/check_values.md §1 (skimage 0.26 threshold_otsu).
         let h = Histogram::of_integers(&[0, 0, 1, 1, 2, 8, 9, 9, 10, 10]).unwrap();
         assert_eq!(otsu_threshold(&h), 2.0);
         let f = Histogram::of_floats([0., 0., 1., 1., 2., 8., 9., 9., 10., 10.].into_iter(), 256).unwrap();
@@ -382,7 +382,7 @@ mod tests {
             107.802734375
         );
         let bi = bimodal();
-        assert_eq!(bi.len(), 25064, "N from METHODS.md §1");
+        assert_eq!(bi.len(), 25064, "N from fixtures/methods/check_values.md §1");
         assert_eq!(otsu_threshold(&Histogram::of_integers(&bi).unwrap()), 60.0);
         assert_eq!(
             otsu_threshold(&Histogram::of_floats(bi.iter().map(|&v| v as f64), 256).unwrap()),
@@ -392,7 +392,7 @@ mod tests {
 
     #[test]
     fn triangle_and_li_match_methods_check_values() {
-        // Source: METHODS.md §2 (skimage 0.26): triangle 44, Li 53.1075347162524.
+        // Source: fixtures/methods/check_values.md §2 (skimage 0.26): triangle 44, Li 53.1075347162524.
         let h = Histogram::of_integers(&bimodal()).unwrap();
         assert_eq!(triangle_threshold(&h), 44.0);
         assert!(

@@ -59,7 +59,7 @@ impl Calibration {
 }
 
 /// Micrometres per pixel from an X resolution (pixels per unit) and a TIFF ResolutionUnit
-/// (2 inch, 3 centimetre). TIFF 6.0 §"Resolution"; METHODS §10: 10⁴/XRes for cm, 25 400/XRes
+/// (2 inch, 3 centimetre). TIFF 6.0 §"Resolution"; fixtures/methods/check_values.md §10: 10⁴/XRes for cm, 25 400/XRes
 /// for inch. Unit 1 (none) carries no physical meaning and yields `None`.
 pub fn pixel_size_from_resolution(pixels_per_unit: f64, unit: u16) -> Option<f64> {
     if !(pixels_per_unit.is_finite() && pixels_per_unit > 0.0) {
@@ -78,7 +78,7 @@ mod tests {
 
     #[test]
     fn resolution_tags_convert_to_micrometres() {
-        // Source: METHODS.md §10 example, XResolution 20000/1 per cm -> 0.5 µm.
+        // Source: fixtures/methods/check_values.md §10 example, XResolution 20000/1 per cm -> 0.5 µm.
         assert_eq!(pixel_size_from_resolution(20_000.0, 3), Some(0.5));
         // Source: 1 inch = 25 400 µm (definition of the inch).
         assert_eq!(pixel_size_from_resolution(25_400.0, 2), Some(1.0));

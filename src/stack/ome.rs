@@ -263,7 +263,7 @@ mod tests {
 
     #[test]
     fn ifd_order_follows_dimension_order() {
-        // Source: METHODS.md §10, checks from OME-TIFF spec fragments.
+        // Source: fixtures/methods/check_values.md §10, checks from OME-TIFF spec fragments.
         let p = pixels(r#"DimensionOrder="XYZTC" SizeZ="3" SizeT="2" SizeC="2""#, "<TiffData/>");
         assert_eq!(p.ifd_of(PlaneIndex { z: 1, t: 1, c: 0 }), Some(4));
         assert_eq!(p.ifd_of(PlaneIndex { z: 0, t: 0, c: 1 }), Some(6));

@@ -1,4 +1,4 @@
-//! Shared by the integration tests that track synthetic recordings.
+//! Shared by the integration tests: tracking synthetic recordings, and running the binary.
 
 use caravan::link::LinkOptions;
 use caravan::params::SegmentParams;
@@ -8,7 +8,8 @@ use caravan::synth::{write_recording, SynthParams};
 use std::path::PathBuf;
 
 /// A synthetic recording tracked into a temporary folder: `syn/` holds the recording and its
-/// truth, `run/` the tracks.
+/// truth, `run/` the tracks (not every test crate that shares this module tracks one).
+#[allow(dead_code)]
 pub struct TrackedScene {
     /// Keeps the folder alive until the scene is dropped.
     _dir: tempfile::TempDir,
@@ -21,6 +22,7 @@ pub struct TrackedScene {
 
 /// Synthesizes `p` and tracks it with `link` as a user would: the diameter estimated from the
 /// recording, everything else at its defaults (no movie).
+#[allow(dead_code)]
 pub fn track_synthetic(p: &SynthParams, link: LinkOptions) -> TrackedScene {
     let dir = tempfile::tempdir().unwrap();
     let syn = dir.path().join("syn");
@@ -39,4 +41,14 @@ pub fn track_synthetic(p: &SynthParams, link: LinkOptions) -> TrackedScene {
     let params = SegmentParams::for_diameter(diameter.px());
     run_recording(&mut stack, diameter, &params, &run, &outputs, "test").unwrap();
     TrackedScene { _dir: dir, syn, run }
+}
+
+/// Runs the `caravan` binary with `args` (not every test crate that shares this module runs
+/// it).
+#[allow(dead_code)]
+pub fn caravan(args: &[&str]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_caravan"))
+        .args(args)
+        .output()
+        .unwrap()
 }
