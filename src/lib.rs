@@ -17,6 +17,7 @@
 //! | [`workflow`] | the Snakemake workflow of a manifest (shards, joins, comparison) |
 //! | [`verdict`] | whether a run can be trusted: `ok`, `doubtful` or `failed`, with reasons and fixes |
 //! | [`reports`] | analysis and comparison folders: tables from `analyze`, pages from `render` |
+//! | [`run_folder`] | the output folder's life: check, clear stale files, stage, publish |
 //! | [`record`] | the run record (`run.json`), written and read as one typed structure |
 //! | [`params`] | every tunable parameter with its default, unit and valid range |
 //! | [`numeric`] | order statistics and the seeded random generator, shared by the stages |
@@ -39,6 +40,7 @@ pub mod preprocess;
 pub mod record;
 pub mod render;
 pub mod reports;
+pub mod run_folder;
 pub mod score;
 pub mod segment;
 pub mod shard;

@@ -11,11 +11,12 @@ use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
 use crate::numeric::median;
-use crate::output::{crc32_file, ensure_dir, write_atomic, AtomicFile, Staging};
+use crate::output::{crc32_file, write_atomic, AtomicFile};
 use crate::params::{Length, SegmentParams};
 pub use crate::record::{DiameterSource, FrameSummary, LinkingQc};
 use crate::record::{RunCounts, RunInput, RunParameters, RunRecord, Timings, RESEARCH_USE};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
+pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
 use crate::segment::diameter::{central_crop, combine, examine_frame, sample_frames, Confidence, ESTIMATE_CROP_PX};
 use crate::segment::{segment_frame, FrameSegmentation};
 use crate::stack::write::{write_stack, TiffCompression};
@@ -266,32 +267,6 @@ pub struct SegmentOutputs {
     pub resume: bool,
 }
 
-/// Every file a run may write; a replacing run removes the ones it did not write this time,
-/// so that a folder never mixes two runs.
-pub const RUN_OUTPUTS: [&str; 7] = [
-    "detections.csv",
-    "labels.tif",
-    "tracks.csv",
-    "per_track.csv",
-    "qc_movie.gif",
-    "qc_sheet.png",
-    "run.json",
-];
-
-/// Refuses a folder that holds an earlier run's outputs, unless replacing is asked for.
-///
-/// # Errors
-/// [`Error::Input`] naming the folder.
-pub fn check_output_dir(dir: &Path, replace: bool) -> Result<()> {
-    if !replace && dir.join("run.json").exists() {
-        return Err(Error::input(
-            dir,
-            "holds the outputs of an earlier run (run.json); choose another folder or give --force to replace them",
-        ));
-    }
-    Ok(())
-}
-
 /// Segments every frame of an open recording and writes `detections.csv` (and optionally
 /// `labels.tif`, and with linking `tracks.csv` and `per_track.csv`) plus `run.json` into `dir`,
 /// each atomically.
@@ -304,13 +279,10 @@ pub fn run_recording(
     command: &str,
 ) -> Result<SegmentRun> {
     params.validate()?;
-    check_output_dir(dir, outputs.replace)?;
-    ensure_dir(dir)?;
+    let folder = RunFolder::open(dir, outputs.replace)?;
     let started = Instant::now();
     let info = stack.info().clone();
-    remove_stale_partials(dir);
-    let staging = Staging::new(dir)?;
-    let work = staging.path().to_path_buf();
+    let work = folder.work().to_path_buf();
     let mut pass = FirstPass::new(&work, outputs, &info, params)?;
     let (mut checkpoint, replayed) = start_checkpoint(dir, outputs, &info, params, &diameter)?;
     for record in replayed {
@@ -371,7 +343,7 @@ pub fn run_recording(
         started,
     )?;
     drop(spool);
-    publish(staging, dir, outputs)?;
+    folder.publish(|name| outputs.writes(name))?;
     run.dir = dir.to_path_buf();
     if let Some(c) = checkpoint {
         c.finish();
@@ -537,12 +509,17 @@ fn link_detections(
     (linking, tracked)
 }
 
-/// Moves a run's staged outputs into the run folder (run.json last) and removes the outputs of
-/// an earlier run that this one did not write.
-pub(crate) fn publish(staging: Staging, dir: &Path, outputs: &SegmentOutputs) -> Result<()> {
-    staging.publish(&RUN_OUTPUTS)?;
-    remove_stale_outputs(dir, outputs);
-    Ok(())
+impl SegmentOutputs {
+    /// Whether a run with these outputs writes the file `name` (one of [`RUN_OUTPUTS`]).
+    pub fn writes(&self, name: &str) -> bool {
+        let linked = self.linking.is_some();
+        match name {
+            "labels.tif" => self.labels,
+            "tracks.csv" | "per_track.csv" => linked,
+            "qc_movie.gif" | "qc_sheet.png" => linked && self.movie.is_some(),
+            _ => true,
+        }
+    }
 }
 
 /// The first pass's accumulators: detections.csv, per-frame summaries, the online linker and
@@ -690,38 +667,6 @@ fn write_track_outputs(
     write_per_track(&mut file, &summaries, calibration).map_err(|e| file.error(e))?;
     file.commit()?;
     Ok(summaries)
-}
-
-/// Removes half-written files that an interrupted earlier run left (hidden `*.partial-PID`
-/// names of other processes), so that a resumed or repeated run leaves a clean folder.
-pub(crate) fn remove_stale_partials(dir: &Path) {
-    let own = format!(".partial-{}", std::process::id());
-    let Ok(entries) = std::fs::read_dir(dir) else { return };
-    for entry in entries.flatten() {
-        let name = entry.file_name().to_string_lossy().into_owned();
-        if name.starts_with('.') && name.contains(".partial-") && !name.ends_with(&own) {
-            let _ = std::fs::remove_file(entry.path());
-        }
-        let own_staging = format!(".staging-{}", std::process::id());
-        if name.starts_with(".staging-") && name != own_staging {
-            let _ = std::fs::remove_dir_all(entry.path());
-        }
-    }
-}
-
-/// After a successful run, removes outputs of an earlier run that this one did not write.
-fn remove_stale_outputs(dir: &Path, outputs: &SegmentOutputs) {
-    let linked = outputs.linking.is_some();
-    let movie = linked && outputs.movie.is_some();
-    let written = |name: &str| match name {
-        "labels.tif" => outputs.labels,
-        "tracks.csv" | "per_track.csv" => linked,
-        "qc_movie.gif" | "qc_sheet.png" => movie,
-        _ => true,
-    };
-    for name in RUN_OUTPUTS.iter().filter(|n| !written(n)) {
-        let _ = std::fs::remove_file(dir.join(name));
-    }
 }
 
 /// Per-frame track ids of labels, track positions and division marks, for the movie.

@@ -9,8 +9,7 @@ use crate::error::{Error, Result};
 use crate::output::{ensure_dir, write_atomic};
 use crate::params::SegmentParams;
 use crate::pipeline::{
-    finish_run, progress_bar, remove_stale_partials, with_segmented_frames, DiameterSource, FirstPass, SegmentOutputs,
-    SegmentRun,
+    finish_run, progress_bar, with_segmented_frames, DiameterSource, FirstPass, SegmentOutputs, SegmentRun,
 };
 use crate::render::movie::OutlineSpool;
 use crate::stack::Stack;
@@ -74,7 +73,7 @@ pub fn write_shard(
         ));
     }
     ensure_dir(dir)?;
-    remove_stale_partials(dir);
+    crate::run_folder::remove_stale_partials(dir);
     let info = ShardInfo {
         caravan_version: crate::VERSION.into(),
         fingerprint: fingerprint(stack, &diameter, params),
@@ -188,12 +187,9 @@ pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
             "is not the recording these shards were segmented from",
         ));
     }
-    crate::pipeline::check_output_dir(dir, outputs.replace)?;
-    ensure_dir(dir)?;
-    remove_stale_partials(dir);
+    let folder = crate::run_folder::RunFolder::open(dir, outputs.replace)?;
     let started = Instant::now();
-    let staging = crate::output::Staging::new(dir)?;
-    let work = staging.path().to_path_buf();
+    let work = folder.work().to_path_buf();
     let mut pass = FirstPass::new(&work, outputs, &info, &first.segment)?;
     let mut spool = match (outputs.linking, outputs.movie) {
         (Some(_), Some(_)) => Some(OutlineSpool::create(&work)?),
@@ -221,7 +217,7 @@ pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Se
         started,
     )?;
     drop(spool);
-    crate::pipeline::publish(staging, dir, outputs)?;
+    folder.publish(|name| outputs.writes(name))?;
     run.dir = dir.to_path_buf();
     Ok(run)
 }
