@@ -677,3 +677,25 @@ fn shards_linked_equal_one_track_run() {
     assert_eq!(gap.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&gap.stderr).contains("frame 0"));
 }
+
+#[test]
+fn the_demo_runs_end_to_end_and_says_its_verdict() {
+    // README's first set-up command: synthesize, track, score, analyse. Its scene is tracked
+    // with defaults, judged `ok` (README, the run's verdict), scored against its own truth
+    // (TRA above 0.95, the README accuracy table's level for such scenes) and analysed.
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    let stdout = ok(&caravan(&["demo", "-o", out.to_str().unwrap()], "2"));
+    assert!(stdout.lines().any(|l| l == "verdict: ok"), "{stdout}");
+    let tra: f64 = stdout
+        .lines()
+        .find_map(|l| l.strip_prefix("graph      TRA "))
+        .and_then(|rest| rest.split_whitespace().next())
+        .and_then(|v| v.parse().ok())
+        .expect("a TRA line");
+    assert!(tra > 0.95, "{tra}");
+    assert!(out.join("tracking/analysis/report.html").exists());
+    let record: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("tracking/run.json")).unwrap()).unwrap();
+    assert_eq!(record["verdict"]["verdict"], "ok");
+}

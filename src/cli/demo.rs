@@ -47,6 +47,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         "demo",
     )?;
     let (_, score) = score_files(&args.output.join("synthetic"), &run_dir, None, None)?;
+    super::print_verdict(&run.verdict);
     println!(
         "{} frames, {:.1} nuclei per frame, {} tracks",
         run.frames.len(),

@@ -283,11 +283,16 @@ pub(crate) fn half_open_range(name: &str, text: &str) -> Result<(usize, usize)> 
 
 /// Prints the run's verdict first (with each finding's reason and fix), then what it
 /// produced, its warnings, and where it went.
-fn print_summary(run: &caravan::pipeline::SegmentRun) {
-    println!("verdict: {}", run.verdict.verdict.word());
-    for f in &run.verdict.findings {
+/// The verdict line and one line per finding, as every run's summary begins.
+pub(crate) fn print_verdict(verdict: &caravan::verdict::RunVerdict) {
+    println!("verdict: {}", verdict.verdict.word());
+    for f in &verdict.findings {
         println!("  {}: {} (fix: {})", f.level.word(), f.reason, f.fix);
     }
+}
+
+fn print_summary(run: &caravan::pipeline::SegmentRun) {
+    print_verdict(&run.verdict);
     let tracks = match &run.resolution {
         Some(r) => format!(
             ", {} tracks ({} gaps closed, {} divisions)",
