@@ -29,7 +29,9 @@ measure() { # label, command...: appends "seconds kilobytes" to $work/label.time
 }
 rm -f "$work"/caravan.times "$work"/python.times
 for _ in $(seq "$rounds"); do
-  measure caravan "$bin" track "$rec/recording.tif" -o "$work/caravan_run" --diameter 14px \
+  # Caravan with its defaults (diameter and step measured from the recording, as users run
+  # it); the plain script has no estimate, so it is given the synthetic diameter.
+  measure caravan "$bin" track "$rec/recording.tif" -o "$work/caravan_run" \
     --no-movie --no-analysis --force
   measure python "$venv/bin/python" benches/python_baseline.py "$rec/recording.tif" "$work/python_tracks.csv" 14
 done

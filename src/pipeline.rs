@@ -51,7 +51,10 @@ pub fn resolve_diameter(
     // Read in order (one reader), keep only the crop examined, then examine in parallel.
     let mut crops = Vec::with_capacity(picks.len());
     for t in picks {
-        crops.push((t, central_crop(&stack.read_frame(t)?.to_image(), ESTIMATE_CROP_PX)));
+        crops.push((
+            t,
+            central_crop(&stack.read_frame(t)?.to_image(), ESTIMATE_CROP_PX).into_owned(),
+        ));
     }
     let frames: Vec<_> = crops
         .par_iter()

@@ -681,8 +681,9 @@ fn shards_linked_equal_one_track_run() {
 #[test]
 fn the_demo_runs_end_to_end_and_says_its_verdict() {
     // README's first set-up command: synthesize, track, score, analyse. Its scene is tracked
-    // with defaults, judged `ok` (README, the run's verdict), scored against its own truth
-    // (TRA above 0.95, the README accuracy table's level for such scenes) and analysed.
+    // with defaults, judged `ok` (README, the run's verdict), scored against the truth synth
+    // wrote (TRA above 0.95: our own bar for an easy stream; AOGM/TRA as Matula et al. 2015,
+    // fixtures/methods/check_values.md §8) and analysed.
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("demo");
     let stdout = ok(&caravan(&["demo", "-o", out.to_str().unwrap()], "2"));

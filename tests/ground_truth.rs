@@ -24,7 +24,9 @@ fn score_scenario(p: &SynthParams) -> Scores {
     let out = write_recording(dir.path(), p).unwrap();
     let mut rec = Stack::open(&out.recording, &OpenOptions::default()).unwrap();
     let mut truth = Stack::open(&out.truth_labels, &OpenOptions::default()).unwrap();
-    let params = SegmentParams::for_diameter(p.diameter_px);
+    // As a user runs it: the diameter estimated from the recording, not the synthetic one.
+    let diameter = caravan::pipeline::resolve_diameter(&mut rec, None, &SegmentParams::for_diameter).unwrap();
+    let params = SegmentParams::for_diameter(diameter.px());
     let (w, h) = (p.width as f64, p.height as f64);
     let margin = p.diameter_px / 2.0;
     let inside = |x: f64, y: f64| x >= margin && y >= margin && x <= w - 1.0 - margin && y <= h - 1.0 - margin;

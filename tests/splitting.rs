@@ -5,22 +5,20 @@
 
 use caravan::numeric::Rng;
 use caravan::segment::distance_transform::squared_edt;
-use caravan::segment::hmaxima::h_maxima;
-use caravan::segment::label::label_components;
+use caravan::segment::hmaxima::h_maxima_seeds;
 use caravan::segment::split_touching;
 use caravan::segment::watershed::seeded_watershed;
 use std::collections::BTreeMap;
 
-/// The split done once over the whole frame: exact squared EDT, h-maxima of the distance,
-/// seeds labelled, watershed over the squared distances (the method of `split_touching`,
-/// without its windows).
+/// The split done once over the whole frame: exact squared EDT, seeds from the h-maxima of the
+/// distance (one per regional maximum of the reconstruction), watershed over the squared
+/// distances (the method of `split_touching`, without its windows).
 fn whole_frame_split(mask: &[bool], w: usize, h: usize, seed_h: f64) -> Vec<u32> {
     let squared = squared_edt(mask, w, h, (1.0, 1.0));
     let distance: Vec<f32> = squared.iter().map(|&d| d.sqrt() as f32).collect();
     let levels: Vec<u32> = squared.iter().map(|&d| d as u32).collect();
-    let seeds = h_maxima(&distance, mask, w, h, seed_h);
-    let (labels, _) = label_components(&seeds, w, h);
-    seeded_watershed(&levels, mask, &labels, w, h)
+    let (seeds, _) = h_maxima_seeds(&distance, mask, w, h, seed_h);
+    seeded_watershed(&levels, mask, &seeds, w, h)
 }
 
 /// Random discs (radius 4 to 12 px, some overlapping, some cut by the border).

@@ -6,6 +6,7 @@
 //! the noise, there is no estimate: the caller asks for `--diameter` instead of guessing.
 
 use crate::image2d::Image;
+use crate::numeric::lower_median;
 use crate::params::SegmentParams;
 use crate::preprocess::{gaussian_derivative_kernel, gaussian_laplace, robust_noise_sigma};
 use serde::{Deserialize, Serialize};
@@ -204,7 +205,7 @@ pub fn examine_frame(image: &Image, frame: usize, params_for: &(dyn Fn(f64) -> S
     let blobs = significant_blobs(&crop, noise_sigma);
     let blob_diameter_px = (blobs.len() >= MIN_BLOBS).then(|| {
         let mut sigmas: Vec<f64> = blobs.iter().map(|b| b.sigma).collect();
-        disc_diameter(median(&mut sigmas))
+        disc_diameter(lower_median(&mut sigmas).expect("at least MIN_BLOBS blobs"))
     });
     let object_diameter_px = blob_diameter_px
         .and_then(|d| object_diameter(&crop, frame, &params_for(d)))
@@ -232,8 +233,7 @@ fn object_diameter(image: &Image, frame: usize, params: &SegmentParams) -> Optio
     if params.validate().is_err() {
         return None;
     }
-    let seg = super::segment_frame(image, frame, params);
-    let prepared = super::prepare(image, params);
+    let (seg, prepared) = super::segment_frame_and_prepared(image, frame, params);
     let values = prepared.as_slice().expect("standard layout");
     let mut pixels: Vec<Vec<f32>> = vec![Vec::new(); seg.detections.len()];
     for (&label, &v) in seg.labels.iter().zip(values) {
@@ -248,7 +248,10 @@ fn object_diameter(image: &Image, frame: usize, params: &SegmentParams) -> Optio
         .filter(|(det, px)| !det.touches_border && !px.is_empty())
         .map(|(_, px)| half_maximum_diameter(px))
         .collect();
-    (d.len() >= MIN_BLOBS).then(|| median(&mut d))
+    if d.len() < MIN_BLOBS {
+        return None;
+    }
+    lower_median(&mut d)
 }
 
 /// The equivalent diameter of the pixels at or above half the 90th percentile of `values` (one
@@ -264,10 +267,7 @@ fn half_maximum_diameter(values: &mut [f32]) -> f64 {
 /// enough significant blobs.
 pub fn combine(frames: Vec<FrameDiameter>) -> Option<DiameterEstimate> {
     let mut per_frame: Vec<f64> = frames.iter().filter_map(FrameDiameter::estimate).collect();
-    if per_frame.is_empty() {
-        return None;
-    }
-    let px = median(&mut per_frame);
+    let px = lower_median(&mut per_frame)?;
     let spread = per_frame.iter().map(|d| (d / px).max(px / d)).fold(1.0, f64::max);
     let blobs: usize = frames.iter().map(|f| f.blobs).sum();
     let ratios: Vec<f64> = frames
@@ -345,20 +345,18 @@ pub fn combine(frames: Vec<FrameDiameter>) -> Option<DiameterEstimate> {
     })
 }
 
-/// The lower median of a non-empty list ([`crate::numeric::lower_median`]).
-fn median(v: &mut [f64]) -> f64 {
-    crate::numeric::lower_median(v).expect("a non-empty list")
-}
-
 /// Side of the central window of a frame that the estimate examines, px.
 pub const ESTIMATE_CROP_PX: usize = 512;
 
 /// The central `max_side` x `max_side` window of `image` (all of it when smaller).
-pub fn central_crop(image: &Image, max_side: usize) -> Image {
+pub fn central_crop(image: &Image, max_side: usize) -> std::borrow::Cow<'_, Image> {
     let (h, w) = image.dim();
+    if h <= max_side && w <= max_side {
+        return std::borrow::Cow::Borrowed(image);
+    }
     let (ch, cw) = (h.min(max_side), w.min(max_side));
     let (y0, x0) = ((h - ch) / 2, (w - cw) / 2);
-    image.slice(ndarray::s![y0..y0 + ch, x0..x0 + cw]).to_owned()
+    std::borrow::Cow::Owned(image.slice(ndarray::s![y0..y0 + ch, x0..x0 + cw]).to_owned())
 }
 
 /// Mean over `factor` x `factor` blocks (edge blocks averaged over what exists).
@@ -488,7 +486,7 @@ mod tests {
         let blobs = significant_blobs(&img, robust_noise_sigma(&img));
         assert_eq!(blobs.len(), 64, "{}", blobs.len());
         let mut s: Vec<f64> = blobs.iter().map(|b| b.sigma).collect();
-        let d = disc_diameter(median(&mut s));
+        let d = disc_diameter(lower_median(&mut s).unwrap());
         assert!((d / 14.0 - 1.0).abs() < 0.1, "{d}");
     }
 }

@@ -37,17 +37,17 @@ pub fn h_maxima(values: &[f32], mask: &[bool], width: usize, height: usize, h: f
 pub fn h_maxima_seeds(values: &[f32], mask: &[bool], width: usize, height: usize, h: f64) -> (Vec<u32>, u32) {
     let (levels, rec, h_levels) = reconstruct(values, mask, width, height, h);
     let n = levels.len();
-    let mut plateau = vec![0u32; n];
+    let mut visited = vec![false; n];
     let mut seeds = vec![0u32; n];
     let mut members = Vec::new();
     let mut count = 0u32;
     for start in 0..n {
-        if !mask[start] || plateau[start] != 0 {
+        if !mask[start] || visited[start] {
             continue;
         }
         // The plateau of `rec` through `start`, and whether anything around it is higher.
         let level = rec[start];
-        plateau[start] = u32::MAX;
+        visited[start] = true;
         members.clear();
         members.push(start);
         let mut is_maximum = true;
@@ -58,8 +58,8 @@ pub fn h_maxima_seeds(values: &[f32], mask: &[bool], width: usize, height: usize
             for q in neighbours8(p, width, height).filter(|&q| mask[q]) {
                 if rec[q] > level {
                     is_maximum = false;
-                } else if rec[q] == level && plateau[q] == 0 {
-                    plateau[q] = u32::MAX;
+                } else if rec[q] == level && !visited[q] {
+                    visited[q] = true;
                     members.push(q);
                 }
             }

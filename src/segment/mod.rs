@@ -55,6 +55,16 @@ pub struct SizeFilterCounts {
 
 /// Segments one frame (`raw` in stored intensities) with the given parameters.
 pub fn segment_frame(raw: &Image, frame: usize, params: &SegmentParams) -> FrameSegmentation {
+    segment_frame_and_prepared(raw, frame, params).0
+}
+
+/// [`segment_frame`], also returning the prepared (smoothed, background-subtracted) frame that
+/// it thresholded, for callers that measure on it too (the diameter estimate).
+pub(crate) fn segment_frame_and_prepared(
+    raw: &Image,
+    frame: usize,
+    params: &SegmentParams,
+) -> (FrameSegmentation, Image) {
     let (raw, nonfinite_pixels) = replace_nonfinite(raw);
     let raw = raw.as_ref();
     let (h, w) = raw.dim();
@@ -85,14 +95,15 @@ pub fn segment_frame(raw: &Image, frame: usize, params: &SegmentParams) -> Frame
     };
     let intensity = raw.as_slice().expect("standard layout");
     let detections = measure::measure_objects(&labels, &foreground, count, intensity, w, h, frame);
-    FrameSegmentation {
+    let segmentation = FrameSegmentation {
         frame,
         threshold,
         labels,
         detections,
         nonfinite_pixels,
         size_filter,
-    }
+    };
+    (segmentation, prepared)
 }
 
 /// The number of distinct non-zero labels among `pixels`.
@@ -106,7 +117,7 @@ fn count_labels(labels: &[u32], pixels: &[u32]) -> usize {
 }
 
 /// Adds to `mask` the nuclei too dim for the frame's threshold: the connected regions above a
-/// lower level (half the threshold, and at least 4 noise standard deviations) that hold no
+/// lower level (half the threshold, and at least 6 noise standard deviations) that hold no
 /// pixel of the mask. A global threshold set by bright nuclei cuts a nucleus half as bright
 /// as its neighbours to a sliver or loses it; a region that rises above the lower level but
 /// nowhere above the threshold is such a nucleus (or noise, which the minimum area removes),

@@ -3,8 +3,7 @@
 //! runs on a small window around each component instead of the whole frame: on a typical
 //! frame, where nuclei cover a few percent of the pixels, that is most of the work saved.
 
-use super::hmaxima::{h_maxima, h_maxima_seeds, neighbours8};
-use super::label::label_components;
+use super::hmaxima::{h_maxima_seeds, neighbours8};
 use super::{distance_transform, watershed};
 use crate::preprocess::{gaussian_blur, gaussian_radius};
 
@@ -195,8 +194,7 @@ fn split_component(
         distance
     };
     let Some((values, noise)) = intensity else {
-        let seed_mask = h_maxima(&distance, mask, width, height, seed_h_px);
-        let (seeds, _) = label_components(&seed_mask, width, height);
+        let (seeds, _) = h_maxima_seeds(&distance, mask, width, height, seed_h_px);
         let levels: Vec<u32> = squared.iter().map(|&d| d.min(u32::MAX as f64 / 2.0) as u32).collect();
         return watershed::seeded_watershed(&levels, mask, &seeds, width, height);
     };
