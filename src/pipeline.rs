@@ -383,9 +383,12 @@ pub(crate) fn finish_run(
     let mut tracked = Vec::new();
     let (tracks, linking_qc, resolution, linking) = match outputs.linking {
         Some(options) => {
-            let (linking, points) = link_detections(detections, &options, diameter.px());
+            let (linking, points, shared_objects_split) = link_detections(detections, &options, diameter.px());
             tracked = points;
-            let resolution = resolve_tracks(&mut tracked, &linking.params);
+            let resolution = TrackResolution {
+                shared_objects_split,
+                ..resolve_tracks(&mut tracked, &linking.params)
+            };
             let tracks = write_track_outputs(dir, &mut tracked, &calibration)?;
             let qc = linking_qc(&tracked, &tracks, &mut neighbour_distances, linking.params.max_step_px);
             (tracks, Some(qc), Some(resolution), Some(linking))
@@ -445,6 +448,7 @@ pub(crate) fn finish_run(
         },
         linking_qc: run.linking_qc.clone(),
         gaps_closed: run.resolution.as_ref().map(|r| r.gaps_closed),
+        shared_objects_split: run.resolution.as_ref().map(|r| r.shared_objects_split),
         divisions: run.resolution.as_ref().map(|r| r.divisions.clone()),
         count_jumps: count_jumps(&run.frames),
         per_frame: run.frames.clone(),
@@ -496,12 +500,13 @@ fn run_figures(
 }
 
 /// Measures the recording's motion from the detections' positions, resolves the linking
-/// parameters from it and the user's options, and links every frame in order.
+/// parameters from it and the user's options, and links every frame in order. Also returns
+/// how many objects were split because two tracks entered them.
 fn link_detections(
     detections: Vec<Vec<crate::tracks::Detection>>,
     options: &LinkOptions,
     diameter_px: f64,
-) -> (ResolvedLinking, Vec<TrackedDetection>) {
+) -> (ResolvedLinking, Vec<TrackedDetection>, usize) {
     let positions: Vec<Vec<[f64; 2]>> = detections
         .iter()
         .map(|frame| frame.iter().map(|d| [d.x, d.y]).collect())
@@ -509,7 +514,7 @@ fn link_detections(
     let linking = options.resolve(diameter_px, &positions);
     let mut linker = OnlineLinker::new(linking.params);
     let tracked = detections.into_iter().flat_map(|frame| linker.push(frame)).collect();
-    (linking, tracked)
+    (linking, tracked, linker.shared_objects_split())
 }
 
 impl SegmentOutputs {

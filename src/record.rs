@@ -40,6 +40,8 @@ pub struct RunRecord {
     pub linking_qc: Option<LinkingQc>,
     /// Gaps closed (with linking).
     pub gaps_closed: Option<usize>,
+    /// Objects split because two tracks entered them (with linking; `link::repair`).
+    pub shared_objects_split: Option<usize>,
     /// Divisions found (with linking).
     pub divisions: Option<Vec<DivisionEvent>>,
     /// Frames whose object count jumps.

@@ -295,9 +295,10 @@ fn print_summary(run: &caravan::pipeline::SegmentRun) {
     print_verdict(&run.verdict);
     let tracks = match &run.resolution {
         Some(r) => format!(
-            ", {} tracks ({} gaps closed, {} divisions)",
+            ", {} tracks ({} gaps closed, {} shared objects split, {} divisions)",
             run.tracks.len(),
             r.gaps_closed,
+            r.shared_objects_split,
             r.divisions.len()
         ),
         None => String::new(),

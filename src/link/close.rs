@@ -265,18 +265,20 @@ mod tests {
     #[test]
     fn a_transient_merge_is_bridged_for_the_hidden_nucleus() {
         // Hand-built: two nuclei approach along y = 50 and y = 62, are segmented as one object
-        // (at the midpoint) in frames 4 and 5, then separate again. One track takes the merged
-        // object (twice the area, so its motion model coasts rather than following the
-        // midpoint), the other bridges the two missing frames: one join, two tracks in the end,
-        // each staying on its own side after the merge (no identity swap).
+        // (at the midpoint) in frames 4 and 5, then separate again. The object is three times
+        // a nucleus (more than the two of them, so the online linker does not split it, see
+        // `link::repair`): one track takes the merged object (its motion model coasts rather
+        // than following the midpoint), the other bridges the two missing frames: one join,
+        // two tracks in the end, each staying on its own side after the merge (no identity
+        // swap).
         let params = LinkParams::for_diameter(14.0);
         let mut frames = Vec::new();
         for t in 0..10 {
             let x = 20.0 + 3.0 * t as f64;
             frames.push(if t == 4 || t == 5 {
                 let mut merged = detection(t, 1, x, 56.0);
-                merged.area_px *= 2.0;
-                merged.total_intensity *= 2.0;
+                merged.area_px *= 3.0;
+                merged.total_intensity *= 3.0;
                 vec![merged]
             } else {
                 vec![detection(t, 1, x, 50.0), detection(t, 2, x, 62.0)]

@@ -11,6 +11,7 @@ pub mod estimate;
 pub mod motion;
 pub mod online;
 pub mod params;
+pub mod repair;
 
 pub use params::{Divisions, LinkOptions, LinkParams, MaxStepSource, Prediction, ResolvedLinking};
 
@@ -105,6 +106,9 @@ pub fn assign_with_alternatives(
 pub struct TrackResolution {
     /// Gaps bridged by gap closing.
     pub gaps_closed: usize,
+    /// Objects split during online linking because two tracks entered them
+    /// ([`repair::split_shared_objects`]); set by the caller that ran the online linker.
+    pub shared_objects_split: usize,
     /// Division events, in frame order, with final track ids.
     pub divisions: Vec<divide::DivisionEvent>,
 }
@@ -124,7 +128,11 @@ pub fn resolve_tracks(points: &mut [TrackedDetection], params: &LinkParams) -> T
         e.daughters = e.daughters.map(|d| new_id[&d]);
         e.daughters.sort_unstable();
     }
-    TrackResolution { gaps_closed, divisions }
+    TrackResolution {
+        gaps_closed,
+        divisions,
+        shared_objects_split: 0,
+    }
 }
 
 /// Renumbers tracks 1, 2, ... by (first frame, first label) and returns the old-to-new map.

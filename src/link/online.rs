@@ -6,6 +6,7 @@
 use super::link_frames_gated;
 use super::motion::MotionFilter;
 use super::params::{LinkParams, Prediction};
+use super::repair::{split_shared_objects, Expected};
 use crate::tracks::{Detection, TrackedDetection};
 
 #[derive(Debug, Clone)]
@@ -48,6 +49,8 @@ pub struct OnlineLinker {
     params: LinkParams,
     live: Vec<LiveTrack>,
     next_id: u32,
+    /// Objects split because two tracks entered them ([`super::repair`]).
+    shared_objects_split: usize,
 }
 
 impl OnlineLinker {
@@ -57,7 +60,13 @@ impl OnlineLinker {
             params,
             live: Vec::new(),
             next_id: 1,
+            shared_objects_split: 0,
         }
+    }
+
+    /// Objects split so far because two tracks entered them.
+    pub fn shared_objects_split(&self) -> usize {
+        self.shared_objects_split
     }
 
     /// Links one frame's detections and returns them with their track ids. New tracks get
@@ -70,6 +79,17 @@ impl OnlineLinker {
     /// its last position within the maximum step.
     pub fn push(&mut self, detections: Vec<Detection>) -> Vec<TrackedDetection> {
         let (sources, radii): (Vec<[f64; 2]>, Vec<f64>) = self.live.iter().map(|t| self.search_area(t)).unzip();
+        let expected: Vec<Expected> = self
+            .live
+            .iter()
+            .zip(&sources)
+            .map(|(t, &predicted)| Expected {
+                predicted,
+                area_px: t.area_px,
+            })
+            .collect();
+        let (detections, splits) = split_shared_objects(detections, &expected);
+        self.shared_objects_split += splits;
         let targets: Vec<[f64; 2]> = detections.iter().map(|d| [d.x, d.y]).collect();
         let links = link_frames_gated(&sources, &radii, &targets);
         let mut assigned: Vec<Option<(usize, f64, f64)>> = vec![None; targets.len()];

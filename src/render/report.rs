@@ -367,8 +367,9 @@ fn qc_section(html: &mut String, record: &RunRecord) {
     html.push_str("</div><ul>");
     let _ = write!(
         html,
-        "<li>gaps closed: {}; divisions: {}</li>",
+        "<li>gaps closed: {}; objects two tracks entered, split: {}; divisions: {}</li>",
         number(&serde_json::json!(record.gaps_closed)),
+        number(&serde_json::json!(record.shared_objects_split)),
         record.divisions.as_ref().map_or(0, Vec::len)
     );
     for w in &record.warnings {

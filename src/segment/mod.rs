@@ -5,6 +5,7 @@
 
 pub mod cluster;
 pub mod diameter;
+mod dim;
 pub mod distance_transform;
 pub mod hmaxima;
 pub mod label;
@@ -74,7 +75,15 @@ pub(crate) fn segment_frame_and_prepared(
     let mut mask: Vec<bool> = values.iter().map(|&v| v as f64 > threshold).collect();
     let noise = background_noise(values, &mask);
     if threshold.is_finite() && !matches!(params.threshold, ThresholdMethod::Fixed(_)) {
-        add_dim_nuclei(&mut mask, values, threshold, noise, w, h);
+        dim::add_dim_nuclei(
+            &mut mask,
+            values,
+            threshold,
+            noise,
+            (w, h),
+            0.25 * params.diameter_px,
+            params.min_area_px,
+        );
     }
     label::fill_holes(&mut mask, w, h);
     let (mut labels, foreground) = split::split_touching_with_pixels(
@@ -114,44 +123,6 @@ fn count_labels(labels: &[u32], pixels: &[u32]) -> usize {
         seen[labels[i as usize] as usize] = true;
     }
     seen.iter().skip(1).filter(|&&s| s).count()
-}
-
-/// Adds to `mask` the nuclei too dim for the frame's threshold: the connected regions above a
-/// lower level (half the threshold, and at least 6 noise standard deviations) that hold no
-/// pixel of the mask. A global threshold set by bright nuclei cuts a nucleus half as bright
-/// as its neighbours to a sliver or loses it; a region that rises above the lower level but
-/// nowhere above the threshold is such a nucleus (or noise, which the minimum area removes),
-/// while regions around nuclei already found are left alone, so their outlines stay where the
-/// threshold put them.
-///
-/// # Method
-/// Two levels as in hysteresis thresholding (J. Canny (1986), "A computational approach to
-/// edge detection", IEEE Trans. PAMI 8(6):679–698, doi:10.1109/TPAMI.1986.4767851), read the
-/// other way round: the low level's regions are kept where the high level found nothing. The
-/// factor of one half and the noise bound are our own choices.
-fn add_dim_nuclei(mask: &mut [bool], values: &[f32], threshold: f64, noise: f32, w: usize, h: usize) {
-    let low = (0.5 * threshold).max(6.0 * noise as f64);
-    if low >= threshold {
-        return;
-    }
-    let low = low as f32;
-    // Mark everything above the low level that is connected to the mask (8-connected), then
-    // add what is above the low level and unmarked.
-    let mut attached = mask.to_vec();
-    let mut stack: Vec<usize> = (0..mask.len()).filter(|&i| mask[i]).collect();
-    while let Some(p) = stack.pop() {
-        for q in hmaxima::neighbours8(p, w, h) {
-            if !attached[q] && values[q] > low {
-                attached[q] = true;
-                stack.push(q);
-            }
-        }
-    }
-    for ((m, &a), &v) in mask.iter_mut().zip(&attached).zip(values) {
-        if !a && v > low {
-            *m = true;
-        }
-    }
 }
 
 /// The noise of the prepared image: the robust standard deviation (median absolute deviation
@@ -302,6 +273,82 @@ mod tests {
             .detections
             .iter()
             .any(|d| (d.x - 70.0).abs() < 1.0 && (d.y - 70.0).abs() < 1.0));
+    }
+
+    /// Nine bright discs (peak 800 over 100, diameter 14, 40 px apart) and `extra` more
+    /// discs `(x, y, peak)`, noise σ 5.
+    fn discs_with(extra: &[(f64, f64, f32)], seed: u64) -> Image {
+        let mut rng = crate::numeric::Rng::new(seed);
+        let mut centres: Vec<(f64, f64, f32)> = (0..9)
+            .map(|k| (30.0 + 40.0 * (k % 3) as f64, 30.0 + 40.0 * (k / 3) as f64, 800.0))
+            .collect();
+        centres.extend_from_slice(extra);
+        Image::from_shape_fn((150, 150), |(y, x)| {
+            let lit = centres
+                .iter()
+                .find(|c| (x as f64 - c.0).powi(2) + (y as f64 - c.1).powi(2) <= 49.0)
+                .map_or(0.0, |c| c.2);
+            100.0 + lit + 5.0 * rng.normal() as f32
+        })
+    }
+
+    #[test]
+    fn a_dim_nucleus_pressed_against_a_bright_one_is_kept_apart() {
+        // Source: construction. A disc a quarter as bright (peak 200) pressed against the
+        // centre bright disc (centres 14 px apart: the discs touch): the region above half the
+        // threshold around it touches the bright object, but it holds a summit of its own, so
+        // it is a nucleus: ten objects, one centred on the dim disc, and the bright disc keeps
+        // the area the threshold gave it alone (same seed, same noise), within 4% (the added
+        // disc moves Otsu's threshold a little).
+        let params = SegmentParams::for_diameter(14.0);
+        let alone = segment_frame(&discs_with(&[], 24), 0, &params);
+        let pressed = segment_frame(&discs_with(&[(84.0, 70.0, 200.0)], 24), 0, &params);
+        assert_eq!(alone.detections.len(), 9);
+        assert_eq!(pressed.detections.len(), 10);
+        let near = |seg: &FrameSegmentation, x: f64, y: f64| {
+            seg.detections
+                .iter()
+                .find(|d| (d.x - x).abs() < 1.5 && (d.y - y).abs() < 1.5)
+                .cloned()
+        };
+        assert!(near(&pressed, 84.0, 70.0).is_some(), "{:?}", pressed.detections);
+        let (a, b) = (near(&alone, 70.0, 70.0).unwrap(), near(&pressed, 70.0, 70.0).unwrap());
+        assert!(
+            (a.area_px - b.area_px).abs() <= 0.04 * a.area_px,
+            "{} vs {}",
+            a.area_px,
+            b.area_px
+        );
+    }
+
+    #[test]
+    fn the_rim_of_a_bright_nucleus_is_not_a_nucleus() {
+        // Source: construction. Nine nuclei with soft edges (Gaussian profiles, σ 5 px, peak
+        // 800 over 100, 40 px apart), noise σ 5: the rim between half the threshold and the
+        // threshold around each is a ring over 2 px wide that touches its object and holds no
+        // summit of its own, so nothing is added: nine objects, each exactly the pixels above
+        // the threshold around its centre (counted here from the prepared frame), for ten noise
+        // draws.
+        let params = SegmentParams::for_diameter(14.0);
+        for seed in 30..40 {
+            let mut rng = crate::numeric::Rng::new(seed);
+            let img = Image::from_shape_fn((120, 120), |(y, x)| {
+                let (cy, cx) = ((y / 40) * 40 + 20, (x / 40) * 40 + 20);
+                let r2 = (y as f64 - cy as f64).powi(2) + (x as f64 - cx as f64).powi(2);
+                100.0 + 800.0 * (-r2 / 50.0).exp() as f32 + 5.0 * rng.normal() as f32
+            });
+            let prepared = prepare(&img, &params);
+            let t = choose_threshold(prepared.as_slice().unwrap(), params.threshold);
+            let seg = segment_frame(&img, 0, &params);
+            assert_eq!(seg.detections.len(), 9, "seed {seed}");
+            for d in &seg.detections {
+                let above = prepared
+                    .indexed_iter()
+                    .filter(|&((y, x), &v)| (x as f64 - d.x).hypot(y as f64 - d.y) < 19.0 && v as f64 > t)
+                    .count();
+                assert_eq!(d.area_px, above as f64, "seed {seed}");
+            }
+        }
     }
 
     #[test]

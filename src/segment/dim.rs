@@ -1,0 +1,148 @@
+//! Nuclei too dim for the frame's global threshold: found at a lower level, alone or pressed
+//! against brighter nuclei.
+
+use super::hmaxima::neighbours8;
+
+/// Adds to `mask` the nuclei too dim for the frame's threshold. A global threshold set by
+/// bright nuclei cuts a nucleus half as bright as its neighbours to a sliver or loses it. So
+/// slivers of the mask smaller than `min_area` px (which the size filter would drop) are
+/// first cleared, and the candidates are the connected regions above a lower level (half the
+/// threshold, and at least 6 noise standard deviations) outside the mask:
+/// - a region that touches no object of the mask rises above the lower level but nowhere above
+///   the threshold: a dim nucleus (or noise, which the minimum area removes); it is added;
+/// - a region that touches an object is either the blurred rim of that brighter nucleus (thin,
+///   its values rising towards the object) or a dim nucleus pressed against it. It is added
+///   only where it holds a summit of its own: a local maximum with a disc of `core_radius` px
+///   around it inside the region, which a rim never holds. It is added without its pixels next
+///   to the object, so the two stay separate objects and the bright one keeps the outline the
+///   threshold gave it.
+///
+/// # Method
+/// Two levels as in hysteresis thresholding (J. Canny (1986), "A computational approach to
+/// edge detection", IEEE Trans. PAMI 8(6):679–698, doi:10.1109/TPAMI.1986.4767851), read the
+/// other way round: the low level's regions are kept where the high level found nothing, or
+/// where they hold a nucleus of their own. The factor of one half, the noise bound and the
+/// summit rule are our own choices.
+pub(super) fn add_dim_nuclei(
+    mask: &mut [bool],
+    values: &[f32],
+    threshold: f64,
+    noise: f32,
+    (w, h): (usize, usize),
+    core_radius: f64,
+    min_area: f64,
+) {
+    let low = (0.5 * threshold).max(6.0 * noise as f64);
+    if low >= threshold {
+        return;
+    }
+    let low = low as f32;
+    clear_slivers(mask, min_area, (w, h));
+    let mut region = vec![0u32; mask.len()];
+    let mut next = 0u32;
+    let mut add: Vec<usize> = Vec::new();
+    for start in 0..mask.len() {
+        if mask[start] || region[start] != 0 || values[start] <= low {
+            continue;
+        }
+        next += 1;
+        let pixels = flood(start, next, &mut region, mask, values, low, (w, h));
+        let touches = pixels.iter().any(|&p| neighbours8(p, w, h).any(|q| mask[q]));
+        if !touches {
+            add.extend(pixels);
+        } else if pixels
+            .iter()
+            .any(|&p| is_summit(p, next, &region, values, (w, h), core_radius))
+        {
+            add.extend(pixels.into_iter().filter(|&p| !neighbours8(p, w, h).any(|q| mask[q])));
+        }
+    }
+    for p in add {
+        mask[p] = true;
+    }
+}
+
+/// Clears the 8-connected components of `mask` smaller than `min_area` px.
+fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
+    let mut seen = vec![false; mask.len()];
+    for start in 0..mask.len() {
+        if !mask[start] || seen[start] {
+            continue;
+        }
+        seen[start] = true;
+        let pixels = grow(start, (w, h), |q| {
+            let take = mask[q] && !seen[q];
+            seen[q] |= take;
+            take
+        });
+        if (pixels.len() as f64) < min_area {
+            for p in pixels {
+                mask[p] = false;
+            }
+        }
+    }
+}
+
+/// Labels with `id` the 8-connected region above `low` and outside `mask` that holds `start`;
+/// returns its pixels.
+fn flood(
+    start: usize,
+    id: u32,
+    region: &mut [u32],
+    mask: &[bool],
+    values: &[f32],
+    low: f32,
+    (w, h): (usize, usize),
+) -> Vec<usize> {
+    region[start] = id;
+    grow(start, (w, h), |q| {
+        let take = region[q] == 0 && !mask[q] && values[q] > low;
+        if take {
+            region[q] = id;
+        }
+        take
+    })
+}
+
+/// The 8-connected pixels reached from `start` through pixels that `take` accepts, `start`
+/// first. `take` is asked for every neighbour reached and must mark what it accepts, so that
+/// it refuses the same pixel when asked again.
+fn grow(start: usize, (w, h): (usize, usize), mut take: impl FnMut(usize) -> bool) -> Vec<usize> {
+    let mut pixels = vec![start];
+    let mut k = 0;
+    while k < pixels.len() {
+        let p = pixels[k];
+        k += 1;
+        for q in neighbours8(p, w, h) {
+            if take(q) {
+                pixels.push(q);
+            }
+        }
+    }
+    pixels
+}
+
+/// Whether pixel `p` of region `id` is a local maximum (no 8-neighbour higher) with every
+/// pixel within `radius` of it inside the image and the region.
+fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], (w, h): (usize, usize), radius: f64) -> bool {
+    if neighbours8(p, w, h).any(|q| values[q] > values[p]) {
+        return false;
+    }
+    let r = radius.floor() as isize;
+    let (x, y) = ((p % w) as isize, (p / w) as isize);
+    for dy in -r..=r {
+        for dx in -r..=r {
+            if ((dx * dx + dy * dy) as f64) > radius * radius {
+                continue;
+            }
+            let (nx, ny) = (x + dx, y + dy);
+            if nx < 0 || ny < 0 || nx >= w as isize || ny >= h as isize {
+                return false;
+            }
+            if region[ny as usize * w + nx as usize] != id {
+                return false;
+            }
+        }
+    }
+    true
+}
