@@ -190,6 +190,49 @@ fn outputs_pass_independent_python_readers() {
 }
 
 #[test]
+fn objects_split_by_time_pass_an_independent_reader() {
+    // A crowded, pressed scene where the segmentation merges neighbours: the csv and json
+    // modules check that every split shares its object's area, brightness and centroid and
+    // that run.json counts the splits (tests/python/check_shared.py).
+    let Some(python) = ci_python() else { return };
+    let dir = tempfile::tempdir().unwrap();
+    let rec = synth_into(
+        &dir.path().join("syn"),
+        &[
+            "--size",
+            "256x256",
+            "--scenario",
+            "crowded",
+            "--nuclei",
+            "128",
+            "--look",
+            "tissue",
+            "--brightness-spread",
+            "0.25",
+            "--separation",
+            "0.7",
+            "--frames",
+            "8",
+            "--seed",
+            "7",
+        ],
+    );
+    let run = dir.path().join("run");
+    ok(&caravan(
+        &[
+            "track",
+            &rec,
+            "-o",
+            run.to_str().unwrap(),
+            "--no-movie",
+            "--no-analysis",
+        ],
+        "2",
+    ));
+    run_python(&python, "check_shared.py", &[run.to_str().unwrap()]);
+}
+
+#[test]
 fn synth_is_deterministic_for_a_seed() {
     let dir = tempfile::tempdir().unwrap();
     let run = |name: &str, seed: &str| {
