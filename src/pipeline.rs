@@ -385,10 +385,8 @@ pub(crate) fn finish_run(
         Some(options) => {
             let (linking, points, shared_objects_split) = link_detections(detections, &options, diameter.px());
             tracked = points;
-            let resolution = TrackResolution {
-                shared_objects_split,
-                ..resolve_tracks(&mut tracked, &linking.params)
-            };
+            let mut resolution = resolve_tracks(&mut tracked, &linking.params);
+            resolution.shared_objects_split += shared_objects_split;
             let tracks = write_track_outputs(dir, &mut tracked, &calibration)?;
             let qc = linking_qc(&tracked, &tracks, &mut neighbour_distances, linking.params.max_step_px);
             (tracks, Some(qc), Some(resolution), Some(linking))

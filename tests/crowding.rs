@@ -87,22 +87,54 @@ fn a_crowded_field_of_pressed_nuclei_meets_its_targets() {
 fn mothers_that_round_up_before_dividing_are_found() {
     // Mothers round up and brighten for 2 frames, then split into two touching daughters;
     // 0.8% of nuclei per frame, two seeded dishes of 100 nuclei, pooled.
-    let (mut truth, mut recovered, mut found, mut spurious) = (0, 0, 0, 0);
-    for seed in [22, 23] {
+    let [truth, recovered, found, spurious] = pooled_divisions(|seed| {
         let mut p = SynthParams::new(Scenario::Dish, 384, 384, 40);
         p.nuclei = 100;
         p.division_rate = 0.008;
         p.mitosis_frames = 2;
         p.seed = seed;
-        let scene = track_synthetic(&p, LinkOptions::default());
-        let d = score_files(&scene.syn, &scene.run, None, None).unwrap().1.divisions;
-        truth += d.reference_events;
-        recovered += d.recovered;
-        found += d.found_events;
-        spurious += d.spurious;
-    }
+        p
+    });
     eprintln!("mitotic divisions: {recovered} of {truth} recovered, {spurious} of {found} spurious");
     assert!(truth >= 40, "enough events to judge: {truth}");
     assert!(recovered as f64 >= 0.85 * truth as f64);
     assert!(spurious as f64 <= 0.10 * found as f64);
+}
+
+#[test]
+fn divisions_in_crowded_tissue_are_found() {
+    // The frequent-division scene of benches/accuracy.sh on two other seeds: crowded tissue
+    // look, 0.8% of nuclei dividing per frame, mothers rounding up and brightening for 2
+    // frames, daughters touching at birth. Pooled on these seeds this version recovers 120 of
+    // 142 divisions (84.5%) with 3 of 123 reported spurious; the issue's target of 85% is
+    // not yet met, so the bound asserted here is a guard just below what is reached.
+    let [truth, recovered, found, spurious] = pooled_divisions(|seed| {
+        let mut p = SynthParams::new(Scenario::Crowded, 384, 384, 40);
+        p.look = Look::TISSUE;
+        p.division_rate = 0.008;
+        p.mitosis_frames = 2;
+        p.seed = seed;
+        p
+    });
+    eprintln!("crowded divisions: {recovered} of {truth} recovered, {spurious} of {found} spurious");
+    assert!(truth >= 100, "enough events to judge: {truth}");
+    assert!(recovered as f64 >= 0.82 * truth as f64, "{recovered} of {truth}");
+    assert!(spurious as f64 <= 0.10 * found as f64, "{spurious} of {found}");
+}
+
+/// Division scores of the scenes `scene(22)` and `scene(23)`, tracked with defaults, pooled:
+/// `[reference events, recovered, found, spurious]`.
+fn pooled_divisions(scene: impl Fn(u64) -> SynthParams) -> [usize; 4] {
+    let mut pooled = [0; 4];
+    for seed in [22, 23] {
+        let tracked = track_synthetic(&scene(seed), LinkOptions::default());
+        let d = score_files(&tracked.syn, &tracked.run, None, None).unwrap().1.divisions;
+        for (sum, v) in pooled
+            .iter_mut()
+            .zip([d.reference_events, d.recovered, d.found_events, d.spurious])
+        {
+            *sum += v;
+        }
+    }
+    pooled
 }

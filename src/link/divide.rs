@@ -49,6 +49,15 @@ pub struct DivisionRules {
     /// Daughters must each be tracked for at least this many points (a one-frame
     /// over-segmentation flicker looks like a division otherwise), unless the recording ends.
     pub min_daughter_points: usize,
+    /// For a mother seen entering mitosis (brightened, see `MotherFigures`): each daughter's
+    /// area over hers, allowed range. Her brightening is the evidence of a division that her
+    /// size gives otherwise, and a segmentation that thresholds brightness measures her size
+    /// least reliably when she is dim (a dim mother is cut small, her daughters may not be);
+    /// so the size bounds are wide and the mother-to-typical bound is not applied.
+    pub mitotic_daughter_area_ratio: (f64, f64),
+    /// For a mother seen entering mitosis: summed daughter total intensity over hers, allowed
+    /// range (wider for the same reason).
+    pub mitotic_intensity_ratio: (f64, f64),
 }
 
 impl Default for DivisionRules {
@@ -61,6 +70,8 @@ impl Default for DivisionRules {
             mother_to_typical_area: 1.6,
             min_mother_points: 3,
             min_daughter_points: 3,
+            mitotic_daughter_area_ratio: (0.25, 1.6),
+            mitotic_intensity_ratio: (0.45, 2.0),
         }
     }
 }
@@ -166,7 +177,7 @@ fn find_candidates(
             }
             let predicted = predicted_after(points, &pts[..=pos], params);
             let mother = MotherFigures::of(points, &pts[..=pos]);
-            if mother.area > rules.mother_to_typical_area * typical_area[&f] {
+            if !mother.mitotic && mother.area > rules.mother_to_typical_area * typical_area[&f] {
                 continue;
             }
             for (i, &a) in daughters.iter().enumerate() {
@@ -206,30 +217,61 @@ fn median_area_by_frame(points: &[TrackedDetection]) -> BTreeMap<usize, f64> {
         .collect()
 }
 
-/// Area and total intensity of a mother: medians over her last three points; and the median
-/// area of her points before those (`None` with fewer than three).
+/// Area and total intensity of a mother before she divides: medians over her last three
+/// points before mitosis; and the median area of her points before those (`None` with fewer
+/// than three).
+///
+/// A nucleus entering mitosis rounds up and its condensing chromatin brightens for a few
+/// frames; a segmentation that thresholds brightness then measures her larger and brighter
+/// than the nucleus whose DNA the daughters share. So where her last one to three points are
+/// all at least [`MITOTIC_BRIGHTENING`] times her earlier median mean intensity (at least
+/// three earlier points), those points are left out of her figures.
 struct MotherFigures {
     area: f64,
     intensity: f64,
     earlier_area: Option<f64>,
+    /// Whether she brightened as for mitosis.
+    mitotic: bool,
 }
+
+/// The rise in mean intensity that marks a mother as mitotic (our own bound: chromatin
+/// condensation brightens a nuclear marker well beyond the few percent a nucleus varies from
+/// frame to frame).
+const MITOTIC_BRIGHTENING: f64 = 1.15;
 
 impl MotherFigures {
     fn of(points: &[TrackedDetection], history: &[usize]) -> Self {
-        let split = history.len().saturating_sub(3);
-        let (earlier, recent) = history.split_at(split);
         let median_of = |ks: &[usize], f: fn(&crate::tracks::Detection) -> f64| {
             let mut v: Vec<f64> = ks.iter().map(|&k| f(&points[k].detection)).collect();
             crate::numeric::median(&mut v)
         };
+        let onset = mitosis_onset(points, history);
+        let before = &history[..onset];
+        let split = before.len().saturating_sub(3);
+        let (earlier, recent) = before.split_at(split);
         MotherFigures {
             area: median_of(recent, |d| d.area_px).unwrap_or(0.0),
             intensity: median_of(recent, |d| d.total_intensity).unwrap_or(0.0),
             earlier_area: (earlier.len() >= 3)
                 .then(|| median_of(earlier, |d| d.area_px))
                 .flatten(),
+            mitotic: onset < history.len(),
         }
     }
+}
+
+/// The index in `history` where the mother's mitotic brightening starts (see
+/// [`MotherFigures`]), or `history.len()` where she did not brighten.
+fn mitosis_onset(points: &[TrackedDetection], history: &[usize]) -> usize {
+    let mean = |k: usize| points[k].detection.mean_intensity;
+    let n = history.len();
+    (n.saturating_sub(3).max(3)..n)
+        .find(|&j| {
+            let mut base: Vec<f64> = history[..j].iter().map(|&k| mean(k)).collect();
+            let base = crate::numeric::median(&mut base).unwrap_or(f64::INFINITY);
+            history[j..].iter().all(|&k| mean(k) >= MITOTIC_BRIGHTENING * base)
+        })
+        .unwrap_or(n)
 }
 
 /// Where the mother would be one frame after her last point of `history`.
@@ -271,6 +313,11 @@ fn division_cost(
     let off2 = (mid[0] - predicted[0]).powi(2) + (mid[1] - predicted[1]).powi(2);
     let half_apart2 = ((a.x - b.x).powi(2) + (a.y - b.y).powi(2)) / 4.0;
     let within = |v: f64, (lo, hi): (f64, f64)| v >= lo && v <= hi;
+    let (area_ratio, intensity_ratio) = if mother.mitotic {
+        (rules.mitotic_daughter_area_ratio, rules.mitotic_intensity_ratio)
+    } else {
+        (rules.daughter_area_ratio, rules.intensity_ratio)
+    };
     let ok = off2 < half_apart2
         && off2 <= (0.5 * params.max_step_px).powi(2)
         && mother.area > 0.0
@@ -278,12 +325,12 @@ fn division_cost(
         && mother
             .earlier_area
             .is_none_or(|e| mother.area <= rules.mother_growth_ratio * e)
-        && within(a.area_px / mother.area, rules.daughter_area_ratio)
-        && within(b.area_px / mother.area, rules.daughter_area_ratio)
+        && within(a.area_px / mother.area, area_ratio)
+        && within(b.area_px / mother.area, area_ratio)
         && a.area_px.max(b.area_px) <= rules.sister_area_ratio * a.area_px.min(b.area_px)
         && within(
             (a.total_intensity + b.total_intensity) / mother.intensity,
-            rules.intensity_ratio,
+            intensity_ratio,
         );
     ok.then_some(off2)
 }
@@ -403,5 +450,51 @@ mod tests {
         let params = LinkParams::for_diameter(14.0);
         assert!(detect_divisions(&mut points, &params, &DivisionRules::default()).is_empty());
         assert!(points.iter().all(|p| p.parent_id.is_none()));
+    }
+
+    /// A mother of area 100 (mean intensity 500) for frames 0-5 whose last two points are
+    /// 110 px at mean intensity `last_mean`, then two daughters of area 95 (mean 500) 4 px
+    /// either side of her path.
+    fn mitosis_movie(last_mean: f64) -> Vec<TrackedDetection> {
+        let with = |d: Detection, area: f64, mean: f64| Detection {
+            area_px: area,
+            mean_intensity: mean,
+            total_intensity: area * mean,
+            ..d
+        };
+        let mut linker = OnlineLinker::new(LinkParams::for_diameter(14.0));
+        let mut out = Vec::new();
+        for t in 0..10 {
+            let x = 30.0 + t as f64;
+            let frame = match t {
+                0..=3 => vec![with(nucleus(t, 1, x, 50.0, 100.0), 100.0, 500.0)],
+                4 | 5 => vec![with(nucleus(t, 1, x, 50.0, 110.0), 110.0, last_mean)],
+                _ => (0..2)
+                    .map(|k| {
+                        let y = 50.0 + if k == 0 { -4.0 } else { 4.0 } * (1.0 + 0.1 * (t - 6) as f64);
+                        with(nucleus(t, k + 1, x, y, 95.0), 95.0, 500.0)
+                    })
+                    .collect(),
+            };
+            out.extend(linker.push(frame));
+        }
+        out
+    }
+
+    #[test]
+    fn a_mother_that_brightens_is_judged_by_her_size_before_mitosis() {
+        // Source: construction (issue 13, item 4). Her last two points 1.4x as bright as
+        // before (mitotic): her figures are taken before the brightening (area 100, total
+        // 50 000) and the wide mitotic bounds apply: daughters 0.95 of her area and 1.9 of her
+        // brightness in sum pass. The same mother without the brightening is judged by her last
+        // three points (area 110): 95/110 = 0.86 is above the 0.85 a daughter may have.
+        let params = LinkParams::for_diameter(14.0);
+        let rules = DivisionRules::default();
+        let mut points = mitosis_movie(700.0);
+        let events = detect_divisions(&mut points, &params, &rules);
+        assert_eq!(events.len(), 1, "{events:?}");
+        assert_eq!(events[0].frame, 5);
+        let mut points = mitosis_movie(500.0);
+        assert!(detect_divisions(&mut points, &params, &rules).is_empty());
     }
 }

@@ -106,18 +106,25 @@ pub fn assign_with_alternatives(
 pub struct TrackResolution {
     /// Gaps bridged by gap closing.
     pub gaps_closed: usize,
-    /// Objects split during online linking because two tracks entered them
-    /// ([`repair::split_shared_objects`]); set by the caller that ran the online linker.
+    /// Objects split as two nuclei: during online linking because two tracks entered them
+    /// ([`repair::split_shared_objects`], counted by the caller that ran the online linker),
+    /// and afterwards because two nuclei came out of them ([`repair::split_back_in_time`]).
     pub shared_objects_split: usize,
     /// Division events, in frame order, with final track ids.
     pub divisions: Vec<divide::DivisionEvent>,
 }
 
-/// The global steps after online linking: gap closing, then division detection (as the
-/// parameters say), then track ids renumbered from 1 in order of first appearance (first
-/// frame, then object label), so that ids do not depend on how segments were joined.
-pub fn resolve_tracks(points: &mut [TrackedDetection], params: &LinkParams) -> TrackResolution {
+/// The global steps after online linking: gap closing, then objects that two nuclei came out
+/// of split back in time, then division detection (as the parameters say), then track ids
+/// renumbered from 1 in order of first appearance (first frame, then object label), so that
+/// ids do not depend on how segments were joined.
+pub fn resolve_tracks(points: &mut Vec<TrackedDetection>, params: &LinkParams) -> TrackResolution {
     let gaps_closed = close::close_gaps(points, params).len();
+    let shared_objects_split = repair::split_back_in_time(
+        points,
+        params.daughter_reach_px(),
+        repair::min_part_px(params.diameter_px),
+    );
     let mut divisions = match params.divisions {
         Divisions::On => divide::detect_divisions(points, params, &params.division_rules),
         Divisions::Off => Vec::new(),
@@ -131,7 +138,7 @@ pub fn resolve_tracks(points: &mut [TrackedDetection], params: &LinkParams) -> T
     TrackResolution {
         gaps_closed,
         divisions,
-        shared_objects_split: 0,
+        shared_objects_split,
     }
 }
 

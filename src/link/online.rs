@@ -6,7 +6,7 @@
 use super::link_frames_gated;
 use super::motion::MotionFilter;
 use super::params::{LinkParams, Prediction};
-use super::repair::{split_shared_objects, Expected};
+use super::repair::{min_part_px, split_shared_objects, Expected};
 use crate::tracks::{Detection, TrackedDetection};
 
 #[derive(Debug, Clone)]
@@ -27,11 +27,16 @@ struct LiveTrack {
 const MERGE_AREA_RATIO: f64 = 1.6;
 
 impl LiveTrack {
-    /// The track after taking a detection at `position` of `area_px`.
-    fn followed_to(&self, position: [f64; 2], area_px: f64) -> LiveTrack {
+    /// The track after taking a detection at `position` of `area_px`; `shared` where the
+    /// detection is half of an object split because two tracks entered it, whose area is a
+    /// share of the object's and is not remembered as the nucleus's own (were it remembered,
+    /// two tracks on one nucleus would keep splitting it, their shares always summing to it).
+    fn followed_to(&self, position: [f64; 2], area_px: f64, shared: bool) -> LiveTrack {
         let mut next = self.clone();
         next.position = position;
-        if area_px > MERGE_AREA_RATIO * self.area_px {
+        if shared {
+            next.motion.step(position);
+        } else if area_px > MERGE_AREA_RATIO * self.area_px {
             // The merged centroid lies about a nucleus radius from this nucleus.
             next.motion
                 .step_uncertain(position, self.area_px / std::f64::consts::PI);
@@ -88,8 +93,9 @@ impl OnlineLinker {
                 area_px: t.area_px,
             })
             .collect();
-        let (detections, splits) = split_shared_objects(detections, &expected);
+        let (detections, splits) = split_shared_objects(detections, &expected, min_part_px(self.params.diameter_px));
         self.shared_objects_split += splits;
+        let shared = shared_labels(&detections);
         let targets: Vec<[f64; 2]> = detections.iter().map(|d| [d.x, d.y]).collect();
         let links = link_frames_gated(&sources, &radii, &targets);
         let mut assigned: Vec<Option<(usize, f64, f64)>> = vec![None; targets.len()];
@@ -102,7 +108,7 @@ impl OnlineLinker {
             let here = [d.x, d.y];
             let (track, cost, confidence) = match assigned[t] {
                 Some((s, squared, confidence)) => (
-                    self.live[s].followed_to(here, d.area_px),
+                    self.live[s].followed_to(here, d.area_px, shared.contains(&d.label)),
                     Some(squared),
                     Some(confidence),
                 ),
@@ -149,6 +155,16 @@ impl OnlineLinker {
             (t.position, max)
         }
     }
+}
+
+/// Labels that two detections of a frame carry: objects split in two.
+fn shared_labels(detections: &[Detection]) -> std::collections::BTreeSet<u32> {
+    let mut seen = std::collections::BTreeSet::new();
+    detections
+        .iter()
+        .map(|d| d.label)
+        .filter(|&l| !seen.insert(l))
+        .collect()
 }
 
 /// Link confidence, our own definition: `1 − cost / second_best`, 1 when the link is far

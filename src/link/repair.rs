@@ -1,13 +1,31 @@
 //! Time repairs segmentation: an object that two tracks enter is two nuclei segmented as one,
 //! and is split where the tracks say they are.
 
-use crate::tracks::Detection;
+use crate::tracks::{Detection, TrackedDetection};
 
 /// The object's area over the two nuclei's summed areas must lie in this range for the
 /// object to be taken as the two of them (our own bounds: two touching nuclei segmented as one
 /// cover about their summed area; the margin leaves room for size noise and for the seam
 /// pixels a merge adds).
 pub const SHARED_AREA_RATIO: (f64, f64) = (0.7, 1.35);
+
+/// Each of the two must be at least this fraction of a nucleus of the expected diameter: a
+/// daughter is about half a nucleus; a fragment of an over-segmentation tracked beside a
+/// nucleus is smaller, and would otherwise have that nucleus cut in two frame after frame.
+/// Our own bound.
+pub const MIN_PART_OF_NUCLEUS: f64 = 0.35;
+
+/// Whether an object of `area` px can be two nuclei of `a` and `b` px segmented as one
+/// ([`SHARED_AREA_RATIO`]), each at least `min_part` px ([`MIN_PART_OF_NUCLEUS`] of a nucleus).
+fn area_fits_two(area: f64, a: f64, b: f64, min_part: f64) -> bool {
+    let ratio = area / (a + b);
+    ratio >= SHARED_AREA_RATIO.0 && ratio <= SHARED_AREA_RATIO.1 && a.min(b) >= min_part
+}
+
+/// [`MIN_PART_OF_NUCLEUS`] of the area of a disc of `diameter_px`.
+pub fn min_part_px(diameter_px: f64) -> f64 {
+    MIN_PART_OF_NUCLEUS * std::f64::consts::PI * diameter_px * diameter_px / 4.0
+}
 
 /// A live track as the repair sees it: where it is predicted in the new frame and the area
 /// of its last single nucleus.
@@ -20,13 +38,13 @@ pub struct Expected {
 }
 
 /// Splits every detection that exactly two tracks enter: both predictions inside its
-/// moment-equivalent ellipse, its area near the sum of theirs (within
-/// [`SHARED_AREA_RATIO`]), neither track claimed by another object. Each such object is
+/// moment-equivalent ellipse, its area near the sum of theirs and larger than either
+/// ([`area_fits_two`]), neither track claimed by another object. Each such object is
 /// replaced by two detections (see [`split_between`]) that keep its label, so both tracks go
 /// on through the merge instead of one ending. Objects no track pair enters are left as
 /// they are; in particular two objects are never joined because one track lies between them.
 /// Returns the detections and how many objects were split.
-pub fn split_shared_objects(detections: Vec<Detection>, tracks: &[Expected]) -> (Vec<Detection>, usize) {
+pub fn split_shared_objects(detections: Vec<Detection>, tracks: &[Expected], min_part: f64) -> (Vec<Detection>, usize) {
     let mut claimed = vec![false; tracks.len()];
     let mut out = Vec::with_capacity(detections.len() + 4);
     let mut splits = 0;
@@ -39,9 +57,7 @@ pub fn split_shared_objects(detections: Vec<Detection>, tracks: &[Expected]) -> 
             _ => None,
         };
         let halves = pair.and_then(|[a, b]| {
-            let total = tracks[a].area_px + tracks[b].area_px;
-            let ratio = d.area_px / total;
-            let fits = ratio >= SHARED_AREA_RATIO.0 && ratio <= SHARED_AREA_RATIO.1;
+            let fits = area_fits_two(d.area_px, tracks[a].area_px, tracks[b].area_px, min_part);
             fits.then(|| split_between(&d, [tracks[a], tracks[b]]))
                 .flatten()
                 .map(|h| (h, [a, b]))
@@ -83,6 +99,15 @@ fn inside_ellipse(d: &Detection, p: [f64; 2]) -> bool {
 /// then gets round axes of its own area's equivalent diameter. `None` when the two predictions
 /// coincide (within 1 px).
 pub fn split_between(d: &Detection, parts: [Expected; 2]) -> Option<[Detection; 2]> {
+    split(d, parts, true)
+}
+
+/// [`split_between`] where the object's shape says where the two are, `None` elsewhere.
+pub fn split_along_axis(d: &Detection, parts: [Expected; 2]) -> Option<[Detection; 2]> {
+    split(d, parts, false)
+}
+
+fn split(d: &Detection, parts: [Expected; 2], or_at_predictions: bool) -> Option<[Detection; 2]> {
     let total = parts[0].area_px + parts[1].area_px;
     let apart = [
         parts[0].predicted[0] - parts[1].predicted[0],
@@ -94,6 +119,9 @@ pub fn split_between(d: &Detection, parts: [Expected; 2]) -> Option<[Detection; 
     let w = [parts[0].area_px / total, parts[1].area_px / total];
     let on_axis = moment_centres(d, w, apart);
     let along_axis = on_axis.is_some();
+    if !along_axis && !or_at_predictions {
+        return None;
+    }
     let centres = on_axis.unwrap_or_else(|| {
         let mean = |i: usize| w[0] * parts[0].predicted[i] + w[1] * parts[1].predicted[i];
         let shift = [d.x - mean(0), d.y - mean(1)];
@@ -135,6 +163,202 @@ fn moment_centres(d: &Detection, w: [f64; 2], apart: [f64; 2]) -> Option<[[f64; 
         [d.x + w[1] * s * cos, d.y + w[1] * s * sin],
         [d.x - w[0] * s * cos, d.y - w[0] * s * sin],
     ])
+}
+
+/// A merged object split back in time must be at least this elongated (major over minor
+/// axis). Two touching discs segmented as one measure about 1.9, two that overlap by half
+/// their radius about 1.4 (moments of two discs); a round nucleus, such as a mother rounded
+/// up for mitosis, measures close to 1. Our own bound between the two.
+pub const MIN_MERGED_ELONGATION: f64 = 1.3;
+
+/// Splits back in time the objects that two nuclei shared before they parted: where a track
+/// starts (frame `g`) next to a point of another track (within `reach` px), and that other
+/// track's point one frame earlier is an object elongated along the line between the two
+/// (at least [`MIN_MERGED_ELONGATION`], its major axis within 30° of the line) with about
+/// their summed area ([`area_fits_two`]), the object is split as
+/// [`split_along_axis`] does and the starting track begins one frame earlier with its half;
+/// and so on back while the test holds. Daughters still touching after a division are found
+/// this way (the mother's track took them as one object), and so is a neighbour hidden in a
+/// nucleus's object before it came apart. Returns the number of objects split.
+pub fn split_back_in_time(points: &mut Vec<TrackedDetection>, reach: f64, min_part: f64) -> usize {
+    let mut index = PointIndex::of(points);
+    let mut splits = 0;
+    for start in track_starts(points) {
+        let Some((mut older, mut sister)) = index.parted_from(points, start, reach, min_part) else {
+            continue;
+        };
+        let mut newer = start;
+        loop {
+            let parts = [&points[newer], &points[sister]].map(|p| Expected {
+                predicted: [p.detection.x, p.detection.y],
+                area_px: p.detection.area_px,
+            });
+            let Some([mine, theirs]) = split_along_axis(&points[older].detection, parts) else {
+                break;
+            };
+            if points[older].track_id != points[sister].track_id {
+                // The merged object's track ended there and the sister starts after it: the
+                // sister goes on that track.
+                let step = (theirs.x - points[sister].detection.x).hypot(theirs.y - points[sister].detection.y);
+                points[sister].distance_from_prediction_px = Some(step);
+                let (from, to) = (points[sister].track_id, points[older].track_id);
+                index.relabel(points, from, to);
+            }
+            let track_id = points[newer].track_id;
+            let step = (mine.x - points[newer].detection.x).hypot(mine.y - points[newer].detection.y);
+            points[newer].distance_from_prediction_px = Some(step);
+            points[older].detection = theirs;
+            points.push(TrackedDetection {
+                track_id,
+                parent_id: None,
+                detection: mine,
+                distance_from_prediction_px: None,
+                link_confidence: None,
+            });
+            newer = points.len() - 1;
+            index.add(points, newer);
+            splits += 1;
+            // Go on back along the same pair: the half just made and its sister half.
+            sister = older;
+            let Some(next) = index.merged_before(points, newer, sister, min_part) else {
+                break;
+            };
+            older = next;
+        }
+    }
+    splits
+}
+
+/// The first point of every track that starts after frame 0, in track id order.
+fn track_starts(points: &[TrackedDetection]) -> Vec<usize> {
+    let mut first: std::collections::BTreeMap<u32, usize> = Default::default();
+    for (k, p) in points.iter().enumerate() {
+        let e = first.entry(p.track_id).or_insert(k);
+        if p.detection.frame < points[*e].detection.frame {
+            *e = k;
+        }
+    }
+    first.into_values().filter(|&k| points[k].detection.frame > 0).collect()
+}
+
+/// Points by frame and by (track, frame).
+struct PointIndex {
+    by_frame: Vec<Vec<usize>>,
+    by_track_frame: std::collections::HashMap<(u32, usize), usize>,
+}
+
+impl PointIndex {
+    fn of(points: &[TrackedDetection]) -> Self {
+        let mut index = PointIndex {
+            by_frame: Vec::new(),
+            by_track_frame: Default::default(),
+        };
+        for k in 0..points.len() {
+            index.add(points, k);
+        }
+        index
+    }
+
+    fn add(&mut self, points: &[TrackedDetection], k: usize) {
+        let frame = points[k].detection.frame;
+        if self.by_frame.len() <= frame {
+            self.by_frame.resize(frame + 1, Vec::new());
+        }
+        self.by_frame[frame].push(k);
+        self.by_track_frame.insert((points[k].track_id, frame), k);
+    }
+
+    /// For the first point `start` of a track (frame `g`): a point of another track at `g`, a
+    /// separate object within `reach` px (the sister), and a point one frame earlier that
+    /// holds the two merged: the sister's own, or, where the sister starts a track too, the
+    /// last point of a track that ends there, within `reach` of both. Returns `(that earlier
+    /// point, the sister)`; among several, the sister nearest `start` (then the first
+    /// indexed).
+    fn parted_from(
+        &self,
+        points: &[TrackedDetection],
+        start: usize,
+        reach: f64,
+        min_part: f64,
+    ) -> Option<(usize, usize)> {
+        let p = &points[start];
+        let g = p.detection.frame;
+        let mut best: Option<(f64, usize, usize)> = None;
+        for &sister in &self.by_frame[g] {
+            let q = &points[sister];
+            let apart = distance(p, q);
+            let separate = q.track_id != p.track_id && q.detection.label != p.detection.label;
+            if !separate || apart > reach || best.is_some_and(|b| b.0 <= apart) {
+                continue;
+            }
+            let older = self.merged_before(points, start, sister, min_part).or_else(|| {
+                let starts_too = !self.by_track_frame.contains_key(&(q.track_id, g - 1));
+                starts_too
+                    .then(|| self.ended_holding(points, start, sister, reach, min_part))
+                    .flatten()
+            });
+            if let Some(older) = older {
+                best = Some((apart, older, sister));
+            }
+        }
+        best.map(|(_, older, sister)| (older, sister))
+    }
+
+    /// The first point (in index order) one frame before `a` and `b` that is the last of its
+    /// track, within `reach` of both, and holds the two merged.
+    fn ended_holding(
+        &self,
+        points: &[TrackedDetection],
+        a: usize,
+        b: usize,
+        reach: f64,
+        min_part: f64,
+    ) -> Option<usize> {
+        let g = points[a].detection.frame;
+        self.by_frame[g - 1].iter().copied().find(|&o| {
+            let m = &points[o];
+            !self.by_track_frame.contains_key(&(m.track_id, g))
+                && distance(m, &points[a]) <= reach
+                && distance(m, &points[b]) <= reach
+                && holds_both(&m.detection, &points[a].detection, &points[b].detection, min_part)
+        })
+    }
+
+    /// Moves every point of track `from` to track `to` (which has no point in the same frames).
+    fn relabel(&mut self, points: &mut [TrackedDetection], from: u32, to: u32) {
+        for (k, p) in points.iter_mut().enumerate() {
+            if p.track_id == from {
+                self.by_track_frame.remove(&(from, p.detection.frame));
+                p.track_id = to;
+                self.by_track_frame.insert((to, p.detection.frame), k);
+            }
+        }
+    }
+
+    /// The point one frame before `a` on the track of `b` (both at one frame), if it holds the
+    /// two merged ([`holds_both`]).
+    fn merged_before(&self, points: &[TrackedDetection], a: usize, b: usize, min_part: f64) -> Option<usize> {
+        let earlier = points[a].detection.frame.checked_sub(1)?;
+        let older = *self.by_track_frame.get(&(points[b].track_id, earlier))?;
+        holds_both(
+            &points[older].detection,
+            &points[a].detection,
+            &points[b].detection,
+            min_part,
+        )
+        .then_some(older)
+    }
+}
+
+fn distance(p: &TrackedDetection, q: &TrackedDetection) -> f64 {
+    (p.detection.x - q.detection.x).hypot(p.detection.y - q.detection.y)
+}
+
+/// Whether object `m` looks like `a` and `b` segmented as one: elongated enough, with about
+/// their summed area.
+fn holds_both(m: &Detection, a: &Detection, b: &Detection, min_part: f64) -> bool {
+    m.major_axis_px >= MIN_MERGED_ELONGATION * m.minor_axis_px
+        && area_fits_two(m.area_px, a.area_px, b.area_px, min_part)
 }
 
 #[cfg(test)]
@@ -201,18 +425,18 @@ mod tests {
         // Source: construction (the rule of issue 13, item 3).
         let merged = object_of_discs(&[(30.0, 30.0, 7.0), (44.0, 30.0, 7.0)], 0);
         let two = [expected(30.5, 30.0, 150.0), expected(43.5, 30.0, 150.0)];
-        let (out, n) = split_shared_objects(vec![merged.clone()], &two);
+        let (out, n) = split_shared_objects(vec![merged.clone()], &two, 50.0);
         assert_eq!((out.len(), n), (2, 1));
         // Three times the tracks' summed area: not the two of them.
         let big = [expected(30.5, 30.0, 50.0), expected(43.5, 30.0, 50.0)];
-        assert_eq!(split_shared_objects(vec![merged.clone()], &big).1, 0);
+        assert_eq!(split_shared_objects(vec![merged.clone()], &big, 10.0).1, 0);
         // One track: nothing to split.
-        assert_eq!(split_shared_objects(vec![merged], &two[..1]).0.len(), 1);
+        assert_eq!(split_shared_objects(vec![merged], &two[..1], 50.0).0.len(), 1);
         // Two separate objects with one track predicted between them stay two.
         let left = object_of_discs(&[(20.0, 30.0, 7.0)], 0);
         let right = object_of_discs(&[(50.0, 30.0, 7.0)], 0);
         let between = [expected(35.0, 30.0, 150.0)];
-        let (out, n) = split_shared_objects(vec![left, right], &between);
+        let (out, n) = split_shared_objects(vec![left, right], &between, 50.0);
         assert_eq!((out.len(), n), (2, 0));
     }
 
@@ -231,7 +455,10 @@ mod tests {
             } else {
                 vec![
                     object_of_discs(&[(26.0, y, 7.0)], t),
-                    object_of_discs(&[(48.0, y, 7.0)], t),
+                    Detection {
+                        label: 2,
+                        ..object_of_discs(&[(48.0, y, 7.0)], t)
+                    },
                 ]
             };
             points.extend(linker.push(frame));
@@ -240,5 +467,72 @@ mod tests {
         assert_eq!(ids.len(), 2, "{ids:?}");
         assert_eq!(points.len(), 16);
         assert_eq!(linker.shared_objects_split(), 2);
+    }
+
+    /// A mother (one disc of radius 7 at (30, 30)) for frames 0-4, then two daughter discs of
+    /// radius 5.25 moving apart along x, `8 + 2k` px apart at frame `5 + k`, segmented as one
+    /// object while `merged(t)` says so.
+    fn dividing(merged: impl Fn(usize) -> bool, round_when_merged: bool) -> Vec<Vec<Detection>> {
+        (0..10)
+            .map(|t| {
+                if t < 5 {
+                    return vec![object_of_discs(&[(30.0, 30.0, 7.0)], t)];
+                }
+                let half = 4.0 + (t - 5) as f64;
+                let discs = [(30.0 - half, 30.0, 5.25), (30.0 + half, 30.0, 5.25)];
+                match (merged(t), round_when_merged) {
+                    (true, false) => vec![object_of_discs(&discs, t)],
+                    (true, true) => vec![object_of_discs(&[(30.0, 30.0, 7.5)], t)],
+                    (false, _) => discs
+                        .iter()
+                        .enumerate()
+                        .map(|(k, &d)| Detection {
+                            label: k as u32 + 1,
+                            ..object_of_discs(&[d], t)
+                        })
+                        .collect(),
+                }
+            })
+            .collect()
+    }
+
+    fn resolved(frames: Vec<Vec<Detection>>) -> (Vec<TrackedDetection>, crate::link::TrackResolution) {
+        let params = LinkParams::for_diameter(14.0);
+        let mut linker = OnlineLinker::new(params);
+        let mut points: Vec<TrackedDetection> = frames.into_iter().flat_map(|f| linker.push(f)).collect();
+        let resolution = crate::link::resolve_tracks(&mut points, &params);
+        (points, resolution)
+    }
+
+    #[test]
+    fn daughters_that_still_touch_are_split_back_to_the_division() {
+        // Source: construction (issue 13, item 4). The daughters are one elongated object in
+        // frames 5 and 6 (two discs 8 and 10 px apart: major over minor axis about 1.8 and
+        // 2.1) and apart from frame 7. Split back in time, the division is found where it
+        // happened: the mother's last frame is 4, both daughters are tracked from frame 5.
+        let (points, resolution) = resolved(dividing(|t| t <= 6, false));
+        assert_eq!(resolution.shared_objects_split, 2);
+        assert_eq!(resolution.divisions.len(), 1, "{:?}", resolution.divisions);
+        let event = &resolution.divisions[0];
+        assert_eq!(event.frame, 4);
+        for d in event.daughters {
+            let frames: Vec<usize> = points
+                .iter()
+                .filter(|p| p.track_id == d)
+                .map(|p| p.detection.frame)
+                .collect();
+            assert_eq!(frames.len(), 5, "{frames:?}");
+            assert_eq!(*frames.iter().min().unwrap(), 5);
+        }
+    }
+
+    #[test]
+    fn a_round_object_is_not_split_back() {
+        // Source: construction. The same movie with a round object (one disc of radius 7.5) in
+        // frames 5 and 6: nothing says it held two, so it stays one point; no object is split
+        // and no track gains points before frame 7 that it did not have.
+        let (points, resolution) = resolved(dividing(|t| t <= 6, true));
+        assert_eq!(resolution.shared_objects_split, 0);
+        assert_eq!(points.len(), 5 + 2 + 3 * 2);
     }
 }
