@@ -6,6 +6,7 @@
 use super::population::{Analysis, AnalysisOptions};
 use super::run::{analyze_input, write_table};
 use super::stats::{cohens_d, hierarchical_bootstrap, mann_whitney, mean_sd, quantile};
+use super::table::{LengthUnit, TimeUnit};
 use super::table::{CalibrationOverride, Filters};
 use crate::error::{Error, Result};
 use crate::numeric::Rng;
@@ -199,7 +200,7 @@ pub fn compare(
     let mut conditions: Vec<String> = Vec::new();
     let mut replicates: BTreeMap<String, Vec<ReplicateValues>> = BTreeMap::new();
     let mut names = Vec::new();
-    let mut units: Option<(String, &'static str, &'static str)> = None;
+    let mut units: Option<(String, LengthUnit, TimeUnit)> = None;
     for e in &entries {
         if !conditions.contains(&e.condition) {
             conditions.push(e.condition.clone());

@@ -7,13 +7,69 @@ use serde::Serialize;
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
+/// The length unit of an analysis: micrometres when calibrated, else pixels. Written as `um`
+/// and `px` in column names, summaries and pages.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum LengthUnit {
+    /// Pixels.
+    #[serde(rename = "px")]
+    Pixel,
+    /// Micrometres.
+    #[serde(rename = "um")]
+    Micrometre,
+}
+
+/// The time unit of an analysis: minutes when calibrated, else frames. Written as `min` and
+/// `frame`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum TimeUnit {
+    /// Frames.
+    #[serde(rename = "frame")]
+    Frame,
+    /// Minutes.
+    #[serde(rename = "min")]
+    Minute,
+}
+
+impl LengthUnit {
+    /// `px` or `um`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            LengthUnit::Pixel => "px",
+            LengthUnit::Micrometre => "um",
+        }
+    }
+}
+
+impl TimeUnit {
+    /// `frame` or `min`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            TimeUnit::Frame => "frame",
+            TimeUnit::Minute => "min",
+        }
+    }
+}
+
+impl std::fmt::Display for LengthUnit {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+impl std::fmt::Display for TimeUnit {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
 /// Units of the analysis: µm and minutes when calibrated, otherwise pixels and frames.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Units {
-    /// `um` or `px`.
-    pub length: &'static str,
-    /// `min` or `frame`.
-    pub time: &'static str,
+    /// Length unit.
+    pub length: LengthUnit,
+    /// Time unit.
+    pub time: TimeUnit,
     /// Length units per pixel (1 when uncalibrated).
     pub length_per_px: f64,
     /// Time units per frame (1 when uncalibrated).
@@ -26,8 +82,8 @@ impl Units {
     /// Uncalibrated: pixels and frames.
     pub fn pixels() -> Self {
         Units {
-            length: "px",
-            time: "frame",
+            length: LengthUnit::Pixel,
+            time: TimeUnit::Frame,
             length_per_px: 1.0,
             time_per_frame: 1.0,
             source: "none (pixels and frames)".into(),
@@ -147,8 +203,8 @@ fn resolve_units(
     let dt = pick(given.frame_interval_s, from_run(|c| c.frame_interval_s), from_csv_dt);
     match (px, dt) {
         (Some((p, ps)), Some((s, ss))) => Units {
-            length: "um",
-            time: "min",
+            length: LengthUnit::Micrometre,
+            time: TimeUnit::Minute,
             length_per_px: p,
             time_per_frame: s / 60.0,
             source: format!("pixel size from {ps}, interval from {ss}"),
@@ -324,7 +380,7 @@ mod tests {
         )
         .unwrap();
         let t = read_tracks(&p, CalibrationOverride::default()).unwrap();
-        assert_eq!((t.units.length, t.units.time), ("um", "min"));
+        assert_eq!((t.units.length, t.units.time), (LengthUnit::Micrometre, TimeUnit::Minute));
         assert_eq!(t.units.time_per_frame, 1.0);
         assert_eq!(t.tracks[0].path, vec![(0, 0.0, 0.0), (1, 2.0, 0.0), (2, 2.0, 1.0)]);
         std::fs::write(&p, "track_id,frame,x,y\n1,0,0,0\n1,0,1,1\n").unwrap();

@@ -3,7 +3,6 @@
 //! a manifest is escaped.
 
 use super::plots::{histogram, line_chart, rose, strip_chart, trajectories, Series, Strip};
-use crate::analyze::run::AnalysisRun;
 use crate::record::RunRecord;
 use serde_json::Value;
 use std::fmt::Write;
@@ -119,77 +118,110 @@ fn summary_table(html: &mut String, summary: &Value) {
     html.push_str("</table></div>");
 }
 
+/// What the page of `caravan analyze` shows, prepared by the caller: the drawing code knows
+/// no analysis types, only labels, numbers and series.
+#[derive(Debug, Clone)]
+pub struct AnalysisPage<'a> {
+    /// Where the tracks came from, as shown.
+    pub source: String,
+    /// Tracks read, and tracks analysed after filtering.
+    pub tracks_read: usize,
+    /// Tracks analysed after filtering.
+    pub tracks_analysed: usize,
+    /// Length unit label (`um` or `px`).
+    pub length_unit: &'a str,
+    /// Time unit label (`min` or `frame`).
+    pub time_unit: &'a str,
+    /// Where the calibration came from.
+    pub units_source: &'a str,
+    /// The tracking run's record, when the tracks came from a run folder.
+    pub run_record: Option<&'a RunRecord>,
+    /// `summary.json`'s population block, shown as a table.
+    pub summary: &'a Value,
+    /// Each analysed track's path, `(x, y)` in length units.
+    pub paths: Vec<Vec<(f64, f64)>>,
+    /// Direction of each track's net displacement, degrees.
+    pub directions_deg: Vec<f64>,
+    /// MSD points `(lag, msd)` in time and squared length units.
+    pub msd: Vec<(f64, f64)>,
+    /// A fitted MSD curve: its legend and points.
+    pub msd_fit: Option<(String, Vec<(f64, f64)>)>,
+    /// Mean speed per track.
+    pub speeds: Vec<f64>,
+    /// Directionality ratio per track.
+    pub directionality: Vec<f64>,
+    /// Order parameter over time `(time, φ)`.
+    pub order: Vec<(f64, f64)>,
+    /// Direction autocorrelation `(lag, value)`.
+    pub direction_autocorrelation: Vec<(f64, f64)>,
+    /// Neighbour velocity-fluctuation correlation `(distance, value)`.
+    pub neighbour_correlation: Vec<(f64, f64)>,
+    /// The analysis options and units, shown as JSON.
+    pub parameters: Value,
+}
+
 /// The report of `caravan analyze`.
-pub fn analysis_report(run: &AnalysisRun) -> String {
-    let a = &run.analysis;
-    let (l, t) = (a.units.length, a.units.time);
+pub fn analysis_report(page: &AnalysisPage) -> String {
+    let (l, t) = (page.length_unit, page.time_unit);
     let mut html = page_start("Caravan migration analysis");
     let _ = write!(
         html,
         "<p>Tracks from <code>{}</code>: {} read, {} analysed. Units: {} and {} ({}).</p>",
-        escape_html(&run.table.source.display().to_string()),
-        run.table.tracks.len(),
-        a.tracks.len(),
+        escape_html(&page.source),
+        page.tracks_read,
+        page.tracks_analysed,
         l,
         t,
-        escape_html(&a.units.source)
+        escape_html(page.units_source)
     );
-    if let Some(record) = &run.table.run_record {
+    if let Some(record) = page.run_record {
         verdict_section(&mut html, record);
     }
     html.push_str("<h2>Population statistics</h2>");
-    summary_table(&mut html, &run.summary);
+    summary_table(&mut html, page.summary);
     html.push_str("<h2>Charts</h2><div class=\"grid\">");
-    let kept: Vec<Vec<(f64, f64)>> = run
-        .table
-        .tracks
-        .iter()
-        .filter(|tr| a.tracks.iter().any(|m| m.track_id == tr.id))
-        .map(|tr| tr.path.iter().map(|p| (p.1, p.2)).collect())
-        .collect();
     figure(
         &mut html,
         "trajectories",
-        &trajectories("Trajectories from a common origin", l, &kept, 300),
+        &trajectories("Trajectories from a common origin", l, &page.paths, 300),
         "Each analysed track moved to start at the origin (at most 300 shown).",
     );
-    let angles: Vec<f64> = a.tracks.iter().filter_map(|m| m.mean_direction_deg).collect();
     figure(
         &mut html,
         "rose",
-        &rose("Directions of net displacement", &angles, 18),
+        &rose("Directions of net displacement", &page.directions_deg, 18),
         "Share of tracks per 20° sector; 0° is +x, 90° is +y (down in the image).",
     );
     figure(
         &mut html,
         "msd",
-        &msd_chart(run),
+        &msd_chart(page),
         "MSD with overlapping windows; the line is the persistent random walk fitted over the stated lags.",
     );
-    let speeds: Vec<f64> = a.tracks.iter().filter_map(|m| m.mean_speed).collect();
     figure(
         &mut html,
         "speed",
-        &histogram("Mean speed per track", &format!("{l}/{t}"), &speeds, 20),
+        &histogram("Mean speed per track", &format!("{l}/{t}"), &page.speeds, 20),
         "Path length over duration, per track.",
     );
-    let ratios: Vec<f64> = a.tracks.iter().filter_map(|m| m.directionality_ratio).collect();
     figure(
         &mut html,
         "directionality",
         &histogram(
             "Directionality ratio per track",
             "net displacement / path length",
-            &ratios,
+            &page.directionality,
             20,
         ),
         "Depends on track duration: compare the fixed-time ratio in the table between conditions.",
     );
-    let order: Vec<(f64, f64)> = a
-        .frames
-        .iter()
-        .filter_map(|f| f.order_parameter.map(|o| (f.frame as f64 * a.units.time_per_frame, o)))
-        .collect();
+    let series = |label: &str, points: &[(f64, f64)], markers: bool| {
+        [Series {
+            label: label.into(),
+            points: points.to_vec(),
+            markers,
+        }]
+    };
     figure(
         &mut html,
         "order",
@@ -197,20 +229,11 @@ pub fn analysis_report(run: &AnalysisRun) -> String {
             "Order parameter over time",
             &format!("time ({t})"),
             "order parameter",
-            &[Series {
-                label: "φ".into(),
-                points: order,
-                markers: false,
-            }],
+            &series("φ", &page.order, false),
             false,
         ),
         "Alignment of velocities per frame: 1 all alike, about 1/√N for random headings.",
     );
-    let dacf: Vec<(f64, f64)> = a
-        .autocorrelation
-        .iter()
-        .map(|q| (q.lag_frames as f64 * a.units.time_per_frame, q.direction))
-        .collect();
     figure(
         &mut html,
         "autocorrelation",
@@ -218,20 +241,11 @@ pub fn analysis_report(run: &AnalysisRun) -> String {
             "Direction autocorrelation",
             &format!("lag ({t})"),
             "⟨û(t)·û(t+lag)⟩",
-            &[Series {
-                label: "direction".into(),
-                points: dacf,
-                markers: true,
-            }],
+            &series("direction", &page.direction_autocorrelation, true),
             false,
         ),
         "Unbiased by speed; a slow decay means persistent migration.",
     );
-    let nc: Vec<(f64, f64)> = a
-        .neighbour_correlation
-        .iter()
-        .filter_map(|b| b.correlation.map(|c| ((b.from + b.to) / 2.0, c)))
-        .collect();
     figure(
         &mut html,
         "neighbours",
@@ -239,49 +253,36 @@ pub fn analysis_report(run: &AnalysisRun) -> String {
             "Neighbour velocity-fluctuation correlation",
             &format!("distance ({l})"),
             "mean cosine",
-            &[Series {
-                label: "C(r)".into(),
-                points: nc,
-                markers: true,
-            }],
+            &series("C(r)", &page.neighbour_correlation, true),
             false,
         ),
         "Correlation of velocity fluctuations (common drift removed) between pairs of cells, by distance.",
     );
     html.push_str("</div>");
-    if let Some(record) = &run.table.run_record {
+    if let Some(record) = page.run_record {
         qc_section(&mut html, record);
     }
     html.push_str("<h2>Analysis parameters</h2>");
-    let params = serde_json::json!({ "options": a.options, "units": a.units });
     let _ = write!(
         html,
         "<pre>{}</pre>",
-        escape_html(&serde_json::to_string_pretty(&params).unwrap_or_default())
+        escape_html(&serde_json::to_string_pretty(&page.parameters).unwrap_or_default())
     );
     page_end(&mut html);
     html
 }
 
-fn msd_chart(run: &AnalysisRun) -> String {
-    let a = &run.analysis;
-    let (l, t) = (a.units.length, a.units.time);
-    let data: Vec<(f64, f64)> = a.msd.iter().map(|q| (q.lag, q.msd)).collect();
+fn msd_chart(page: &AnalysisPage) -> String {
+    let (l, t) = (page.length_unit, page.time_unit);
     let mut series = vec![Series {
         label: "MSD".into(),
-        points: data,
+        points: page.msd.clone(),
         markers: true,
     }];
-    if let Some(f) = &a.furth {
-        let (lo, hi) = (f.lag_range_frames.0 as f64, f.lag_range_frames.1 as f64);
-        let dt = a.units.time_per_frame;
-        let fit = (0..=40)
-            .map(|k| lo * dt * (hi / lo).powf(k as f64 / 40.0))
-            .map(|lag| (lag, crate::analyze::msd::furth_msd(lag, f.diffusion, f.persistence)))
-            .collect();
+    if let Some((label, fit)) = &page.msd_fit {
         series.push(Series {
-            label: format!("fit D = {:.3} {l}²/{t}, P = {:.2} {t}", f.diffusion, f.persistence),
-            points: fit,
+            label: label.clone(),
+            points: fit.clone(),
             markers: false,
         });
     }
