@@ -29,6 +29,7 @@
 pub mod analyze;
 pub mod batch;
 pub mod checkpoint;
+pub mod columns;
 pub mod error;
 pub mod image2d;
 pub mod link;

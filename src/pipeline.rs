@@ -4,6 +4,7 @@
 
 use crate::analyze::{summarize_track, write_per_track, TrackSummary};
 use crate::checkpoint::{CheckpointLog, Fingerprint, FrameRecord};
+use crate::columns::{write_header, write_rows, Column};
 use crate::error::{Error, Result};
 use crate::link::divide::DivisionEvent;
 use crate::link::estimate::MotionSource;
@@ -21,7 +22,7 @@ use crate::segment::diameter::{central_crop, combine, examine_frame, sample_fram
 use crate::segment::{segment_frame, FrameSegmentation};
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::Stack;
-use crate::tracks::{write_detections, write_detections_header, write_tracks, TrackedDetection};
+use crate::tracks::{detection_columns, write_tracks, Detection, TrackedDetection};
 use crate::verdict::{judge, RunFigures, RunVerdict};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
@@ -532,7 +533,8 @@ impl SegmentOutputs {
 /// its output. Frames come in from segmentation or from a checkpoint's log alike.
 pub(crate) struct FirstPass {
     csv: AtomicFile,
-    calibration: crate::stack::Calibration,
+    /// The columns of `detections.csv`.
+    columns: Vec<Column<Detection>>,
     frames: Vec<FrameSummary>,
     /// Each frame's detections, kept for linking (empty without linking).
     detections: Vec<Vec<crate::tracks::Detection>>,
@@ -553,10 +555,11 @@ impl FirstPass {
         params: &SegmentParams,
     ) -> Result<FirstPass> {
         let mut csv = AtomicFile::create(&dir.join("detections.csv"))?;
-        write_detections_header(&mut csv).map_err(|e| csv.error(e))?;
+        let columns = detection_columns(&info.calibration);
+        write_header(&mut csv, &columns).map_err(|e| csv.error(e))?;
         Ok(FirstPass {
             csv,
-            calibration: info.calibration,
+            columns,
             frames: Vec::with_capacity(info.frames),
             detections: Vec::new(),
             linking: outputs.linking.is_some(),
@@ -589,7 +592,7 @@ impl FirstPass {
 
     /// Writes one frame's detections, records its summary and links it.
     pub(crate) fn take(&mut self, record: FrameRecord) -> Result<()> {
-        write_detections(&mut self.csv, &record.detections, &self.calibration).map_err(|e| self.csv.error(e))?;
+        write_rows(&mut self.csv, &self.columns, &record.detections).map_err(|e| self.csv.error(e))?;
         self.object_count += record.detections.len();
         self.small_objects += record
             .detections

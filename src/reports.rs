@@ -3,15 +3,15 @@
 //! neither imports the other's writer (statistics never call drawing code).
 
 use crate::analyze::compare::{
-    comparison_rows, replicate_means, write_comparison_tables, Comparison, COMPARISON_HEADER,
+    comparison_header, comparison_rows, replicate_means, write_comparison_tables, Comparison,
 };
+use crate::analyze::msd::furth_msd;
 use crate::analyze::population::AnalysisOptions;
 use crate::analyze::run::{write_analysis_tables, AnalysisRun, ANALYSIS_TABLES};
 use crate::analyze::table::{CalibrationOverride, Filters};
 use crate::error::Result;
 use crate::output::write_atomic;
 use crate::render::plots::Strip;
-use crate::analyze::msd::furth_msd;
 use crate::render::report::{analysis_report, comparison_report, AnalysisPage, ComparedStatistic};
 use std::path::Path;
 
@@ -40,7 +40,10 @@ pub fn run_analysis(
     dir: &Path,
 ) -> Result<AnalysisRun> {
     let run = write_analysis_tables(input, calibration, filters, options, dir)?;
-    write_atomic(&dir.join("report.html"), analysis_report(&analysis_page(&run)).as_bytes())?;
+    write_atomic(
+        &dir.join("report.html"),
+        analysis_report(&analysis_page(&run)).as_bytes(),
+    )?;
     Ok(run)
 }
 
@@ -141,7 +144,7 @@ pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<(
         &manifest.display().to_string(),
         &entries,
         &comparison_rows(c),
-        &COMPARISON_HEADER,
+        &comparison_header(),
         &stats,
         &c.warnings,
     );

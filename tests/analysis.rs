@@ -83,7 +83,7 @@ fn a_hand_written_csv_gives_hand_derived_statistics() {
     )
     .unwrap();
     let s = &run.summary;
-    assert_eq!(run.analysis.units.length, "um");
+    assert_eq!(run.analysis.units.length.as_str(), "um");
     assert!((s["mean_speed_um_per_min"]["mean"].as_f64().unwrap() - 1.0).abs() < 1e-12);
     assert!((s["directionality_ratio"]["mean"].as_f64().unwrap() - 1.0).abs() < 1e-12);
     assert!((s["forward_migration_index"]["mean"].as_f64().unwrap() - 1.0).abs() < 1e-12);

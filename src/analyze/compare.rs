@@ -6,8 +6,8 @@
 use super::population::{Analysis, AnalysisOptions};
 use super::run::{analyze_input, write_table};
 use super::stats::{cohens_d, hierarchical_bootstrap, mann_whitney, mean_sd, quantile};
-use super::table::{LengthUnit, TimeUnit};
 use super::table::{CalibrationOverride, Filters};
+use super::table::{LengthUnit, TimeUnit};
 use crate::error::{Error, Result};
 use crate::numeric::Rng;
 use crate::output::{ensure_dir, write_atomic};
@@ -360,7 +360,7 @@ pub fn write_comparison_tables(c: &Comparison, manifest: &Path, dir: &Path) -> R
     ensure_dir(dir)?;
     write_table(dir, "replicates.csv", |w| write_replicates(w, c))?;
     write_table(dir, "comparison.csv", |w| {
-        write_csv_rows(w, &COMPARISON_HEADER, &comparison_rows(c))
+        write_csv_rows(w, &comparison_header(), &comparison_rows(c))
     })?;
     let record = serde_json::json!({
         "caravan_version": crate::VERSION,
@@ -379,59 +379,55 @@ pub fn write_comparison_tables(c: &Comparison, manifest: &Path, dir: &Path) -> R
     Ok(())
 }
 
-/// Columns of `comparison.csv` (and the report's table).
-pub const COMPARISON_HEADER: [&str; 16] = [
-    "statistic",
-    "reference",
-    "condition",
-    "replicates_reference",
-    "replicates_condition",
-    "tracks_reference",
-    "tracks_condition",
-    "mean_reference",
-    "mean_condition",
-    "difference",
-    "ci95_low",
-    "ci95_high",
-    "bootstrap_p",
-    "mann_whitney_p",
-    "rank_biserial",
-    "cohens_d",
+/// A number with 6 decimals, empty where not finite.
+fn six(v: f64) -> String {
+    if v.is_finite() {
+        format!("{v:.6}")
+    } else {
+        String::new()
+    }
+}
+
+/// [`six`] of a value that may be absent.
+fn six_or_empty(v: Option<f64>) -> String {
+    v.map(six).unwrap_or_default()
+}
+
+/// A text column of a table of rows `R`: header name and cell.
+type TextColumn<R> = (&'static str, fn(&R) -> String);
+
+/// The columns of `comparison.csv` (and the report's table): name and cell, one list for
+/// header and rows.
+const COMPARISON_COLUMNS: [TextColumn<Difference>; 16] = [
+    ("statistic", |d| d.statistic.clone()),
+    ("reference", |d| d.reference.clone()),
+    ("condition", |d| d.condition.clone()),
+    ("replicates_reference", |d| d.replicates.0.to_string()),
+    ("replicates_condition", |d| d.replicates.1.to_string()),
+    ("tracks_reference", |d| d.tracks.0.to_string()),
+    ("tracks_condition", |d| d.tracks.1.to_string()),
+    ("mean_reference", |d| six(d.means.0)),
+    ("mean_condition", |d| six(d.means.1)),
+    ("difference", |d| six(d.difference)),
+    ("ci95_low", |d| six(d.ci95.0)),
+    ("ci95_high", |d| six(d.ci95.1)),
+    ("bootstrap_p", |d| six(d.bootstrap_p)),
+    ("mann_whitney_p", |d| six_or_empty(d.mann_whitney_p)),
+    ("rank_biserial", |d| six_or_empty(d.rank_biserial)),
+    ("cohens_d", |d| six_or_empty(d.cohens_d)),
 ];
+
+/// The header of `comparison.csv` (and the report's table).
+pub fn comparison_header() -> Vec<&'static str> {
+    COMPARISON_COLUMNS.iter().map(|c| c.0).collect()
+}
 
 /// The rows of `comparison.csv` (and the report's table), numbers with 6 decimals, empty
 /// where not finite.
 pub fn comparison_rows(c: &Comparison) -> Vec<Vec<String>> {
-    let f = |v: f64| {
-        if v.is_finite() {
-            format!("{v:.6}")
-        } else {
-            String::new()
-        }
-    };
-    let o = |v: Option<f64>| v.map(f).unwrap_or_default();
     c.differences
         .iter()
-        .map(|d| {
-            vec![
-                d.statistic.clone(),
-                d.reference.clone(),
-                d.condition.clone(),
-                d.replicates.0.to_string(),
-                d.replicates.1.to_string(),
-                d.tracks.0.to_string(),
-                d.tracks.1.to_string(),
-                f(d.means.0),
-                f(d.means.1),
-                f(d.difference),
-                f(d.ci95.0),
-                f(d.ci95.1),
-                f(d.bootstrap_p),
-                o(d.mann_whitney_p),
-                o(d.rank_biserial),
-                o(d.cohens_d),
-            ]
-        })
+        .map(|d| COMPARISON_COLUMNS.iter().map(|col| (col.1)(d)).collect())
         .collect()
 }
 
@@ -445,36 +441,30 @@ fn write_csv_rows(w: &mut impl Write, header: &[&str], rows: &[Vec<String>]) -> 
     out.flush()
 }
 
+/// The cell of one column of `replicates.csv` for a row: statistic name and the replicate's
+/// values.
+type ReplicateCell = fn(&(&str, &ReplicateValues)) -> String;
+
+/// The columns of `replicates.csv`: name and cell, one list for header and rows.
+const REPLICATE_COLUMNS: [(&str, ReplicateCell); 6] = [
+    ("statistic", |r| r.0.to_string()),
+    ("condition", |r| r.1.condition.clone()),
+    ("replicate", |r| r.1.replicate.clone()),
+    ("tracks", |r| r.1.values.len().to_string()),
+    ("mean", |r| six(mean_sd(&r.1.values).map_or(f64::NAN, |m| m.0))),
+    ("standard_deviation", |r| {
+        six_or_empty(mean_sd(&r.1.values).and_then(|m| m.1))
+    }),
+];
+
 fn write_replicates(w: &mut impl Write, c: &Comparison) -> std::io::Result<()> {
-    let f = |v: f64| {
-        if v.is_finite() {
-            format!("{v:.6}")
-        } else {
-            String::new()
-        }
-    };
-    let mut rows = Vec::new();
-    for name in &c.statistic_names {
-        for r in &c.replicates[name] {
-            let (m, sd) = mean_sd(&r.values).unwrap_or((f64::NAN, None));
-            rows.push(vec![
-                name.clone(),
-                r.condition.clone(),
-                r.replicate.clone(),
-                r.values.len().to_string(),
-                f(m),
-                sd.map(f).unwrap_or_default(),
-            ]);
-        }
-    }
-    let header = [
-        "statistic",
-        "condition",
-        "replicate",
-        "tracks",
-        "mean",
-        "standard_deviation",
-    ];
+    let rows: Vec<Vec<String>> = c
+        .statistic_names
+        .iter()
+        .flat_map(|name| c.replicates[name].iter().map(move |r| (name.as_str(), r)))
+        .map(|row| REPLICATE_COLUMNS.iter().map(|col| (col.1)(&row)).collect())
+        .collect();
+    let header: Vec<&str> = REPLICATE_COLUMNS.iter().map(|col| col.0).collect();
     write_csv_rows(w, &header, &rows)
 }
 

@@ -14,6 +14,7 @@ pub mod run;
 pub mod stats;
 pub mod table;
 
+use crate::columns::{write_table, Column};
 use crate::stack::Calibration;
 use serde::Serialize;
 use std::io::{self, Write};
@@ -73,42 +74,45 @@ pub fn summarize_track(track_id: u32, parent_id: Option<u32>, points: &[(usize, 
     }
 }
 
-/// The header of `per_track.csv`.
-pub const PER_TRACK_HEADER: &str = "track_id,parent_id,first_frame,last_frame,points,duration_s,path_length_px,net_displacement_px,path_length_um,net_displacement_um,directionality_ratio,mean_speed_px_per_frame,mean_speed_um_per_min,mean_direction_deg";
-
-/// Writes `per_track.csv`; physical columns are empty when uncalibrated, and undefined
-/// values (a single point, a track that never moved) are empty.
-pub fn write_per_track(out: &mut impl Write, tracks: &[TrackSummary], calibration: &Calibration) -> io::Result<()> {
-    writeln!(out, "{PER_TRACK_HEADER}")?;
-    let opt = |v: Option<f64>, digits: usize| v.map(|x| format!("{x:.digits$}")).unwrap_or_default();
+/// The columns of `per_track.csv`; physical columns are empty when uncalibrated, and
+/// undefined values (a single point, a track that never moved) are empty.
+pub fn per_track_columns(calibration: &Calibration) -> Vec<Column<TrackSummary>> {
     let um = calibration.pixel_size_um;
     let dt = calibration.frame_interval_s;
-    for t in tracks {
-        let duration = dt.map(|s| s * (t.last_frame - t.first_frame) as f64);
-        let speed_um_min = match (t.mean_speed_px_per_frame, um, dt) {
-            (Some(v), Some(p), Some(s)) => Some(v * p / (s / 60.0)),
-            _ => None,
-        };
-        writeln!(
-            out,
-            "{},{},{},{},{},{},{:.4},{:.4},{},{},{},{},{},{}",
-            t.track_id,
-            t.parent_id.map(|p| p.to_string()).unwrap_or_default(),
-            t.first_frame,
-            t.last_frame,
-            t.points,
-            opt(duration, 3),
-            t.path_length_px,
-            t.net_displacement_px,
-            opt(um.map(|p| p * t.path_length_px), 4),
-            opt(um.map(|p| p * t.net_displacement_px), 4),
-            opt(t.directionality_ratio, 6),
-            opt(t.mean_speed_px_per_frame, 6),
-            opt(speed_um_min, 6),
-            opt(t.mean_direction_deg, 3)
-        )?;
-    }
-    Ok(())
+    vec![
+        Column::shown("track_id", |t: &TrackSummary| Some(t.track_id)),
+        Column::shown("parent_id", |t: &TrackSummary| t.parent_id),
+        Column::shown("first_frame", |t: &TrackSummary| Some(t.first_frame)),
+        Column::shown("last_frame", |t: &TrackSummary| Some(t.last_frame)),
+        Column::shown("points", |t: &TrackSummary| Some(t.points)),
+        Column::fixed("duration_s", 3, move |t: &TrackSummary| {
+            dt.map(|s| s * (t.last_frame - t.first_frame) as f64)
+        }),
+        Column::fixed("path_length_px", 4, |t: &TrackSummary| Some(t.path_length_px)),
+        Column::fixed("net_displacement_px", 4, |t: &TrackSummary| Some(t.net_displacement_px)),
+        Column::fixed("path_length_um", 4, move |t: &TrackSummary| {
+            um.map(|p| p * t.path_length_px)
+        }),
+        Column::fixed("net_displacement_um", 4, move |t: &TrackSummary| {
+            um.map(|p| p * t.net_displacement_px)
+        }),
+        Column::fixed("directionality_ratio", 6, |t: &TrackSummary| t.directionality_ratio),
+        Column::fixed("mean_speed_px_per_frame", 6, |t: &TrackSummary| {
+            t.mean_speed_px_per_frame
+        }),
+        Column::fixed("mean_speed_um_per_min", 6, move |t: &TrackSummary| {
+            match (t.mean_speed_px_per_frame, um, dt) {
+                (Some(v), Some(p), Some(s)) => Some(v * p / (s / 60.0)),
+                _ => None,
+            }
+        }),
+        Column::fixed("mean_direction_deg", 3, |t: &TrackSummary| t.mean_direction_deg),
+    ]
+}
+
+/// Writes `per_track.csv` (see [`per_track_columns`]).
+pub fn write_per_track(out: &mut impl Write, tracks: &[TrackSummary], calibration: &Calibration) -> io::Result<()> {
+    write_table(out, &per_track_columns(calibration), tracks)
 }
 
 #[cfg(test)]

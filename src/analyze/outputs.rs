@@ -1,126 +1,112 @@
 //! Tidy CSV tables and `summary.json` of an analysis, with the unit in every column and key
 //! name, numbers printed with fixed decimals so outputs are byte-identical between runs.
 
-use super::population::Analysis;
+use super::motility::{Motility, Step};
+use super::msd::{AutocorrelationPoint, MsdPoint};
+use super::population::{Analysis, CorrelationBin, FrameOrder};
 use super::stats::mean_sd;
+use crate::columns::{write_table, Column};
 use crate::numeric::median;
 use serde_json::{json, Map, Value};
 use std::io::{self, Write};
-
-fn opt(v: Option<f64>) -> String {
-    v.map(|x| format!("{x:.6}")).unwrap_or_default()
-}
 
 /// `track_stats.csv`: one row per track.
 pub fn write_track_stats(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
     let (l, t) = (a.units.length, a.units.time);
     let n = a.options.fixed_elapsed_frames;
-    writeln!(
-        out,
-        "track_id,points,first_frame,duration_{t},path_length_{l},net_displacement_{l},mean_speed_{l}_per_{t},directionality_ratio,directionality_at_{n}_frames,mean_direction_deg,forward_migration_index,mean_abs_turning_deg"
-    )?;
-    for m in &a.tracks {
-        writeln!(
-            out,
-            "{},{},{},{:.6},{:.6},{:.6},{},{},{},{},{},{}",
-            m.track_id,
-            m.points,
-            m.first_frame,
-            m.duration,
-            m.path_length,
-            m.net_displacement,
-            opt(m.mean_speed),
-            opt(m.directionality_ratio),
-            opt(m.directionality_at_fixed_time),
-            opt(m.mean_direction_deg),
-            opt(m.forward_migration_index),
-            opt(m.mean_abs_turning_deg)
-        )?;
-    }
-    Ok(())
+    let columns: Vec<Column<Motility>> = vec![
+        Column::shown("track_id", |m: &Motility| Some(m.track_id)),
+        Column::shown("points", |m: &Motility| Some(m.points)),
+        Column::shown("first_frame", |m: &Motility| Some(m.first_frame)),
+        Column::fixed(format!("duration_{t}"), 6, |m: &Motility| Some(m.duration)),
+        Column::fixed(format!("path_length_{l}"), 6, |m: &Motility| Some(m.path_length)),
+        Column::fixed(format!("net_displacement_{l}"), 6, |m: &Motility| {
+            Some(m.net_displacement)
+        }),
+        Column::fixed(format!("mean_speed_{l}_per_{t}"), 6, |m: &Motility| m.mean_speed),
+        Column::fixed("directionality_ratio", 6, |m: &Motility| m.directionality_ratio),
+        Column::fixed(format!("directionality_at_{n}_frames"), 6, |m: &Motility| {
+            m.directionality_at_fixed_time
+        }),
+        Column::fixed("mean_direction_deg", 6, |m: &Motility| m.mean_direction_deg),
+        Column::fixed("forward_migration_index", 6, |m: &Motility| m.forward_migration_index),
+        Column::fixed("mean_abs_turning_deg", 6, |m: &Motility| m.mean_abs_turning_deg),
+    ];
+    write_table(out, &columns, &a.tracks)
 }
 
 /// `steps.csv`: one row per step between consecutive frames.
 pub fn write_steps(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
-    writeln!(out, "track_id,frame,speed_{},heading_deg,turning_deg", a.units.speed())?;
-    for s in &a.steps {
-        writeln!(
-            out,
-            "{},{},{:.6},{:.6},{}",
-            s.track_id,
-            s.frame,
-            s.speed,
-            s.heading_deg,
-            opt(s.turning_deg)
-        )?;
-    }
-    Ok(())
+    let columns: Vec<Column<Step>> = vec![
+        Column::shown("track_id", |s: &Step| Some(s.track_id)),
+        Column::shown("frame", |s: &Step| Some(s.frame)),
+        Column::fixed(format!("speed_{}", a.units.speed()), 6, |s: &Step| Some(s.speed)),
+        Column::fixed("heading_deg", 6, |s: &Step| Some(s.heading_deg)),
+        Column::fixed("turning_deg", 6, |s: &Step| s.turning_deg),
+    ];
+    write_table(out, &columns, &a.steps)
 }
 
 /// `msd.csv`: lag, MSD, pairs and standard error.
 pub fn write_msd(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
     let (l, t) = (a.units.length, a.units.time);
-    writeln!(out, "lag_frames,lag_{t},msd_{l}2,pairs,standard_error_{l}2")?;
-    for q in &a.msd {
-        writeln!(
-            out,
-            "{},{:.6},{:.6},{},{:.6}",
-            q.lag_frames, q.lag, q.msd, q.pairs, q.standard_error
-        )?;
-    }
-    Ok(())
+    let columns: Vec<Column<MsdPoint>> = vec![
+        Column::shown("lag_frames", |q: &MsdPoint| Some(q.lag_frames)),
+        Column::fixed(format!("lag_{t}"), 6, |q: &MsdPoint| Some(q.lag)),
+        Column::fixed(format!("msd_{l}2"), 6, |q: &MsdPoint| Some(q.msd)),
+        Column::shown("pairs", |q: &MsdPoint| Some(q.pairs)),
+        Column::fixed(format!("standard_error_{l}2"), 6, |q: &MsdPoint| Some(q.standard_error)),
+    ];
+    write_table(out, &columns, &a.msd)
 }
 
 /// `autocorrelation.csv`: velocity and direction autocorrelation by lag.
 pub fn write_autocorrelation(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
     let (l, t) = (a.units.length, a.units.time);
-    writeln!(
-        out,
-        "lag_frames,lag_{t},velocity_autocorrelation_{l}2_per_{t}2,direction_autocorrelation,pairs"
-    )?;
-    for q in &a.autocorrelation {
-        writeln!(
-            out,
-            "{},{:.6},{:.6},{:.6},{}",
-            q.lag_frames,
-            q.lag_frames as f64 * a.units.time_per_frame,
-            q.velocity,
-            q.direction,
-            q.pairs
-        )?;
-    }
-    Ok(())
+    let dt = a.units.time_per_frame;
+    let columns: Vec<Column<AutocorrelationPoint>> = vec![
+        Column::shown("lag_frames", |q: &AutocorrelationPoint| Some(q.lag_frames)),
+        Column::fixed(format!("lag_{t}"), 6, move |q: &AutocorrelationPoint| {
+            Some(q.lag_frames as f64 * dt)
+        }),
+        Column::fixed(
+            format!("velocity_autocorrelation_{l}2_per_{t}2"),
+            6,
+            |q: &AutocorrelationPoint| Some(q.velocity),
+        ),
+        Column::fixed("direction_autocorrelation", 6, |q: &AutocorrelationPoint| {
+            Some(q.direction)
+        }),
+        Column::shown("pairs", |q: &AutocorrelationPoint| Some(q.pairs)),
+    ];
+    write_table(out, &columns, &a.autocorrelation)
 }
 
 /// `order.csv`: per-frame order parameter, neighbour distance and density.
 pub fn write_order(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
     let l = a.units.length;
-    writeln!(
-        out,
-        "frame,moving,order_parameter,mean_neighbour_distance_{l},median_density_per_{l}2"
-    )?;
-    for f in &a.frames {
-        writeln!(
-            out,
-            "{},{},{},{},{}",
-            f.frame,
-            f.moving,
-            opt(f.order_parameter),
-            opt(f.mean_neighbour_distance),
-            opt(f.median_density)
-        )?;
-    }
-    Ok(())
+    let columns: Vec<Column<FrameOrder>> = vec![
+        Column::shown("frame", |f: &FrameOrder| Some(f.frame)),
+        Column::shown("moving", |f: &FrameOrder| Some(f.moving)),
+        Column::fixed("order_parameter", 6, |f: &FrameOrder| f.order_parameter),
+        Column::fixed(format!("mean_neighbour_distance_{l}"), 6, |f: &FrameOrder| {
+            f.mean_neighbour_distance
+        }),
+        Column::fixed(format!("median_density_per_{l}2"), 6, |f: &FrameOrder| f.median_density),
+    ];
+    write_table(out, &columns, &a.frames)
 }
 
 /// `neighbour_correlation.csv`: correlation of velocity fluctuations by distance.
 pub fn write_neighbour_correlation(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
     let l = a.units.length;
-    writeln!(out, "from_{l},to_{l},correlation,pairs")?;
-    for b in &a.neighbour_correlation {
-        writeln!(out, "{:.6},{:.6},{},{}", b.from, b.to, opt(b.correlation), b.pairs)?;
-    }
-    Ok(())
+    let columns: Vec<Column<CorrelationBin>> = vec![
+        Column::fixed(format!("from_{l}"), 6, |b: &CorrelationBin| Some(b.from)),
+        Column::fixed(format!("to_{l}"), 6, |b: &CorrelationBin| Some(b.to)),
+        Column::fixed("correlation", 6, |b: &CorrelationBin| b.correlation),
+        Column::shown("pairs", |b: &CorrelationBin| Some(b.pairs)),
+    ];
+    write_table(out, &columns, &a.neighbour_correlation)
 }
 
 /// Mean, median, standard deviation and count of the values present.

@@ -380,7 +380,10 @@ mod tests {
         )
         .unwrap();
         let t = read_tracks(&p, CalibrationOverride::default()).unwrap();
-        assert_eq!((t.units.length, t.units.time), (LengthUnit::Micrometre, TimeUnit::Minute));
+        assert_eq!(
+            (t.units.length, t.units.time),
+            (LengthUnit::Micrometre, TimeUnit::Minute)
+        );
         assert_eq!(t.units.time_per_frame, 1.0);
         assert_eq!(t.tracks[0].path, vec![(0, 0.0, 0.0), (1, 2.0, 0.0), (2, 2.0, 1.0)]);
         std::fs::write(&p, "track_id,frame,x,y\n1,0,0,0\n1,0,1,1\n").unwrap();

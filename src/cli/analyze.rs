@@ -139,7 +139,8 @@ pub fn run(args: AnalyzeArgs) -> Result<()> {
     }
     // The region's scale depends on the calibration, which reading the tracks decides.
     let table = caravan::analyze::table::read_tracks(&args.input, args.analysis.calibration())?;
-    let calibrated = (table.units.length == caravan::analyze::table::LengthUnit::Micrometre).then_some(table.units.length_per_px);
+    let calibrated =
+        (table.units.length == caravan::analyze::table::LengthUnit::Micrometre).then_some(table.units.length_per_px);
     let (options, filters) = args.analysis.resolve(calibrated)?;
     let run = run_analysis(&args.input, args.analysis.calibration(), &filters, &options, &dir)?;
     print_analysis(&run);

@@ -42,7 +42,8 @@ pub fn run(args: CompareArgs) -> Result<()> {
     }
     let entries = read_manifest(&args.manifest)?;
     let first = caravan::analyze::table::read_tracks(&entries[0].path, args.analysis.calibration())?;
-    let calibrated = (first.units.length == caravan::analyze::table::LengthUnit::Micrometre).then_some(first.units.length_per_px);
+    let calibrated =
+        (first.units.length == caravan::analyze::table::LengthUnit::Micrometre).then_some(first.units.length_per_px);
     let (options, filters) = args.analysis.resolve(calibrated)?;
     let c = compare(entries, args.analysis.calibration(), &filters, &options, args.seed)?;
     write_comparison(&c, &args.manifest, &dir)?;

@@ -1,6 +1,7 @@
 //! The records that flow between stages: a [`Detection`] is one segmented nucleus in one
 //! frame. This module also owns their CSV form. No maths beyond bookkeeping.
 
+use crate::columns::{write_table, Column};
 use crate::stack::Calibration;
 use std::io::{self, Write};
 
@@ -48,52 +49,62 @@ pub struct TrackedDetection {
     pub link_confidence: Option<f64>,
 }
 
-/// The header of `detections.csv`.
-pub const DETECTIONS_HEADER: &str = "frame,object,x,y,x_um,y_um,time_s,area_px,equivalent_diameter_px,mean_intensity,total_intensity,major_axis_px,minor_axis_px,orientation_deg,touches_border";
-
-/// Writes the header line of `detections.csv`.
-pub fn write_detections_header(out: &mut impl Write) -> io::Result<()> {
-    writeln!(out, "{DETECTIONS_HEADER}")
-}
-
-/// Writes detections as CSV rows; physical columns are empty when uncalibrated. Numbers are
-/// printed with fixed decimals so that outputs are byte-identical between runs.
-pub fn write_detections(out: &mut impl Write, detections: &[Detection], calibration: &Calibration) -> io::Result<()> {
-    for d in detections {
-        writeln!(out, "{},{},{}", d.frame, d.label, measurement_fields(d, calibration))?;
-    }
-    Ok(())
-}
-
-/// `x,y,x_um,y_um,time_s,area_px,...,touches_border` of one detection.
-fn measurement_fields(d: &Detection, calibration: &Calibration) -> String {
-    let mut out = String::with_capacity(128);
-    let o = &mut out;
-    push_field(o, Some(d.x), 4);
-    push_field(o, Some(d.y), 4);
+/// The measurement columns of a detection (`x` to `touches_border`), shared by
+/// `detections.csv` and `tracks.csv`; physical columns are empty when uncalibrated.
+fn measurement_columns(calibration: &Calibration) -> Vec<Column<Detection>> {
     let size = calibration.pixel_size_um;
-    push_field(o, size.map(|s| d.x * s), 4);
-    push_field(o, size.map(|s| d.y * s), 4);
-    push_field(o, calibration.frame_interval_s.map(|s| d.frame as f64 * s), 3);
-    // Areas are whole pixel counts, printed as Rust prints an `f64`.
-    o.push_str(&d.area_px.to_string());
-    o.push(',');
-    push_field(o, Some(d.equivalent_diameter_px), 4);
-    push_field(o, Some(d.mean_intensity), 4);
-    push_field(o, Some(d.total_intensity), 2);
-    push_field(o, Some(d.major_axis_px), 4);
-    push_field(o, Some(d.minor_axis_px), 4);
-    push_field(o, Some(d.orientation_deg), 3);
-    o.push(if d.touches_border { '1' } else { '0' });
-    out
+    let interval = calibration.frame_interval_s;
+    vec![
+        Column::fixed("x", 4, |d: &Detection| Some(d.x)),
+        Column::fixed("y", 4, |d: &Detection| Some(d.y)),
+        Column::fixed("x_um", 4, move |d: &Detection| size.map(|s| d.x * s)),
+        Column::fixed("y_um", 4, move |d: &Detection| size.map(|s| d.y * s)),
+        Column::fixed("time_s", 3, move |d: &Detection| interval.map(|s| d.frame as f64 * s)),
+        // Areas are whole pixel counts, printed as Rust prints an `f64`.
+        Column::shown("area_px", |d: &Detection| Some(d.area_px)),
+        Column::fixed("equivalent_diameter_px", 4, |d: &Detection| {
+            Some(d.equivalent_diameter_px)
+        }),
+        Column::fixed("mean_intensity", 4, |d: &Detection| Some(d.mean_intensity)),
+        Column::fixed("total_intensity", 2, |d: &Detection| Some(d.total_intensity)),
+        Column::fixed("major_axis_px", 4, |d: &Detection| Some(d.major_axis_px)),
+        Column::fixed("minor_axis_px", 4, |d: &Detection| Some(d.minor_axis_px)),
+        Column::fixed("orientation_deg", 3, |d: &Detection| Some(d.orientation_deg)),
+        Column::shown("touches_border", |d: &Detection| Some(u8::from(d.touches_border))),
+    ]
 }
 
-/// One CSV field and its comma: `v` with fixed decimals, or nothing when absent.
-fn push_field(out: &mut String, v: Option<f64>, decimals: usize) {
-    if let Some(v) = v {
-        push_fixed(out, v, decimals);
-    }
-    out.push(',');
+/// The columns of `detections.csv`: frame, object label, then the measurements.
+pub fn detection_columns(calibration: &Calibration) -> Vec<Column<Detection>> {
+    let mut columns = vec![
+        Column::shown("frame", |d: &Detection| Some(d.frame)),
+        Column::shown("object", |d: &Detection| Some(d.label)),
+    ];
+    columns.extend(measurement_columns(calibration));
+    columns
+}
+
+/// The columns of `tracks.csv`: track and parent, frame, the measurements, the object label,
+/// and the link into the point (empty where a track starts).
+pub fn track_columns(calibration: &Calibration) -> Vec<Column<TrackedDetection>> {
+    let mut columns = vec![
+        Column::shown("track_id", |p: &TrackedDetection| Some(p.track_id)),
+        Column::shown("parent_id", |p: &TrackedDetection| p.parent_id),
+        Column::shown("frame", |p: &TrackedDetection| Some(p.detection.frame)),
+    ];
+    columns.extend(
+        measurement_columns(calibration)
+            .into_iter()
+            .map(|c| c.within(|p: &TrackedDetection| &p.detection)),
+    );
+    columns.extend([
+        Column::shown("object", |p: &TrackedDetection| Some(p.detection.label)),
+        Column::fixed("distance_from_prediction_px", 4, |p: &TrackedDetection| {
+            p.distance_from_prediction_px
+        }),
+        Column::fixed("link_confidence", 4, |p: &TrackedDetection| p.link_confidence),
+    ]);
+    columns
 }
 
 /// Appends `v` with `decimals` digits after the point, exactly as `format!("{v:.decimals$}")`
@@ -134,31 +145,10 @@ pub fn push_fixed(out: &mut String, v: f64, decimals: usize) {
     }
 }
 
-/// The header of `tracks.csv`.
-pub const TRACKS_HEADER: &str = "track_id,parent_id,frame,x,y,x_um,y_um,time_s,area_px,equivalent_diameter_px,mean_intensity,total_intensity,major_axis_px,minor_axis_px,orientation_deg,touches_border,object,distance_from_prediction_px,link_confidence";
-
 /// Writes `tracks.csv`: the header, then `points` in the order given (callers sort by track,
-/// then frame). Link columns are empty where a track starts.
+/// then frame).
 pub fn write_tracks(out: &mut impl Write, points: &[TrackedDetection], calibration: &Calibration) -> io::Result<()> {
-    writeln!(out, "{TRACKS_HEADER}")?;
-    for p in points {
-        let parent = p.parent_id.map(|v| v.to_string()).unwrap_or_default();
-        let cost = p
-            .distance_from_prediction_px
-            .map(|c| format!("{c:.4}"))
-            .unwrap_or_default();
-        let confidence = p.link_confidence.map(|c| format!("{c:.4}")).unwrap_or_default();
-        let d = &p.detection;
-        writeln!(
-            out,
-            "{},{parent},{},{},{},{cost},{confidence}",
-            p.track_id,
-            d.frame,
-            measurement_fields(d, calibration),
-            d.label
-        )?;
-    }
-    Ok(())
+    write_table(out, &track_columns(calibration), points)
 }
 
 /// A point of a ground-truth or result track, as in `truth.csv`.
@@ -176,17 +166,21 @@ pub struct TrackPoint {
     pub y: f64,
 }
 
-/// The header of a tracks-like CSV (`truth.csv`).
-pub const TRACK_POINTS_HEADER: &str = "track_id,parent_id,frame,x,y";
+/// The columns of a tracks-like CSV (`truth.csv`); `parent_id` is empty for tracks without
+/// a parent.
+pub fn track_point_columns() -> Vec<Column<TrackPoint>> {
+    vec![
+        Column::shown("track_id", |p: &TrackPoint| Some(p.track_id)),
+        Column::shown("parent_id", |p: &TrackPoint| p.parent_id),
+        Column::shown("frame", |p: &TrackPoint| Some(p.frame)),
+        Column::fixed("x", 4, |p: &TrackPoint| Some(p.x)),
+        Column::fixed("y", 4, |p: &TrackPoint| Some(p.y)),
+    ]
+}
 
-/// Writes track points; `parent_id` is empty for tracks without a parent.
+/// Writes track points (see [`track_point_columns`]).
 pub fn write_track_points(out: &mut impl Write, points: &[TrackPoint]) -> io::Result<()> {
-    writeln!(out, "{TRACK_POINTS_HEADER}")?;
-    for p in points {
-        let parent = p.parent_id.map(|v| v.to_string()).unwrap_or_default();
-        writeln!(out, "{},{parent},{},{:.4},{:.4}", p.track_id, p.frame, p.x, p.y)?;
-    }
-    Ok(())
+    write_table(out, &track_point_columns(), points)
 }
 
 /// One row of a tracks table as read: the columns every tracks CSV has (`track_id, frame, x,
