@@ -13,7 +13,10 @@
 //! | [`score`] | accuracy of detections and tracks against ground truth (TRA/DET, MOTA, divisions) |
 //! | [`render`] | drawing overlays (the preview PNG, the QC movie) |
 //! | [`tracks`] | the `Detection` type and its CSV form |
-//! | [`pipeline`] | streaming orchestration over a whole recording, progress, run records |
+//! | [`columns`] | CSV tables from one list of columns (name and cell printer) |
+//! | [`frames`] | frame production: decoding and segmenting in parallel batches, in frame order, with progress |
+//! | [`pipeline`] | a run over a whole recording: parameters, first pass, linking, outputs, run record |
+//! | [`qc`] | linking quality figures, object-count jumps, soft warnings of a run |
 //! | [`workflow`] | the Snakemake workflow of a manifest (shards, joins, comparison) |
 //! | [`verdict`] | whether a run can be trusted: `ok`, `doubtful` or `failed`, with reasons and fixes |
 //! | [`reports`] | analysis and comparison folders: tables from `analyze`, pages from `render` |
@@ -21,6 +24,13 @@
 //! | [`record`] | the run record (`run.json`), written and read as one typed structure |
 //! | [`params`] | every tunable parameter with its default, unit and valid range |
 //! | [`numeric`] | order statistics and the seeded random generator, shared by the stages |
+//! | [`analyze`] | migration statistics of tracks (speed, directionality, MSD, order) and comparisons of conditions |
+//! | [`batch`] | running many recordings of a manifest in turn |
+//! | [`checkpoint`] | the frame log that lets an interrupted run resume |
+//! | [`shard`] | segmenting a frame range on its own, for joining later |
+//! | [`output`] | atomic files (temp then rename) and folder helpers |
+//! | [`image2d`] | the 2-D float image type |
+//! | [`error`] | the error type: one line naming the file and the problem |
 //!
 //! Conventions, stated once: images are indexed `(row, column)` = `(y, x)`; pixel centres sit at
 //! integer coordinates, 0-based; `x` is the column and `y` the row. Frames are numbered from 0.
@@ -31,6 +41,7 @@ pub mod batch;
 pub mod checkpoint;
 pub mod columns;
 pub mod error;
+pub mod frames;
 pub mod image2d;
 pub mod link;
 pub mod numeric;
@@ -38,6 +49,7 @@ pub mod output;
 pub mod params;
 pub mod pipeline;
 pub mod preprocess;
+pub mod qc;
 pub mod record;
 pub mod render;
 pub mod reports;

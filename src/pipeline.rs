@@ -1,33 +1,31 @@
-//! Orchestration over a whole recording: resolving parameters (including the automatic
-//! diameter), segmenting frames in parallel batches while keeping frame order, progress on a
-//! terminal, and the `segment` run with its outputs. No per-pixel work happens here.
+//! A run over a whole recording: resolving parameters (including the automatic diameter), the
+//! first pass over the segmented frames ([`crate::frames`]), linking, and the outputs with
+//! their run record. No per-pixel work happens here.
 
 use crate::analyze::{summarize_track, write_per_track, TrackSummary};
 use crate::checkpoint::{CheckpointLog, Fingerprint, FrameRecord};
 use crate::columns::{write_header, write_rows, Column};
 use crate::error::{Error, Result};
+use crate::frames::{progress_bar, with_segmented_frames};
 use crate::link::divide::DivisionEvent;
 use crate::link::estimate::MotionSource;
 use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
-use crate::numeric::median;
 use crate::output::{crc32_file, write_atomic, AtomicFile};
 use crate::params::{Length, SegmentParams};
+use crate::qc::{count_jumps, linking_qc, warnings_for, RunWarning};
 pub use crate::record::{DiameterSource, FrameSummary, LinkingQc};
 use crate::record::{RunCounts, RunInput, RunParameters, RunRecord, Timings, RESEARCH_USE};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
 use crate::segment::diameter::{central_crop, combine, examine_frame, sample_frames, Confidence, ESTIMATE_CROP_PX};
-use crate::segment::{segment_frame, FrameSegmentation};
+use crate::segment::FrameSegmentation;
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::Stack;
 use crate::tracks::{detection_columns, write_tracks, Detection, TrackedDetection};
 use crate::verdict::{judge, RunFigures, RunVerdict};
-use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
-use std::collections::VecDeque;
-use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
@@ -75,158 +73,9 @@ pub fn resolve_diameter(
     })
 }
 
-/// A progress bar on stderr when it is a terminal; hidden (silent) otherwise, e.g. in logs.
-pub fn progress_bar(len: u64, what: &str) -> ProgressBar {
-    if !std::io::stderr().is_terminal() {
-        return ProgressBar::hidden();
-    }
-    let bar = ProgressBar::new(len);
-    let template = format!("{{elapsed_precise}} [{{bar:40}}] {{pos}}/{{len}} {what} {{per_sec}} ETA {{eta}}");
-    bar.set_style(
-        ProgressStyle::with_template(&template)
-            .expect("valid template")
-            .progress_chars("=> "),
-    );
-    bar
-}
-
-/// Segmented frames of a recording, in frame order. Frames are decoded in batches of a few per
-/// worker thread; while one batch is segmented in parallel the next is decoded, so reading
-/// overlaps computing, and memory is bounded by two batches, not by the recording's length.
-struct SegmentedFrames<'a> {
-    stack: &'a mut Stack,
-    params: &'a SegmentParams,
-    /// Frames not decoded yet.
-    range: std::ops::Range<usize>,
-    /// Decoded, waiting to be segmented.
-    decoded: Vec<crate::stack::Frame>,
-    ready: VecDeque<FrameSegmentation>,
-    failed: Option<Error>,
-    batch: usize,
-    progress: ProgressBar,
-}
-
-impl<'a> SegmentedFrames<'a> {
-    /// Stops before frame `end` (a shard's range).
-    fn until(mut self, end: usize) -> Self {
-        self.range.end = self.range.end.min(end);
-        self
-    }
-
-    /// Iterates over the frames of `stack` from `first` on.
-    fn starting_at(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar, first: usize) -> Self {
-        let frames = stack.info().frames;
-        let batch = 2 * rayon::current_num_threads().max(1);
-        SegmentedFrames {
-            stack,
-            params,
-            range: first.min(frames)..frames,
-            decoded: Vec::new(),
-            ready: VecDeque::new(),
-            failed: None,
-            batch,
-            progress,
-        }
-    }
-
-    fn decode_batch(
-        stack: &mut Stack,
-        range: &mut std::ops::Range<usize>,
-        batch: usize,
-    ) -> Result<Vec<crate::stack::Frame>> {
-        let end = (range.start + batch).min(range.end);
-        let frames = (range.start..end)
-            .map(|t| stack.read_frame(t))
-            .collect::<Result<Vec<_>>>();
-        range.start = end;
-        frames
-    }
-
-    fn fill(&mut self) {
-        if self.decoded.is_empty() {
-            match Self::decode_batch(self.stack, &mut self.range, self.batch) {
-                Ok(frames) => self.decoded = frames,
-                Err(e) => {
-                    self.failed = Some(e);
-                    return;
-                }
-            }
-        }
-        let current = std::mem::take(&mut self.decoded);
-        let params = self.params;
-        let (stack, range, batch) = (&mut *self.stack, &mut self.range, self.batch);
-        let (next, done) = rayon::join(
-            || Self::decode_batch(stack, range, batch),
-            || {
-                current
-                    .par_iter()
-                    .map(|f| segment_frame(&f.to_image(), f.index, params))
-                    .collect::<Vec<_>>()
-            },
-        );
-        self.progress.inc(done.len() as u64);
-        self.ready.extend(done);
-        match next {
-            Ok(frames) => self.decoded = frames,
-            Err(e) => self.failed = Some(e),
-        }
-    }
-}
-
-impl Iterator for SegmentedFrames<'_> {
-    type Item = Result<FrameSegmentation>;
-    fn next(&mut self) -> Option<Self::Item> {
-        if self.ready.is_empty() && self.failed.is_none() && !(self.decoded.is_empty() && self.range.is_empty()) {
-            self.fill();
-        }
-        if let Some(seg) = self.ready.pop_front() {
-            return Some(Ok(seg));
-        }
-        if let Some(e) = self.failed.take() {
-            self.range.start = self.range.end;
-            self.decoded.clear();
-            return Some(Err(e));
-        }
-        self.progress.finish_and_clear();
-        None
-    }
-}
-
-/// Runs `consume` on the segmented frames `range` of `stack`, in frame order, while the next
-/// frames are being segmented: a producer thread decodes and segments batches (on the worker
-/// pool) and hands results over a short queue, so writing tables, logging and
-/// linking on the calling thread no longer leave the workers idle between batches.
-/// Returns what `consume` returns; if it stops early, the producer stops at its next frame.
-pub fn with_segmented_frames<T>(
-    stack: &mut Stack,
-    params: &SegmentParams,
-    progress: ProgressBar,
-    range: std::ops::Range<usize>,
-    consume: impl FnOnce(&mut dyn Iterator<Item = Result<FrameSegmentation>>) -> T,
-) -> T {
-    let queue = 2 * rayon::current_num_threads().max(1);
-    std::thread::scope(|scope| {
-        let (sender, receiver) = std::sync::mpsc::sync_channel(queue);
-        let producer = scope.spawn(move || {
-            let frames = SegmentedFrames::starting_at(stack, params, progress, range.start).until(range.end);
-            for seg in frames {
-                if sender.send(seg).is_err() {
-                    break;
-                }
-            }
-        });
-        let result = consume(&mut receiver.iter());
-        drop(receiver);
-        if let Err(panic) = producer.join() {
-            std::panic::resume_unwind(panic);
-        }
-        result
-    })
-}
-
 /// What a `segment` or `track` run produced.
 #[derive(Debug, Clone)]
-pub struct SegmentRun {
+pub struct RunOutcome {
     /// Output folder.
     pub dir: PathBuf,
     /// Diameter used and where it came from.
@@ -247,7 +96,7 @@ pub struct SegmentRun {
     pub verdict: RunVerdict,
 }
 
-impl SegmentRun {
+impl RunOutcome {
     /// Total detections.
     pub fn detections(&self) -> usize {
         self.frames.iter().map(|f| f.objects).sum()
@@ -256,7 +105,7 @@ impl SegmentRun {
 
 /// Options of a run beyond the segmentation parameters.
 #[derive(Debug, Clone, Default)]
-pub struct SegmentOutputs {
+pub struct RunOptions {
     /// Also write `labels.tif` (one 32-bit label image per frame).
     pub labels: bool,
     /// Link detections into tracks (`tracks.csv`, `per_track.csv`) with these choices.
@@ -279,9 +128,9 @@ pub fn run_recording(
     diameter: DiameterSource,
     params: &SegmentParams,
     dir: &Path,
-    outputs: &SegmentOutputs,
+    outputs: &RunOptions,
     command: &str,
-) -> Result<SegmentRun> {
+) -> Result<RunOutcome> {
     params.validate()?;
     let folder = RunFolder::open(dir, outputs.replace)?;
     let started = Instant::now();
@@ -365,10 +214,10 @@ pub(crate) fn finish_run(
     diameter: DiameterSource,
     params: &SegmentParams,
     dir: &Path,
-    outputs: &SegmentOutputs,
+    outputs: &RunOptions,
     command: &str,
     started: Instant,
-) -> Result<SegmentRun> {
+) -> Result<RunOutcome> {
     let info = stack.info().clone();
     let calibration = info.calibration;
     let small_object_share = (pass.object_count > 0).then(|| pass.small_objects as f64 / pass.object_count as f64);
@@ -414,7 +263,7 @@ pub(crate) fn finish_run(
         linking_qc.as_ref(),
     );
     let verdict = judge(&figures);
-    let run = SegmentRun {
+    let run = RunOutcome {
         dir: dir.to_path_buf(),
         diameter: diameter.clone(),
         frames,
@@ -516,7 +365,7 @@ fn link_detections(
     (linking, tracked, linker.shared_objects_split())
 }
 
-impl SegmentOutputs {
+impl RunOptions {
     /// Whether a run with these outputs writes the file `name` (one of [`RUN_OUTPUTS`]).
     pub fn writes(&self, name: &str) -> bool {
         let linked = self.linking.is_some();
@@ -550,7 +399,7 @@ pub(crate) struct FirstPass {
 impl FirstPass {
     pub(crate) fn new(
         dir: &Path,
-        outputs: &SegmentOutputs,
+        outputs: &RunOptions,
         info: &crate::stack::StackInfo,
         params: &SegmentParams,
     ) -> Result<FirstPass> {
@@ -575,7 +424,7 @@ impl FirstPass {
         &self,
         dir: &Path,
         work: &Path,
-        outputs: &SegmentOutputs,
+        outputs: &RunOptions,
         checkpointing: bool,
     ) -> Result<Option<OutlineSpool>> {
         if outputs.linking.is_none() || outputs.movie.is_none() {
@@ -620,7 +469,7 @@ impl FirstPass {
 /// Checkpoints are not kept with `labels.tif`, whose pages cannot be continued.
 fn start_checkpoint(
     dir: &Path,
-    outputs: &SegmentOutputs,
+    outputs: &RunOptions,
     info: &crate::stack::StackInfo,
     params: &SegmentParams,
     diameter: &DiameterSource,
@@ -692,126 +541,5 @@ fn overlay(tracked: &[TrackedDetection], frames: &[FrameSummary], divisions: &[D
         track_of_label,
         points,
         divisions,
-    }
-}
-
-fn linking_qc(
-    tracked: &[TrackedDetection],
-    tracks: &[TrackSummary],
-    neighbour: &mut [f64],
-    max_step_px: f64,
-) -> LinkingQc {
-    let mut steps: Vec<f64> = tracked.iter().filter_map(|p| p.distance_from_prediction_px).collect();
-    let near = (!steps.is_empty())
-        .then(|| steps.iter().filter(|&&s| s > 0.8 * max_step_px).count() as f64 / steps.len() as f64);
-    let median_step_px = median(&mut steps);
-    let median_neighbour_distance_px = median(neighbour);
-    let ambiguity_ratio = match (median_step_px, median_neighbour_distance_px) {
-        (Some(s), Some(n)) if n > 0.0 => Some(s / n),
-        _ => None,
-    };
-    let short = (!tracks.is_empty()).then(|| {
-        tracks
-            .iter()
-            .filter(|t| t.points < crate::verdict::SHORT_TRACK_POINTS)
-            .count() as f64
-            / tracks.len() as f64
-    });
-    LinkingQc {
-        median_step_px,
-        median_neighbour_distance_px,
-        ambiguity_ratio,
-        near_max_step_fraction: near,
-        short_track_fraction: short,
-    }
-}
-
-/// Frames whose object count changes from the previous frame by more than a quarter and by
-/// more than 5 objects (our own rule: a segmentation failure, a focus jump or a shutter glitch
-/// usually shows as such a jump, while real births and departures change counts slowly).
-pub fn count_jumps(frames: &[FrameSummary]) -> Vec<usize> {
-    frames
-        .windows(2)
-        .filter(|w| {
-            let (a, b) = (w[0].objects as f64, w[1].objects as f64);
-            (b - a).abs() > (0.25 * a).max(5.0)
-        })
-        .map(|w| w[1].frame)
-        .collect()
-}
-
-/// A soft problem of a run: the outputs are written, but the user should know. (Problems that
-/// make the outputs doubtful are the verdict's findings, [`crate::verdict`].)
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub enum RunWarning {
-    /// NaN or infinite pixels were replaced by the frame's lowest value: (frame, pixels) each.
-    NonFinitePixels(Vec<(usize, usize)>),
-    /// No pixel size: the physical columns are empty.
-    NoPixelSize,
-    /// No frame interval: `time_s` is empty.
-    NoFrameInterval,
-}
-
-impl RunWarning {
-    /// The message the console, run.json and the report show.
-    pub fn message(&self) -> String {
-        match self {
-            RunWarning::NonFinitePixels(frames) => {
-                let list: Vec<String> = frames.iter().map(|(t, n)| format!("{t} ({n} px)")).collect();
-                format!(
-                    "NaN or infinite pixels, replaced by the frame's lowest value, in {} frame(s): {}",
-                    frames.len(),
-                    list.join(" ")
-                )
-            }
-            RunWarning::NoPixelSize => {
-                "no pixel size in the metadata or on the command line: physical columns are empty".into()
-            }
-            RunWarning::NoFrameInterval => {
-                "no frame interval in the metadata or on the command line: time_s is empty".into()
-            }
-        }
-    }
-}
-
-fn warnings_for(frames: &[FrameSummary], info: &crate::stack::StackInfo) -> Vec<RunWarning> {
-    let mut w = Vec::new();
-    let nonfinite: Vec<(usize, usize)> = frames
-        .iter()
-        .filter(|f| f.nonfinite_pixels > 0)
-        .map(|f| (f.frame, f.nonfinite_pixels))
-        .collect();
-    if !nonfinite.is_empty() {
-        w.push(RunWarning::NonFinitePixels(nonfinite));
-    }
-    if info.calibration.pixel_size_um.is_none() {
-        w.push(RunWarning::NoPixelSize);
-    }
-    if info.calibration.frame_interval_s.is_none() {
-        w.push(RunWarning::NoFrameInterval);
-    }
-    w
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn count_jumps_flag_sudden_changes_only() {
-        // Hand-made counts: 100 -> 104 is normal, 104 -> 60 a jump, 60 -> 62 normal, 62 -> 3 a jump
-        // (59 > 15.5), 3 -> 7 not (4 < 5).
-        let frames: Vec<FrameSummary> = [100, 104, 60, 62, 3, 7]
-            .iter()
-            .enumerate()
-            .map(|(frame, &objects)| FrameSummary {
-                frame,
-                threshold: None,
-                objects,
-                nonfinite_pixels: 0,
-                size_filter: Default::default(),
-            })
-            .collect();
-        assert_eq!(count_jumps(&frames), vec![2, 4]);
     }
 }

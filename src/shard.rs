@@ -6,11 +6,10 @@
 
 use crate::checkpoint::{Fingerprint, FrameRecord};
 use crate::error::{Error, Result};
+use crate::frames::{progress_bar, with_segmented_frames};
 use crate::output::{ensure_dir, write_atomic};
 use crate::params::SegmentParams;
-use crate::pipeline::{
-    finish_run, progress_bar, with_segmented_frames, DiameterSource, FirstPass, SegmentOutputs, SegmentRun,
-};
+use crate::pipeline::{finish_run, DiameterSource, FirstPass, RunOptions, RunOutcome};
 use crate::render::movie::OutlineSpool;
 use crate::stack::Stack;
 use serde::{Deserialize, Serialize};
@@ -176,7 +175,7 @@ pub fn read_shards(dirs: &[PathBuf]) -> Result<Vec<(PathBuf, ShardInfo)>> {
 /// # Errors
 /// Shards that do not fit together or do not belong to `stack`, unreadable logs, outputs not
 /// writable.
-pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &SegmentOutputs) -> Result<SegmentRun> {
+pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &RunOptions) -> Result<RunOutcome> {
     let shards = read_shards(dirs)?;
     let first = &shards[0].1;
     let info = stack.info().clone();

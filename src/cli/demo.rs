@@ -2,7 +2,7 @@
 
 use caravan::link::LinkOptions;
 use caravan::params::SegmentParams;
-use caravan::pipeline::{resolve_diameter, run_recording, SegmentOutputs};
+use caravan::pipeline::{resolve_diameter, run_recording, RunOptions};
 use caravan::render::movie::MovieOptions;
 use caravan::score::files::score_files;
 use caravan::stack::{OpenOptions, Stack};
@@ -30,7 +30,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
     let d = diameter.px();
     println!("Estimated nucleus diameter: {d:.1} px (truth: {:.1} px)", p.diameter_px);
     let run_dir = args.output.join("tracking");
-    let outputs = SegmentOutputs {
+    let outputs = RunOptions {
         labels: true,
         linking: Some(LinkOptions::default()),
         movie: Some(MovieOptions::default()),

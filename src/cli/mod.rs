@@ -291,7 +291,7 @@ pub(crate) fn print_verdict(verdict: &caravan::verdict::RunVerdict) {
     }
 }
 
-fn print_summary(run: &caravan::pipeline::SegmentRun) {
+fn print_summary(run: &caravan::pipeline::RunOutcome) {
     print_verdict(&run.verdict);
     let tracks = match &run.resolution {
         Some(r) => format!(

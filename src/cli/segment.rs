@@ -2,7 +2,7 @@
 //! `--frames A..B`, a shard of frames A to B−1 for `caravan join` (split stages).
 
 use super::{print_summary, Completion, RunArgs};
-use caravan::pipeline::{run_recording, SegmentOutputs};
+use caravan::pipeline::{run_recording, RunOptions};
 use caravan::shard::write_shard;
 use caravan::{Error, Result};
 use clap::Args;
@@ -21,7 +21,7 @@ pub fn run(args: SegmentArgs) -> Result<Completion> {
         return run_shard(&args, range).map(|()| Completion::Done);
     }
     let (mut stack, diameter, params) = args.run.start()?;
-    let outputs = SegmentOutputs {
+    let outputs = RunOptions {
         labels: args.run.labels,
         linking: None,
         movie: None,

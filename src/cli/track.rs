@@ -3,7 +3,7 @@
 use super::{print_summary, Completion, RunArgs};
 use caravan::link::{Divisions, LinkOptions, Prediction};
 use caravan::params::Length;
-use caravan::pipeline::{run_recording, SegmentOutputs};
+use caravan::pipeline::{run_recording, RunOptions};
 use caravan::render::movie::MovieOptions;
 use caravan::{Error, Result};
 use clap::Args;
@@ -71,7 +71,7 @@ impl LinkingArgs {
     }
 
     /// The run's outputs for a pixel size (for `--max-step` in µm).
-    pub fn outputs(&self, pixel_size_um: Option<f64>, replace: bool) -> Result<SegmentOutputs> {
+    pub fn outputs(&self, pixel_size_um: Option<f64>, replace: bool) -> Result<RunOptions> {
         let link = self.link_options(pixel_size_um)?;
         link.validate()?;
         let movie = MovieOptions {
@@ -79,7 +79,7 @@ impl LinkingArgs {
             every: self.qc_every,
             ..MovieOptions::default()
         };
-        Ok(SegmentOutputs {
+        Ok(RunOptions {
             labels: false,
             linking: Some(link),
             movie: (!self.no_movie).then_some(movie),

@@ -17,7 +17,7 @@ pub const MIN_PART_OF_NUCLEUS: f64 = 0.35;
 
 /// Whether an object of `area` px can be two nuclei of `a` and `b` px segmented as one
 /// ([`SHARED_AREA_RATIO`]), each at least `min_part` px ([`MIN_PART_OF_NUCLEUS`] of a nucleus).
-fn area_fits_two(area: f64, a: f64, b: f64, min_part: f64) -> bool {
+pub fn area_fits_two(area: f64, a: f64, b: f64, min_part: f64) -> bool {
     let ratio = area / (a + b);
     ratio >= SHARED_AREA_RATIO.0 && ratio <= SHARED_AREA_RATIO.1 && a.min(b) >= min_part
 }

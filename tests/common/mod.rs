@@ -2,7 +2,7 @@
 
 use caravan::link::LinkOptions;
 use caravan::params::SegmentParams;
-use caravan::pipeline::{resolve_diameter, run_recording, SegmentOutputs};
+use caravan::pipeline::{resolve_diameter, run_recording, RunOptions};
 use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{write_recording, SynthParams};
 use std::path::PathBuf;
@@ -28,7 +28,7 @@ pub fn track_synthetic(p: &SynthParams, link: LinkOptions) -> TrackedScene {
     let syn = dir.path().join("syn");
     let synth = write_recording(&syn, p).unwrap();
     let mut stack = Stack::open(&synth.recording, &OpenOptions::default()).unwrap();
-    let outputs = SegmentOutputs {
+    let outputs = RunOptions {
         labels: false,
         linking: Some(link),
         movie: None,

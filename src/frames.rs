@@ -1,0 +1,160 @@
+//! Frame production: frames decoded and segmented in parallel batches, handed over in frame
+//! order while the next batch is being segmented, with progress on a terminal.
+
+use crate::error::{Error, Result};
+use crate::params::SegmentParams;
+use crate::segment::{segment_frame, FrameSegmentation};
+use crate::stack::Stack;
+use indicatif::{ProgressBar, ProgressStyle};
+use rayon::prelude::*;
+use std::collections::VecDeque;
+use std::io::IsTerminal;
+
+/// A progress bar on stderr when it is a terminal; hidden (silent) otherwise, e.g. in logs.
+pub fn progress_bar(len: u64, what: &str) -> ProgressBar {
+    if !std::io::stderr().is_terminal() {
+        return ProgressBar::hidden();
+    }
+    let bar = ProgressBar::new(len);
+    let template = format!("{{elapsed_precise}} [{{bar:40}}] {{pos}}/{{len}} {what} {{per_sec}} ETA {{eta}}");
+    bar.set_style(
+        ProgressStyle::with_template(&template)
+            .expect("valid template")
+            .progress_chars("=> "),
+    );
+    bar
+}
+
+/// Segmented frames of a recording, in frame order. Frames are decoded in batches of a few per
+/// worker thread; while one batch is segmented in parallel the next is decoded, so reading
+/// overlaps computing, and memory is bounded by two batches, not by the recording's length.
+struct SegmentedFrames<'a> {
+    stack: &'a mut Stack,
+    params: &'a SegmentParams,
+    /// Frames not decoded yet.
+    range: std::ops::Range<usize>,
+    /// Decoded, waiting to be segmented.
+    decoded: Vec<crate::stack::Frame>,
+    ready: VecDeque<FrameSegmentation>,
+    failed: Option<Error>,
+    batch: usize,
+    progress: ProgressBar,
+}
+
+impl<'a> SegmentedFrames<'a> {
+    /// Stops before frame `end` (a shard's range).
+    fn until(mut self, end: usize) -> Self {
+        self.range.end = self.range.end.min(end);
+        self
+    }
+
+    /// Iterates over the frames of `stack` from `first` on.
+    fn starting_at(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar, first: usize) -> Self {
+        let frames = stack.info().frames;
+        let batch = 2 * rayon::current_num_threads().max(1);
+        SegmentedFrames {
+            stack,
+            params,
+            range: first.min(frames)..frames,
+            decoded: Vec::new(),
+            ready: VecDeque::new(),
+            failed: None,
+            batch,
+            progress,
+        }
+    }
+
+    fn decode_batch(
+        stack: &mut Stack,
+        range: &mut std::ops::Range<usize>,
+        batch: usize,
+    ) -> Result<Vec<crate::stack::Frame>> {
+        let end = (range.start + batch).min(range.end);
+        let frames = (range.start..end)
+            .map(|t| stack.read_frame(t))
+            .collect::<Result<Vec<_>>>();
+        range.start = end;
+        frames
+    }
+
+    fn fill(&mut self) {
+        if self.decoded.is_empty() {
+            match Self::decode_batch(self.stack, &mut self.range, self.batch) {
+                Ok(frames) => self.decoded = frames,
+                Err(e) => {
+                    self.failed = Some(e);
+                    return;
+                }
+            }
+        }
+        let current = std::mem::take(&mut self.decoded);
+        let params = self.params;
+        let (stack, range, batch) = (&mut *self.stack, &mut self.range, self.batch);
+        let (next, done) = rayon::join(
+            || Self::decode_batch(stack, range, batch),
+            || {
+                current
+                    .par_iter()
+                    .map(|f| segment_frame(&f.to_image(), f.index, params))
+                    .collect::<Vec<_>>()
+            },
+        );
+        self.progress.inc(done.len() as u64);
+        self.ready.extend(done);
+        match next {
+            Ok(frames) => self.decoded = frames,
+            Err(e) => self.failed = Some(e),
+        }
+    }
+}
+
+impl Iterator for SegmentedFrames<'_> {
+    type Item = Result<FrameSegmentation>;
+    fn next(&mut self) -> Option<Self::Item> {
+        if self.ready.is_empty() && self.failed.is_none() && !(self.decoded.is_empty() && self.range.is_empty()) {
+            self.fill();
+        }
+        if let Some(seg) = self.ready.pop_front() {
+            return Some(Ok(seg));
+        }
+        if let Some(e) = self.failed.take() {
+            self.range.start = self.range.end;
+            self.decoded.clear();
+            return Some(Err(e));
+        }
+        self.progress.finish_and_clear();
+        None
+    }
+}
+
+/// Runs `consume` on the segmented frames `range` of `stack`, in frame order, while the next
+/// frames are being segmented: a producer thread decodes and segments batches (on the worker
+/// pool) and hands results over a short queue, so writing tables, logging and
+/// linking on the calling thread no longer leave the workers idle between batches.
+/// Returns what `consume` returns; if it stops early, the producer stops at its next frame.
+pub fn with_segmented_frames<T>(
+    stack: &mut Stack,
+    params: &SegmentParams,
+    progress: ProgressBar,
+    range: std::ops::Range<usize>,
+    consume: impl FnOnce(&mut dyn Iterator<Item = Result<FrameSegmentation>>) -> T,
+) -> T {
+    let queue = 2 * rayon::current_num_threads().max(1);
+    std::thread::scope(|scope| {
+        let (sender, receiver) = std::sync::mpsc::sync_channel(queue);
+        let producer = scope.spawn(move || {
+            let frames = SegmentedFrames::starting_at(stack, params, progress, range.start).until(range.end);
+            for seg in frames {
+                if sender.send(seg).is_err() {
+                    break;
+                }
+            }
+        });
+        let result = consume(&mut receiver.iter());
+        drop(receiver);
+        if let Err(panic) = producer.join() {
+            std::panic::resume_unwind(panic);
+        }
+        result
+    })
+}
