@@ -23,6 +23,7 @@ use crate::segment::diameter::{central_crop, combine, examine_frame, sample_fram
 use crate::segment::FrameSegmentation;
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::Stack;
+use crate::tracks::PathPoint;
 use crate::tracks::{detection_columns, write_tracks, Detection, TrackedDetection};
 use crate::verdict::{judge, RunFigures, RunVerdict};
 use rayon::prelude::*;
@@ -514,9 +515,9 @@ fn write_track_outputs(
     let summaries: Vec<TrackSummary> = tracked
         .chunk_by(|a, b| a.track_id == b.track_id)
         .map(|run| {
-            let pts: Vec<(usize, f64, f64)> = run
+            let pts: Vec<PathPoint> = run
                 .iter()
-                .map(|p| (p.detection.frame, p.detection.x, p.detection.y))
+                .map(|p| PathPoint::new(p.detection.frame, p.detection.x, p.detection.y))
                 .collect();
             summarize_track(run[0].track_id, run[0].parent_id, &pts)
         })

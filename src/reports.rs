@@ -57,7 +57,7 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
         .tracks
         .iter()
         .filter(|tr| a.tracks.iter().any(|m| m.track_id == tr.id))
-        .map(|tr| tr.path.iter().map(|p| (p.1, p.2)).collect())
+        .map(|tr| tr.path.iter().map(|p| (p.x, p.y)).collect())
         .collect();
     let msd_fit = a.furth.as_ref().map(|f| {
         let (lo, hi) = (f.lag_range_frames.0 as f64, f.lag_range_frames.1 as f64);

@@ -16,6 +16,7 @@ pub mod table;
 
 use crate::columns::{write_table, Column};
 use crate::stack::Calibration;
+use crate::tracks::PathPoint;
 use serde::Serialize;
 use std::io::{self, Write};
 
@@ -51,20 +52,20 @@ pub struct TrackSummary {
 /// "Quantitative and unbiased analysis of directional persistence in cell migration", Nat.
 /// Protoc. 9(8):1931–1943, doi:10.1038/nprot.2014.131. The ratio falls with track duration, so
 /// compare it only between tracks of equal span and frame interval.
-pub fn summarize_track(track_id: u32, parent_id: Option<u32>, points: &[(usize, f64, f64)]) -> TrackSummary {
+pub fn summarize_track(track_id: u32, parent_id: Option<u32>, points: &[PathPoint]) -> TrackSummary {
     let path: f64 = points
         .windows(2)
-        .map(|w| (w[1].1 - w[0].1).hypot(w[1].2 - w[0].2))
+        .map(|w| (w[1].x - w[0].x).hypot(w[1].y - w[0].y))
         .sum();
     let (first, last) = (points[0], points[points.len() - 1]);
-    let (dx, dy) = (last.1 - first.1, last.2 - first.2);
+    let (dx, dy) = (last.x - first.x, last.y - first.y);
     let net = dx.hypot(dy);
-    let elapsed = (last.0 - first.0) as f64;
+    let elapsed = (last.frame - first.frame) as f64;
     TrackSummary {
         track_id,
         parent_id,
-        first_frame: first.0,
-        last_frame: last.0,
+        first_frame: first.frame,
+        last_frame: last.frame,
         points: points.len(),
         path_length_px: path,
         net_displacement_px: net,
@@ -123,10 +124,10 @@ mod tests {
     fn worked_track_from_methods() {
         // Source: fixtures/methods/check_values.md §9 worked track (µm), (0,0),(1,0),(2,1),(2,2),(3,2),(5,2), Δt = 2 min:
         // path 6.414214, net 5.385165, ratio 0.839567, mean speed 0.641421 µm/min.
-        let pts: Vec<(usize, f64, f64)> = [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
+        let pts: Vec<PathPoint> = [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
             .iter()
             .enumerate()
-            .map(|(i, p)| (i, p.0, p.1))
+            .map(|(i, p)| PathPoint::new(i, p.0, p.1))
             .collect();
         let s = summarize_track(1, None, &pts);
         assert!((s.path_length_px - 6.414214).abs() < 1e-6);

@@ -3,6 +3,7 @@
 //! migration index and turning angles.
 
 use super::msd::Path;
+use crate::tracks::PathPoint;
 use serde::Serialize;
 
 /// One track's motility.
@@ -67,25 +68,25 @@ pub fn motility(
 ) -> Motility {
     let (first, last) = (path[0], path[path.len() - 1]);
     let length = path_length(path);
-    let (dx, dy) = (last.1 - first.1, last.2 - first.2);
+    let (dx, dy) = (last.x - first.x, last.y - first.y);
     let net = dx.hypot(dy);
-    let duration = (last.0 - first.0) as f64 * frame_interval;
+    let duration = (last.frame - first.frame) as f64 * frame_interval;
     let axis = axis_deg.to_radians();
     let turns: Vec<f64> = steps(track_id, path, frame_interval)
         .iter()
         .filter_map(|s| s.turning_deg)
         .map(f64::abs)
         .collect();
-    let early: Vec<(usize, f64, f64)> = path
+    let early: Vec<PathPoint> = path
         .iter()
         .copied()
-        .filter(|p| p.0 <= first.0 + fixed_elapsed_frames)
+        .filter(|p| p.frame <= first.frame + fixed_elapsed_frames)
         .collect();
-    let reaches = path.iter().any(|p| p.0 == first.0 + fixed_elapsed_frames);
+    let reaches = path.iter().any(|p| p.frame == first.frame + fixed_elapsed_frames);
     Motility {
         track_id,
         points: path.len(),
-        first_frame: first.0,
+        first_frame: first.frame,
         duration,
         path_length: length,
         net_displacement: net,
@@ -99,29 +100,29 @@ pub fn motility(
 }
 
 fn path_length(path: &Path) -> f64 {
-    path.windows(2).map(|w| (w[1].1 - w[0].1).hypot(w[1].2 - w[0].2)).sum()
+    path.windows(2).map(|w| (w[1].x - w[0].x).hypot(w[1].y - w[0].y)).sum()
 }
 
 fn straightness(path: &Path) -> Option<f64> {
     let length = path_length(path);
     let (a, b) = (path[0], path[path.len() - 1]);
-    (length > 0.0).then(|| (b.1 - a.1).hypot(b.2 - a.2) / length)
+    (length > 0.0).then(|| (b.x - a.x).hypot(b.y - a.y) / length)
 }
 
 /// Steps between consecutive frames (steps across a gap are left out, and the turning angle
 /// after a gap is undefined).
 pub fn steps(track_id: u32, path: &Path, frame_interval: f64) -> Vec<Step> {
     let mut out: Vec<Step> = Vec::new();
-    for w in path.windows(2).filter(|w| w[1].0 == w[0].0 + 1) {
-        let (dx, dy) = (w[1].1 - w[0].1, w[1].2 - w[0].2);
+    for w in path.windows(2).filter(|w| w[1].frame == w[0].frame + 1) {
+        let (dx, dy) = (w[1].x - w[0].x, w[1].y - w[0].y);
         let heading = dy.atan2(dx).to_degrees();
         let turning = out
             .last()
-            .filter(|prev| prev.frame + 1 == w[0].0 && (dx != 0.0 || dy != 0.0))
+            .filter(|prev| prev.frame + 1 == w[0].frame && (dx != 0.0 || dy != 0.0))
             .map(|prev| wrap_degrees(heading - prev.heading_deg));
         out.push(Step {
             track_id,
-            frame: w[0].0,
+            frame: w[0].frame,
             speed: dx.hypot(dy) / frame_interval,
             heading_deg: heading,
             turning_deg: turning,
@@ -149,10 +150,10 @@ mod tests {
         // Source: fixtures/methods/check_values.md §9 worked track (µm), Δt = 2 min: path 6.414214, net 5.385165,
         // ratio 0.839567, mean speed 0.641421 µm/min, FMI_x 0.779519, FMI_y 0.311808, turning
         // angles 45, 45, −90, 0.
-        let t: Vec<(usize, f64, f64)> = [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
+        let t: Vec<PathPoint> = [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
             .iter()
             .enumerate()
-            .map(|(i, p)| (i, p.0, p.1))
+            .map(|(i, p)| PathPoint::new(i, p.0, p.1))
             .collect();
         let m = motility(1, &t, 2.0, 0.0, 3);
         assert!((m.path_length - 6.414214).abs() < 1e-6 && (m.net_displacement - 5.385165).abs() < 1e-6);
@@ -173,13 +174,17 @@ mod tests {
     fn methods_zigzag_sampling_bias() {
         // Source: fixtures/methods/check_values.md §9: a zig-zag (i, ±0.5), i = 0..8, has directionality 0.707107
         // (= 1/√2) sampled every frame and 1.0 every second frame.
-        let z: Vec<(usize, f64, f64)> = (0..=8)
-            .map(|i| (i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 }))
+        let z: Vec<PathPoint> = (0..=8)
+            .map(|i| PathPoint::new(i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 }))
             .collect();
         assert!(
             (motility(1, &z, 1.0, 0.0, 4).directionality_ratio.unwrap() - std::f64::consts::FRAC_1_SQRT_2).abs() < 1e-6
         );
-        let every2: Vec<(usize, f64, f64)> = z.iter().step_by(2).map(|p| (p.0 / 2, p.1, p.2)).collect();
+        let every2: Vec<PathPoint> = z
+            .iter()
+            .step_by(2)
+            .map(|p| PathPoint::new(p.frame / 2, p.x, p.y))
+            .collect();
         assert!((motility(1, &every2, 2.0, 0.0, 2).directionality_ratio.unwrap() - 1.0).abs() < 1e-12);
     }
 }

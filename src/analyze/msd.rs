@@ -2,11 +2,12 @@
 //! the anomalous exponent, and velocity and direction autocorrelations. Tracks are lists of
 //! `(frame, x, y)` in analysis units; lags are whole frames.
 
+use crate::tracks::PathPoint;
 use serde::Serialize;
 use std::collections::HashMap;
 
 /// A track as `(frame, x, y)`, ascending frames (gaps allowed).
-pub type Path = [(usize, f64, f64)];
+pub type Path = [PathPoint];
 
 /// One lag of the population MSD.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -33,8 +34,8 @@ pub struct MsdPoint {
 pub fn msd(tracks: &[&Path], max_lag: usize, frame_interval: f64) -> Vec<MsdPoint> {
     let mut sums = vec![(0.0f64, 0.0f64, 0usize); max_lag + 1];
     for track in tracks {
-        let at: HashMap<usize, (f64, f64)> = track.iter().map(|&(f, x, y)| (f, (x, y))).collect();
-        for &(f, x, y) in track.iter() {
+        let at: HashMap<usize, (f64, f64)> = track.iter().map(|p| (p.frame, (p.x, p.y))).collect();
+        for &PathPoint { frame: f, x, y } in track.iter() {
             for (lag, s) in sums.iter_mut().enumerate().skip(1) {
                 if let Some(&(x2, y2)) = at.get(&(f + lag)) {
                     let d2 = (x2 - x).powi(2) + (y2 - y).powi(2);
@@ -247,11 +248,11 @@ pub fn autocorrelation(tracks: &[&Path], max_lag: usize, frame_interval: f64) ->
         // Frame order (a BTreeMap), so that sums are added in the same order on every run.
         let steps: std::collections::BTreeMap<usize, (f64, f64)> = track
             .windows(2)
-            .filter(|w| w[1].0 == w[0].0 + 1)
+            .filter(|w| w[1].frame == w[0].frame + 1)
             .map(|w| {
                 (
-                    w[0].0,
-                    ((w[1].1 - w[0].1) / frame_interval, (w[1].2 - w[0].2) / frame_interval),
+                    w[0].frame,
+                    ((w[1].x - w[0].x) / frame_interval, (w[1].y - w[0].y) / frame_interval),
                 )
             })
             .collect();
@@ -286,11 +287,11 @@ mod tests {
     use super::*;
     use crate::numeric::Rng;
 
-    fn worked_track() -> Vec<(usize, f64, f64)> {
+    fn worked_track() -> Vec<PathPoint> {
         [(0., 0.), (1., 0.), (2., 1.), (2., 2.), (3., 2.), (5., 2.)]
             .iter()
             .enumerate()
-            .map(|(i, p)| (i, p.0, p.1))
+            .map(|(i, p)| PathPoint::new(i, p.0, p.1))
             .collect()
     }
 
@@ -348,7 +349,7 @@ mod tests {
     /// Tracks of a 2D random walk whose velocity is an Ornstein–Uhlenbeck process (persistence
     /// `p` frames, speed² `s2` so that D = s2·p/2), integrated in fine sub-steps; `p = 0` gives
     /// Brownian steps of variance 2D per axis and frame.
-    fn simulate(tracks: usize, frames: usize, d: f64, p: f64, seed: u64) -> Vec<Vec<(usize, f64, f64)>> {
+    fn simulate(tracks: usize, frames: usize, d: f64, p: f64, seed: u64) -> Vec<Vec<PathPoint>> {
         let mut rng = Rng::new(seed);
         let sub = 50;
         let dt = 1.0 / sub as f64;
@@ -357,7 +358,7 @@ mod tests {
                 let (mut x, mut y) = (0.0, 0.0);
                 let axis_var = if p > 0.0 { d / p } else { 0.0 };
                 let (mut vx, mut vy) = (axis_var.sqrt() * rng.normal(), axis_var.sqrt() * rng.normal());
-                let mut out = vec![(0, 0.0, 0.0)];
+                let mut out = vec![PathPoint::new(0, 0.0, 0.0)];
                 for f in 1..frames {
                     if p > 0.0 {
                         let decay = (-dt / p).exp();
@@ -372,7 +373,7 @@ mod tests {
                         x += (2.0 * d).sqrt() * rng.normal();
                         y += (2.0 * d).sqrt() * rng.normal();
                     }
-                    out.push((f, x, y));
+                    out.push(PathPoint::new(f, x, y));
                 }
                 out
             })

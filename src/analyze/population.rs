@@ -7,6 +7,7 @@ use super::motility::{motility, steps, Motility, Step};
 use super::msd::{anomalous_exponent, autocorrelation, fit_furth, msd, AutocorrelationPoint, FurthFit, MsdPoint, Path};
 use super::table::{Track, Units};
 use crate::numeric::median;
+use crate::tracks::PathPoint;
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -106,7 +107,7 @@ pub fn analyze_tracks(tracks: &[Track], units: &Units, options: &AnalysisOptions
     let step_rows: Vec<Step> = tracks.iter().flat_map(|t| steps(t.id, &t.path, dt)).collect();
     let mut spans: Vec<f64> = tracks
         .iter()
-        .map(|t| (t.path[t.path.len() - 1].0 - t.path[0].0) as f64)
+        .map(|t| (t.path[t.path.len() - 1].frame - t.path[0].frame) as f64)
         .collect();
     let longest = spans.iter().copied().fold(0.0, f64::max) as usize;
     let median_span = median(&mut spans).unwrap_or(0.0);
@@ -146,10 +147,10 @@ fn collective(tracks: &[Track], dt: f64, k: usize) -> (Vec<FrameOrder>, Vec<Corr
     type FrameData = (Vec<[f64; 2]>, Vec<([f64; 2], [f64; 2])>);
     let mut by_frame: BTreeMap<usize, FrameData> = BTreeMap::new();
     for t in tracks {
-        for (i, &(f, x, y)) in t.path.iter().enumerate() {
+        for (i, &PathPoint { frame: f, x, y }) in t.path.iter().enumerate() {
             let e = by_frame.entry(f).or_default();
             e.0.push([x, y]);
-            if let Some(&(g, x2, y2)) = t.path.get(i + 1).filter(|n| n.0 == f + 1) {
+            if let Some(&PathPoint { frame: g, x: x2, y: y2 }) = t.path.get(i + 1).filter(|n| n.frame == f + 1) {
                 debug_assert_eq!(g, f + 1);
                 e.1.push(([x, y], [(x2 - x) / dt, (y2 - y) / dt]));
             }

@@ -3,6 +3,7 @@
 //! (minimum length, frame range, region of interest).
 
 use crate::error::{Error, Result};
+use crate::tracks::PathPoint;
 use serde::Serialize;
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -104,7 +105,7 @@ pub struct Track {
     /// Mother track, if any.
     pub parent: Option<u32>,
     /// Points.
-    pub path: Vec<(usize, f64, f64)>,
+    pub path: Vec<PathPoint>,
 }
 
 /// Tracks read for analysis.
@@ -232,7 +233,7 @@ fn build_tracks(rows: &[crate::tracks::TrackRow], units: &Units) -> std::result:
         tracks.push(Track {
             id,
             parent,
-            path: pts.iter().map(|r| (r.frame, r.x * s, r.y * s)).collect(),
+            path: pts.iter().map(|r| PathPoint::new(r.frame, r.x * s, r.y * s)).collect(),
         });
     }
     Ok(tracks)
@@ -330,11 +331,11 @@ pub fn apply_filters(tracks: &[Track], f: &Filters) -> Vec<Track> {
     tracks
         .iter()
         .filter_map(|t| {
-            let kept: Vec<(usize, f64, f64)> = t
+            let kept: Vec<PathPoint> = t
                 .path
                 .iter()
                 .copied()
-                .filter(|p| f.frames.is_none_or(|(a, b)| p.0 >= a && p.0 < b))
+                .filter(|p| f.frames.is_none_or(|(a, b)| p.frame >= a && p.frame < b))
                 .collect();
             let kept = match &f.region {
                 Some(r) => longest_run_inside(&kept, r),
@@ -349,11 +350,11 @@ pub fn apply_filters(tracks: &[Track], f: &Filters) -> Vec<Track> {
         .collect()
 }
 
-fn longest_run_inside(path: &[(usize, f64, f64)], r: &Region) -> Vec<(usize, f64, f64)> {
-    let mut best: &[(usize, f64, f64)] = &[];
+fn longest_run_inside(path: &[PathPoint], r: &Region) -> Vec<PathPoint> {
+    let mut best: &[PathPoint] = &[];
     let mut start = 0;
     for i in 0..=path.len() {
-        let inside = i < path.len() && r.contains(path[i].1, path[i].2);
+        let inside = i < path.len() && r.contains(path[i].x, path[i].y);
         if !inside {
             if i - start > best.len() {
                 best = &path[start..i];
@@ -385,7 +386,14 @@ mod tests {
             (LengthUnit::Micrometre, TimeUnit::Minute)
         );
         assert_eq!(t.units.time_per_frame, 1.0);
-        assert_eq!(t.tracks[0].path, vec![(0, 0.0, 0.0), (1, 2.0, 0.0), (2, 2.0, 1.0)]);
+        assert_eq!(
+            t.tracks[0].path,
+            vec![
+                PathPoint::new(0, 0.0, 0.0),
+                PathPoint::new(1, 2.0, 0.0),
+                PathPoint::new(2, 2.0, 1.0)
+            ]
+        );
         std::fs::write(&p, "track_id,frame,x,y\n1,0,0,0\n1,0,1,1\n").unwrap();
         let e = read_tracks(&p, CalibrationOverride::default()).unwrap_err().to_string();
         assert!(
@@ -404,8 +412,8 @@ mod tests {
         let tri = Region::parse("poly:0,0;10,0;0,10", 1.0).unwrap();
         assert!(tri.contains(2.0, 2.0) && !tri.contains(6.0, 6.0));
         let rect = Region::parse("rect:0,0,5,5", 1.0).unwrap();
-        let path: Vec<(usize, f64, f64)> = (0..10)
-            .map(|i| (i, if (3..5).contains(&i) { 9.0 } else { 1.0 }, 1.0))
+        let path: Vec<PathPoint> = (0..10)
+            .map(|i| PathPoint::new(i, if (3..5).contains(&i) { 9.0 } else { 1.0 }, 1.0))
             .collect();
         let t = Track {
             id: 1,
@@ -419,7 +427,7 @@ mod tests {
         };
         let kept = apply_filters(std::slice::from_ref(&t), &f);
         assert_eq!(
-            kept[0].path.iter().map(|p| p.0).collect::<Vec<_>>(),
+            kept[0].path.iter().map(|p| p.frame).collect::<Vec<_>>(),
             vec![5, 6, 7, 8, 9]
         );
         let f = Filters {

@@ -34,6 +34,25 @@ pub struct Detection {
     pub touches_border: bool,
 }
 
+/// One point of a track's path: the frame and the position (px, or the analysis's length
+/// unit once calibrated).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PathPoint {
+    /// Frame number.
+    pub frame: usize,
+    /// Column (x).
+    pub x: f64,
+    /// Row (y).
+    pub y: f64,
+}
+
+impl PathPoint {
+    /// The point at `(x, y)` in `frame`.
+    pub fn new(frame: usize, x: f64, y: f64) -> Self {
+        PathPoint { frame, x, y }
+    }
+}
+
 /// A detection placed on a track.
 #[derive(Debug, Clone, PartialEq)]
 pub struct TrackedDetection {
