@@ -7,8 +7,8 @@
 use crate::error::{Error, Result};
 use crate::link::divide::DivisionEvent;
 use crate::link::ResolvedLinking;
+use crate::params::MovieOptions;
 use crate::params::SegmentParams;
-use crate::render::movie::MovieOptions;
 use crate::segment::diameter::DiameterEstimate;
 use crate::stack::StackInfo;
 use crate::verdict::RunVerdict;

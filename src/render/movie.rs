@@ -27,26 +27,7 @@ const BLACK: u8 = 0;
 /// Points in a tail, the current one included.
 const TAIL: usize = 8;
 
-/// Options of the movie.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct MovieOptions {
-    /// Longest side of the movie in pixels; larger recordings are downscaled by an integer factor.
-    pub max_side_px: usize,
-    /// Render every k-th frame.
-    pub every: usize,
-    /// Frames in the contact sheet.
-    pub sheet_frames: usize,
-}
-
-impl Default for MovieOptions {
-    fn default() -> Self {
-        MovieOptions {
-            max_side_px: 512,
-            every: 1,
-            sheet_frames: 12,
-        }
-    }
-}
+pub use crate::params::MovieOptions;
 
 /// Outline pixels of every frame, written during segmentation and read back in frame order.
 pub struct OutlineSpool {

@@ -126,44 +126,6 @@ pub fn track_columns(calibration: &Calibration) -> Vec<Column<TrackedDetection>>
     columns
 }
 
-/// Appends `v` with `decimals` digits after the point, exactly as `format!("{v:.decimals$}")`
-/// would (the nearest decimal to the exact binary value), without the formatter's slow exact
-/// path in the common case: the value is scaled and rounded in integers when it is small
-/// enough that the scaling error (half a unit in the last place, at most 2⁻¹³ below 2⁴⁰)
-/// cannot move it across a rounding boundary, i.e. when it is not within 10⁻³ of a tie.
-/// Ties, large values and non-finite values go through the formatter.
-pub fn push_fixed(out: &mut String, v: f64, decimals: usize) {
-    const POWERS: [f64; 7] = [1.0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6];
-    const LIMIT: f64 = (1u64 << 40) as f64;
-    let scaled = v.abs() * POWERS.get(decimals).copied().unwrap_or(f64::NAN);
-    let fraction = scaled - scaled.floor();
-    let small = scaled < LIMIT; // false for NaN and infinity too
-    if !small || (fraction - 0.5).abs() < 1e-3 {
-        use std::fmt::Write;
-        write!(out, "{v:.decimals$}").expect("writing to a String");
-        return;
-    }
-    let digits = (scaled.round() as u64).to_string();
-    if v.is_sign_negative() {
-        out.push('-');
-    }
-    if digits.len() <= decimals {
-        out.push('0');
-        if decimals > 0 {
-            out.push('.');
-            (digits.len()..decimals).for_each(|_| out.push('0'));
-            out.push_str(&digits);
-        }
-    } else {
-        let (whole, part) = digits.split_at(digits.len() - decimals);
-        out.push_str(whole);
-        if decimals > 0 {
-            out.push('.');
-            out.push_str(part);
-        }
-    }
-}
-
 /// Writes `tracks.csv`: the header, then `points` in the order given (callers sort by track,
 /// then frame).
 pub fn write_tracks(out: &mut impl Write, points: &[TrackedDetection], calibration: &Calibration) -> io::Result<()> {
@@ -346,43 +308,6 @@ mod tests {
         assert!(read_track_rows("track_id,frame,x,y\n1,0\n")
             .unwrap_err()
             .contains("line 2: too few columns"));
-    }
-
-    #[test]
-    fn fixed_decimals_match_the_standard_formatter() {
-        // Reference: Rust's own `{:.N}` formatting (correctly rounded), on values around
-        // every magnitude the tables print, exact ties, negative zero and non-finite values.
-        let mut state = 0x2545_f491_4f6c_dd1du64;
-        let mut values = vec![
-            0.0,
-            -0.0,
-            0.5,
-            1.5,
-            2.5,
-            0.125,
-            0.0005,
-            -0.00004,
-            1e12,
-            1e-9,
-            f64::NAN,
-            f64::INFINITY,
-        ];
-        for _ in 0..200_000 {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            let mantissa = (state >> 11) as f64 / (1u64 << 53) as f64;
-            let exponent = (state % 17) as i32 - 6;
-            let sign = if state & 1 == 0 { 1.0 } else { -1.0 };
-            values.push(sign * mantissa * 10f64.powi(exponent));
-        }
-        for &v in &values {
-            for decimals in 0..=6 {
-                let mut ours = String::new();
-                push_fixed(&mut ours, v, decimals);
-                assert_eq!(ours, format!("{v:.decimals$}"), "{v:e} to {decimals} decimals");
-            }
-        }
     }
 
     #[test]
