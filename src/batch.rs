@@ -129,6 +129,40 @@ pub fn run_each<T: Send>(
     done.into_iter().map(|d| d.1).collect()
 }
 
+/// Why the input of a finished run (its `run.json`) is no longer the one it tracked, or `None`
+/// when it is: a different size is a change; the same size and modification time is taken as
+/// no change (the quick check); otherwise the file's CRC-32 decides (a copy or a touch keeps
+/// it, another recording of the same size does not).
+///
+/// # Errors
+/// An unreadable record or input.
+pub fn input_changed_since(run_json: &Path, input: &Path) -> Result<Option<String>> {
+    let record = crate::record::RunRecord::read(run_json)?;
+    let meta = std::fs::metadata(input).map_err(|e| Error::input(input, e.to_string()))?;
+    if !meta.is_file() {
+        return Ok(None);
+    }
+    let recorded = &record.input;
+    if meta.len() != recorded.stack.bytes_on_disk {
+        return Ok(Some(format!(
+            "{} bytes now, {} when tracked",
+            meta.len(),
+            recorded.stack.bytes_on_disk
+        )));
+    }
+    if recorded.modified_unix_s.is_some() && recorded.modified_unix_s == crate::output::modified_unix_s(input) {
+        return Ok(None);
+    }
+    let crc = crate::output::crc32_file(input).map_err(|e| Error::input(input, e.to_string()))?;
+    let now = format!("{crc:08x}");
+    Ok((recorded.crc32.as_deref() != Some(now.as_str())).then(|| {
+        format!(
+            "CRC-32 {now} now, {} when tracked",
+            recorded.crc32.as_deref().unwrap_or("unknown")
+        )
+    }))
+}
+
 #[cfg(test)]
 mod tests {
 

@@ -8,6 +8,7 @@
 //! Outputs are therefore byte-identical to those of an uninterrupted run.
 
 use crate::error::{Error, Result};
+use crate::stack::Stack;
 use crate::tracks::Detection;
 use serde::{Deserialize, Serialize};
 use std::fs::{File, OpenOptions};
@@ -29,9 +30,15 @@ pub struct FrameRecord {
     /// What the size filter dropped or cut.
     #[serde(default)]
     pub size_filter: crate::segment::SizeFilterCounts,
+    /// CRC-32 of the decoded frame (absent in logs of older versions), checked on resume.
+    #[serde(default)]
+    pub content_crc32: Option<u32>,
 }
 
-/// What a checkpoint must match to be resumed: the same input and the same parameters.
+/// What a checkpoint or a shard must match to be resumed or joined: the same recording, by
+/// its size, shape and content, and the same parameters. Two recordings made with the same
+/// settings have files of the same size; the content of their first and last frames tells
+/// them apart at once, and every logged frame's own CRC-32 is checked on resume.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Fingerprint {
     /// Input path as given.
@@ -40,20 +47,92 @@ pub struct Fingerprint {
     pub bytes: u64,
     /// Frames and frame size.
     pub shape: (usize, usize, usize),
+    /// CRC-32 of the first and the last frame's decoded content
+    /// ([`crate::stack::Frame::content_crc32`]); absent in fingerprints of older versions.
+    #[serde(default)]
+    pub content: Option<(u32, u32)>,
     /// Every parameter of the run, as JSON.
     pub parameters: String,
 }
 
 impl Fingerprint {
-    /// The fingerprint of a recording (as described by `info`) and the run's parameters.
-    pub fn of(info: &crate::stack::StackInfo, parameters: serde_json::Value) -> Fingerprint {
-        Fingerprint {
+    /// The fingerprint of an open recording and the run's parameters (reads its first and last
+    /// frames).
+    ///
+    /// # Errors
+    /// A frame that cannot be read.
+    pub fn of(stack: &mut Stack, parameters: serde_json::Value) -> Result<Fingerprint> {
+        let info = stack.info().clone();
+        let first = stack.read_frame(0)?.content_crc32();
+        let last = stack.read_frame(info.frames.saturating_sub(1))?.content_crc32();
+        Ok(Fingerprint {
             input: info.path.display().to_string(),
             bytes: info.bytes_on_disk,
             shape: (info.frames, info.height, info.width),
+            content: Some((first, last)),
             parameters: parameters.to_string(),
+        })
+    }
+
+    /// Why a checkpoint or shard with fingerprint `earlier` does not belong to a run with this
+    /// one, in words; `None` when it does. The input's path may differ (a moved file is the same
+    /// recording).
+    pub fn mismatch(&self, earlier: &Fingerprint) -> Option<String> {
+        if (self.bytes, self.shape) != (earlier.bytes, earlier.shape) {
+            return Some(format!(
+                "was made from another recording ({} bytes, {} frames of {}x{}; this one has {} bytes, {} frames of {}x{})",
+                earlier.bytes, earlier.shape.0, earlier.shape.2, earlier.shape.1, self.bytes, self.shape.0, self.shape.2, self.shape.1
+            ));
+        }
+        match (earlier.content, self.content) {
+            (Some(a), Some(b)) if a.0 != b.0 => {
+                return Some("was made from another recording of the same size (frame 0 differs)".into())
+            }
+            (Some(a), Some(b)) if a.1 != b.1 => {
+                return Some(format!(
+                    "was made from another recording of the same size (frame {} differs)",
+                    self.shape.0.saturating_sub(1)
+                ))
+            }
+            (None, _) | (_, None) => {
+                return Some("was made by an older version that did not record the recording's content".into())
+            }
+            _ => {}
+        }
+        (self.parameters != earlier.parameters).then(|| "was made with other parameters".into())
+    }
+}
+
+/// Checks that every logged frame is the recording's frame of the same number, by content
+/// (each is read again: only I/O); names the first that differs and ends with `hint` (what to
+/// do instead).
+///
+/// # Errors
+/// A frame whose content differs from the logged one, a log without content checks, or a
+/// frame that cannot be read.
+pub fn verify_logged_frames(stack: &mut Stack, records: &[FrameRecord], log: &Path, hint: &str) -> Result<()> {
+    for r in records {
+        let Some(logged) = r.content_crc32 else {
+            return Err(Error::input(
+                log,
+                format!(
+                    "frame {} was logged without its content check (an older version); {hint}",
+                    r.frame
+                ),
+            ));
+        };
+        if stack.read_frame(r.frame)?.content_crc32() != logged {
+            return Err(Error::input(
+                &stack.info().path,
+                format!(
+                    "frame {} differs from the one logged in {} (the recording was replaced or changed); {hint}",
+                    r.frame,
+                    log.display()
+                ),
+            ));
         }
     }
+    Ok(())
 }
 
 #[derive(Debug, Serialize, Deserialize)]
@@ -117,10 +196,10 @@ impl CheckpointLog {
             .map_err(|_| Error::input(run_dir, "has no checkpoint to resume (run without --resume)"))?;
         let state: State = serde_json::from_str(&text)
             .map_err(|e| Error::input(&state_path, format!("damaged checkpoint state: {e}")))?;
-        if state.fingerprint != fingerprint {
+        if let Some(why) = fingerprint.mismatch(&state.fingerprint) {
             return Err(Error::input(
                 run_dir,
-                "its checkpoint was made from another input or with other parameters; resume with the same ones, or run without --resume",
+                format!("its checkpoint {why}; resume with the same recording and parameters, or run without --resume"),
             ));
         }
         let log_path = dir.join("frames.jsonl");
@@ -238,6 +317,7 @@ mod tests {
             input: "movie.tif".into(),
             bytes: 10,
             shape: (5, 4, 4),
+            content: Some((1, 2)),
             parameters: parameters.into(),
         }
     }
@@ -249,6 +329,7 @@ mod tests {
             detections: Vec::new(),
             nonfinite_pixels: frame,
             size_filter: Default::default(),
+            content_crc32: Some(frame as u32),
         }
     }
 
@@ -277,5 +358,60 @@ mod tests {
             .unwrap()
             .to_string();
         assert!(e.contains("no checkpoint"), "{e}");
+    }
+
+    /// A 5-frame 8x8 16-bit stack whose frame `t` is filled with `value(t)`.
+    fn stack_of(dir: &Path, name: &str, value: impl Fn(usize) -> u16) -> Stack {
+        use crate::stack::write::{write_stack, TiffCompression};
+        let path = dir.join(name);
+        write_stack::<u16, _>(&path, 8, 8, 5, TiffCompression::None, None, |t| Ok(vec![value(t); 64])).unwrap();
+        Stack::open(&path, &crate::stack::OpenOptions::default()).unwrap()
+    }
+
+    #[test]
+    fn a_replayed_frame_whose_content_changed_is_named() {
+        // Construction: two recordings alike but in frame 2; frames logged from the first are
+        // checked against the second: frame 2 is named (its CRC-32 differs), frames 0-1 pass.
+        let dir = tempfile::tempdir().unwrap();
+        let mut first = stack_of(dir.path(), "a.tif", |t| t as u16);
+        let mut second = stack_of(dir.path(), "b.tif", |t| if t == 2 { 99 } else { t as u16 });
+        let records: Vec<FrameRecord> = (0..5)
+            .map(|t| FrameRecord {
+                content_crc32: Some(first.read_frame(t).unwrap().content_crc32()),
+                ..record(t)
+            })
+            .collect();
+        let log = dir.path().join("frames.jsonl");
+        verify_logged_frames(&mut first, &records, &log, "hint").unwrap();
+        verify_logged_frames(&mut second, &records[..2], &log, "hint").unwrap();
+        let e = verify_logged_frames(&mut second, &records, &log, "hint")
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("frame 2 differs") && e.ends_with("hint"), "{e}");
+    }
+
+    #[test]
+    fn frame_content_checksum_is_zlib_crc32_of_the_little_endian_samples() {
+        // Source: the CRC-32 check value of "123456789" is cbf43926 (CRC catalogue; zlib.crc32).
+        // A 9x1 8-bit frame of those ASCII codes must give it; a 16-bit frame of the same
+        // values gives the CRC of the interleaved bytes "1\02\0...9\0", computed here by crc32fast
+        // on the bytes written out by hand.
+        let digits: Vec<u8> = b"123456789".to_vec();
+        let frame = |pixels| crate::stack::Frame {
+            index: 0,
+            width: 9,
+            height: 1,
+            pixels,
+        };
+        assert_eq!(
+            frame(crate::stack::Pixels::U8(digits.clone())).content_crc32(),
+            0xcbf4_3926
+        );
+        let wide: Vec<u16> = digits.iter().map(|&d| d as u16).collect();
+        let bytes: Vec<u8> = digits.iter().flat_map(|&d| [d, 0]).collect();
+        assert_eq!(
+            frame(crate::stack::Pixels::U16(wide)).content_crc32(),
+            crc32fast::hash(&bytes)
+        );
     }
 }

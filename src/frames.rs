@@ -95,7 +95,10 @@ impl<'a> SegmentedFrames<'a> {
             || {
                 current
                     .par_iter()
-                    .map(|f| segment_frame(&f.to_image(), f.index, params))
+                    .map(|f| FrameSegmentation {
+                        content_crc32: Some(f.content_crc32()),
+                        ..segment_frame(&f.to_image(), f.index, params)
+                    })
                     .collect::<Vec<_>>()
             },
         );

@@ -164,6 +164,14 @@ pub fn crc32_file(path: &Path) -> std::io::Result<u32> {
     }
 }
 
+/// The modification time of a file in whole seconds since 1970; `None` for a folder or where
+/// the file system does not say.
+pub fn modified_unix_s(path: &Path) -> Option<u64> {
+    let meta = std::fs::metadata(path).ok().filter(|m| m.is_file())?;
+    let since = meta.modified().ok()?.duration_since(std::time::UNIX_EPOCH).ok()?;
+    Some(since.as_secs())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

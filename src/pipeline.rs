@@ -138,7 +138,7 @@ pub fn run_recording(
     let info = stack.info().clone();
     let work = folder.work().to_path_buf();
     let mut pass = FirstPass::new(&work, outputs, &info, params)?;
-    let (mut checkpoint, replayed) = start_checkpoint(dir, outputs, &info, params, &diameter)?;
+    let (mut checkpoint, replayed) = start_checkpoint(stack, dir, outputs, params, &diameter)?;
     for record in replayed {
         pass.take(record)?;
     }
@@ -156,6 +156,7 @@ pub fn run_recording(
             detections: seg.detections,
             nonfinite_pixels: seg.nonfinite_pixels,
             size_filter: seg.size_filter,
+            content_crc32: seg.content_crc32,
         };
         if let Some(c) = checkpoint.as_mut() {
             c.record(&record, || spool.as_mut().map_or(Ok(0), |s| s.flushed_len()))?;
@@ -281,6 +282,7 @@ pub(crate) fn finish_run(
         command: command.to_string(),
         verdict: Some(run.verdict.clone()),
         input: RunInput {
+            modified_unix_s: crate::output::modified_unix_s(&info.path),
             stack: info,
             crc32: checksum,
         },
@@ -469,9 +471,9 @@ impl FirstPass {
 /// Starts checkpointing (or resumes, returning the logged frames) as the options say.
 /// Checkpoints are not kept with `labels.tif`, whose pages cannot be continued.
 fn start_checkpoint(
+    stack: &mut Stack,
     dir: &Path,
     outputs: &RunOptions,
-    info: &crate::stack::StackInfo,
     params: &SegmentParams,
     diameter: &DiameterSource,
 ) -> Result<(Option<CheckpointLog>, Vec<FrameRecord>)> {
@@ -492,9 +494,11 @@ fn start_checkpoint(
         link: outputs.linking,
         movie: outputs.movie,
     };
-    let fingerprint = Fingerprint::of(info, serde_json::to_value(&parameters).expect("plain data"));
+    let fingerprint = Fingerprint::of(stack, serde_json::to_value(&parameters).expect("plain data"))?;
     if outputs.resume {
         let (log, records) = CheckpointLog::resume(dir, fingerprint, every)?;
+        let log_path = crate::checkpoint::checkpoint_dir(dir).join("frames.jsonl");
+        crate::checkpoint::verify_logged_frames(stack, &records, &log_path, "run without --resume")?;
         Ok((Some(log), records))
     } else {
         Ok((Some(CheckpointLog::start(dir, fingerprint, every)?), Vec::new()))

@@ -63,6 +63,10 @@ pub struct RunInput {
     pub stack: StackInfo,
     /// CRC-32 of the file's bytes, as `zlib.crc32` computes it, in hexadecimal.
     pub crc32: Option<String>,
+    /// The file's modification time, seconds since 1970 (absent for folders of frames and in
+    /// records of older versions): a quick first check that the input is unchanged.
+    #[serde(default)]
+    pub modified_unix_s: Option<u64>,
 }
 
 /// Every parameter of a run; `L` is the linking block (the options as given in a checkpoint's

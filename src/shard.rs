@@ -34,12 +34,12 @@ pub struct ShardInfo {
     pub open: crate::stack::OpenOptions,
 }
 
-fn fingerprint(stack: &Stack, diameter: &DiameterSource, params: &SegmentParams) -> Fingerprint {
+fn fingerprint(stack: &mut Stack, diameter: &DiameterSource, params: &SegmentParams) -> Result<Fingerprint> {
     let parameters = crate::record::SegmentationParameters {
         diameter: diameter.clone(),
         segment: params.clone(),
     };
-    Fingerprint::of(stack.info(), serde_json::to_value(&parameters).expect("plain data"))
+    Fingerprint::of(stack, serde_json::to_value(&parameters).expect("plain data"))
 }
 
 /// Segments frames `range` of `stack` into the shard folder `dir`.
@@ -75,7 +75,7 @@ pub fn write_shard(
     crate::run_folder::remove_stale_partials(dir);
     let info = ShardInfo {
         caravan_version: crate::VERSION.into(),
-        fingerprint: fingerprint(stack, &diameter, params),
+        fingerprint: fingerprint(stack, &diameter, params)?,
         frames: range,
         diameter,
         segment: params.clone(),
@@ -98,6 +98,7 @@ pub fn write_shard(
                 detections: seg.detections,
                 nonfinite_pixels: seg.nonfinite_pixels,
                 size_filter: seg.size_filter,
+                content_crc32: seg.content_crc32,
             };
             writeln!(log, "{}", serde_json::to_string(&record).expect("serialisable"))
                 .map_err(|e| Error::output(&log_temp, e))?;
@@ -144,10 +145,10 @@ pub fn read_shards(dirs: &[PathBuf]) -> Result<Vec<(PathBuf, ShardInfo)>> {
     let total = first.1.fingerprint.shape.0;
     let mut next = 0;
     for (d, s) in &shards {
-        if s.fingerprint != first.1.fingerprint {
+        if let Some(why) = first.1.fingerprint.mismatch(&s.fingerprint) {
             return Err(Error::input(
                 d,
-                "belongs to another recording or was segmented with other parameters",
+                format!("does not fit the shard in {}: it {why}", first.0.display()),
             ));
         }
         if s.frames.0 != next {
@@ -179,12 +180,22 @@ pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Ru
     let shards = read_shards(dirs)?;
     let first = &shards[0].1;
     let info = stack.info().clone();
-    let expected = fingerprint(stack, &first.diameter, &first.segment);
-    if expected.bytes != first.fingerprint.bytes || expected.shape != first.fingerprint.shape {
+    let expected = fingerprint(stack, &first.diameter, &first.segment)?;
+    if let Some(why) = expected.mismatch(&first.fingerprint) {
         return Err(Error::input(
-            &info.path,
-            "is not the recording these shards were segmented from",
+            &shards[0].0,
+            format!(
+                "does not fit {}, the recording given to join: it {why}",
+                info.path.display()
+            ),
         ));
+    }
+    for (d, shard) in &shards {
+        let log = d.join("frames.jsonl");
+        let records = crate::checkpoint::read_frame_log(&log, shard.frames.0)?;
+        let first_and_last = [records.first(), records.last()];
+        let ends: Vec<FrameRecord> = first_and_last.into_iter().flatten().cloned().collect();
+        crate::checkpoint::verify_logged_frames(stack, &ends, &log, "segment the shard again from this recording")?;
     }
     let folder = crate::run_folder::RunFolder::open(dir, outputs.replace)?;
     let started = Instant::now();

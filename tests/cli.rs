@@ -554,12 +554,13 @@ fn run_record_without_timings(dir: &Path) -> serde_json::Value {
 fn a_run_killed_mid_way_resumes_to_identical_outputs() {
     // SIGKILL once the checkpoint holds 10 frames, then --resume: every output equals that of
     // an uninterrupted run byte for byte (run.json but for its timings), and no half-written
-    // or checkpoint file is left behind.
+    // or checkpoint file is left behind. Copies of the killed folder show that the logged
+    // frames are replayed, not segmented again (a value planted in the log comes out in
+    // detections.csv), and that another recording of the same size is refused (issue 21).
     let dir = tempfile::tempdir().unwrap();
     let syn = dir.path().join("syn");
-    synth_into(
-        &syn,
-        &[
+    let stripe = |seed: &'static str| {
+        [
             "--scenario",
             "stripe",
             "--size",
@@ -567,25 +568,35 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
             "--frames",
             "80",
             "--seed",
-            "5",
-        ],
-    );
-    let rec = syn.join("recording.tif");
-    let track = |out: &Path, extra: &[&str]| {
-        let mut args = vec![
-            "track",
-            rec.to_str().unwrap(),
-            "-o",
-            out.to_str().unwrap(),
-            "--diameter",
-            "14px",
-            "--no-analysis",
-            "--checkpoint-every",
-            "5",
-        ];
-        args.extend_from_slice(extra);
-        args.into_iter().map(String::from).collect::<Vec<_>>()
+            seed,
+            "--compression",
+            "none",
+        ]
     };
+    synth_into(&syn, &stripe("5"));
+    let other = synth_into(&dir.path().join("other"), &stripe("6"));
+    let rec = syn.join("recording.tif");
+    assert_eq!(
+        std::fs::metadata(&rec).unwrap().len(),
+        std::fs::metadata(&other).unwrap().len(),
+        "two recordings of the same size"
+    );
+    let track_of = |input: &Path, out: &Path, extra: &[&str]| {
+        let mut args = vec![
+            "track".to_string(),
+            input.to_str().unwrap().to_string(),
+            "-o".into(),
+            out.to_str().unwrap().to_string(),
+            "--diameter".into(),
+            "14px".into(),
+            "--no-analysis".into(),
+            "--checkpoint-every".into(),
+            "5".into(),
+        ];
+        args.extend(extra.iter().map(|s| s.to_string()));
+        args
+    };
+    let track = |out: &Path, extra: &[&str]| track_of(&rec, out, extra);
     let whole = dir.path().join("whole");
     ok(&caravan(
         &track(&whole, &[]).iter().map(String::as_str).collect::<Vec<_>>(),
@@ -616,6 +627,48 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
     let status = child.wait().unwrap();
     assert!(!status.success(), "the run was killed before it finished");
     assert!(!killed.join("run.json").exists());
+    // Another recording of the same size is refused, naming the frame that differs.
+    let replaced = dir.path().join("replaced");
+    copy_folder(&killed, &replaced);
+    let refused = caravan(
+        &track_of(Path::new(&other), &replaced, &["--resume"])
+            .iter()
+            .map(String::as_str)
+            .collect::<Vec<_>>(),
+        "2",
+    );
+    assert_eq!(refused.status.code(), Some(2));
+    let message = String::from_utf8_lossy(&refused.stderr);
+    assert!(
+        message.contains("another recording of the same size (frame 0 differs)"),
+        "{message}"
+    );
+    // The logged frames are replayed: a planted x comes out in detections.csv.
+    let planted = dir.path().join("planted");
+    copy_folder(&killed, &planted);
+    let log = planted.join(".checkpoint/frames.jsonl");
+    let text = std::fs::read_to_string(&log).unwrap();
+    let mut first: serde_json::Value = serde_json::from_str(text.lines().next().unwrap()).unwrap();
+    first["detections"][0]["x"] = serde_json::json!(1.2345);
+    let rest: Vec<&str> = text.lines().skip(1).collect();
+    std::fs::write(&log, format!("{}\n{}\n", first, rest.join("\n"))).unwrap();
+    let state_path = planted.join(".checkpoint/state.json");
+    let mut state: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&state_path).unwrap()).unwrap();
+    state["log_bytes"] = serde_json::json!(std::fs::metadata(&log).unwrap().len());
+    std::fs::write(&state_path, state.to_string()).unwrap();
+    ok(&caravan(
+        &track(&planted, &["--resume"])
+            .iter()
+            .map(String::as_str)
+            .collect::<Vec<_>>(),
+        "2",
+    ));
+    let detections = std::fs::read_to_string(planted.join("detections.csv")).unwrap();
+    assert!(
+        detections.lines().nth(1).unwrap().starts_with("0,1,1.2345,"),
+        "{}",
+        detections.lines().nth(1).unwrap()
+    );
     ok(&caravan(
         &track(&killed, &["--resume"])
             .iter()
@@ -646,12 +699,13 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
 fn shards_linked_equal_one_track_run() {
     // Split stages: frames 0..12 and 12..30 segmented apart (even in the other order), then
     // linked: every output equals one `track` run byte for byte; run.json but for the command
-    // name and timings. Shards that leave a gap are refused with exit code 2.
+    // name and timings. Shards that leave a gap are refused with exit code 2, and so are
+    // shards cut from one path before and after the file was replaced by another recording of
+    // the same size (issue 21).
     let dir = tempfile::tempdir().unwrap();
     let syn = dir.path().join("syn");
-    synth_into(
-        &syn,
-        &[
+    let dish = |seed: &'static str| {
+        [
             "--scenario",
             "dish",
             "--size",
@@ -661,9 +715,13 @@ fn shards_linked_equal_one_track_run() {
             "--divisions",
             "0.01",
             "--seed",
-            "8",
-        ],
-    );
+            seed,
+            "--compression",
+            "none",
+        ]
+    };
+    synth_into(&syn, &dish("8"));
+    let other = synth_into(&dir.path().join("other"), &dish("9"));
     let rec = syn.join("recording.tif");
     let rec = rec.to_str().unwrap();
     let path = |name: &str| dir.path().join(name).to_str().unwrap().to_string();
@@ -719,6 +777,35 @@ fn shards_linked_equal_one_track_run() {
     let gap = caravan(&["join", &path("b"), "-o", &path("gap")], "1");
     assert_eq!(gap.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&gap.stderr).contains("frame 0"));
+    // One path, two recordings: shard c before the file is replaced, shard d after.
+    let moving = path("moving.tif");
+    std::fs::copy(rec, &moving).unwrap();
+    let segment = |range: &str, out: &str| {
+        ok(&caravan(
+            &[
+                "segment",
+                &moving,
+                "--frames",
+                range,
+                "-o",
+                &path(out),
+                "--diameter",
+                "14px",
+            ],
+            "2",
+        ))
+    };
+    segment("0..12", "c");
+    std::fs::copy(&other, &moving).unwrap();
+    segment("12..30", "d");
+    let mixed = caravan(&["join", &path("c"), &path("d"), "-o", &path("mixed")], "2");
+    assert_eq!(mixed.status.code(), Some(2));
+    let message = String::from_utf8_lossy(&mixed.stderr);
+    assert!(
+        message.contains("another recording of the same size (frame 0 differs)"),
+        "{message}"
+    );
+    assert!(!dir.path().join("mixed/run.json").exists());
 }
 
 #[test]
@@ -742,4 +829,18 @@ fn the_demo_runs_end_to_end_and_says_its_verdict() {
     let record: serde_json::Value =
         serde_json::from_slice(&std::fs::read(out.join("tracking/run.json")).unwrap()).unwrap();
     assert_eq!(record["verdict"]["verdict"], "ok");
+}
+
+/// Copies a run folder (files and one level of subfolders, hidden ones included).
+fn copy_folder(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for e in std::fs::read_dir(from).unwrap() {
+        let e = e.unwrap();
+        let target = to.join(e.file_name());
+        if e.file_type().unwrap().is_dir() {
+            copy_folder(&e.path(), &target);
+        } else {
+            std::fs::copy(e.path(), target).unwrap();
+        }
+    }
 }

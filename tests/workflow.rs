@@ -182,3 +182,72 @@ fn batch_lists_runs_judged_failed_and_leaves_them_out_of_the_comparison() {
     );
     assert!(!replicates.contains("embryo1"), "{replicates}");
 }
+
+#[test]
+fn batch_tracks_again_a_recording_whose_input_changed() {
+    // Issue 21: a finished run is skipped only while its input is the one it tracked. Copying
+    // the same file over it (a new modification time, the same CRC-32) keeps it complete;
+    // another recording of the same size (uncompressed, same settings) is tracked again, and
+    // the new run.json records the new file's CRC-32 (zlib's, as check_outputs.py verifies).
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    for (name, seed) in [("a", "1"), ("b", "2")] {
+        ok(caravan(
+            &[
+                "synth",
+                "-o",
+                name,
+                "--scenario",
+                "dish",
+                "--size",
+                "128x128",
+                "--frames",
+                "12",
+                "--seed",
+                seed,
+                "--compression",
+                "none",
+            ],
+            d,
+        ));
+    }
+    let (a, b) = (d.join("a/recording.tif"), d.join("b/recording.tif"));
+    assert_eq!(
+        std::fs::metadata(&a).unwrap().len(),
+        std::fs::metadata(&b).unwrap().len()
+    );
+    std::fs::create_dir(d.join("in")).unwrap();
+    let input = d.join("in/recording.tif");
+    std::fs::copy(&a, &input).unwrap();
+    std::fs::write(
+        d.join("m.csv"),
+        "path,condition,replicate\nin/recording.tif,control,e1\n",
+    )
+    .unwrap();
+    let batch = || {
+        ok(caravan(
+            &["batch", "m.csv", "-o", "out", "--diameter", "14px", "--no-analysis"],
+            d,
+        ))
+    };
+    let first = batch();
+    assert_eq!(first.matches("tracked ").count(), 1, "{first}");
+    let run_json = d.join("out/runs/control/e1/recording/run.json");
+    let crc = |p: &Path| -> String {
+        let v: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(p).unwrap()).unwrap();
+        v["input"]["crc32"].as_str().unwrap().to_string()
+    };
+    let before = crc(&run_json);
+    std::thread::sleep(std::time::Duration::from_millis(1100));
+    std::fs::copy(&a, &input).unwrap();
+    let touched = batch();
+    assert!(touched.contains("already complete"), "{touched}");
+    std::fs::copy(&b, &input).unwrap();
+    let changed = batch();
+    assert!(
+        changed.contains("input changed since it was tracked (CRC-32"),
+        "{changed}"
+    );
+    assert!(changed.contains("tracked in/recording.tif ->"), "{changed}");
+    assert_ne!(crc(&run_json), before);
+}

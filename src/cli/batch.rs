@@ -113,15 +113,27 @@ fn report(input: &Path, folder: &Path, outcome: &Outcome) {
 
 /// Tracks one recording into `folder`, or finds it complete already.
 fn track_one(input: &Path, folder: &Path, args: &BatchArgs) -> Result<Outcome> {
-    if folder.join("run.json").exists() {
-        return Ok(Outcome::Skipped(recorded_verdict(&folder.join("run.json"))));
+    let record = folder.join("run.json");
+    let mut replace = false;
+    if record.exists() {
+        match caravan::batch::input_changed_since(&record, input)? {
+            None => return Ok(Outcome::Skipped(recorded_verdict(&record))),
+            Some(why) => {
+                println!(
+                    "input changed since it was tracked ({why}): tracking {} again",
+                    input.display()
+                );
+                replace = true;
+            }
+        }
     }
-    let resume = caravan::checkpoint::checkpoint_dir(folder).join("state.json").exists();
+    let resume = !replace && caravan::checkpoint::checkpoint_dir(folder).join("state.json").exists();
     let mut stack = Stack::open(input, &OpenOptions::default())?;
     let (diameter, params) = args.segmentation.resolve(&mut stack)?;
     let mut outputs = args.linking.outputs(stack.info().calibration.pixel_size_um, resume)?;
     outputs.checkpoint_every = Some(25);
     outputs.resume = resume;
+    outputs.replace = replace;
     let run = run_recording(&mut stack, diameter, &params, folder, &outputs, "track")?;
     if !args.linking.no_analysis {
         analyze_run_folder(folder);

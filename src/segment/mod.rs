@@ -41,6 +41,9 @@ pub struct FrameSegmentation {
     pub nonfinite_pixels: usize,
     /// What the size filter did.
     pub size_filter: SizeFilterCounts,
+    /// CRC-32 of the decoded frame ([`crate::stack::Frame::content_crc32`]), set by frame
+    /// production; `None` for an image segmented on its own.
+    pub content_crc32: Option<u32>,
 }
 
 /// What the size filter did in one frame: objects too small to be a nucleus are dropped and
@@ -111,6 +114,7 @@ pub(crate) fn segment_frame_and_prepared(
         detections,
         nonfinite_pixels,
         size_filter,
+        content_crc32: None,
     };
     (segmentation, prepared)
 }

@@ -105,6 +105,29 @@ pub struct Frame {
 }
 
 impl Frame {
+    /// CRC-32 (as `zlib.crc32`) of the frame's decoded samples, little-endian, row-major: what
+    /// identifies a frame's content whatever the file's compression or layout. Checkpoints and
+    /// shards log it to refuse mixing two recordings.
+    pub fn content_crc32(&self) -> u32 {
+        let mut hasher = crc32fast::Hasher::new();
+        let mut buf = Vec::with_capacity(1 << 16);
+        let mut feed = |bytes: &[u8], hasher: &mut crc32fast::Hasher| {
+            buf.extend_from_slice(bytes);
+            if buf.len() >= 1 << 16 {
+                hasher.update(&buf);
+                buf.clear();
+            }
+        };
+        match &self.pixels {
+            Pixels::U8(v) => hasher.update(v),
+            Pixels::U16(v) => v.iter().for_each(|p| feed(&p.to_le_bytes(), &mut hasher)),
+            Pixels::U32(v) => v.iter().for_each(|p| feed(&p.to_le_bytes(), &mut hasher)),
+            Pixels::F32(v) => v.iter().for_each(|p| feed(&p.to_le_bytes(), &mut hasher)),
+        }
+        hasher.update(&buf);
+        hasher.finalize()
+    }
+
     /// The frame as a float image for the per-pixel stages.
     pub fn to_image(&self) -> Image {
         image2d::from_vec(self.width, self.height, self.pixels.to_f32())
