@@ -248,7 +248,7 @@ impl CheckpointLog {
         let path = self.dir.join("frames.jsonl");
         writeln!(self.log, "{line}").map_err(|e| Error::output(&path, e))?;
         self.frames_done += 1;
-        if self.frames_done % self.every == 0 {
+        if self.frames_done.is_multiple_of(self.every) {
             self.log.flush().map_err(|e| Error::output(&path, e))?;
             self.log.get_ref().sync_data().map_err(|e| Error::output(&path, e))?;
             let log_bytes = self

@@ -34,26 +34,86 @@ pub fn check_output_dir(dir: &Path, replace: bool) -> Result<()> {
     Ok(())
 }
 
-/// A run's output folder while the run writes into it.
+/// The name of the lock file a run holds in its folder.
+pub const LOCK_FILE: &str = ".caravan.lock";
+
+/// An exclusive lock on a run folder: one run at a time writes into it. It is an operating
+/// system lock on `.caravan.lock` (which holds the running process's id), released when the
+/// run ends, however it ends: a lock file left by a killed run does not block the next one.
+#[derive(Debug)]
+pub struct FolderLock {
+    _file: std::fs::File,
+}
+
+impl FolderLock {
+    /// Takes the lock of `dir` (created if needed) at once, or refuses.
+    ///
+    /// # Errors
+    /// Another run holds the folder (naming its process), or the folder cannot be written.
+    pub fn take(dir: &Path) -> Result<FolderLock> {
+        use std::io::{Read, Seek, Write};
+        ensure_dir(dir)?;
+        let path = dir.join(LOCK_FILE);
+        let mut file = std::fs::OpenOptions::new()
+            .read(true)
+            .write(true)
+            .create(true)
+            .truncate(false)
+            .open(&path)
+            .map_err(|e| Error::output(&path, e))?;
+        match file.try_lock() {
+            Ok(()) => {}
+            Err(std::fs::TryLockError::WouldBlock) => {
+                let mut holder = String::new();
+                let _ = file.read_to_string(&mut holder);
+                let holder = holder.trim();
+                let who = if holder.is_empty() {
+                    "another process".to_string()
+                } else {
+                    format!("process {holder}")
+                };
+                return Err(Error::input(
+                    dir,
+                    format!("is in use by another caravan run ({who}); wait for it to finish or choose another folder"),
+                ));
+            }
+            Err(std::fs::TryLockError::Error(e)) => return Err(Error::output(&path, e)),
+        }
+        let mut write_pid = || -> std::io::Result<()> {
+            file.set_len(0)?;
+            file.rewind()?;
+            write!(file, "{}", std::process::id())?;
+            file.flush()
+        };
+        write_pid().map_err(|e| Error::output(&path, e))?;
+        Ok(FolderLock { _file: file })
+    }
+}
+
+/// A run's output folder while the run writes into it (locked for this run, see
+/// [`FolderLock`]).
 pub struct RunFolder {
     dir: PathBuf,
     staging: Staging,
+    _lock: FolderLock,
 }
 
 impl RunFolder {
-    /// Checks `dir` ([`check_output_dir`]), creates it, removes what interrupted runs left
-    /// (`*.partial-PID` files and staging folders of other processes) and opens a staging
-    /// folder in it.
+    /// Checks `dir` ([`check_output_dir`]), creates it, takes its lock ([`FolderLock`]),
+    /// removes what interrupted runs left (`*.partial-PID` files and staging folders of other
+    /// processes: none can be running, the lock says so) and opens a staging folder in it.
     ///
     /// # Errors
-    /// A folder holding an earlier run (without `replace`), or one that cannot be written.
+    /// A folder holding an earlier run (without `replace`), one another run is writing into,
+    /// or one that cannot be written.
     pub fn open(dir: &Path, replace: bool) -> Result<RunFolder> {
         check_output_dir(dir, replace)?;
-        ensure_dir(dir)?;
+        let lock = FolderLock::take(dir)?;
         remove_stale_partials(dir);
         Ok(RunFolder {
             dir: dir.to_path_buf(),
             staging: Staging::new(dir)?,
+            _lock: lock,
         })
     }
 

@@ -7,7 +7,7 @@
 use crate::checkpoint::{Fingerprint, FrameRecord};
 use crate::error::{Error, Result};
 use crate::frames::{progress_bar, with_segmented_frames};
-use crate::output::{ensure_dir, write_atomic};
+use crate::output::write_atomic;
 use crate::params::SegmentParams;
 use crate::pipeline::{finish_run, DiameterSource, FirstPass, RunOptions, RunOutcome};
 use crate::render::movie::OutlineSpool;
@@ -71,7 +71,7 @@ pub fn write_shard(
             "holds a shard already (shard.json); choose another folder or give --force",
         ));
     }
-    ensure_dir(dir)?;
+    let _lock = crate::run_folder::FolderLock::take(dir)?;
     crate::run_folder::remove_stale_partials(dir);
     let info = ShardInfo {
         caravan_version: crate::VERSION.into(),

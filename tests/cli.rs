@@ -556,7 +556,9 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
     // an uninterrupted run byte for byte (run.json but for its timings), and no half-written
     // or checkpoint file is left behind. Copies of the killed folder show that the logged
     // frames are replayed, not segmented again (a value planted in the log comes out in
-    // detections.csv), and that another recording of the same size is refused (issue 21).
+    // detections.csv), and that another recording of the same size is refused; while the
+    // first run writes, a second into its folder is refused, and the resume after the kill
+    // shows that the lock a killed run leaves behind does not block (issue 21).
     let dir = tempfile::tempdir().unwrap();
     let syn = dir.path().join("syn");
     let stripe = |seed: &'static str| {
@@ -623,6 +625,14 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
         assert!(started.elapsed().as_secs() < 60, "no checkpoint appeared");
         std::thread::sleep(std::time::Duration::from_millis(5));
     }
+    // One run per folder: a second run into it is refused at once, naming the running process.
+    let second = caravan(&track(&killed, &[]).iter().map(String::as_str).collect::<Vec<_>>(), "1");
+    assert_eq!(second.status.code(), Some(2));
+    let message = String::from_utf8_lossy(&second.stderr);
+    assert!(
+        message.contains(&format!("is in use by another caravan run (process {})", child.id())),
+        "{message}"
+    );
     child.kill().unwrap(); // SIGKILL on Unix
     let status = child.wait().unwrap();
     assert!(!status.success(), "the run was killed before it finished");
@@ -681,7 +691,7 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
     let leftovers: Vec<String> = std::fs::read_dir(&killed)
         .unwrap()
         .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .filter(|n| n.starts_with('.'))
+        .filter(|n| n.starts_with('.') && n != ".caravan.lock")
         .collect();
     assert!(leftovers.is_empty(), "{leftovers:?}");
     // A finished run keeps no checkpoint: resuming it is refused with exit code 2.

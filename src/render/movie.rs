@@ -377,7 +377,7 @@ impl ContactSheet {
             let (ox, oy) = (gap + (k % columns) * (w + gap), gap + (k / columns) * (h + gap));
             for (x, y, p) in tile
                 .enumerate_pixels()
-                .filter(|(x, y, _)| *x as usize % step == 0 && *y as usize % step == 0)
+                .filter(|(x, y, _)| (*x as usize).is_multiple_of(step) && (*y as usize).is_multiple_of(step))
             {
                 let i = p.0[0] as usize * 3;
                 let (tx, ty) = (x / step as u32, y / step as u32);
