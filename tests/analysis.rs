@@ -172,8 +172,9 @@ fn reports_open_in_a_browser_with_every_chart() {
         &scene.run.join("analysis/report.html"),
         &dir.path().join("p1"),
     );
+    // Charts drawn, not placeholders saying a chart could not be drawn (issue 21).
     assert!(
-        dom.contains("data-charts=\"10\""),
+        dom.contains("data-charts=\"10\"") && dom.contains("data-charts-failed=\"0\""),
         "{}",
         &dom[dom.len().saturating_sub(300)..]
     );
@@ -202,7 +203,7 @@ fn reports_open_in_a_browser_with_every_chart() {
     }
     // One strip chart per compared statistic (4).
     let dom = open_in_browser(&browser, &dir.path().join("cmp/report.html"), &dir.path().join("p2"));
-    assert!(dom.contains("data-charts=\"4\""));
+    assert!(dom.contains("data-charts=\"4\"") && dom.contains("data-charts-failed=\"0\""));
     assert!(
         dom.contains("slow0&lt;b&gt;.csv"),
         "file names with markup show as text"

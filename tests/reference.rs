@@ -51,6 +51,16 @@ fn thresholds_match_scikit_image_exactly() {
         triangle_threshold(&f),
         r["thresholds_float"]["triangle"].as_f64().unwrap()
     );
+    // Source: skimage.filters.threshold_li on the float64 image, which iterates on the pixel
+    // values themselves; the pipeline iterates on the 256-bin histogram of the frame (as it
+    // does for every float frame), so the two agree to within one bin width, (max − min)/256.
+    let bin = (f.centers[1] - f.centers[0]).abs();
+    let li = r["thresholds_float"]["li"].as_f64().unwrap();
+    assert!(
+        (li_threshold(&f) - li).abs() <= bin,
+        "{} vs {li} (bin {bin})",
+        li_threshold(&f)
+    );
 }
 
 #[test]
@@ -59,12 +69,22 @@ fn gaussian_and_opening_match_scipy() {
     let img = image(&r, "blobs_float");
     // Source: scipy.ndimage.gaussian_filter(img, 2.0, mode="reflect"); f32 arithmetic here.
     let ours = gaussian_blur(&img, 2.0);
+    assert_eq!(
+        ours.len(),
+        floats(&r, "gaussian_sigma2").len(),
+        "one reference value per pixel"
+    );
     for (a, b) in ours.iter().zip(floats(&r, "gaussian_sigma2")) {
         assert!((*a as f64 - b).abs() < 1e-3 * b.abs().max(1.0), "{a} vs {b}");
     }
     // Source: scipy.ndimage.grey_opening(img, size=(9, 9), mode="reflect"): min/max only, so
     // equal to the f32 rounding of the input.
     let ours = grey_opening_square(&img, 9);
+    assert_eq!(
+        ours.len(),
+        floats(&r, "grey_opening_9").len(),
+        "one reference value per pixel"
+    );
     for (a, b) in ours.iter().zip(floats(&r, "grey_opening_9")) {
         assert_eq!(*a, b as f32);
     }
@@ -78,6 +98,11 @@ fn distance_transform_matches_scipy() {
     // Source: scipy.ndimage.distance_transform_edt(mask) and with sampling=(2, 1).
     for (key, spacing) in [("edt", (1.0, 1.0)), ("edt_sampling_2_1", (2.0, 1.0))] {
         let ours = squared_edt(&m, w, h, spacing);
+        assert_eq!(
+            ours.len(),
+            floats(&r, key).len(),
+            "{key}: one reference value per pixel"
+        );
         for (a, b) in ours.iter().zip(floats(&r, key)) {
             assert!((a.sqrt() - b).abs() < 1e-9, "{key}: {} vs {b}", a.sqrt());
         }

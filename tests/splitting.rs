@@ -40,9 +40,10 @@ fn random_mask(rng: &mut Rng, w: usize, h: usize) -> Vec<bool> {
 /// whatever the numbers).
 fn same_partition(a: &[u32], b: &[u32]) -> bool {
     let (mut ab, mut ba) = (BTreeMap::new(), BTreeMap::new());
-    a.iter()
-        .zip(b)
-        .all(|(&x, &y)| (x == 0) == (y == 0) && *ab.entry(x).or_insert(y) == y && *ba.entry(y).or_insert(x) == x)
+    a.len() == b.len()
+        && a.iter()
+            .zip(b)
+            .all(|(&x, &y)| (x == 0) == (y == 0) && *ab.entry(x).or_insert(y) == y && *ba.entry(y).or_insert(x) == x)
 }
 
 #[test]

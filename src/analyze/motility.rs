@@ -164,6 +164,7 @@ mod tests {
         assert!((y.forward_migration_index.unwrap() - 0.311808).abs() < 1e-6);
         let turns: Vec<f64> = steps(1, &t, 2.0).iter().filter_map(|s| s.turning_deg).collect();
         let want = [45.0, 45.0, -90.0, 0.0];
+        assert_eq!(turns.len(), want.len(), "{turns:?}");
         assert!(turns.iter().zip(want).all(|(a, b)| (a - b).abs() < 1e-9), "{turns:?}");
         // Over the first 3 frames: (0,0)→(2,2), path 1 + √2 + 1 (hand-derived).
         let early = 8f64.sqrt() / (2.0 + 2f64.sqrt());

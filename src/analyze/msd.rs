@@ -304,6 +304,7 @@ mod tests {
         let t = worked_track();
         let m = msd(&[&t], 5, 2.0);
         let want = [1.8, 5.25, 8.666667, 16.5, 29.0];
+        assert_eq!(m.len(), want.len(), "one MSD point per lag");
         for (k, q) in m.iter().enumerate() {
             assert!((q.msd - want[k]).abs() < 1e-6 && q.pairs == 5 - k, "{q:?}");
             assert_eq!(q.lag, 2.0 * (k + 1) as f64);
@@ -311,6 +312,7 @@ mod tests {
         let a = autocorrelation(&[&t], 4, 2.0);
         let vacf = [0.45, 0.25, 0.083333, 0.375, 0.5];
         let dacf = [1.0, 0.603553, 0.235702, 0.853553, 1.0];
+        assert_eq!(a.len(), vacf.len(), "one autocorrelation point per lag");
         for (k, q) in a.iter().enumerate() {
             assert!(
                 (q.velocity - vacf[k]).abs() < 1e-6 && (q.direction - dacf[k]).abs() < 1e-6,

@@ -295,3 +295,18 @@ pub fn strip_chart(title: &str, y_desc: &str, groups: &[Strip]) -> String {
         Ok(())
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_chart_that_fails_says_so_and_the_page_counts_it_apart() {
+        // Construction: a drawing that errors gives the placeholder text the report's page
+        // script separates from drawn charts (`data-charts-failed`); one that succeeds does not.
+        let failed = svg(|_| Err("no data".into()));
+        assert!(failed.contains("could not be drawn"), "{failed}");
+        let drawn = svg(|_| Ok(()));
+        assert!(drawn.starts_with("<svg") && !drawn.contains("could not be drawn"));
+    }
+}

@@ -40,11 +40,15 @@ fn page_start(title: &str) -> String {
     )
 }
 
-/// Closes a page; the script records how many charts rendered (read by the browser test).
+/// Closes a page; the script records how many charts rendered and how many could not be drawn
+/// (the placeholder of `plots`), read by the browser test.
 fn page_end(html: &mut String) {
-    html.push_str(
-        "<script>document.body.setAttribute('data-charts', String(document.querySelectorAll('figure svg').length));</script></body></html>",
-    );
+    html.push_str(concat!(
+        "<script>const charts = [...document.querySelectorAll('figure svg')];",
+        "const failed = charts.filter(s => s.textContent.includes('could not be drawn')).length;",
+        "document.body.setAttribute('data-charts', String(charts.length - failed));",
+        "document.body.setAttribute('data-charts-failed', String(failed));</script></body></html>",
+    ));
 }
 
 fn figure(html: &mut String, id: &str, svg: &str, caption: &str) {
