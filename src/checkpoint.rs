@@ -414,4 +414,24 @@ mod tests {
             crc32fast::hash(&bytes)
         );
     }
+
+    #[test]
+    fn a_damaged_or_reordered_log_is_refused_naming_the_line() {
+        // Construction: frames 0, 2, 1 (reordered), and a line cut in half (a crash mid-write
+        // outside the checkpointed part, or damage): each refused with the line it is on.
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("frames.jsonl");
+        let line = |f: usize| serde_json::to_string(&record(f)).unwrap();
+        std::fs::write(&path, format!("{}\n{}\n{}\n", line(0), line(2), line(1))).unwrap();
+        let e = read_frame_log(&path, 0).unwrap_err().to_string();
+        assert!(e.contains("line 2: frames out of order"), "{e}");
+        let cut = line(1);
+        std::fs::write(&path, format!("{}\n{}\n", line(0), &cut[..cut.len() / 2])).unwrap();
+        let e = read_frame_log(&path, 0).unwrap_err().to_string();
+        assert!(e.contains("line 2: damaged frame log"), "{e}");
+        // A shard's log starts at its first frame.
+        std::fs::write(&path, format!("{}\n{}\n", line(5), line(6))).unwrap();
+        assert_eq!(read_frame_log(&path, 5).unwrap().len(), 2);
+        assert!(read_frame_log(&path, 0).is_err());
+    }
 }

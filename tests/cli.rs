@@ -174,10 +174,19 @@ fn outputs_pass_independent_python_readers() {
     let seg = dir.path().join("seg");
     ok(&caravan(&["track", &rec, "-o", seg.to_str().unwrap(), "--labels"], "2"));
     let png = dir.path().join("p.png");
-    ok(&caravan(
+    let said = ok(&caravan(
         &["preview", &rec, "--frame", "1", "-o", png.to_str().unwrap()],
         "2",
     ));
+    // The preview segments the frame as the run does (same defaults, same estimate): the
+    // objects it counts are frame 1's rows of the run's detections.csv.
+    let rows = std::fs::read_to_string(seg.join("detections.csv"))
+        .unwrap()
+        .lines()
+        .filter(|l| l.starts_with("1,"))
+        .count();
+    assert!(rows > 0);
+    assert!(said.starts_with(&format!("frame 1: {rows} objects,")), "{said}");
     run_python(
         &python,
         "check_outputs.py",

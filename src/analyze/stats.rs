@@ -233,6 +233,24 @@ mod tests {
         let boot = hierarchical_bootstrap(&ctrl, 20000, &mut Rng::new(1));
         let m = boot.iter().sum::<f64>() / boot.len() as f64;
         assert!((m - 0.614857).abs() < 0.005, "{m}");
+        // Source: the law of total variance. Each resampled replicate mean M picks a group G
+        // at random, then averages n_G values drawn from it with replacement: Var(M) =
+        // Var_G(μ_G) + E_G[σ²_G / n_G] (σ² the group's population variance); the statistic
+        // averages k = 3 such draws, so its variance is Var(M) / 3. A function that does not
+        // resample would give 0. Within 5% (sampling error of a variance over 20 000 draws ~1%).
+        let k = ctrl.len() as f64;
+        let mu: Vec<f64> = means(&ctrl);
+        let grand = mu.iter().sum::<f64>() / k;
+        let between = mu.iter().map(|u| (u - grand).powi(2)).sum::<f64>() / k;
+        let within = ctrl
+            .iter()
+            .zip(&mu)
+            .map(|(g, u)| g.iter().map(|x| (x - u).powi(2)).sum::<f64>() / g.len() as f64 / g.len() as f64)
+            .sum::<f64>()
+            / k;
+        let expected = (between + within) / k;
+        let var = boot.iter().map(|b| (b - m).powi(2)).sum::<f64>() / (boot.len() - 1) as f64;
+        assert!((var / expected - 1.0).abs() < 0.05, "{var} vs {expected}");
     }
 
     #[test]

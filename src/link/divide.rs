@@ -497,4 +497,58 @@ mod tests {
         let mut points = mitosis_movie(500.0);
         assert!(detect_divisions(&mut points, &params, &rules).is_empty());
     }
+
+    /// A mother with `mother` areas (one point per frame from frame 10 − len, mean intensity
+    /// 500), then two daughters 4 px either side of her path with areas and mean intensities
+    /// `daughters`, for 5 frames.
+    fn rule_movie(mother: &[f64], daughters: [(f64, f64); 2]) -> Vec<TrackedDetection> {
+        let mut linker = OnlineLinker::new(LinkParams::for_diameter(14.0));
+        let start = 10 - mother.len();
+        let mut out = Vec::new();
+        for t in start..15 {
+            let x = 30.0 + t as f64;
+            let frame = if t < 10 {
+                vec![nucleus(t, 1, x, 50.0, mother[t - start])]
+            } else {
+                let s = 4.0 + 0.5 * (t - 10) as f64;
+                daughters
+                    .iter()
+                    .enumerate()
+                    .map(|(k, &(area, mean))| Detection {
+                        mean_intensity: mean,
+                        total_intensity: area * mean,
+                        ..nucleus(t, k as u32 + 1, x, 50.0 + if k == 0 { -s } else { s }, area)
+                    })
+                    .collect()
+            };
+            out.extend(linker.push(frame));
+        }
+        out
+    }
+
+    fn found(mut points: Vec<TrackedDetection>) -> usize {
+        detect_divisions(&mut points, &LinkParams::for_diameter(14.0), &DivisionRules::default()).len()
+    }
+
+    #[test]
+    fn each_division_rule_rejects_what_it_names() {
+        // Construction, against the bounds of DivisionRules::default (README, "divisions are
+        // found by our explicit rules"); each case beside a control that passes.
+        let steady = [150.0; 6];
+        // Sisters: 60 and 100 px (ratio 1.67) pass; 45 and 120 px (2.67 > 2) do not, though
+        // each is within 0.3-0.85 of the mother.
+        assert_eq!(found(rule_movie(&steady, [(60.0, 500.0), (100.0, 500.0)])), 1);
+        assert_eq!(found(rule_movie(&steady, [(45.0, 500.0), (120.0, 500.0)])), 0);
+        // Brightness: daughters of 80 px at mean 500 hold 1.07 of her total; at mean 100,
+        // 0.21 (< 0.6): not her DNA.
+        assert_eq!(found(rule_movie(&steady, [(80.0, 500.0), (80.0, 500.0)])), 1);
+        assert_eq!(found(rule_movie(&steady, [(80.0, 100.0), (80.0, 100.0)])), 0);
+        // Growth: a mother of 80 px for 4 frames then 150 (1.9x > 1.5) is two nuclei merging,
+        // not a mother (her daughters, 80 px each, would pass against 150).
+        let grown = [80.0, 80.0, 80.0, 80.0, 150.0, 150.0, 150.0];
+        assert_eq!(found(rule_movie(&grown, [(80.0, 500.0), (80.0, 500.0)])), 0);
+        // History: a mother seen for 2 points (< 3) cannot be judged.
+        assert_eq!(found(rule_movie(&[150.0, 150.0], [(80.0, 500.0), (80.0, 500.0)])), 0);
+        assert_eq!(found(rule_movie(&[150.0; 3], [(80.0, 500.0), (80.0, 500.0)])), 1);
+    }
 }

@@ -335,4 +335,24 @@ mod tests {
             .unwrap_err()
             .contains("missing column x"));
     }
+
+    #[test]
+    fn quoted_fields_are_read_as_one_cell() {
+        // Source: RFC 4180 (a quoted field may hold commas, doubled quotes and line breaks; a
+        // quoted number is the number). A table from a spreadsheet with a free-text column:
+        // the rows keep their values and their line numbers (the third row is on line 5, after
+        // a note spanning lines 3 and 4).
+        let text = "track_id,note,frame,x,y\n\
+                    1,\"moved, then \"\"stopped\"\"\",0,\"1.5\",2\n\
+                    1,\"two\nlines\",1,2.5,3\n\
+                    2,,0,10,20\n";
+        let rows = read_track_rows(text).unwrap();
+        assert_eq!(rows.len(), 3);
+        assert_eq!(
+            (rows[0].track_id, rows[0].frame, rows[0].x, rows[0].y),
+            (1, 0, 1.5, 2.0)
+        );
+        assert_eq!((rows[1].frame, rows[1].x, rows[1].line), (1, 2.5, 3));
+        assert_eq!((rows[2].track_id, rows[2].x, rows[2].line), (2, 10.0, 5));
+    }
 }
