@@ -98,6 +98,30 @@ fn a_hand_written_csv_gives_hand_derived_statistics() {
     }
 }
 
+#[test]
+fn the_analysis_page_shows_a_path_with_markup_as_text() {
+    // Source: the HTML standard's escaping of &, < and > in text. A tracks file whose name
+    // holds markup appears escaped on the page, never as a tag.
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("cells <b>&<b> more.csv");
+    straight_tracks_csv(&csv, 3, 2.0);
+    let out = dir.path().join("a");
+    run_analysis(
+        &csv,
+        CalibrationOverride::default(),
+        &Filters::default(),
+        &AnalysisOptions::default(),
+        &out,
+    )
+    .unwrap();
+    let page = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(
+        page.contains("cells &lt;b&gt;&amp;&lt;b&gt; more.csv"),
+        "the name, escaped"
+    );
+    assert!(!page.contains("<b>&<b>"), "no raw markup from the name");
+}
+
 /// Chromium from the distribution (installed by .ci/run); `None` outside CI when absent.
 fn chromium() -> Option<String> {
     let path = std::env::var("CARAVAN_CHROMIUM").unwrap_or_else(|_| "/usr/bin/chromium".into());
