@@ -5,12 +5,15 @@ usage: check_analysis.py RUN_DIR ANALYSIS_DIR COMPARISON_DIR
 Recomputed here with numpy/scipy from tracks.csv and run.json (tracks of >= 10 points, as the
 default filter): per-track path length, net displacement, mean speed and directionality;
 the pooled MSD with overlapping windows; the Rayleigh statistic of net-displacement
-directions (Zar 2010); the order parameter per frame (Vicsek 1995). For the comparison:
-scipy.stats.mannwhitneyu on the replicate means written in replicates.csv.
+directions (Zar 2010); the order parameter per frame (Vicsek 1995). For the comparison: each
+replicate's mean speed derived from its own tracks.csv (the manifest's entries), checked
+against replicates.csv, and scipy.stats.mannwhitneyu on those derived means (the other
+statistics on the means replicates.csv writes).
 """
 import csv
 import json
 import math
+import os
 import sys
 from collections import defaultdict
 
@@ -75,8 +78,38 @@ for frame in (0, 5):
 with open(f"{cmp_dir}/replicates.csv", newline="") as f:
     reps = list(csv.DictReader(f))
 comparison = json.load(open(f"{cmp_dir}/summary.json"))
+
+
+def replicate_mean_speed(folder):
+    # Mean over the run's tracks of >= 10 points of path length over duration, um/min,
+    # derived here from its tracks.csv and run.json (not read from replicates.csv).
+    rec = json.load(open(os.path.join(folder, "run.json")))["input"]["stack"]["calibration"]
+    um, minutes = rec["pixel_size_um"], rec["frame_interval_s"] / 60.0
+    by_track = defaultdict(list)
+    with open(os.path.join(folder, "tracks.csv"), newline="") as f:
+        for r in csv.DictReader(f):
+            by_track[int(r["track_id"])].append((int(r["frame"]), float(r["x"]) * um, float(r["y"]) * um))
+    speeds = []
+    for pts in by_track.values():
+        if len(pts) < 10:
+            continue
+        pts.sort()
+        a = np.array([(x, y) for _, x, y in pts])
+        speeds.append(np.hypot(*np.diff(a, axis=0).T).sum() / ((pts[-1][0] - pts[0][0]) * minutes))
+    return float(np.mean(speeds))
+
+
+base = os.path.dirname(os.path.abspath(comparison["manifest"]))
+derived = {(e["condition"], e["replicate"]): replicate_mean_speed(os.path.join(base, e["path"]))
+           for e in comparison["entries"]}
+speed_rows = [r for r in reps if r["statistic"] == "mean_speed_um_per_min"]
+assert len(speed_rows) == len(derived) > 0, (len(speed_rows), len(derived))
+for r in speed_rows:
+    assert abs(derived[(r["condition"], r["replicate"])] - float(r["mean"])) < 1e-5, r
 for d in comparison["differences"]:
     means = lambda c: [float(r["mean"]) for r in reps if r["statistic"] == d["statistic"] and r["condition"] == c]
+    if d["statistic"] == "mean_speed_um_per_min":
+        means = lambda c: [v for (cond, _), v in sorted(derived.items()) if cond == c]
     x, y = means(d["condition"]), means(d["reference"])
     p = mannwhitneyu(x, y, alternative="two-sided").pvalue
     assert abs(p - d["mann_whitney_p"]) < 1e-6, (d["statistic"], p, d["mann_whitney_p"])

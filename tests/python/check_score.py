@@ -7,7 +7,8 @@ usage: check_score.py SYNTH_DIR RUN_DIR SCORE_JSON
   (maximum matches within the radius, then minimum total distance); TP/FP/FN must agree.
 - TRA and DET recomputed from the AOGM counts with the published weights (Matula et al. 2015:
   NS 5, FN 10, FP 1, ED 1, EA 1.5, EC 1), MOTA from the CLEAR-MOT counts (Bernardin &
-  Stiefelhagen 2008).
+  Stiefelhagen 2008); the edge counts and the CLEAR-MOT counts (identity switches included)
+  are themselves derived here from truth.csv and tracks.csv, not read back.
 - The breaks: reference tracks not mostly tracked (no one result track on 80% of their points)
   and the cause of each event along them (missed, merged with a neighbour, wrong link,
   division missed or spurious), rederived from the same per-frame matching as above; both the
@@ -138,6 +139,71 @@ for tid, pts in by_track.items():
         main_total[max(causes, key=lambda c: (events.count(c), -events.index(c) if c in events else 0))] += 1
 b = s["breaks"]
 assert b["tracks_not_mostly_tracked"] == not_mostly, (b, not_mostly)
+
+
+# AOGM edge counts derived here from truth.csv and tracks.csv with the matching above (not
+# read back from score.json): edges join consecutive points of a track (gaps allowed) and a
+# mother's last point to each daughter's first point (Matula et al. 2015).
+def graph(pts_by_frame):
+    tracks = defaultdict(list)
+    for t, pts in pts_by_frame.items():
+        for tid, parent, _, _ in pts:
+            tracks[tid].append((t, parent))
+    edges = {}
+    for tid, pts in tracks.items():
+        pts.sort()
+        for (a, _), (b2, _) in zip(pts, pts[1:]):
+            edges[((a, tid), (b2, tid))] = "continuation"
+        parent = pts[0][1]
+        if parent in tracks:
+            edges[((max(f for f, _ in tracks[parent]), parent), (pts[0][0], tid))] = "division"
+    return edges
+
+
+reference_edges, result_edges = graph(tp_pts), graph(fp_pts)
+truth_of = {(t, f): (t, tid) for (t, tid), f in found_of.items()}
+covered, delete, change = set(), 0, 0
+for (u, v), kind in result_edges.items():
+    mapped = (truth_of.get(u), truth_of.get(v))
+    if None not in mapped and mapped in reference_edges:
+        covered.add(mapped)
+        change += reference_edges[mapped] != kind
+    else:
+        delete += 1
+derived = dict(edges_to_delete=delete, edges_to_add=len(reference_edges) - len(covered), edges_to_change=change,
+               reference_edges=len(reference_edges), reference_vertices=sum(len(v) for v in tp_pts.values()))
+assert all(c[k] == v for k, v in derived.items()), (derived, c)
+
+# CLEAR-MOT derived here (Bernardin & Stiefelhagen 2008): each reference track keeps last
+# frame's partner while it stays within the radius; the rest are matched one to one; a
+# reference track whose partner changes is an identity switch.
+last, mot_derived = {}, dict(false_negatives=0, false_positives=0, identity_switches=0, matches=0)
+for t in sorted(set(tp_pts) | set(fp_pts)):
+    tr, fo = tp_pts.get(t, []), fp_pts.get(t, [])
+    dist = lambda i, j: np.hypot(tr[i][2] - fo[j][2], tr[i][3] - fo[j][3])
+    pairs, used_f = [], set()
+    for i, p in enumerate(tr):
+        js = [j for j, q in enumerate(fo) if q[0] == last.get(p[0])]
+        if js and js[0] not in used_f and dist(i, js[0]) <= r:
+            pairs.append((i, js[0]))
+            used_f.add(js[0])
+    rest_t = [i for i in range(len(tr)) if i not in {a for a, _ in pairs}]
+    rest_f = [j for j in range(len(fo)) if j not in used_f]
+    if rest_t and rest_f:
+        d = np.array([[dist(i, j) for j in rest_f] for i in rest_t])
+        cost = np.where(d <= r, d, 1e6)
+        pairs += [(rest_t[a], rest_f[b2]) for a, b2 in zip(*linear_sum_assignment(cost)) if cost[a, b2] < 1e6]
+    for i, j in pairs:
+        previous = last.get(tr[i][0])
+        last[tr[i][0]] = fo[j][0]
+        mot_derived["identity_switches"] += previous is not None and previous != fo[j][0]
+    mot_derived["matches"] += len(pairs)
+    mot_derived["false_negatives"] += len(tr) - len(pairs)
+    mot_derived["false_positives"] += len(fo) - len(pairs)
+assert all(mot[k] == v for k, v in mot_derived.items()), (mot_derived, mot)
+reference_points = sum(len(v) for v in tp_pts.values())
+mota = 1 - (mot_derived["false_negatives"] + mot_derived["false_positives"] + mot_derived["identity_switches"]) / reference_points
+assert abs(mota - mot["mota"]) < 1e-9, (mota, mot["mota"])
 assert b["events"] == events_total, (b["events"], events_total)
 assert b["by_main_cause"] == main_total, (b["by_main_cause"], main_total)
 
