@@ -465,12 +465,17 @@ fn resolution_pixel_size(decoder: &mut TiffDecoder) -> Option<f64> {
         tiff::decoder::ifd::Value::Rational(n, d) if d != 0 => n as f64 / d as f64,
         _ => return None,
     };
-    // Common practice: 72, 96 and 300 per inch are display/print defaults written by programs
-    // that know nothing of the optics; they are not a microscope calibration.
-    if unit == 2 && [72.0, 96.0, 300.0].contains(&value) {
+    pixel_size_from_tags(value, unit)
+}
+
+/// The pixel size resolution tags give, except the display and print defaults: 72, 96 and
+/// 300 pixels per inch are written by programs that know nothing of the optics (common
+/// practice), not a microscope calibration.
+fn pixel_size_from_tags(pixels_per_unit: f64, unit: u16) -> Option<f64> {
+    if unit == 2 && [72.0, 96.0, 300.0].contains(&pixels_per_unit) {
         return None;
     }
-    pixel_size_from_resolution(value, unit)
+    pixel_size_from_resolution(pixels_per_unit, unit)
 }
 
 fn calibrate(ome: Option<&OmePixels>, pixel_size_from_tags: Option<f64>) -> Calibration {
@@ -589,5 +594,47 @@ fn invert(p: Pixels) -> Pixels {
         Pixels::U16(v) => Pixels::U16(v.into_iter().map(|x| u16::MAX - x).collect()),
         Pixels::U32(v) => Pixels::U32(v.into_iter().map(|x| u32::MAX - x).collect()),
         Pixels::F32(v) => Pixels::F32(v.into_iter().map(|x| -x).collect()),
+    }
+}
+
+#[cfg(test)]
+mod calibration_tests {
+    use super::*;
+
+    fn ome(pixel_um: Option<f64>, interval_s: Option<f64>) -> OmePixels {
+        let size = pixel_um.map_or(String::new(), |p| {
+            format!(" PhysicalSizeX=\"{p}\" PhysicalSizeY=\"{p}\"")
+        });
+        let time = interval_s.map_or(String::new(), |t| format!(" TimeIncrement=\"{t}\""));
+        let xml = format!(
+            "<?xml version=\"1.0\"?><OME xmlns=\"http://www.openmicroscopy.org/Schemas/OME/2016-06\"><Image ID=\"Image:0\"><Pixels ID=\"Pixels:0\" DimensionOrder=\"XYCZT\" Type=\"uint16\" SizeX=\"8\" SizeY=\"8\" SizeZ=\"1\" SizeC=\"1\" SizeT=\"2\"{size}{time}><Channel ID=\"Channel:0:0\" SamplesPerPixel=\"1\"/></Pixels></Image></OME>"
+        );
+        OmePixels::parse(&xml).unwrap().unwrap()
+    }
+
+    #[test]
+    fn ome_xml_wins_over_resolution_tags_and_screen_defaults_are_no_calibration() {
+        // Source: the OME data model (PhysicalSizeX in µm is the calibration of record) over
+        // TIFF 6.0 resolution tags; 72/96/300 per inch are display defaults (common practice).
+        let c = calibrate(Some(&ome(Some(0.65), Some(300.0))), Some(2.0));
+        assert_eq!(
+            (c.pixel_size_um, c.pixel_size_source),
+            (Some(0.65), CalibrationSource::OmeXml)
+        );
+        assert_eq!(c.frame_interval_s, Some(300.0));
+        let c = calibrate(Some(&ome(None, None)), Some(2.0));
+        assert_eq!(
+            (c.pixel_size_um, c.pixel_size_source),
+            (Some(2.0), CalibrationSource::ResolutionTags)
+        );
+        assert_eq!(c.frame_interval_s, None);
+        let c = calibrate(None, None);
+        assert_eq!(c.pixel_size_um, None);
+        for dpi in [72.0, 96.0, 300.0] {
+            assert_eq!(pixel_size_from_tags(dpi, 2), None, "{dpi} per inch");
+        }
+        // 25 400 per inch is 1 µm (definition of the inch); 300 per centimetre is not a default.
+        assert_eq!(pixel_size_from_tags(25_400.0, 2), Some(1.0));
+        assert!((pixel_size_from_tags(300.0, 3).unwrap() - 10_000.0 / 300.0).abs() < 1e-12);
     }
 }
