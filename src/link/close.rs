@@ -298,4 +298,54 @@ mod tests {
             assert!(ys.iter().all(|&y| y == ys[0]), "track {id} changes side: {ys:?}");
         }
     }
+
+    #[test]
+    fn a_chain_of_gaps_joins_into_one_track_and_competing_ends_go_to_the_nearer() {
+        // Hand-built, per the LAP of Jaqaman et al. (2008): one nucleus at +2 px/frame missed
+        // at frames 3 and 7 gives three segments; one assignment joins both gaps (a chain), so
+        // one track remains. Then two ends compete for one start after a gap: the start lies
+        // 1 px from where the first is predicted and 9 px from the second, so the first takes
+        // it and the second stays an end.
+        let params = LinkParams::for_diameter(14.0);
+        let frames: Vec<Vec<Detection>> = (0..11)
+            .map(|t| {
+                if t == 3 || t == 7 {
+                    Vec::new()
+                } else {
+                    vec![detection(t, 1, 10.0 + 2.0 * t as f64, 50.0)]
+                }
+            })
+            .collect();
+        let mut points = link_all(frames, &params);
+        assert_eq!(
+            points
+                .iter()
+                .map(|p| p.track_id)
+                .collect::<std::collections::BTreeSet<_>>()
+                .len(),
+            3
+        );
+        assert_eq!(close_gaps(&mut points, &params).len(), 2);
+        assert!(points.iter().all(|p| p.track_id == points[0].track_id));
+        // Two still nuclei 10 px apart end at frame 4; one start at frame 6, 1 px from the first.
+        let frames: Vec<Vec<Detection>> = (0..9)
+            .map(|t| match t {
+                0..=4 => vec![detection(t, 1, 30.0, 50.0), detection(t, 2, 40.0, 50.0)],
+                5 => Vec::new(),
+                _ => vec![detection(t, 1, 31.0, 50.0)],
+            })
+            .collect();
+        let mut points = link_all(frames, &params);
+        let joins = close_gaps(&mut points, &params);
+        assert_eq!(joins.len(), 1, "{joins:?}");
+        let at = |frame: usize, x: f64| {
+            points
+                .iter()
+                .find(|p| p.detection.frame == frame && p.detection.x == x)
+                .unwrap()
+                .track_id
+        };
+        assert_eq!(at(6, 31.0), at(4, 30.0));
+        assert_ne!(at(6, 31.0), at(4, 40.0));
+    }
 }
