@@ -258,3 +258,25 @@ fn a_run_record_of_another_version_is_not_used_and_the_units_say_so() {
     let e = caravan::analyze::table::read_tracks(dir.path(), CalibrationOverride::default()).unwrap_err();
     assert!(e.to_string().contains("run.json"), "{e}");
 }
+
+#[test]
+fn the_analysis_page_shows_a_run_warning_with_markup_as_text() {
+    // Source: the HTML standard's escaping of < and > in text. A run folder whose run.json
+    // holds a warning with markup (as a file name in a warning could): the analysis page
+    // shows it escaped, never as a tag.
+    let mut p = SynthParams::new(Scenario::Dish, 256, 256, 12);
+    p.nuclei = 30;
+    p.seed = 41;
+    let scene = track_synthetic(&p, LinkOptions::default());
+    let record_path = scene.run.join("run.json");
+    let mut record: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&record_path).unwrap()).unwrap();
+    record["warnings"] = serde_json::json!(["frame <script>alert(1)</script> was odd"]);
+    std::fs::write(&record_path, record.to_string()).unwrap();
+    analyse(&scene.run);
+    let page = std::fs::read_to_string(scene.run.join("analysis/report.html")).unwrap();
+    assert!(
+        page.contains("frame &lt;script&gt;alert(1)&lt;/script&gt; was odd"),
+        "escaped"
+    );
+    assert!(!page.contains("<script>alert(1)"), "no raw markup from the warning");
+}
