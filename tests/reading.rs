@@ -280,3 +280,79 @@ fn bombs_and_truncations_are_errors_not_panics() {
         .to_string()
         .contains("is not a TIFF file"));
 }
+
+/// A little-endian uint16 TIFF of `pages` (NewSubfileType, PhotometricInterpretation, 3x2
+/// pixels), each page one uncompressed strip, IFDs chained in order; built by hand after
+/// TIFF 6.0 (the layout of `minimal_tiff`, plus tag 254 and one IFD per page).
+fn tiff_pages(pages: &[(u32, u16, [u16; 6])]) -> Vec<u8> {
+    const ENTRIES: usize = 11;
+    let ifd_len = 2 + ENTRIES * 12 + 4;
+    let page_len = ifd_len + 12; // the IFD, then its 6 pixels
+    let mut b: Vec<u8> = b"II".to_vec();
+    b.extend(42u16.to_le_bytes());
+    b.extend(8u32.to_le_bytes());
+    for (k, &(subfile, photometric, pixels)) in pages.iter().enumerate() {
+        let ifd = 8 + k * page_len;
+        let strip = (ifd + ifd_len) as u32;
+        let entries: [(u16, u16, u32); ENTRIES] = [
+            (254, 4, subfile),
+            (256, 3, 3),
+            (257, 3, 2),
+            (258, 3, 16),
+            (259, 3, 1),
+            (262, 3, photometric as u32),
+            (273, 4, strip),
+            (277, 3, 1),
+            (278, 3, 2),
+            (279, 4, 12),
+            (284, 3, 1),
+        ];
+        b.extend((ENTRIES as u16).to_le_bytes());
+        for (tag, ty, value) in entries {
+            b.extend(tag.to_le_bytes());
+            b.extend(ty.to_le_bytes());
+            b.extend(1u32.to_le_bytes());
+            if ty == 3 {
+                b.extend((value as u16).to_le_bytes());
+                b.extend([0, 0]);
+            } else {
+                b.extend(value.to_le_bytes());
+            }
+        }
+        let next = if k + 1 < pages.len() {
+            (ifd + page_len) as u32
+        } else {
+            0
+        };
+        b.extend(next.to_le_bytes());
+        for v in pixels {
+            b.extend(v.to_le_bytes());
+        }
+    }
+    b
+}
+
+#[test]
+fn white_is_zero_pages_are_inverted_and_reduced_resolution_pages_skipped() {
+    // Source: TIFF 6.0, PhotometricInterpretation (tag 262): 0 = WhiteIsZero, so a stored v
+    // is the brightness 65535 − v in BlackIsZero terms; NewSubfileType (tag 254) bit 0 marks a
+    // reduced-resolution version of another page, which is not a frame of the recording.
+    let dir = tempfile::tempdir().unwrap();
+    let pixels = [1u16, 2, 3, 256, 513, 65535];
+    let p = dir.path().join("white.tif");
+    std::fs::write(&p, tiff_pages(&[(0, 0, pixels), (0, 0, pixels)])).unwrap();
+    let mut s = Stack::open(&p, &OpenOptions::default()).unwrap();
+    assert_eq!(s.info().frames, 2);
+    assert_eq!(
+        s.read_frame(1).unwrap().pixels,
+        Pixels::U16(vec![65534, 65533, 65532, 65279, 65022, 0])
+    );
+    // Frame, its reduced-resolution copy, frame: two frames, the second the third page.
+    let second = [7u16, 8, 9, 10, 11, 12];
+    let p = dir.path().join("pyramid.tif");
+    std::fs::write(&p, tiff_pages(&[(0, 1, pixels), (1, 1, [0; 6]), (0, 1, second)])).unwrap();
+    let mut s = Stack::open(&p, &OpenOptions::default()).unwrap();
+    assert_eq!(s.info().frames, 2);
+    assert_eq!(s.read_frame(0).unwrap().pixels, Pixels::U16(pixels.to_vec()));
+    assert_eq!(s.read_frame(1).unwrap().pixels, Pixels::U16(second.to_vec()));
+}

@@ -208,7 +208,9 @@ impl TiffStack {
                 "decoded fewer samples than the page declares",
             ));
         }
-        Ok(if self.white_is_zero { invert(pixels) } else { pixels })
+        // The tiff crate (0.11) already turns WhiteIsZero samples into BlackIsZero ones as it
+        // decodes; only the lenient LZW path above, which decodes on its own, inverts here.
+        Ok(pixels)
     }
 }
 
@@ -587,7 +589,8 @@ fn max_pixels(a: Pixels, b: Pixels) -> Pixels {
     }
 }
 
-/// Photometric WhiteIsZero (TIFF 6.0 tag 262 = 0): stored 0 is white, so flip to BlackIsZero.
+/// Photometric WhiteIsZero (TIFF 6.0 tag 262 = 0): stored 0 is white, so flip to BlackIsZero
+/// (for the lenient LZW decoder; the tiff crate does it itself).
 fn invert(p: Pixels) -> Pixels {
     match p {
         Pixels::U8(v) => Pixels::U8(v.into_iter().map(|x| u8::MAX - x).collect()),
