@@ -190,12 +190,19 @@ pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Ru
             ),
         ));
     }
+    // Each shard's log is read once: its first and last frames checked against the recording
+    // before anything is written, then replayed.
+    let mut logs = Vec::with_capacity(shards.len());
     for (d, shard) in &shards {
         let log = d.join("frames.jsonl");
         let records = crate::checkpoint::read_frame_log(&log, shard.frames.0)?;
-        let first_and_last = [records.first(), records.last()];
-        let ends: Vec<FrameRecord> = first_and_last.into_iter().flatten().cloned().collect();
+        let ends: Vec<FrameRecord> = [records.first(), records.last()]
+            .into_iter()
+            .flatten()
+            .cloned()
+            .collect();
         crate::checkpoint::verify_logged_frames(stack, &ends, &log, "segment the shard again from this recording")?;
+        logs.push(records);
     }
     let folder = crate::run_folder::RunFolder::open(dir, outputs.replace)?;
     let started = Instant::now();
@@ -205,8 +212,8 @@ pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Ru
         (Some(_), Some(_)) => Some(OutlineSpool::create(&work)?),
         _ => None,
     };
-    for (d, shard) in &shards {
-        for record in crate::checkpoint::read_frame_log(&d.join("frames.jsonl"), shard.frames.0)? {
+    for ((d, _), records) in shards.iter().zip(logs) {
+        for record in records {
             pass.take(record)?;
         }
         if let Some(s) = spool.as_mut() {

@@ -14,16 +14,21 @@ use common::track_synthetic;
 use std::path::Path;
 use std::process::Command;
 
-fn analyse(run: &Path) -> serde_json::Value {
-    let out = run.join("analysis");
+/// Analyses `input` with the defaults into `out`.
+fn analyse_into(input: &Path, out: &Path) -> caravan::analyze::run::AnalysisRun {
     run_analysis(
-        run,
+        input,
         CalibrationOverride::default(),
         &Filters::default(),
         &AnalysisOptions::default(),
-        &out,
+        out,
     )
-    .unwrap();
+    .unwrap()
+}
+
+fn analyse(run: &Path) -> serde_json::Value {
+    let out = run.join("analysis");
+    analyse_into(run, &out);
     serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap()
 }
 
@@ -74,14 +79,7 @@ fn a_hand_written_csv_gives_hand_derived_statistics() {
     let csv = dir.path().join("model_output.csv");
     straight_tracks_csv(&csv, 4, 2.0);
     let out = dir.path().join("a");
-    let run = run_analysis(
-        &csv,
-        CalibrationOverride::default(),
-        &Filters::default(),
-        &AnalysisOptions::default(),
-        &out,
-    )
-    .unwrap();
+    let run = analyse_into(&csv, &out);
     let s = &run.summary;
     assert_eq!(run.analysis.units.length.as_str(), "um");
     assert!((s["mean_speed_um_per_min"]["mean"].as_f64().unwrap() - 1.0).abs() < 1e-12);
@@ -106,14 +104,7 @@ fn the_analysis_page_shows_a_path_with_markup_as_text() {
     let csv = dir.path().join("cells <b>&<b> more.csv");
     straight_tracks_csv(&csv, 3, 2.0);
     let out = dir.path().join("a");
-    run_analysis(
-        &csv,
-        CalibrationOverride::default(),
-        &Filters::default(),
-        &AnalysisOptions::default(),
-        &out,
-    )
-    .unwrap();
+    analyse_into(&csv, &out);
     let page = std::fs::read_to_string(out.join("report.html")).unwrap();
     assert!(
         page.contains("cells &lt;b&gt;&amp;&lt;b&gt; more.csv"),

@@ -123,30 +123,26 @@ fn seeds_and_components_match_scikit_image() {
         label_components(&m, w, h).1 as i64,
         r["mask_components"].as_i64().unwrap()
     );
+    // Seed counts of `values` inside `mask` for every h of a fixture table `h -> count`.
+    let check_seeds = |values: &[f32], mask: &[bool], table: &str| {
+        let counts = r[table].as_object().unwrap();
+        for (key, count) in counts {
+            let hv: f64 = key.parse().unwrap();
+            let seeds = h_maxima(values, mask, w, h, hv);
+            assert_eq!(
+                label_components(&seeds, w, h).1 as i64,
+                count.as_i64().unwrap(),
+                "{table}, h={hv}"
+            );
+        }
+        counts.len()
+    };
     // Source: skimage.morphology.h_maxima(edt, h), labelled with connectivity 2.
-    for (key, count) in r["hmaxima_seed_counts"].as_object().unwrap() {
-        let hv: f64 = key.parse().unwrap();
-        let seeds = h_maxima(&d, &m, w, h, hv);
-        assert_eq!(
-            label_components(&seeds, w, h).1 as i64,
-            count.as_i64().unwrap(),
-            "h={hv}"
-        );
-    }
+    check_seeds(&d, &m, "hmaxima_seed_counts");
     // Source: skimage.morphology.h_maxima(blobs_float, h), labelled with connectivity 2: 107,
     // 86, 5 and 4 seeds for h = 1, 5, 10 and 100 (the ripple's maxima go first, then the
     // faintest blob), so a wrong h would show.
     let blobs: Vec<f32> = floats(&r, "blobs_float").iter().map(|&v| v as f32).collect();
     let everywhere = vec![true; blobs.len()];
-    let counts = r["hmaxima_blobs_seed_counts"].as_object().unwrap();
-    assert_eq!(counts.len(), 4);
-    for (key, count) in counts {
-        let hv: f64 = key.parse().unwrap();
-        let seeds = h_maxima(&blobs, &everywhere, w, h, hv);
-        assert_eq!(
-            label_components(&seeds, w, h).1 as i64,
-            count.as_i64().unwrap(),
-            "blobs, h={hv}"
-        );
-    }
+    assert_eq!(check_seeds(&blobs, &everywhere, "hmaxima_blobs_seed_counts"), 4);
 }

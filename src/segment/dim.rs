@@ -46,8 +46,7 @@ pub(super) fn add_dim_nuclei(
             continue;
         }
         next += 1;
-        let pixels = flood(start, next, &mut region, mask, values, low, (w, h));
-        let touches = pixels.iter().any(|&p| neighbours8(p, w, h).any(|q| mask[q]));
+        let (pixels, touches) = flood(start, next, &mut region, mask, values, low, (w, h));
         if !touches {
             add.extend(pixels);
         } else if pixels
@@ -84,7 +83,7 @@ fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
 }
 
 /// Labels with `id` the 8-connected region above `low` and outside `mask` that holds `start`;
-/// returns its pixels.
+/// returns its pixels and whether it touches the mask.
 fn flood(
     start: usize,
     id: u32,
@@ -93,15 +92,18 @@ fn flood(
     values: &[f32],
     low: f32,
     (w, h): (usize, usize),
-) -> Vec<usize> {
+) -> (Vec<usize>, bool) {
     region[start] = id;
-    grow(start, (w, h), |q| {
+    let mut touches = false;
+    let pixels = grow(start, (w, h), |q| {
+        touches |= mask[q];
         let take = region[q] == 0 && !mask[q] && values[q] > low;
         if take {
             region[q] = id;
         }
         take
-    })
+    });
+    (pixels, touches)
 }
 
 /// The 8-connected pixels reached from `start` through pixels that `take` accepts, `start`
