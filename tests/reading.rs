@@ -356,3 +356,222 @@ fn white_is_zero_pages_are_inverted_and_reduced_resolution_pages_skipped() {
     assert_eq!(s.read_frame(0).unwrap().pixels, Pixels::U16(pixels.to_vec()));
     assert_eq!(s.read_frame(1).unwrap().pixels, Pixels::U16(second.to_vec()));
 }
+
+/// TIFF LZW (TIFF 6.0 §13): MSB-first codes, Clear (256) first, End of Information (257)
+/// last when `end_code`, new entries from 258, codes one bit wider once the encoder's next
+/// entry reaches 512, 1024 or 2048 (which a decoder, one entry behind, meets as TIFF's "early
+/// change"). Written here from
+/// the specification so that the end code can be left out; the tiles it writes are checked
+/// against the `tiff` crate's own decoder before they are trusted.
+fn tiff_lzw(data: &[u8], end_code: bool) -> Vec<u8> {
+    struct Bits {
+        out: Vec<u8>,
+        acc: u64,
+        n: u32,
+    }
+    impl Bits {
+        fn put(&mut self, code: u16, width: u32) {
+            self.acc = (self.acc << width) | code as u64;
+            self.n += width;
+            while self.n >= 8 {
+                self.out.push((self.acc >> (self.n - 8)) as u8);
+                self.n -= 8;
+            }
+        }
+    }
+    let mut bits = Bits {
+        out: Vec::new(),
+        acc: 0,
+        n: 0,
+    };
+    let mut table: std::collections::HashMap<(u16, u8), u16> = Default::default();
+    let (mut next, mut width) = (258u16, 9u32);
+    bits.put(256, width);
+    let mut grow = |next: &mut u16, width: &mut u32| {
+        *next += 1;
+        if *next == 1 << *width {
+            *width += 1;
+        }
+    };
+    let mut current: Option<u16> = None;
+    for &byte in data {
+        current = Some(match current {
+            None => byte as u16,
+            Some(prefix) => match table.get(&(prefix, byte)) {
+                Some(&code) => code,
+                None => {
+                    bits.put(prefix, width);
+                    table.insert((prefix, byte), next);
+                    grow(&mut next, &mut width);
+                    assert!(next < 4094, "test tiles stay below the table's size");
+                    byte as u16
+                }
+            },
+        });
+    }
+    if let Some(code) = current {
+        bits.put(code, width);
+        grow(&mut next, &mut width);
+    }
+    if end_code {
+        bits.put(257, width);
+    }
+    if bits.n > 0 {
+        let pad = 8 - bits.n;
+        bits.put(0, pad);
+    }
+    bits.out
+}
+
+/// A little-endian uint16 TIFF whose pages are LZW-compressed 16 x 16 tiles (TIFF 6.0 tags
+/// 322–325), with the given predictor (1 none, 2 horizontal differencing) and photometric
+/// interpretation; built by hand so that the tiles' end codes can be left out and the tiles
+/// of the bottom row can hold only their rows inside the image (`short_edge`).
+fn lzw_tiled_tiff(
+    pages: &[Vec<u16>],
+    (width, height): (usize, usize),
+    (predictor, photometric): (u16, u16),
+    (end_code, short_edge): (bool, bool),
+) -> Vec<u8> {
+    const TILE: usize = 16;
+    let (across, down) = (width.div_ceil(TILE), height.div_ceil(TILE));
+    let mut b: Vec<u8> = b"II".to_vec();
+    b.extend(42u16.to_le_bytes());
+    let mut link_at = b.len();
+    b.extend(0u32.to_le_bytes());
+    for page in pages {
+        let (mut offsets, mut counts) = (Vec::new(), Vec::new());
+        for tile in 0..across * down {
+            let (x0, y0) = ((tile % across) * TILE, (tile / across) * TILE);
+            let mut raw = Vec::with_capacity(TILE * TILE * 2);
+            let rows = if short_edge { TILE.min(height - y0) } else { TILE };
+            for y in y0..y0 + rows {
+                let mut previous = 0u16;
+                for x in x0..x0 + TILE {
+                    let v = if x < width && y < height {
+                        page[y * width + x]
+                    } else {
+                        0
+                    };
+                    let stored = if predictor == 2 { v.wrapping_sub(previous) } else { v };
+                    previous = v;
+                    raw.extend(stored.to_le_bytes());
+                }
+            }
+            let packed = tiff_lzw(&raw, end_code);
+            offsets.push(b.len() as u32);
+            counts.push(packed.len() as u32);
+            b.extend(packed);
+            if b.len() % 2 == 1 {
+                b.push(0);
+            }
+        }
+        let arrays = b.len() as u32;
+        for v in offsets.iter().chain(&counts) {
+            b.extend(v.to_le_bytes());
+        }
+        let tiles = offsets.len() as u32;
+        let entries: [(u16, u16, u32, u32); 12] = [
+            (256, 3, 1, width as u32),
+            (257, 3, 1, height as u32),
+            (258, 3, 1, 16),
+            (259, 3, 1, 5),
+            (262, 3, 1, photometric as u32),
+            (277, 3, 1, 1),
+            (284, 3, 1, 1),
+            (317, 3, 1, predictor as u32),
+            (322, 3, 1, TILE as u32),
+            (323, 3, 1, TILE as u32),
+            (324, 4, tiles, if tiles == 1 { offsets[0] } else { arrays }),
+            (325, 4, tiles, if tiles == 1 { counts[0] } else { arrays + 4 * tiles }),
+        ];
+        let ifd = b.len() as u32;
+        b[link_at..link_at + 4].copy_from_slice(&ifd.to_le_bytes());
+        b.extend((entries.len() as u16).to_le_bytes());
+        for (tag, ty, count, value) in entries {
+            b.extend(tag.to_le_bytes());
+            b.extend(ty.to_le_bytes());
+            b.extend(count.to_le_bytes());
+            if ty == 3 {
+                b.extend((value as u16).to_le_bytes());
+                b.extend([0, 0]);
+            } else {
+                b.extend(value.to_le_bytes());
+            }
+        }
+        link_at = b.len();
+        b.extend(0u32.to_le_bytes());
+    }
+    b
+}
+
+/// Every frame of `path` as the `tiff` crate alone decodes it, or its first error.
+fn tiff_crate_frames(path: &Path) -> Result<Vec<Vec<u16>>, String> {
+    let mut d = tiff::decoder::Decoder::new(std::fs::File::open(path).unwrap()).map_err(|e| e.to_string())?;
+    let mut frames = Vec::new();
+    loop {
+        match d.read_image().map_err(|e| e.to_string())? {
+            tiff::decoder::DecodingResult::U16(v) => frames.push(v),
+            _ => return Err("not uint16".into()),
+        }
+        if !d.more_images() {
+            return Ok(frames);
+        }
+        d.next_image().map_err(|e| e.to_string())?;
+    }
+}
+
+#[test]
+fn lzw_tiles_without_their_end_code_are_read_leniently() {
+    // Source: TIFF 6.0 §13 requires each LZW strip or tile to end with the End of Information
+    // code, and §15 each tile to hold TileWidth x TileLength samples even at the image's edge;
+    // some writers store only an edge tile's rows inside the image and leave the end code
+    // out, and tolerant readers decode what is there. The tiles are first checked whole, with
+    // their end codes, against the `tiff` crate's own decoder (the outside reference for the
+    // hand-written encoder); short and without end codes the `tiff` crate refuses them ("no
+    // lzw end code found"), and Caravan must read the same pixels through its lenient path,
+    // with predictors undone (TIFF 6.0 §14) and WhiteIsZero inverted once (tag 262).
+    let (width, height) = (37, 21); // three tiles across, two down, partly outside the image
+    let mut rng = 12345u64;
+    let pages: Vec<Vec<u16>> = (0..2)
+        .map(|t| {
+            (0..width * height)
+                .map(|i| {
+                    rng = rng.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                    // a smooth ramp with noise, so that both predictors meet real runs
+                    (1000 + 37 * t + (i % width) * 20 + (rng >> 58) as usize) as u16
+                })
+                .collect()
+        })
+        .collect();
+    let dir = tempfile::tempdir().unwrap();
+    for predictor in [1u16, 2] {
+        let whole = dir.path().join(format!("whole{predictor}.tif"));
+        let tiff =
+            |end_code, short_edge| lzw_tiled_tiff(&pages, (width, height), (predictor, 1), (end_code, short_edge));
+        std::fs::write(&whole, tiff(true, false)).unwrap();
+        assert_eq!(
+            tiff_crate_frames(&whole).unwrap(),
+            pages,
+            "the encoder agrees with the tiff crate"
+        );
+        let cut = dir.path().join(format!("cut{predictor}.tif"));
+        std::fs::write(&cut, tiff(false, true)).unwrap();
+        let refused = tiff_crate_frames(&cut).unwrap_err();
+        assert!(refused.contains("no lzw end code"), "{refused}");
+        let mut s = Stack::open(&cut, &OpenOptions::default()).unwrap();
+        assert_eq!(s.info().frames, 2);
+        for (t, page) in pages.iter().enumerate() {
+            assert_eq!(
+                s.read_frame(t).unwrap().pixels,
+                Pixels::U16(page.clone()),
+                "predictor {predictor}, frame {t}"
+            );
+        }
+    }
+    let white = dir.path().join("white.tif");
+    std::fs::write(&white, lzw_tiled_tiff(&pages, (width, height), (2, 0), (false, true))).unwrap();
+    let mut s = Stack::open(&white, &OpenOptions::default()).unwrap();
+    let inverted: Vec<u16> = pages[1].iter().map(|v| 65535 - v).collect();
+    assert_eq!(s.read_frame(1).unwrap().pixels, Pixels::U16(inverted));
+}

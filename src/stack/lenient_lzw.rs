@@ -1,7 +1,10 @@
-//! A lenient decoder for LZW-compressed tiles whose streams end without the end-of-information
-//! code. Some writers omit it (TIFF 6.0 §13 requires it); the `tiff` crate then stops with
-//! "no lzw end code found", while tolerant readers decode what is there. Only single-sample
-//! integer pages are handled here, which is where we have met such files.
+//! A lenient decoder for LZW-compressed tiles whose streams end before the tile is full, often
+//! without the end-of-information code: some writers store only the rows of an edge tile that
+//! lie inside the image and leave the end code out (TIFF 6.0 §13 and §15 ask for both). The
+//! `tiff` crate (0.11) then stops with "no lzw end code found", while tolerant readers decode
+//! what is there; a missing end code alone, on a full tile, the `tiff` crate reads itself.
+//! Only single-sample integer pages are handled here, which is where we have met such files
+//! (`tests/reading.rs` builds one by hand).
 
 use super::Pixels;
 use crate::error::{Error, Result};
