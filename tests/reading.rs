@@ -387,7 +387,7 @@ fn tiff_lzw(data: &[u8], end_code: bool) -> Vec<u8> {
     let mut table: std::collections::HashMap<(u16, u8), u16> = Default::default();
     let (mut next, mut width) = (258u16, 9u32);
     bits.put(256, width);
-    let mut grow = |next: &mut u16, width: &mut u32| {
+    let grow = |next: &mut u16, width: &mut u32| {
         *next += 1;
         if *next == 1 << *width {
             *width += 1;
