@@ -56,8 +56,19 @@ pub struct DivisionRules {
     /// so the size bounds are wide and the mother-to-typical bound is not applied.
     pub mitotic_daughter_area_ratio: (f64, f64),
     /// For a mother seen entering mitosis: summed daughter total intensity over hers, allowed
-    /// range (wider for the same reason).
+    /// range (wider for the same reason). For the upper bound her figure is the larger of her
+    /// total before mitosis and during it: a dim nucleus is cut small by the threshold, her
+    /// brighter mitotic figure less so, and the daughters share that same DNA.
     pub mitotic_intensity_ratio: (f64, f64),
+    /// For a mother seen entering mitosis: the larger daughter's area over the smaller's, at
+    /// most. Sisters are born about equal, but in a crowded field one is often cut small where
+    /// she touches a neighbour or lies dim; the brightening is the evidence instead.
+    #[serde(default = "default_mitotic_sister_area_ratio")]
+    pub mitotic_sister_area_ratio: f64,
+}
+
+fn default_mitotic_sister_area_ratio() -> f64 {
+    DivisionRules::default().mitotic_sister_area_ratio
 }
 
 impl Default for DivisionRules {
@@ -72,6 +83,7 @@ impl Default for DivisionRules {
             min_daughter_points: 3,
             mitotic_daughter_area_ratio: (0.25, 1.6),
             mitotic_intensity_ratio: (0.45, 2.0),
+            mitotic_sister_area_ratio: 3.0,
         }
     }
 }
@@ -232,6 +244,8 @@ struct MotherFigures {
     earlier_area: Option<f64>,
     /// Whether she brightened as for mitosis.
     mitotic: bool,
+    /// Her median total intensity over the brightened points (0 where she did not brighten).
+    mitotic_intensity: f64,
 }
 
 /// The rise in mean intensity that marks a mother as mitotic (our own bound: chromatin
@@ -256,6 +270,7 @@ impl MotherFigures {
                 .then(|| median_of(earlier, |d| d.area_px))
                 .flatten(),
             mitotic: onset < history.len(),
+            mitotic_intensity: median_of(&history[onset..], |d| d.total_intensity).unwrap_or(0.0),
         }
     }
 }
@@ -313,11 +328,21 @@ fn division_cost(
     let off2 = (mid[0] - predicted[0]).powi(2) + (mid[1] - predicted[1]).powi(2);
     let half_apart2 = ((a.x - b.x).powi(2) + (a.y - b.y).powi(2)) / 4.0;
     let within = |v: f64, (lo, hi): (f64, f64)| v >= lo && v <= hi;
-    let (area_ratio, intensity_ratio) = if mother.mitotic {
-        (rules.mitotic_daughter_area_ratio, rules.mitotic_intensity_ratio)
+    let (area_ratio, intensity_ratio, sister_ratio) = if mother.mitotic {
+        let r = rules;
+        (
+            r.mitotic_daughter_area_ratio,
+            r.mitotic_intensity_ratio,
+            r.mitotic_sister_area_ratio,
+        )
     } else {
-        (rules.daughter_area_ratio, rules.intensity_ratio)
+        (
+            rules.daughter_area_ratio,
+            rules.intensity_ratio,
+            rules.sister_area_ratio,
+        )
     };
+    let summed = a.total_intensity + b.total_intensity;
     let ok = off2 < half_apart2
         && off2 <= (0.5 * params.max_step_px).powi(2)
         && mother.area > 0.0
@@ -327,11 +352,9 @@ fn division_cost(
             .is_none_or(|e| mother.area <= rules.mother_growth_ratio * e)
         && within(a.area_px / mother.area, area_ratio)
         && within(b.area_px / mother.area, area_ratio)
-        && a.area_px.max(b.area_px) <= rules.sister_area_ratio * a.area_px.min(b.area_px)
-        && within(
-            (a.total_intensity + b.total_intensity) / mother.intensity,
-            intensity_ratio,
-        );
+        && a.area_px.max(b.area_px) <= sister_ratio * a.area_px.min(b.area_px)
+        && summed / mother.intensity >= intensity_ratio.0
+        && summed / mother.intensity.max(mother.mitotic_intensity) <= intensity_ratio.1;
     ok.then_some(off2)
 }
 
@@ -456,6 +479,12 @@ mod tests {
     /// 110 px at mean intensity `last_mean`, then two daughters of area 95 (mean 500) 4 px
     /// either side of her path.
     fn mitosis_movie(last_mean: f64) -> Vec<TrackedDetection> {
+        mitosis_movie_with((110.0, last_mean), [(95.0, 500.0); 2])
+    }
+
+    /// [`mitosis_movie`] with the mother's last two points `(area, mean)` and the daughters'
+    /// `(area, mean)`.
+    fn mitosis_movie_with(last: (f64, f64), daughters: [(f64, f64); 2]) -> Vec<TrackedDetection> {
         let with = |d: Detection, area: f64, mean: f64| Detection {
             area_px: area,
             mean_intensity: mean,
@@ -468,11 +497,12 @@ mod tests {
             let x = 30.0 + t as f64;
             let frame = match t {
                 0..=3 => vec![with(nucleus(t, 1, x, 50.0, 100.0), 100.0, 500.0)],
-                4 | 5 => vec![with(nucleus(t, 1, x, 50.0, 110.0), 110.0, last_mean)],
+                4 | 5 => vec![with(nucleus(t, 1, x, 50.0, last.0), last.0, last.1)],
                 _ => (0..2)
                     .map(|k| {
                         let y = 50.0 + if k == 0 { -4.0 } else { 4.0 } * (1.0 + 0.1 * (t - 6) as f64);
-                        with(nucleus(t, k + 1, x, y, 95.0), 95.0, 500.0)
+                        let (area, mean) = daughters[k as usize];
+                        with(nucleus(t, k + 1, x, y, area), area, mean)
                     })
                     .collect(),
             };
@@ -495,6 +525,35 @@ mod tests {
         assert_eq!(events.len(), 1, "{events:?}");
         assert_eq!(events[0].frame, 5);
         let mut points = mitosis_movie(500.0);
+        assert!(detect_divisions(&mut points, &params, &rules).is_empty());
+    }
+
+    #[test]
+    fn a_mitotic_mother_may_have_unequal_daughters_within_three_to_one() {
+        // Source: construction (DivisionRules::mitotic_sister_area_ratio = 3). A mother who
+        // brightened 1.4x: daughters of 120 and 48 px (2.5 : 1, beyond the 2 : 1 of a mother
+        // who did not) are hers; daughters of 130 and 40 px (3.25 : 1) are not.
+        let params = LinkParams::for_diameter(14.0);
+        let rules = DivisionRules::default();
+        let mut points = mitosis_movie_with((110.0, 700.0), [(120.0, 500.0), (48.0, 500.0)]);
+        assert_eq!(detect_divisions(&mut points, &params, &rules).len(), 1);
+        let mut points = mitosis_movie_with((110.0, 700.0), [(130.0, 500.0), (40.0, 500.0)]);
+        assert!(detect_divisions(&mut points, &params, &rules).is_empty());
+    }
+
+    #[test]
+    fn a_dim_mother_is_held_to_her_brighter_mitotic_figure_too() {
+        // Source: construction (DivisionRules::mitotic_intensity_ratio, upper bound 2). Before
+        // mitosis she holds 100 px x 500 = 50 000; her daughters 2 x 110 px x 550 = 121 000,
+        // 2.42x that. As a mitotic figure of 150 px x 700 = 105 000 (cut less small by the
+        // threshold) the daughters hold 1.15x her: a division. With a figure of 100 px x 600
+        // = 60 000 they hold 2.02x the larger of her two totals: not one.
+        let params = LinkParams::for_diameter(14.0);
+        let rules = DivisionRules::default();
+        let daughters = [(110.0, 550.0); 2];
+        let mut points = mitosis_movie_with((150.0, 700.0), daughters);
+        assert_eq!(detect_divisions(&mut points, &params, &rules).len(), 1);
+        let mut points = mitosis_movie_with((100.0, 600.0), daughters);
         assert!(detect_divisions(&mut points, &params, &rules).is_empty());
     }
 

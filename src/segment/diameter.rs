@@ -417,6 +417,20 @@ mod tests {
     use super::*;
     use crate::numeric::Rng;
 
+    #[test]
+    fn the_crop_is_the_central_window() {
+        // Source: definition (the doc above): rows (h − side)/2 .. +side and columns
+        // (w − side)/2 .. +side; each pixel holds its own coordinates, so the crop names where
+        // it came from.
+        let image = Image::from_shape_fn((700, 600), |(y, x)| (1000 * y + x) as f32);
+        let crop = central_crop(&image, 512);
+        assert_eq!(crop.dim(), (512, 512));
+        assert_eq!(crop[[0, 0]], (1000 * 94 + 44) as f32);
+        assert_eq!(crop[[511, 511]], (1000 * 605 + 555) as f32);
+        let small = Image::zeros((100, 80));
+        assert!(matches!(central_crop(&small, 512), std::borrow::Cow::Borrowed(_)));
+    }
+
     fn disk(size: usize, r: f64) -> Image {
         let c = (size / 2) as f64;
         Image::from_shape_fn((size, size), |(y, x)| {

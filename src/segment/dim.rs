@@ -148,3 +148,34 @@ fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], (w, h): (usize, 
     }
     true
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A 9 x 9 region `1` with a single summit at the centre (values fall with the distance
+    /// from it), where the pixels for which `outside(x, y)` holds belong to region 0.
+    fn summit_test(outside: impl Fn(usize, usize) -> bool) -> bool {
+        let (w, h) = (9, 9);
+        let values: Vec<f32> = (0..w * h)
+            .map(|p| 100.0 - ((p % w) as f32 - 4.0).abs() - ((p / w) as f32 - 4.0).abs())
+            .collect();
+        let region: Vec<u32> = (0..w * h).map(|p| u32::from(!outside(p % w, p / w))).collect();
+        is_summit(4 * w + 4, 1, &region, &values, (w, h), 2.5)
+    }
+
+    #[test]
+    fn a_summit_needs_its_whole_disc_inside_the_region() {
+        // Source: definition (the doc of `is_summit`): every pixel within the radius (2.5 px)
+        // of the maximum must lie in its region. One pixel of another region 2 px above, below,
+        // left or right of it makes it no summit; 3 px away (outside the disc) it does not.
+        assert!(summit_test(|_, _| false));
+        for (dx, dy) in [(0, -2), (0, 2), (-2, 0), (2, 0), (-1, -2), (2, 1)] {
+            let (x, y) = ((4 + dx) as usize, (4 + dy) as usize);
+            assert!(!summit_test(|a, b| (a, b) == (x, y)), "({dx}, {dy})");
+        }
+        for (x, y) in [(4, 1), (4, 7), (1, 4), (7, 4), (2, 2)] {
+            assert!(summit_test(|a, b| (a, b) == (x, y)), "({x}, {y})");
+        }
+    }
+}

@@ -349,6 +349,25 @@ fn first_argmax(v: &[u64]) -> usize {
 mod tests {
     use super::*;
 
+    #[test]
+    fn non_finite_samples_are_left_out_of_a_float_frame_histogram() {
+        // Source: numpy.histogram's range is the finite samples' (non-finite ones are dropped
+        // before binning, as `of_floats` documents); the fast f32 path must bin a frame with
+        // an infinity or a NaN among its first eight lanes the same way: 14 finite samples,
+        // range 1 ..= 14.
+        let mut values: Vec<f32> = (1..=16).map(|v| v as f32).collect();
+        values[2] = f32::INFINITY;
+        values[5] = f32::NAN;
+        values.retain(|v| !(v.is_finite() && *v > 14.0));
+        values.extend([f32::NEG_INFINITY, 3.0]);
+        let fast = Histogram::of_f32(&values, 8).unwrap();
+        let slow = Histogram::of_floats(values.iter().map(|&v| v as f64), 8).unwrap();
+        assert_eq!(fast.counts, slow.counts);
+        assert_eq!(fast.counts.iter().sum::<u64>(), 13);
+        assert_eq!(fast.centers, slow.centers);
+        assert!((fast.centers[0] - (1.0 + 13.0 / 16.0)).abs() < 1e-12);
+    }
+
     fn bimodal() -> Vec<u32> {
         // Source: fixtures/methods/check_values.md §1 bimodal sample, counts[v] = round(1000 e^{-(v-30)²/50}) +
         // round(500 e^{-(v-90)²/200}).
