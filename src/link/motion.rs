@@ -353,6 +353,47 @@ mod tests {
         }
     }
 
+    /// A filter fed a random walk that follows `noise` (per-axis steps of
+    /// `random_walk_sd_px`, measurements off by `measurement_r`), shifted by `offset`.
+    fn walked(noise: MotionNoise, offset: [f64; 2], steps: usize, seed: u64) -> MotionFilter {
+        let mut rng = Rng::new(seed);
+        let mut truth = [0.0f64; 2];
+        let mut f = MotionFilter::started_at(offset, noise);
+        for _ in 0..steps {
+            truth = truth.map(|x| x + noise.random_walk_sd_px * rng.normal());
+            let measured = [0, 1].map(|a| offset[a] + truth[a] + noise.measurement_r.sqrt() * rng.normal());
+            f.step(measured);
+        }
+        f
+    }
+
+    #[test]
+    fn the_innovation_variance_does_not_depend_on_where_the_track_is() {
+        // Source: translation invariance (the models are linear in position): the same motion
+        // 1000 px right and 500 px up gives the same innovation and gate variances.
+        let noise = MotionNoise::for_diameter(14.0);
+        let here = walked(noise, [10.0, 20.0], 12, 5);
+        let there = walked(noise, [1010.0, -480.0], 12, 5);
+        let close = |a: f64, b: f64| (a - b).abs() <= 1e-6 * a.abs();
+        assert!(close(here.innovation_variance(), there.innovation_variance()));
+        assert!(close(here.gate_variance(), there.gate_variance()));
+    }
+
+    #[test]
+    fn a_track_moving_as_its_model_says_keeps_the_gate_unwidened() {
+        // Source: the normalised innovation squared of a consistent Kalman filter averages
+        // its dimension, 2 per 2-D measurement (Bar-Shalom, Li & Kirubarajan 2001, §5.4,
+        // from memory); the gate widens only beyond that. A random walk that follows the
+        // random-walk model's own noise keeps the gate scale near 1 (below 1.5 at the end of
+        // each of five 300-step walks).
+        let noise = MotionNoise::for_diameter(14.0);
+        for seed in 1..=5 {
+            let f = walked(noise, [0.0, 0.0], 300, seed);
+            let scale = f.gate_variance() / f.innovation_variance();
+            assert!(scale < 1.5, "seed {seed}: gate scale {scale}");
+        }
+    }
+
     #[test]
     fn with_one_model_it_is_the_kalman_filter_of_the_check_value() {
         // Source: fixtures/methods/check_values.md §7 (recomputed by fixtures/methods/check_values.py with numpy):

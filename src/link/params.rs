@@ -211,3 +211,28 @@ impl LinkParams {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn link_options_are_checked_against_their_documented_limits() {
+        // Source: the documented limits of `LinkOptions::validate` (a maximum step of at least
+        // 0.5 px, at most 50 missing frames bridged); the defaults pass.
+        assert!(LinkOptions::default().validate().is_ok());
+        let with = |max_step_px, max_gap_frames| LinkOptions {
+            max_step_px,
+            max_gap_frames,
+            ..LinkOptions::default()
+        };
+        assert!(with(Some(0.5), 50).validate().is_ok());
+        assert!(with(None, 0).validate().is_ok());
+        let gap = with(None, 51).validate().unwrap_err().to_string();
+        assert!(gap.contains("--max-gap"), "{gap}");
+        for step in [0.4, f64::NAN, f64::INFINITY] {
+            let e = with(Some(step), 3).validate().unwrap_err().to_string();
+            assert!(e.contains("--max-step"), "{e}");
+        }
+    }
+}

@@ -376,6 +376,24 @@ mod tests {
     use crate::link::online::OnlineLinker;
     use crate::link::LinkParams;
 
+    #[test]
+    fn a_track_starts_at_its_earliest_point_whatever_the_order_of_points() {
+        // Construction: track 2's points listed frame 5, 3, 4 start at frame 3 (index 2);
+        // track 1 starts at frame 0 and is not a start after frame 0.
+        let point = |track_id, frame| TrackedDetection {
+            track_id,
+            parent_id: None,
+            detection: Detection {
+                frame,
+                ..object_of_discs(&[(20.0, 20.0, 5.0)], frame)
+            },
+            distance_from_prediction_px: None,
+            link_confidence: None,
+        };
+        let points = vec![point(2, 5), point(1, 0), point(2, 3), point(2, 4), point(1, 1)];
+        assert_eq!(track_starts(&points), vec![2]);
+    }
+
     /// The one object made of discs `(x, y, r)` all labelled 1 in a 80 x 60 frame, measured
     /// as segmentation measures it.
     fn object_of_discs(discs: &[(f64, f64, f64)], frame: usize) -> Detection {
