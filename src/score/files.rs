@@ -140,3 +140,50 @@ fn inside(points: Vec<TrackPoint>, margin: f64, size: Option<(usize, usize)>) ->
         .filter(|q| q.x >= margin && q.y >= margin && q.x <= w - 1.0 - margin && q.y <= h - 1.0 - margin)
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(x: f64, y: f64) -> TrackPoint {
+        TrackPoint {
+            track_id: 1,
+            parent_id: None,
+            frame: 0,
+            x,
+            y,
+        }
+    }
+
+    #[test]
+    fn points_count_only_at_least_the_margin_inside_the_frame() {
+        // Source: definition (pixel centres run from 0 to w − 1): in a 100 x 80 frame with a
+        // 5 px margin, x and y from 5 to 94 and 74 are inside; 94.5 and 74.5 are not.
+        let kept = |x, y| inside(vec![point(x, y)], 5.0, Some((100, 80))).len();
+        assert_eq!(kept(5.0, 5.0), 1);
+        assert_eq!(kept(94.0, 74.0), 1);
+        assert_eq!(kept(94.5, 40.0), 0);
+        assert_eq!(kept(40.0, 74.5), 0);
+        assert_eq!(kept(4.9, 40.0), 0);
+        assert_eq!(inside(vec![point(-3.0, 0.0)], 5.0, None).len(), 1);
+    }
+
+    #[test]
+    fn a_synthetic_truth_gives_the_radius_and_margin_from_its_diameter() {
+        // Source: the documented defaults of `caravan score` (README, "Scoring tracks against
+        // ground truth"): half the synthetic diameter as the match radius and as the border
+        // margin, from the truth folder's scenario.json; without it, half the median
+        // nearest-neighbour distance (20 px apart: 10) and no margin.
+        let dir = tempfile::tempdir().unwrap();
+        let csv = "track_id,parent_id,frame,x,y\n1,,0,20,20\n2,,0,40,20\n";
+        std::fs::write(dir.path().join("truth.csv"), csv).unwrap();
+        std::fs::write(dir.path().join("tracks.csv"), csv).unwrap();
+        let (setup, _) = score_files(dir.path(), dir.path(), None, None).unwrap();
+        assert_eq!((setup.match_radius_px, setup.border_margin_px), (10.0, 0.0));
+        let scenario = r#"{"synth": {"diameter_px": 12.0, "width": 64, "height": 48}}"#;
+        std::fs::write(dir.path().join("scenario.json"), scenario).unwrap();
+        let (setup, _) = score_files(dir.path(), dir.path(), None, None).unwrap();
+        assert_eq!((setup.match_radius_px, setup.border_margin_px), (6.0, 6.0));
+        assert_eq!(setup.frame_size, Some((64, 48)));
+    }
+}

@@ -229,6 +229,20 @@ mod tests {
     use super::*;
 
     #[test]
+    fn precision_recall_and_f1_follow_their_definitions() {
+        // Source: the definitions (precision TP/(TP+FP), recall TP/(TP+FN), F1 their harmonic
+        // mean 2TP/(2TP+FP+FN)), with TP 8, FP 2, FN 4.
+        let c = MatchCounts {
+            true_positives: 8,
+            false_positives: 2,
+            false_negatives: 4,
+        };
+        assert!((c.precision() - 0.8).abs() < 1e-12);
+        assert!((c.recall() - 8.0 / 12.0).abs() < 1e-12);
+        assert!((c.f1() - 16.0 / 22.0).abs() < 1e-12);
+    }
+
+    #[test]
     fn link_scores_count_correct_links_and_switches() {
         // Hand-built: two true tracks moving right at y = 0 and y = 10 over frames 0..3 (6 true
         // links); the result swaps identities between frames 1 and 2: 4 correct links, 2 switches.

@@ -616,6 +616,20 @@ pub(crate) mod tests {
             (0, 2, 1),
             "{c:?}"
         );
+        // Source: translation invariance: the same scene 30 px right and 20 px down scores the
+        // same (the covered daughter is found by distance, wherever she lies).
+        let shift = |v: &[TrackPoint]| -> Vec<TrackPoint> {
+            v.iter()
+                .map(|q| TrackPoint {
+                    x: q.x + 30.0,
+                    y: q.y + 20.0,
+                    ..q.clone()
+                })
+                .collect()
+        };
+        let moved = score_tracks(&shift(&truth), &shift(&found), 2.0);
+        assert_eq!(moved.aogm_counts.splits, 1);
+        assert!((moved.tra - 0.859259).abs() < 1e-6);
     }
 
     #[test]
