@@ -94,6 +94,17 @@ fn a_hand_written_csv_gives_hand_derived_statistics() {
     for name in caravan::reports::ANALYSIS_OUTPUTS {
         assert!(out.join(name).exists(), "{name}");
     }
+    // neighbour_correlation.csv, read back with the csv crate: the 8 distance bins of one
+    // median neighbour distance each (the documented binning), with their pair counts (none
+    // here: identical velocities leave no fluctuation to correlate).
+    let mut reader = csv::Reader::from_path(out.join("neighbour_correlation.csv")).unwrap();
+    let header: Vec<String> = reader.headers().unwrap().iter().map(String::from).collect();
+    assert_eq!(header, ["from_um", "to_um", "correlation", "pairs"]);
+    let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
+    assert_eq!(rows.len(), 8);
+    for (row, bin) in rows.iter().zip(&run.analysis.neighbour_correlation) {
+        assert_eq!(row[3].parse::<usize>().unwrap(), bin.pairs);
+    }
 }
 
 #[test]

@@ -473,6 +473,26 @@ mod tests {
     use super::*;
 
     #[test]
+    fn replicate_means_are_each_replicate_s_own_mean() {
+        // Source: the arithmetic mean of each replicate's values (hand-computed): condition
+        // "a" holds [1, 2, 3] and [10]; an empty replicate and condition "b" are left out.
+        let rep = |condition: &str, replicate: &str, values: &[f64]| ReplicateValues {
+            condition: condition.into(),
+            replicate: replicate.into(),
+            values: values.to_vec(),
+        };
+        let reps = [
+            rep("a", "1", &[1.0, 2.0, 3.0]),
+            rep("b", "1", &[7.0]),
+            rep("a", "2", &[]),
+            rep("a", "3", &[10.0]),
+        ];
+        let (groups, means) = replicate_means(&reps, "a");
+        assert_eq!(groups, vec![vec![1.0, 2.0, 3.0], vec![10.0]]);
+        assert_eq!(means, vec![2.0, 10.0]);
+    }
+
+    #[test]
     fn smallest_p_for_few_replicates() {
         // Source: fixtures/methods/check_values.md §9: 3 vs 3 embryos, smallest possible two-sided MWU p = 0.1;
         // 5 vs 5: 2/252 = 0.0079 (binomial coefficient C(10,5) = 252).

@@ -322,6 +322,35 @@ mod tests {
     }
 
     #[test]
+    fn the_anomalous_exponent_leaves_out_points_without_a_logarithm() {
+        // Source: construction: ballistic motion has MSD ∝ t² (α = 2); a lag whose MSD is 0
+        // (only stationary pairs) has no logarithm and is left out rather than making α
+        // infinite.
+        let point = |lag: f64, msd: f64| MsdPoint {
+            lag_frames: lag as usize,
+            lag,
+            msd,
+            pairs: 1,
+            standard_error: 0.0,
+        };
+        let mut points: Vec<MsdPoint> = (1..=4).map(|k| point(k as f64, 3.0 * (k * k) as f64)).collect();
+        points.push(point(5.0, 0.0));
+        let alpha = anomalous_exponent(&points).unwrap();
+        assert!((alpha - 2.0).abs() < 1e-12, "{alpha}");
+    }
+
+    #[test]
+    fn the_msd_standard_error_is_the_sample_one_over_pairs() {
+        // Source: numpy 2 (`v.std(ddof=1) / sqrt(len(v))`) on the worked track's squared
+        // displacements: lag 1 [1, 2, 1, 1, 4] gives 0.58309518948453, lag 2 [5, 5, 2, 9]
+        // gives 1.4361406616345072 (the column is the optimistic one its doc names).
+        let m = msd(&[&worked_track()], 2, 1.0);
+        assert_eq!(m.len(), 2);
+        assert!((m[0].standard_error - 0.58309518948453).abs() < 1e-12, "{:?}", m[0]);
+        assert!((m[1].standard_error - 1.4361406616345072).abs() < 1e-12, "{:?}", m[1]);
+    }
+
+    #[test]
     fn methods_furth_check() {
         // Source: fixtures/methods/check_values.md §9: D = 2, P = 5 gives MSD(1, 5, 20) = 0.74923, 14.715178,
         // 120.732626; a fit over lags 1–20 of exact values recovers D = 2, P = 5 (scipy
