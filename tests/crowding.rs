@@ -105,9 +105,10 @@ fn mothers_that_round_up_before_dividing_are_found() {
 fn divisions_in_crowded_tissue_are_found() {
     // The frequent-division scene of benches/accuracy.sh on two other seeds: crowded tissue
     // look, 0.8% of nuclei dividing per frame, mothers rounding up and brightening for 2
-    // frames, daughters touching at birth. Pooled on these seeds this version recovers 120 of
-    // 142 divisions (84.5%) with 4 of 124 reported spurious; the issue's target of 85% is
-    // not yet met, so the bound asserted here is a guard just below what is reached.
+    // frames, daughters touching at birth. Pooled on these seeds this version recovers 124 of
+    // 142 divisions (87.3%) with 3 of 127 reported spurious, and the issue's target of 85% is
+    // asserted. On twelve further seeds it is not met (81–83%: README, "Accuracy"), so this
+    // pair of seeds is a guard, not the measure.
     let [truth, recovered, found, spurious] = pooled_divisions(|seed| {
         let mut p = SynthParams::new(Scenario::Crowded, 384, 384, 40);
         p.look = Look::TISSUE;
@@ -118,7 +119,7 @@ fn divisions_in_crowded_tissue_are_found() {
     });
     eprintln!("crowded divisions: {recovered} of {truth} recovered, {spurious} of {found} spurious");
     assert!(truth >= 100, "enough events to judge: {truth}");
-    assert!(recovered as f64 >= 0.82 * truth as f64, "{recovered} of {truth}");
+    assert!(recovered as f64 >= 0.85 * truth as f64, "{recovered} of {truth}");
     assert!(spurious as f64 <= 0.10 * found as f64, "{spurious} of {found}");
 }
 
