@@ -132,11 +132,15 @@ pub struct CalibrationOverride {
 
 /// Reads `input`: a run folder (its `tracks.csv` and `run.json`) or a CSV. The calibration is
 /// taken from the command line, else `run.json` beside the CSV, else the CSV's own `x_um` and
-/// `time_s` columns; when neither pixel size nor interval is known, pixels and frames are used.
+/// `time_s` columns (the interval from differences of `time_s` between frames, so that a
+/// clock that does not start at 0, or frames numbered from 1, keep it); when neither pixel
+/// size nor interval is known, pixels and frames are used, and when only one is known the
+/// units say which one was left unused.
 ///
 /// # Errors
 /// Missing files, missing columns, unparsable or non-finite numbers, a track with two points in
-/// one frame; each names the file (and line).
+/// one frame; each names the file (and line). A pixel size or interval given on the command
+/// line whose partner is found nowhere (a silent fall back to px and frames would drop it).
 pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTable> {
     let csv = if input.is_dir() {
         input.join("tracks.csv")
@@ -146,7 +150,7 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
     let text = std::fs::read_to_string(&csv).map_err(|e| Error::input(&csv, e.to_string()))?;
     let rows = crate::tracks::read_track_rows(&text).map_err(|e| Error::input(&csv, e))?;
     let (run_record, ignored) = read_run_record(&csv)?;
-    let mut units = resolve_units(given, run_record.as_ref(), &rows);
+    let mut units = resolve_units(given, run_record.as_ref(), &rows)?;
     if let Some(why) = ignored {
         units.source = format!("{} (run.json beside the tracks not used: {why})", units.source);
     }
@@ -183,17 +187,14 @@ fn resolve_units(
     given: CalibrationOverride,
     run: Option<&crate::record::RunRecord>,
     rows: &[crate::tracks::TrackRow],
-) -> Units {
+) -> Result<Units> {
     let run_cal = run.map(|r| r.input.stack.calibration);
     let from_run = |pick: fn(&crate::stack::Calibration) -> Option<f64>| run_cal.as_ref().and_then(pick);
     let from_csv_px = rows
         .iter()
         .find(|r| r.x.abs() > 1.0)
         .and_then(|r| r.x_um.map(|u| u / r.x));
-    let from_csv_dt = rows
-        .iter()
-        .find(|r| r.frame > 0)
-        .and_then(|r| r.time_s.map(|t| t / r.frame as f64));
+    let from_csv_dt = interval_from_times(rows);
     let pick = |cli: Option<f64>, run: Option<f64>, csv: Option<f64>| {
         cli.map(|v| (v, "command line"))
             .or(run.map(|v| (v, "run.json")))
@@ -203,15 +204,46 @@ fn resolve_units(
     let px = pick(given.pixel_size_um, from_run(|c| c.pixel_size_um), from_csv_px);
     let dt = pick(given.frame_interval_s, from_run(|c| c.frame_interval_s), from_csv_dt);
     match (px, dt) {
-        (Some((p, ps)), Some((s, ss))) => Units {
+        (Some((p, ps)), Some((s, ss))) => Ok(Units {
             length: LengthUnit::Micrometre,
             time: TimeUnit::Minute,
             length_per_px: p,
             time_per_frame: s / 60.0,
             source: format!("pixel size from {ps}, interval from {ss}"),
-        },
-        _ => Units::pixels(),
+        }),
+        (Some((p, "command line")), None) => Err(Error::parameter(
+            "--pixel-size",
+            format!("{p}um"),
+            "needs --interval too (neither run.json nor a time_s column gives the frame interval); give both, or neither to work in px and frames",
+        )),
+        (None, Some((s, "command line"))) => Err(Error::parameter(
+            "--interval",
+            format!("{s}s"),
+            "needs --pixel-size too (neither run.json nor an x_um column gives the pixel size); give both, or neither to work in px and frames",
+        )),
+        (Some((_, ps)), None) => Ok(Units {
+            source: format!("px and frames: a pixel size from {ps} but no frame interval"),
+            ..Units::pixels()
+        }),
+        (None, Some((_, ss))) => Ok(Units {
+            source: format!("px and frames: a frame interval from {ss} but no pixel size"),
+            ..Units::pixels()
+        }),
+        (None, None) => Ok(Units::pixels()),
     }
+}
+
+/// Seconds per frame from the CSV's `time_s` column: the median over consecutive frames seen
+/// of the time difference over the frame difference. Differences, not `time_s / frame`, so
+/// that a clock that starts at 3600 s or frames numbered from 1 give the interval itself.
+fn interval_from_times(rows: &[crate::tracks::TrackRow]) -> Option<f64> {
+    let times: BTreeMap<usize, f64> = rows.iter().filter_map(|r| r.time_s.map(|t| (r.frame, t))).collect();
+    let mut steps: Vec<f64> = times
+        .iter()
+        .zip(times.iter().skip(1))
+        .map(|((f1, t1), (f2, t2))| (t2 - t1) / (f2 - f1) as f64)
+        .collect();
+    crate::numeric::median(&mut steps)
 }
 
 fn build_tracks(rows: &[crate::tracks::TrackRow], units: &Units) -> std::result::Result<Vec<Track>, String> {
@@ -403,6 +435,52 @@ mod tests {
         std::fs::write(&p, "track_id,frame,x\n1,0,0\n").unwrap();
         let e = read_tracks(&p, CalibrationOverride::default()).unwrap_err().to_string();
         assert!(e.contains("missing column y"), "{e}");
+    }
+
+    #[test]
+    fn the_interval_comes_from_time_differences_and_half_a_calibration_is_refused() {
+        // Construction: 60 s between frames whatever the clock's start or the first frame's
+        // number (a clock at 3600 s read as time_s / frame gave 61 min per frame); 0.5 µm/px
+        // from x_um / x.
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("t.csv");
+        let read = |csv: &str, given: CalibrationOverride| {
+            std::fs::write(&p, csv).unwrap();
+            read_tracks(&p, given)
+        };
+        let none = CalibrationOverride::default();
+        let late_clock = "track_id,frame,x,y,x_um,time_s\n1,0,2,0,1,3600\n1,1,4,0,2,3660\n1,2,6,0,3,3720\n";
+        let u = read(late_clock, none).unwrap().units;
+        assert_eq!((u.length_per_px, u.time_per_frame), (0.5, 1.0));
+        let from_one = "track_id,frame,x,y,x_um,time_s\n1,1,2,0,1,0\n1,2,4,0,2,60\n1,4,6,0,3,180\n";
+        let u = read(from_one, none).unwrap().units;
+        assert_eq!((u.length_per_px, u.time_per_frame), (0.5, 1.0));
+        // One half on the command line, the other nowhere: refused, naming what is missing.
+        let bare = "track_id,frame,x,y\n1,0,2,0\n1,1,4,0\n";
+        let pixel_only = CalibrationOverride {
+            pixel_size_um: Some(0.5),
+            frame_interval_s: None,
+        };
+        let e = read(bare, pixel_only).unwrap_err().to_string();
+        assert!(e.contains("--pixel-size") && e.contains("needs --interval too"), "{e}");
+        let interval_only = CalibrationOverride {
+            pixel_size_um: None,
+            frame_interval_s: Some(60.0),
+        };
+        let e = read(bare, interval_only).unwrap_err().to_string();
+        assert!(e.contains("--interval") && e.contains("needs --pixel-size too"), "{e}");
+        // The other half from the CSV: calibrated, each half's source named.
+        let timed = "track_id,frame,x,y,time_s\n1,0,2,0,0\n1,1,4,0,30\n";
+        let u = read(timed, pixel_only).unwrap().units;
+        assert_eq!((u.length_per_px, u.time_per_frame), (0.5, 0.5));
+        assert_eq!(u.source, "pixel size from command line, interval from CSV columns");
+        // Half a calibration in the file alone: px and frames, saying which half was unused.
+        let u = read(timed, none).unwrap().units;
+        assert_eq!(u.length, LengthUnit::Pixel);
+        assert_eq!(
+            u.source,
+            "px and frames: a frame interval from CSV columns but no pixel size"
+        );
     }
 
     #[test]
