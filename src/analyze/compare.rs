@@ -5,7 +5,7 @@
 
 use super::population::{Analysis, AnalysisOptions};
 use super::run::{analyze_input, write_table};
-use super::stats::{cohens_d, hierarchical_bootstrap, mann_whitney, mean_sd, quantile};
+use super::stats::{hedges_g, hierarchical_bootstrap, mann_whitney, mean_sd, quantile};
 use super::table::{CalibrationOverride, Filters};
 use super::table::{LengthUnit, TimeUnit};
 use crate::error::{Error, Result};
@@ -163,8 +163,8 @@ pub struct Difference {
     pub mann_whitney_method: Option<&'static str>,
     /// Rank-biserial correlation (effect size of the test).
     pub rank_biserial: Option<f64>,
-    /// Cohen's d of replicate means.
-    pub cohens_d: Option<f64>,
+    /// Hedges' g of replicate means (Cohen's d with the small-sample correction).
+    pub hedges_g: Option<f64>,
 }
 
 /// Everything `compare` found.
@@ -305,7 +305,7 @@ fn difference(name: &str, reps: &[ReplicateValues], reference: &str, other: &str
         mann_whitney_p: mw.map(|m| m.p),
         mann_whitney_method: mw.map(|m| m.method),
         rank_biserial: mw.map(|m| m.rank_biserial),
-        cohens_d: cohens_d(&oth_means, &ref_means),
+        hedges_g: hedges_g(&oth_means, &ref_means),
     }
 }
 
@@ -414,7 +414,7 @@ const COMPARISON_COLUMNS: [TextColumn<Difference>; 16] = [
     ("bootstrap_p", |d| six(d.bootstrap_p)),
     ("mann_whitney_p", |d| six_or_empty(d.mann_whitney_p)),
     ("rank_biserial", |d| six_or_empty(d.rank_biserial)),
-    ("cohens_d", |d| six_or_empty(d.cohens_d)),
+    ("hedges_g", |d| six_or_empty(d.hedges_g)),
 ];
 
 /// The header of `comparison.csv` (and the report's table).

@@ -45,9 +45,10 @@ pub struct Step {
     pub frame: usize,
     /// Instantaneous speed (step length / frame interval).
     pub speed: f64,
-    /// Heading, degrees from +x toward +y.
-    pub heading_deg: f64,
-    /// Turning angle from the previous step, degrees in (−180, 180] (`None` for the first).
+    /// Heading, degrees from +x toward +y (`None` for a pause: a step of length 0 has none).
+    pub heading_deg: Option<f64>,
+    /// Turning angle from the previous step, degrees in (−180, 180] (`None` for the first, and
+    /// where this step or the previous one is a pause).
     pub turning_deg: Option<f64>,
 }
 
@@ -110,16 +111,17 @@ fn straightness(path: &Path) -> Option<f64> {
 }
 
 /// Steps between consecutive frames (steps across a gap are left out, and the turning angle
-/// after a gap is undefined).
+/// after a gap is undefined, as are the heading of a pause and the turning angles beside it:
+/// `atan2(0, 0)` would report a pause as a step toward +x).
 pub fn steps(track_id: u32, path: &Path, frame_interval: f64) -> Vec<Step> {
     let mut out: Vec<Step> = Vec::new();
     for w in path.windows(2).filter(|w| w[1].frame == w[0].frame + 1) {
         let (dx, dy) = (w[1].x - w[0].x, w[1].y - w[0].y);
-        let heading = dy.atan2(dx).to_degrees();
+        let heading = (dx != 0.0 || dy != 0.0).then(|| dy.atan2(dx).to_degrees());
         let turning = out
             .last()
-            .filter(|prev| prev.frame + 1 == w[0].frame && (dx != 0.0 || dy != 0.0))
-            .map(|prev| wrap_degrees(heading - prev.heading_deg));
+            .filter(|prev| prev.frame + 1 == w[0].frame)
+            .and_then(|prev| Some(wrap_degrees(heading? - prev.heading_deg?)));
         out.push(Step {
             track_id,
             frame: w[0].frame,
@@ -169,6 +171,24 @@ mod tests {
         // Over the first 3 frames: (0,0)→(2,2), path 1 + √2 + 1 (hand-derived).
         let early = 8f64.sqrt() / (2.0 + 2f64.sqrt());
         assert!((m.directionality_at_fixed_time.unwrap() - early).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_pause_has_no_heading_and_no_turn_beside_it() {
+        // Source: construction (trigonometry): steps (1,0), pause, (0,1), (0,1): headings 0°,
+        // none, 90°, 90°; the turning angle needs two headed steps in a row, so only the last
+        // step has one (0°). Read as atan2(0, 0) = 0°, the pause would add turns of 0° and 90°.
+        let t: Vec<PathPoint> = [(0., 0.), (1., 0.), (1., 0.), (1., 1.), (1., 2.)]
+            .iter()
+            .enumerate()
+            .map(|(i, p)| PathPoint::new(i, p.0, p.1))
+            .collect();
+        let s = steps(1, &t, 1.0);
+        let headings: Vec<Option<f64>> = s.iter().map(|s| s.heading_deg).collect();
+        assert_eq!(headings, [Some(0.0), None, Some(90.0), Some(90.0)]);
+        let turns: Vec<Option<f64>> = s.iter().map(|s| s.turning_deg).collect();
+        assert_eq!(turns, [None, None, None, Some(0.0)]);
+        assert_eq!(motility(1, &t, 1.0, 0.0, 3).mean_abs_turning_deg, Some(0.0));
     }
 
     #[test]

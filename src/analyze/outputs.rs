@@ -41,7 +41,7 @@ pub fn write_steps(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
         Column::shown("track_id", |s: &Step| Some(s.track_id)),
         Column::shown("frame", |s: &Step| Some(s.frame)),
         Column::fixed(format!("speed_{}", a.units.speed()), 6, |s: &Step| Some(s.speed)),
-        Column::fixed("heading_deg", 6, |s: &Step| Some(s.heading_deg)),
+        Column::fixed("heading_deg", 6, |s: &Step| s.heading_deg),
         Column::fixed("turning_deg", 6, |s: &Step| s.turning_deg),
     ];
     write_table(out, &columns, &a.steps)

@@ -179,6 +179,22 @@ pub fn cohens_d(x: &[f64], y: &[f64]) -> Option<f64> {
     (pooled > 0.0).then(|| (mx - my) / pooled)
 }
 
+/// Hedges' g: Cohen's d times the small-sample correction J = 1 − 3 / (4(n₁ + n₂) − 9), which
+/// removes most of d's upward bias when each side holds a few replicate means (at 3 vs 3, d
+/// overstates the effect by a quarter). `None` as for [`cohens_d`] and below 2 + 2 values.
+///
+/// # Method
+/// L. V. Hedges (1981), "Distribution theory for Glass's estimator of effect size and related
+/// estimators", J. Educ. Stat. 6(2):107–128, doi:10.3102/10769986006002107 (the approximation
+/// to the exact correction given there).
+pub fn hedges_g(x: &[f64], y: &[f64]) -> Option<f64> {
+    let n = (x.len() + y.len()) as f64;
+    (x.len() >= 2 && y.len() >= 2)
+        .then(|| cohens_d(x, y))
+        .flatten()
+        .map(|d| d * (1.0 - 3.0 / (4.0 * n - 9.0)))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -259,5 +275,9 @@ mod tests {
         // [2,3,4]: means differ by 1, pooled sd 1 → −1 (hand-derived).
         assert_eq!(quantile(&[4.0, 1.0, 3.0, 2.0], 0.25), Some(1.75));
         assert!((cohens_d(&[1., 2., 3.], &[2., 3., 4.]).unwrap() + 1.0).abs() < 1e-12);
+        // Hedges (1981): J = 1 − 3/(4·6 − 9) = 0.8 at 3 vs 3 (the exact correction,
+        // Γ(2)/(√2·Γ(3/2)) = 0.7979, from memory, lies within 0.3% of it).
+        assert!((hedges_g(&[1., 2., 3.], &[2., 3., 4.]).unwrap() + 0.8).abs() < 1e-12);
+        assert_eq!(hedges_g(&[1.], &[2., 3., 4.]), None);
     }
 }

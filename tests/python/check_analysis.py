@@ -7,8 +7,8 @@ default filter): per-track path length, net displacement, mean speed and directi
 the pooled MSD with overlapping windows; the Rayleigh statistic of net-displacement
 directions (Zar 2010); the order parameter per frame (Vicsek 1995). For the comparison: each
 replicate's mean speed derived from its own tracks.csv (the manifest's entries), checked
-against replicates.csv, and scipy.stats.mannwhitneyu on those derived means (the other
-statistics on the means replicates.csv writes).
+against replicates.csv, and scipy.stats.mannwhitneyu and Hedges' g on those derived means (the
+other statistics on the means replicates.csv writes).
 """
 import csv
 import json
@@ -114,4 +114,10 @@ for d in comparison["differences"]:
     p = mannwhitneyu(x, y, alternative="two-sided").pvalue
     assert abs(p - d["mann_whitney_p"]) < 1e-6, (d["statistic"], p, d["mann_whitney_p"])
     assert abs((np.mean(x) - np.mean(y)) - d["difference"]) < 1e-6
+    # Hedges' g (Hedges 1981): Cohen's d on the pooled sample s.d. times 1 - 3/(4(n1+n2) - 9).
+    n1, n2 = len(x), len(y)
+    pooled = np.sqrt(((n1 - 1) * np.var(x, ddof=1) + (n2 - 1) * np.var(y, ddof=1)) / (n1 + n2 - 2))
+    g = (np.mean(x) - np.mean(y)) / pooled * (1 - 3 / (4 * (n1 + n2) - 9))
+    # (replicates.csv holds the means to 6 decimals, so agreement is to about 1e-5 relative)
+    assert abs(g - d["hedges_g"]) < 1e-4 * max(1.0, abs(g)), (d["statistic"], g, d["hedges_g"])
 print(f"analysis checked: {len(tracks)} tracks, {len(comparison['differences'])} differences")
