@@ -96,8 +96,22 @@ pub struct Analysis {
     pub neighbour_correlation: Vec<CorrelationBin>,
 }
 
-/// Analyses `tracks` (already filtered) in `units`.
+/// Analyses `tracks` (already filtered) in `units`, with their own points as the neighbours of
+/// each frame (see [`analyze_tracks_among`]).
 pub fn analyze_tracks(tracks: &[Track], units: &Units, options: &AnalysisOptions) -> Analysis {
+    analyze_tracks_among(tracks, tracks, units, options)
+}
+
+/// Analyses `tracks` (already filtered) in `units`; the neighbour distance and density of each
+/// frame come from all the points of `everyone` in it (every detection tracked, not only the
+/// tracks kept for analysis: a nucleus tracked for 5 frames is a neighbour all the same, and
+/// a length filter must not change how crowded a frame looks).
+pub fn analyze_tracks_among(
+    tracks: &[Track],
+    everyone: &[Track],
+    units: &Units,
+    options: &AnalysisOptions,
+) -> Analysis {
     let dt = units.time_per_frame;
     let paths: Vec<&Path> = tracks.iter().map(|t| t.path.as_slice()).collect();
     let motility_rows: Vec<Motility> = tracks
@@ -123,7 +137,7 @@ pub fn analyze_tracks(tracks: &[Track], units: &Units, options: &AnalysisOptions
         .filter_map(|m| m.mean_direction_deg)
         .map(f64::to_radians)
         .collect();
-    let (frames, neighbour_correlation) = collective(tracks, dt, options.density_neighbours);
+    let (frames, neighbour_correlation) = collective(tracks, everyone, dt, options.density_neighbours);
     Analysis {
         units: units.clone(),
         options: options.clone(),
@@ -143,13 +157,24 @@ pub fn analyze_tracks(tracks: &[Track], units: &Units, options: &AnalysisOptions
 
 /// Positions and velocities per frame, then the per-frame figures and the pooled neighbour
 /// correlation (bins one median neighbour distance wide, eight of them).
-fn collective(tracks: &[Track], dt: f64, k: usize) -> (Vec<FrameOrder>, Vec<CorrelationBin>) {
+fn collective(tracks: &[Track], everyone: &[Track], dt: f64, k: usize) -> (Vec<FrameOrder>, Vec<CorrelationBin>) {
     type FrameData = (Vec<[f64; 2]>, Vec<([f64; 2], [f64; 2])>);
     let mut by_frame: BTreeMap<usize, FrameData> = BTreeMap::new();
     for t in tracks {
+        for p in &t.path {
+            by_frame.entry(p.frame).or_default();
+        }
+    }
+    for t in everyone {
+        for p in &t.path {
+            if let Some(e) = by_frame.get_mut(&p.frame) {
+                e.0.push([p.x, p.y]);
+            }
+        }
+    }
+    for t in tracks {
         for (i, &PathPoint { frame: f, x, y }) in t.path.iter().enumerate() {
             let e = by_frame.entry(f).or_default();
-            e.0.push([x, y]);
             if let Some(&PathPoint { frame: g, x: x2, y: y2 }) = t.path.get(i + 1).filter(|n| n.frame == f + 1) {
                 debug_assert_eq!(g, f + 1);
                 e.1.push(([x, y], [(x2 - x) / dt, (y2 - y) / dt]));
@@ -194,4 +219,34 @@ fn collective(tracks: &[Track], dt: f64, k: usize) -> (Vec<FrameOrder>, Vec<Corr
         })
         .collect();
     (frames, bins)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn track(id: u32, frames: std::ops::Range<usize>, x0: f64) -> Track {
+        Track {
+            id,
+            parent: None,
+            path: frames.map(|f| PathPoint::new(f, x0 + f as f64, 0.0)).collect(),
+        }
+    }
+
+    #[test]
+    fn every_tracked_point_is_a_neighbour_whatever_the_filters_keep() {
+        // Construction (hand-derived distances): tracks at x = 0 and x = 20 for frames 0-11
+        // are analysed; one at x = 5 for frames 0-2 is too short to analyse but is their
+        // neighbour. Frame 0: nearest neighbours 5, 5 and 15 px, mean 25/3; frame 5: 20.
+        let (a, short, c) = (track(1, 0..12, 0.0), track(2, 0..3, 5.0), track(3, 0..12, 20.0));
+        let kept = [a.clone(), c.clone()];
+        let everyone = [a, short, c];
+        let analysis = analyze_tracks_among(&kept, &everyone, &Units::pixels(), &AnalysisOptions::default());
+        let at = |f: usize| analysis.frames.iter().find(|o| o.frame == f).unwrap();
+        assert!((at(0).mean_neighbour_distance.unwrap() - 25.0 / 3.0).abs() < 1e-12);
+        assert!((at(5).mean_neighbour_distance.unwrap() - 20.0).abs() < 1e-12);
+        assert_eq!(at(0).moving, 2, "only the analysed tracks' velocities");
+        let alone = analyze_tracks(&kept, &Units::pixels(), &AnalysisOptions::default());
+        assert!((alone.frames[0].mean_neighbour_distance.unwrap() - 20.0).abs() < 1e-12);
+    }
 }

@@ -4,7 +4,7 @@
 use super::outputs::{
     summary, write_autocorrelation, write_msd, write_neighbour_correlation, write_order, write_steps, write_track_stats,
 };
-use super::population::{analyze_tracks, Analysis, AnalysisOptions};
+use super::population::{analyze_tracks_among, Analysis, AnalysisOptions};
 use super::table::{apply_filters, read_tracks, CalibrationOverride, Filters, TrackTable};
 use crate::error::{Error, Result};
 use crate::output::{ensure_dir, write_atomic, AtomicFile};
@@ -114,7 +114,15 @@ pub fn analyze_input(
             ),
         ));
     }
-    let analysis = analyze_tracks(&kept, &table.units, options);
+    // Every tracked point of the frames analysed is a neighbour, whatever the length and
+    // region filters keep for the per-track figures.
+    let frames_only = Filters {
+        min_points: 1,
+        frames: filters.frames,
+        region: None,
+    };
+    let everyone = apply_filters(&table.tracks, &frames_only);
+    let analysis = analyze_tracks_among(&kept, &everyone, &table.units, options);
     Ok((table, analysis))
 }
 
