@@ -217,6 +217,14 @@ mod tests {
     use super::*;
 
     #[test]
+    fn switches_read_on_and_off_only() {
+        // Source: the documented values of `--prediction` and `--divisions` (README options).
+        assert_eq!(on_off("on"), Ok(true));
+        assert_eq!(on_off("off"), Ok(false));
+        assert!(on_off("yes").unwrap_err().contains("expected on or off"));
+    }
+
+    #[test]
     fn link_options_are_checked_against_their_documented_limits() {
         // Source: the documented limits of `LinkOptions::validate` (a maximum step of at least
         // 0.5 px, at most 50 missing frames bridged); the defaults pass.

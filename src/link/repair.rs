@@ -377,6 +377,14 @@ mod tests {
     use crate::link::LinkParams;
 
     #[test]
+    fn the_smallest_part_is_a_share_of_a_disc_of_the_diameter() {
+        // Source: the disc area π d² / 4 (geometry) times MIN_PART_OF_NUCLEUS (0.35): 14 px
+        // nuclei give 0.35 · π · 49 = 53.878 px, 10 px nuclei 27.489 px.
+        assert!((min_part_px(14.0) - 0.35 * std::f64::consts::PI * 49.0).abs() < 1e-12);
+        assert!((min_part_px(10.0) - 27.488936).abs() < 1e-6);
+    }
+
+    #[test]
     fn a_track_starts_at_its_earliest_point_whatever_the_order_of_points() {
         // Construction: track 2's points listed frame 5, 3, 4 start at frame 3 (index 2);
         // track 1 starts at frame 0 and is not a start after frame 0.
