@@ -81,6 +81,7 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
         directions_deg: a.tracks.iter().filter_map(|m| m.mean_direction_deg).collect(),
         msd: a.msd.iter().map(|q| (q.lag, q.msd)).collect(),
         msd_fit,
+        model_warnings: &a.warnings,
         speeds: a.tracks.iter().filter_map(|m| m.mean_speed).collect(),
         directionality: a.tracks.iter().filter_map(|m| m.directionality_ratio).collect(),
         order: a

@@ -105,6 +105,22 @@ fn a_hand_written_csv_gives_hand_derived_statistics() {
     for (row, bin) in rows.iter().zip(&run.analysis.neighbour_correlation) {
         assert_eq!(row[3].parse::<usize>().unwrap(), bin.pairs);
     }
+    // Straight motion has MSD = t² (exponent 2): the persistent random walk does not describe
+    // it, and summary.json and the report say so.
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    let warnings: Vec<&str> = summary["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|w| w.as_str())
+        .collect();
+    assert!(
+        warnings.iter().any(|w| w.contains("near 2 (ballistic)")),
+        "{warnings:?}"
+    );
+    let page = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(page.contains("near 2 (ballistic)"));
 }
 
 #[test]

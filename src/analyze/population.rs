@@ -94,6 +94,8 @@ pub struct Analysis {
     pub frames: Vec<FrameOrder>,
     /// Neighbour velocity-fluctuation correlation by distance.
     pub neighbour_correlation: Vec<CorrelationBin>,
+    /// What the fitted motion model cannot be trusted for (see [`model_warnings`]).
+    pub warnings: Vec<String>,
 }
 
 /// Analyses `tracks` (already filtered) in `units`, with their own points as the neighbours of
@@ -138,13 +140,17 @@ pub fn analyze_tracks_among(
         .map(f64::to_radians)
         .collect();
     let (frames, neighbour_correlation) = collective(tracks, everyone, dt, options.density_neighbours);
+    let furth = fit_furth(&fitted);
+    let exponent = anomalous_exponent(&fitted);
+    let recording = longest as f64 * dt;
+    let warnings = model_warnings(furth.as_ref(), exponent, fitted.len(), fit_lags, dt, recording);
     Analysis {
         units: units.clone(),
         options: options.clone(),
         tracks: motility_rows,
         steps: step_rows,
-        furth: fit_furth(&fitted),
-        anomalous_exponent: anomalous_exponent(&fitted),
+        furth,
+        anomalous_exponent: exponent,
         fit_lags,
         msd: msd_points,
         autocorrelation: autocorrelation(&paths, longest.clamp(1, 20), dt),
@@ -152,7 +158,51 @@ pub fn analyze_tracks_among(
         v_test: v_test(&angles, options.axis_deg),
         frames,
         neighbour_correlation,
+        warnings,
     }
+}
+
+/// Where the persistent random walk fit says nothing trustworthy, in words: a fit that failed
+/// (none is dropped silently), a persistence time below one frame interval (the sampling cannot
+/// resolve it) or beyond the longest lag fitted or the longest track (the fit cannot tell
+/// persistence from drift or ballistic motion there), and an anomalous exponent near 2
+/// (directed motion, which the model does not describe). Our own checks: P is seen in the
+/// data only as the bend of the MSD from slope 2 to slope 1 on a log-log plot (Fürth 1920, see
+/// [`fit_furth`]), so a P outside the lags fitted is the fit's extrapolation, not a
+/// measurement.
+pub fn model_warnings(
+    furth: Option<&FurthFit>,
+    exponent: Option<f64>,
+    fitted_points: usize,
+    (first, last): (usize, usize),
+    dt: f64,
+    recording: f64,
+) -> Vec<String> {
+    let mut out = Vec::new();
+    match furth {
+        None if fitted_points >= 3 => out.push(format!(
+            "the persistent random walk fit failed on lags {first}-{last} frames: no diffusion coefficient or persistence time is reported"
+        )),
+        None => out.push(format!(
+            "too few MSD points ({fitted_points}) on lags {first}-{last} frames for the persistent random walk fit"
+        )),
+        Some(f) if f.persistence < dt => out.push(format!(
+            "persistence time {:.3} is below one frame interval ({dt:.3}): this sampling cannot resolve it; the diffusion coefficient stands, the persistence and the speed derived from it do not",
+            f.persistence
+        )),
+        Some(f) if f.persistence > (last as f64 * dt).min(recording) => out.push(format!(
+            "persistence time {:.3} is beyond the longest lag fitted ({:.3}) or the longest track ({recording:.3}): the fit cannot tell persistence from drift or directed motion; treat the diffusion coefficient and persistence as undetermined",
+            f.persistence,
+            last as f64 * dt
+        )),
+        Some(_) => {}
+    }
+    if let Some(a) = exponent.filter(|&a| a > 1.8) {
+        out.push(format!(
+            "anomalous exponent {a:.2} is near 2 (ballistic): directed motion or a common drift dominates, which a persistent random walk does not describe"
+        ));
+    }
+    out
 }
 
 /// Positions and velocities per frame, then the per-frame figures and the pooled neighbour
@@ -231,6 +281,54 @@ mod tests {
             parent: None,
             path: frames.map(|f| PathPoint::new(f, x0 + f as f64, 0.0)).collect(),
         }
+    }
+
+    #[test]
+    fn a_fit_the_data_cannot_support_is_said_so() {
+        // Construction: straight tracks at 1 px/frame (MSD = t², exponent 2, no bend within
+        // any lag) and a walk of alternating unit steps, x = 0, 1, 0, 1, ... (MSD flat at lags
+        // above 1: a persistence below one frame or a failed fit); each must carry a warning,
+        // where a persistent walk sampled within its bend carries none (below).
+        let straight: Vec<Track> = (0..6).map(|k| track(k, 0..40, 50.0 * k as f64)).collect();
+        let a = analyze_tracks(&straight, &Units::pixels(), &AnalysisOptions::default());
+        assert!(
+            a.warnings.iter().any(|w| w.contains("near 2 (ballistic)")),
+            "{:?}",
+            a.warnings
+        );
+        let jitter: Vec<Track> = (0..6)
+            .map(|k| Track {
+                id: k,
+                parent: None,
+                path: (0..40)
+                    .map(|f| PathPoint::new(f, 50.0 * k as f64 + (f % 2) as f64, 0.0))
+                    .collect(),
+            })
+            .collect();
+        let a = analyze_tracks(&jitter, &Units::pixels(), &AnalysisOptions::default());
+        assert!(
+            a.warnings
+                .iter()
+                .any(|w| w.contains("below one frame interval") || w.contains("fit failed")),
+            "{:?}",
+            a.warnings
+        );
+        // Construction: a fit with P = 5 frames inside the lags fitted (1-10 frames) and the
+        // recording (40) raises nothing; P = 12 beyond the lags fitted raises one warning.
+        let fit = FurthFit {
+            diffusion: 2.0,
+            diffusion_se: 0.1,
+            persistence: 5.0,
+            persistence_se: 0.5,
+            speed: (0.8f64).sqrt(),
+            lag_range_frames: (1, 10),
+        };
+        assert!(model_warnings(Some(&fit), Some(1.4), 10, (1, 10), 1.0, 40.0).is_empty());
+        let far = FurthFit {
+            persistence: 12.0,
+            ..fit
+        };
+        assert_eq!(model_warnings(Some(&far), Some(1.4), 10, (1, 10), 1.0, 40.0).len(), 1);
     }
 
     #[test]

@@ -79,6 +79,7 @@ pub fn write_analysis_tables(
         "filters": filters,
         "options": options,
         "population": population,
+        "warnings": analysis.warnings,
     });
     write_atomic(
         &dir.join("summary.json"),

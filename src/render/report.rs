@@ -150,6 +150,8 @@ pub struct AnalysisPage<'a> {
     pub msd: Vec<(f64, f64)>,
     /// A fitted MSD curve: its legend and points.
     pub msd_fit: Option<(String, Vec<(f64, f64)>)>,
+    /// What the fitted motion model cannot be trusted for, in words.
+    pub model_warnings: &'a [String],
     /// Mean speed per track.
     pub speeds: Vec<f64>,
     /// Directionality ratio per track.
@@ -183,6 +185,13 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
     }
     html.push_str("<h2>Population statistics</h2>");
     summary_table(&mut html, page.summary);
+    if !page.model_warnings.is_empty() {
+        html.push_str("<ul class=\"model-warnings\">");
+        for w in page.model_warnings {
+            let _ = write!(html, "<li>warning: {}</li>", escape_html(w));
+        }
+        html.push_str("</ul>");
+    }
     html.push_str("<h2>Charts</h2><div class=\"grid\">");
     figure(
         &mut html,
