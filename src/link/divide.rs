@@ -53,7 +53,9 @@ pub struct DivisionRules {
     /// area over hers, allowed range. Her brightening is the evidence of a division that her
     /// size gives otherwise, and a segmentation that thresholds brightness measures her size
     /// least reliably when she is dim (a dim mother is cut small, her daughters may not be);
-    /// so the size bounds are wide and the mother-to-typical bound is not applied.
+    /// so the size bounds are wide, the upper one is taken against the larger of her areas
+    /// before and during mitosis (as for brightness below), and the mother-to-typical bound is
+    /// not applied.
     pub mitotic_daughter_area_ratio: (f64, f64),
     /// For a mother seen entering mitosis: summed daughter total intensity over hers, allowed
     /// range (wider for the same reason). For the upper bound her figure is the larger of her
@@ -253,7 +255,9 @@ fn median_area_by_frame(points: &[TrackedDetection]) -> BTreeMap<usize, f64> {
 /// frames; a segmentation that thresholds brightness then measures her larger and brighter
 /// than the nucleus whose DNA the daughters share. So where her last one to three points are
 /// all at least [`MITOTIC_BRIGHTENING`] times her earlier median mean intensity (at least
-/// three earlier points), those points are left out of her figures.
+/// three earlier points), those points are left out of her figures, and kept apart as her
+/// mitotic figures: a dim nucleus is cut small by the threshold, her brighter mitotic figure
+/// less so, which bounds from above what her daughters may measure (see [`DivisionRules`]).
 struct MotherFigures {
     area: f64,
     intensity: f64,
@@ -347,11 +351,10 @@ fn division_cost(
     let off2 = (mid[0] - predicted[0]).powi(2) + (mid[1] - predicted[1]).powi(2);
     let half_apart2 = ((a.x - b.x).powi(2) + (a.y - b.y).powi(2)) / 4.0;
     let (area_ratio, intensity_ratio, sister_ratio) = if mother.mitotic {
-        let r = rules;
         (
-            r.mitotic_daughter_area_ratio,
-            r.mitotic_intensity_ratio,
-            r.mitotic_sister_area_ratio,
+            rules.mitotic_daughter_area_ratio,
+            rules.mitotic_intensity_ratio,
+            rules.mitotic_sister_area_ratio,
         )
     } else {
         (
