@@ -59,6 +59,77 @@ fn a_directed_stream_and_a_wandering_dish_are_told_apart() {
     assert!(s["population"]["v_test"]["p_value"].as_f64().unwrap() < 0.01);
 }
 
+/// Tracks of `frames` frames `interval_min` apart, moving +x at 1 µm/min for their first 10 min
+/// and back along −x after (0.5 µm pixels), 20 µm apart.
+fn out_and_back_csv(path: &Path, tracks: usize, interval_min: f64, frames: usize) {
+    let mut text = String::from("track_id,frame,x,y,x_um,y_um,time_s\n");
+    for id in 1..=tracks {
+        for f in 0..frames {
+            let t = f as f64 * interval_min;
+            let um = if t <= 10.0 { t } else { 20.0 - t };
+            let (x, y) = (20.0 + 2.0 * um, 40.0 * id as f64);
+            text.push_str(&format!("{id},{f},{x},{y},{},{},{}\n", x * 0.5, y * 0.5, t * 60.0));
+        }
+    }
+    std::fs::write(path, text).unwrap();
+}
+
+#[test]
+fn conditions_filmed_at_different_intervals_are_compared_over_the_same_minutes() {
+    // Construction: the same motion (out along +x for 10 min, then back) filmed every 1 min
+    // and every 2 min. With the fixed time counted in frames (10), the 2-min films were judged
+    // over 20 min (directionality 0: out and back) against 10 min (1: straight); in physical
+    // time both are judged over the first 10 min (10 and 5 frames): directionality 1 in both,
+    // no difference, and a warning that the intervals differ. A 3-min film cannot span 10 min
+    // in whole frames and is refused, naming its file.
+    let dir = tempfile::tempdir().unwrap();
+    let mut manifest = String::from("path,condition,replicate\n");
+    for (cond, interval, frames) in [("every1", 1.0, 21), ("every2", 2.0, 11)] {
+        for r in 0..3 {
+            let name = format!("{cond}_{r}.csv");
+            out_and_back_csv(&dir.path().join(&name), 3, interval, frames);
+            manifest.push_str(&format!("{name},{cond},{r}\n"));
+        }
+    }
+    std::fs::write(dir.path().join("m.csv"), &manifest).unwrap();
+    let compare = |manifest: &Path| {
+        let entries = caravan::analyze::compare::read_manifest(manifest).unwrap();
+        let filters = Filters {
+            min_points: 5,
+            ..Filters::default()
+        };
+        caravan::analyze::compare::compare(
+            entries,
+            CalibrationOverride::default(),
+            &filters,
+            &AnalysisOptions::default(),
+            1,
+        )
+    };
+    let c = compare(&dir.path().join("m.csv")).unwrap();
+    let d = c
+        .differences
+        .iter()
+        .find(|d| d.statistic == "directionality_ratio_at_10_min")
+        .expect("the fixed time in minutes");
+    assert!(d.difference.abs() < 1e-9, "{}", d.difference);
+    for r in &c.replicates["directionality_ratio_at_10_min"] {
+        assert!(r.values.iter().all(|v| (v - 1.0).abs() < 1e-9), "{r:?}");
+    }
+    assert!(
+        c.warnings.iter().any(|w| w.starts_with("frame intervals differ")),
+        "{:?}",
+        c.warnings
+    );
+    out_and_back_csv(&dir.path().join("every3.csv"), 3, 3.0, 8);
+    std::fs::write(dir.path().join("m3.csv"), format!("{manifest}every3.csv,every3,0\n")).unwrap();
+    let e = compare(&dir.path().join("m3.csv")).err().unwrap().to_string();
+    assert!(
+        e.contains("every3.csv") && e.contains("does not divide the 10 min"),
+        "{e}"
+    );
+}
+
 /// Straight tracks at 2 px/frame along +x with 0.5 µm pixels and 1-minute frames: speed
 /// 1 µm/min, directionality 1, forward migration index 1 along 0°, MSD(lag n) = n² µm²
 /// (ballistic), order parameter 1 (hand-derived).

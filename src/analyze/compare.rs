@@ -6,7 +6,7 @@
 use super::population::{Analysis, AnalysisOptions};
 use super::run::{analyze_input, write_table};
 use super::stats::{hedges_g, hierarchical_bootstrap, mann_whitney, mean_sd, quantile};
-use super::table::{CalibrationOverride, Filters};
+use super::table::{read_tracks, CalibrationOverride, Filters};
 use super::table::{LengthUnit, TimeUnit};
 use crate::error::{Error, Result};
 use crate::numeric::Rng;
@@ -106,15 +106,15 @@ pub fn read_manifest_entries(path: &Path) -> Result<Vec<ManifestEntry>> {
     Ok(out)
 }
 
-/// The per-track statistics compared, with the name they carry in the outputs.
-fn statistics(a: &Analysis) -> Vec<(String, Vec<f64>)> {
-    let n = a.options.fixed_elapsed_frames;
+/// The per-track statistics compared, with the name they carry in the outputs (`fixed`: the
+/// fixed time of the directionality ratio, e.g. `10_min` or `10_frames`).
+fn statistics(a: &Analysis, fixed: &str) -> Vec<(String, Vec<f64>)> {
     let col =
         |f: &dyn Fn(&super::motility::Motility) -> Option<f64>| a.tracks.iter().filter_map(f).collect::<Vec<f64>>();
     vec![
         (format!("mean_speed_{}", a.units.speed()), col(&|m| m.mean_speed)),
         (
-            format!("directionality_ratio_at_{n}_frames"),
+            format!("directionality_ratio_at_{fixed}"),
             col(&|m| m.directionality_at_fixed_time),
         ),
         ("forward_migration_index".into(), col(&|m| m.forward_migration_index)),
@@ -201,11 +201,16 @@ pub fn compare(
     let mut replicates: BTreeMap<String, Vec<ReplicateValues>> = BTreeMap::new();
     let mut names = Vec::new();
     let mut units: Option<(String, LengthUnit, TimeUnit)> = None;
-    for e in &entries {
+    let plan = fixed_time_plan(&entries, calibration, options)?;
+    for (e, &fixed_frames) in entries.iter().zip(&plan.frames) {
         if !conditions.contains(&e.condition) {
             conditions.push(e.condition.clone());
         }
-        let (table, analysis) = analyze_input(&e.path, calibration, filters, options)?;
+        let options = AnalysisOptions {
+            fixed_elapsed_frames: fixed_frames,
+            ..options.clone()
+        };
+        let (table, analysis) = analyze_input(&e.path, calibration, filters, &options)?;
         let these = (
             table.source.display().to_string(),
             analysis.units.length,
@@ -225,7 +230,7 @@ pub fn compare(
             None => units = Some(these),
         }
         names.clear();
-        for (name, values) in statistics(&analysis) {
+        for (name, values) in statistics(&analysis, &plan.label) {
             names.push(name.clone());
             let reps = replicates.entry(name).or_default();
             match reps
@@ -248,7 +253,8 @@ pub fn compare(
             differences.push(difference(name, &replicates[name], &conditions[0], other, &mut rng));
         }
     }
-    let warnings = design_warnings(&conditions, &replicates, &names);
+    let mut warnings = design_warnings(&conditions, &replicates, &names);
+    warnings.extend(plan.warning);
     Ok(Comparison {
         entries,
         conditions,
@@ -349,6 +355,79 @@ fn design_warnings(
         w.push("most replicates hold a single track: cells seem to be listed as replicates; the replicate is the embryo, dish or lane".into());
     }
     w
+}
+
+/// The fixed time of the directionality ratio per entry, in frames: with calibrated tracks the
+/// time is physical (`options.fixed_elapsed_frames` times the first entry's interval, e.g. 10
+/// frames of 1 min = 10 min) and each entry gets the frames that span it, so recordings filmed
+/// at different intervals are compared over the same minutes; otherwise the frames as given.
+struct FixedTimePlan {
+    frames: Vec<usize>,
+    /// `10_min` or `10_frames`, for the statistic's name.
+    label: String,
+    /// Said when the entries' intervals differ.
+    warning: Option<String>,
+}
+
+fn fixed_time_plan(
+    entries: &[ManifestEntry],
+    calibration: CalibrationOverride,
+    options: &AnalysisOptions,
+) -> Result<FixedTimePlan> {
+    let n = options.fixed_elapsed_frames;
+    let mut intervals = Vec::with_capacity(entries.len());
+    for e in entries {
+        let units = read_tracks(&e.path, calibration)?.units;
+        if units.time != TimeUnit::Minute {
+            return Ok(FixedTimePlan {
+                frames: vec![n; entries.len()],
+                label: format!("{n}_frames"),
+                warning: None,
+            });
+        }
+        intervals.push((e, units.time_per_frame));
+    }
+    let Some(&(_, first)) = intervals.first() else {
+        return Ok(FixedTimePlan {
+            frames: Vec::new(),
+            label: format!("{n}_frames"),
+            warning: None,
+        });
+    };
+    let minutes = n as f64 * first;
+    let shown = {
+        let t = format!("{minutes:.6}");
+        t.trim_end_matches('0').trim_end_matches('.').to_string()
+    };
+    let mut frames = Vec::with_capacity(entries.len());
+    for &(e, dt) in &intervals {
+        let k = minutes / dt;
+        if (k - k.round()).abs() > 1e-6 * k.max(1.0) || k.round() < 1.0 {
+            return Err(Error::input(
+                &e.path,
+                format!(
+                    "is filmed every {dt} min, which does not divide the {shown} min of the directionality ratio at a fixed time ({n} frames of the first recording); give --fixed-time-frames so that it spans whole frames of every recording"
+                ),
+            ));
+        }
+        frames.push(k.round() as usize);
+    }
+    let differ = intervals.iter().any(|&(_, dt)| (dt - first).abs() > 1e-9 * first);
+    let warning = differ.then(|| {
+        let list: Vec<String> = intervals
+            .iter()
+            .map(|(e, dt)| format!("{} {} every {dt} min", e.condition, e.replicate))
+            .collect();
+        format!(
+            "frame intervals differ ({}): the directionality ratio is compared over the same {shown} min, but path lengths, speeds and turning angles are measured between frames and shrink with coarser sampling, so they are not comparable across these recordings",
+            list.join(", ")
+        )
+    });
+    Ok(FixedTimePlan {
+        frames,
+        label: format!("{shown}_min"),
+        warning,
+    })
 }
 
 /// Writes `replicates.csv`, `comparison.csv` and `summary.json` into `dir` (`crate::reports`
