@@ -5,7 +5,7 @@
 
 use super::population::{Analysis, AnalysisOptions};
 use super::run::{analyze_input, write_table};
-use super::stats::{hedges_g, hierarchical_bootstrap, mann_whitney, mean_sd, quantile};
+use super::stats::{hedges_g, hierarchical_bootstrap, holm, mann_whitney, mean_sd, permutation_test, quantile};
 use super::table::{read_tracks, CalibrationOverride, Filters};
 use super::table::{LengthUnit, TimeUnit};
 use crate::error::{Error, Result};
@@ -150,11 +150,16 @@ pub struct Difference {
     pub means: (f64, f64),
     /// condition − reference.
     pub difference: f64,
-    /// 95% hierarchical bootstrap interval of the difference.
+    /// 95% hierarchical bootstrap interval of the difference (an interval only: with few
+    /// replicates a bootstrap p falls below what the design allows).
     pub ci95: (f64, f64),
-    /// Two-sided bootstrap p: twice the smaller share of resampled differences on either side
-    /// of 0.
-    pub bootstrap_p: f64,
+    /// Two-sided permutation test of the replicate means (see [`permutation_test`]).
+    pub permutation_p: Option<f64>,
+    /// `exact` or `sampled`.
+    pub permutation_method: Option<&'static str>,
+    /// The permutation p adjusted by Holm's method over the statistics compared for this
+    /// condition.
+    pub permutation_p_holm: Option<f64>,
     /// Mann–Whitney test on replicate means.
     pub mann_whitney_u: Option<f64>,
     /// Its two-sided p.
@@ -253,6 +258,7 @@ pub fn compare(
             differences.push(difference(name, &replicates[name], &conditions[0], other, &mut rng));
         }
     }
+    adjust_by_holm(&mut differences);
     let mut warnings = design_warnings(&conditions, &replicates, &names);
     warnings.extend(plan.warning);
     Ok(Comparison {
@@ -284,9 +290,8 @@ fn difference(name: &str, reps: &[ReplicateValues], reference: &str, other: &str
     let boot_ref = hierarchical_bootstrap(&ref_groups, BOOTSTRAP_RESAMPLES, rng);
     let boot_oth = hierarchical_bootstrap(&oth_groups, BOOTSTRAP_RESAMPLES, rng);
     let diffs: Vec<f64> = boot_oth.iter().zip(&boot_ref).map(|(a, b)| a - b).collect();
-    let share =
-        |pred: &dyn Fn(f64) -> bool| diffs.iter().filter(|&&d| pred(d)).count() as f64 / diffs.len().max(1) as f64;
     let mw = mann_whitney(&oth_means, &ref_means);
+    let permutation = permutation_test(&oth_means, &ref_means, rng);
     Difference {
         statistic: name.to_string(),
         reference: reference.to_string(),
@@ -302,16 +307,29 @@ fn difference(name: &str, reps: &[ReplicateValues], reference: &str, other: &str
             quantile(&diffs, 0.025).unwrap_or(f64::NAN),
             quantile(&diffs, 0.975).unwrap_or(f64::NAN),
         ),
-        bootstrap_p: if diffs.is_empty() {
-            f64::NAN
-        } else {
-            (2.0 * share(&|d| d <= 0.0).min(share(&|d| d >= 0.0))).min(1.0)
-        },
+        permutation_p: permutation.map(|t| t.p),
+        permutation_method: permutation.map(|t| t.method),
+        permutation_p_holm: None,
         mann_whitney_u: mw.map(|m| m.u1),
         mann_whitney_p: mw.map(|m| m.p),
         mann_whitney_method: mw.map(|m| m.method),
         rank_biserial: mw.map(|m| m.rank_biserial),
         hedges_g: hedges_g(&oth_means, &ref_means),
+    }
+}
+
+/// Fills each difference's Holm-adjusted permutation p, over the statistics compared for its
+/// condition (one family per condition against the reference).
+fn adjust_by_holm(differences: &mut [Difference]) {
+    let conditions: Vec<String> = differences.iter().map(|d| d.condition.clone()).collect();
+    for condition in &conditions {
+        let family: Vec<usize> = (0..differences.len())
+            .filter(|&k| &differences[k].condition == condition && differences[k].permutation_p.is_some())
+            .collect();
+        let p: Vec<f64> = family.iter().filter_map(|&k| differences[k].permutation_p).collect();
+        for (&k, adjusted) in family.iter().zip(holm(&p)) {
+            differences[k].permutation_p_holm = Some(adjusted);
+        }
     }
 }
 
@@ -477,7 +495,7 @@ type TextColumn<R> = (&'static str, fn(&R) -> String);
 
 /// The columns of `comparison.csv` (and the report's table): name and cell, one list for
 /// header and rows.
-const COMPARISON_COLUMNS: [TextColumn<Difference>; 16] = [
+const COMPARISON_COLUMNS: [TextColumn<Difference>; 17] = [
     ("statistic", |d| d.statistic.clone()),
     ("reference", |d| d.reference.clone()),
     ("condition", |d| d.condition.clone()),
@@ -490,7 +508,8 @@ const COMPARISON_COLUMNS: [TextColumn<Difference>; 16] = [
     ("difference", |d| six(d.difference)),
     ("ci95_low", |d| six(d.ci95.0)),
     ("ci95_high", |d| six(d.ci95.1)),
-    ("bootstrap_p", |d| six(d.bootstrap_p)),
+    ("permutation_p", |d| six_or_empty(d.permutation_p)),
+    ("permutation_p_holm", |d| six_or_empty(d.permutation_p_holm)),
     ("mann_whitney_p", |d| six_or_empty(d.mann_whitney_p)),
     ("rank_biserial", |d| six_or_empty(d.rank_biserial)),
     ("hedges_g", |d| six_or_empty(d.hedges_g)),

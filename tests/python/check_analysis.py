@@ -7,8 +7,9 @@ default filter): per-track path length, net displacement, mean speed and directi
 the pooled MSD with overlapping windows; the Rayleigh statistic of net-displacement
 directions (Zar 2010); the order parameter per frame (Vicsek 1995). For the comparison: each
 replicate's mean speed derived from its own tracks.csv (the manifest's entries), checked
-against replicates.csv, and scipy.stats.mannwhitneyu and Hedges' g on those derived means (the
-other statistics on the means replicates.csv writes).
+against replicates.csv, and scipy.stats.mannwhitneyu, Hedges' g and the exact permutation test
+on those derived means (the other statistics on the means replicates.csv writes), then Holm's
+adjustment.
 """
 import csv
 import json
@@ -18,6 +19,7 @@ import sys
 from collections import defaultdict
 
 import numpy as np
+from itertools import combinations
 from scipy.stats import mannwhitneyu
 
 run, ana, cmp_dir = sys.argv[1:4]
@@ -120,4 +122,24 @@ for d in comparison["differences"]:
     g = (np.mean(x) - np.mean(y)) / pooled * (1 - 3 / (4 * (n1 + n2) - 9))
     # (replicates.csv holds the means to 6 decimals, so agreement is to about 1e-5 relative)
     assert abs(g - d["hedges_g"]) < 1e-4 * max(1.0, abs(g)), (d["statistic"], g, d["hedges_g"])
+    # The exact permutation test of replicate means (Fisher 1935; Pitman 1937), enumerated here
+    # with itertools: the share of assignments of the pooled means to groups of these sizes
+    # whose |difference of means| reaches the observed one (within one assignment's weight,
+    # since the other statistics' means are read at 6 decimals).
+    pooled, total = list(x) + list(y), sum(x) + sum(y)
+    observed = abs(np.mean(x) - np.mean(y))
+    diffs = [abs(sum(pooled[i] for i in c) / n1 - (total - sum(pooled[i] for i in c)) / n2)
+             for c in combinations(range(n1 + n2), n1)]
+    perm = sum(dd >= observed - 1e-9 * max(observed, 1e-12) for dd in diffs) / len(diffs)
+    assert d["permutation_method"] == "exact", d["permutation_method"]
+    assert abs(perm - d["permutation_p"]) <= 1.0 / len(diffs) + 1e-9, (d["statistic"], perm, d["permutation_p"])
+# Holm (1979) over the statistics compared for each condition, recomputed from the reported
+# permutation p values.
+for cond in {d["condition"] for d in comparison["differences"]}:
+    family = [d for d in comparison["differences"] if d["condition"] == cond and d["permutation_p"] is not None]
+    order = sorted(range(len(family)), key=lambda k: (family[k]["permutation_p"], k))
+    running = 0.0
+    for i, k in enumerate(order):
+        running = max(running, min(1.0, (len(family) - i) * family[k]["permutation_p"]))
+        assert abs(running - family[k]["permutation_p_holm"]) < 1e-9, (cond, family[k]["statistic"])
 print(f"analysis checked: {len(tracks)} tracks, {len(comparison['differences'])} differences")
