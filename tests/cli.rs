@@ -608,11 +608,17 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
         args
     };
     let track = |out: &Path, extra: &[&str]| track_of(&rec, out, extra);
+    let run = |input: &Path, out: &Path, extra: &[&str], threads: &str| {
+        caravan(
+            &track_of(input, out, extra)
+                .iter()
+                .map(String::as_str)
+                .collect::<Vec<_>>(),
+            threads,
+        )
+    };
     let whole = dir.path().join("whole");
-    ok(&caravan(
-        &track(&whole, &[]).iter().map(String::as_str).collect::<Vec<_>>(),
-        "2",
-    ));
+    ok(&run(&rec, &whole, &[], "2"));
     let killed = dir.path().join("killed");
     let mut child = Command::new(env!("CARGO_BIN_EXE_caravan"))
         .args(track(&killed, &[]))
@@ -635,7 +641,7 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
         std::thread::sleep(std::time::Duration::from_millis(5));
     }
     // One run per folder: a second run into it is refused at once, naming the running process.
-    let second = caravan(&track(&killed, &[]).iter().map(String::as_str).collect::<Vec<_>>(), "1");
+    let second = run(&rec, &killed, &[], "1");
     assert_eq!(second.status.code(), Some(2));
     let message = String::from_utf8_lossy(&second.stderr);
     assert!(
@@ -649,13 +655,7 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
     // Another recording of the same size is refused, naming the frame that differs.
     let replaced = dir.path().join("replaced");
     copy_folder(&killed, &replaced);
-    let refused = caravan(
-        &track_of(Path::new(&other), &replaced, &["--resume"])
-            .iter()
-            .map(String::as_str)
-            .collect::<Vec<_>>(),
-        "2",
-    );
+    let refused = run(Path::new(&other), &replaced, &["--resume"], "2");
     assert_eq!(refused.status.code(), Some(2));
     let message = String::from_utf8_lossy(&refused.stderr);
     assert!(
@@ -678,26 +678,14 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
     std::fs::write(&log, format!("{}\n{}\n", first, rest.join("\n"))).unwrap();
     state["log_bytes"] = serde_json::json!(std::fs::metadata(&log).unwrap().len());
     std::fs::write(&state_path, state.to_string()).unwrap();
-    ok(&caravan(
-        &track(&planted, &["--resume"])
-            .iter()
-            .map(String::as_str)
-            .collect::<Vec<_>>(),
-        "2",
-    ));
+    ok(&run(&rec, &planted, &["--resume"], "2"));
     let detections = std::fs::read_to_string(planted.join("detections.csv")).unwrap();
     assert!(
         detections.lines().nth(1).unwrap().starts_with("0,1,1.2345,"),
         "{}",
         detections.lines().nth(1).unwrap()
     );
-    ok(&caravan(
-        &track(&killed, &["--resume"])
-            .iter()
-            .map(String::as_str)
-            .collect::<Vec<_>>(),
-        "2",
-    ));
+    ok(&run(&rec, &killed, &["--resume"], "2"));
     assert_same_run_outputs(&whole, &killed);
     assert_eq!(run_record_without_timings(&whole), run_record_without_timings(&killed));
     let leftovers: Vec<String> = std::fs::read_dir(&killed)
@@ -707,13 +695,7 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
         .collect();
     assert!(leftovers.is_empty(), "{leftovers:?}");
     // A finished run keeps no checkpoint: resuming it is refused with exit code 2.
-    let other = caravan(
-        &track(&dir.path().join("whole"), &["--resume", "--max-gap", "1"])
-            .iter()
-            .map(String::as_str)
-            .collect::<Vec<_>>(),
-        "1",
-    );
+    let other = run(&rec, &dir.path().join("whole"), &["--resume", "--max-gap", "1"], "1");
     assert_eq!(other.status.code(), Some(2));
 }
 

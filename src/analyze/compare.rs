@@ -4,9 +4,9 @@
 //! warnings where the design cannot support a test.
 
 use super::population::{Analysis, AnalysisOptions};
-use super::run::{analyze_input, write_table};
+use super::run::{analyze_table, write_table};
 use super::stats::{hedges_g, hierarchical_bootstrap, holm, mann_whitney, mean_sd, permutation_test, quantile};
-use super::table::{read_tracks, CalibrationOverride, Filters};
+use super::table::{read_tracks, CalibrationOverride, Filters, TrackTable};
 use super::table::{LengthUnit, TimeUnit};
 use crate::error::{Error, Result};
 use crate::numeric::Rng;
@@ -206,21 +206,14 @@ pub fn compare(
     let mut replicates: BTreeMap<String, Vec<ReplicateValues>> = BTreeMap::new();
     let mut names = Vec::new();
     let mut units: Option<(String, LengthUnit, TimeUnit)> = None;
-    let plan = fixed_time_plan(&entries, calibration, options)?;
-    for (e, &fixed_frames) in entries.iter().zip(&plan.frames) {
+    let mut fixed: Option<FixedTime> = None;
+    let mut intervals: Vec<(&ManifestEntry, f64)> = Vec::with_capacity(entries.len());
+    for e in &entries {
         if !conditions.contains(&e.condition) {
             conditions.push(e.condition.clone());
         }
-        let options = AnalysisOptions {
-            fixed_elapsed_frames: fixed_frames,
-            ..options.clone()
-        };
-        let (table, analysis) = analyze_input(&e.path, calibration, filters, &options)?;
-        let these = (
-            table.source.display().to_string(),
-            analysis.units.length,
-            analysis.units.time,
-        );
+        let table = read_tracks(&e.path, calibration)?;
+        let these = (table.source.display().to_string(), table.units.length, table.units.time);
         match &units {
             Some(u) if (u.1, u.2) != (these.1, these.2) => {
                 return Err(Error::input(
@@ -234,8 +227,16 @@ pub fn compare(
             Some(_) => {}
             None => units = Some(these),
         }
+        let fixed = fixed.get_or_insert_with(|| FixedTime::of_first(&table, options.fixed_elapsed_frames));
+        intervals.push((e, table.units.time_per_frame));
+        let options = AnalysisOptions {
+            fixed_elapsed_frames: fixed.frames_for(&table)?,
+            ..options.clone()
+        };
+        let analysis = analyze_table(&table, filters, &options)?;
+        let label = fixed.label();
         names.clear();
-        for (name, values) in statistics(&analysis, &plan.label) {
+        for (name, values) in statistics(&analysis, &label) {
             names.push(name.clone());
             let reps = replicates.entry(name).or_default();
             match reps
@@ -260,7 +261,7 @@ pub fn compare(
     }
     adjust_by_holm(&mut differences);
     let mut warnings = design_warnings(&conditions, &replicates, &names);
-    warnings.extend(plan.warning);
+    warnings.extend(fixed.and_then(|f| f.intervals_warning(&intervals)));
     Ok(Comparison {
         entries,
         conditions,
@@ -321,7 +322,7 @@ fn difference(name: &str, reps: &[ReplicateValues], reference: &str, other: &str
 /// Fills each difference's Holm-adjusted permutation p, over the statistics compared for its
 /// condition (one family per condition against the reference).
 fn adjust_by_holm(differences: &mut [Difference]) {
-    let conditions: Vec<String> = differences.iter().map(|d| d.condition.clone()).collect();
+    let conditions: std::collections::BTreeSet<String> = differences.iter().map(|d| d.condition.clone()).collect();
     for condition in &conditions {
         let family: Vec<usize> = (0..differences.len())
             .filter(|&k| &differences[k].condition == condition && differences[k].permutation_p.is_some())
@@ -375,77 +376,82 @@ fn design_warnings(
     w
 }
 
-/// The fixed time of the directionality ratio per entry, in frames: with calibrated tracks the
-/// time is physical (`options.fixed_elapsed_frames` times the first entry's interval, e.g. 10
-/// frames of 1 min = 10 min) and each entry gets the frames that span it, so recordings filmed
-/// at different intervals are compared over the same minutes; otherwise the frames as given.
-struct FixedTimePlan {
-    frames: Vec<usize>,
-    /// `10_min` or `10_frames`, for the statistic's name.
-    label: String,
-    /// Said when the entries' intervals differ.
-    warning: Option<String>,
+/// The fixed time of the directionality ratio: with calibrated tracks it is physical
+/// (`fixed_elapsed_frames` times the first recording's interval, e.g. 10 frames of 1 min =
+/// 10 min) and each recording gets the frames that span it, so recordings filmed at different
+/// intervals are compared over the same minutes; otherwise the frames as given.
+enum FixedTime {
+    Frames(usize),
+    Minutes {
+        minutes: f64,
+        shown: String,
+        frames_of_first: usize,
+    },
 }
 
-fn fixed_time_plan(
-    entries: &[ManifestEntry],
-    calibration: CalibrationOverride,
-    options: &AnalysisOptions,
-) -> Result<FixedTimePlan> {
-    let n = options.fixed_elapsed_frames;
-    let mut intervals = Vec::with_capacity(entries.len());
-    for e in entries {
-        let units = read_tracks(&e.path, calibration)?.units;
-        if units.time != TimeUnit::Minute {
-            return Ok(FixedTimePlan {
-                frames: vec![n; entries.len()],
-                label: format!("{n}_frames"),
-                warning: None,
-            });
+impl FixedTime {
+    fn of_first(table: &TrackTable, frames: usize) -> FixedTime {
+        if table.units.time != TimeUnit::Minute {
+            return FixedTime::Frames(frames);
         }
-        intervals.push((e, units.time_per_frame));
-    }
-    let Some(&(_, first)) = intervals.first() else {
-        return Ok(FixedTimePlan {
-            frames: Vec::new(),
-            label: format!("{n}_frames"),
-            warning: None,
-        });
-    };
-    let minutes = n as f64 * first;
-    let shown = {
+        let minutes = frames as f64 * table.units.time_per_frame;
         let t = format!("{minutes:.6}");
-        t.trim_end_matches('0').trim_end_matches('.').to_string()
-    };
-    let mut frames = Vec::with_capacity(entries.len());
-    for &(e, dt) in &intervals {
+        FixedTime::Minutes {
+            minutes,
+            shown: t.trim_end_matches('0').trim_end_matches('.').to_string(),
+            frames_of_first: frames,
+        }
+    }
+
+    /// `10_min` or `10_frames`, for the statistic's name.
+    fn label(&self) -> String {
+        match self {
+            FixedTime::Frames(n) => format!("{n}_frames"),
+            FixedTime::Minutes { shown, .. } => format!("{shown}_min"),
+        }
+    }
+
+    /// The frames of `table` that span the fixed time; an error naming the file where its
+    /// interval does not divide it.
+    fn frames_for(&self, table: &TrackTable) -> Result<usize> {
+        let (minutes, shown, n) = match self {
+            FixedTime::Frames(n) => return Ok(*n),
+            FixedTime::Minutes {
+                minutes,
+                shown,
+                frames_of_first,
+            } => (*minutes, shown, frames_of_first),
+        };
+        let dt = table.units.time_per_frame;
         let k = minutes / dt;
         if (k - k.round()).abs() > 1e-6 * k.max(1.0) || k.round() < 1.0 {
             return Err(Error::input(
-                &e.path,
+                &table.source,
                 format!(
                     "is filmed every {dt} min, which does not divide the {shown} min of the directionality ratio at a fixed time ({n} frames of the first recording); give --fixed-time-frames so that it spans whole frames of every recording"
                 ),
             ));
         }
-        frames.push(k.round() as usize);
+        Ok(k.round() as usize)
     }
-    let differ = intervals.iter().any(|&(_, dt)| (dt - first).abs() > 1e-9 * first);
-    let warning = differ.then(|| {
-        let list: Vec<String> = intervals
-            .iter()
-            .map(|(e, dt)| format!("{} {} every {dt} min", e.condition, e.replicate))
-            .collect();
-        format!(
-            "frame intervals differ ({}): the directionality ratio is compared over the same {shown} min, but path lengths, speeds and turning angles are measured between frames and shrink with coarser sampling, so they are not comparable across these recordings",
-            list.join(", ")
-        )
-    });
-    Ok(FixedTimePlan {
-        frames,
-        label: format!("{shown}_min"),
-        warning,
-    })
+
+    /// Said when the recordings' intervals (minutes per frame) differ.
+    fn intervals_warning(&self, intervals: &[(&ManifestEntry, f64)]) -> Option<String> {
+        let FixedTime::Minutes { shown, .. } = self else {
+            return None;
+        };
+        let first = intervals.first()?.1;
+        intervals.iter().any(|&(_, dt)| (dt - first).abs() > 1e-9 * first).then(|| {
+            let list: Vec<String> = intervals
+                .iter()
+                .map(|(e, dt)| format!("{} {} every {dt} min", e.condition, e.replicate))
+                .collect();
+            format!(
+                "frame intervals differ ({}): the directionality ratio is compared over the same {shown} min, but path lengths, speeds and turning angles are measured between frames and shrink with coarser sampling, so they are not comparable across these recordings",
+                list.join(", ")
+            )
+        })
+    }
 }
 
 /// Writes `replicates.csv`, `comparison.csv` and `summary.json` into `dir` (`crate::reports`

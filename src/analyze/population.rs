@@ -211,24 +211,17 @@ fn collective(tracks: &[Track], everyone: &[Track], dt: f64, k: usize) -> (Vec<F
     type FrameData = (Vec<[f64; 2]>, Vec<([f64; 2], [f64; 2])>);
     let mut by_frame: BTreeMap<usize, FrameData> = BTreeMap::new();
     for t in tracks {
-        for p in &t.path {
-            by_frame.entry(p.frame).or_default();
-        }
-    }
-    for t in everyone {
-        for p in &t.path {
-            if let Some(e) = by_frame.get_mut(&p.frame) {
-                e.0.push([p.x, p.y]);
-            }
-        }
-    }
-    for t in tracks {
         for (i, &PathPoint { frame: f, x, y }) in t.path.iter().enumerate() {
             let e = by_frame.entry(f).or_default();
             if let Some(&PathPoint { frame: g, x: x2, y: y2 }) = t.path.get(i + 1).filter(|n| n.frame == f + 1) {
                 debug_assert_eq!(g, f + 1);
                 e.1.push(([x, y], [(x2 - x) / dt, (y2 - y) / dt]));
             }
+        }
+    }
+    for p in everyone.iter().flat_map(|t| &t.path) {
+        if let Some(e) = by_frame.get_mut(&p.frame) {
+            e.0.push([p.x, p.y]);
         }
     }
     let mut frames = Vec::with_capacity(by_frame.len());

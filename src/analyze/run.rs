@@ -104,6 +104,15 @@ pub fn analyze_input(
     options: &AnalysisOptions,
 ) -> Result<(TrackTable, Analysis)> {
     let table = read_tracks(input, calibration)?;
+    let analysis = analyze_table(&table, filters, options)?;
+    Ok((table, analysis))
+}
+
+/// Filters and analyses tracks already read.
+///
+/// # Errors
+/// No track left after filtering.
+pub fn analyze_table(table: &TrackTable, filters: &Filters, options: &AnalysisOptions) -> Result<Analysis> {
     let kept = apply_filters(&table.tracks, filters);
     if kept.is_empty() {
         return Err(Error::input(
@@ -123,8 +132,7 @@ pub fn analyze_input(
         region: None,
     };
     let everyone = apply_filters(&table.tracks, &frames_only);
-    let analysis = analyze_tracks_among(&kept, &everyone, &table.units, options);
-    Ok((table, analysis))
+    Ok(analyze_tracks_among(&kept, &everyone, &table.units, options))
 }
 
 /// Writes one table atomically.

@@ -128,8 +128,8 @@ for d in comparison["differences"]:
     # since the other statistics' means are read at 6 decimals).
     pooled, total = list(x) + list(y), sum(x) + sum(y)
     observed = abs(np.mean(x) - np.mean(y))
-    diffs = [abs(sum(pooled[i] for i in c) / n1 - (total - sum(pooled[i] for i in c)) / n2)
-             for c in combinations(range(n1 + n2), n1)]
+    sums = [sum(pooled[i] for i in c) for c in combinations(range(n1 + n2), n1)]
+    diffs = [abs(s / n1 - (total - s) / n2) for s in sums]
     perm = sum(dd >= observed - 1e-9 * max(observed, 1e-12) for dd in diffs) / len(diffs)
     assert d["permutation_method"] == "exact", d["permutation_method"]
     assert abs(perm - d["permutation_p"]) <= 1.0 / len(diffs) + 1e-9, (d["statistic"], perm, d["permutation_p"])
