@@ -3,16 +3,19 @@
 //! neither imports the other's writer (statistics never call drawing code).
 
 use crate::analyze::compare::{
-    comparison_header, comparison_rows, replicate_means, write_comparison_tables, Comparison,
+    comparison_header, comparison_rows, condition_curve, replicate_means, write_comparison_tables, Comparison,
+    RecordingCurves,
 };
-use crate::analyze::msd::furth_msd;
+use crate::analyze::models::ModelFit;
+use crate::analyze::population::Analysis;
 use crate::analyze::population::AnalysisOptions;
+use crate::analyze::resample::{Interval, ModelIntervals};
 use crate::analyze::run::{write_analysis_tables, AnalysisRun, ANALYSIS_TABLES};
 use crate::analyze::table::{CalibrationOverride, Filters};
 use crate::error::Result;
 use crate::output::write_atomic;
-use crate::render::plots::Strip;
-use crate::render::report::{analysis_report, comparison_report, AnalysisPage, ComparedStatistic};
+use crate::render::plots::{Series, Strip};
+use crate::render::report::{analysis_report, comparison_report, AnalysisPage, ComparedCurves, ComparedStatistic};
 use std::path::Path;
 
 /// Every file an analysis folder holds: the tables, `summary.json` and `report.html`.
@@ -53,21 +56,21 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
     let (l, t) = (a.units.length.as_str(), a.units.time.as_str());
     let dt = a.units.time_per_frame;
     let paths = run
-        .table
-        .tracks
+        .analysed
         .iter()
-        .filter(|tr| a.tracks.iter().any(|m| m.track_id == tr.id))
         .map(|tr| tr.path.iter().map(|p| (p.x, p.y)).collect())
         .collect();
-    let msd_fit = a.furth.as_ref().map(|f| {
-        let (lo, hi) = (f.lag_range_frames.0 as f64, f.lag_range_frames.1 as f64);
+    let msd_fit = a.models.best().map(|f| {
+        let (lo, hi) = (a.fit_lags.0 as f64, a.fit_lags.1 as f64);
         let fit = (0..=40)
             .map(|k| lo * dt * (hi / lo).powf(k as f64 / 40.0))
-            .map(|lag| (lag, furth_msd(lag, f.diffusion, f.persistence)))
+            .map(|lag| (lag, f.parameters.msd_at(lag)))
             .collect();
-        let label = format!("fit D = {:.3} {l}²/{t}, P = {:.2} {t}", f.diffusion, f.persistence);
-        (label, fit)
+        (format!("{} (chosen)", f.model.name()), fit)
     });
+    let band = |points: &mut dyn Iterator<Item = (f64, Option<Interval>)>| -> Vec<(f64, f64, f64)> {
+        points.filter_map(|(x, i)| i.map(|i| (x, i.low, i.high))).collect()
+    };
     AnalysisPage {
         source: run.table.source.display().to_string(),
         tracks_read: run.table.tracks.len(),
@@ -80,7 +83,14 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
         paths,
         directions_deg: a.tracks.iter().filter_map(|m| m.mean_direction_deg).collect(),
         msd: a.msd.iter().map(|q| (q.lag, q.msd)).collect(),
+        msd_band: band(&mut a.msd.iter().zip(&a.uncertainty.msd).map(|(q, i)| (q.lag, *i))),
+        per_cell_msd: a.per_cell_msd.iter().map(|c| (c.0 as f64 * dt, c.1)).collect(),
         msd_fit,
+        model_criterion: format!(
+            "Fitted to the pooled MSD over lags {}-{} frames by weighted least squares (weights: pairs per lag); the model chosen is the one with the fewest parameters among those within 2 of the lowest small-sample Akaike information criterion, AICc (Burnham & Anderson 2002). Intervals: 2.5th-97.5th percentiles over {} resamples of whole tracks.",
+            a.fit_lags.0, a.fit_lags.1, a.uncertainty.resamples
+        ),
+        models: model_rows(a),
         model_warnings: &a.warnings,
         speeds: a.tracks.iter().filter_map(|m| m.mean_speed).collect(),
         directionality: a.tracks.iter().filter_map(|m| m.directionality_ratio).collect(),
@@ -94,12 +104,84 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
             .iter()
             .map(|q| (q.lag_frames as f64 * dt, q.direction))
             .collect(),
+        direction_autocorrelation_band: band(
+            &mut a
+                .autocorrelation
+                .iter()
+                .zip(&a.uncertainty.direction_autocorrelation)
+                .map(|(q, i)| (q.lag_frames as f64 * dt, *i)),
+        ),
         neighbour_correlation: a
             .neighbour_correlation
             .iter()
             .filter_map(|b| b.correlation.map(|c| ((b.from + b.to) / 2.0, c)))
             .collect(),
         parameters: serde_json::json!({ "options": a.options, "units": a.units }),
+    }
+}
+
+/// The models table: each candidate's parameters with intervals, its ΔAICc and whether it
+/// was chosen; failed candidates with their reason.
+fn model_rows(a: &Analysis) -> Vec<Vec<String>> {
+    let best = a.models.best().map(|b| b.aicc);
+    let mut rows: Vec<Vec<String>> = a
+        .models
+        .fitted
+        .iter()
+        .zip(&a.uncertainty.models)
+        .map(|(f, i)| {
+            let chosen = best == Some(f.aicc);
+            vec![
+                f.model.name(),
+                parameter_text(a, f, i),
+                best.map_or(String::new(), |b| format!("{:.2}", f.aicc - b)),
+                if chosen { "chosen".into() } else { String::new() },
+            ]
+        })
+        .collect();
+    rows.extend(a.models.failed.iter().map(|f| {
+        vec![
+            f.model.name(),
+            String::new(),
+            String::new(),
+            format!("failed: {}", f.reason),
+        ]
+    }));
+    rows
+}
+
+/// `D = 1.93 [1.61, 2.30] um²/min; P = …` for one candidate.
+fn parameter_text(a: &Analysis, f: &ModelFit, i: &ModelIntervals) -> String {
+    let (l, t) = (a.units.length.as_str(), a.units.time.as_str());
+    let one = |name: &str, v: f64, ci: Option<Interval>, unit: String| match ci {
+        Some(c) => format!("{name} = {} [{}, {}] {unit}", sig(v), sig(c.low), sig(c.high)),
+        None => format!("{name} = {} {unit}", sig(v)),
+    };
+    let p = &f.parameters;
+    let mut parts = vec![one("D", p.diffusion, i.diffusion, format!("{l}²/{t}"))];
+    if let Some(pt) = p.persistence {
+        parts.push(one("P", pt, i.persistence, t.to_string()));
+    }
+    if let Some(v) = p.drift_speed {
+        parts.push(one("v", v, i.drift_speed, format!("{l}/{t}")));
+    }
+    if let Some(sigma) = p.localisation_error() {
+        let ci = i.noise_offset.map(|c| Interval {
+            low: (c.low.max(0.0) / 4.0).sqrt(),
+            high: (c.high.max(0.0) / 4.0).sqrt(),
+        });
+        parts.push(one("σ", sigma, ci, l.to_string()));
+    }
+    parts.join("; ")
+}
+
+/// Four significant figures, without exponent notation in the usual range.
+fn sig(v: f64) -> String {
+    if v != 0.0 && (v.abs() >= 1e5 || v.abs() < 1e-3) {
+        format!("{v:.3e}")
+    } else {
+        let decimals = (3 - v.abs().log10().floor() as i32).clamp(0, 6) as usize;
+        format!("{v:.decimals$}")
     }
 }
 
@@ -146,8 +228,42 @@ pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<(
         &entries,
         &comparison_rows(c),
         &comparison_header(),
-        &stats,
+        (&stats, &compared_curves(c)),
         &c.warnings,
     );
     write_atomic(&dir.join("report.html"), html.as_bytes())
+}
+
+/// The MSD and direction autocorrelation of every condition, overlaid.
+fn compared_curves(c: &Comparison) -> Vec<ComparedCurves> {
+    let (l, t) = (c.units.0.as_str(), c.units.1.as_str());
+    let series = |pick: fn(&RecordingCurves) -> &[(f64, f64)]| -> Vec<Series> {
+        c.conditions
+            .iter()
+            .map(|cond| {
+                let curve = condition_curve(&c.curves, cond, pick);
+                Series {
+                    band: curve.iter().map(|p| (p.0, p.2, p.3)).collect(),
+                    ..Series::new(cond.clone(), curve.iter().map(|p| (p.0, p.1)).collect(), true)
+                }
+            })
+            .collect()
+    };
+    let caption = "Points: the mean over the condition's replicates (each replicate the mean of its recordings); shaded: from the lowest to the highest replicate, lags every replicate has.";
+    vec![
+        ComparedCurves {
+            title: "Mean squared displacement per condition".into(),
+            axes: (format!("lag ({t})"), format!("MSD ({l}²)")),
+            log: true,
+            series: series(|r| &r.msd),
+            caption: caption.into(),
+        },
+        ComparedCurves {
+            title: "Direction autocorrelation per condition".into(),
+            axes: (format!("lag ({t})"), "⟨û(t)·û(t+lag)⟩".into()),
+            log: false,
+            series: series(|r| &r.direction_autocorrelation),
+            caption: caption.into(),
+        },
+    ]
 }

@@ -314,9 +314,16 @@ fn reports_open_in_a_browser_with_every_chart() {
     ] {
         assert!(dom.contains(&format!("id=\"{id}\"")), "{id}");
     }
-    // One strip chart per compared statistic (4).
+    assert!(dom.contains("id=\"models\""), "the motion-model table");
+    // The conditions' MSD and direction autocorrelation overlaid (2), and one strip chart per
+    // compared statistic (6: four per-track ones, the walk's D and P).
     let dom = open_in_browser(&browser, &dir.path().join("cmp/report.html"), &dir.path().join("p2"));
-    assert!(dom.contains("data-charts=\"4\"") && dom.contains("data-charts-failed=\"0\""));
+    assert!(
+        dom.contains("data-charts=\"8\"") && dom.contains("data-charts-failed=\"0\""),
+        "{}",
+        &dom[dom.len().saturating_sub(300)..]
+    );
+    assert!(dom.contains("id=\"curves-0\"") && dom.contains("id=\"curves-1\""));
     assert!(
         dom.contains("slow0&lt;b&gt;.csv"),
         "file names with markup show as text"

@@ -163,7 +163,15 @@ fn batch_lists_runs_judged_failed_and_leaves_them_out_of_the_comparison() {
     );
     let stdout = String::from_utf8_lossy(&out.stdout);
     assert_eq!(out.status.code(), Some(1), "{stdout}");
-    let listed = stdout.split("runs whose verdict is failed").nth(1).unwrap_or_default();
+    // The listed runs: the indented lines under the heading (warnings follow them).
+    let listed: String = stdout
+        .split("runs whose verdict is failed")
+        .nth(1)
+        .unwrap_or_default()
+        .lines()
+        .skip(1)
+        .take_while(|l| l.starts_with("  "))
+        .collect();
     assert!(
         listed.contains("embryo1") && !listed.contains("embryo0") && !listed.contains("embryo2"),
         "{stdout}"

@@ -26,13 +26,13 @@ fn unit(v: [f64; 2]) -> Option<[f64; 2]> {
     (n > 0.0).then(|| [v[0] / n, v[1] / n])
 }
 
-/// Accumulated cosines of pairs of directions, binned by distance.
+/// Accumulated dot products of pairs of vectors, binned by distance.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct PairCorrelation {
     /// Upper edge of each distance bin (the first bin starts at 0).
     pub bin_edges: Vec<f64>,
-    /// Sum of cosines per bin.
-    pub cosine_sum: Vec<f64>,
+    /// Sum of dot products per bin.
+    pub product_sum: Vec<f64>,
     /// Pairs per bin.
     pub pairs: Vec<usize>,
 }
@@ -43,19 +43,19 @@ impl PairCorrelation {
         let n = bin_edges.len();
         PairCorrelation {
             bin_edges,
-            cosine_sum: vec![0.0; n],
+            product_sum: vec![0.0; n],
             pairs: vec![0; n],
         }
     }
 
-    /// Adds every pair of one frame within the last edge: the cosine between their direction
-    /// vectors (vectors of zero length are left out).
+    /// Adds every pair of one frame within the last edge: the dot product of their vectors
+    /// as given (unit vectors give cosines; [`scaled_fluctuations`] give Cavagna's C(r)).
     pub fn add_frame(&mut self, positions: &[[f64; 2]], vectors: &[[f64; 2]]) {
         let Some(&reach) = self.bin_edges.last() else { return };
         for i in 0..positions.len() {
-            let Some(ui) = unit(vectors[i]) else { continue };
+            let ui = vectors[i];
             for j in i + 1..positions.len() {
-                let Some(uj) = unit(vectors[j]) else { continue };
+                let uj = vectors[j];
                 let d = (positions[i][0] - positions[j][0]).hypot(positions[i][1] - positions[j][1]);
                 if d > reach {
                     continue;
@@ -65,15 +65,15 @@ impl PairCorrelation {
                     .iter()
                     .position(|&e| d <= e)
                     .expect("within the last edge");
-                self.cosine_sum[bin] += ui[0] * uj[0] + ui[1] * uj[1];
+                self.product_sum[bin] += ui[0] * uj[0] + ui[1] * uj[1];
                 self.pairs[bin] += 1;
             }
         }
     }
 
-    /// Mean cosine per bin (`None` for empty bins).
+    /// Mean product per bin (`None` for empty bins).
     pub fn means(&self) -> Vec<Option<f64>> {
-        self.cosine_sum
+        self.product_sum
             .iter()
             .zip(&self.pairs)
             .map(|(&s, &n)| (n > 0).then(|| s / n as f64))
@@ -92,6 +92,25 @@ pub fn fluctuations(velocities: &[[f64; 2]]) -> Vec<[f64; 2]> {
     let n = velocities.len().max(1) as f64;
     let (mx, my) = velocities.iter().fold((0.0, 0.0), |(a, b), v| (a + v[0], b + v[1]));
     velocities.iter().map(|v| [v[0] - mx / n, v[1] - my / n]).collect()
+}
+
+/// The velocity fluctuations of one frame scaled by their root mean square, uᵢ = δvᵢ /
+/// √(⟨|δv|²⟩), so that ⟨|u|²⟩ = 1 and Σᵢ uᵢ = 0; `None` for fewer than two velocities or
+/// when every velocity is the same. The mean of uᵢ·uⱼ over pairs at distance r is the
+/// correlation function C(r) of Cavagna et al. (2010, their Eq. 1 and 2): 1 for identical
+/// fluctuations, and summed over all pairs (i = j included) exactly 0.
+///
+/// # Method
+/// A. Cavagna, A. Cimarelli, I. Giardina, G. Parisi, R. Santagati, F. Stefanini & M. Viale
+/// (2010), "Scale-free correlations in starling flocks", PNAS 107(26):11865–11870,
+/// doi:10.1073/pnas.1005766107.
+pub fn scaled_fluctuations(velocities: &[[f64; 2]]) -> Option<Vec<[f64; 2]>> {
+    if velocities.len() < 2 {
+        return None;
+    }
+    let d = fluctuations(velocities);
+    let rms = (d.iter().map(|v| v[0] * v[0] + v[1] * v[1]).sum::<f64>() / d.len() as f64).sqrt();
+    (rms > 0.0).then(|| d.iter().map(|v| [v[0] / rms, v[1] / rms]).collect())
 }
 
 /// Distance to the nearest other point and the local density of each point, estimated as
@@ -136,9 +155,30 @@ mod tests {
         assert!((order_parameter(&v).unwrap() - 0.353553).abs() < 1e-6);
         assert!((order_parameter(&v[..3]).unwrap() - 0.802773).abs() < 1e-6);
         let mut c = PairCorrelation::new(vec![5.0]);
-        c.add_frame(&[[0.0, 0.0], [3.0, 0.0], [0.0, 4.0], [20.0, 20.0]], &v);
+        let units: Vec<[f64; 2]> = v.iter().filter_map(|&x| unit(x)).collect();
+        c.add_frame(&[[0.0, 0.0], [3.0, 0.0], [0.0, 4.0], [20.0, 20.0]], &units);
         assert_eq!(c.pairs, vec![3]);
         assert!((c.means()[0].unwrap() - 0.466667).abs() < 1e-6);
+    }
+
+    #[test]
+    fn scaled_fluctuations_follow_cavagna_s_normalisation() {
+        // Source: Cavagna et al. (2010), Eq. 1–2: with uᵢ = δvᵢ/√(⟨|δv|²⟩), Σᵢⱼ uᵢ·uⱼ over all
+        // pairs (i = j included) is |Σuᵢ|² = 0 and Σᵢ|uᵢ|² = N, so the mean over the N(N−1)
+        // ordered pairs i ≠ j is −1/(N−1). Velocities (3,0), (1,0), (2,2), (2,−2): mean (2,0),
+        // fluctuations (1,0), (−1,0), (0,2), (0,−2), mean square 2.5 (hand-derived).
+        let v = [[3.0, 0.0], [1.0, 0.0], [2.0, 2.0], [2.0, -2.0]];
+        let u = scaled_fluctuations(&v).unwrap();
+        let s = 2.5f64.sqrt();
+        assert!((u[0][0] - 1.0 / s).abs() < 1e-12 && (u[3][1] + 2.0 / s).abs() < 1e-12);
+        let mut c = PairCorrelation::new(vec![100.0]);
+        c.add_frame(&[[0.0, 0.0], [1.0, 0.0], [2.0, 0.0], [3.0, 0.0]], &u);
+        assert!((c.means()[0].unwrap() + 1.0 / 3.0).abs() < 1e-12, "{:?}", c.means());
+        // Pairs (1,0)·(−1,0) = −1 and (0,2)·(0,−2) = −4, over 2.5: −0.4 and −1.6.
+        let mut near = PairCorrelation::new(vec![1.5]);
+        near.add_frame(&[[0.0, 0.0], [1.0, 0.0], [10.0, 0.0], [11.0, 0.0]], &u);
+        assert!((near.means()[0].unwrap() + 1.0).abs() < 1e-12, "{:?}", near.means());
+        assert!(scaled_fluctuations(&[[1.0, 1.0], [1.0, 1.0]]).is_none());
     }
 
     #[test]

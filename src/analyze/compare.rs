@@ -108,7 +108,13 @@ pub fn read_manifest_entries(path: &Path) -> Result<Vec<ManifestEntry>> {
 
 /// The per-track statistics compared, with the name they carry in the outputs (`fixed`: the
 /// fixed time of the directionality ratio, e.g. `10_min` or `10_frames`).
+///
+/// The persistent walk's D and P are one value per recording, from the better-scoring walk
+/// fit (with or without the noise offset) whichever model was chosen, so that every recording
+/// contributes the same parameters; a recording whose walk could not be fitted contributes
+/// none.
 fn statistics(a: &Analysis, fixed: &str) -> Vec<(String, Vec<f64>)> {
+    let walk = a.models.persistent_walk().map(|f| f.parameters);
     let col =
         |f: &dyn Fn(&super::motility::Motility) -> Option<f64>| a.tracks.iter().filter_map(f).collect::<Vec<f64>>();
     vec![
@@ -119,7 +125,81 @@ fn statistics(a: &Analysis, fixed: &str) -> Vec<(String, Vec<f64>)> {
         ),
         ("forward_migration_index".into(), col(&|m| m.forward_migration_index)),
         ("mean_abs_turning_angle_deg".into(), col(&|m| m.mean_abs_turning_deg)),
+        (
+            format!("walk_diffusion_coefficient_{}2_per_{}", a.units.length, a.units.time),
+            walk.map(|p| p.diffusion).into_iter().collect(),
+        ),
+        (
+            format!("walk_persistence_time_{}", a.units.time),
+            walk.and_then(|p| p.persistence).into_iter().collect(),
+        ),
     ]
+}
+
+/// One recording's MSD and direction autocorrelation, `(lag in time units, value)`.
+#[derive(Debug, Clone, Serialize)]
+pub struct RecordingCurves {
+    /// Condition.
+    pub condition: String,
+    /// Replicate.
+    pub replicate: String,
+    /// Pooled MSD.
+    pub msd: Vec<(f64, f64)>,
+    /// Direction autocorrelation.
+    pub direction_autocorrelation: Vec<(f64, f64)>,
+}
+
+impl RecordingCurves {
+    fn of(e: &ManifestEntry, a: &Analysis) -> Self {
+        let dt = a.units.time_per_frame;
+        RecordingCurves {
+            condition: e.condition.clone(),
+            replicate: e.replicate.clone(),
+            msd: a.msd.iter().map(|q| (q.lag, q.msd)).collect(),
+            direction_autocorrelation: a
+                .autocorrelation
+                .iter()
+                .map(|q| (q.lag_frames as f64 * dt, q.direction))
+                .collect(),
+        }
+    }
+}
+
+/// A condition's curve: at each lag the mean over its replicates (each replicate the mean of
+/// its recordings) and the lowest and highest replicate, `(lag, mean, low, high)`; only lags
+/// every replicate has.
+pub fn condition_curve(
+    curves: &[RecordingCurves],
+    condition: &str,
+    pick: impl Fn(&RecordingCurves) -> &[(f64, f64)],
+) -> Vec<(f64, f64, f64, f64)> {
+    let key = |lag: f64| (lag * 1e6).round() as i64;
+    let mut by_replicate: BTreeMap<&str, BTreeMap<i64, (f64, f64, usize)>> = BTreeMap::new();
+    for c in curves.iter().filter(|c| c.condition == condition) {
+        let rep = by_replicate.entry(c.replicate.as_str()).or_default();
+        for &(lag, v) in pick(c) {
+            let e = rep.entry(key(lag)).or_insert((lag, 0.0, 0));
+            e.1 += v;
+            e.2 += 1;
+        }
+    }
+    let Some(first) = by_replicate.values().next() else {
+        return Vec::new();
+    };
+    first
+        .iter()
+        .filter_map(|(k, &(lag, _, _))| {
+            let values: Vec<f64> = by_replicate
+                .values()
+                .map(|rep| rep.get(k).map(|e| e.1 / e.2 as f64))
+                .collect::<Option<Vec<f64>>>()?;
+            let mean = values.iter().sum::<f64>() / values.len() as f64;
+            let (lo, hi) = values
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+            Some((lag, mean, lo, hi))
+        })
+        .collect()
 }
 
 /// One replicate's values of one statistic.
@@ -186,6 +266,10 @@ pub struct Comparison {
     pub differences: Vec<Difference>,
     /// Warnings about the design.
     pub warnings: Vec<String>,
+    /// Each recording's MSD and direction autocorrelation, in manifest order.
+    pub curves: Vec<RecordingCurves>,
+    /// Length and time units of every recording.
+    pub units: (LengthUnit, TimeUnit),
 }
 
 /// Bootstrap resamples per condition.
@@ -208,6 +292,8 @@ pub fn compare(
     let mut units: Option<(String, LengthUnit, TimeUnit)> = None;
     let mut fixed: Option<FixedTime> = None;
     let mut intervals: Vec<(&ManifestEntry, f64)> = Vec::with_capacity(entries.len());
+    let mut curves = Vec::with_capacity(entries.len());
+    let mut model_notes = Vec::new();
     for e in &entries {
         if !conditions.contains(&e.condition) {
             conditions.push(e.condition.clone());
@@ -234,6 +320,13 @@ pub fn compare(
             ..options.clone()
         };
         let analysis = analyze_table(&table, filters, &options)?;
+        curves.push(RecordingCurves::of(e, &analysis));
+        model_notes.extend(
+            analysis
+                .warnings
+                .iter()
+                .map(|w| format!("{} {} ({}): {w}", e.condition, e.replicate, e.path.display())),
+        );
         let label = fixed.label();
         names.clear();
         for (name, values) in statistics(&analysis, &label) {
@@ -262,6 +355,7 @@ pub fn compare(
     adjust_by_holm(&mut differences);
     let mut warnings = design_warnings(&conditions, &replicates, &names);
     warnings.extend(fixed.and_then(|f| f.intervals_warning(&intervals)));
+    warnings.extend(model_notes);
     Ok(Comparison {
         entries,
         conditions,
@@ -269,6 +363,8 @@ pub fn compare(
         statistic_names: names,
         differences,
         warnings,
+        curves,
+        units: units.map_or((LengthUnit::Pixel, TimeUnit::Frame), |u| (u.1, u.2)),
     })
 }
 

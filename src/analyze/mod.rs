@@ -6,10 +6,12 @@
 pub mod circular;
 pub mod collective;
 pub mod compare;
+pub mod models;
 pub mod motility;
 pub mod msd;
 pub mod outputs;
 pub mod population;
+pub mod resample;
 pub mod run;
 pub mod stats;
 pub mod table;
@@ -39,8 +41,11 @@ pub struct TrackSummary {
     pub net_displacement_px: f64,
     /// Net displacement / path length (`None` for a track that never moved).
     pub directionality_ratio: Option<f64>,
-    /// Path length / frames elapsed, px per frame (`None` for single points).
+    /// Mean length of the steps between consecutive frames, px per frame (`None` without
+    /// one): a step across missing frames is a chord and would bias the speed low.
     pub mean_speed_px_per_frame: Option<f64>,
+    /// Frames missing inside the track (closed gaps).
+    pub missing_frames: usize,
     /// Direction of the net displacement, degrees from +x toward +y (`None` if zero).
     pub mean_direction_deg: Option<f64>,
 }
@@ -60,7 +65,11 @@ pub fn summarize_track(track_id: u32, parent_id: Option<u32>, points: &[PathPoin
     let (first, last) = (points[0], points[points.len() - 1]);
     let (dx, dy) = (last.x - first.x, last.y - first.y);
     let net = dx.hypot(dy);
-    let elapsed = (last.frame - first.frame) as f64;
+    let consecutive: Vec<f64> = points
+        .windows(2)
+        .filter(|w| w[1].frame == w[0].frame + 1)
+        .map(|w| (w[1].x - w[0].x).hypot(w[1].y - w[0].y))
+        .collect();
     TrackSummary {
         track_id,
         parent_id,
@@ -70,7 +79,9 @@ pub fn summarize_track(track_id: u32, parent_id: Option<u32>, points: &[PathPoin
         path_length_px: path,
         net_displacement_px: net,
         directionality_ratio: (path > 0.0).then(|| net / path),
-        mean_speed_px_per_frame: (elapsed > 0.0).then(|| path / elapsed),
+        mean_speed_px_per_frame: (!consecutive.is_empty())
+            .then(|| consecutive.iter().sum::<f64>() / consecutive.len() as f64),
+        missing_frames: last.frame - first.frame + 1 - points.len(),
         mean_direction_deg: (net > 0.0).then(|| dy.atan2(dx).to_degrees()),
     }
 }
@@ -86,6 +97,7 @@ pub fn per_track_columns(calibration: &Calibration) -> Vec<Column<TrackSummary>>
         Column::shown("first_frame", |t: &TrackSummary| Some(t.first_frame)),
         Column::shown("last_frame", |t: &TrackSummary| Some(t.last_frame)),
         Column::shown("points", |t: &TrackSummary| Some(t.points)),
+        Column::shown("missing_frames", |t: &TrackSummary| Some(t.missing_frames)),
         Column::fixed("duration_s", 3, move |t: &TrackSummary| {
             dt.map(|s| s * (t.last_frame - t.first_frame) as f64)
         }),
@@ -148,9 +160,10 @@ mod tests {
             .split(',')
             .map(String::from)
             .collect();
-        assert_eq!(row[12], "0.641421");
-        assert_eq!(row[5], "600.000");
+        assert_eq!(row[13], "0.641421");
+        assert_eq!(row[5], "0");
+        assert_eq!(row[6], "600.000");
         // atan2(2, 5) = 21.801° (trigonometry).
-        assert_eq!(row[13], "21.801");
+        assert_eq!(row[14], "21.801");
     }
 }

@@ -2,7 +2,7 @@
 //! and frames): duration, path, net displacement, speeds, directionality, direction, forward
 //! migration index and turning angles.
 
-use super::msd::Path;
+use super::msd::{anomalous_exponent, pool_msd, track_msd, Path};
 use crate::tracks::PathPoint;
 use serde::Serialize;
 
@@ -21,8 +21,16 @@ pub struct Motility {
     pub path_length: f64,
     /// Distance from first to last point.
     pub net_displacement: f64,
-    /// Path length / duration.
+    /// Mean speed over the steps between consecutive frames (a step across missing frames is
+    /// a chord that cuts the corners the cell turned, so it would bias the speed low).
     pub mean_speed: Option<f64>,
+    /// Runs of missing frames inside the track.
+    pub gaps: usize,
+    /// Frames missing inside the track.
+    pub missing_frames: usize,
+    /// This track's own anomalous exponent: the log-log slope of its time-averaged MSD over
+    /// lags 1 to a quarter of its span (`None` below 12 frames of span: fewer than 3 lags).
+    pub exponent: Option<f64>,
     /// Net displacement / path length.
     pub directionality_ratio: Option<f64>,
     /// The ratio over the first `fixed_elapsed_frames` frames only (comparable between tracks
@@ -52,7 +60,9 @@ pub struct Step {
     pub turning_deg: Option<f64>,
 }
 
-/// Per-track measures of `path` (frames ascending) with frames `frame_interval` apart.
+/// Per-track measures of `path` (frames ascending) with frames `frame_interval` apart. Path
+/// length, net displacement and directionality span gaps (a chord over missing frames);
+/// the mean speed does not (see [`Motility::mean_speed`]).
 ///
 /// # Method
 /// Directionality ratio (straightness), speeds and turning angles as in R. Gorelik &
@@ -84,6 +94,16 @@ pub fn motility(
         .filter(|p| p.frame <= first.frame + fixed_elapsed_frames)
         .collect();
     let reaches = path.iter().any(|p| p.frame == first.frame + fixed_elapsed_frames);
+    let consecutive: Vec<f64> = path
+        .windows(2)
+        .filter(|w| w[1].frame == w[0].frame + 1)
+        .map(|w| (w[1].x - w[0].x).hypot(w[1].y - w[0].y))
+        .collect();
+    let gaps: Vec<usize> = path
+        .windows(2)
+        .map(|w| w[1].frame - w[0].frame - 1)
+        .filter(|&m| m > 0)
+        .collect();
     Motility {
         track_id,
         points: path.len(),
@@ -91,13 +111,28 @@ pub fn motility(
         duration,
         path_length: length,
         net_displacement: net,
-        mean_speed: (duration > 0.0).then(|| length / duration),
+        mean_speed: (!consecutive.is_empty())
+            .then(|| consecutive.iter().sum::<f64>() / (consecutive.len() as f64 * frame_interval)),
+        gaps: gaps.len(),
+        missing_frames: gaps.iter().sum(),
+        exponent: own_exponent(path, frame_interval),
         directionality_ratio: (length > 0.0).then(|| net / length),
         directionality_at_fixed_time: reaches.then(|| straightness(&early)).flatten(),
         mean_direction_deg: (net > 0.0).then(|| dy.atan2(dx).to_degrees()),
         forward_migration_index: (length > 0.0).then(|| (dx * axis.cos() + dy * axis.sin()) / length),
         mean_abs_turning_deg: (!turns.is_empty()).then(|| turns.iter().sum::<f64>() / turns.len() as f64),
     }
+}
+
+/// The log-log slope of one track's time-averaged MSD over lags 1 to a quarter of its span
+/// (common practice: lags up to N/4, fixtures/methods/check_values.md §9), at least 3 lags.
+fn own_exponent(path: &Path, frame_interval: f64) -> Option<f64> {
+    let span = path[path.len() - 1].frame - path[0].frame;
+    if span < 12 {
+        return None;
+    }
+    let points = pool_msd(&[track_msd(path, span / 4)], None, frame_interval);
+    anomalous_exponent(&points)
 }
 
 fn path_length(path: &Path) -> f64 {
@@ -189,6 +224,22 @@ mod tests {
         let turns: Vec<Option<f64>> = s.iter().map(|s| s.turning_deg).collect();
         assert_eq!(turns, [None, None, None, Some(0.0)]);
         assert_eq!(motility(1, &t, 1.0, 0.0, 3).mean_abs_turning_deg, Some(0.0));
+    }
+
+    #[test]
+    fn a_gap_is_counted_and_does_not_slow_the_track() {
+        // Construction: the zig-zag (i, ±0.5) moves √2 per frame (trigonometry). Without
+        // frame 3, the chord from (2, 0.5) to (4, 0.5) is 2 over 2 frames, 1 per frame: path
+        // length over duration would give (6√2 + 2)/8 = 1.31; the mean over consecutive steps
+        // stays √2. One gap of one frame.
+        let z: Vec<PathPoint> = (0..=8)
+            .filter(|&i| i != 3)
+            .map(|i| PathPoint::new(i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 }))
+            .collect();
+        let m = motility(1, &z, 1.0, 0.0, 4);
+        assert!((m.mean_speed.unwrap() - 2f64.sqrt()).abs() < 1e-12, "{m:?}");
+        assert_eq!((m.gaps, m.missing_frames), (1, 1));
+        assert!((m.path_length / m.duration - (6.0 * 2f64.sqrt() + 2.0) / 8.0).abs() < 1e-12);
     }
 
     #[test]

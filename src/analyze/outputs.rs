@@ -1,9 +1,11 @@
 //! Tidy CSV tables and `summary.json` of an analysis, with the unit in every column and key
 //! name, numbers printed with fixed decimals so outputs are byte-identical between runs.
 
+use super::models::{ModelFit, ModelParameters};
 use super::motility::{Motility, Step};
 use super::msd::{AutocorrelationPoint, MsdPoint};
 use super::population::{Analysis, CorrelationBin, FrameOrder};
+use super::resample::{Interval, ModelIntervals};
 use super::stats::mean_sd;
 use crate::columns::{write_table, Column};
 use crate::numeric::median;
@@ -24,6 +26,9 @@ pub fn write_track_stats(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
             Some(m.net_displacement)
         }),
         Column::fixed(format!("mean_speed_{l}_per_{t}"), 6, |m: &Motility| m.mean_speed),
+        Column::shown("gaps", |m: &Motility| Some(m.gaps)),
+        Column::shown("missing_frames", |m: &Motility| Some(m.missing_frames)),
+        Column::fixed("anomalous_exponent", 6, |m: &Motility| m.exponent),
         Column::fixed("directionality_ratio", 6, |m: &Motility| m.directionality_ratio),
         Column::fixed(format!("directionality_at_{n}_frames"), 6, |m: &Motility| {
             m.directionality_at_fixed_time
@@ -47,39 +52,78 @@ pub fn write_steps(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
     write_table(out, &columns, &a.steps)
 }
 
-/// `msd.csv`: lag, MSD, pairs and standard error.
-pub fn write_msd(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
-    let (l, t) = (a.units.length, a.units.time);
-    let columns: Vec<Column<MsdPoint>> = vec![
-        Column::shown("lag_frames", |q: &MsdPoint| Some(q.lag_frames)),
-        Column::fixed(format!("lag_{t}"), 6, |q: &MsdPoint| Some(q.lag)),
-        Column::fixed(format!("msd_{l}2"), 6, |q: &MsdPoint| Some(q.msd)),
-        Column::shown("pairs", |q: &MsdPoint| Some(q.pairs)),
-        Column::fixed(format!("standard_error_{l}2"), 6, |q: &MsdPoint| Some(q.standard_error)),
-    ];
-    write_table(out, &columns, &a.msd)
+/// One row of `msd.csv`: the pooled point, its interval and the per-cell mean at its lag.
+struct MsdRow {
+    point: MsdPoint,
+    ci95: Option<Interval>,
+    per_cell: Option<(f64, usize)>,
 }
 
-/// `autocorrelation.csv`: velocity and direction autocorrelation by lag.
+/// `msd.csv`: lag, pooled MSD with its 95% interval from resampling tracks, pairs, and the
+/// per-cell mean MSD with the tracks behind it.
+pub fn write_msd(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
+    let (l, t) = (a.units.length, a.units.time);
+    let rows: Vec<MsdRow> = a
+        .msd
+        .iter()
+        .enumerate()
+        .map(|(k, &point)| MsdRow {
+            point,
+            ci95: a.uncertainty.msd.get(k).copied().flatten(),
+            per_cell: a
+                .per_cell_msd
+                .iter()
+                .find(|c| c.0 == point.lag_frames)
+                .map(|c| (c.1, c.2)),
+        })
+        .collect();
+    let columns: Vec<Column<MsdRow>> = vec![
+        Column::shown("lag_frames", |r: &MsdRow| Some(r.point.lag_frames)),
+        Column::fixed(format!("lag_{t}"), 6, |r: &MsdRow| Some(r.point.lag)),
+        Column::fixed(format!("msd_{l}2"), 6, |r: &MsdRow| Some(r.point.msd)),
+        Column::fixed(format!("msd_ci95_low_{l}2"), 6, |r: &MsdRow| r.ci95.map(|i| i.low)),
+        Column::fixed(format!("msd_ci95_high_{l}2"), 6, |r: &MsdRow| r.ci95.map(|i| i.high)),
+        Column::shown("pairs", |r: &MsdRow| Some(r.point.pairs)),
+        Column::fixed(format!("per_cell_mean_msd_{l}2"), 6, |r: &MsdRow| {
+            r.per_cell.map(|c| c.0)
+        }),
+        Column::shown("cells", |r: &MsdRow| r.per_cell.map(|c| c.1)),
+    ];
+    write_table(out, &columns, &rows)
+}
+
+/// `autocorrelation.csv`: velocity and direction autocorrelation by lag, with 95% intervals
+/// from resampling tracks.
 pub fn write_autocorrelation(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
     let (l, t) = (a.units.length, a.units.time);
     let dt = a.units.time_per_frame;
-    let columns: Vec<Column<AutocorrelationPoint>> = vec![
-        Column::shown("lag_frames", |q: &AutocorrelationPoint| Some(q.lag_frames)),
-        Column::fixed(format!("lag_{t}"), 6, move |q: &AutocorrelationPoint| {
-            Some(q.lag_frames as f64 * dt)
-        }),
-        Column::fixed(
-            format!("velocity_autocorrelation_{l}2_per_{t}2"),
-            6,
-            |q: &AutocorrelationPoint| Some(q.velocity),
-        ),
-        Column::fixed("direction_autocorrelation", 6, |q: &AutocorrelationPoint| {
-            Some(q.direction)
-        }),
-        Column::shown("pairs", |q: &AutocorrelationPoint| Some(q.pairs)),
+    let u = &a.uncertainty;
+    let rows: Vec<(AutocorrelationPoint, Option<Interval>, Option<Interval>)> = a
+        .autocorrelation
+        .iter()
+        .enumerate()
+        .map(|(k, &q)| {
+            (
+                q,
+                u.velocity_autocorrelation.get(k).copied().flatten(),
+                u.direction_autocorrelation.get(k).copied().flatten(),
+            )
+        })
+        .collect();
+    type Row = (AutocorrelationPoint, Option<Interval>, Option<Interval>);
+    let v = format!("velocity_autocorrelation_{l}2_per_{t}2");
+    let columns: Vec<Column<Row>> = vec![
+        Column::shown("lag_frames", |r: &Row| Some(r.0.lag_frames)),
+        Column::fixed(format!("lag_{t}"), 6, move |r: &Row| Some(r.0.lag_frames as f64 * dt)),
+        Column::fixed(v.clone(), 6, |r: &Row| Some(r.0.velocity)),
+        Column::fixed(format!("{v}_ci95_low"), 6, |r: &Row| r.1.map(|i| i.low)),
+        Column::fixed(format!("{v}_ci95_high"), 6, |r: &Row| r.1.map(|i| i.high)),
+        Column::fixed("direction_autocorrelation", 6, |r: &Row| Some(r.0.direction)),
+        Column::fixed("direction_autocorrelation_ci95_low", 6, |r: &Row| r.2.map(|i| i.low)),
+        Column::fixed("direction_autocorrelation_ci95_high", 6, |r: &Row| r.2.map(|i| i.high)),
+        Column::shown("pairs", |r: &Row| Some(r.0.pairs)),
     ];
-    write_table(out, &columns, &a.autocorrelation)
+    write_table(out, &columns, &rows)
 }
 
 /// `order.csv`: per-frame order parameter, neighbour distance and density.
@@ -125,10 +169,9 @@ pub fn summary(a: &Analysis) -> Value {
         s.insert(k, v);
     };
     put("tracks".into(), json!(a.tracks.len()));
-    put(
-        format!("mean_speed_{l}_per_{t}"),
-        describe(a.tracks.iter().map(|m| m.mean_speed)),
-    );
+    let mut speed = describe(a.tracks.iter().map(|m| m.mean_speed));
+    speed["ci95_of_mean"] = interval(a.uncertainty.mean_speed);
+    put(format!("mean_speed_{l}_per_{t}"), speed);
     put(
         format!("instantaneous_speed_{l}_per_{t}"),
         describe(a.steps.iter().map(|s| Some(s.speed))),
@@ -150,21 +193,27 @@ pub fn summary(a: &Analysis) -> Value {
         "mean_abs_turning_angle_deg".into(),
         describe(a.tracks.iter().map(|m| m.mean_abs_turning_deg)),
     );
-    if let Some(f) = &a.furth {
-        put(
-            format!("diffusion_coefficient_{l}2_per_{t}"),
-            json!({ "value": f.diffusion, "standard_error": f.diffusion_se }),
-        );
-        put(
-            format!("persistence_time_{t}"),
-            json!({ "value": f.persistence, "standard_error": f.persistence_se }),
-        );
-        put(format!("random_walk_speed_{l}_per_{t}"), json!(f.speed));
-    }
+    put("motion_model".into(), motion_models(a));
     put("fit_lags_frames".into(), json!([a.fit_lags.0, a.fit_lags.1]));
     put(
         "anomalous_exponent".into(),
-        json!({ "value": a.anomalous_exponent, "lags_frames": [a.fit_lags.0, a.fit_lags.1] }),
+        json!({
+            "value": a.anomalous_exponent,
+            "ci95": interval(a.uncertainty.anomalous_exponent),
+            "lags_frames": [a.fit_lags.0, a.fit_lags.1],
+        }),
+    );
+    put(
+        "anomalous_exponent_per_cell".into(),
+        describe(a.tracks.iter().map(|m| m.exponent)),
+    );
+    put(
+        "gaps".into(),
+        json!({
+            "tracks_with_gaps": a.tracks.iter().filter(|m| m.gaps > 0).count(),
+            "gaps": a.tracks.iter().map(|m| m.gaps).sum::<usize>(),
+            "missing_frames": a.tracks.iter().map(|m| m.missing_frames).sum::<usize>(),
+        }),
     );
     if let Some(d) = &a.directions {
         put(
@@ -192,4 +241,80 @@ pub fn summary(a: &Analysis) -> Value {
         describe(a.frames.iter().map(|f| f.mean_neighbour_distance)),
     );
     Value::Object(s)
+}
+
+/// An interval as `[low, high]`, or `null`.
+fn interval(i: Option<Interval>) -> Value {
+    i.map_or(Value::Null, |i| json!([i.low, i.high]))
+}
+
+/// The model choice: the criterion, the chosen model, and every candidate with its parameters
+/// (value and 95% interval from resampling tracks) and its criterion, or why it failed.
+fn motion_models(a: &Analysis) -> Value {
+    let m = &a.models;
+    let best = m.best().map(|b| b.aicc);
+    let mut candidates: Vec<Value> = m
+        .fitted
+        .iter()
+        .zip(&a.uncertainty.models)
+        .map(|(f, i)| {
+            json!({
+                "model": f.model.name(),
+                "parameters": model_parameters(a, f, i),
+                "aicc": f.aicc,
+                "delta_aicc": best.map(|b| f.aicc - b),
+                "weighted_rss": f.weighted_rss,
+                "resamples_fitted": i.fitted_resamples,
+            })
+        })
+        .collect();
+    candidates.extend(
+        m.failed
+            .iter()
+            .map(|f| json!({ "model": f.model.name(), "failed": f.reason })),
+    );
+    let chosen_d = m.best().map(|b| b.parameters.diffusion);
+    json!({
+        format!("diffusion_coefficient_{}2_per_{}", a.units.length, a.units.time): {
+            "value": chosen_d,
+            "ci95": interval(a.uncertainty.chosen_diffusion),
+            "note": "D of the chosen model; the interval re-chooses the model on every resample (Buckland, Burnham & Augustin 1997)",
+        },
+        "criterion": "the fewest parameters within 2 of the lowest AICc (Burnham & Anderson 2002); weighted least squares on the MSD over fit_lags_frames, weights pairs per lag",
+        "chosen": m.best().map(|b| b.model.name()),
+        "intervals": format!("95% percentile intervals from {} resamples of whole tracks", a.uncertainty.resamples),
+        "candidates": candidates,
+    })
+}
+
+/// One candidate's parameters under names with units.
+fn model_parameters(a: &Analysis, f: &ModelFit, i: &ModelIntervals) -> Value {
+    let (l, t) = (a.units.length, a.units.time);
+    let p: &ModelParameters = &f.parameters;
+    let entry = |v: Option<f64>, ci: Option<Interval>| json!({ "value": v, "ci95": interval(ci) });
+    let sigma = |c: Option<Interval>| {
+        c.map(|c| Interval {
+            low: (c.low.max(0.0) / 4.0).sqrt(),
+            high: (c.high.max(0.0) / 4.0).sqrt(),
+        })
+    };
+    let mut out = Map::new();
+    out.insert(
+        format!("diffusion_coefficient_{l}2_per_{t}"),
+        entry(Some(p.diffusion), i.diffusion),
+    );
+    if p.persistence.is_some() {
+        out.insert(format!("persistence_time_{t}"), entry(p.persistence, i.persistence));
+        out.insert(format!("walk_speed_{l}_per_{t}"), entry(p.walk_speed(), i.walk_speed));
+    }
+    if p.drift_speed.is_some() {
+        out.insert(format!("drift_speed_{l}_per_{t}"), entry(p.drift_speed, i.drift_speed));
+    }
+    if p.noise_offset.is_some() {
+        out.insert(
+            format!("localisation_error_{l}"),
+            entry(p.localisation_error(), sigma(i.noise_offset)),
+        );
+    }
+    Value::Object(out)
 }

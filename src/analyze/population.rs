@@ -2,9 +2,14 @@
 //! autocorrelations, circular statistics of directions, and collective measures per frame.
 
 use super::circular::{circular_summary, v_test, CircularSummary, VTest};
-use super::collective::{fluctuations, neighbour_distance_and_density, order_parameter, PairCorrelation};
+use super::collective::{neighbour_distance_and_density, order_parameter, scaled_fluctuations, PairCorrelation};
+use super::models::{choose_model, ModelChoice, MotionKind};
 use super::motility::{motility, steps, Motility, Step};
-use super::msd::{anomalous_exponent, autocorrelation, fit_furth, msd, AutocorrelationPoint, FurthFit, MsdPoint, Path};
+use super::msd::{
+    anomalous_exponent, per_cell_mean_msd, pool_autocorrelation, pool_msd, track_autocorrelation, track_msd,
+    AutocorrelationPoint, MsdPoint, TrackAutocorrelation, TrackMsd,
+};
+use super::resample::{resample_tracks, TrackSums, Uncertainty, RESAMPLES};
 use super::table::{Track, Units};
 use crate::numeric::median;
 use crate::tracks::PathPoint;
@@ -19,11 +24,16 @@ pub struct AnalysisOptions {
     pub axis_deg: f64,
     /// Elapsed frames for the directionality ratio at a fixed time.
     pub fixed_elapsed_frames: usize,
-    /// Lags (frames) of the Fürth fit and the anomalous exponent; `None`: 1 to a quarter of the
+    /// Lags (frames) of the motion-model fits and the anomalous exponent; `None`: 1 to a quarter of the
     /// median track span (common practice: fit lags ≤ N/4, fixtures/methods/check_values.md §9), at least 3.
     pub fit_lags: Option<(usize, usize)>,
     /// Neighbours for the local density estimate.
     pub density_neighbours: usize,
+    /// Subtract the common drift (the mean displacement of all tracks per frame) before
+    /// anything is computed (see [`remove_common_drift`]).
+    pub remove_drift: bool,
+    /// Resamples of tracks for the intervals (see [`super::resample`]).
+    pub resamples: usize,
 }
 
 impl Default for AnalysisOptions {
@@ -33,6 +43,8 @@ impl Default for AnalysisOptions {
             fixed_elapsed_frames: 10,
             fit_lags: None,
             density_neighbours: 5,
+            remove_drift: false,
+            resamples: RESAMPLES,
         }
     }
 }
@@ -59,7 +71,7 @@ pub struct CorrelationBin {
     pub from: f64,
     /// Upper edge.
     pub to: f64,
-    /// Mean cosine between neighbours' velocity fluctuations.
+    /// Cavagna's C(r): the mean product of neighbours' scaled velocity fluctuations.
     pub correlation: Option<f64>,
     /// Pairs.
     pub pairs: usize,
@@ -78,8 +90,12 @@ pub struct Analysis {
     pub steps: Vec<Step>,
     /// Population MSD.
     pub msd: Vec<MsdPoint>,
-    /// Persistent random walk fit (`None` without enough lags or when the fit fails).
-    pub furth: Option<FurthFit>,
+    /// The per-cell mean of time-averaged MSDs, `(lag_frames, mean, tracks)`.
+    pub per_cell_msd: Vec<(usize, f64, usize)>,
+    /// The motion models fitted to the MSD over `fit_lags`, and the one chosen.
+    pub models: ModelChoice,
+    /// Intervals from resampling tracks.
+    pub uncertainty: Uncertainty,
     /// Anomalous exponent over `exponent_lags`.
     pub anomalous_exponent: Option<f64>,
     /// Lags (frames) of the fits.
@@ -115,7 +131,13 @@ pub fn analyze_tracks_among(
     options: &AnalysisOptions,
 ) -> Analysis {
     let dt = units.time_per_frame;
-    let paths: Vec<&Path> = tracks.iter().map(|t| t.path.as_slice()).collect();
+    let corrected;
+    let tracks = if options.remove_drift {
+        corrected = remove_common_drift(tracks);
+        corrected.as_slice()
+    } else {
+        tracks
+    };
     let motility_rows: Vec<Motility> = tracks
         .iter()
         .map(|t| motility(t.id, &t.path, dt, options.axis_deg, options.fixed_elapsed_frames))
@@ -128,32 +150,55 @@ pub fn analyze_tracks_among(
     let longest = spans.iter().copied().fold(0.0, f64::max) as usize;
     let median_span = median(&mut spans).unwrap_or(0.0);
     let fit_lags = options.fit_lags.unwrap_or((1, ((median_span / 4.0) as usize).max(3)));
-    let msd_points = msd(&paths, (longest / 2).max(fit_lags.1).min(500), dt);
+    let max_lag = (longest / 2).max(fit_lags.1).min(500);
+    let per_track_msd: Vec<TrackMsd> = tracks.iter().map(|t| track_msd(&t.path, max_lag)).collect();
+    let per_track_acf: Vec<TrackAutocorrelation> = tracks
+        .iter()
+        .map(|t| track_autocorrelation(&t.path, longest.clamp(1, 20), dt))
+        .collect();
+    let msd_points = pool_msd(&per_track_msd, None, dt);
+    let acf_points = pool_autocorrelation(&per_track_acf, None);
     let fitted: Vec<MsdPoint> = msd_points
         .iter()
         .copied()
         .filter(|q| q.lag_frames >= fit_lags.0 && q.lag_frames <= fit_lags.1)
         .collect();
+    let models = choose_model(&fitted);
+    let exponent = anomalous_exponent(&fitted);
+    let speeds: Vec<Option<f64>> = motility_rows.iter().map(|m| m.mean_speed).collect();
+    let uncertainty = resample_tracks(
+        &TrackSums {
+            msd: &per_track_msd,
+            autocorrelation: &per_track_acf,
+            speed: &speeds,
+        },
+        &msd_points.iter().map(|q| q.lag_frames).collect::<Vec<_>>(),
+        &acf_points.iter().map(|q| q.lag_frames).collect::<Vec<_>>(),
+        (fit_lags, dt),
+        &models.fitted,
+        options.resamples,
+        RESAMPLE_SEED,
+    );
     let angles: Vec<f64> = motility_rows
         .iter()
         .filter_map(|m| m.mean_direction_deg)
         .map(f64::to_radians)
         .collect();
     let (frames, neighbour_correlation) = collective(tracks, everyone, dt, options.density_neighbours);
-    let furth = fit_furth(&fitted);
-    let exponent = anomalous_exponent(&fitted);
     let recording = longest as f64 * dt;
-    let warnings = model_warnings(furth.as_ref(), exponent, fitted.len(), fit_lags, dt, recording);
+    let warnings = model_warnings(&models, exponent, fitted.len(), fit_lags, dt, recording);
     Analysis {
         units: units.clone(),
         options: options.clone(),
         tracks: motility_rows,
         steps: step_rows,
-        furth,
+        models,
+        uncertainty,
         anomalous_exponent: exponent,
         fit_lags,
+        per_cell_msd: per_cell_mean_msd(&per_track_msd),
         msd: msd_points,
-        autocorrelation: autocorrelation(&paths, longest.clamp(1, 20), dt),
+        autocorrelation: acf_points,
         directions: circular_summary(&angles),
         v_test: v_test(&angles, options.axis_deg),
         frames,
@@ -162,16 +207,60 @@ pub fn analyze_tracks_among(
     }
 }
 
-/// Where the persistent random walk fit says nothing trustworthy, in words: a fit that failed
-/// (none is dropped silently), a persistence time below one frame interval (the sampling cannot
-/// resolve it) or beyond the longest lag fitted or the longest track (the fit cannot tell
-/// persistence from drift or ballistic motion there), and an anomalous exponent near 2
-/// (directed motion, which the model does not describe). Our own checks: P is seen in the
-/// data only as the bend of the MSD from slope 2 to slope 1 on a log-log plot (Fürth 1920, see
-/// [`fit_furth`]), so a P outside the lags fitted is the fit's extrapolation, not a
-/// measurement.
+/// The seed of the resampling: fixed, so that the same tracks give the same intervals.
+pub const RESAMPLE_SEED: u64 = 0x0c0a_7a7a;
+
+/// The tracks with the common drift removed: the drift's displacement from frame f to f + 1
+/// is the mean displacement of every track with points at both, accumulated from the first
+/// frame and subtracted from every point (a frame pair without any such step adds none).
+/// Common practice for stage drift and tissue flow; it also removes any motion all cells
+/// share, which is what the other statistics then describe relative to.
+pub fn remove_common_drift(tracks: &[Track]) -> Vec<Track> {
+    let mut steps: BTreeMap<usize, (f64, f64, usize)> = BTreeMap::new();
+    for t in tracks {
+        for w in t.path.windows(2).filter(|w| w[1].frame == w[0].frame + 1) {
+            let e = steps.entry(w[0].frame).or_default();
+            e.0 += w[1].x - w[0].x;
+            e.1 += w[1].y - w[0].y;
+            e.2 += 1;
+        }
+    }
+    let first = tracks.iter().map(|t| t.path[0].frame).min().unwrap_or(0);
+    let last = tracks.iter().map(|t| t.path[t.path.len() - 1].frame).max().unwrap_or(0);
+    let mut offset = vec![(0.0, 0.0); last - first + 1];
+    for f in first + 1..=last {
+        let (px, py) = offset[f - 1 - first];
+        let (sx, sy, n) = steps.get(&(f - 1)).copied().unwrap_or((0.0, 0.0, 0));
+        let n = n.max(1) as f64;
+        offset[f - first] = (px + sx / n, py + sy / n);
+    }
+    tracks
+        .iter()
+        .map(|t| Track {
+            path: t
+                .path
+                .iter()
+                .map(|p| {
+                    let (ox, oy) = offset[p.frame - first];
+                    PathPoint::new(p.frame, p.x - ox, p.y - oy)
+                })
+                .collect(),
+            ..t.clone()
+        })
+        .collect()
+}
+
+/// Where the fitted motion models say nothing trustworthy, in words: no model fitted (none is
+/// dropped silently: each failure's reason is in the outputs, and a failed persistent walk
+/// is warned about here because `compare` uses it), a persistence time below one frame
+/// interval (the sampling cannot resolve it) or beyond the longest lag fitted or the longest
+/// track (the fit cannot tell persistence from drift or ballistic motion there), a drift
+/// that dominates the chosen model, and an anomalous exponent near 2 (directed motion). Our
+/// own checks: P is seen in the data only as the bend of the MSD from slope 2 to slope 1 on
+/// a log-log plot (Fürth 1920, see [`super::models`]), so a P outside the lags fitted is the
+/// fit's extrapolation, not a measurement.
 pub fn model_warnings(
-    furth: Option<&FurthFit>,
+    models: &ModelChoice,
     exponent: Option<f64>,
     fitted_points: usize,
     (first, last): (usize, usize),
@@ -179,23 +268,37 @@ pub fn model_warnings(
     recording: f64,
 ) -> Vec<String> {
     let mut out = Vec::new();
-    match furth {
-        None if fitted_points >= 3 => out.push(format!(
-            "the persistent random walk fit failed on lags {first}-{last} frames: no diffusion coefficient or persistence time is reported"
-        )),
-        None => out.push(format!(
-            "too few MSD points ({fitted_points}) on lags {first}-{last} frames for the persistent random walk fit"
-        )),
-        Some(f) if f.persistence < dt => out.push(format!(
-            "persistence time {:.3} is below one frame interval ({dt:.3}): this sampling cannot resolve it; the diffusion coefficient stands, the persistence and the speed derived from it do not",
-            f.persistence
-        )),
-        Some(f) if f.persistence > (last as f64 * dt).min(recording) => out.push(format!(
-            "persistence time {:.3} is beyond the longest lag fitted ({:.3}) or the longest track ({recording:.3}): the fit cannot tell persistence from drift or directed motion; treat the diffusion coefficient and persistence as undetermined",
-            f.persistence,
-            last as f64 * dt
-        )),
-        Some(_) => {}
+    if models.fitted.is_empty() {
+        out.push(format!(
+            "no motion model could be fitted to the {fitted_points} MSD points on lags {first}-{last} frames: no diffusion coefficient or persistence time is reported"
+        ));
+    } else if models.persistent_walk().is_none() {
+        out.push(format!(
+            "the persistent random walk could not be fitted on lags {first}-{last} frames (reasons in summary.json): no persistence time is reported"
+        ));
+    }
+    if let Some(p) = models.persistent_walk().and_then(|f| f.parameters.persistence) {
+        if p < dt {
+            out.push(format!(
+                "persistence time {p:.3} is below one frame interval ({dt:.3}): this sampling cannot resolve it; the persistence and the speed derived from it do not stand"
+            ));
+        } else if p > (last as f64 * dt).min(recording) {
+            out.push(format!(
+                "persistence time {p:.3} is beyond the longest lag fitted ({:.3}) or the longest track ({recording:.3}): the fit cannot tell persistence from drift or directed motion; treat the persistence as undetermined",
+                last as f64 * dt
+            ));
+        }
+    }
+    if let Some(best) = models.best().filter(|b| b.model.kind == MotionKind::DiffusionWithDrift) {
+        let t = last as f64 * dt;
+        let (d, v) = (best.parameters.diffusion, best.parameters.drift_speed.unwrap_or(0.0));
+        if v * v * t * t > 4.0 * d * t {
+            out.push(format!(
+                "a drift of {v:.3} per time unit dominates the MSD at the longest lag fitted (v²t² = {:.3} against 4Dt = {:.3}): the cells share a motion (stage drift, tissue flow or a common direction); --remove-drift analyses the motion relative to it",
+                v * v * t * t,
+                4.0 * d * t
+            ));
+        }
     }
     if let Some(a) = exponent.filter(|&a| a > 1.8) {
         out.push(format!(
@@ -248,7 +351,9 @@ fn collective(tracks: &[Track], everyone: &[Track], dt: f64, k: usize) -> (Vec<F
     for (_, moving) in by_frame.values() {
         let positions: Vec<[f64; 2]> = moving.iter().map(|m| m.0).collect();
         let velocities: Vec<[f64; 2]> = moving.iter().map(|m| m.1).collect();
-        corr.add_frame(&positions, &fluctuations(&velocities));
+        if let Some(u) = scaled_fluctuations(&velocities) {
+            corr.add_frame(&positions, &u);
+        }
     }
     let bins = corr
         .means()
@@ -306,22 +411,15 @@ mod tests {
             "{:?}",
             a.warnings
         );
-        // Construction: a fit with P = 5 frames inside the lags fitted (1-10 frames) and the
-        // recording (40) raises nothing; P = 12 beyond the lags fitted raises one warning.
-        let fit = FurthFit {
-            diffusion: 2.0,
-            diffusion_se: 0.1,
-            persistence: 5.0,
-            persistence_se: 0.5,
-            speed: (0.8f64).sqrt(),
-            lag_range_frames: (1, 10),
-        };
-        assert!(model_warnings(Some(&fit), Some(1.4), 10, (1, 10), 1.0, 40.0).is_empty());
-        let far = FurthFit {
-            persistence: 12.0,
-            ..fit
-        };
-        assert_eq!(model_warnings(Some(&far), Some(1.4), 10, (1, 10), 1.0, 40.0).len(), 1);
+        // Construction: exact persistent-walk MSD points with P = 5 frames, inside the lags
+        // fitted (1-10 frames) and the recording (40), raise nothing; P = 12 beyond the lags
+        // fitted raises the persistence warning.
+        let walk =
+            |p: f64| crate::analyze::msd::model_points(1..=10, 1.0, |t| crate::analyze::msd::furth_msd(t, 2.0, p));
+        assert!(model_warnings(&choose_model(&walk(5.0)), Some(1.4), 10, (1, 10), 1.0, 40.0).is_empty());
+        let far = model_warnings(&choose_model(&walk(12.0)), Some(1.4), 10, (1, 10), 1.0, 40.0);
+        assert_eq!(far.len(), 1, "{far:?}");
+        assert!(far[0].contains("beyond the longest lag"));
     }
 
     #[test]

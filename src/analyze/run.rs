@@ -4,8 +4,8 @@
 use super::outputs::{
     summary, write_autocorrelation, write_msd, write_neighbour_correlation, write_order, write_steps, write_track_stats,
 };
-use super::population::{analyze_tracks_among, Analysis, AnalysisOptions};
-use super::table::{apply_filters, read_tracks, CalibrationOverride, Filters, TrackTable};
+use super::population::{analyze_tracks_among, remove_common_drift, Analysis, AnalysisOptions};
+use super::table::{apply_filters, read_tracks, CalibrationOverride, Filters, Track, TrackTable};
 use crate::error::{Error, Result};
 use crate::output::{ensure_dir, write_atomic, AtomicFile};
 use std::io::Write;
@@ -28,6 +28,9 @@ pub struct AnalysisRun {
     pub dir: PathBuf,
     /// The tracks as read (before filtering).
     pub table: TrackTable,
+    /// The tracks analysed: filtered (frames, region, length), and with the common drift
+    /// removed when the options ask for it.
+    pub analysed: Vec<Track>,
     /// The results.
     pub analysis: Analysis,
     /// `summary.json`'s population block.
@@ -87,6 +90,7 @@ pub fn write_analysis_tables(
     )?;
     Ok(AnalysisRun {
         dir: dir.to_path_buf(),
+        analysed: analysed_tracks(&table, filters, options),
         table,
         analysis,
         summary: population,
@@ -135,9 +139,50 @@ pub fn analyze_table(table: &TrackTable, filters: &Filters, options: &AnalysisOp
     Ok(analyze_tracks_among(&kept, &everyone, &table.units, options))
 }
 
+/// The tracks an analysis describes: `table`'s tracks after the filters, with the common
+/// drift removed when `options` ask for it (what the report's trajectories show).
+pub fn analysed_tracks(table: &TrackTable, filters: &Filters, options: &AnalysisOptions) -> Vec<Track> {
+    let kept = apply_filters(&table.tracks, filters);
+    if options.remove_drift {
+        remove_common_drift(&kept)
+    } else {
+        kept
+    }
+}
+
 /// Writes one table atomically.
 pub fn write_table(dir: &Path, name: &str, fill: impl FnOnce(&mut AtomicFile) -> std::io::Result<()>) -> Result<()> {
     let mut file = AtomicFile::create(&dir.join(name))?;
     fill(&mut file).and_then(|_| file.flush()).map_err(|e| file.error(e))?;
     file.commit()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::analyze::table::Units;
+    use crate::tracks::PathPoint;
+
+    #[test]
+    fn the_paths_shown_are_those_the_frame_range_keeps() {
+        // Construction: one track over frames 0-19; with --frames 5..15 the analysis (and so
+        // the report's trajectory plot) sees frames 5-14 only.
+        let table = TrackTable {
+            source: "t.csv".into(),
+            tracks: vec![Track {
+                id: 1,
+                parent: None,
+                path: (0..20).map(|f| PathPoint::new(f, f as f64, 0.0)).collect(),
+            }],
+            units: Units::pixels(),
+            run_record: None,
+        };
+        let filters = Filters {
+            frames: Some((5, 15)),
+            ..Filters::default()
+        };
+        let shown = analysed_tracks(&table, &filters, &AnalysisOptions::default());
+        let frames: Vec<usize> = shown[0].path.iter().map(|p| p.frame).collect();
+        assert_eq!(frames, (5..15).collect::<Vec<_>>());
+    }
 }

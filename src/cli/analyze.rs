@@ -43,6 +43,10 @@ pub struct AnalysisArgs {
     /// track span).
     #[arg(long)]
     fit_lags: Option<String>,
+    /// Subtract the motion all cells share (the mean displacement per frame) before the
+    /// statistics: for stage drift or tissue flow.
+    #[arg(long)]
+    remove_drift: bool,
     /// Pixel size (e.g. 0.65um); wins over run.json and the CSV.
     #[arg(long, value_parser = parse_pixel_size_um)]
     pixel_size: Option<f64>,
@@ -114,6 +118,7 @@ impl AnalysisArgs {
             axis_deg: self.axis,
             fixed_elapsed_frames: self.fixed_time_frames.max(1),
             fit_lags,
+            remove_drift: self.remove_drift,
             ..AnalysisOptions::default()
         };
         let filters = Filters {
@@ -185,17 +190,31 @@ pub fn print_analysis(run: &caravan::analyze::run::AnalysisRun) {
         a.units.time,
         s["directionality_ratio"]["mean"].as_f64().unwrap_or(f64::NAN)
     );
-    if let Some(f) = &a.furth {
-        println!(
-            "persistent random walk (lags {}-{}): D = {:.4} {}²/{}, persistence {:.3} {}",
-            f.lag_range_frames.0,
-            f.lag_range_frames.1,
-            f.diffusion,
-            a.units.length,
-            a.units.time,
-            f.persistence,
-            a.units.time
-        );
+    match a.models.best() {
+        Some(f) => {
+            let p = &f.parameters;
+            let persistence = p
+                .persistence
+                .map(|pt| format!(", persistence {pt:.3} {}", a.units.time))
+                .unwrap_or_default();
+            let drift = p
+                .drift_speed
+                .map(|v| format!(", drift {v:.4} {}/{}", a.units.length, a.units.time))
+                .unwrap_or_default();
+            println!(
+                "motion model (lags {}-{}, by AICc): {}, D = {:.4} {}²/{}{persistence}{drift}",
+                a.fit_lags.0,
+                a.fit_lags.1,
+                f.model.name(),
+                p.diffusion,
+                a.units.length,
+                a.units.time,
+            );
+        }
+        None => println!("motion model: none could be fitted (summary.json says why)"),
+    }
+    for w in &a.warnings {
+        println!("warning: {w}");
     }
     if let Some(d) = &a.directions {
         println!(

@@ -30,6 +30,20 @@ pub struct Series {
     pub points: Vec<(f64, f64)>,
     /// Draw markers instead of a line.
     pub markers: bool,
+    /// An interval band `(x, low, high)` drawn shaded under the series (empty: none).
+    pub band: Vec<(f64, f64, f64)>,
+}
+
+impl Series {
+    /// A series without a band.
+    pub fn new(label: impl Into<String>, points: Vec<(f64, f64)>, markers: bool) -> Self {
+        Series {
+            label: label.into(),
+            points,
+            markers,
+            band: Vec::new(),
+        }
+    }
 }
 
 fn colour(i: usize) -> RGBColor {
@@ -77,7 +91,11 @@ fn framed<'a, 'b>(root: &'a DrawingArea<SVGBackend<'b>, Shift>, title: &str) -> 
 /// A line chart; with `log`, both axes are logarithmic (non-positive points are left out).
 pub fn line_chart(title: &str, x_desc: &str, y_desc: &str, series: &[Series], log: bool) -> String {
     let keep = |p: &&(f64, f64)| !log || (p.0 > 0.0 && p.1 > 0.0);
-    let all = || series.iter().flat_map(|s| s.points.iter().filter(keep));
+    let bands: Vec<(f64, f64)> = series
+        .iter()
+        .flat_map(|s| s.band.iter().flat_map(|b| [(b.0, b.1), (b.0, b.2)]))
+        .collect();
+    let all = || series.iter().flat_map(|s| s.points.iter()).chain(&bands).filter(keep);
     let (x0, x1) = span(all().map(|p| p.0), if log { 0.0 } else { 0.02 });
     let (y0, y1) = span(all().map(|p| p.1), if log { 0.0 } else { 0.05 });
     svg(|root| {
@@ -133,6 +151,20 @@ where
     DB::ErrorType: 'static,
 {
     let c = colour(i);
+    let band: Vec<(f64, f64, f64)> = s
+        .band
+        .iter()
+        .copied()
+        .filter(|b| keep(&&(b.0, b.1)) && keep(&&(b.0, b.2)))
+        .collect();
+    if band.len() > 1 {
+        let outline: Vec<(f64, f64)> = band
+            .iter()
+            .map(|b| (b.0, b.2))
+            .chain(band.iter().rev().map(|b| (b.0, b.1)))
+            .collect();
+        chart.draw_series(std::iter::once(Polygon::new(outline, c.mix(0.2).filled())))?;
+    }
     let pts: Vec<(f64, f64)> = s.points.iter().filter(keep).copied().collect();
     let anno = if s.markers {
         chart.draw_series(pts.iter().map(|&p| Circle::new(p, 3, c.filled())))?

@@ -68,17 +68,39 @@ fn number(v: &Value) -> String {
 }
 
 /// The population summary as a table: statistics with a mean get one row (mean, median,
-/// standard deviation, n); other entries are flattened to one row each.
+/// standard deviation, n and the interval of the mean), those with a value one row (value and
+/// interval); other entries are flattened to one row each. The motion models have a table of
+/// their own and are left out here.
 fn summary_table(html: &mut String, summary: &Value) {
-    html.push_str("<div class=\"wide\"><table><tr><th>statistic</th><th>value or mean</th><th>median</th><th>standard deviation</th><th>n</th></tr>");
-    fn row(html: &mut String, name: &str, cells: [String; 4]) {
+    html.push_str("<div class=\"wide\"><table><tr><th>statistic</th><th>value or mean</th><th>95% interval</th><th>median</th><th>standard deviation</th><th>n</th></tr>");
+    fn row(html: &mut String, name: &str, cells: [String; 5]) {
         let _ = write!(html, "<tr><td>{}</td>", escape_html(name));
         for c in cells {
-            let _ = write!(html, "<td>{c}</td>");
+            let _ = write!(html, "<td>{}</td>", escape_html(&c));
         }
         html.push_str("</tr>");
     }
+    fn interval(v: Option<&Value>) -> String {
+        match v.and_then(Value::as_array) {
+            Some(a) if a.len() == 2 => format!("{} – {}", number(&a[0]), number(&a[1])),
+            _ => String::new(),
+        }
+    }
+    fn cell(v: &Value) -> String {
+        match v {
+            Value::String(s) => s.clone(),
+            Value::Array(a) => a.iter().map(cell).collect::<Vec<_>>().join(" – "),
+            _ => number(v),
+        }
+    }
     fn walk(html: &mut String, prefix: &str, v: &Value) {
+        let key = |k: &str| {
+            if prefix.is_empty() {
+                k.to_string()
+            } else {
+                format!("{prefix} · {k}")
+            }
+        };
         match v {
             Value::Object(m) if m.contains_key("mean") => {
                 let n = m
@@ -86,36 +108,36 @@ fn summary_table(html: &mut String, summary: &Value) {
                     .and_then(Value::as_u64)
                     .map(|n| n.to_string())
                     .unwrap_or_default();
-                row(
-                    html,
-                    prefix,
-                    [
-                        number(&m["mean"]),
-                        number(&m["median"]),
-                        number(&m["standard_deviation"]),
-                        n,
-                    ],
-                );
+                let cells = [
+                    number(&m["mean"]),
+                    interval(m.get("ci95_of_mean")),
+                    number(&m["median"]),
+                    number(&m["standard_deviation"]),
+                    n,
+                ];
+                row(html, prefix, cells);
+            }
+            Value::Object(m) if m.contains_key("value") => {
+                let blank = String::new;
+                let cells = [cell(&m["value"]), interval(m.get("ci95")), blank(), blank(), blank()];
+                row(html, prefix, cells);
+                for (k, x) in m.iter().filter(|(k, _)| !["value", "ci95"].contains(&k.as_str())) {
+                    walk(html, &key(k), x);
+                }
             }
             Value::Object(m) => {
                 for (k, x) in m {
-                    let key = if prefix.is_empty() {
-                        k.clone()
-                    } else {
-                        format!("{prefix} · {k}")
-                    };
-                    walk(html, &key, x);
+                    if prefix.is_empty() && k == "motion_model" {
+                        continue;
+                    }
+                    walk(html, &key(k), x);
                 }
             }
-            Value::Array(a) => {
-                let text: Vec<String> = a.iter().map(number).collect();
-                row(
-                    html,
-                    prefix,
-                    [text.join(" – "), String::new(), String::new(), String::new()],
-                );
-            }
-            _ => row(html, prefix, [number(v), String::new(), String::new(), String::new()]),
+            _ => row(
+                html,
+                prefix,
+                [cell(v), String::new(), String::new(), String::new(), String::new()],
+            ),
         }
     }
     walk(html, "", summary);
@@ -148,8 +170,16 @@ pub struct AnalysisPage<'a> {
     pub directions_deg: Vec<f64>,
     /// MSD points `(lag, msd)` in time and squared length units.
     pub msd: Vec<(f64, f64)>,
-    /// A fitted MSD curve: its legend and points.
+    /// The MSD's 95% interval `(lag, low, high)`.
+    pub msd_band: Vec<(f64, f64, f64)>,
+    /// The mean of cells' own MSDs `(lag, msd)`.
+    pub per_cell_msd: Vec<(f64, f64)>,
+    /// The chosen model's MSD curve: its legend and points.
     pub msd_fit: Option<(String, Vec<(f64, f64)>)>,
+    /// How the model was chosen, in words.
+    pub model_criterion: String,
+    /// One row per candidate model: name, parameters with intervals, ΔAICc, verdict.
+    pub models: Vec<Vec<String>>,
     /// What the fitted motion model cannot be trusted for, in words.
     pub model_warnings: &'a [String],
     /// Mean speed per track.
@@ -160,6 +190,8 @@ pub struct AnalysisPage<'a> {
     pub order: Vec<(f64, f64)>,
     /// Direction autocorrelation `(lag, value)`.
     pub direction_autocorrelation: Vec<(f64, f64)>,
+    /// Its 95% interval `(lag, low, high)`.
+    pub direction_autocorrelation_band: Vec<(f64, f64, f64)>,
     /// Neighbour velocity-fluctuation correlation `(distance, value)`.
     pub neighbour_correlation: Vec<(f64, f64)>,
     /// The analysis options and units, shown as JSON.
@@ -192,6 +224,13 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
         }
         html.push_str("</ul>");
     }
+    html.push_str("<h2 id=\"models\">Motion models</h2>");
+    let _ = write!(html, "<p>{}</p>", escape_html(&page.model_criterion));
+    table(
+        &mut html,
+        &["model", "parameters (95% interval)", "ΔAICc", ""],
+        &page.models,
+    );
     html.push_str("<h2>Charts</h2><div class=\"grid\">");
     figure(
         &mut html,
@@ -209,13 +248,13 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
         &mut html,
         "msd",
         &msd_chart(page),
-        "MSD with overlapping windows; the line is the persistent random walk fitted over the stated lags.",
+        "Pooled MSD over overlapping windows (Qian et al. 1991), shaded: its 95% interval from resampling whole tracks; beside it the mean of each cell's own MSD, which weighs every cell alike; the line: the chosen model over the lags fitted.",
     );
     figure(
         &mut html,
         "speed",
         &histogram("Mean speed per track", &format!("{l}/{t}"), &page.speeds, 20),
-        "Path length over duration, per track.",
+        "Mean length of the steps between consecutive frames over the frame interval, per track (steps across missing frames left out).",
     );
     figure(
         &mut html,
@@ -226,15 +265,9 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
             &page.directionality,
             20,
         ),
-        "Depends on track duration: compare the fixed-time ratio in the table between conditions.",
+        "Longer tracks score lower (Gorelik & Gautreau 2014): between conditions, compare the ratio at a fixed time in the table.",
     );
-    let series = |label: &str, points: &[(f64, f64)], markers: bool| {
-        [Series {
-            label: label.into(),
-            points: points.to_vec(),
-            markers,
-        }]
-    };
+    let series = |label: &str, points: &[(f64, f64)], markers: bool| [Series::new(label, points.to_vec(), markers)];
     figure(
         &mut html,
         "order",
@@ -254,10 +287,13 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
             "Direction autocorrelation",
             &format!("lag ({t})"),
             "⟨û(t)·û(t+lag)⟩",
-            &series("direction", &page.direction_autocorrelation, true),
+            &[Series {
+                band: page.direction_autocorrelation_band.clone(),
+                ..Series::new("direction", page.direction_autocorrelation.clone(), true)
+            }],
             false,
         ),
-        "Unbiased by speed; a slow decay means persistent migration.",
+        "Mean cosine between the directions of steps a lag apart, shaded: 95% interval from resampling tracks. Steps enter as unit vectors, so speed plays no part (Gorelik & Gautreau 2014).",
     );
     figure(
         &mut html,
@@ -265,11 +301,11 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
         &line_chart(
             "Neighbour velocity-fluctuation correlation",
             &format!("distance ({l})"),
-            "mean cosine",
+            "C(r)",
             &series("C(r)", &page.neighbour_correlation, true),
             false,
         ),
-        "Correlation of velocity fluctuations (common drift removed) between pairs of cells, by distance.",
+        "How alike the velocity fluctuations of two cells are, by their distance: each frame's fluctuations about its mean velocity, scaled by their root mean square, multiplied in pairs and averaged (Cavagna et al. 2010).",
     );
     html.push_str("</div>");
     if let Some(record) = page.run_record {
@@ -288,16 +324,14 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
 fn msd_chart(page: &AnalysisPage) -> String {
     let (l, t) = (page.length_unit, page.time_unit);
     let mut series = vec![Series {
-        label: "MSD".into(),
-        points: page.msd.clone(),
-        markers: true,
+        band: page.msd_band.clone(),
+        ..Series::new("MSD (pooled)", page.msd.clone(), true)
     }];
+    if !page.per_cell_msd.is_empty() {
+        series.push(Series::new("MSD (mean of cells)", page.per_cell_msd.clone(), true));
+    }
     if let Some((label, fit)) = &page.msd_fit {
-        series.push(Series {
-            label: label.clone(),
-            points: fit.clone(),
-            markers: false,
-        });
+        series.push(Series::new(label.clone(), fit.clone(), false));
     }
     line_chart(
         "Mean squared displacement",
@@ -353,11 +387,7 @@ fn qc_section(html: &mut String, record: &RunRecord) {
             "Objects per frame",
             "frame",
             "objects",
-            &[Series {
-                label: "objects".into(),
-                points: pick(|f| Some(f.objects as f64)),
-                markers: false,
-            }],
+            &[Series::new("objects", pick(|f| Some(f.objects as f64)), false)],
             false,
         ),
         "Sudden jumps mean segmentation trouble (flagged below).",
@@ -369,11 +399,7 @@ fn qc_section(html: &mut String, record: &RunRecord) {
             "Threshold per frame",
             "frame",
             "grey level",
-            &[Series {
-                label: "threshold".into(),
-                points: pick(|f| f.threshold),
-                markers: false,
-            }],
+            &[Series::new("threshold", pick(|f| f.threshold), false)],
             false,
         ),
         "A drifting threshold follows bleaching; jumps deserve a look.",
@@ -422,14 +448,28 @@ pub struct ComparedStatistic {
     pub strips: Vec<Strip>,
 }
 
-/// The report of `caravan compare`: the comparison table (already rendered rows), one strip
-/// chart per statistic, and the warnings.
+/// Curves of every condition on one chart.
+pub struct ComparedCurves {
+    /// Chart title.
+    pub title: String,
+    /// Axis descriptions.
+    pub axes: (String, String),
+    /// Logarithmic axes.
+    pub log: bool,
+    /// One series per condition (with its band).
+    pub series: Vec<Series>,
+    /// Caption.
+    pub caption: String,
+}
+
+/// The report of `caravan compare`: the comparison table (already rendered rows), the
+/// conditions' curves overlaid, one strip chart per statistic, and the warnings.
 pub fn comparison_report(
     manifest: &str,
     entries: &[Vec<String>],
     table_rows: &[Vec<String>],
     header: &[&str],
-    stats: &[ComparedStatistic],
+    (stats, curves): (&[ComparedStatistic], &[ComparedCurves]),
     warnings: &[String],
 ) -> String {
     let mut html = page_start("Caravan comparison of conditions");
@@ -446,12 +486,20 @@ pub fn comparison_report(
     html.push_str("<h2>Differences between conditions</h2>");
     table(&mut html, header, table_rows);
     html.push_str("<h2>Per condition</h2><div class=\"grid\">");
+    for (k, c) in curves.iter().enumerate() {
+        figure(
+            &mut html,
+            &format!("curves-{k}"),
+            &line_chart(&c.title, &c.axes.0, &c.axes.1, &c.series, c.log),
+            &c.caption,
+        );
+    }
     for (k, s) in stats.iter().enumerate() {
         figure(
             &mut html,
             &format!("statistic-{k}"),
             &strip_chart(&s.name, &s.name, &s.strips),
-            "Small grey points: tracks; large points: replicate means, the independent units of the test.",
+            "Grey: one point per track; large: one per replicate, the values the test compares (a layout after Lord et al. 2020).",
         );
     }
     html.push_str("</div>");

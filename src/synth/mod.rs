@@ -6,6 +6,7 @@
 //! entering and leaving the field. Everything is deterministic for a given seed.
 
 mod scene;
+pub mod walks;
 
 pub use crate::numeric::Rng;
 pub use scene::{Nucleus, Scene};

@@ -1,0 +1,550 @@
+//! Motion models of the mean squared displacement, fitted and chosen between: free diffusion,
+//! diffusion with a drift, and the persistent random walk, each with or without a constant
+//! offset for localisation noise. The choice is by the small-sample Akaike information
+//! criterion, and every candidate's fit (or the reason it failed) is kept for the outputs.
+
+use super::msd::{furth_msd, MsdPoint};
+use serde::Serialize;
+
+/// The shape of a model's MSD curve.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum MotionKind {
+    /// MSD = 4Dt (A. Einstein (1905), Ann. Phys. 17:549–560).
+    Diffusion,
+    /// MSD = 4Dt + v²t²: diffusion carried along by a constant velocity v (H. Qian, M. P.
+    /// Sheetz & E. L. Elson (1991), Biophys. J. 60(4):910–921, doi:10.1016/S0006-3495(91)82125-7).
+    DiffusionWithDrift,
+    /// MSD = 4D[t − P(1 − e^{−t/P})] (R. Fürth (1920), Z. Physik 2:244–256; see
+    /// [`super::msd::furth_msd`]).
+    PersistentRandomWalk,
+}
+
+/// One candidate model: a shape, with or without the localisation-noise offset.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct MotionModel {
+    /// Shape of the curve.
+    pub kind: MotionKind,
+    /// Whether a constant 4σ² is added at every lag.
+    pub noise_offset: bool,
+}
+
+impl MotionModel {
+    /// The six candidates, simplest first.
+    pub const ALL: [MotionModel; 6] = [
+        MotionModel::new(MotionKind::Diffusion, false),
+        MotionModel::new(MotionKind::Diffusion, true),
+        MotionModel::new(MotionKind::DiffusionWithDrift, false),
+        MotionModel::new(MotionKind::DiffusionWithDrift, true),
+        MotionModel::new(MotionKind::PersistentRandomWalk, false),
+        MotionModel::new(MotionKind::PersistentRandomWalk, true),
+    ];
+
+    /// A candidate.
+    pub const fn new(kind: MotionKind, noise_offset: bool) -> Self {
+        MotionModel { kind, noise_offset }
+    }
+
+    /// Its name in the outputs, e.g. `persistent_random_walk+noise`.
+    pub fn name(&self) -> String {
+        let shape = match self.kind {
+            MotionKind::Diffusion => "diffusion",
+            MotionKind::DiffusionWithDrift => "diffusion_with_drift",
+            MotionKind::PersistentRandomWalk => "persistent_random_walk",
+        };
+        if self.noise_offset {
+            format!("{shape}+noise")
+        } else {
+            shape.to_string()
+        }
+    }
+
+    /// Number of fitted parameters.
+    pub fn parameter_count(&self) -> usize {
+        let shape = match self.kind {
+            MotionKind::Diffusion => 1,
+            MotionKind::DiffusionWithDrift | MotionKind::PersistentRandomWalk => 2,
+        };
+        shape + usize::from(self.noise_offset)
+    }
+}
+
+/// Fitted parameters; those a model does not have are `None`.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ModelParameters {
+    /// Diffusion coefficient D (length² per time).
+    pub diffusion: f64,
+    /// Persistence time P (time).
+    pub persistence: Option<f64>,
+    /// Drift speed v (length per time).
+    pub drift_speed: Option<f64>,
+    /// The constant offset 4σ² (length²); σ is the localisation error per axis (X. Michalet
+    /// (2010), "Mean square displacement analysis of single-particle trajectories with
+    /// localization error", Phys. Rev. E 82:041914, doi:10.1103/PhysRevE.82.041914).
+    pub noise_offset: Option<f64>,
+}
+
+impl ModelParameters {
+    /// The model's MSD at time lag `t`.
+    pub fn msd_at(&self, t: f64) -> f64 {
+        let shape = match self.persistence {
+            Some(p) => furth_msd(t, self.diffusion, p),
+            None => 4.0 * self.diffusion * t,
+        };
+        shape + self.drift_speed.map_or(0.0, |v| v * v * t * t) + self.noise_offset.unwrap_or(0.0)
+    }
+
+    /// The persistent walk's speed S = √(2D/P), when it has a persistence time.
+    pub fn walk_speed(&self) -> Option<f64> {
+        self.persistence.map(|p| (2.0 * self.diffusion / p).sqrt())
+    }
+
+    /// The localisation error σ per axis, √(offset/4).
+    pub fn localisation_error(&self) -> Option<f64> {
+        self.noise_offset.map(|c| (c / 4.0).sqrt())
+    }
+}
+
+/// One candidate fitted to MSD points.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ModelFit {
+    /// The candidate.
+    pub model: MotionModel,
+    /// Its parameters.
+    pub parameters: ModelParameters,
+    /// Weighted residual sum of squares (weights: pairs per lag over their mean).
+    pub weighted_rss: f64,
+    /// MSD points fitted.
+    pub points: usize,
+    /// Small-sample Akaike information criterion (see [`aicc`]).
+    pub aicc: f64,
+}
+
+/// A candidate that could not be fitted, and why.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FailedFit {
+    /// The candidate.
+    pub model: MotionModel,
+    /// Why, in words.
+    pub reason: String,
+}
+
+/// Every candidate's fit and the one chosen.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ModelChoice {
+    /// Candidates fitted, in [`MotionModel::ALL`] order.
+    pub fitted: Vec<ModelFit>,
+    /// Candidates that failed.
+    pub failed: Vec<FailedFit>,
+    /// Index into `fitted` of the model chosen (`None` when nothing could be fitted).
+    pub chosen: Option<usize>,
+}
+
+impl ModelChoice {
+    /// The chosen fit.
+    pub fn best(&self) -> Option<&ModelFit> {
+        self.chosen.map(|k| &self.fitted[k])
+    }
+
+    /// The better-scoring persistent random walk (with or without offset): the fit whose D
+    /// and P `compare` sets side by side across recordings, whichever model won here.
+    pub fn persistent_walk(&self) -> Option<&ModelFit> {
+        self.fitted
+            .iter()
+            .filter(|f| f.model.kind == MotionKind::PersistentRandomWalk)
+            .min_by(|a, b| a.aicc.total_cmp(&b.aicc))
+    }
+
+    /// The fit of one candidate, if it succeeded.
+    pub fn fit_of(&self, model: MotionModel) -> Option<&ModelFit> {
+        self.fitted.iter().find(|f| f.model == model)
+    }
+}
+
+/// Fits every candidate to `points` and chooses the simplest one the AICc supports (see
+/// [`simplest_supported`]).
+///
+/// # Method
+/// Model choice by an information criterion: K. P. Burnham & D. R. Anderson (2002), *Model
+/// Selection and Multimodel Inference*, 2nd ed., Springer, §2.4 (AICc for least squares with
+/// few points). MSD points of overlapping windows are correlated (Qian, Sheetz & Elson 1991),
+/// so the criterion ranks the candidates, while the intervals of their parameters come from
+/// resampling tracks ([`super::resample`]).
+pub fn choose_model(points: &[MsdPoint]) -> ModelChoice {
+    let mut fitted = Vec::new();
+    let mut failed = Vec::new();
+    for model in MotionModel::ALL {
+        match fit_model(model, points) {
+            Ok(f) => fitted.push(f),
+            Err(reason) => failed.push(FailedFit { model, reason }),
+        }
+    }
+    let chosen = simplest_supported(&fitted);
+    ModelChoice { fitted, failed, chosen }
+}
+
+/// Models within this AICc of the lowest have substantial support (Burnham & Anderson 2002,
+/// §2.6).
+pub const SUPPORTED_DELTA_AICC: f64 = 2.0;
+
+/// The fit with the fewest parameters among those within [`SUPPORTED_DELTA_AICC`] of the
+/// lowest AICc (the lower AICc between equals): a richer model must earn its parameters, which
+/// matters because correlated MSD points make every criterion favour extra terms.
+pub fn simplest_supported(fitted: &[ModelFit]) -> Option<usize> {
+    let lowest = fitted.iter().map(|f| f.aicc).fold(f64::INFINITY, f64::min);
+    (0..fitted.len())
+        .filter(|&k| fitted[k].aicc <= lowest + SUPPORTED_DELTA_AICC)
+        .min_by(|&a, &b| {
+            let (fa, fb) = (&fitted[a], &fitted[b]);
+            (fa.model.parameter_count().cmp(&fb.model.parameter_count())).then(fa.aicc.total_cmp(&fb.aicc))
+        })
+}
+
+/// AICc = n·ln(RSS/n) + 2k + 2k(k + 1)/(n − k − 1) for a least-squares fit of `k` parameters
+/// to `n` points (Burnham & Anderson 2002, §2.4); `None` when n ≤ k + 1.
+pub fn aicc(rss: f64, n: usize, k: usize) -> Option<f64> {
+    (n > k + 1).then(|| {
+        let (nf, kf) = (n as f64, k as f64);
+        nf * (rss.max(f64::MIN_POSITIVE) / nf).ln() + 2.0 * kf + 2.0 * kf * (kf + 1.0) / (nf - kf - 1.0)
+    })
+}
+
+/// Fits one candidate to `points` by weighted least squares (weights: pairs per lag); a fit
+/// with a negative coefficient (no physical meaning) or too few points fails with the reason.
+///
+/// # Errors
+/// The reason the candidate has no fit, in words.
+pub fn fit_model(model: MotionModel, points: &[MsdPoint]) -> Result<ModelFit, String> {
+    fit_with(model, points, None)
+}
+
+/// As [`fit_model`], the persistent walk started from `start` alone (a resample's refit
+/// starts from the full data's estimate; the linear models need no start).
+///
+/// # Errors
+/// The reason the candidate has no fit, in words.
+pub fn fit_model_from(model: MotionModel, points: &[MsdPoint], start: &ModelParameters) -> Result<ModelFit, String> {
+    fit_with(model, points, Some(start))
+}
+
+fn fit_with(model: MotionModel, points: &[MsdPoint], start: Option<&ModelParameters>) -> Result<ModelFit, String> {
+    let k = model.parameter_count();
+    if points.len() < k + 2 {
+        return Err(format!("{} MSD points are too few for {k} parameters", points.len()));
+    }
+    let mean_pairs = points.iter().map(|q| q.pairs as f64).sum::<f64>() / points.len() as f64;
+    let weights: Vec<f64> = points.iter().map(|q| q.pairs as f64 / mean_pairs).collect();
+    let parameters = match model.kind {
+        MotionKind::PersistentRandomWalk => fit_persistent_walk(points, &weights, model.noise_offset, start)?,
+        _ => fit_linear(model, points, &weights)?,
+    };
+    let rss: f64 = points
+        .iter()
+        .zip(&weights)
+        .map(|(q, w)| w * (q.msd - parameters.msd_at(q.lag)).powi(2))
+        .sum();
+    if !rss.is_finite() {
+        return Err("the fit did not converge".into());
+    }
+    Ok(ModelFit {
+        model,
+        parameters,
+        weighted_rss: rss,
+        points: points.len(),
+        aicc: aicc(rss, points.len(), k).expect("enough points checked above"),
+    })
+}
+
+/// Diffusion and drift models are linear in 4D, v² and 4σ²: weighted normal equations.
+fn fit_linear(model: MotionModel, points: &[MsdPoint], weights: &[f64]) -> Result<ModelParameters, String> {
+    let drift = model.kind == MotionKind::DiffusionWithDrift;
+    let basis = |t: f64| {
+        let mut row = vec![4.0 * t];
+        if drift {
+            row.push(t * t);
+        }
+        if model.noise_offset {
+            row.push(1.0);
+        }
+        row
+    };
+    let rows: Vec<(Vec<f64>, f64, f64)> = points
+        .iter()
+        .zip(weights)
+        .map(|(q, &w)| (basis(q.lag), q.msd, w))
+        .collect();
+    let coef = weighted_least_squares(&rows).ok_or("the lags fitted do not determine the parameters")?;
+    let named = ["diffusion coefficient", "drift term v²", "noise offset"];
+    let names: Vec<&str> = [true, drift, model.noise_offset]
+        .iter()
+        .zip(named)
+        .filter(|(on, _)| **on)
+        .map(|(_, n)| n)
+        .collect();
+    if let Some((name, value)) = names.iter().zip(&coef).find(|(_, &c)| c < 0.0) {
+        return Err(format!(
+            "the fitted {name} is negative ({value:.4}): the model does not describe these points"
+        ));
+    }
+    let mut it = coef.iter().copied();
+    let diffusion = it.next().expect("one coefficient at least");
+    Ok(ModelParameters {
+        diffusion,
+        persistence: None,
+        drift_speed: drift.then(|| it.next().expect("drift term").sqrt()),
+        noise_offset: model.noise_offset.then(|| it.next().expect("offset term")),
+    })
+}
+
+/// Solves min Σ w (y − x·β)² by the normal equations (Gaussian elimination with partial
+/// pivoting); `None` when singular.
+pub fn weighted_least_squares(rows: &[(Vec<f64>, f64, f64)]) -> Option<Vec<f64>> {
+    let k = rows.first()?.0.len();
+    let mut a = vec![vec![0.0; k + 1]; k];
+    for (x, y, w) in rows {
+        for i in 0..k {
+            for j in 0..k {
+                a[i][j] += w * x[i] * x[j];
+            }
+            a[i][k] += w * x[i] * y;
+        }
+    }
+    solve_augmented(a)
+}
+
+/// Gaussian elimination with partial pivoting on an augmented k × (k + 1) matrix.
+fn solve_augmented(mut a: Vec<Vec<f64>>) -> Option<Vec<f64>> {
+    let k = a.len();
+    let scale = a.iter().flat_map(|r| r[..k].iter()).fold(0.0f64, |m, v| m.max(v.abs()));
+    for col in 0..k {
+        let pivot = (col..k).max_by(|&r, &s| a[r][col].abs().total_cmp(&a[s][col].abs()))?;
+        if a[pivot][col].abs() <= 1e-13 * scale || !a[pivot][col].is_finite() {
+            return None;
+        }
+        a.swap(col, pivot);
+        let (upper, lower) = a.split_at_mut(col + 1);
+        let pivot_row = &upper[col];
+        for row in lower.iter_mut() {
+            let f = row[col] / pivot_row[col];
+            for (x, p) in row[col..].iter_mut().zip(&pivot_row[col..]) {
+                *x -= f * p;
+            }
+        }
+    }
+    let mut x = vec![0.0; k];
+    for r in (0..k).rev() {
+        let s: f64 = (r + 1..k).map(|c| a[r][c] * x[c]).sum();
+        x[r] = (a[r][k] - s) / a[r][r];
+    }
+    Some(x)
+}
+
+/// The persistent random walk (and its noise-offset variant) by Levenberg–Marquardt steps in
+/// log space (D, P and the offset stay positive), started from several persistence times
+/// across the lags fitted, keeping the best.
+///
+/// # Method
+/// K. Levenberg (1944), Q. Appl. Math. 2:164–168; D. W. Marquardt (1963), J. SIAM
+/// 11(2):431–441.
+fn fit_persistent_walk(
+    points: &[MsdPoint],
+    weights: &[f64],
+    offset: bool,
+    start: Option<&ModelParameters>,
+) -> Result<ModelParameters, String> {
+    let (first, last) = (points[0], points[points.len() - 1]);
+    let starts: Vec<[f64; 3]> = match start {
+        Some(s) => vec![[
+            s.diffusion,
+            s.persistence.unwrap_or(first.lag),
+            s.noise_offset.unwrap_or(0.0),
+        ]],
+        None => {
+            let d0 = last.msd / (4.0 * last.lag);
+            [first.lag, (first.lag * last.lag).sqrt(), last.lag]
+                .iter()
+                .map(|&p0| [d0, p0, 0.1 * first.msd])
+                .collect()
+        }
+    };
+    let best = starts
+        .iter()
+        .filter_map(|s| {
+            let theta: Vec<f64> = s[..2 + usize::from(offset)].iter().map(|v| v.max(1e-12)).collect();
+            levenberg_marquardt(points, weights, theta)
+        })
+        .min_by(|a, b| a.1.total_cmp(&b.1))
+        .ok_or("the persistent random walk fit did not converge")?;
+    let theta = best.0;
+    Ok(ModelParameters {
+        diffusion: theta[0],
+        persistence: Some(theta[1]),
+        drift_speed: None,
+        noise_offset: offset.then(|| theta[2]),
+    })
+}
+
+/// Weighted residual sum of squares of the walk with parameters `theta` = (D, P[, offset]).
+fn walk_rss(points: &[MsdPoint], weights: &[f64], theta: &[f64]) -> f64 {
+    points
+        .iter()
+        .zip(weights)
+        .map(|(q, w)| w * (q.msd - walk_msd(q.lag, theta)).powi(2))
+        .sum()
+}
+
+fn walk_msd(t: f64, theta: &[f64]) -> f64 {
+    furth_msd(t, theta[0], theta[1]) + theta.get(2).copied().unwrap_or(0.0)
+}
+
+/// Minimises [`walk_rss`] from `theta`; the parameters and their RSS, `None` if it never
+/// became finite.
+fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>) -> Option<(Vec<f64>, f64)> {
+    let k = theta.len();
+    let mut lambda = 1e-3;
+    let mut current = walk_rss(points, weights, &theta);
+    for _ in 0..500 {
+        let mut a = vec![vec![0.0; k + 1]; k];
+        for (q, &w) in points.iter().zip(weights) {
+            let j = walk_jacobian(q.lag, &theta);
+            let r = q.msd - walk_msd(q.lag, &theta);
+            for i in 0..k {
+                for c in 0..k {
+                    a[i][c] += w * j[i] * j[c];
+                }
+                a[i][k] += w * j[i] * r;
+            }
+        }
+        for (i, row) in a.iter_mut().enumerate() {
+            row[i] *= 1.0 + lambda;
+        }
+        let Some(step) = solve_augmented(a) else {
+            lambda *= 10.0;
+            if lambda > 1e12 {
+                break;
+            }
+            continue;
+        };
+        let trial: Vec<f64> = theta
+            .iter()
+            .zip(&step)
+            .map(|(t, s)| t * (s / t).clamp(-5.0, 5.0).exp())
+            .collect();
+        let next = walk_rss(points, weights, &trial);
+        if next < current {
+            let converged = (current - next) <= 1e-15 * current.max(1e-300);
+            theta = trial;
+            current = next;
+            lambda = (lambda / 10.0).max(1e-12);
+            if converged {
+                break;
+            }
+        } else {
+            lambda *= 10.0;
+            if lambda > 1e12 {
+                break;
+            }
+        }
+    }
+    (current.is_finite() && theta.iter().all(|t| t.is_finite())).then_some((theta, current))
+}
+
+/// ∂MSD/∂(D, P[, offset]) of the walk at lag `t`.
+fn walk_jacobian(t: f64, theta: &[f64]) -> Vec<f64> {
+    let (d, p) = (theta[0], theta[1]);
+    let e = (-t / p).exp();
+    let mut j = vec![4.0 * (t - p * (1.0 - e)), -4.0 * d * ((1.0 - e) - t / p * e)];
+    if theta.len() > 2 {
+        j.push(1.0);
+    }
+    j
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::analyze::msd::model_points;
+
+    #[test]
+    fn drift_and_noise_check_values() {
+        // Source: fixtures/methods/check_values.md §11 "MSD models": D = 0.5, v = 0.4 at
+        // t = 5, 10, 15 gives 14, 36, 66; with σ² = 0.25 (offset 4σ² = 1) 15, 37, 67.
+        let p = ModelParameters {
+            diffusion: 0.5,
+            persistence: None,
+            drift_speed: Some(0.4),
+            noise_offset: None,
+        };
+        let with_noise = ModelParameters {
+            noise_offset: Some(1.0),
+            ..p
+        };
+        for (t, want) in [(5.0, 14.0), (10.0, 36.0), (15.0, 66.0)] {
+            assert!((p.msd_at(t) - want).abs() < 1e-12);
+            assert!((with_noise.msd_at(t) - want - 1.0).abs() < 1e-12);
+        }
+        assert!((with_noise.localisation_error().unwrap() - 0.5).abs() < 1e-12);
+    }
+
+    #[test]
+    fn information_criterion_check_values() {
+        // Source: fixtures/methods/check_values.md §11 "Choosing a model", recomputed by
+        // check_values.py (numpy least squares on the rounded values): lags 5..50 step 5;
+        // diffusion through the origin RSS 24665.947154, AICc 80.605938; drift + diffusion RSS
+        // 4.109065, AICc −3.179610, D = 0.511906, v = 0.398472 (AICc = AIC + 2k(k+1)/(n−k−1),
+        // Burnham & Anderson 2002, §2.4).
+        let y = [
+            14.12573, 35.867895, 66.640423, 104.1049, 149.464331, 204.361595, 267.304, 336.947081, 413.296265,
+            498.734579,
+        ];
+        let pts = model_points(1..=10, 5.0, |t| y[(t / 5.0).round() as usize - 1]);
+        let diffusion = fit_model(MotionModel::new(MotionKind::Diffusion, false), &pts).unwrap();
+        assert!((diffusion.weighted_rss - 24665.947154).abs() < 1e-5, "{diffusion:?}");
+        assert!((diffusion.aicc - 80.605938).abs() < 1e-5);
+        let drift = fit_model(MotionModel::new(MotionKind::DiffusionWithDrift, false), &pts).unwrap();
+        assert!((drift.weighted_rss - 4.109065).abs() < 1e-5, "{drift:?}");
+        assert!((drift.aicc - -3.179610).abs() < 1e-5);
+        assert!((drift.parameters.diffusion - 0.511906).abs() < 1e-6);
+        assert!((drift.parameters.drift_speed.unwrap() - 0.398472).abs() < 1e-6);
+        let choice = choose_model(&pts);
+        assert_eq!(choice.best().unwrap().model.kind, MotionKind::DiffusionWithDrift);
+    }
+
+    #[test]
+    fn the_noise_offset_removes_the_bias_of_the_walk() {
+        // Source: fixtures/methods/check_values.md §11: exact PRW values D = 2, P = 5 plus
+        // 4σ² with σ² = 0.25, lags 1–20: the walk with offset recovers D = 2, P = 5, σ² = 0.25
+        // (scipy curve_fit); the plain walk gives D = 1.962134, P = 4.581874.
+        let pts = model_points(1..=20, 1.0, |t| furth_msd(t, 2.0, 5.0) + 1.0);
+        let plain = fit_model(MotionModel::new(MotionKind::PersistentRandomWalk, false), &pts).unwrap();
+        assert!((plain.parameters.diffusion - 1.962134).abs() < 1e-5, "{plain:?}");
+        assert!((plain.parameters.persistence.unwrap() - 4.581874).abs() < 1e-5);
+        let offset = fit_model(MotionModel::new(MotionKind::PersistentRandomWalk, true), &pts).unwrap();
+        let p = offset.parameters;
+        assert!(
+            (p.diffusion - 2.0).abs() < 1e-6 && (p.persistence.unwrap() - 5.0).abs() < 1e-6,
+            "{p:?}"
+        );
+        assert!((p.localisation_error().unwrap().powi(2) - 0.25).abs() < 1e-6);
+    }
+
+    #[test]
+    fn a_negative_coefficient_is_a_failed_fit_with_its_reason() {
+        // Construction: points on MSD = 4t − 0.01t² (a curve bending down, as confinement
+        // gives) make the drift term negative: no drift speed exists, so the drift model
+        // fails and says why, and the others are still fitted.
+        let pts = model_points(1..=10, 1.0, |t| 4.0 * t - 0.01 * t * t);
+        let choice = choose_model(&pts);
+        let failed: Vec<String> = choice.failed.iter().map(|f| f.model.name()).collect();
+        assert!(
+            failed.contains(&"diffusion_with_drift".to_string()),
+            "{:?}",
+            choice.failed
+        );
+        assert!(choice
+            .failed
+            .iter()
+            .all(|f| f.reason.contains("negative") || f.reason.contains("converge")));
+        assert!(choice.fit_of(MotionModel::new(MotionKind::Diffusion, false)).is_some());
+    }
+}
