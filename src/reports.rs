@@ -120,22 +120,26 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
     }
 }
 
-/// The models table: each candidate's parameters with intervals, its ΔAICc and whether it
-/// was chosen; failed candidates with their reason.
+/// The models table: each candidate's parameters with intervals, its ΔAICc (from the lowest)
+/// and whether it was chosen; failed candidates with their reason.
 fn model_rows(a: &Analysis) -> Vec<Vec<String>> {
-    let best = a.models.best().map(|b| b.aicc);
     let mut rows: Vec<Vec<String>> = a
         .models
         .fitted
         .iter()
         .zip(&a.uncertainty.models)
-        .map(|(f, i)| {
-            let chosen = best == Some(f.aicc);
+        .zip(a.models.delta_aicc())
+        .enumerate()
+        .map(|(k, ((f, i), delta))| {
             vec![
                 f.model.name(),
                 parameter_text(a, f, i),
-                best.map_or(String::new(), |b| format!("{:.2}", f.aicc - b)),
-                if chosen { "chosen".into() } else { String::new() },
+                format!("{delta:.2}"),
+                if a.models.chosen == Some(k) {
+                    "chosen".into()
+                } else {
+                    String::new()
+                },
             ]
         })
         .collect();
@@ -166,11 +170,7 @@ fn parameter_text(a: &Analysis, f: &ModelFit, i: &ModelIntervals) -> String {
         parts.push(one("v", v, i.drift_speed, format!("{l}/{t}")));
     }
     if let Some(sigma) = p.localisation_error() {
-        let ci = i.noise_offset.map(|c| Interval {
-            low: (c.low.max(0.0) / 4.0).sqrt(),
-            high: (c.high.max(0.0) / 4.0).sqrt(),
-        });
-        parts.push(one("σ", sigma, ci, l.to_string()));
+        parts.push(one("σ", sigma, i.localisation_error(), l.to_string()));
     }
     parts.join("; ")
 }

@@ -155,6 +155,12 @@ impl ModelChoice {
             .min_by(|a, b| a.aicc.total_cmp(&b.aicc))
     }
 
+    /// Each fit's AICc minus the lowest AICc (Burnham & Anderson's Δ), in `fitted` order.
+    pub fn delta_aicc(&self) -> Vec<f64> {
+        let lowest = self.fitted.iter().map(|f| f.aicc).fold(f64::INFINITY, f64::min);
+        self.fitted.iter().map(|f| f.aicc - lowest).collect()
+    }
+
     /// The fit of one candidate, if it succeeded.
     pub fn fit_of(&self, model: MotionModel) -> Option<&ModelFit> {
         self.fitted.iter().find(|f| f.model == model)
@@ -546,5 +552,36 @@ mod tests {
             .iter()
             .all(|f| f.reason.contains("negative") || f.reason.contains("converge")));
         assert!(choice.fit_of(MotionModel::new(MotionKind::Diffusion, false)).is_some());
+    }
+
+    #[test]
+    fn the_simplest_model_within_two_of_the_lowest_aicc_is_chosen() {
+        // Source: Burnham & Anderson (2002), §2.6: models within 2 of the lowest AICc have
+        // substantial support; among them the fewest parameters (our parsimony rule). AICc
+        // 10 (1 parameter), 9 and 8.5 (2): the 1-parameter model is within 1.5 and is chosen;
+        // with the last at 5, nothing else is within 2 and it is chosen. Δ from the lowest.
+        let fit = |model: MotionModel, aicc: f64| ModelFit {
+            model,
+            parameters: ModelParameters {
+                diffusion: 1.0,
+                persistence: None,
+                drift_speed: None,
+                noise_offset: None,
+            },
+            weighted_rss: 1.0,
+            points: 10,
+            aicc,
+        };
+        let [d, _, drift, _, walk, _] = MotionModel::ALL;
+        let close = vec![fit(d, 10.0), fit(drift, 9.0), fit(walk, 8.5)];
+        assert_eq!(simplest_supported(&close), Some(0));
+        let far = vec![fit(d, 10.0), fit(drift, 9.0), fit(walk, 5.0)];
+        assert_eq!(simplest_supported(&far), Some(2));
+        let choice = ModelChoice {
+            fitted: far,
+            failed: Vec::new(),
+            chosen: Some(2),
+        };
+        assert_eq!(choice.delta_aicc(), vec![5.0, 4.0, 0.0]);
     }
 }

@@ -252,17 +252,17 @@ fn interval(i: Option<Interval>) -> Value {
 /// (value and 95% interval from resampling tracks) and its criterion, or why it failed.
 fn motion_models(a: &Analysis) -> Value {
     let m = &a.models;
-    let best = m.best().map(|b| b.aicc);
     let mut candidates: Vec<Value> = m
         .fitted
         .iter()
         .zip(&a.uncertainty.models)
-        .map(|(f, i)| {
+        .zip(m.delta_aicc())
+        .map(|((f, i), delta)| {
             json!({
                 "model": f.model.name(),
                 "parameters": model_parameters(a, f, i),
                 "aicc": f.aicc,
-                "delta_aicc": best.map(|b| f.aicc - b),
+                "delta_aicc": delta,
                 "weighted_rss": f.weighted_rss,
                 "resamples_fitted": i.fitted_resamples,
             })
@@ -292,12 +292,6 @@ fn model_parameters(a: &Analysis, f: &ModelFit, i: &ModelIntervals) -> Value {
     let (l, t) = (a.units.length, a.units.time);
     let p: &ModelParameters = &f.parameters;
     let entry = |v: Option<f64>, ci: Option<Interval>| json!({ "value": v, "ci95": interval(ci) });
-    let sigma = |c: Option<Interval>| {
-        c.map(|c| Interval {
-            low: (c.low.max(0.0) / 4.0).sqrt(),
-            high: (c.high.max(0.0) / 4.0).sqrt(),
-        })
-    };
     let mut out = Map::new();
     out.insert(
         format!("diffusion_coefficient_{l}2_per_{t}"),
@@ -313,7 +307,7 @@ fn model_parameters(a: &Analysis, f: &ModelFit, i: &ModelIntervals) -> Value {
     if p.noise_offset.is_some() {
         out.insert(
             format!("localisation_error_{l}"),
-            entry(p.localisation_error(), sigma(i.noise_offset)),
+            entry(p.localisation_error(), i.localisation_error()),
         );
     }
     Value::Object(out)

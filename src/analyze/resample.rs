@@ -74,6 +74,17 @@ pub struct ModelIntervals {
     pub fitted_resamples: usize,
 }
 
+impl ModelIntervals {
+    /// The interval of the localisation error σ = √(offset/4), from the offset's (the map is
+    /// increasing, so percentiles carry over).
+    pub fn localisation_error(&self) -> Option<Interval> {
+        self.noise_offset.map(|c| Interval {
+            low: (c.low.max(0.0) / 4.0).sqrt(),
+            high: (c.high.max(0.0) / 4.0).sqrt(),
+        })
+    }
+}
+
 /// Intervals of everything a population analysis reports.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Uncertainty {
@@ -148,14 +159,18 @@ fn one_replicate(
     fits: &[ModelFit],
 ) -> Replicate {
     let points = pool_msd(sums.msd, Some(copies), frame_interval);
-    let at = |lag: usize| points.iter().find(|q| q.lag_frames == lag).map(|q| q.msd);
+    let mut by_lag = vec![None; points.last().map_or(0, |q| q.lag_frames + 1)];
+    for q in &points {
+        by_lag[q.lag_frames] = Some(q.msd);
+    }
+    let at = |lag: usize| by_lag.get(lag).copied().flatten();
     let fitted: Vec<MsdPoint> = points
         .iter()
         .copied()
         .filter(|q| q.lag_frames >= fit_lags.0 && q.lag_frames <= fit_lags.1)
         .collect();
     let acf = pool_autocorrelation(sums.autocorrelation, Some(copies));
-    let acf_at = |lag: usize| acf.iter().find(|q| q.lag_frames == lag);
+    let acf_at = |lag: usize| acf.iter().find(|q| q.lag_frames == lag); // at most 21 lags
     let (mut speed_sum, mut speed_n) = (0.0, 0u32);
     for (s, &c) in sums.speed.iter().zip(copies) {
         if let Some(v) = s {
