@@ -9,13 +9,14 @@ use crate::analyze::compare::{
 use crate::analyze::models::ModelFit;
 use crate::analyze::population::Analysis;
 use crate::analyze::population::AnalysisOptions;
+use crate::analyze::profiles::{Direction, ProfileBin};
 use crate::analyze::resample::{Interval, ModelIntervals};
 use crate::analyze::run::{write_analysis_tables, AnalysisRun, ANALYSIS_TABLES};
 use crate::analyze::table::{CalibrationOverride, Filters};
 use crate::error::Result;
 use crate::output::write_atomic;
 use crate::render::plots::{Series, Strip};
-use crate::render::report::{analysis_report, comparison_report, AnalysisPage, ComparedCurves, ComparedStatistic};
+use crate::render::report::{analysis_report, comparison_report, AnalysisPage, ChartSpec, ComparedStatistic};
 use std::path::Path;
 
 /// Every file an analysis folder holds: the tables, `summary.json` and `report.html`.
@@ -117,7 +118,112 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
             .filter_map(|b| b.correlation.map(|c| ((b.from + b.to) / 2.0, c)))
             .collect(),
         parameters: serde_json::json!({ "options": a.options, "units": a.units }),
+        confinement: confinement_charts(a),
     }
+}
+
+/// The stream over time, the response to the border and the lane profiles, as charts.
+fn confinement_charts(a: &Analysis) -> Vec<ChartSpec> {
+    let (l, t) = (a.units.length.as_str(), a.units.time.as_str());
+    let dt = a.units.time_per_frame;
+    let mut out = Vec::new();
+    if let Some(s) = &a.stream {
+        let over_time = |get: fn(&crate::analyze::stream::StreamFrame) -> f64| -> Vec<(f64, f64)> {
+            s.frames.iter().map(|f| (f.frame as f64 * dt, get(f))).collect()
+        };
+        out.push(ChartSpec {
+            title: "Stream front and rear along the axis".into(),
+            axes: (format!("time ({t})"), format!("position along the axis ({l})")),
+            log: false,
+            series: vec![
+                Series::new("front (95th percentile)", over_time(|f| f.front), false),
+                Series::new("rear (5th percentile)", over_time(|f| f.rear), false),
+            ],
+            caption: "Where the stream's leading and trailing cells are; the front's advance speed (Theil-Sen slope) is in the table.".into(),
+        });
+        out.push(ChartSpec {
+            title: "Stream width across the axis".into(),
+            axes: (format!("time ({t})"), format!("width ({l})")),
+            log: false,
+            series: vec![
+                Series::new("5th-95th percentile span", over_time(|f| f.width), false),
+                Series::new("standard deviation", over_time(|f| f.width_sd), false),
+            ],
+            caption: "How wide the stream is, frame by frame, from the positions of every tracked cell.".into(),
+        });
+    }
+    if let Some(b) = &a.border {
+        let mid = |x: &crate::analyze::border::DistanceBin| (x.from + x.to) / 2.0;
+        let band = |get: fn(&crate::analyze::border::DistanceBin) -> Option<Interval>| -> Vec<(f64, f64, f64)> {
+            b.bins
+                .iter()
+                .filter_map(|x| get(x).map(|i| (mid(x), i.low, i.high)))
+                .collect()
+        };
+        let line = |get: fn(&crate::analyze::border::DistanceBin) -> Option<f64>| -> Vec<(f64, f64)> {
+            b.bins.iter().filter_map(|x| get(x).map(|v| (mid(x), v))).collect()
+        };
+        out.push(ChartSpec {
+            title: "Speed against distance to the border".into(),
+            axes: (format!("distance to the border ({l})"), format!("speed ({l}/{t})")),
+            log: false,
+            series: vec![
+                Series {
+                    band: band(|x| x.speed_ci95),
+                    ..Series::new("speed", line(|x| x.speed), true)
+                },
+                Series {
+                    band: band(|x| x.approach_speed_ci95),
+                    ..Series::new("speed toward the border", line(|x| x.approach_speed), true)
+                },
+            ],
+            caption: "Steps binned by how far from the border they start; shaded: 95% intervals from resampling tracks. Approaches and their outcomes are in border.csv.".into(),
+        });
+        out.push(ChartSpec {
+            title: "Heading against distance to the border".into(),
+            axes: (format!("distance to the border ({l})"), "cosine toward the border".into()),
+            log: false,
+            series: vec![Series {
+                band: band(|x| x.heading_toward_ci95),
+                ..Series::new("heading toward the border", line(|x| x.heading_toward), true)
+            }],
+            caption: "1: straight at the border, 0: along it, -1: straight away; shaded: 95% intervals from resampling tracks.".into(),
+        });
+    }
+    for direction in [Direction::Across, Direction::Along] {
+        let bins: Vec<&ProfileBin> = a.profiles.iter().filter(|b| b.direction == direction).collect();
+        if bins.is_empty() {
+            continue;
+        }
+        let line = |get: fn(&ProfileBin) -> Option<f64>| -> Vec<(f64, f64)> {
+            bins.iter()
+                .filter_map(|b| get(b).map(|v| ((b.from + b.to) / 2.0, v)))
+                .collect()
+        };
+        let (title, x) = match direction {
+            Direction::Across => ("Across the lane", format!("position across the axis ({l})")),
+            Direction::Along => ("Along the axis", format!("position along the axis ({l})")),
+        };
+        out.push(ChartSpec {
+            title: format!("{title}: forward index, straightness, alignment"),
+            axes: (x.clone(), "index".into()),
+            log: false,
+            series: vec![
+                Series::new("forward index of steps", line(|b| b.forward_index), true),
+                Series::new("directionality ratio", line(|b| b.directionality), true),
+                Series::new("order parameter", line(|b| b.order_parameter), true),
+            ],
+            caption: "Binned by where each step starts (tracks by their mean position; the order parameter per frame and bin, averaged).".into(),
+        });
+        out.push(ChartSpec {
+            title: format!("{title}: speed"),
+            axes: (x, format!("speed ({l}/{t})")),
+            log: false,
+            series: vec![Series::new("mean step speed", line(|b| b.speed), true)],
+            caption: "Mean speed of the steps starting in each bin.".into(),
+        });
+    }
+    out
 }
 
 /// The models table: each candidate's parameters with intervals, its ΔAICc (from the lowest)
@@ -235,7 +341,7 @@ pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<(
 }
 
 /// The MSD and direction autocorrelation of every condition, overlaid.
-fn compared_curves(c: &Comparison) -> Vec<ComparedCurves> {
+fn compared_curves(c: &Comparison) -> Vec<ChartSpec> {
     let (l, t) = (c.units.0.as_str(), c.units.1.as_str());
     let series = |pick: fn(&RecordingCurves) -> &[(f64, f64)]| -> Vec<Series> {
         c.conditions
@@ -250,20 +356,70 @@ fn compared_curves(c: &Comparison) -> Vec<ComparedCurves> {
             .collect()
     };
     let caption = "Points: the mean over the condition's replicates (each replicate the mean of its recordings); shaded: from the lowest to the highest replicate, lags every replicate has.";
-    vec![
-        ComparedCurves {
+    let factor = c
+        .factor
+        .iter()
+        .flat_map(|f| f.fits.iter().map(move |fit| factor_chart(&f.column, fit)));
+    let mut charts = vec![
+        ChartSpec {
             title: "Mean squared displacement per condition".into(),
             axes: (format!("lag ({t})"), format!("MSD ({l}²)")),
             log: true,
             series: series(|r| &r.msd),
             caption: caption.into(),
         },
-        ComparedCurves {
+        ChartSpec {
             title: "Direction autocorrelation per condition".into(),
             axes: (format!("lag ({t})"), "⟨û(t)·û(t+lag)⟩".into()),
             log: false,
             series: series(|r| &r.direction_autocorrelation),
             caption: caption.into(),
         },
-    ]
+    ];
+    charts.extend(factor);
+    charts
+}
+
+/// One statistic against the manifest's numeric column: replicate means and the quadratic.
+fn factor_chart(column: &str, fit: &crate::analyze::factor::FactorFit) -> ChartSpec {
+    let mut series = vec![
+        Series::new(
+            "replicate means",
+            fit.points.iter().map(|p| (p.factor, p.mean)).collect(),
+            true,
+        ),
+        Series {
+            band: fit
+                .levels
+                .iter()
+                .filter_map(|l| l.ci95.map(|i| (l.factor, i.low, i.high)))
+                .collect(),
+            ..Series::new(
+                "mean per value",
+                fit.levels.iter().map(|l| (l.factor, l.mean)).collect(),
+                false,
+            )
+        },
+    ];
+    let (lo, hi) = fit.points.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), p| {
+        (a.min(p.factor), b.max(p.factor))
+    });
+    if let Some(q) = fit.quadratic.filter(|_| lo < hi) {
+        let curve = (0..=40)
+            .map(|k| lo + (hi - lo) * k as f64 / 40.0)
+            .map(|x| (x, q[0] + q[1] * x + q[2] * x * x))
+            .collect();
+        series.push(Series::new("quadratic fit", curve, false));
+    }
+    let verdict = match (fit.peak, fit.peak_ci95, fit.optimum_supported) {
+        (Some(p), Some(i), true) => format!("peaks at {p:.3} (95% interval {:.3} to {:.3}), inside the range in {:.0}% of resamples of replicates: an optimum the data support.", i.low, i.high, 100.0 * fit.share_with_peak),
+        _ => format!("inside the range in {:.0}% of resamples of replicates: no optimum claimed.", 100.0 * fit.share_with_peak),
+    };
+    ChartSpec {
+        title: format!("{} against {column}", fit.statistic),
+        axes: (column.to_string(), fit.statistic.clone()),
+        log: false,
+        series,
+        caption: format!("One point per replicate; the line joins the means per value, shaded: their 95% intervals from resampling replicates; the quadratic {verdict}"),
+    }
 }

@@ -1,6 +1,8 @@
 //! The `caravan` command end to end: outputs, determinism across thread counts, and clear
 //! one-line errors with documented exit codes for bad input.
 
+mod common;
+use common::{ci_python, run_python};
 use std::path::Path;
 use std::process::{Command, Output};
 
@@ -305,30 +307,6 @@ fn an_earlier_run_is_kept_unless_forced() {
     assert!(
         out.join("tracks.csv").exists() && !out.join("qc_movie.gif").exists(),
         "no stale movie from the earlier run"
-    );
-}
-
-/// The Python of CI's virtual environment, or `None` outside CI (where the check is skipped).
-fn ci_python() -> Option<String> {
-    match std::env::var("CARAVAN_PYTHON") {
-        Ok(p) => Some(p),
-        Err(_) => {
-            assert!(std::env::var("CI").is_err(), "CI must set CARAVAN_PYTHON");
-            eprintln!("CARAVAN_PYTHON not set: independent-reader check skipped outside CI");
-            None
-        }
-    }
-}
-
-/// Runs one of tests/python/ and fails with its output unless it succeeds.
-fn run_python(python: &str, script: &str, args: &[&str]) {
-    let path = format!("{}/tests/python/{script}", env!("CARGO_MANIFEST_DIR"));
-    let out = Command::new(python).arg(path).args(args).output().unwrap();
-    assert!(
-        out.status.success(),
-        "{}\n{}",
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
     );
 }
 

@@ -270,6 +270,8 @@ pub struct Comparison {
     pub curves: Vec<RecordingCurves>,
     /// Length and time units of every recording.
     pub units: (LengthUnit, TimeUnit),
+    /// Every statistic against a numeric manifest column, when asked for (`--by`).
+    pub factor: Option<super::factor::FactorAnalysis>,
 }
 
 /// Bootstrap resamples per condition.
@@ -365,6 +367,7 @@ pub fn compare(
         warnings,
         curves,
         units: units.map_or((LengthUnit::Pixel, TimeUnit::Frame), |u| (u.1, u.2)),
+        factor: None,
     })
 }
 
@@ -569,13 +572,38 @@ pub fn write_comparison_tables(c: &Comparison, manifest: &Path, dir: &Path) -> R
         "conditions": c.conditions,
         "bootstrap_resamples": BOOTSTRAP_RESAMPLES,
         "differences": c.differences,
+        "factor": c.factor,
         "warnings": c.warnings,
     });
+    if let Some(f) = &c.factor {
+        write_table(dir, "factor.csv", |w| write_factor(w, f))?;
+    }
     write_atomic(
         &dir.join("summary.json"),
         &serde_json::to_vec_pretty(&record).expect("serialisable"),
     )?;
     Ok(())
+}
+
+/// `factor.csv`: each replicate's mean of each statistic against its factor value.
+fn write_factor(w: &mut impl Write, f: &super::factor::FactorAnalysis) -> std::io::Result<()> {
+    let header = ["statistic", f.column.as_str(), "condition", "replicate", "mean"];
+    let rows: Vec<Vec<String>> = f
+        .fits
+        .iter()
+        .flat_map(|fit| {
+            fit.points.iter().map(|p| {
+                vec![
+                    fit.statistic.clone(),
+                    six(p.factor),
+                    p.condition.clone(),
+                    p.replicate.clone(),
+                    six(p.mean),
+                ]
+            })
+        })
+        .collect();
+    write_csv_rows(w, &header, &rows)
 }
 
 /// A number with 6 decimals, empty where not finite.

@@ -3,17 +3,22 @@
 //! physical units (reading, filters, motility, MSD and its fits, circular statistics,
 //! collective order, condition comparison). No drawing here.
 
+pub mod border;
 pub mod circular;
 pub mod collective;
 pub mod compare;
+pub mod factor;
+pub mod geometry;
 pub mod models;
 pub mod motility;
 pub mod msd;
 pub mod outputs;
 pub mod population;
+pub mod profiles;
 pub mod resample;
 pub mod run;
 pub mod stats;
+pub mod stream;
 pub mod table;
 
 use crate::columns::{write_table, Column};

@@ -312,3 +312,123 @@ fn model_parameters(a: &Analysis, f: &ModelFit, i: &ModelIntervals) -> Value {
     }
     Value::Object(out)
 }
+
+/// `stream.csv`: the stream per frame (see [`super::stream`]).
+pub fn write_stream(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
+    use super::stream::StreamFrame;
+    let (l, t) = (a.units.length, a.units.time);
+    let dt = a.units.time_per_frame;
+    let frames = a.stream.as_ref().map_or(&[][..], |s| &s.frames);
+    let columns: Vec<Column<StreamFrame>> = vec![
+        Column::shown("frame", |f: &StreamFrame| Some(f.frame)),
+        Column::fixed(format!("time_{t}"), 6, move |f: &StreamFrame| Some(f.frame as f64 * dt)),
+        Column::shown("cells", |f: &StreamFrame| Some(f.cells)),
+        Column::fixed(format!("centroid_x_{l}"), 6, |f: &StreamFrame| Some(f.centroid[0])),
+        Column::fixed(format!("centroid_y_{l}"), 6, |f: &StreamFrame| Some(f.centroid[1])),
+        Column::fixed(format!("width_p5_p95_{l}"), 6, |f: &StreamFrame| Some(f.width)),
+        Column::fixed(format!("width_sd_{l}"), 6, |f: &StreamFrame| Some(f.width_sd)),
+        Column::fixed(format!("front_p95_{l}"), 6, |f: &StreamFrame| Some(f.front)),
+        Column::fixed(format!("rear_p5_{l}"), 6, |f: &StreamFrame| Some(f.rear)),
+        Column::fixed(format!("density_per_{l}2"), 6, |f: &StreamFrame| f.density),
+        Column::fixed(format!("cells_per_{l}_width"), 6, |f: &StreamFrame| f.cells_per_width),
+    ];
+    write_table(out, &columns, frames)
+}
+
+/// `border.csv`: one row per approach to the border (see [`super::border`]).
+pub fn write_border(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
+    use super::border::Approach;
+    let (l, t) = (a.units.length, a.units.time);
+    let rows = a.border.as_ref().map_or(&[][..], |b| &b.approaches);
+    let columns: Vec<Column<Approach>> = vec![
+        Column::shown("track_id", |r: &Approach| Some(r.track_id)),
+        Column::shown("first_frame", |r: &Approach| Some(r.first_frame)),
+        Column::shown("last_frame", |r: &Approach| Some(r.last_frame)),
+        Column::shown("outcome", |r: &Approach| Some(r.outcome.as_str())),
+        Column::fixed(format!("dwell_time_{t}"), 6, |r: &Approach| Some(r.dwell_time)),
+        Column::fixed(format!("closest_signed_distance_{l}"), 6, |r: &Approach| {
+            Some(r.closest)
+        }),
+        Column::fixed("turning_away_deg", 6, |r: &Approach| r.turning_deg),
+    ];
+    write_table(out, &columns, rows)
+}
+
+/// `border_distance.csv`: the signed distance of every analysed point to the border
+/// (negative inside the region cells should not enter).
+pub fn write_border_distance(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
+    type Row = (u32, usize, f64);
+    let l = a.units.length;
+    let rows = a.border.as_ref().map_or(&[][..], |b| &b.distances);
+    let columns: Vec<Column<Row>> = vec![
+        Column::shown("track_id", |r: &Row| Some(r.0)),
+        Column::shown("frame", |r: &Row| Some(r.1)),
+        Column::fixed(format!("signed_distance_{l}"), 6, |r: &Row| Some(r.2)),
+    ];
+    write_table(out, &columns, rows)
+}
+
+/// `profiles.csv`: the lane profiles (see [`super::profiles`]).
+pub fn write_profiles(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
+    use super::profiles::{Direction, ProfileBin};
+    let (l, t) = (a.units.length, a.units.time);
+    let columns: Vec<Column<ProfileBin>> = vec![
+        Column::shown("profile", |b: &ProfileBin| {
+            Some(match b.direction {
+                Direction::Across => "across",
+                Direction::Along => "along",
+            })
+        }),
+        Column::fixed(format!("from_{l}"), 6, |b: &ProfileBin| Some(b.from)),
+        Column::fixed(format!("to_{l}"), 6, |b: &ProfileBin| Some(b.to)),
+        Column::shown("steps", |b: &ProfileBin| Some(b.steps)),
+        Column::fixed(format!("mean_speed_{l}_per_{t}"), 6, |b: &ProfileBin| b.speed),
+        Column::fixed("forward_index", 6, |b: &ProfileBin| b.forward_index),
+        Column::shown("tracks", |b: &ProfileBin| Some(b.tracks)),
+        Column::fixed("directionality_ratio", 6, |b: &ProfileBin| b.directionality),
+        Column::fixed("order_parameter", 6, |b: &ProfileBin| b.order_parameter),
+    ];
+    write_table(out, &columns, &a.profiles)
+}
+
+/// The stream and border blocks of `summary.json` (`None` when not asked for).
+pub fn confinement_summary(a: &Analysis) -> Value {
+    let (l, t) = (a.units.length, a.units.time);
+    let entry = |v: Option<f64>, ci: Option<Interval>| json!({ "value": v, "ci95": interval(ci) });
+    let stream = a.stream.as_ref().map(|s| {
+        json!({
+            "frames": s.frames.len(),
+            format!("front_speed_{l}_per_{t}"): entry(s.front_speed, s.intervals.front_speed),
+            format!("mean_width_p5_p95_{l}"): entry(s.means.width, s.intervals.width),
+            format!("mean_density_per_{l}2"): entry(s.means.density, s.intervals.density),
+            format!("mean_cells_per_{l}_width"): entry(s.means.cells_per_width, s.intervals.cells_per_width),
+            "mean_cells": s.means.cells,
+            "intervals": "95% percentile intervals from resampling whole tracks",
+        })
+    });
+    let border = a.border.as_ref().map(|b| {
+        let count = |o: super::border::Outcome| b.approaches.iter().filter(|a| a.outcome == o).count();
+        let mut dwell: Vec<f64> = b.approaches.iter().map(|a| a.dwell_time).collect();
+        let turns: Vec<f64> = b.approaches.iter().filter_map(|a| a.turning_deg).collect();
+        json!({
+            format!("zone_{l}"): b.zone,
+            "approaches": b.approaches.len(),
+            "crossed": count(super::border::Outcome::Crossed),
+            "turned_back": count(super::border::Outcome::TurnedBack),
+            "stopped": count(super::border::Outcome::Stopped),
+            "approaching_cells": b.approaching_cells,
+            "share_of_approaching_cells_crossing": entry(b.share_crossing, b.share_crossing_ci95),
+            format!("median_dwell_time_{t}"): median(&mut dwell),
+            "mean_turning_away_deg": (!turns.is_empty()).then(|| turns.iter().sum::<f64>() / turns.len() as f64),
+            "by_distance": b.bins.iter().map(|x| json!({
+                format!("from_{l}"): x.from,
+                format!("to_{l}"): x.to,
+                "steps": x.steps,
+                format!("speed_{l}_per_{t}"): entry(x.speed, x.speed_ci95),
+                format!("speed_toward_border_{l}_per_{t}"): entry(x.approach_speed, x.approach_speed_ci95),
+                "heading_toward_border_cosine": entry(x.heading_toward, x.heading_toward_ci95),
+            })).collect::<Vec<Value>>(),
+        })
+    });
+    json!({ "stream": stream, "border": border, "lane": a.options.confinement.lane })
+}

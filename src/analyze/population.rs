@@ -1,15 +1,19 @@
 //! The whole analysis of one set of tracks: per-track motility, population MSD and its fits,
 //! autocorrelations, circular statistics of directions, and collective measures per frame.
 
+use super::border::{border_response, BorderResponse};
 use super::circular::{circular_summary, v_test, CircularSummary, VTest};
 use super::collective::{neighbour_distance_and_density, order_parameter, scaled_fluctuations, PairCorrelation};
+use super::geometry::{Axes, Border, Lane};
 use super::models::{choose_model, ModelChoice, MotionKind};
 use super::motility::{motility, steps, Motility, Step};
 use super::msd::{
     anomalous_exponent, per_cell_mean_msd, pool_autocorrelation, pool_msd, track_autocorrelation, track_msd,
     AutocorrelationPoint, MsdPoint, TrackAutocorrelation, TrackMsd,
 };
+use super::profiles::{lane_profiles, ProfileBin};
 use super::resample::{resample_tracks, TrackSums, Uncertainty, RESAMPLES};
+use super::stream::{stream_geometry, StreamGeometry, STREAM_RESAMPLES};
 use super::table::{Track, Units};
 use crate::numeric::median;
 use crate::tracks::PathPoint;
@@ -34,6 +38,22 @@ pub struct AnalysisOptions {
     pub remove_drift: bool,
     /// Resamples of tracks for the intervals (see [`super::resample`]).
     pub resamples: usize,
+    /// Lane, border and stream measures asked for.
+    pub confinement: Confinement,
+}
+
+/// The confinement measures asked for (all off by default).
+#[derive(Debug, Clone, Serialize, Default)]
+pub struct Confinement {
+    /// A lane: profiles across it and along the axis (and the stream geometry).
+    pub lane: Option<Lane>,
+    /// The stream geometry per frame without a lane.
+    pub stream: bool,
+    /// A border cells should not enter.
+    pub border: Option<Border>,
+    /// The distance that counts as near the border (analysis units; by default one nucleus
+    /// diameter, from the tracking run).
+    pub border_zone: Option<f64>,
 }
 
 impl Default for AnalysisOptions {
@@ -45,6 +65,7 @@ impl Default for AnalysisOptions {
             density_neighbours: 5,
             remove_drift: false,
             resamples: RESAMPLES,
+            confinement: Confinement::default(),
         }
     }
 }
@@ -112,6 +133,12 @@ pub struct Analysis {
     pub neighbour_correlation: Vec<CorrelationBin>,
     /// What the fitted motion model cannot be trusted for (see [`model_warnings`]).
     pub warnings: Vec<String>,
+    /// The stream per frame, when asked for (a lane or `stream`).
+    pub stream: Option<StreamGeometry>,
+    /// The response to the border, when one was given.
+    pub border: Option<BorderResponse>,
+    /// Profiles across the lane and along the axis, when a lane was given.
+    pub profiles: Vec<ProfileBin>,
 }
 
 /// Analyses `tracks` (already filtered) in `units`, with their own points as the neighbours of
@@ -186,7 +213,23 @@ pub fn analyze_tracks_among(
         .collect();
     let (frames, neighbour_correlation) = collective(tracks, everyone, dt, options.density_neighbours);
     let recording = longest as f64 * dt;
-    let warnings = model_warnings(&models, exponent, fitted.len(), fit_lags, dt, recording);
+    let mut warnings = model_warnings(&models, exponent, fitted.len(), fit_lags, dt, recording);
+    let c = &options.confinement;
+    let axes = Axes {
+        axis_deg: options.axis_deg,
+    };
+    let few = options.resamples.min(STREAM_RESAMPLES);
+    let stream = (c.stream || c.lane.is_some()).then(|| stream_geometry(everyone, axes, dt, few, RESAMPLE_SEED));
+    let border = c.border.as_ref().and_then(|b| match c.border_zone {
+        Some(zone) => Some(border_response(tracks, b, zone, dt, (few, RESAMPLE_SEED))),
+        None => {
+            warnings.push(
+                "no border response: the distance that counts as near the border is unknown (give --border-zone)"
+                    .into(),
+            );
+            None
+        }
+    });
     Analysis {
         units: units.clone(),
         options: options.clone(),
@@ -204,6 +247,9 @@ pub fn analyze_tracks_among(
         frames,
         neighbour_correlation,
         warnings,
+        stream,
+        border,
+        profiles: c.lane.map(|l| lane_profiles(tracks, l, axes, dt)).unwrap_or_default(),
     }
 }
 

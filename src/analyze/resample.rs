@@ -39,10 +39,29 @@ impl Interval {
         })
     }
 
+    /// The interval of one value over resampled results (values that are missing or not
+    /// finite left out).
+    pub fn over<T>(draws: &[T], get: impl Fn(&T) -> Option<f64>) -> Option<Interval> {
+        let v: Vec<f64> = draws.iter().filter_map(get).filter(|x| x.is_finite()).collect();
+        Interval::of(&v)
+    }
+
     /// Whether `x` lies inside (ends included).
     pub fn contains(&self, x: f64) -> bool {
         self.low <= x && x <= self.high
     }
+}
+
+/// How many times each of `n` tracks is drawn in resample `b` (`n` draws with replacement),
+/// from a generator seeded by `seed` and `b` alone, so that resamples can run on any
+/// number of threads and give the same result.
+pub fn resample_copies(n: usize, seed: u64, b: usize) -> Vec<u32> {
+    let mut rng = Rng::new(seed ^ (b as u64).wrapping_mul(0x9e37_79b9_7f4a_7c15));
+    let mut copies = vec![0u32; n];
+    for _ in 0..n {
+        copies[((rng.uniform() * n as f64) as usize).min(n - 1)] += 1;
+    }
+    copies
 }
 
 /// What is resampled: one entry per track, all in the same order.
@@ -139,11 +158,7 @@ pub fn resample_tracks(
     let draws: Vec<Replicate> = (0..resamples)
         .into_par_iter()
         .map(|b| {
-            let mut rng = Rng::new(seed ^ (b as u64).wrapping_mul(0x9e37_79b9_7f4a_7c15));
-            let mut copies = vec![0u32; n];
-            for _ in 0..n {
-                copies[((rng.uniform() * n as f64) as usize).min(n - 1)] += 1;
-            }
+            let copies = resample_copies(n, seed, b);
             one_replicate(sums, &copies, msd_lags, acf_lags, (fit_lags, frame_interval), fits)
         })
         .collect();
@@ -192,10 +207,7 @@ fn one_replicate(
 }
 
 fn summarise(draws: &[Replicate], fits: &[ModelFit]) -> Uncertainty {
-    let column = |get: &dyn Fn(&Replicate) -> Option<f64>| -> Option<Interval> {
-        let v: Vec<f64> = draws.iter().filter_map(get).filter(|x| x.is_finite()).collect();
-        Interval::of(&v)
-    };
+    let column = |get: &dyn Fn(&Replicate) -> Option<f64>| Interval::over(draws, get);
     let per_point = |len: usize, get: &dyn Fn(&Replicate, usize) -> Option<f64>| -> Vec<Option<Interval>> {
         (0..len).map(|k| column(&|r| get(r, k))).collect()
     };

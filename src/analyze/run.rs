@@ -2,7 +2,8 @@
 //! and `summary.json` atomically into one folder (`crate::reports` adds `report.html`).
 
 use super::outputs::{
-    summary, write_autocorrelation, write_msd, write_neighbour_correlation, write_order, write_steps, write_track_stats,
+    confinement_summary, summary, write_autocorrelation, write_border, write_border_distance, write_msd,
+    write_neighbour_correlation, write_order, write_profiles, write_steps, write_stream, write_track_stats,
 };
 use super::population::{analyze_tracks_among, remove_common_drift, Analysis, AnalysisOptions};
 use super::table::{apply_filters, read_tracks, CalibrationOverride, Filters, Track, TrackTable};
@@ -72,6 +73,17 @@ pub fn write_analysis_tables(
     write_table(dir, "neighbour_correlation.csv", |w| {
         write_neighbour_correlation(w, &analysis)
     })?;
+    let c = &options.confinement;
+    if analysis.stream.is_some() {
+        write_table(dir, "stream.csv", |w| write_stream(w, &analysis))?;
+    }
+    if c.border.is_some() {
+        write_table(dir, "border.csv", |w| write_border(w, &analysis))?;
+        write_table(dir, "border_distance.csv", |w| write_border_distance(w, &analysis))?;
+    }
+    if c.lane.is_some() {
+        write_table(dir, "profiles.csv", |w| write_profiles(w, &analysis))?;
+    }
     let population = summary(&analysis);
     let record = serde_json::json!({
         "caravan_version": crate::VERSION,
@@ -82,6 +94,7 @@ pub fn write_analysis_tables(
         "filters": filters,
         "options": options,
         "population": population,
+        "confinement": confinement_summary(&analysis),
         "warnings": analysis.warnings,
     });
     write_atomic(
@@ -136,7 +149,22 @@ pub fn analyze_table(table: &TrackTable, filters: &Filters, options: &AnalysisOp
         region: None,
     };
     let everyone = apply_filters(&table.tracks, &frames_only);
-    Ok(analyze_tracks_among(&kept, &everyone, &table.units, options))
+    let options = with_border_zone(table, options);
+    Ok(analyze_tracks_among(&kept, &everyone, &table.units, &options))
+}
+
+/// The options with the border's zone filled in where it was not given: one nucleus diameter
+/// of the tracking run (from its run.json), in analysis units.
+fn with_border_zone(table: &TrackTable, options: &AnalysisOptions) -> AnalysisOptions {
+    let mut options = options.clone();
+    let c = &mut options.confinement;
+    if c.border.is_some() && c.border_zone.is_none() {
+        c.border_zone = table
+            .run_record
+            .as_ref()
+            .map(|r| r.parameters.diameter.px() * table.units.length_per_px);
+    }
+    options
 }
 
 /// The tracks an analysis describes: `table`'s tracks after the filters, with the common

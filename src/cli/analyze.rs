@@ -1,6 +1,7 @@
 //! `caravan analyze RUN_DIR | TRACKS.csv`: migration statistics, tidy tables and a report.
 
-use caravan::analyze::population::AnalysisOptions;
+use caravan::analyze::geometry::{Border, Lane};
+use caravan::analyze::population::{AnalysisOptions, Confinement};
 use caravan::analyze::run::default_output_dir;
 use caravan::analyze::table::{CalibrationOverride, Filters, Region};
 use caravan::params::{parse_pixel_size_um, parse_seconds};
@@ -33,9 +34,23 @@ pub struct AnalysisArgs {
     /// run inside).
     #[arg(long)]
     roi: Option<String>,
-    /// Units of --roi.
+    /// Units of --roi, --lane, a poly: --border and --border-zone.
     #[arg(long, value_enum, default_value = "px")]
     roi_units: RoiUnits,
+    /// A lane A,B: the band between two lines parallel to --axis, at A and B across it;
+    /// writes profiles across and along it (profiles.csv) and the stream per frame.
+    #[arg(long)]
+    lane: Option<String>,
+    /// The stream per frame (stream.csv: width, front, density) without a lane.
+    #[arg(long)]
+    stream: bool,
+    /// A region cells should not enter: a mask TIFF (non-zero pixels) or poly:x,y;x,y;x,y;
+    /// writes every approach to it (border.csv) and the response by distance.
+    #[arg(long)]
+    border: Option<String>,
+    /// How near the border counts as an approach (default: one nucleus diameter of the run).
+    #[arg(long)]
+    border_zone: Option<f64>,
     /// Elapsed frames of the fixed-time directionality ratio.
     #[arg(long, default_value_t = 10)]
     fixed_time_frames: usize,
@@ -100,7 +115,7 @@ impl AnalysisArgs {
             (RoiUnits::Px, Some(s)) => s,
             (RoiUnits::Px, None) => 1.0,
             (RoiUnits::Um, Some(_)) => 1.0,
-            (RoiUnits::Um, None) if self.roi.is_some() => {
+            (RoiUnits::Um, None) if self.uses_roi_units() => {
                 return Err(Error::parameter(
                     "--roi-units",
                     "um",
@@ -119,6 +134,7 @@ impl AnalysisArgs {
             fixed_elapsed_frames: self.fixed_time_frames.max(1),
             fit_lags,
             remove_drift: self.remove_drift,
+            confinement: self.confinement(scale, length_per_px.unwrap_or(1.0))?,
             ..AnalysisOptions::default()
         };
         let filters = Filters {
@@ -131,6 +147,40 @@ impl AnalysisArgs {
             region,
         };
         Ok((options, filters))
+    }
+}
+
+impl AnalysisArgs {
+    /// Whether any option is given in --roi-units.
+    fn uses_roi_units(&self) -> bool {
+        self.roi.is_some()
+            || self.lane.is_some()
+            || self.border_zone.is_some()
+            || self.border.as_deref().is_some_and(|b| b.starts_with("poly:"))
+    }
+
+    /// The lane, border and stream options, in analysis units (`scale`: analysis units per
+    /// unit of --roi-units; `length_per_px`: analysis units per mask pixel).
+    fn confinement(&self, scale: f64, length_per_px: f64) -> Result<Confinement> {
+        let lane = self
+            .lane
+            .as_deref()
+            .map(|t| Lane::parse(t, scale).map_err(|e| Error::parameter("--lane", t, e)))
+            .transpose()?;
+        let border = self
+            .border
+            .as_deref()
+            .map(|t| Border::parse(t, scale, length_per_px))
+            .transpose()?;
+        if let Some(z) = self.border_zone.filter(|z| !(z.is_finite() && *z > 0.0)) {
+            return Err(Error::parameter("--border-zone", z, "must be a positive distance"));
+        }
+        Ok(Confinement {
+            lane,
+            stream: self.stream,
+            border,
+            border_zone: self.border_zone.map(|z| z * scale),
+        })
     }
 }
 
@@ -215,6 +265,25 @@ pub fn print_analysis(run: &caravan::analyze::run::AnalysisRun) {
     }
     for w in &a.warnings {
         println!("warning: {w}");
+    }
+    if let Some(s) = &a.stream {
+        if let Some(v) = s.front_speed {
+            println!(
+                "stream: front advances {v:.4} {}/{}, mean width {:.3} {} (stream.csv)",
+                a.units.length,
+                a.units.time,
+                s.means.width.unwrap_or(f64::NAN),
+                a.units.length
+            );
+        }
+    }
+    if let Some(b) = &a.border {
+        println!(
+            "border: {} approaches by {} cells, share crossing {:.3} (border.csv)",
+            b.approaches.len(),
+            b.approaching_cells,
+            b.share_crossing.unwrap_or(f64::NAN)
+        );
     }
     if let Some(d) = &a.directions {
         println!(

@@ -23,6 +23,7 @@ const SIZE: (u32, u32) = (520, 360);
 const FONT: (&str, u32) = ("sans-serif", 14);
 
 /// A named series of `(x, y)` points.
+#[derive(Debug, Clone)]
 pub struct Series {
     /// Legend text.
     pub label: String,

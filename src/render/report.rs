@@ -196,6 +196,8 @@ pub struct AnalysisPage<'a> {
     pub neighbour_correlation: Vec<(f64, f64)>,
     /// The analysis options and units, shown as JSON.
     pub parameters: Value,
+    /// Stream geometry, border response and lane profiles, when asked for.
+    pub confinement: Vec<ChartSpec>,
 }
 
 /// The report of `caravan analyze`.
@@ -308,6 +310,11 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
         "How alike the velocity fluctuations of two cells are, by their distance: each frame's fluctuations about its mean velocity, scaled by their root mean square, multiplied in pairs and averaged (Cavagna et al. 2010).",
     );
     html.push_str("</div>");
+    if !page.confinement.is_empty() {
+        html.push_str("<h2 id=\"confinement\">Stream, border and lane</h2><div class=\"grid\">");
+        chart_specs(&mut html, "confinement", &page.confinement);
+        html.push_str("</div>");
+    }
     if let Some(record) = page.run_record {
         qc_section(&mut html, record);
     }
@@ -448,15 +455,28 @@ pub struct ComparedStatistic {
     pub strips: Vec<Strip>,
 }
 
-/// Curves of every condition on one chart.
-pub struct ComparedCurves {
+/// Figures `{prefix}-0`, `{prefix}-1`, ... of prepared line charts.
+fn chart_specs(html: &mut String, prefix: &str, charts: &[ChartSpec]) {
+    for (k, c) in charts.iter().enumerate() {
+        figure(
+            html,
+            &format!("{prefix}-{k}"),
+            &line_chart(&c.title, &c.axes.0, &c.axes.1, &c.series, c.log),
+            &c.caption,
+        );
+    }
+}
+
+/// A line chart the caller prepared: curves of every condition, or a confinement profile.
+#[derive(Debug, Clone)]
+pub struct ChartSpec {
     /// Chart title.
     pub title: String,
     /// Axis descriptions.
     pub axes: (String, String),
     /// Logarithmic axes.
     pub log: bool,
-    /// One series per condition (with its band).
+    /// The series (with their bands).
     pub series: Vec<Series>,
     /// Caption.
     pub caption: String,
@@ -469,7 +489,7 @@ pub fn comparison_report(
     entries: &[Vec<String>],
     table_rows: &[Vec<String>],
     header: &[&str],
-    (stats, curves): (&[ComparedStatistic], &[ComparedCurves]),
+    (stats, curves): (&[ComparedStatistic], &[ChartSpec]),
     warnings: &[String],
 ) -> String {
     let mut html = page_start("Caravan comparison of conditions");
@@ -486,14 +506,7 @@ pub fn comparison_report(
     html.push_str("<h2>Differences between conditions</h2>");
     table(&mut html, header, table_rows);
     html.push_str("<h2>Per condition</h2><div class=\"grid\">");
-    for (k, c) in curves.iter().enumerate() {
-        figure(
-            &mut html,
-            &format!("curves-{k}"),
-            &line_chart(&c.title, &c.axes.0, &c.axes.1, &c.series, c.log),
-            &c.caption,
-        );
-    }
+    chart_specs(&mut html, "curves", curves);
     for (k, s) in stats.iter().enumerate() {
         figure(
             &mut html,

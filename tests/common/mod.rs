@@ -52,3 +52,33 @@ pub fn caravan(args: &[&str]) -> std::process::Output {
         .output()
         .unwrap()
 }
+
+/// The Python of CI's virtual environment, or `None` outside CI (where the check is skipped).
+#[allow(dead_code)]
+pub fn ci_python() -> Option<String> {
+    match std::env::var("CARAVAN_PYTHON") {
+        Ok(p) => Some(p),
+        Err(_) => {
+            assert!(std::env::var("CI").is_err(), "CI must set CARAVAN_PYTHON");
+            eprintln!("CARAVAN_PYTHON not set: independent-reader check skipped outside CI");
+            None
+        }
+    }
+}
+
+/// Runs one of tests/python/ and fails with its output unless it succeeds.
+#[allow(dead_code)]
+pub fn run_python(python: &str, script: &str, args: &[&str]) {
+    let path = format!("{}/tests/python/{script}", env!("CARGO_MANIFEST_DIR"));
+    let out = std::process::Command::new(python)
+        .arg(path)
+        .args(args)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}\n{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}

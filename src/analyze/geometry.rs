@@ -1,0 +1,304 @@
+//! The geometry a confined migration is measured against: a lane (the band between two lines
+//! parallel to the axis of migration) and a border (a region cells should not enter, from a
+//! mask image or a polygon), with coordinates along and across the axis and the signed
+//! distance of any point to the border. Everything in analysis units.
+
+use crate::error::{Error, Result};
+use crate::stack::{OpenOptions, Stack};
+use serde::Serialize;
+use std::path::Path;
+
+/// Coordinates along the axis of migration and across it (rotated by the axis angle; across
+/// is +90° from along, i.e. toward +y for an axis along +x).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Axes {
+    /// The axis, degrees from +x toward +y.
+    pub axis_deg: f64,
+}
+
+impl Axes {
+    /// `(along, across)` of a point.
+    pub fn project(&self, x: f64, y: f64) -> (f64, f64) {
+        let (s, c) = self.axis_deg.to_radians().sin_cos();
+        (x * c + y * s, -x * s + y * c)
+    }
+}
+
+/// A lane: the band whose across-axis coordinate lies between `from` and `to`.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Lane {
+    /// Lower edge, across the axis (analysis units).
+    pub from: f64,
+    /// Upper edge.
+    pub to: f64,
+}
+
+impl Lane {
+    /// Parses `A,B` (across-axis positions of the two edges, multiplied by `scale` to reach
+    /// analysis units); the edges may come in either order but must differ.
+    pub fn parse(text: &str, scale: f64) -> std::result::Result<Lane, String> {
+        let v: Vec<f64> = text
+            .split(',')
+            .map(|s| s.trim().parse::<f64>().ok().filter(|v| v.is_finite()))
+            .collect::<Option<Vec<f64>>>()
+            .ok_or(format!("{text:?}: expected two numbers A,B"))?;
+        match v[..] {
+            [a, b] if a != b => Ok(Lane {
+                from: a.min(b) * scale,
+                to: a.max(b) * scale,
+            }),
+            _ => Err(format!("{text:?}: expected two different numbers A,B")),
+        }
+    }
+
+    /// Width of the lane.
+    pub fn width(&self) -> f64 {
+        self.to - self.from
+    }
+}
+
+/// A region cells should not enter, as the signed distance to its edge: positive outside
+/// (where cells are), negative inside.
+#[derive(Debug, Clone, Serialize)]
+pub struct Border {
+    /// Where it came from: the mask's path or the polygon as given.
+    pub source: String,
+    #[serde(skip)]
+    shape: BorderShape,
+}
+
+#[derive(Debug, Clone)]
+enum BorderShape {
+    /// A polygon in analysis units.
+    Polygon(Vec<[f64; 2]>),
+    /// Signed distances at pixel centres (analysis units), row-major, and the analysis units
+    /// per pixel.
+    Mask {
+        width: usize,
+        height: usize,
+        signed: Vec<f64>,
+        length_per_px: f64,
+    },
+}
+
+impl Border {
+    /// Reads `--border`: `poly:x,y;x,y;x,y` (coordinates times `scale` give analysis units)
+    /// or the path of a mask TIFF whose non-zero pixels are the region (its first frame;
+    /// pixel coordinates times `length_per_px` give analysis units).
+    ///
+    /// # Errors
+    /// A polygon that does not parse, a mask that cannot be read or holds no region pixel.
+    pub fn parse(text: &str, scale: f64, length_per_px: f64) -> Result<Border> {
+        if let Some(p) = text.strip_prefix("poly:") {
+            let region = super::table::Region::parse(&format!("poly:{p}"), scale)
+                .map_err(|e| Error::parameter("--border", text, e))?;
+            let super::table::Region::Polygon(v) = region else {
+                unreachable!("poly: parses to a polygon")
+            };
+            return Ok(Border {
+                source: text.to_string(),
+                shape: BorderShape::Polygon(v),
+            });
+        }
+        Border::from_mask(Path::new(text), length_per_px)
+    }
+
+    fn from_mask(path: &Path, length_per_px: f64) -> Result<Border> {
+        let mut stack = Stack::open(path, &OpenOptions::default())?;
+        let frame = stack.read_frame(0)?;
+        let inside: Vec<bool> = frame.pixels.to_f32().iter().map(|&v| v != 0.0).collect();
+        if !inside.iter().any(|&b| b) {
+            return Err(Error::input(path, "the border mask has no non-zero pixel"));
+        }
+        let signed = signed_distance(&inside, frame.width, frame.height)
+            .into_iter()
+            .map(|d| d * length_per_px)
+            .collect();
+        Ok(Border {
+            source: path.display().to_string(),
+            shape: BorderShape::Mask {
+                width: frame.width,
+                height: frame.height,
+                signed,
+                length_per_px,
+            },
+        })
+    }
+
+    /// Signed distance of `(x, y)` (analysis units) to the border: positive outside the
+    /// region, negative inside. A mask gives the value at the nearest pixel centre (points
+    /// beyond the image take the nearest edge pixel's).
+    pub fn signed_distance(&self, x: f64, y: f64) -> f64 {
+        match &self.shape {
+            BorderShape::Polygon(v) => polygon_signed_distance(v, x, y),
+            BorderShape::Mask {
+                width,
+                height,
+                signed,
+                length_per_px,
+            } => {
+                let col = (x / length_per_px).round().clamp(0.0, (*width - 1) as f64) as usize;
+                let row = (y / length_per_px).round().clamp(0.0, (*height - 1) as f64) as usize;
+                signed[row * width + col]
+            }
+        }
+    }
+}
+
+/// Distance to the nearest polygon edge, negative inside (W. R. Franklin's crossing test for
+/// inside; point-to-segment distances for the edge).
+fn polygon_signed_distance(v: &[[f64; 2]], x: f64, y: f64) -> f64 {
+    let mut nearest = f64::INFINITY;
+    let mut inside = false;
+    let mut j = v.len() - 1;
+    for i in 0..v.len() {
+        let (a, b) = (v[j], v[i]);
+        if (b[1] > y) != (a[1] > y) && x < (a[0] - b[0]) * (y - b[1]) / (a[1] - b[1]) + b[0] {
+            inside = !inside;
+        }
+        let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
+        let t = (((x - a[0]) * dx + (y - a[1]) * dy) / (dx * dx + dy * dy).max(1e-300)).clamp(0.0, 1.0);
+        nearest = nearest.min((x - a[0] - t * dx).hypot(y - a[1] - t * dy));
+        j = i;
+    }
+    if inside {
+        -nearest
+    } else {
+        nearest
+    }
+}
+
+/// Signed distance of every pixel centre to the region's edge, in pixels: outside, the
+/// distance to the nearest region pixel minus ½; inside, minus (the distance to the nearest
+/// pixel outside minus ½), so the edge between two pixels lies at 0.
+pub fn signed_distance(inside: &[bool], width: usize, height: usize) -> Vec<f64> {
+    let to_region = euclidean_distance(inside, width, height);
+    let outside: Vec<bool> = inside.iter().map(|&b| !b).collect();
+    let to_outside = euclidean_distance(&outside, width, height);
+    (0..inside.len())
+        .map(|i| {
+            if inside[i] {
+                -(to_outside[i] - 0.5)
+            } else {
+                to_region[i] - 0.5
+            }
+        })
+        .collect()
+}
+
+/// Exact Euclidean distance of every pixel to the nearest `true` pixel (infinite when there
+/// is none).
+///
+/// # Method
+/// P. F. Felzenszwalb & D. P. Huttenlocher (2012), "Distance transforms of sampled functions",
+/// Theory of Computing 8:415–428, doi:10.4086/toc.2012.v008a019: the squared distance by two
+/// passes of the one-dimensional lower envelope of parabolas, columns then rows.
+pub fn euclidean_distance(target: &[bool], width: usize, height: usize) -> Vec<f64> {
+    let far = 1e20;
+    let mut d2: Vec<f64> = target.iter().map(|&t| if t { 0.0 } else { far }).collect();
+    let mut line = Vec::new();
+    for x in 0..width {
+        line.clear();
+        line.extend((0..height).map(|y| d2[y * width + x]));
+        for (y, v) in lower_envelope(&line).into_iter().enumerate() {
+            d2[y * width + x] = v;
+        }
+    }
+    for y in 0..height {
+        let row = &mut d2[y * width..(y + 1) * width];
+        let out = lower_envelope(row);
+        row.copy_from_slice(&out);
+    }
+    d2.into_iter()
+        .map(|v| if v >= far { f64::INFINITY } else { v.sqrt() })
+        .collect()
+}
+
+/// The one-dimensional squared distance transform of `f` (Felzenszwalb & Huttenlocher 2012,
+/// their algorithm DT(f)).
+fn lower_envelope(f: &[f64]) -> Vec<f64> {
+    let n = f.len();
+    let mut v = vec![0usize; n];
+    let mut z = vec![0.0f64; n + 1];
+    let mut k = 0;
+    z[0] = f64::NEG_INFINITY;
+    z[1] = f64::INFINITY;
+    let intersect =
+        |q: usize, p: usize| ((f[q] + (q * q) as f64) - (f[p] + (p * p) as f64)) / (2.0 * q as f64 - 2.0 * p as f64);
+    for q in 1..n {
+        let mut s = intersect(q, v[k]);
+        while s <= z[k] {
+            k -= 1;
+            s = intersect(q, v[k]);
+        }
+        k += 1;
+        v[k] = q;
+        z[k] = s;
+        z[k + 1] = f64::INFINITY;
+    }
+    let mut out = vec![0.0; n];
+    k = 0;
+    for (q, o) in out.iter_mut().enumerate() {
+        while z[k + 1] < q as f64 {
+            k += 1;
+        }
+        let d = q as f64 - v[k] as f64;
+        *o = d * d + f[v[k]];
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_distance_transform_matches_brute_force() {
+        // Source: the definition (minimum Euclidean distance to a target pixel), by brute
+        // force over a 13 x 9 grid with three targets.
+        let (w, h) = (13, 9);
+        let targets = [(2usize, 3usize), (10, 1), (7, 8)];
+        let mut t = vec![false; w * h];
+        for &(x, y) in &targets {
+            t[y * w + x] = true;
+        }
+        let d = euclidean_distance(&t, w, h);
+        for y in 0..h {
+            for x in 0..w {
+                let want = targets
+                    .iter()
+                    .map(|&(tx, ty)| (x as f64 - tx as f64).hypot(y as f64 - ty as f64))
+                    .fold(f64::INFINITY, f64::min);
+                assert!(
+                    (d[y * w + x] - want).abs() < 1e-12,
+                    "({x},{y}) {} vs {want}",
+                    d[y * w + x]
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn signed_distance_of_a_half_plane_and_a_square() {
+        // Construction: the right half (x >= 10) of a 20-wide mask: the edge lies at x = 9.5,
+        // so pixel x = 4 is 5.5 outside and x = 12 is 2.5 inside. A unit square polygon: the
+        // point (0.5, 0.25) is 0.25 inside, (3, 0.5) is 2 outside (geometry).
+        let (w, h) = (20, 5);
+        let inside: Vec<bool> = (0..w * h).map(|i| i % w >= 10).collect();
+        let s = signed_distance(&inside, w, h);
+        assert!((s[2 * w + 4] - 5.5).abs() < 1e-12 && (s[2 * w + 12] + 2.5).abs() < 1e-12);
+        let square = Border::parse("poly:0,0;1,0;1,1;0,1", 1.0, 1.0).unwrap();
+        assert!((square.signed_distance(0.5, 0.25) + 0.25).abs() < 1e-12);
+        assert!((square.signed_distance(3.0, 0.5) - 2.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn along_and_across_an_axis() {
+        // Trigonometry: along an axis at 90° (+y), the point (3, 4) is 4 along and −3 across.
+        let (along, across) = Axes { axis_deg: 90.0 }.project(3.0, 4.0);
+        assert!((along - 4.0).abs() < 1e-12 && (across + 3.0).abs() < 1e-12);
+        let lane = Lane::parse("30, 10", 0.5).unwrap();
+        assert_eq!((lane.from, lane.to, lane.width()), (5.0, 15.0, 10.0));
+        assert!(Lane::parse("3,3", 1.0).is_err() && Lane::parse("3", 1.0).is_err());
+    }
+}
