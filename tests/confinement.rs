@@ -188,6 +188,22 @@ fn stream_border_lane_and_factor_from_known_geometry() {
     for p in [&sp, &bp, &fp] {
         assert!(!p.contains("chart could not be drawn"));
     }
+    // A border file that does not exist: one line naming it, exit 2, nothing written.
+    let bad = caravan(&[
+        "analyze",
+        &arg(&b),
+        "-o",
+        &arg(&d.join("bad")),
+        "--border",
+        &arg(&d.join("none.tif")),
+    ]);
+    let stderr = String::from_utf8_lossy(&bad.stderr);
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(
+        stderr.contains("none.tif") && stderr.trim().lines().count() == 1,
+        "{stderr}"
+    );
+    assert!(!d.join("bad").exists());
     // Without the options: no section and none of their tables.
     ok(caravan(&["analyze", &arg(&s), "-o", &arg(&d.join("plain"))]));
     assert!(!page("plain/report.html").contains("id=\"confinement\""));

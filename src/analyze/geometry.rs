@@ -89,16 +89,15 @@ impl Border {
     /// # Errors
     /// A polygon that does not parse, a mask that cannot be read or holds no region pixel.
     pub fn parse(text: &str, scale: f64, length_per_px: f64) -> Result<Border> {
-        if let Some(p) = text.strip_prefix("poly:") {
-            let region = super::table::Region::parse(&format!("poly:{p}"), scale)
-                .map_err(|e| Error::parameter("--border", text, e))?;
-            let super::table::Region::Polygon(v) = region else {
-                unreachable!("poly: parses to a polygon")
+        if text.starts_with("poly:") {
+            return match super::table::Region::parse(text, scale) {
+                Ok(super::table::Region::Polygon(v)) => Ok(Border {
+                    source: text.to_string(),
+                    shape: BorderShape::Polygon(v),
+                }),
+                Ok(_) => Err(Error::parameter("--border", text, "expected poly:x,y;x,y;x,y")),
+                Err(e) => Err(Error::parameter("--border", text, e)),
             };
-            return Ok(Border {
-                source: text.to_string(),
-                shape: BorderShape::Polygon(v),
-            });
         }
         Border::from_mask(Path::new(text), length_per_px)
     }
