@@ -35,6 +35,21 @@ pub struct FrameRecord {
     pub content_crc32: Option<u32>,
 }
 
+impl FrameRecord {
+    /// A segmented frame as logged, and its labels (which the log does not keep).
+    pub fn of(seg: crate::segment::FrameSegmentation) -> (FrameRecord, Vec<u32>) {
+        let record = FrameRecord {
+            frame: seg.frame,
+            threshold: seg.threshold.is_finite().then_some(seg.threshold),
+            detections: seg.detections,
+            nonfinite_pixels: seg.nonfinite_pixels,
+            size_filter: seg.size_filter,
+            content_crc32: seg.content_crc32,
+        };
+        (record, seg.labels)
+    }
+}
+
 /// What a checkpoint or a shard must match to be resumed or joined: the same recording, by
 /// its size, shape and content, and the same parameters. Two recordings made with the same
 /// settings have files of the same size; the content of their first and last frames tells

@@ -3,7 +3,7 @@
 
 use crate::error::{Error, Result};
 use crate::params::SegmentParams;
-use crate::segment::{segment_frame, FrameSegmentation};
+use crate::segment::{masks, segment_frame, FrameSegmentation};
 use crate::stack::Stack;
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
@@ -30,16 +30,21 @@ pub fn progress_bar(len: u64, what: &str) -> ProgressBar {
 /// overlaps computing, and memory is bounded by two batches, not by the recording's length.
 struct SegmentedFrames<'a> {
     stack: &'a mut Stack,
+    /// The user's label masks, when they replace segmentation (see [`crate::segment::masks`]).
+    masks: Option<&'a mut Stack>,
     params: &'a SegmentParams,
     /// Frames not decoded yet.
     range: std::ops::Range<usize>,
-    /// Decoded, waiting to be segmented.
-    decoded: Vec<crate::stack::Frame>,
+    /// Decoded (with their masks' labels), waiting to be segmented.
+    decoded: Vec<Decoded>,
     ready: VecDeque<FrameSegmentation>,
     failed: Option<Error>,
     batch: usize,
     progress: ProgressBar,
 }
+
+/// A decoded frame and, with masks, its labels.
+type Decoded = (crate::stack::Frame, Option<Vec<u32>>);
 
 impl<'a> SegmentedFrames<'a> {
     /// Stops before frame `end` (a shard's range).
@@ -49,11 +54,17 @@ impl<'a> SegmentedFrames<'a> {
     }
 
     /// Iterates over the frames of `stack` from `first` on.
-    fn starting_at(stack: &'a mut Stack, params: &'a SegmentParams, progress: ProgressBar, first: usize) -> Self {
+    fn starting_at(
+        (stack, masks): (&'a mut Stack, Option<&'a mut Stack>),
+        params: &'a SegmentParams,
+        progress: ProgressBar,
+        first: usize,
+    ) -> Self {
         let frames = stack.info().frames;
         let batch = 2 * rayon::current_num_threads().max(1);
         SegmentedFrames {
             stack,
+            masks,
             params,
             range: first.min(frames)..frames,
             decoded: Vec::new(),
@@ -66,12 +77,19 @@ impl<'a> SegmentedFrames<'a> {
 
     fn decode_batch(
         stack: &mut Stack,
+        mut masks: Option<&mut Stack>,
         range: &mut std::ops::Range<usize>,
         batch: usize,
-    ) -> Result<Vec<crate::stack::Frame>> {
+    ) -> Result<Vec<Decoded>> {
         let end = (range.start + batch).min(range.end);
         let frames = (range.start..end)
-            .map(|t| stack.read_frame(t))
+            .map(|t| {
+                let labels = match masks.as_deref_mut() {
+                    Some(m) => Some(masks::mask_labels(&m.read_frame(t)?, &m.info().path)?),
+                    None => None,
+                };
+                Ok((stack.read_frame(t)?, labels))
+            })
             .collect::<Result<Vec<_>>>();
         range.start = end;
         frames
@@ -79,7 +97,7 @@ impl<'a> SegmentedFrames<'a> {
 
     fn fill(&mut self) {
         if self.decoded.is_empty() {
-            match Self::decode_batch(self.stack, &mut self.range, self.batch) {
+            match Self::decode_batch(self.stack, self.masks.as_deref_mut(), &mut self.range, self.batch) {
                 Ok(frames) => self.decoded = frames,
                 Err(e) => {
                     self.failed = Some(e);
@@ -89,15 +107,21 @@ impl<'a> SegmentedFrames<'a> {
         }
         let current = std::mem::take(&mut self.decoded);
         let params = self.params;
-        let (stack, range, batch) = (&mut *self.stack, &mut self.range, self.batch);
+        let (stack, masks, range, batch) = (&mut *self.stack, self.masks.as_deref_mut(), &mut self.range, self.batch);
         let (next, done) = rayon::join(
-            || Self::decode_batch(stack, range, batch),
+            || Self::decode_batch(stack, masks, range, batch),
             || {
                 current
                     .par_iter()
-                    .map(|f| FrameSegmentation {
-                        content_crc32: Some(f.content_crc32()),
-                        ..segment_frame(&f.to_image(), f.index, params)
+                    .map(|(f, labels)| {
+                        let segmented = match labels {
+                            Some(l) => masks::segment_from_mask(l, &f.to_image(), f.index),
+                            None => segment_frame(&f.to_image(), f.index, params),
+                        };
+                        FrameSegmentation {
+                            content_crc32: Some(f.content_crc32()),
+                            ..segmented
+                        }
                     })
                     .collect::<Vec<_>>()
             },
@@ -130,13 +154,14 @@ impl Iterator for SegmentedFrames<'_> {
     }
 }
 
-/// Runs `consume` on the segmented frames `range` of `stack`, in frame order, while the next
+/// Runs `consume` on the segmented frames `range` of `stack` (segmented by `masks` when given),
+/// in frame order, while the next
 /// frames are being segmented: a producer thread decodes and segments batches (on the worker
 /// pool) and hands results over a short queue, so writing tables, logging and
 /// linking on the calling thread no longer leave the workers idle between batches.
 /// Returns what `consume` returns; if it stops early, the producer stops at its next frame.
 pub fn with_segmented_frames<T>(
-    stack: &mut Stack,
+    (stack, masks): (&mut Stack, Option<&mut Stack>),
     params: &SegmentParams,
     progress: ProgressBar,
     range: std::ops::Range<usize>,
@@ -146,7 +171,7 @@ pub fn with_segmented_frames<T>(
     std::thread::scope(|scope| {
         let (sender, receiver) = std::sync::mpsc::sync_channel(queue);
         let producer = scope.spawn(move || {
-            let frames = SegmentedFrames::starting_at(stack, params, progress, range.start).until(range.end);
+            let frames = SegmentedFrames::starting_at((stack, masks), params, progress, range.start).until(range.end);
             for seg in frames {
                 if sender.send(seg).is_err() {
                     break;

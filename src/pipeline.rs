@@ -20,6 +20,7 @@ use crate::record::{RunCounts, RunInput, RunParameters, RunRecord, Timings, RESE
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
 use crate::segment::diameter::{central_crop, combine, examine_frame, sample_frames, Confidence, ESTIMATE_CROP_PX};
+use crate::segment::masks::open_masks;
 use crate::segment::FrameSegmentation;
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::Stack;
@@ -119,6 +120,9 @@ pub struct RunOptions {
     pub checkpoint_every: Option<usize>,
     /// Continue from the folder's checkpoint.
     pub resume: bool,
+    /// Label masks that replace segmentation (see [`crate::segment::masks`]); such a run
+    /// keeps no checkpoint.
+    pub masks: Option<PathBuf>,
 }
 
 /// Segments every frame of an open recording and writes `detections.csv` (and optionally
@@ -133,9 +137,29 @@ pub fn run_recording(
     command: &str,
 ) -> Result<RunOutcome> {
     params.validate()?;
+    let info = stack.info().clone();
+    let mut masks = match &outputs.masks {
+        Some(p) if outputs.resume => {
+            return Err(Error::input(
+                p,
+                "a run with --masks keeps no checkpoint, so it cannot be resumed",
+            ))
+        }
+        Some(p) => Some(open_masks(p, &info)?),
+        None => None,
+    };
+    let without_checkpoint;
+    let outputs = if masks.is_some() {
+        without_checkpoint = RunOptions {
+            checkpoint_every: None,
+            ..outputs.clone()
+        };
+        &without_checkpoint
+    } else {
+        outputs
+    };
     let folder = RunFolder::open(dir, outputs.replace)?;
     let started = Instant::now();
-    let info = stack.info().clone();
     let work = folder.work().to_path_buf();
     let mut pass = FirstPass::new(&work, outputs, &info, params)?;
     let (mut checkpoint, replayed) = start_checkpoint(stack, dir, outputs, params, &diameter)?;
@@ -147,25 +171,18 @@ pub fn run_recording(
     let progress = progress_bar(info.frames as u64, "frames");
     progress.set_position(first as u64);
     let mut handle = |seg: FrameSegmentation| -> Result<Vec<u32>> {
+        let (record, labels) = FrameRecord::of(seg);
         if let Some(s) = spool.as_mut() {
-            s.push(&seg.labels, info.width, info.height)?;
+            s.push(&labels, info.width, info.height)?;
         }
-        let record = FrameRecord {
-            frame: seg.frame,
-            threshold: seg.threshold.is_finite().then_some(seg.threshold),
-            detections: seg.detections,
-            nonfinite_pixels: seg.nonfinite_pixels,
-            size_filter: seg.size_filter,
-            content_crc32: seg.content_crc32,
-        };
         if let Some(c) = checkpoint.as_mut() {
             c.record(&record, || spool.as_mut().map_or(Ok(0), |s| s.flushed_len()))?;
         }
         pass.take(record)?;
-        Ok(seg.labels)
+        Ok(labels)
     };
     let frames = first..info.frames;
-    with_segmented_frames(stack, params, progress, frames, |segmented| {
+    with_segmented_frames((stack, masks.as_mut()), params, progress, frames, |segmented| {
         if outputs.labels {
             write_stack::<u32, _>(
                 &work.join("labels.tif"),
@@ -285,6 +302,7 @@ pub(crate) fn finish_run(
             modified_unix_s: crate::output::modified_unix_s(&info.path),
             stack: info,
             crc32: checksum,
+            masks: outputs.masks.clone(),
         },
         parameters: RunParameters {
             diameter,

@@ -13,7 +13,7 @@ use crate::segment::diameter::DiameterEstimate;
 use crate::stack::StackInfo;
 use crate::verdict::RunVerdict;
 use serde::{Deserialize, Serialize};
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 /// What every run record says about its use.
 pub const RESEARCH_USE: &str =
@@ -67,6 +67,10 @@ pub struct RunInput {
     /// records of older versions): a quick first check that the input is unchanged.
     #[serde(default)]
     pub modified_unix_s: Option<u64>,
+    /// The label masks that replaced segmentation, when given (absent otherwise and in
+    /// records of older versions).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub masks: Option<PathBuf>,
 }
 
 /// Every parameter of a run; `L` is the linking block (the options as given in a checkpoint's
@@ -145,6 +149,13 @@ pub enum DiameterSource {
     },
     /// Estimated from the recording, with its evidence and confidence.
     Estimated(DiameterEstimate),
+    /// Measured from the user's masks: the median equivalent diameter of their objects.
+    Masks {
+        /// The diameter, px.
+        px: f64,
+        /// Objects measured.
+        objects: usize,
+    },
 }
 
 impl DiameterSource {
@@ -153,6 +164,7 @@ impl DiameterSource {
         match self {
             DiameterSource::Given { px } => *px,
             DiameterSource::Estimated(e) => e.px,
+            DiameterSource::Masks { px, .. } => *px,
         }
     }
 }

@@ -88,23 +88,21 @@ pub fn write_shard(
     let mut log = BufWriter::new(std::fs::File::create(&log_temp).map_err(|e| Error::output(&log_temp, e))?);
     let mut spool = OutlineSpool::durable(&outlines_temp, false)?;
     let progress = progress_bar((range.1 - range.0) as u64, "frames");
-    with_segmented_frames(stack, params, progress, range.0..range.1, |segmented| -> Result<()> {
-        for seg in segmented {
-            let seg = seg?;
-            spool.push(&seg.labels, w, h)?;
-            let record = FrameRecord {
-                frame: seg.frame,
-                threshold: seg.threshold.is_finite().then_some(seg.threshold),
-                detections: seg.detections,
-                nonfinite_pixels: seg.nonfinite_pixels,
-                size_filter: seg.size_filter,
-                content_crc32: seg.content_crc32,
-            };
-            writeln!(log, "{}", serde_json::to_string(&record).expect("serialisable"))
-                .map_err(|e| Error::output(&log_temp, e))?;
-        }
-        Ok(())
-    })?;
+    with_segmented_frames(
+        (stack, None),
+        params,
+        progress,
+        range.0..range.1,
+        |segmented| -> Result<()> {
+            for seg in segmented {
+                let (record, labels) = FrameRecord::of(seg?);
+                spool.push(&labels, w, h)?;
+                writeln!(log, "{}", serde_json::to_string(&record).expect("serialisable"))
+                    .map_err(|e| Error::output(&log_temp, e))?;
+            }
+            Ok(())
+        },
+    )?;
     let file = log.into_inner().map_err(|e| Error::output(&log_temp, e.into_error()))?;
     file.sync_all().map_err(|e| Error::output(&log_temp, e))?;
     spool.flushed_len()?;

@@ -4,6 +4,7 @@
 //! distance of any point to the border. Everything in analysis units.
 
 use crate::error::{Error, Result};
+use crate::segment::distance_transform::squared_edt;
 use crate::stack::{OpenOptions, Stack};
 use serde::Serialize;
 use std::path::Path;
@@ -169,82 +170,22 @@ fn polygon_signed_distance(v: &[[f64; 2]], x: f64, y: f64) -> f64 {
 
 /// Signed distance of every pixel centre to the region's edge, in pixels: outside, the
 /// distance to the nearest region pixel minus ½; inside, minus (the distance to the nearest
-/// pixel outside minus ½), so the edge between two pixels lies at 0.
+/// pixel outside minus ½), so the edge between two pixels lies at 0. Both distances by the
+/// exact transform of [`crate::segment::distance_transform::squared_edt`] (Felzenszwalb &
+/// Huttenlocher 2012).
 pub fn signed_distance(inside: &[bool], width: usize, height: usize) -> Vec<f64> {
-    let to_region = euclidean_distance(inside, width, height);
     let outside: Vec<bool> = inside.iter().map(|&b| !b).collect();
-    let to_outside = euclidean_distance(&outside, width, height);
+    let to_region = squared_edt(&outside, width, height, (1.0, 1.0));
+    let to_outside = squared_edt(inside, width, height, (1.0, 1.0));
     (0..inside.len())
         .map(|i| {
             if inside[i] {
-                -(to_outside[i] - 0.5)
+                -(to_outside[i].sqrt() - 0.5)
             } else {
-                to_region[i] - 0.5
+                to_region[i].sqrt() - 0.5
             }
         })
         .collect()
-}
-
-/// Exact Euclidean distance of every pixel to the nearest `true` pixel (infinite when there
-/// is none).
-///
-/// # Method
-/// P. F. Felzenszwalb & D. P. Huttenlocher (2012), "Distance transforms of sampled functions",
-/// Theory of Computing 8:415–428, doi:10.4086/toc.2012.v008a019: the squared distance by two
-/// passes of the one-dimensional lower envelope of parabolas, columns then rows.
-pub fn euclidean_distance(target: &[bool], width: usize, height: usize) -> Vec<f64> {
-    let far = 1e20;
-    let mut d2: Vec<f64> = target.iter().map(|&t| if t { 0.0 } else { far }).collect();
-    let mut line = Vec::new();
-    for x in 0..width {
-        line.clear();
-        line.extend((0..height).map(|y| d2[y * width + x]));
-        for (y, v) in lower_envelope(&line).into_iter().enumerate() {
-            d2[y * width + x] = v;
-        }
-    }
-    for y in 0..height {
-        let row = &mut d2[y * width..(y + 1) * width];
-        let out = lower_envelope(row);
-        row.copy_from_slice(&out);
-    }
-    d2.into_iter()
-        .map(|v| if v >= far { f64::INFINITY } else { v.sqrt() })
-        .collect()
-}
-
-/// The one-dimensional squared distance transform of `f` (Felzenszwalb & Huttenlocher 2012,
-/// their algorithm DT(f)).
-fn lower_envelope(f: &[f64]) -> Vec<f64> {
-    let n = f.len();
-    let mut v = vec![0usize; n];
-    let mut z = vec![0.0f64; n + 1];
-    let mut k = 0;
-    z[0] = f64::NEG_INFINITY;
-    z[1] = f64::INFINITY;
-    let intersect =
-        |q: usize, p: usize| ((f[q] + (q * q) as f64) - (f[p] + (p * p) as f64)) / (2.0 * q as f64 - 2.0 * p as f64);
-    for q in 1..n {
-        let mut s = intersect(q, v[k]);
-        while s <= z[k] {
-            k -= 1;
-            s = intersect(q, v[k]);
-        }
-        k += 1;
-        v[k] = q;
-        z[k] = s;
-        z[k + 1] = f64::INFINITY;
-    }
-    let mut out = vec![0.0; n];
-    k = 0;
-    for (q, o) in out.iter_mut().enumerate() {
-        while z[k + 1] < q as f64 {
-            k += 1;
-        }
-        let d = q as f64 - v[k] as f64;
-        *o = d * d + f[v[k]];
-    }
-    out
 }
 
 #[cfg(test)]
@@ -252,26 +193,31 @@ mod tests {
     use super::*;
 
     #[test]
-    fn the_distance_transform_matches_brute_force() {
-        // Source: the definition (minimum Euclidean distance to a target pixel), by brute
-        // force over a 13 x 9 grid with three targets.
+    fn signed_distances_match_brute_force() {
+        // Source: the definition (minimum Euclidean distance between pixel centres, less ½),
+        // by brute force over a 13 x 9 grid whose region is three pixels.
         let (w, h) = (13, 9);
-        let targets = [(2usize, 3usize), (10, 1), (7, 8)];
-        let mut t = vec![false; w * h];
-        for &(x, y) in &targets {
-            t[y * w + x] = true;
+        let region = [(2usize, 3usize), (10, 1), (7, 8)];
+        let mut inside = vec![false; w * h];
+        for &(x, y) in &region {
+            inside[y * w + x] = true;
         }
-        let d = euclidean_distance(&t, w, h);
+        let s = signed_distance(&inside, w, h);
         for y in 0..h {
             for x in 0..w {
-                let want = targets
-                    .iter()
-                    .map(|&(tx, ty)| (x as f64 - tx as f64).hypot(y as f64 - ty as f64))
-                    .fold(f64::INFINITY, f64::min);
+                let want = if inside[y * w + x] {
+                    -0.5
+                } else {
+                    region
+                        .iter()
+                        .map(|&(rx, ry)| (x as f64 - rx as f64).hypot(y as f64 - ry as f64))
+                        .fold(f64::INFINITY, f64::min)
+                        - 0.5
+                };
                 assert!(
-                    (d[y * w + x] - want).abs() < 1e-12,
+                    (s[y * w + x] - want).abs() < 1e-12,
                     "({x},{y}) {} vs {want}",
-                    d[y * w + x]
+                    s[y * w + x]
                 );
             }
         }

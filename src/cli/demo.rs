@@ -37,6 +37,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         replace: true,
         checkpoint_every: None,
         resume: false,
+        masks: None,
     };
     let run = run_recording(
         &mut stack,

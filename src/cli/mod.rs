@@ -265,6 +265,26 @@ impl RunArgs {
         let (diameter, params) = self.segmentation.resolve(&mut stack)?;
         Ok((stack, diameter, params))
     }
+
+    /// As [`RunArgs::start`] for a run whose segmentation comes from `masks`: they are checked
+    /// against the recording, and the diameter (unless given) is measured from them.
+    fn start_with_masks(&self, masks: &std::path::Path) -> Result<(Stack, DiameterSource, SegmentParams)> {
+        caravan::pipeline::check_output_dir(&self.output, self.force)?;
+        let stack = self.input.open()?;
+        let mut mask_stack = caravan::segment::masks::open_masks(masks, stack.info())?;
+        let diameter = match self.segmentation.diameter {
+            Some(d) => DiameterSource::Given {
+                px: d.to_pixels("--diameter", stack.info().calibration.pixel_size_um)?,
+            },
+            None => {
+                let (px, objects) = caravan::segment::masks::diameter_from_masks(&mut mask_stack)?;
+                DiameterSource::Masks { px, objects }
+            }
+        };
+        let params = self.segmentation.params_for(diameter.px());
+        params.validate()?;
+        Ok((stack, diameter, params))
+    }
 }
 
 /// Parses `A..B` (whole numbers, A < B) for the option `name`.
@@ -318,6 +338,7 @@ fn print_summary(run: &caravan::pipeline::RunOutcome) {
 fn describe_diameter(d: &DiameterSource) -> String {
     match d {
         DiameterSource::Given { px } => format!("{px:.1} px (given)"),
+        DiameterSource::Masks { px, objects } => format!("{px:.1} px (median of {objects} mask objects)"),
         DiameterSource::Estimated(e) => {
             let confidence = serde_json::to_value(e.confidence)
                 .ok()

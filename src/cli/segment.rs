@@ -28,6 +28,7 @@ pub fn run(args: SegmentArgs) -> Result<Completion> {
         replace: args.run.force,
         checkpoint_every: None,
         resume: false,
+        masks: None,
     };
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
     print_summary(&run);

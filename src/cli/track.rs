@@ -86,6 +86,7 @@ impl LinkingArgs {
             replace,
             checkpoint_every: None,
             resume: false,
+            masks: None,
         })
     }
 }
@@ -104,19 +105,28 @@ pub struct TrackArgs {
     /// outputs are byte-identical to an uninterrupted run's.
     #[arg(long)]
     resume: bool,
+    /// Label masks to use instead of segmenting (a stack, or a folder of label images, one
+    /// per frame, the recording's size; any labels, 0 = background). Such a run keeps no
+    /// checkpoint.
+    #[arg(long)]
+    masks: Option<std::path::PathBuf>,
 }
 
 pub fn run(mut args: TrackArgs) -> Result<Completion> {
     // Resuming continues a run in the same folder, so its partial outputs are expected.
     args.run.force |= args.resume;
     args.linking.validate()?;
-    let (mut stack, diameter, params) = args.run.start()?;
+    let (mut stack, diameter, params) = match &args.masks {
+        Some(m) => args.run.start_with_masks(m)?,
+        None => args.run.start()?,
+    };
     let mut outputs = args
         .linking
         .outputs(stack.info().calibration.pixel_size_um, args.run.force)?;
     outputs.labels = args.run.labels;
     outputs.checkpoint_every = (args.checkpoint_every > 0).then_some(args.checkpoint_every);
     outputs.resume = args.resume;
+    outputs.masks = args.masks.clone();
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
     print_summary(&run);
     if !args.linking.no_analysis {

@@ -9,6 +9,7 @@ mod dim;
 pub mod distance_transform;
 pub mod hmaxima;
 pub mod label;
+pub mod masks;
 pub mod measure;
 pub mod queue;
 mod split;

@@ -35,6 +35,7 @@ pub fn track_synthetic(p: &SynthParams, link: LinkOptions) -> TrackedScene {
         replace: false,
         checkpoint_every: None,
         resume: false,
+        masks: None,
     };
     let run = dir.path().join("run");
     let diameter = resolve_diameter(&mut stack, None, &SegmentParams::for_diameter).unwrap();

@@ -13,6 +13,9 @@ usage: check_score.py SYNTH_DIR RUN_DIR SCORE_JSON
   and the cause of each event along them (missed, merged with a neighbour, wrong link,
   division missed or spurious), rederived from the same per-frame matching as above; both the
   event totals and the main cause per track must agree with score.json.
+- CLEAR-MOT by an outside implementation: motmetrics (PyPI; Heindl's py-motmetrics, after
+  Bernardin & Stiefelhagen 2008) fed the same points and Euclidean distances (NaN beyond the
+  radius): MOTA, MOTP (mean distance of matches) and identity switches must equal score.json's.
 - run.json divisions agree with tracks.csv: each daughter's parent_id is the mother, the
   mother's last frame is the event frame, each daughter starts one frame later.
 """
@@ -222,3 +225,36 @@ for e in events:
 with_parent = {t for t, pts in tracks.items() if pts[0][1]}
 assert with_parent == {d for e in events for d in e["daughters"]}
 print(f"score checked: {tp} matches, TRA {s['tra']:.4f}; {len(events)} divisions consistent")
+
+# CLEAR-MOT by motmetrics: per frame the truth and result ids inside the border margin, the
+# Euclidean distances (NaN beyond the radius, where no match is allowed).
+import motmetrics as mm
+
+
+def ided(path):
+    out = defaultdict(list)
+    with open(path, newline="") as f:
+        for row in csv.DictReader(f):
+            x, y = float(row["x"]), float(row["y"])
+            if m <= x <= W - 1 - m and m <= y <= H - 1 - m:
+                out[int(row["frame"])].append((int(row["track_id"]), x, y))
+    return out
+
+
+acc = mm.MOTAccumulator(auto_id=False)
+gt, hyp = ided(f"{syn}/truth.csv"), ided(f"{run}/tracks.csv")
+for t in sorted(set(gt) | set(hyp)):
+    a, b = gt.get(t, []), hyp.get(t, [])
+    d = np.full((len(a), len(b)), np.nan)
+    for i, (_, x, y) in enumerate(a):
+        for j, (_, u, v) in enumerate(b):
+            dist = np.hypot(x - u, y - v)
+            if dist <= r:
+                d[i, j] = dist
+    acc.update([p[0] for p in a], [p[0] for p in b], d, frameid=t)
+summary = mm.metrics.create().compute(acc, metrics=["mota", "motp", "num_switches"], name="run")
+theirs = summary.loc["run"]
+assert abs(theirs["mota"] - mot["mota"]) < 1e-9, (theirs["mota"], mot["mota"])
+assert abs(theirs["motp"] - mot["motp_px"]) < 1e-9, (theirs["motp"], mot["motp_px"])
+assert int(theirs["num_switches"]) == mot["identity_switches"], (theirs["num_switches"], mot["identity_switches"])
+print(f"motmetrics agrees: MOTA {theirs['mota']:.6f}, MOTP {theirs['motp']:.6f}, switches {int(theirs['num_switches'])}")
