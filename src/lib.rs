@@ -41,6 +41,7 @@ pub mod batch;
 pub mod checkpoint;
 pub mod columns;
 pub mod error;
+pub mod export;
 pub mod frames;
 pub mod image2d;
 pub mod link;

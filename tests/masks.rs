@@ -1,7 +1,8 @@
 //! Tracking from the user's own label masks (`caravan track --masks`): the masks' objects are
 //! measured as they are, on the recording's intensities, and refused with one line when they
 //! do not fit the recording. Checked against the synthetic truth that drew them and, in CI,
-//! by scikit-image's regionprops on the same masks.
+//! by scikit-image's regionprops on the same masks; the run exported in the Cell Tracking
+//! Challenge's layout is validated and scored by py-ctcmetrics.
 
 mod common;
 use common::{caravan, ci_python, run_python};
@@ -42,10 +43,22 @@ fn truth_masks_give_the_truth_and_bad_masks_are_refused() {
         &arg(&masks),
         "-o",
         &arg(&d.join("run")),
+        "--labels",
         "--no-movie",
         "--no-analysis",
     ]));
     assert!(out.contains("mask objects"), "{out}");
+    ok(caravan(&[
+        "export",
+        &arg(&d.join("run")),
+        "--to",
+        "ctc",
+        "-o",
+        &arg(&d.join("ctc")),
+    ]));
+    let track_file = std::fs::read_to_string(d.join("ctc/res_track.txt")).unwrap();
+    assert!(d.join("ctc/mask000.tif").exists() && d.join("ctc/mask011.tif").exists());
+    assert!(track_file.lines().all(|l| l.split(' ').count() == 4), "{track_file}");
     // The truth's own masks reproduce the truth (construction: the synthetic truth drew them):
     // every nucleus found, linked as the truth links it.
     ok(caravan(&[
@@ -125,4 +138,9 @@ fn truth_masks_give_the_truth_and_bad_masks_are_refused() {
     assert_eq!(areas, ["36", "48", "36", "48", "36", "48"], "{detections}");
     let Some(python) = ci_python() else { return };
     run_python(&python, "check_masks.py", &[&arg(&masks), &arg(&d.join("run"))]);
+    run_python(
+        &python,
+        "check_ctc.py",
+        &[&arg(&d.join("syn")), &arg(&d.join("ctc")), &arg(d)],
+    );
 }

@@ -6,6 +6,7 @@ mod analyze;
 mod batch;
 mod compare;
 mod demo;
+mod export;
 mod inspect;
 mod join;
 mod param_file;
@@ -62,6 +63,8 @@ enum Command {
     Score(score::ScoreArgs),
     /// Synthesize a recording, track it, and score the result against the truth.
     Demo(demo::DemoArgs),
+    /// Write a run in another layout (the Cell Tracking Challenge's result layout).
+    Export(export::ExportArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -97,6 +100,7 @@ pub fn run() -> i32 {
         Command::Batch(a) => batch::run(a),
         Command::Workflow(a) => done(workflow::run(a)),
         Command::Demo(a) => done(demo::run(a)),
+        Command::Export(a) => done(export::run(a)),
     };
     match result {
         Ok(Completion::Done) => 0,

@@ -1,0 +1,195 @@
+//! A run in the result layout of the Cell Tracking Challenge, so that its published
+//! evaluation (and any tool that reads the layout) can score it: one 16-bit mask per frame,
+//! `maskTTT.tif`, whose labels are track labels, and `res_track.txt`, one line `L B E P` per
+//! track (label, first frame, last frame, parent label or 0).
+//!
+//! # Method
+//! The layout of M. Maška et al. (2014), "A benchmark for comparison of cell tracking
+//! algorithms", Bioinformatics 30(11):1609–1617, doi:10.1093/bioinformatics/btu080, and
+//! V. Ulman et al. (2017), "An objective comparison of cell-tracking algorithms", Nat. Methods
+//! 14(12):1141–1152, doi:10.1038/nmeth.4473. A track there is present in every frame from its
+//! first to its last, so a track of ours with missing frames becomes one track per stretch,
+//! each later stretch the child of the one before (the layout's own convention for gaps).
+
+use crate::error::{Error, Result};
+use crate::output::{ensure_dir, write_atomic};
+use crate::stack::write::{write_stack, TiffCompression};
+use crate::stack::{OpenOptions, Pixels, Stack};
+use std::collections::{BTreeMap, HashMap};
+use std::path::Path;
+
+/// One track of the layout: its label, first and last frame, parent label (0: none).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct CtcTrack {
+    /// Label in the masks.
+    pub label: u32,
+    /// First frame.
+    pub begin: usize,
+    /// Last frame.
+    pub end: usize,
+    /// Parent label, 0 for none.
+    pub parent: u32,
+}
+
+/// A tracked object: `(track_id, parent_id, frame, object label in labels.tif)`.
+pub type TrackedObject = (u32, Option<u32>, usize, u32);
+
+/// The layout's tracks for `objects`, and for each `(frame, object)` its layout label: tracks
+/// cut where frames are missing, labels from 1 in order of track id then frame.
+pub fn ctc_tracks(objects: &[TrackedObject]) -> (Vec<CtcTrack>, HashMap<(usize, u32), u32>) {
+    let mut by_track: BTreeMap<u32, Vec<(usize, u32, Option<u32>)>> = BTreeMap::new();
+    for &(id, parent, frame, object) in objects {
+        by_track.entry(id).or_default().push((frame, object, parent));
+    }
+    let mut tracks: Vec<CtcTrack> = Vec::new();
+    let mut label_of = HashMap::new();
+    let mut last_label: HashMap<u32, u32> = HashMap::new();
+    let mut mothers: Vec<(usize, u32)> = Vec::new();
+    for (&id, points) in by_track.iter_mut() {
+        points.sort_unstable();
+        let mut previous: Option<(usize, u32)> = None;
+        for &(frame, object, parent) in points.iter() {
+            let continues = previous.is_some_and(|(f, _)| frame == f + 1);
+            let label = if continues {
+                previous.expect("continues").1
+            } else {
+                let label = tracks.len() as u32 + 1;
+                let parent_label = previous.map_or(0, |p| p.1);
+                tracks.push(CtcTrack {
+                    label,
+                    begin: frame,
+                    end: frame,
+                    parent: parent_label,
+                });
+                if previous.is_none() {
+                    if let Some(mother) = parent {
+                        mothers.push((tracks.len() - 1, mother));
+                    }
+                }
+                label
+            };
+            tracks[label as usize - 1].end = frame;
+            label_of.insert((frame, object), label);
+            previous = Some((frame, label));
+        }
+        if let Some((_, label)) = previous {
+            last_label.insert(id, label);
+        }
+    }
+    for (k, mother) in mothers {
+        tracks[k].parent = last_label.get(&mother).copied().unwrap_or(0);
+    }
+    (tracks, label_of)
+}
+
+/// Writes the result layout of the run folder `run` into `out`: `res_track.txt` and one
+/// `maskTTT.tif` per frame (three digits, four beyond 1000 frames), from the run's
+/// `labels.tif` and `tracks.csv`. Returns the number of tracks written.
+///
+/// # Errors
+/// A run without `labels.tif` (tracked without `--labels`) or `tracks.csv`, more tracks than
+/// 16-bit labels hold, or outputs that cannot be written.
+pub fn export_ctc(run: &Path, out: &Path) -> Result<usize> {
+    let labels_path = run.join("labels.tif");
+    if !labels_path.exists() {
+        return Err(Error::input(
+            run,
+            "has no labels.tif: track with --labels to export masks in the benchmark's layout",
+        ));
+    }
+    let objects = read_tracked_objects(&run.join("tracks.csv"))?;
+    let (tracks, label_of) = ctc_tracks(&objects);
+    if tracks.len() > u16::MAX as usize {
+        return Err(Error::input(
+            run,
+            format!("{} tracks do not fit the layout's 16-bit masks", tracks.len()),
+        ));
+    }
+    let mut labels = Stack::open(&labels_path, &OpenOptions::default())?;
+    let info = labels.info().clone();
+    ensure_dir(out)?;
+    let digits = if info.frames > 1000 { 4 } else { 3 };
+    for t in 0..info.frames {
+        let frame = labels.read_frame(t)?;
+        let Pixels::U32(objects) = frame.pixels else {
+            return Err(Error::input(&labels_path, "is not a 32-bit label stack"));
+        };
+        let mask: Vec<u16> = objects
+            .iter()
+            .map(|&o| {
+                if o == 0 {
+                    0
+                } else {
+                    label_of.get(&(t, o)).map_or(0, |&l| l as u16)
+                }
+            })
+            .collect();
+        let path = out.join(format!("mask{t:0digits$}.tif"));
+        write_stack::<u16, _>(
+            &path,
+            info.width,
+            info.height,
+            1,
+            TiffCompression::Deflate,
+            None,
+            |_| Ok(mask.clone()),
+        )?;
+    }
+    let text: String = tracks
+        .iter()
+        .map(|c| format!("{} {} {} {}\n", c.label, c.begin, c.end, c.parent))
+        .collect();
+    write_atomic(&out.join("res_track.txt"), text.as_bytes())?;
+    Ok(tracks.len())
+}
+
+/// `(track_id, parent_id, frame, object)` of every row of a run's `tracks.csv`.
+fn read_tracked_objects(path: &Path) -> Result<Vec<TrackedObject>> {
+    let bad = |e: String| Error::input(path, e);
+    let mut reader = csv::Reader::from_path(path).map_err(|e| bad(e.to_string()))?;
+    let header = reader.headers().map_err(|e| bad(e.to_string()))?.clone();
+    let col = |name: &str| {
+        header
+            .iter()
+            .position(|h| h == name)
+            .ok_or_else(|| bad(format!("has no column {name}")))
+    };
+    let (ti, pi, fi, oi) = (col("track_id")?, col("parent_id")?, col("frame")?, col("object")?);
+    let mut out = Vec::new();
+    for (k, row) in reader.records().enumerate() {
+        let row = row.map_err(|e| bad(format!("line {}: {e}", k + 2)))?;
+        let num = |i: usize| -> Result<u64> {
+            row.get(i)
+                .unwrap_or_default()
+                .parse::<u64>()
+                .map_err(|_| bad(format!("line {}: not a whole number in column {}", k + 2, &header[i])))
+        };
+        let parent = match row.get(pi).unwrap_or_default() {
+            "" => None,
+            _ => Some(num(pi)? as u32),
+        };
+        out.push((num(ti)? as u32, parent, num(fi)? as usize, num(oi)? as u32));
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn gaps_split_tracks_and_daughters_name_their_mother() {
+        // Construction, by the layout's conventions (Maška et al. 2014): track 1 in frames
+        // 0-2 and 4-5 (frame 3 missing) is labels 1 (0-2) and 2 (4-5, parent 1); its
+        // daughters 2 and 3 start at frame 6 with parent 2 (the mother's last stretch); the
+        // objects keep their labels per frame.
+        let mut objects: Vec<TrackedObject> = [0, 1, 2, 4, 5].iter().map(|&f| (1, None, f, 10)).collect();
+        objects.push((2, Some(1), 6, 11));
+        objects.push((3, Some(1), 6, 12));
+        objects.push((2, Some(1), 7, 11));
+        let (tracks, label_of) = ctc_tracks(&objects);
+        let rows: Vec<(u32, usize, usize, u32)> = tracks.iter().map(|c| (c.label, c.begin, c.end, c.parent)).collect();
+        assert_eq!(rows, vec![(1, 0, 2, 0), (2, 4, 5, 1), (3, 6, 7, 2), (4, 6, 6, 2)]);
+        assert_eq!((label_of[&(4, 10)], label_of[&(7, 11)], label_of[&(6, 12)]), (2, 3, 4));
+    }
+}
