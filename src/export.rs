@@ -193,3 +193,68 @@ mod tests {
         assert_eq!((label_of[&(4, 10)], label_of[&(7, 11)], label_of[&(6, 12)]), (2, 3, 4));
     }
 }
+
+/// A folder in one of the benchmark's layouts, as [`recognise_layout`] found it.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct LayoutSummary {
+    /// `result` (maskTTT.tif, res_track.txt) or `ground truth` (TRA/, optionally SEG/).
+    pub kind: &'static str,
+    /// Mask files of the tracks (result masks, or TRA/man_trackTTT.tif).
+    pub frames: usize,
+    /// Lines of the track file.
+    pub tracks: usize,
+    /// Frames with segmentation truth (SEG/man_segTTT.tif; ground truth only).
+    pub segmentation_frames: usize,
+}
+
+/// Recognises a folder in the benchmark's result layout (`res_track.txt` beside `mask*.tif`)
+/// or ground-truth layout (`TRA/man_track.txt` beside `TRA/man_track*.tif`, and `SEG/` where
+/// present); `Ok(None)` for any other folder.
+///
+/// # Errors
+/// A track file whose lines are not four whole numbers, naming the line.
+pub fn recognise_layout(dir: &Path) -> Result<Option<LayoutSummary>> {
+    let count = |sub: &Path, prefix: &str| -> usize {
+        std::fs::read_dir(sub).map_or(0, |entries| {
+            entries
+                .flatten()
+                .filter(|e| {
+                    let name = e.file_name().to_string_lossy().into_owned();
+                    name.starts_with(prefix) && name.ends_with(".tif")
+                })
+                .count()
+        })
+    };
+    let (kind, track_file, frames, segmentation_frames) = if dir.join("res_track.txt").is_file() {
+        ("result", dir.join("res_track.txt"), count(dir, "mask"), 0)
+    } else if dir.join("TRA/man_track.txt").is_file() {
+        let seg = count(&dir.join("SEG"), "man_seg");
+        (
+            "ground truth",
+            dir.join("TRA/man_track.txt"),
+            count(&dir.join("TRA"), "man_track"),
+            seg,
+        )
+    } else {
+        return Ok(None);
+    };
+    let text =
+        std::fs::read_to_string(&track_file).map_err(|e| Error::input(&track_file, format!("cannot read: {e}")))?;
+    let mut tracks = 0;
+    for (k, line) in text.lines().enumerate().filter(|(_, l)| !l.trim().is_empty()) {
+        let fields: Vec<&str> = line.split_whitespace().collect();
+        if fields.len() != 4 || fields.iter().any(|f| f.parse::<u64>().is_err()) {
+            return Err(Error::input(
+                &track_file,
+                format!("line {}: expected four whole numbers L B E P", k + 1),
+            ));
+        }
+        tracks += 1;
+    }
+    Ok(Some(LayoutSummary {
+        kind,
+        frames,
+        tracks,
+        segmentation_frames,
+    }))
+}

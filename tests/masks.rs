@@ -59,6 +59,26 @@ fn truth_masks_give_the_truth_and_bad_masks_are_refused() {
     let track_file = std::fs::read_to_string(d.join("ctc/res_track.txt")).unwrap();
     assert!(d.join("ctc/mask000.tif").exists() && d.join("ctc/mask011.tif").exists());
     assert!(track_file.lines().all(|l| l.split(' ').count() == 4), "{track_file}");
+    // inspect recognises the result layout, and a ground-truth folder (TRA/ with its track
+    // file and masks).
+    let said = ok(caravan(&["inspect", &arg(&d.join("ctc"))]));
+    let tracks = track_file.lines().count();
+    assert!(
+        said.contains("Cell Tracking Challenge, result") && said.contains(&format!("12 track masks, {tracks} tracks")),
+        "{said}"
+    );
+    std::fs::create_dir_all(d.join("gt/TRA")).unwrap();
+    std::fs::write(d.join("gt/TRA/man_track.txt"), "1 0 0 0\n2 0 0 0\n").unwrap();
+    std::fs::copy(d.join("ctc/mask000.tif"), d.join("gt/TRA/man_track000.tif")).unwrap();
+    let said = ok(caravan(&["inspect", &arg(&d.join("gt"))]));
+    assert!(
+        said.contains("ground truth") && said.contains("1 track masks, 2 tracks"),
+        "{said}"
+    );
+    std::fs::write(d.join("gt/TRA/man_track.txt"), "1 0 x 0\n").unwrap();
+    let bad = caravan(&["inspect", &arg(&d.join("gt"))]);
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("line 1: expected four whole numbers"));
     // The truth's own masks reproduce the truth (construction: the synthetic truth drew them):
     // every nucleus found, linked as the truth links it.
     ok(caravan(&[

@@ -14,6 +14,18 @@ pub struct InspectArgs {
 }
 
 pub fn run(args: InspectArgs) -> Result<()> {
+    let path = args.input.path();
+    if path.is_dir() {
+        if let Some(l) = caravan::export::recognise_layout(path)? {
+            println!("folder       {}", path.display());
+            println!("layout       Cell Tracking Challenge, {} (Maška et al. 2014)", l.kind);
+            println!("frames       {} track masks, {} tracks", l.frames, l.tracks);
+            if l.segmentation_frames > 0 {
+                println!("segmentation {} frames", l.segmentation_frames);
+            }
+            return Ok(());
+        }
+    }
     let mut stack = args.input.open()?;
     let info = stack.info().clone();
     let c = info.calibration;

@@ -166,6 +166,11 @@ struct InputArgs {
 }
 
 impl InputArgs {
+    /// The recording's path as given.
+    fn path(&self) -> &std::path::Path {
+        &self.input
+    }
+
     fn open(&self) -> Result<Stack> {
         Stack::open(&self.input, &self.options())
     }
