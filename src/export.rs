@@ -35,11 +35,20 @@ pub struct CtcTrack {
 pub type TrackedObject = (u32, Option<u32>, usize, u32);
 
 /// The layout's tracks for `objects`, and for each `(frame, object)` its layout label: tracks
-/// cut where frames are missing, labels from 1 in order of track id then frame.
+/// cut where frames are missing, labels from 1 in order of track id then frame. An object two
+/// tracks share (one that time repair split in two, whose pixels the label image holds
+/// once) goes to the lower track id; the other track misses that frame, so it is cut there.
 pub fn ctc_tracks(objects: &[TrackedObject]) -> (Vec<CtcTrack>, HashMap<(usize, u32), u32>) {
     let mut by_track: BTreeMap<u32, Vec<(usize, u32, Option<u32>)>> = BTreeMap::new();
-    for &(id, parent, frame, object) in objects {
-        by_track.entry(id).or_default().push((frame, object, parent));
+    let mut claimed: HashMap<(usize, u32), u32> = HashMap::new();
+    let mut sorted: Vec<TrackedObject> = objects.to_vec();
+    sorted.sort_unstable_by_key(|o| (o.0, o.2));
+    for &(id, parent, frame, object) in &sorted {
+        // Every row of a daughter names her mother, so a daughter whose first point is left
+        // out keeps the link on the next.
+        if *claimed.entry((frame, object)).or_insert(id) == id {
+            by_track.entry(id).or_default().push((frame, object, parent));
+        }
     }
     let mut tracks: Vec<CtcTrack> = Vec::new();
     let mut label_of = HashMap::new();
@@ -191,6 +200,19 @@ mod tests {
         let rows: Vec<(u32, usize, usize, u32)> = tracks.iter().map(|c| (c.label, c.begin, c.end, c.parent)).collect();
         assert_eq!(rows, vec![(1, 0, 2, 0), (2, 4, 5, 1), (3, 6, 7, 2), (4, 6, 6, 2)]);
         assert_eq!((label_of[&(4, 10)], label_of[&(7, 11)], label_of[&(6, 12)]), (2, 3, 4));
+        // Construction: tracks 5 and 6 share object 20 at frame 1 (a merge time repair split):
+        // the object goes to track 5; track 6 is cut around the frame it lost.
+        let shared: Vec<TrackedObject> = vec![
+            (5, None, 0, 20),
+            (5, None, 1, 20),
+            (6, None, 0, 21),
+            (6, None, 1, 20),
+            (6, None, 2, 21),
+        ];
+        let (tracks, label_of) = ctc_tracks(&shared);
+        let rows: Vec<(u32, usize, usize, u32)> = tracks.iter().map(|c| (c.label, c.begin, c.end, c.parent)).collect();
+        assert_eq!(rows, vec![(1, 0, 1, 0), (2, 0, 0, 0), (3, 2, 2, 2)]);
+        assert_eq!(label_of[&(1, 20)], 1);
     }
 }
 

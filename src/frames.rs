@@ -32,6 +32,8 @@ struct SegmentedFrames<'a> {
     stack: &'a mut Stack,
     /// The user's label masks, when they replace segmentation (see [`crate::segment::masks`]).
     masks: Option<&'a mut Stack>,
+    /// Whether objects from masks are measured on the recording's intensities.
+    intensities: bool,
     params: &'a SegmentParams,
     /// Frames not decoded yet.
     range: std::ops::Range<usize>,
@@ -55,7 +57,7 @@ impl<'a> SegmentedFrames<'a> {
 
     /// Iterates over the frames of `stack` from `first` on.
     fn starting_at(
-        (stack, masks): (&'a mut Stack, Option<&'a mut Stack>),
+        (stack, masks, intensities): (&'a mut Stack, Option<&'a mut Stack>, bool),
         params: &'a SegmentParams,
         progress: ProgressBar,
         first: usize,
@@ -65,6 +67,7 @@ impl<'a> SegmentedFrames<'a> {
         SegmentedFrames {
             stack,
             masks,
+            intensities,
             params,
             range: first.min(frames)..frames,
             decoded: Vec::new(),
@@ -106,7 +109,7 @@ impl<'a> SegmentedFrames<'a> {
             }
         }
         let current = std::mem::take(&mut self.decoded);
-        let params = self.params;
+        let (params, intensities) = (self.params, self.intensities);
         let (stack, masks, range, batch) = (&mut *self.stack, self.masks.as_deref_mut(), &mut self.range, self.batch);
         let (next, done) = rayon::join(
             || Self::decode_batch(stack, masks, range, batch),
@@ -115,7 +118,7 @@ impl<'a> SegmentedFrames<'a> {
                     .par_iter()
                     .map(|(f, labels)| {
                         let segmented = match labels {
-                            Some(l) => masks::segment_from_mask(l, &f.to_image(), f.index),
+                            Some(l) => masks::segment_from_mask(l, &f.to_image(), f.index, intensities),
                             None => segment_frame(&f.to_image(), f.index, params),
                         };
                         FrameSegmentation {
@@ -154,14 +157,14 @@ impl Iterator for SegmentedFrames<'_> {
     }
 }
 
-/// Runs `consume` on the segmented frames `range` of `stack` (segmented by `masks` when given),
-/// in frame order, while the next
+/// Runs `consume` on the segmented frames `range` of `stack` (segmented by `masks` when given,
+/// measured on the recording's intensities when `intensities`), in frame order, while the next
 /// frames are being segmented: a producer thread decodes and segments batches (on the worker
 /// pool) and hands results over a short queue, so writing tables, logging and
 /// linking on the calling thread no longer leave the workers idle between batches.
 /// Returns what `consume` returns; if it stops early, the producer stops at its next frame.
 pub fn with_segmented_frames<T>(
-    (stack, masks): (&mut Stack, Option<&mut Stack>),
+    (stack, masks, intensities): (&mut Stack, Option<&mut Stack>, bool),
     params: &SegmentParams,
     progress: ProgressBar,
     range: std::ops::Range<usize>,
@@ -171,7 +174,8 @@ pub fn with_segmented_frames<T>(
     std::thread::scope(|scope| {
         let (sender, receiver) = std::sync::mpsc::sync_channel(queue);
         let producer = scope.spawn(move || {
-            let frames = SegmentedFrames::starting_at((stack, masks), params, progress, range.start).until(range.end);
+            let frames = SegmentedFrames::starting_at((stack, masks, intensities), params, progress, range.start)
+                .until(range.end);
             for seg in frames {
                 if sender.send(seg).is_err() {
                     break;

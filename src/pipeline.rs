@@ -123,6 +123,8 @@ pub struct RunOptions {
     /// Label masks that replace segmentation (see [`crate::segment::masks`]); such a run
     /// keeps no checkpoint.
     pub masks: Option<PathBuf>,
+    /// The masks are the recording too: objects are measured without intensities.
+    pub masks_without_intensities: bool,
 }
 
 /// Segments every frame of an open recording and writes `detections.csv` (and optionally
@@ -182,7 +184,8 @@ pub fn run_recording(
         Ok(labels)
     };
     let frames = first..info.frames;
-    with_segmented_frames((stack, masks.as_mut()), params, progress, frames, |segmented| {
+    let source = (&mut *stack, masks.as_mut(), !outputs.masks_without_intensities);
+    with_segmented_frames(source, params, progress, frames, |segmented| {
         if outputs.labels {
             write_stack::<u32, _>(
                 &work.join("labels.tif"),

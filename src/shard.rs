@@ -89,7 +89,7 @@ pub fn write_shard(
     let mut spool = OutlineSpool::durable(&outlines_temp, false)?;
     let progress = progress_bar((range.1 - range.0) as u64, "frames");
     with_segmented_frames(
-        (stack, None),
+        (stack, None, true),
         params,
         progress,
         range.0..range.1,

@@ -97,6 +97,24 @@ fn truth_masks_give_the_truth_and_bad_masks_are_refused() {
     let record: serde_json::Value = serde_json::from_slice(&std::fs::read(d.join("run/run.json")).unwrap()).unwrap();
     assert_eq!(record["parameters"]["diameter"]["source"], "masks");
     assert!(record["input"]["masks"].as_str().unwrap().ends_with("truth_labels.tif"));
+    // The masks alone, without a recording: the same objects, measured without intensities
+    // (empty cells).
+    ok(caravan(&[
+        "track",
+        "--masks",
+        &arg(&masks),
+        "-o",
+        &arg(&d.join("alone")),
+        "--no-movie",
+        "--no-analysis",
+    ]));
+    let alone = std::fs::read_to_string(d.join("alone/detections.csv")).unwrap();
+    let with = std::fs::read_to_string(d.join("run/detections.csv")).unwrap();
+    assert_eq!(alone.lines().count(), with.lines().count());
+    assert!(alone
+        .lines()
+        .skip(1)
+        .all(|l| l.split(',').nth(9) == Some("") && l.split(',').nth(10) == Some("")));
     // Masks of another size or length: one line naming the masks, exit 2, nothing written.
     synth("small", "128x256", "12");
     synth("short", "256x256", "8");
@@ -158,9 +176,10 @@ fn truth_masks_give_the_truth_and_bad_masks_are_refused() {
     assert_eq!(areas, ["36", "48", "36", "48", "36", "48"], "{detections}");
     let Some(python) = ci_python() else { return };
     run_python(&python, "check_masks.py", &[&arg(&masks), &arg(&d.join("run"))]);
+    run_python(&python, "check_masks.py", &[&arg(&masks), &arg(&d.join("alone"))]);
     run_python(
         &python,
         "check_ctc.py",
-        &[&arg(&d.join("syn")), &arg(&d.join("ctc")), &arg(d)],
+        &["export", &arg(&d.join("syn")), &arg(&d.join("ctc")), &arg(d)],
     );
 }

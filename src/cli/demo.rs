@@ -38,6 +38,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         checkpoint_every: None,
         resume: false,
         masks: None,
+        masks_without_intensities: false,
     };
     let run = run_recording(
         &mut stack,

@@ -14,7 +14,7 @@ pub struct InspectArgs {
 }
 
 pub fn run(args: InspectArgs) -> Result<()> {
-    let path = args.input.path();
+    let path = args.input.path()?;
     if path.is_dir() {
         if let Some(l) = caravan::export::recognise_layout(path)? {
             println!("folder       {}", path.display());

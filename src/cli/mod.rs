@@ -145,8 +145,9 @@ enum ZChoice {
 /// How to open a recording.
 #[derive(Args, Clone)]
 struct InputArgs {
-    /// A TIFF/BigTIFF stack or a folder of single-frame TIFFs.
-    input: PathBuf,
+    /// A TIFF/BigTIFF stack or a folder of single-frame TIFFs (`track --masks` may go
+    /// without one).
+    input: Option<PathBuf>,
     /// Channel to read (0-based) when the recording has several.
     #[arg(long)]
     channel: Option<usize>,
@@ -167,12 +168,18 @@ struct InputArgs {
 
 impl InputArgs {
     /// The recording's path as given.
-    fn path(&self) -> &std::path::Path {
-        &self.input
+    fn path(&self) -> Result<&std::path::Path> {
+        self.input.as_deref().ok_or_else(|| {
+            caravan::Error::parameter(
+                "INPUT",
+                "",
+                "give a recording: a TIFF stack or a folder of single-frame TIFFs",
+            )
+        })
     }
 
     fn open(&self) -> Result<Stack> {
-        Stack::open(&self.input, &self.options())
+        Stack::open(self.path()?, &self.options())
     }
 
     fn options(&self) -> OpenOptions {
@@ -266,6 +273,11 @@ struct RunArgs {
 }
 
 impl RunArgs {
+    /// Whether no recording was given (`track --masks` alone).
+    fn has_no_recording(&self) -> bool {
+        self.input.input.is_none()
+    }
+
     /// Opens the recording and resolves the segmentation parameters (refusing bad ones before
     /// any long work starts).
     fn start(&self) -> Result<(Stack, DiameterSource, SegmentParams)> {
@@ -276,10 +288,14 @@ impl RunArgs {
     }
 
     /// As [`RunArgs::start`] for a run whose segmentation comes from `masks`: they are checked
-    /// against the recording, and the diameter (unless given) is measured from them.
+    /// against the recording, and the diameter (unless given) is measured from them. Without
+    /// a recording the masks stand in for it (measured without intensities).
     fn start_with_masks(&self, masks: &std::path::Path) -> Result<(Stack, DiameterSource, SegmentParams)> {
         caravan::pipeline::check_output_dir(&self.output, self.force)?;
-        let stack = self.input.open()?;
+        let stack = match self.input.input {
+            Some(_) => self.input.open()?,
+            None => Stack::open(masks, &self.input.options())?,
+        };
         let mut mask_stack = caravan::segment::masks::open_masks(masks, stack.info())?;
         let diameter = match self.segmentation.diameter {
             Some(d) => DiameterSource::Given {

@@ -29,6 +29,7 @@ pub fn run(args: SegmentArgs) -> Result<Completion> {
         checkpoint_every: None,
         resume: false,
         masks: None,
+        masks_without_intensities: false,
     };
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
     print_summary(&run);

@@ -87,6 +87,7 @@ impl LinkingArgs {
             checkpoint_every: None,
             resume: false,
             masks: None,
+            masks_without_intensities: false,
         })
     }
 }
@@ -127,6 +128,7 @@ pub fn run(mut args: TrackArgs) -> Result<Completion> {
     outputs.checkpoint_every = (args.checkpoint_every > 0).then_some(args.checkpoint_every);
     outputs.resume = args.resume;
     outputs.masks = args.masks.clone();
+    outputs.masks_without_intensities = args.masks.is_some() && args.run.has_no_recording();
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
     print_summary(&run);
     if !args.linking.no_analysis {

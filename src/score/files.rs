@@ -24,6 +24,9 @@ pub struct ScoreSetup {
     pub border_margin_px: f64,
     /// Frame size, when the truth folder says it (`scenario.json`).
     pub frame_size: Option<(usize, usize)>,
+    /// How result and reference vertices are matched for TRA, DET and detection: `position
+    /// within the radius`, or `mask overlap` when both are in the benchmark's layouts.
+    pub vertex_matching: &'static str,
 }
 
 /// A folder holding `name`, or the file itself.
@@ -58,6 +61,9 @@ pub fn score_files(
     match_radius_px: Option<f64>,
     border_margin_px: Option<f64>,
 ) -> Result<(ScoreSetup, TrackingScore)> {
+    if let Some(scored) = score_both_layouts(truth, tracks, match_radius_px)? {
+        return Ok(scored);
+    }
     let truth_csv = file_in(truth, "truth.csv");
     let tracks_csv = file_in(tracks, "tracks.csv");
     let reference = read_points(&truth_csv)?;
@@ -98,8 +104,39 @@ pub fn score_files(
         match_radius_source: source,
         border_margin_px: margin,
         frame_size,
+        vertex_matching: "position within the radius",
     };
     Ok((setup, score))
+}
+
+/// Scoring when the truth is a folder in the ground-truth layout and the tracks a folder in
+/// the result layout (see [`super::layout`]); `None` otherwise.
+fn score_both_layouts(truth: &Path, tracks: &Path, radius: Option<f64>) -> Result<Option<(ScoreSetup, TrackingScore)>> {
+    let is = |p: &Path, kind: &str| -> Result<bool> {
+        Ok(p.is_dir() && crate::export::recognise_layout(p)?.is_some_and(|l| l.kind == kind))
+    };
+    if !(is(truth, "ground truth")? && is(tracks, "result")?) {
+        return Ok(None);
+    }
+    let read = |p: &Path| -> Result<super::layout::Sequence> {
+        super::layout::read_sequence(p)?.ok_or_else(|| Error::input(p, "is in neither of the benchmark's layouts"))
+    };
+    let (reference, result) = (read(truth)?, read(tracks)?);
+    let (radius_px, score) = super::layout::score_layouts(&reference, &result, radius);
+    let setup = ScoreSetup {
+        truth_csv: truth.join("TRA/man_track.txt"),
+        tracks_csv: tracks.join("res_track.txt"),
+        match_radius_px: radius_px,
+        match_radius_source: if radius.is_some() {
+            "given"
+        } else {
+            "half the median reference diameter"
+        },
+        border_margin_px: 0.0,
+        frame_size: Some(reference.size),
+        vertex_matching: "mask overlap (a result object matches the reference object it covers more than half of)",
+    };
+    Ok(Some((setup, score)))
 }
 
 /// Nucleus diameter (px) and frame size of a synthetic truth.

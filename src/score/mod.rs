@@ -4,6 +4,7 @@
 
 pub mod breaks;
 pub mod files;
+pub mod layout;
 pub mod tracking;
 
 use crate::tracks::TrackPoint;

@@ -23,6 +23,12 @@ pub(crate) struct FrameMatching {
     /// Those reference vertices.
     pub(crate) merged: BTreeSet<Vertex>,
     counts: MatchCounts,
+    /// Result vertices matched to several references (set by the overlap matching).
+    split_results: BTreeSet<Vertex>,
+    /// Count edge errors on the subgraph of uniquely matched result vertices only, as the
+    /// published evaluation does (Matula et al. 2015): an edge of a false-positive or split
+    /// vertex is neither deleted nor covering. The position matching keeps every edge.
+    induced_edges: bool,
 }
 
 fn by_frame(points: &[TrackPoint]) -> BTreeMap<usize, Vec<&TrackPoint>> {
@@ -37,16 +43,76 @@ fn xy(v: &[&TrackPoint]) -> Vec<(f64, f64)> {
     v.iter().map(|p| (p.x, p.y)).collect()
 }
 
+/// One frame's overlaps between reference and result objects.
+pub(crate) struct FrameOverlap {
+    /// Frame.
+    pub(crate) frame: usize,
+    /// Reference labels present.
+    pub(crate) truth: Vec<u32>,
+    /// Result labels present.
+    pub(crate) found: Vec<u32>,
+    /// `(reference, result, pixels)` for each reference covered more than half by a result.
+    pub(crate) covered: Vec<(u32, u32, usize)>,
+}
+
+impl FrameMatching {
+    fn empty(induced_edges: bool) -> FrameMatching {
+        FrameMatching {
+            truth_of: HashMap::new(),
+            covered_twice: 0,
+            merged: BTreeSet::new(),
+            counts: MatchCounts::default(),
+            split_results: BTreeSet::new(),
+            induced_edges,
+        }
+    }
+
+    /// The matching from per-frame overlaps. A result object covering several references is
+    /// paired with the one it covers most (then the lowest label); the others count as
+    /// covered twice (splits), not as misses.
+    pub(crate) fn from_overlaps(frames: &[FrameOverlap]) -> FrameMatching {
+        let mut out = FrameMatching::empty(true);
+        for FrameOverlap {
+            frame: t,
+            truth,
+            found,
+            covered,
+        } in frames
+        {
+            let mut by_result: BTreeMap<u32, Vec<(usize, u32)>> = BTreeMap::new();
+            for &(g, r, n) in covered {
+                by_result.entry(r).or_default().push((n, g));
+            }
+            for (&r, gs) in &by_result {
+                let best = gs
+                    .iter()
+                    .max_by(|a, b| a.0.cmp(&b.0).then(b.1.cmp(&a.1)))
+                    .expect("at least one");
+                out.truth_of.insert((*t, r), (*t, best.1));
+                if gs.len() > 1 {
+                    out.split_results.insert((*t, r));
+                }
+                for &(_, g) in gs.iter().filter(|x| x.1 != best.1) {
+                    out.covered_twice += 1;
+                    out.merged.insert((*t, g));
+                }
+            }
+            let matched = by_result.len();
+            out.counts.add(MatchCounts {
+                true_positives: matched,
+                false_positives: found.len() - matched,
+                false_negatives: truth.len() - covered.len(),
+            });
+        }
+        out
+    }
+}
+
 fn match_frames(truth: &[TrackPoint], found: &[TrackPoint], radius: f64) -> FrameMatching {
     let (tf, ff) = (by_frame(truth), by_frame(found));
     let frames: BTreeSet<usize> = tf.keys().chain(ff.keys()).copied().collect();
     let empty = Vec::new();
-    let mut out = FrameMatching {
-        truth_of: HashMap::new(),
-        covered_twice: 0,
-        merged: BTreeSet::new(),
-        counts: MatchCounts::default(),
-    };
+    let mut out = FrameMatching::empty(false);
     for t in frames {
         let (tr, fo) = (tf.get(&t).unwrap_or(&empty), ff.get(&t).unwrap_or(&empty));
         let pairs = matched_pairs(&xy(tr), &xy(fo), radius);
@@ -188,7 +254,11 @@ fn aogm_counts(truth: &[TrackPoint], found: &[TrackPoint], matching: &FrameMatch
     let result = edges(found);
     let mut covered: BTreeSet<(Vertex, Vertex)> = BTreeSet::new();
     let (mut delete, mut change) = (0, 0);
+    let unique = |x: &Vertex| matching.truth_of.contains_key(x) && !matching.split_results.contains(x);
     for (&(u, v), &kind) in &result {
+        if matching.induced_edges && !(unique(&u) && unique(&v)) {
+            continue;
+        }
         let mapped = matching.truth_of.get(&u).zip(matching.truth_of.get(&v));
         match mapped.and_then(|(a, b)| reference.get(&(*a, *b)).map(|k| ((*a, *b), k))) {
             Some((edge, &ref_kind)) => {
@@ -475,6 +545,17 @@ pub struct TrackingScore {
 /// Scores `found` tracks against `truth` tracks, matching points within `radius` px.
 pub fn score_tracks(truth: &[TrackPoint], found: &[TrackPoint], radius: f64) -> TrackingScore {
     let matching = match_frames(truth, found, radius);
+    score_tracks_matched(truth, found, radius, matching)
+}
+
+/// [`score_tracks`] with the vertices already matched (e.g. by mask overlap,
+/// [`super::layout::overlap_matching`]); CLEAR-MOT and links still match within `radius`.
+pub(crate) fn score_tracks_matched(
+    truth: &[TrackPoint],
+    found: &[TrackPoint],
+    radius: f64,
+    matching: FrameMatching,
+) -> TrackingScore {
     let aogm_counts = aogm_counts(truth, found, &matching);
     let links = link_scores(truth, found, radius);
     let divisions = division_score(truth, found, &matching);

@@ -65,8 +65,9 @@ pub fn mask_labels(mask: &Frame, path: &Path) -> Result<Vec<u32>> {
 
 /// One frame segmented by its mask: the labels renumbered 1, 2, … in the raster order of
 /// each object's first pixel (as segmentation numbers its own), each object measured on
-/// `raw`. Nothing is dropped or cut: the masks are the user's.
-pub fn segment_from_mask(mask: &[u32], raw: &Image, frame: usize) -> FrameSegmentation {
+/// `raw` (without `intensities`, its intensities are left undefined, NaN, and written as empty
+/// cells). Nothing is dropped or cut: the masks are the user's.
+pub fn segment_from_mask(mask: &[u32], raw: &Image, frame: usize, intensities: bool) -> FrameSegmentation {
     let (h, w) = raw.dim();
     let mut renumber: HashMap<u32, u32> = HashMap::new();
     let mut labels = vec![0u32; mask.len()];
@@ -78,10 +79,17 @@ pub fn segment_from_mask(mask: &[u32], raw: &Image, frame: usize) -> FrameSegmen
     }
     let count = renumber.len() as u32;
     let intensity = raw.as_slice().expect("standard layout");
+    let mut detections = measure_objects(&labels, &foreground, count, intensity, w, h, frame);
+    if !intensities {
+        for d in &mut detections {
+            d.mean_intensity = f64::NAN;
+            d.total_intensity = f64::NAN;
+        }
+    }
     FrameSegmentation {
         frame,
         threshold: f64::NAN,
-        detections: measure_objects(&labels, &foreground, count, intensity, w, h, frame),
+        detections,
         labels,
         nonfinite_pixels: intensity.iter().filter(|v| !v.is_finite()).count(),
         size_filter: SizeFilterCounts::default(),
@@ -134,7 +142,7 @@ mod tests {
             mask[i] = 5;
         }
         let raw = crate::image2d::from_vec(6, 4, vec![10.0; 24]);
-        let seg = segment_from_mask(&mask, &raw, 3);
+        let seg = segment_from_mask(&mask, &raw, 3, true);
         assert_eq!(seg.labels[0], 1);
         assert_eq!(seg.labels[23], 2);
         let d = &seg.detections;

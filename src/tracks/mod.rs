@@ -84,8 +84,12 @@ fn measurement_columns(calibration: &Calibration) -> Vec<Column<Detection>> {
         Column::fixed("equivalent_diameter_px", 4, |d: &Detection| {
             Some(d.equivalent_diameter_px)
         }),
-        Column::fixed("mean_intensity", 4, |d: &Detection| Some(d.mean_intensity)),
-        Column::fixed("total_intensity", 2, |d: &Detection| Some(d.total_intensity)),
+        Column::fixed("mean_intensity", 4, |d: &Detection| {
+            Some(d.mean_intensity).filter(|v| v.is_finite())
+        }),
+        Column::fixed("total_intensity", 2, |d: &Detection| {
+            Some(d.total_intensity).filter(|v| v.is_finite())
+        }),
         Column::fixed("major_axis_px", 4, |d: &Detection| Some(d.major_axis_px)),
         Column::fixed("minor_axis_px", 4, |d: &Detection| Some(d.minor_axis_px)),
         Column::fixed("orientation_deg", 3, |d: &Detection| Some(d.orientation_deg)),
