@@ -16,7 +16,7 @@ use crate::output::{ensure_dir, write_atomic};
 use crate::stack::write::{write_stack, TiffCompression};
 use crate::stack::{OpenOptions, Pixels, Stack};
 use std::collections::{BTreeMap, HashMap};
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 /// One track of the layout: its label, first and last frame, parent label (0: none).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -218,65 +218,85 @@ mod tests {
 
 /// A folder in one of the benchmark's layouts, as [`recognise_layout`] found it.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub struct LayoutSummary {
+pub struct Layout {
     /// `result` (maskTTT.tif, res_track.txt) or `ground truth` (TRA/, optionally SEG/).
     pub kind: &'static str,
-    /// Mask files of the tracks (result masks, or TRA/man_trackTTT.tif).
-    pub frames: usize,
-    /// Lines of the track file.
-    pub tracks: usize,
+    /// `(frame, path)` of the track masks (result masks, or TRA/man_trackTTT.tif), in frame
+    /// order.
+    pub mask_files: Vec<(usize, PathBuf)>,
+    /// The track file's lines.
+    pub tracks: Vec<CtcTrack>,
     /// Frames with segmentation truth (SEG/man_segTTT.tif; ground truth only).
     pub segmentation_frames: usize,
 }
 
 /// Recognises a folder in the benchmark's result layout (`res_track.txt` beside `mask*.tif`)
 /// or ground-truth layout (`TRA/man_track.txt` beside `TRA/man_track*.tif`, and `SEG/` where
-/// present); `Ok(None)` for any other folder.
+/// present), listing its masks and reading its track file; `Ok(None)` for any other folder.
 ///
 /// # Errors
-/// A track file whose lines are not four whole numbers, naming the line.
-pub fn recognise_layout(dir: &Path) -> Result<Option<LayoutSummary>> {
-    let count = |sub: &Path, prefix: &str| -> usize {
-        std::fs::read_dir(sub).map_or(0, |entries| {
-            entries
-                .flatten()
-                .filter(|e| {
-                    let name = e.file_name().to_string_lossy().into_owned();
-                    name.starts_with(prefix) && name.ends_with(".tif")
-                })
-                .count()
-        })
-    };
-    let (kind, track_file, frames, segmentation_frames) = if dir.join("res_track.txt").is_file() {
-        ("result", dir.join("res_track.txt"), count(dir, "mask"), 0)
+/// A track file whose lines are not four whole numbers (naming the line), an unreadable
+/// folder.
+pub fn recognise_layout(dir: &Path) -> Result<Option<Layout>> {
+    let (kind, track_file, masks, prefix) = if dir.join("res_track.txt").is_file() {
+        ("result", dir.join("res_track.txt"), dir.to_path_buf(), "mask")
     } else if dir.join("TRA/man_track.txt").is_file() {
-        let seg = count(&dir.join("SEG"), "man_seg");
         (
             "ground truth",
             dir.join("TRA/man_track.txt"),
-            count(&dir.join("TRA"), "man_track"),
-            seg,
+            dir.join("TRA"),
+            "man_track",
         )
     } else {
         return Ok(None);
     };
-    let text =
-        std::fs::read_to_string(&track_file).map_err(|e| Error::input(&track_file, format!("cannot read: {e}")))?;
-    let mut tracks = 0;
-    for (k, line) in text.lines().enumerate().filter(|(_, l)| !l.trim().is_empty()) {
-        let fields: Vec<&str> = line.split_whitespace().collect();
-        if fields.len() != 4 || fields.iter().any(|f| f.parse::<u64>().is_err()) {
-            return Err(Error::input(
-                &track_file,
-                format!("line {}: expected four whole numbers L B E P", k + 1),
-            ));
-        }
-        tracks += 1;
-    }
-    Ok(Some(LayoutSummary {
+    let segmentation_frames = match kind {
+        "ground truth" if dir.join("SEG").is_dir() => numbered_masks(&dir.join("SEG"), "man_seg")?.len(),
+        _ => 0,
+    };
+    Ok(Some(Layout {
         kind,
-        frames,
-        tracks,
+        mask_files: numbered_masks(&masks, prefix)?,
+        tracks: read_track_file(&track_file)?,
         segmentation_frames,
     }))
+}
+
+/// `(frame number, path)` of the files `PREFIX<digits>.tif` in `dir`, in frame order.
+fn numbered_masks(dir: &Path, prefix: &str) -> Result<Vec<(usize, PathBuf)>> {
+    let entries = std::fs::read_dir(dir).map_err(|e| Error::input(dir, format!("cannot read: {e}")))?;
+    let mut out: Vec<(usize, PathBuf)> = entries
+        .flatten()
+        .filter_map(|e| {
+            let name = e.file_name().to_string_lossy().into_owned();
+            let digits = name.strip_prefix(prefix)?.strip_suffix(".tif")?;
+            Some((digits.parse().ok()?, e.path()))
+        })
+        .collect();
+    out.sort();
+    Ok(out)
+}
+
+/// The `L B E P` lines of a track file.
+fn read_track_file(path: &Path) -> Result<Vec<CtcTrack>> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::input(path, format!("cannot read: {e}")))?;
+    let mut out = Vec::new();
+    for (k, line) in text.lines().enumerate().filter(|(_, l)| !l.trim().is_empty()) {
+        let v: Option<Vec<u64>> = line.split_whitespace().map(|f| f.parse().ok()).collect();
+        match v.as_deref() {
+            Some(&[label, begin, end, parent]) => out.push(CtcTrack {
+                label: label as u32,
+                begin: begin as usize,
+                end: end as usize,
+                parent: parent as u32,
+            }),
+            _ => {
+                return Err(Error::input(
+                    path,
+                    format!("line {}: expected four whole numbers L B E P", k + 1),
+                ))
+            }
+        }
+    }
+    Ok(out)
 }

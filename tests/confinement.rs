@@ -114,6 +114,20 @@ fn stream_border_lane_and_factor_from_known_geometry() {
             .collect()
     };
     assert_eq!(outcomes("b"), outcomes("bm"));
+    // Removing the common drift changes the motion analysed, not where the cells are: the
+    // approaches to the border stay the same.
+    ok(caravan(&[
+        "analyze",
+        &arg(&b),
+        "-o",
+        &arg(&d.join("bd")),
+        "--border",
+        "poly:200,0;1000,0;1000,1000;200,1000",
+        "--border-zone",
+        "10",
+        "--remove-drift",
+    ]));
+    assert_eq!(outcomes("b"), outcomes("bd"));
     // Stream (construction): y = 100..138 in steps of 2, so the 5th to 95th percentile span
     // (numpy's linear rule) is 2 × (18.05 − 0.95) = 34.2 px; the front advances at the cells'
     // 2 px per frame.

@@ -3,6 +3,7 @@
 //! mask image or a polygon), with coordinates along and across the axis and the signed
 //! distance of any point to the border. Everything in analysis units.
 
+use super::table::{polygon_contains, Region};
 use crate::error::{Error, Result};
 use crate::segment::distance_transform::squared_edt;
 use crate::stack::{OpenOptions, Stack};
@@ -70,7 +71,7 @@ pub struct Border {
 
 #[derive(Debug, Clone)]
 enum BorderShape {
-    /// A polygon in analysis units.
+    /// A polygon's vertices in analysis units.
     Polygon(Vec<[f64; 2]>),
     /// Signed distances at pixel centres (analysis units), row-major, and the analysis units
     /// per pixel.
@@ -91,8 +92,8 @@ impl Border {
     /// A polygon that does not parse, a mask that cannot be read or holds no region pixel.
     pub fn parse(text: &str, scale: f64, length_per_px: f64) -> Result<Border> {
         if text.starts_with("poly:") {
-            return match super::table::Region::parse(text, scale) {
-                Ok(super::table::Region::Polygon(v)) => Ok(Border {
+            return match Region::parse(text, scale) {
+                Ok(Region::Polygon(v)) => Ok(Border {
                     source: text.to_string(),
                     shape: BorderShape::Polygon(v),
                 }),
@@ -145,23 +146,18 @@ impl Border {
     }
 }
 
-/// Distance to the nearest polygon edge, negative inside (W. R. Franklin's crossing test for
-/// inside; point-to-segment distances for the edge).
+/// Distance to the nearest polygon edge (point-to-segment distances), negative inside (the
+/// crossing test of [`polygon_contains`]).
 fn polygon_signed_distance(v: &[[f64; 2]], x: f64, y: f64) -> f64 {
-    let mut nearest = f64::INFINITY;
-    let mut inside = false;
-    let mut j = v.len() - 1;
-    for i in 0..v.len() {
-        let (a, b) = (v[j], v[i]);
-        if (b[1] > y) != (a[1] > y) && x < (a[0] - b[0]) * (y - b[1]) / (a[1] - b[1]) + b[0] {
-            inside = !inside;
-        }
-        let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
-        let t = (((x - a[0]) * dx + (y - a[1]) * dy) / (dx * dx + dy * dy).max(1e-300)).clamp(0.0, 1.0);
-        nearest = nearest.min((x - a[0] - t * dx).hypot(y - a[1] - t * dy));
-        j = i;
-    }
-    if inside {
+    let edges = v.iter().zip(v.iter().cycle().skip(1));
+    let nearest = edges
+        .map(|(a, b)| {
+            let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
+            let t = (((x - a[0]) * dx + (y - a[1]) * dy) / (dx * dx + dy * dy).max(1e-300)).clamp(0.0, 1.0);
+            (x - a[0] - t * dx).hypot(y - a[1] - t * dy)
+        })
+        .fold(f64::INFINITY, f64::min);
+    if polygon_contains(v, x, y) {
         -nearest
     } else {
         nearest

@@ -2,7 +2,7 @@
 //! and frames): duration, path, net displacement, speeds, directionality, direction, forward
 //! migration index and turning angles.
 
-use super::msd::{anomalous_exponent, pool_msd, track_msd, Path};
+use super::msd::{anomalous_exponent, pool_msd, Path, TrackMsd};
 use crate::tracks::PathPoint;
 use serde::Serialize;
 
@@ -60,7 +60,9 @@ pub struct Step {
     pub turning_deg: Option<f64>,
 }
 
-/// Per-track measures of `path` (frames ascending) with frames `frame_interval` apart. Path
+/// Per-track measures of `path` (frames ascending) with frames `frame_interval` apart; `msd`
+/// is the track's own MSD sums ([`super::msd::track_msd`], to a quarter of its span at least),
+/// for its exponent. Path
 /// length, net displacement and directionality span gaps (a chord over missing frames);
 /// the mean speed does not (see [`Motility::mean_speed`]).
 ///
@@ -71,8 +73,7 @@ pub struct Step {
 /// in chemotaxis assays). The ratio falls with track duration, so the ratio at a fixed elapsed
 /// time is the one to compare.
 pub fn motility(
-    track_id: u32,
-    path: &Path,
+    (track_id, path, msd): (u32, &Path, &TrackMsd),
     frame_interval: f64,
     axis_deg: f64,
     fixed_elapsed_frames: usize,
@@ -115,7 +116,7 @@ pub fn motility(
             .then(|| consecutive.iter().sum::<f64>() / (consecutive.len() as f64 * frame_interval)),
         gaps: gaps.len(),
         missing_frames: gaps.iter().sum(),
-        exponent: own_exponent(path, frame_interval),
+        exponent: own_exponent(msd, last.frame - first.frame, frame_interval),
         directionality_ratio: (length > 0.0).then(|| net / length),
         directionality_at_fixed_time: reaches.then(|| straightness(&early)).flatten(),
         mean_direction_deg: (net > 0.0).then(|| dy.atan2(dx).to_degrees()),
@@ -126,12 +127,14 @@ pub fn motility(
 
 /// The log-log slope of one track's time-averaged MSD over lags 1 to a quarter of its span
 /// (common practice: lags up to N/4, fixtures/methods/check_values.md §9), at least 3 lags.
-fn own_exponent(path: &Path, frame_interval: f64) -> Option<f64> {
-    let span = path[path.len() - 1].frame - path[0].frame;
+/// `sums`: the track's own MSD sums ([`super::msd::track_msd`]); lags beyond them (the
+/// population's at most 500) are not used.
+fn own_exponent(sums: &TrackMsd, span: usize, frame_interval: f64) -> Option<f64> {
     if span < 12 {
         return None;
     }
-    let points = pool_msd(&[track_msd(path, span / 4)], None, frame_interval);
+    let lags = (span / 4).min(sums.len());
+    let points = pool_msd(&[sums[..lags].to_vec()], None, frame_interval);
     anomalous_exponent(&points)
 }
 
@@ -139,7 +142,8 @@ fn path_length(path: &Path) -> f64 {
     path.windows(2).map(|w| (w[1].x - w[0].x).hypot(w[1].y - w[0].y)).sum()
 }
 
-fn straightness(path: &Path) -> Option<f64> {
+/// Net displacement over path length (`None` for a path of length 0).
+pub(super) fn straightness(path: &Path) -> Option<f64> {
     let length = path_length(path);
     let (a, b) = (path[0], path[path.len() - 1]);
     (length > 0.0).then(|| (b.x - a.x).hypot(b.y - a.y) / length)
@@ -182,6 +186,10 @@ fn wrap_degrees(a: f64) -> f64 {
 mod tests {
     use super::*;
 
+    fn sums(path: &Path) -> TrackMsd {
+        super::super::msd::track_msd(path, path.len())
+    }
+
     #[test]
     fn methods_worked_track() {
         // Source: fixtures/methods/check_values.md §9 worked track (µm), Δt = 2 min: path 6.414214, net 5.385165,
@@ -192,12 +200,12 @@ mod tests {
             .enumerate()
             .map(|(i, p)| PathPoint::new(i, p.0, p.1))
             .collect();
-        let m = motility(1, &t, 2.0, 0.0, 3);
+        let m = motility((1, &t, &sums(&t)), 2.0, 0.0, 3);
         assert!((m.path_length - 6.414214).abs() < 1e-6 && (m.net_displacement - 5.385165).abs() < 1e-6);
         assert!((m.directionality_ratio.unwrap() - 0.839567).abs() < 1e-6);
         assert!((m.mean_speed.unwrap() - 0.641421).abs() < 1e-6);
         assert!((m.forward_migration_index.unwrap() - 0.779519).abs() < 1e-6);
-        let y = motility(1, &t, 2.0, 90.0, 3);
+        let y = motility((1, &t, &sums(&t)), 2.0, 90.0, 3);
         assert!((y.forward_migration_index.unwrap() - 0.311808).abs() < 1e-6);
         let turns: Vec<f64> = steps(1, &t, 2.0).iter().filter_map(|s| s.turning_deg).collect();
         let want = [45.0, 45.0, -90.0, 0.0];
@@ -223,7 +231,10 @@ mod tests {
         assert_eq!(headings, [Some(0.0), None, Some(90.0), Some(90.0)]);
         let turns: Vec<Option<f64>> = s.iter().map(|s| s.turning_deg).collect();
         assert_eq!(turns, [None, None, None, Some(0.0)]);
-        assert_eq!(motility(1, &t, 1.0, 0.0, 3).mean_abs_turning_deg, Some(0.0));
+        assert_eq!(
+            motility((1, &t, &sums(&t)), 1.0, 0.0, 3).mean_abs_turning_deg,
+            Some(0.0)
+        );
     }
 
     #[test]
@@ -236,7 +247,7 @@ mod tests {
             .filter(|&i| i != 3)
             .map(|i| PathPoint::new(i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 }))
             .collect();
-        let m = motility(1, &z, 1.0, 0.0, 4);
+        let m = motility((1, &z, &sums(&z)), 1.0, 0.0, 4);
         assert!((m.mean_speed.unwrap() - 2f64.sqrt()).abs() < 1e-12, "{m:?}");
         assert_eq!((m.gaps, m.missing_frames), (1, 1));
         assert!((m.path_length / m.duration - (6.0 * 2f64.sqrt() + 2.0) / 8.0).abs() < 1e-12);
@@ -250,13 +261,22 @@ mod tests {
             .map(|i| PathPoint::new(i, i as f64, if i % 2 == 0 { 0.5 } else { -0.5 }))
             .collect();
         assert!(
-            (motility(1, &z, 1.0, 0.0, 4).directionality_ratio.unwrap() - std::f64::consts::FRAC_1_SQRT_2).abs() < 1e-6
+            (motility((1, &z, &sums(&z)), 1.0, 0.0, 4).directionality_ratio.unwrap() - std::f64::consts::FRAC_1_SQRT_2)
+                .abs()
+                < 1e-6
         );
         let every2: Vec<PathPoint> = z
             .iter()
             .step_by(2)
             .map(|p| PathPoint::new(p.frame / 2, p.x, p.y))
             .collect();
-        assert!((motility(1, &every2, 2.0, 0.0, 2).directionality_ratio.unwrap() - 1.0).abs() < 1e-12);
+        assert!(
+            (motility((1, &every2, &sums(&every2)), 2.0, 0.0, 2)
+                .directionality_ratio
+                .unwrap()
+                - 1.0)
+                .abs()
+                < 1e-12
+        );
     }
 }

@@ -158,6 +158,9 @@ pub fn analyze_tracks_among(
     options: &AnalysisOptions,
 ) -> Analysis {
     let dt = units.time_per_frame;
+    // Positions against a lane or border stay as recorded: the drift is removed from motion,
+    // not from where the cells are.
+    let recorded = tracks;
     let corrected;
     let tracks = if options.remove_drift {
         corrected = remove_common_drift(tracks);
@@ -165,20 +168,21 @@ pub fn analyze_tracks_among(
     } else {
         tracks
     };
-    let motility_rows: Vec<Motility> = tracks
+    let spans: Vec<usize> = tracks
         .iter()
-        .map(|t| motility(t.id, &t.path, dt, options.axis_deg, options.fixed_elapsed_frames))
+        .map(|t| t.path[t.path.len() - 1].frame - t.path[0].frame)
         .collect();
+    let longest = spans.iter().copied().max().unwrap_or(0);
     let step_rows: Vec<Step> = tracks.iter().flat_map(|t| steps(t.id, &t.path, dt)).collect();
-    let mut spans: Vec<f64> = tracks
-        .iter()
-        .map(|t| (t.path[t.path.len() - 1].frame - t.path[0].frame) as f64)
-        .collect();
-    let longest = spans.iter().copied().fold(0.0, f64::max) as usize;
-    let median_span = median(&mut spans).unwrap_or(0.0);
+    let median_span = median(&mut spans.iter().map(|&s| s as f64).collect::<Vec<f64>>()).unwrap_or(0.0);
     let fit_lags = options.fit_lags.unwrap_or((1, ((median_span / 4.0) as usize).max(3)));
     let max_lag = (longest / 2).max(fit_lags.1).min(500);
     let per_track_msd: Vec<TrackMsd> = tracks.iter().map(|t| track_msd(&t.path, max_lag)).collect();
+    let motility_rows: Vec<Motility> = tracks
+        .iter()
+        .zip(&per_track_msd)
+        .map(|(t, msd)| motility((t.id, &t.path, msd), dt, options.axis_deg, options.fixed_elapsed_frames))
+        .collect();
     let per_track_acf: Vec<TrackAutocorrelation> = tracks
         .iter()
         .map(|t| track_autocorrelation(&t.path, longest.clamp(1, 20), dt))
@@ -221,7 +225,7 @@ pub fn analyze_tracks_among(
     let few = options.resamples.min(STREAM_RESAMPLES);
     let stream = (c.stream || c.lane.is_some()).then(|| stream_geometry(everyone, axes, dt, few, RESAMPLE_SEED));
     let border = c.border.as_ref().and_then(|b| match c.border_zone {
-        Some(zone) => Some(border_response(tracks, b, zone, dt, (few, RESAMPLE_SEED))),
+        Some(zone) => Some(border_response(recorded, b, zone, dt, (few, RESAMPLE_SEED))),
         None => {
             warnings.push(
                 "no border response: the distance that counts as near the border is unknown (give --border-zone)"
@@ -249,7 +253,7 @@ pub fn analyze_tracks_among(
         warnings,
         stream,
         border,
-        profiles: c.lane.map(|l| lane_profiles(tracks, l, axes, dt)).unwrap_or_default(),
+        profiles: c.lane.map(|l| lane_profiles(recorded, l, axes, dt)).unwrap_or_default(),
     }
 }
 

@@ -3,6 +3,7 @@
 
 use super::collective::order_parameter;
 use super::geometry::{Axes, Lane};
+use super::motility::straightness;
 use super::table::Track;
 use serde::Serialize;
 use std::collections::BTreeMap;
@@ -91,14 +92,7 @@ fn track_position(t: &Track, axes: Axes) -> (f64, f64, Option<f64>) {
         .iter()
         .map(|p| axes.project(p.x, p.y))
         .fold((0.0, 0.0), |s, v| (s.0 + v.0, s.1 + v.1));
-    let path: f64 = t
-        .path
-        .windows(2)
-        .map(|w| (w[1].x - w[0].x).hypot(w[1].y - w[0].y))
-        .sum();
-    let (f, l) = (t.path[0], t.path[t.path.len() - 1]);
-    let net = (l.x - f.x).hypot(l.y - f.y);
-    (a / n, c / n, (path > 0.0).then(|| net / path))
+    (a / n, c / n, straightness(&t.path))
 }
 
 fn profile(

@@ -319,20 +319,23 @@ impl Region {
             Region::Rectangle([x0, y0, x1, y1]) => {
                 x >= x0.min(*x1) && x <= x0.max(*x1) && y >= y0.min(*y1) && y <= y0.max(*y1)
             }
-            Region::Polygon(v) => {
-                let mut inside = false;
-                let mut j = v.len() - 1;
-                for i in 0..v.len() {
-                    let (a, b) = (v[i], v[j]);
-                    if (a[1] > y) != (b[1] > y) && x < (b[0] - a[0]) * (y - a[1]) / (b[1] - a[1]) + a[0] {
-                        inside = !inside;
-                    }
-                    j = i;
-                }
-                inside
-            }
+            Region::Polygon(v) => polygon_contains(v, x, y),
         }
     }
+}
+
+/// Whether a point lies inside a simple polygon (W. R. Franklin's crossing test).
+pub fn polygon_contains(v: &[[f64; 2]], x: f64, y: f64) -> bool {
+    let mut inside = false;
+    let mut j = v.len() - 1;
+    for i in 0..v.len() {
+        let (a, b) = (v[i], v[j]);
+        if (a[1] > y) != (b[1] > y) && x < (b[0] - a[0]) * (y - a[1]) / (b[1] - a[1]) + a[0] {
+            inside = !inside;
+        }
+        j = i;
+    }
+    inside
 }
 
 /// Which tracks and points to analyse.

@@ -19,7 +19,11 @@ pub fn run(args: InspectArgs) -> Result<()> {
         if let Some(l) = caravan::export::recognise_layout(path)? {
             println!("folder       {}", path.display());
             println!("layout       Cell Tracking Challenge, {} (Maška et al. 2014)", l.kind);
-            println!("frames       {} track masks, {} tracks", l.frames, l.tracks);
+            println!(
+                "frames       {} track masks, {} tracks",
+                l.mask_files.len(),
+                l.tracks.len()
+            );
             if l.segmentation_frames > 0 {
                 println!("segmentation {} frames", l.segmentation_frames);
             }

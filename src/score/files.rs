@@ -112,16 +112,16 @@ pub fn score_files(
 /// Scoring when the truth is a folder in the ground-truth layout and the tracks a folder in
 /// the result layout (see [`super::layout`]); `None` otherwise.
 fn score_both_layouts(truth: &Path, tracks: &Path, radius: Option<f64>) -> Result<Option<(ScoreSetup, TrackingScore)>> {
-    let is = |p: &Path, kind: &str| -> Result<bool> {
-        Ok(p.is_dir() && crate::export::recognise_layout(p)?.is_some_and(|l| l.kind == kind))
+    let layout = |p: &Path, kind: &str| -> Result<Option<crate::export::Layout>> {
+        if !p.is_dir() {
+            return Ok(None);
+        }
+        Ok(crate::export::recognise_layout(p)?.filter(|l| l.kind == kind))
     };
-    if !(is(truth, "ground truth")? && is(tracks, "result")?) {
+    let (Some(t), Some(r)) = (layout(truth, "ground truth")?, layout(tracks, "result")?) else {
         return Ok(None);
-    }
-    let read = |p: &Path| -> Result<super::layout::Sequence> {
-        super::layout::read_sequence(p)?.ok_or_else(|| Error::input(p, "is in neither of the benchmark's layouts"))
     };
-    let (reference, result) = (read(truth)?, read(tracks)?);
+    let (reference, result) = (super::layout::read_sequence(&t)?, super::layout::read_sequence(&r)?);
     let (radius_px, score) = super::layout::score_layouts(&reference, &result, radius);
     let setup = ScoreSetup {
         truth_csv: truth.join("TRA/man_track.txt"),

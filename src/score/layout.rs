@@ -11,11 +11,11 @@
 
 use super::tracking::{score_tracks_matched, FrameMatching, FrameOverlap, TrackingScore};
 use crate::error::{Error, Result};
-use crate::export::recognise_layout;
-use crate::stack::{OpenOptions, Pixels, Stack};
+use crate::export::Layout;
+use crate::segment::masks::{equivalent_diameters, mask_labels};
+use crate::stack::{OpenOptions, Stack};
 use crate::tracks::TrackPoint;
 use std::collections::{BTreeMap, HashMap};
-use std::path::{Path, PathBuf};
 
 /// A sequence read from one of the layouts: its label images and its points (one per label
 /// and frame, at the object's centroid, carrying the track file's parent on its first frame).
@@ -29,78 +29,32 @@ pub struct Sequence {
     pub points: Vec<TrackPoint>,
 }
 
-/// Reads a folder in the result layout or the ground-truth layout (`None` for any other).
+/// Reads the masks of a folder [`crate::export::recognise_layout`] found, in frame order.
 ///
 /// # Errors
-/// Unreadable masks or track file, masks of different sizes.
-pub fn read_sequence(dir: &Path) -> Result<Option<Sequence>> {
-    let Some(summary) = recognise_layout(dir)? else {
-        return Ok(None);
-    };
-    let (folder, prefix, track_file) = match summary.kind {
-        "result" => (dir.to_path_buf(), "mask", dir.join("res_track.txt")),
-        _ => (dir.join("TRA"), "man_track", dir.join("TRA/man_track.txt")),
-    };
-    let files = numbered_masks(&folder, prefix)?;
-    let mut masks = Vec::with_capacity(files.len());
+/// Unreadable masks, a frame missing, masks of different sizes.
+pub fn read_sequence(layout: &Layout) -> Result<Sequence> {
+    let mut masks = Vec::with_capacity(layout.mask_files.len());
     let mut size = None;
-    for (t, path) in &files {
+    for (t, path) in &layout.mask_files {
         if *t != masks.len() {
             return Err(Error::input(
                 path,
                 format!("frame {} is missing before it", masks.len()),
             ));
         }
-        let mut stack = Stack::open(path, &OpenOptions::default())?;
-        let frame = stack.read_frame(0)?;
+        let frame = Stack::open(path, &OpenOptions::default())?.read_frame(0)?;
         let dims = (frame.width, frame.height);
         if size.is_some_and(|s| s != dims) {
             return Err(Error::input(path, "masks of one sequence differ in size"));
         }
         size = Some(dims);
-        masks.push(match frame.pixels {
-            Pixels::U8(v) => v.into_iter().map(u32::from).collect(),
-            Pixels::U16(v) => v.into_iter().map(u32::from).collect(),
-            Pixels::U32(v) => v,
-            Pixels::F32(_) => return Err(Error::input(path, "a label mask must hold integers")),
-        });
+        masks.push(mask_labels(&frame, path)?);
     }
-    let parents = read_parents(&track_file)?;
+    let parents: HashMap<u32, (usize, u32)> = layout.tracks.iter().map(|c| (c.label, (c.begin, c.parent))).collect();
     let size = size.unwrap_or((0, 0));
     let points = centroids(&masks, size.0, &parents);
-    Ok(Some(Sequence { masks, size, points }))
-}
-
-/// `(frame number, path)` of the files `PREFIX<digits>.tif` in `dir`, in frame order.
-fn numbered_masks(dir: &Path, prefix: &str) -> Result<Vec<(usize, PathBuf)>> {
-    let entries = std::fs::read_dir(dir).map_err(|e| Error::input(dir, format!("cannot read: {e}")))?;
-    let mut out: Vec<(usize, PathBuf)> = entries
-        .flatten()
-        .filter_map(|e| {
-            let name = e.file_name().to_string_lossy().into_owned();
-            let digits = name.strip_prefix(prefix)?.strip_suffix(".tif")?;
-            Some((digits.parse().ok()?, e.path()))
-        })
-        .collect();
-    out.sort();
-    Ok(out)
-}
-
-/// Label → (first frame, parent label) from a track file of `L B E P` lines.
-fn read_parents(path: &Path) -> Result<HashMap<u32, (usize, u32)>> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::input(path, format!("cannot read: {e}")))?;
-    let mut out = HashMap::new();
-    for (k, line) in text.lines().enumerate().filter(|(_, l)| !l.trim().is_empty()) {
-        let v: Vec<u64> = line.split_whitespace().filter_map(|f| f.parse().ok()).collect();
-        let [l, b, _, p] = v[..] else {
-            return Err(Error::input(
-                path,
-                format!("line {}: expected four whole numbers L B E P", k + 1),
-            ));
-        };
-        out.insert(l as u32, (b as usize, p as u32));
-    }
-    Ok(out)
+    Ok(Sequence { masks, size, points })
 }
 
 /// One point per label and frame at the object's centroid (x = column, y = row).
@@ -188,19 +142,7 @@ pub fn score_layouts(truth: &Sequence, found: &Sequence, radius: Option<f64>) ->
 
 /// Half the median equivalent diameter of the reference objects (at least 1 px).
 fn half_diameter(s: &Sequence) -> f64 {
-    let mut diameters: Vec<f64> = s
-        .masks
-        .iter()
-        .flat_map(|m| {
-            let mut area: HashMap<u32, usize> = HashMap::new();
-            for &l in m.iter().filter(|&&l| l != 0) {
-                *area.entry(l).or_default() += 1;
-            }
-            area.into_values()
-                .map(|a| 2.0 * (a as f64 / std::f64::consts::PI).sqrt())
-                .collect::<Vec<_>>()
-        })
-        .collect();
+    let mut diameters: Vec<f64> = s.masks.iter().flat_map(|m| equivalent_diameters(m)).collect();
     (crate::numeric::median(&mut diameters).unwrap_or(2.0) / 2.0).max(1.0)
 }
 

@@ -97,6 +97,20 @@ pub fn segment_from_mask(mask: &[u32], raw: &Image, frame: usize, intensities: b
     }
 }
 
+/// The equivalent diameter (of the disc of the same area) of every object of a label image.
+pub fn equivalent_diameters(labels: &[u32]) -> Vec<f64> {
+    let mut areas: HashMap<u32, usize> = HashMap::new();
+    for &l in labels.iter().filter(|&&l| l != 0) {
+        *areas.entry(l).or_default() += 1;
+    }
+    let mut sorted: Vec<(u32, usize)> = areas.into_iter().collect();
+    sorted.sort_unstable();
+    sorted
+        .into_iter()
+        .map(|(_, a)| 2.0 * (a as f64 / std::f64::consts::PI).sqrt())
+        .collect()
+}
+
 /// The nucleus diameter of the masks: the median equivalent diameter of the objects of up to
 /// ten frames spread over the recording, with the number of objects measured.
 ///
@@ -110,12 +124,7 @@ pub fn diameter_from_masks(masks: &mut Stack) -> Result<(f64, usize)> {
     let mut diameters = Vec::new();
     for t in picks {
         let frame = masks.read_frame(t)?;
-        let labels = mask_labels(&frame, &info.path)?;
-        let mut areas: HashMap<u32, usize> = HashMap::new();
-        for &l in labels.iter().filter(|&&l| l != 0) {
-            *areas.entry(l).or_default() += 1;
-        }
-        diameters.extend(areas.values().map(|&a| 2.0 * (a as f64 / std::f64::consts::PI).sqrt()));
+        diameters.extend(equivalent_diameters(&mask_labels(&frame, &info.path)?));
     }
     let n = diameters.len();
     crate::numeric::median(&mut diameters).map(|d| (d, n)).ok_or_else(|| {

@@ -34,14 +34,20 @@ r, m = setup["match_radius_px"], setup["border_margin_px"]
 W, H = setup["frame_size"]
 
 
-def points(path):
-    out = defaultdict(list)
+def tracked_points(path):
+    out = defaultdict(list)  # frame -> [(track_id, parent_id, x, y)]
     with open(path, newline="") as f:
         for row in csv.DictReader(f):
             x, y = float(row["x"]), float(row["y"])
             if m <= x <= W - 1 - m and m <= y <= H - 1 - m:
-                out[int(row["frame"])].append((x, y))
+                parent = int(row["parent_id"]) if row["parent_id"] else None
+                out[int(row["frame"])].append((int(row["track_id"]), parent, x, y))
     return out
+
+
+
+def points(path):
+    return {t: [(x, y) for _, _, x, y in v] for t, v in tracked_points(path).items()}
 
 
 truth, found = points(f"{syn}/truth.csv"), points(f"{run}/tracks.csv")
@@ -74,17 +80,6 @@ assert abs((1 - min(aogmd, 10 * c["reference_vertices"]) / (10 * c["reference_ve
 mot = s["clear_mot"]
 errors = mot["false_negatives"] + mot["false_positives"] + mot["identity_switches"]
 assert abs(1 - errors / mot["reference_points"] - mot["mota"]) < 1e-9
-
-def tracked_points(path):
-    out = defaultdict(list)  # frame -> [(track_id, parent_id, x, y)]
-    with open(path, newline="") as f:
-        for row in csv.DictReader(f):
-            x, y = float(row["x"]), float(row["y"])
-            if m <= x <= W - 1 - m and m <= y <= H - 1 - m:
-                parent = int(row["parent_id"]) if row["parent_id"] else None
-                out[int(row["frame"])].append((int(row["track_id"]), parent, x, y))
-    return out
-
 
 tp_pts, fp_pts = tracked_points(f"{syn}/truth.csv"), tracked_points(f"{run}/tracks.csv")
 found_of, merged = {}, set()
@@ -231,23 +226,13 @@ print(f"score checked: {tp} matches, TRA {s['tra']:.4f}; {len(events)} divisions
 import motmetrics as mm
 
 
-def ided(path):
-    out = defaultdict(list)
-    with open(path, newline="") as f:
-        for row in csv.DictReader(f):
-            x, y = float(row["x"]), float(row["y"])
-            if m <= x <= W - 1 - m and m <= y <= H - 1 - m:
-                out[int(row["frame"])].append((int(row["track_id"]), x, y))
-    return out
-
-
 acc = mm.MOTAccumulator(auto_id=False)
-gt, hyp = ided(f"{syn}/truth.csv"), ided(f"{run}/tracks.csv")
+gt, hyp = tp_pts, fp_pts
 for t in sorted(set(gt) | set(hyp)):
     a, b = gt.get(t, []), hyp.get(t, [])
     d = np.full((len(a), len(b)), np.nan)
-    for i, (_, x, y) in enumerate(a):
-        for j, (_, u, v) in enumerate(b):
+    for i, (_, _, x, y) in enumerate(a):
+        for j, (_, _, u, v) in enumerate(b):
             dist = np.hypot(x - u, y - v)
             if dist <= r:
                 d[i, j] = dist
