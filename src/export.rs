@@ -152,34 +152,13 @@ pub fn export_ctc(run: &Path, out: &Path) -> Result<usize> {
     Ok(tracks.len())
 }
 
-/// `(track_id, parent_id, frame, object)` of every row of a run's `tracks.csv`.
+/// `(track_id, parent_id, frame, object)` of every row of a run's `tracks.csv` (read as the
+/// review page reads it).
 fn read_tracked_objects(path: &Path) -> Result<Vec<TrackedObject>> {
-    let bad = |e: String| Error::input(path, e);
-    let mut reader = csv::Reader::from_path(path).map_err(|e| bad(e.to_string()))?;
-    let header = reader.headers().map_err(|e| bad(e.to_string()))?.clone();
-    let col = |name: &str| {
-        header
-            .iter()
-            .position(|h| h == name)
-            .ok_or_else(|| bad(format!("has no column {name}")))
-    };
-    let (ti, pi, fi, oi) = (col("track_id")?, col("parent_id")?, col("frame")?, col("object")?);
-    let mut out = Vec::new();
-    for (k, row) in reader.records().enumerate() {
-        let row = row.map_err(|e| bad(format!("line {}: {e}", k + 2)))?;
-        let num = |i: usize| -> Result<u64> {
-            row.get(i)
-                .unwrap_or_default()
-                .parse::<u64>()
-                .map_err(|_| bad(format!("line {}: not a whole number in column {}", k + 2, &header[i])))
-        };
-        let parent = match row.get(pi).unwrap_or_default() {
-            "" => None,
-            _ => Some(num(pi)? as u32),
-        };
-        out.push((num(ti)? as u32, parent, num(fi)? as usize, num(oi)? as u32));
-    }
-    Ok(out)
+    Ok(crate::review::read_linked_points(path)?
+        .into_iter()
+        .map(|p| (p.track, p.parent, p.point.frame, p.object))
+        .collect())
 }
 
 #[cfg(test)]

@@ -117,6 +117,10 @@ impl Staging {
             let from = self.work.join(name);
             if from.exists() {
                 let to = self.dir.join(name);
+                if from.is_dir() && to.is_dir() {
+                    // A folder is replaced whole (a rename cannot replace a non-empty one).
+                    std::fs::remove_dir_all(&to).map_err(|e| Error::output(&to, e))?;
+                }
                 std::fs::rename(&from, &to).map_err(|e| Error::output(&to, e))?;
             }
         }

@@ -252,6 +252,30 @@ pub struct MovieOptions {
     pub every: usize,
     /// Frames in the contact sheet.
     pub sheet_frames: usize,
+    /// At most this many frames in the movie (0: no cap): longer recordings are sampled evenly,
+    /// so that the movie stays a portable summary (the review page shows every frame).
+    #[serde(default = "default_movie_frames")]
+    pub max_frames: usize,
+}
+
+/// Frames a movie holds at most by default: at 512 px a side, ~12 MB of GIF.
+pub const DEFAULT_MOVIE_FRAMES: usize = 120;
+
+fn default_movie_frames() -> usize {
+    DEFAULT_MOVIE_FRAMES
+}
+
+impl MovieOptions {
+    /// The step between movie frames for a recording of `frames`: `every`, or more where the
+    /// cap asks for it.
+    pub fn step(&self, frames: usize) -> usize {
+        let capped = if self.max_frames == 0 {
+            1
+        } else {
+            frames.div_ceil(self.max_frames)
+        };
+        self.every.max(capped).max(1)
+    }
 }
 
 impl Default for MovieOptions {
@@ -260,13 +284,43 @@ impl Default for MovieOptions {
             max_side_px: 512,
             every: 1,
             sheet_frames: 12,
+            max_frames: DEFAULT_MOVIE_FRAMES,
         }
+    }
+}
+
+/// Options of the review page (`review/`, see `render::review`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct ReviewOptions {
+    /// Longest side of the display frames, px (larger recordings are downscaled by an integer
+    /// factor; full resolution is kept for some frames).
+    pub display_side_px: usize,
+}
+
+impl Default for ReviewOptions {
+    fn default() -> Self {
+        ReviewOptions { display_side_px: 512 }
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_movie_is_capped_by_sampling_frames() {
+        // 400 frames under the default cap of 120: every 4th frame, 100 in the movie.
+        let movie = MovieOptions::default();
+        assert_eq!(movie.step(400), 4);
+        assert_eq!(400usize.div_ceil(movie.step(400)), 100);
+        assert_eq!(movie.step(100), 1);
+        let uncapped = MovieOptions {
+            max_frames: 0,
+            every: 3,
+            ..movie
+        };
+        assert_eq!(uncapped.step(5000), 3);
+    }
 
     #[test]
     fn lengths_and_times_parse_with_units() {

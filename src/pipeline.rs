@@ -18,6 +18,8 @@ use crate::qc::{count_jumps, linking_qc, warnings_for, RunWarning};
 pub use crate::record::{DiameterSource, FrameSummary, LinkingQc};
 use crate::record::{RunCounts, RunInput, RunParameters, RunRecord, Timings, RESEARCH_USE};
 use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
+use crate::render::review::{ReviewOptions, ReviewOutputs, ReviewWriter};
+use crate::review::{offer_all_frames, read_linked_points, review_input, RunView};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
 use crate::segment::diameter::{central_crop, combine, examine_frame, sample_frames, Confidence, ESTIMATE_CROP_PX};
 use crate::segment::masks::open_masks;
@@ -92,6 +94,8 @@ pub struct RunOutcome {
     pub resolution: Option<TrackResolution>,
     /// The QC movie, when rendered.
     pub movie: Option<MovieOutputs>,
+    /// The review page, when written.
+    pub review: Option<ReviewOutputs>,
     /// Warnings for the user (their messages are in run.json).
     pub warnings: Vec<RunWarning>,
     /// Whether the run can be trusted, with the reasons.
@@ -114,6 +118,8 @@ pub struct RunOptions {
     pub linking: Option<LinkOptions>,
     /// With linking: render the QC movie and contact sheet.
     pub movie: Option<MovieOptions>,
+    /// With linking: write the review page (`review/`).
+    pub review: Option<ReviewOptions>,
     /// Replace the outputs of an earlier run in the same folder (otherwise refused).
     pub replace: bool,
     /// Keep a checkpoint every this many frames (not with `labels`).
@@ -265,15 +271,6 @@ pub(crate) fn finish_run(
         }
         None => (Vec::new(), None, None, None),
     };
-    let movie_started = Instant::now();
-    let movie = match (spool, outputs.movie) {
-        (Some(s), Some(options)) => {
-            let divisions = resolution.as_ref().map(|r| r.divisions.as_slice()).unwrap_or_default();
-            let overlay = overlay(&tracked, &frames, divisions);
-            Some(render_movie(stack, s, &overlay, &options, dir)?)
-        }
-        _ => None,
-    };
     let warnings = warnings_for(&frames, &info);
     let figures = run_figures(
         &frames,
@@ -285,6 +282,41 @@ pub(crate) fn finish_run(
         linking_qc.as_ref(),
     );
     let verdict = judge(&figures);
+    let movie_started = Instant::now();
+    let mut review = match (outputs.review, linking.is_some()) {
+        (Some(options), true) => {
+            // From tracks.csv as written, so that `caravan review` on the folder gives the
+            // same page byte for byte.
+            let points = read_linked_points(&dir.join("tracks.csv"))?;
+            let view = RunView {
+                info: &info,
+                per_frame: &frames,
+                count_jumps: &figures.count_jumps,
+                verdict: Some(&verdict),
+                diameter_px: diameter.px(),
+            };
+            Some(ReviewWriter::new(
+                &dir.join("review"),
+                review_input(&points, &view),
+                &options,
+            )?)
+        }
+        _ => None,
+    };
+    let movie = match (spool, outputs.movie) {
+        (Some(s), Some(options)) => {
+            let divisions = resolution.as_ref().map(|r| r.divisions.as_slice()).unwrap_or_default();
+            let overlay = overlay(&tracked, &frames, divisions);
+            Some(render_movie(stack, s, &overlay, &options, dir, review.as_mut())?)
+        }
+        _ => {
+            if let Some(r) = review.as_mut() {
+                offer_all_frames(stack, r)?;
+            }
+            None
+        }
+    };
+    let review = review.map(ReviewWriter::finish).transpose()?;
     let run = RunOutcome {
         dir: dir.to_path_buf(),
         diameter: diameter.clone(),
@@ -293,6 +325,7 @@ pub(crate) fn finish_run(
         linking_qc,
         resolution,
         movie,
+        review,
         warnings,
         verdict,
     };
@@ -312,6 +345,7 @@ pub(crate) fn finish_run(
             segment: params.clone(),
             link: linking,
             movie: outputs.movie,
+            review: outputs.review.filter(|_| run.review.is_some()),
         },
         counts: RunCounts {
             frames: run.frames.len(),
@@ -397,6 +431,7 @@ impl RunOptions {
             "labels.tif" => self.labels,
             "tracks.csv" | "per_track.csv" => linked,
             "qc_movie.gif" | "qc_sheet.png" => linked && self.movie.is_some(),
+            "review" => linked && self.review.is_some(),
             _ => true,
         }
     }
@@ -514,6 +549,7 @@ fn start_checkpoint(
         segment: params.clone(),
         link: outputs.linking,
         movie: outputs.movie,
+        review: outputs.review,
     };
     let fingerprint = Fingerprint::of(stack, serde_json::to_value(&parameters).expect("plain data"))?;
     if outputs.resume {

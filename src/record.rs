@@ -7,8 +7,8 @@
 use crate::error::{Error, Result};
 use crate::link::divide::DivisionEvent;
 use crate::link::ResolvedLinking;
-use crate::params::MovieOptions;
 use crate::params::SegmentParams;
+use crate::params::{MovieOptions, ReviewOptions};
 use crate::segment::diameter::DiameterEstimate;
 use crate::stack::StackInfo;
 use crate::verdict::RunVerdict;
@@ -85,6 +85,9 @@ pub struct RunParameters<L> {
     pub link: Option<L>,
     /// The QC movie (absent without one).
     pub movie: Option<MovieOptions>,
+    /// The review page (absent without one, and in records of versions before it).
+    #[serde(default)]
+    pub review: Option<ReviewOptions>,
 }
 
 /// The parameters a shard of segmentation depends on (its fingerprint's block): the
@@ -113,7 +116,7 @@ pub struct RunCounts {
 pub struct Timings {
     /// Reading, segmenting and linking.
     pub read_segment_link: f64,
-    /// The QC movie.
+    /// The QC movie and the review page (one pass over the frames).
     pub movie: f64,
     /// The whole run.
     pub total: f64,

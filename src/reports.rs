@@ -2,10 +2,7 @@
 //! [`crate::analyze`], then the pages from [`crate::render::report`]. It sits above both, so
 //! neither imports the other's writer (statistics never call drawing code).
 
-use crate::analyze::compare::{
-    comparison_header, comparison_rows, condition_curve, replicate_means, write_comparison_tables, Comparison,
-    RecordingCurves,
-};
+use crate::analyze::compare::{condition_curve, replicate_means, write_comparison_tables, Comparison, RecordingCurves};
 use crate::analyze::models::ModelFit;
 use crate::analyze::population::Analysis;
 use crate::analyze::population::AnalysisOptions;
@@ -17,6 +14,8 @@ use crate::error::Result;
 use crate::output::write_atomic;
 use crate::render::plots::{Series, Strip};
 use crate::render::report::{analysis_report, comparison_report, AnalysisPage, ChartSpec, ComparedStatistic};
+use crate::render::report::{readable, unit_name};
+use crate::report_text::model_name;
 use std::path::Path;
 
 /// Every file an analysis folder holds: the tables, `summary.json` and `report.html`.
@@ -44,11 +43,31 @@ pub fn run_analysis(
     dir: &Path,
 ) -> Result<AnalysisRun> {
     let run = write_analysis_tables(input, calibration, filters, options, dir)?;
-    write_atomic(
-        &dir.join("report.html"),
-        analysis_report(&analysis_page(&run)).as_bytes(),
-    )?;
+    let mut page = analysis_page(&run);
+    page.parameters = crate::report_text::analysis_parameters(&run.analysis, filters);
+    if let (Some(record), Some(run_dir)) = (&run.table.run_record, run.table.source.parent()) {
+        page.tracking_parameters = crate::report_text::tracking_parameters(record);
+        page.flagged = crate::report_text::flagged_frames(run_dir, record);
+        if run_dir.join("review").join("index.html").exists() {
+            page.review_page = Some(relative_review_link(dir, run_dir));
+        }
+    }
+    write_atomic(&dir.join("report.html"), analysis_report(&page).as_bytes())?;
     Ok(run)
+}
+
+/// The review page's address from the report's folder: `../review/index.html` for the usual
+/// `RUN/analysis/`, else the page's full path.
+fn relative_review_link(report_dir: &Path, run_dir: &Path) -> String {
+    let page = run_dir.join("review").join("index.html");
+    let same = |a: &Path, b: &Path| match (a.canonicalize(), b.canonicalize()) {
+        (Ok(a), Ok(b)) => a == b,
+        _ => false,
+    };
+    match report_dir.parent() {
+        Some(parent) if same(parent, run_dir) => "../review/index.html".into(),
+        _ => page.canonicalize().unwrap_or(page).to_string_lossy().into_owned(),
+    }
 }
 
 /// What the analysis page shows, taken from the analysis.
@@ -67,12 +86,13 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
             .map(|k| lo * dt * (hi / lo).powf(k as f64 / 40.0))
             .map(|lag| (lag, f.parameters.msd_at(lag)))
             .collect();
-        (format!("{} (chosen)", f.model.name()), fit)
+        (format!("{} (chosen)", model_name(&f.model.name())), fit)
     });
     let band = |points: &mut dyn Iterator<Item = (f64, Option<Interval>)>| -> Vec<(f64, f64, f64)> {
         points.filter_map(|(x, i)| i.map(|i| (x, i.low, i.high))).collect()
     };
     AnalysisPage {
+        title: crate::report_text::source_title(&run.table.source, run.table.run_record.as_ref()),
         source: run.table.source.display().to_string(),
         tracks_read: run.table.tracks.len(),
         tracks_analysed: a.tracks.len(),
@@ -80,7 +100,7 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
         time_unit: t,
         units_source: &a.units.source,
         run_record: run.table.run_record.as_ref(),
-        summary: &run.summary,
+        statistics: crate::report_text::curated_statistics(&run.summary, &a.units, a.options.axis_deg),
         paths,
         directions_deg: a.tracks.iter().filter_map(|m| m.mean_direction_deg).collect(),
         msd: a.msd.iter().map(|q| (q.lag, q.msd)).collect(),
@@ -117,14 +137,17 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
             .iter()
             .filter_map(|b| b.correlation.map(|c| ((b.from + b.to) / 2.0, c)))
             .collect(),
-        parameters: serde_json::json!({ "options": a.options, "units": a.units }),
+        parameters: Vec::new(),
+        tracking_parameters: Vec::new(),
+        flagged: Vec::new(),
+        review_page: None,
         confinement: confinement_charts(a),
     }
 }
 
 /// The stream over time, the response to the border and the lane profiles, as charts.
 fn confinement_charts(a: &Analysis) -> Vec<ChartSpec> {
-    let (l, t) = (a.units.length.as_str(), a.units.time.as_str());
+    let (l, t) = (unit_name(a.units.length.as_str()), unit_name(a.units.time.as_str()));
     let dt = a.units.time_per_frame;
     let mut out = Vec::new();
     if let Some(s) = &a.stream {
@@ -165,7 +188,7 @@ fn confinement_charts(a: &Analysis) -> Vec<ChartSpec> {
         };
         out.push(ChartSpec {
             title: "Speed against distance to the border".into(),
-            axes: (format!("distance to the border ({l})"), format!("speed ({l}/{t})")),
+            axes: (format!("distance to the border ({l})"), format!("speed ({l}/{})", a.units.time.as_str())),
             log: false,
             series: vec![
                 Series {
@@ -217,7 +240,7 @@ fn confinement_charts(a: &Analysis) -> Vec<ChartSpec> {
         });
         out.push(ChartSpec {
             title: format!("{title}: speed"),
-            axes: (x, format!("speed ({l}/{t})")),
+            axes: (x, format!("speed ({l}/{})", a.units.time.as_str())),
             log: false,
             series: vec![Series::new("mean step speed", line(|b| b.speed), true)],
             caption: "Mean speed of the steps starting in each bin.".into(),
@@ -238,7 +261,7 @@ fn model_rows(a: &Analysis) -> Vec<Vec<String>> {
         .enumerate()
         .map(|(k, ((f, i), delta))| {
             vec![
-                f.model.name(),
+                model_name(&f.model.name()),
                 parameter_text(a, f, i),
                 format!("{delta:.2}"),
                 if a.models.chosen == Some(k) {
@@ -251,7 +274,7 @@ fn model_rows(a: &Analysis) -> Vec<Vec<String>> {
         .collect();
     rows.extend(a.models.failed.iter().map(|f| {
         vec![
-            f.model.name(),
+            model_name(&f.model.name()),
             String::new(),
             String::new(),
             format!("failed: {}", f.reason),
@@ -262,10 +285,15 @@ fn model_rows(a: &Analysis) -> Vec<Vec<String>> {
 
 /// `D = 1.93 [1.61, 2.30] um²/min; P = …` for one candidate.
 fn parameter_text(a: &Analysis, f: &ModelFit, i: &ModelIntervals) -> String {
-    let (l, t) = (a.units.length.as_str(), a.units.time.as_str());
+    let (l, t) = (unit_name(a.units.length.as_str()), a.units.time.as_str());
     let one = |name: &str, v: f64, ci: Option<Interval>, unit: String| match ci {
-        Some(c) => format!("{name} = {} [{}, {}] {unit}", sig(v), sig(c.low), sig(c.high)),
-        None => format!("{name} = {} {unit}", sig(v)),
+        Some(c) => format!(
+            "{name} = {} [{}, {}] {unit}",
+            readable(v),
+            readable(c.low),
+            readable(c.high)
+        ),
+        None => format!("{name} = {} {unit}", readable(v)),
     };
     let p = &f.parameters;
     let mut parts = vec![one("D", p.diffusion, i.diffusion, format!("{l}²/{t}"))];
@@ -276,19 +304,9 @@ fn parameter_text(a: &Analysis, f: &ModelFit, i: &ModelIntervals) -> String {
         parts.push(one("v", v, i.drift_speed, format!("{l}/{t}")));
     }
     if let Some(sigma) = p.localisation_error() {
-        parts.push(one("σ", sigma, i.localisation_error(), l.to_string()));
+        parts.push(one("σ", sigma, i.localisation_error(), l.clone()));
     }
     parts.join("; ")
-}
-
-/// Four significant figures, without exponent notation in the usual range.
-fn sig(v: f64) -> String {
-    if v != 0.0 && (v.abs() >= 1e5 || v.abs() < 1e-3) {
-        format!("{v:.3e}")
-    } else {
-        let decimals = (3 - v.abs().log10().floor() as i32).clamp(0, 6) as usize;
-        format!("{v:.decimals$}")
-    }
 }
 
 /// Writes `replicates.csv`, `comparison.csv`, `summary.json` and `report.html` into `dir`.
@@ -297,11 +315,12 @@ fn sig(v: f64) -> String {
 /// Outputs not writable.
 pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<()> {
     write_comparison_tables(c, manifest, dir)?;
+    let (l, t) = (c.units.0.as_str(), c.units.1.as_str());
     let stats: Vec<ComparedStatistic> = c
         .statistic_names
         .iter()
         .map(|name| ComparedStatistic {
-            name: name.clone(),
+            name: labelled(name, l, t),
             strips: c
                 .conditions
                 .iter()
@@ -332,17 +351,68 @@ pub fn write_comparison(c: &Comparison, manifest: &Path, dir: &Path) -> Result<(
     let html = comparison_report(
         &manifest.display().to_string(),
         &entries,
-        &comparison_rows(c),
-        &comparison_header(),
+        &difference_rows(c),
+        &DIFFERENCE_HEADER,
         (&stats, &compared_curves(c)),
         &c.warnings,
     );
     write_atomic(&dir.join("report.html"), html.as_bytes())
 }
 
+/// A statistic's name in words with its unit in brackets.
+fn labelled(key: &str, l: &str, t: &str) -> String {
+    let (label, unit) = crate::report_text::statistic_label(key, l, t);
+    if unit.is_empty() {
+        label
+    } else {
+        format!("{label} ({unit})")
+    }
+}
+
+/// The columns of the page's differences table (`comparison.csv` has them all, by key).
+const DIFFERENCE_HEADER: [&str; 9] = [
+    "statistic",
+    "reference → condition",
+    "replicates",
+    "tracks",
+    "means",
+    "difference (95% interval)",
+    "p, permutation (Holm-adjusted)",
+    "p, Mann-Whitney",
+    "effect size (Hedges' g)",
+];
+
+/// The differences between conditions in words and readable numbers.
+fn difference_rows(c: &Comparison) -> Vec<Vec<String>> {
+    use crate::render::report::p_value;
+    let (l, t) = (c.units.0.as_str(), c.units.1.as_str());
+    let p = |v: Option<f64>| v.map_or("–".into(), p_value);
+    c.differences
+        .iter()
+        .map(|d| {
+            vec![
+                labelled(&d.statistic, l, t),
+                format!("{} → {}", d.reference, d.condition),
+                format!("{} / {}", d.replicates.0, d.replicates.1),
+                format!("{} / {}", d.tracks.0, d.tracks.1),
+                format!("{} / {}", readable(d.means.0), readable(d.means.1)),
+                format!(
+                    "{} ({} to {})",
+                    readable(d.difference),
+                    readable(d.ci95.0),
+                    readable(d.ci95.1)
+                ),
+                format!("{} ({})", p(d.permutation_p), p(d.permutation_p_holm)),
+                p(d.mann_whitney_p),
+                d.hedges_g.map_or("–".into(), readable),
+            ]
+        })
+        .collect()
+}
+
 /// The MSD and direction autocorrelation of every condition, overlaid.
 fn compared_curves(c: &Comparison) -> Vec<ChartSpec> {
-    let (l, t) = (c.units.0.as_str(), c.units.1.as_str());
+    let (l, t) = (unit_name(c.units.0.as_str()), unit_name(c.units.1.as_str()));
     let series = |pick: fn(&RecordingCurves) -> &[(f64, f64)]| -> Vec<Series> {
         c.conditions
             .iter()
@@ -356,10 +426,11 @@ fn compared_curves(c: &Comparison) -> Vec<ChartSpec> {
             .collect()
     };
     let caption = "Points: the mean over the condition's replicates (each replicate the mean of its recordings); shaded: from the lowest to the highest replicate, lags every replicate has.";
-    let factor = c
-        .factor
-        .iter()
-        .flat_map(|f| f.fits.iter().map(move |fit| factor_chart(&f.column, fit)));
+    let factor = c.factor.iter().flat_map(|f| {
+        f.fits
+            .iter()
+            .map(move |fit| factor_chart(&f.column, fit, (c.units.0.as_str(), c.units.1.as_str())))
+    });
     let mut charts = vec![
         ChartSpec {
             title: "Mean squared displacement per condition".into(),
@@ -381,7 +452,7 @@ fn compared_curves(c: &Comparison) -> Vec<ChartSpec> {
 }
 
 /// One statistic against the manifest's numeric column: replicate means and the quadratic.
-fn factor_chart(column: &str, fit: &crate::analyze::factor::FactorFit) -> ChartSpec {
+fn factor_chart(column: &str, fit: &crate::analyze::factor::FactorFit, (l, t): (&str, &str)) -> ChartSpec {
     let mut series = vec![
         Series::new(
             "replicate means",
@@ -415,9 +486,10 @@ fn factor_chart(column: &str, fit: &crate::analyze::factor::FactorFit) -> ChartS
         (Some(p), Some(i), true) => format!("peaks at {p:.3} (95% interval {:.3} to {:.3}), inside the range in {:.0}% of resamples of replicates: an optimum the data support.", i.low, i.high, 100.0 * fit.share_with_peak),
         _ => format!("inside the range in {:.0}% of resamples of replicates: no optimum claimed.", 100.0 * fit.share_with_peak),
     };
+    let name = labelled(&fit.statistic, l, t);
     ChartSpec {
-        title: format!("{} against {column}", fit.statistic),
-        axes: (column.to_string(), fit.statistic.clone()),
+        title: format!("{name} against {column}"),
+        axes: (column.to_string(), name.clone()),
         log: false,
         series,
         caption: format!("One point per replicate; the line joins the means per value, shaded: their 95% intervals from resampling replicates; the quadratic {verdict}"),

@@ -8,15 +8,16 @@ use crate::error::{Error, Result};
 use crate::output::{ensure_dir, Staging};
 use std::path::{Path, PathBuf};
 
-/// Every file a run may write; a replacing run removes the ones it did not write this time,
-/// so that a folder never mixes two runs.
-pub const RUN_OUTPUTS: [&str; 7] = [
+/// Every file (and the `review` folder) a run may write; a replacing run removes the ones it
+/// did not write this time, so that a folder never mixes two runs.
+pub const RUN_OUTPUTS: [&str; 8] = [
     "detections.csv",
     "labels.tif",
     "tracks.csv",
     "per_track.csv",
     "qc_movie.gif",
     "qc_sheet.png",
+    "review",
     "run.json",
 ];
 
@@ -131,7 +132,12 @@ impl RunFolder {
     pub fn publish(self, written: impl Fn(&str) -> bool) -> Result<()> {
         self.staging.publish(&RUN_OUTPUTS)?;
         for name in RUN_OUTPUTS.iter().filter(|n| !written(n)) {
-            let _ = std::fs::remove_file(self.dir.join(name));
+            let path = self.dir.join(name);
+            let _ = if path.is_dir() {
+                std::fs::remove_dir_all(path)
+            } else {
+                std::fs::remove_file(path)
+            };
         }
         Ok(())
     }
@@ -145,7 +151,11 @@ pub(crate) fn remove_stale_partials(dir: &Path) {
     for entry in entries.flatten() {
         let name = entry.file_name().to_string_lossy().into_owned();
         if name.starts_with('.') && name.contains(".partial-") && !name.ends_with(&own) {
-            let _ = std::fs::remove_file(entry.path());
+            let _ = if entry.path().is_dir() {
+                std::fs::remove_dir_all(entry.path())
+            } else {
+                std::fs::remove_file(entry.path())
+            };
         }
         let own_staging = format!(".staging-{}", std::process::id());
         if name.starts_with(".staging-") && name != own_staging {

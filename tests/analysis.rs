@@ -324,6 +324,18 @@ fn reports_open_in_a_browser_with_every_chart() {
         &dom[dom.len().saturating_sub(300)..]
     );
     assert!(dom.contains("id=\"curves-0\"") && dom.contains("id=\"curves-1\""));
+    // Written for a reader (issue 16): statistics and columns in words, not the CSV's keys.
+    for key in [
+        "mean_speed_",
+        "permutation_p",
+        "walk_diffusion",
+        "hedges_g",
+        "ci95_low",
+        "directionality_ratio_at",
+    ] {
+        assert!(!dom.contains(key), "raw key {key} on the comparison page");
+    }
+    assert!(dom.contains("Mean speed per track") && dom.contains("p, permutation (Holm-adjusted)"));
     assert!(
         dom.contains("slow0&lt;b&gt;.csv"),
         "file names with markup show as text"

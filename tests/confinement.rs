@@ -198,7 +198,7 @@ fn stream_border_lane_and_factor_from_known_geometry() {
     let (sp, bp, fp) = (page("s/report.html"), page("b/report.html"), page("f/report.html"));
     assert!(sp.contains("id=\"confinement-5\"") && !sp.contains("id=\"confinement-6\""));
     assert!(bp.contains("id=\"confinement-1\"") && !bp.contains("id=\"confinement-2\""));
-    assert!(fp.contains("mean_speed_px_per_frame against width"));
+    assert!(fp.contains("Mean speed per track (px/frame) against width"));
     for p in [&sp, &bp, &fp] {
         assert!(!p.contains("chart could not be drawn"));
     }

@@ -645,14 +645,13 @@ const COMPARISON_COLUMNS: [TextColumn<Difference>; 17] = [
     ("hedges_g", |d| six_or_empty(d.hedges_g)),
 ];
 
-/// The header of `comparison.csv` (and the report's table).
-pub fn comparison_header() -> Vec<&'static str> {
+/// The header of `comparison.csv`.
+fn comparison_header() -> Vec<&'static str> {
     COMPARISON_COLUMNS.iter().map(|c| c.0).collect()
 }
 
-/// The rows of `comparison.csv` (and the report's table), numbers with 6 decimals, empty
-/// where not finite.
-pub fn comparison_rows(c: &Comparison) -> Vec<Vec<String>> {
+/// The rows of `comparison.csv`, numbers with 6 decimals, empty where not finite.
+fn comparison_rows(c: &Comparison) -> Vec<Vec<String>> {
     c.differences
         .iter()
         .map(|d| COMPARISON_COLUMNS.iter().map(|col| (col.1)(d)).collect())

@@ -16,6 +16,7 @@ use super::resample::{resample_tracks, TrackSums, Uncertainty, RESAMPLES};
 use super::stream::{stream_geometry, StreamGeometry, STREAM_RESAMPLES};
 use super::table::{Track, Units};
 use crate::numeric::median;
+use crate::numeric::significant;
 use crate::tracks::PathPoint;
 use serde::Serialize;
 use std::collections::BTreeMap;
@@ -330,12 +331,16 @@ pub fn model_warnings(
     if let Some(p) = models.persistent_walk().and_then(|f| f.parameters.persistence) {
         if p < dt {
             out.push(format!(
-                "persistence time {p:.3} is below one frame interval ({dt:.3}): this sampling cannot resolve it; the persistence and the speed derived from it do not stand"
+                "persistence time {} is below one frame interval ({}): this sampling cannot resolve it; the persistence and the speed derived from it do not stand",
+                significant(p),
+                significant(dt)
             ));
         } else if p > (last as f64 * dt).min(recording) {
             out.push(format!(
-                "persistence time {p:.3} is beyond the longest lag fitted ({:.3}) or the longest track ({recording:.3}): the fit cannot tell persistence from drift or directed motion; treat the persistence as undetermined",
-                last as f64 * dt
+                "persistence time {} is beyond the longest lag fitted ({}) or the longest track ({}): the fit cannot tell persistence from drift or directed motion; treat the persistence as undetermined",
+                significant(p),
+                significant(last as f64 * dt),
+                significant(recording)
             ));
         }
     }
@@ -344,9 +349,10 @@ pub fn model_warnings(
         let (d, v) = (best.parameters.diffusion, best.parameters.drift_speed.unwrap_or(0.0));
         if v * v * t * t > 4.0 * d * t {
             out.push(format!(
-                "a drift of {v:.3} per time unit dominates the MSD at the longest lag fitted (v²t² = {:.3} against 4Dt = {:.3}): the cells share a motion (stage drift, tissue flow or a common direction); --remove-drift analyses the motion relative to it",
-                v * v * t * t,
-                4.0 * d * t
+                "a drift of {} per time unit dominates the MSD at the longest lag fitted (v²t² = {} against 4Dt = {}): the cells share a motion (stage drift, tissue flow or a common direction); --remove-drift analyses the motion relative to it",
+                significant(v),
+                significant(v * v * t * t),
+                significant(4.0 * d * t)
             ));
         }
     }

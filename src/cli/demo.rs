@@ -4,6 +4,7 @@ use caravan::link::LinkOptions;
 use caravan::params::SegmentParams;
 use caravan::pipeline::{resolve_diameter, run_recording, RunOptions};
 use caravan::render::movie::MovieOptions;
+use caravan::render::review::ReviewOptions;
 use caravan::score::files::score_files;
 use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{write_recording, Scenario, SynthParams};
@@ -34,6 +35,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         labels: true,
         linking: Some(LinkOptions::default()),
         movie: Some(MovieOptions::default()),
+        review: Some(ReviewOptions::default()),
         replace: true,
         checkpoint_every: None,
         resume: false,
@@ -68,7 +70,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
     if let Some(m) = &run.movie {
         println!("QC movie: {} frames of {}x{} px", m.frames, m.size.0, m.size.1);
     }
-    println!("outputs:\n  recording   {}\n  truth       {}\n  tracks      {}\n  per track   {}\n  detections  {}\n  labels      {}\n  run record  {}\n  QC movie    {}\n  QC sheet    {}", synth.recording.display(), synth.truth_csv.display(), show("tracks.csv"), show("per_track.csv"), show("detections.csv"), show("labels.tif"), show("run.json"), show("qc_movie.gif"), show("qc_sheet.png"));
+    println!("outputs:\n  recording   {}\n  truth       {}\n  tracks      {}\n  per track   {}\n  detections  {}\n  labels      {}\n  run record  {}\n  QC movie    {}\n  QC sheet    {}\n  review page {}", synth.recording.display(), synth.truth_csv.display(), show("tracks.csv"), show("per_track.csv"), show("detections.csv"), show("labels.tif"), show("run.json"), show("qc_movie.gif"), show("qc_sheet.png"), show("review/index.html"));
     if let Some(analysis) = super::analyze::analyze_run_folder(&run_dir) {
         println!("migration statistics (tracks of 10+ points):");
         super::analyze::print_analysis(&analysis);

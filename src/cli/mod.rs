@@ -11,6 +11,7 @@ mod inspect;
 mod join;
 mod param_file;
 mod preview;
+mod review;
 mod score;
 mod segment;
 mod synth;
@@ -65,6 +66,8 @@ enum Command {
     Demo(demo::DemoArgs),
     /// Write a run in another layout (the Cell Tracking Challenge's result layout).
     Export(export::ExportArgs),
+    /// Write the review page of a finished run (review/index.html: scrub, zoom, click tracks).
+    Review(review::ReviewArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -99,6 +102,7 @@ pub fn run() -> i32 {
         Command::Compare(a) => done(compare::run(a)),
         Command::Batch(a) => batch::run(a),
         Command::Workflow(a) => done(workflow::run(a)),
+        Command::Review(a) => done(review::run(a)),
         Command::Demo(a) => done(demo::run(a)),
         Command::Export(a) => done(export::run(a)),
     };
@@ -358,6 +362,9 @@ fn print_summary(run: &caravan::pipeline::RunOutcome) {
         println!("warning: {}", w.message());
     }
     println!("wrote {}", run.dir.display());
+    if run.review.is_some() {
+        println!("review page: {}", run.dir.join("review").join("index.html").display());
+    }
 }
 
 fn describe_diameter(d: &DiameterSource) -> String {

@@ -25,6 +25,7 @@ pub fn run(args: SegmentArgs) -> Result<Completion> {
         labels: args.run.labels,
         linking: None,
         movie: None,
+        review: None,
         replace: args.run.force,
         checkpoint_every: None,
         resume: false,

@@ -5,6 +5,7 @@ use caravan::link::{Divisions, LinkOptions, Prediction};
 use caravan::params::Length;
 use caravan::pipeline::{run_recording, RunOptions};
 use caravan::render::movie::MovieOptions;
+use caravan::render::review::ReviewOptions;
 use caravan::{Error, Result};
 use clap::Args;
 
@@ -30,9 +31,20 @@ pub struct LinkingArgs {
     /// Put every k-th frame in the QC movie (for long recordings).
     #[arg(long, default_value_t = 1)]
     qc_every: usize,
+    /// At most this many frames in the QC movie, sampled evenly (0: every frame; the review
+    /// page always has every frame).
+    #[arg(long, default_value_t = caravan::params::DEFAULT_MOVIE_FRAMES)]
+    qc_frames: usize,
     /// Skip the QC movie and contact sheet.
     #[arg(long)]
     no_movie: bool,
+    /// Longest side of the review page's frames in px (full resolution is kept for the
+    /// moments worth a look and some frames besides).
+    #[arg(long, default_value_t = 512)]
+    review_size: usize,
+    /// Skip the review page (review/index.html).
+    #[arg(long)]
+    no_review: bool,
     /// Skip the migration analysis (analysis/ with report.html) that follows tracking.
     #[arg(long)]
     pub no_analysis: bool,
@@ -51,6 +63,13 @@ impl LinkingArgs {
                 "--qc-size/--qc-every",
                 format!("{}/{}", self.qc_size, self.qc_every),
                 "the movie needs at least 64 px and every >= 1",
+            ));
+        }
+        if self.review_size < 64 {
+            return Err(Error::parameter(
+                "--review-size",
+                self.review_size,
+                "the review page needs at least 64 px",
             ));
         }
         Ok(())
@@ -77,12 +96,17 @@ impl LinkingArgs {
         let movie = MovieOptions {
             max_side_px: self.qc_size,
             every: self.qc_every,
+            max_frames: self.qc_frames,
             ..MovieOptions::default()
+        };
+        let review = ReviewOptions {
+            display_side_px: self.review_size,
         };
         Ok(RunOptions {
             labels: false,
             linking: Some(link),
             movie: (!self.no_movie).then_some(movie),
+            review: (!self.no_review).then_some(review),
             replace,
             checkpoint_every: None,
             resume: false,

@@ -1,10 +1,27 @@
-//! Small numeric helpers shared by several stages (order statistics and the seeded random
-//! generator). They sit at the bottom of the module graph: they import nothing from the
+//! Small numeric helpers shared by several stages (order statistics, the seeded random
+//! generator, numbers printed for people). They sit at the bottom of the module graph: they import nothing from the
 //! stages, so every stage may use them without an import circle.
 
 mod rng;
 
 pub use rng::Rng;
+
+/// `x` with four significant figures for people to read (`452.1`, `0.3308`), whole numbers
+/// without decimals, trailing zeros dropped; outside 10⁻³ to 10⁵ in exponent form (`2.5e-5`).
+pub fn significant(x: f64) -> String {
+    if !x.is_finite() {
+        return "–".into();
+    }
+    if x == x.round() && x.abs() < 1e6 {
+        return format!("{}", x as i64);
+    }
+    if x.abs() >= 1e5 || x.abs() < 1e-3 {
+        return format!("{x:.3e}");
+    }
+    let decimals = (3 - x.abs().log10().floor() as i32).clamp(0, 6) as usize;
+    let s = format!("{x:.decimals$}");
+    s.trim_end_matches('0').trim_end_matches('.').to_string()
+}
 
 /// The median of the values (mean of the two middle ones for an even count); `None` if empty.
 /// Sorts `v`.

@@ -7,6 +7,7 @@
 //! a time, so memory stays bounded by a frame.
 
 use super::font::{draw_text, text_width};
+use super::review::ReviewWriter;
 use super::{is_edge, DisplayRange, PALETTE};
 use crate::error::{Error, Result};
 use crate::output::AtomicFile;
@@ -149,27 +150,32 @@ pub struct MovieOutputs {
     pub size: (usize, usize),
 }
 
-/// Renders `qc_movie.gif` and `qc_sheet.png` into `dir` (a second pass over the frames).
+/// Renders `qc_movie.gif` and `qc_sheet.png` into `dir` (a second pass over the frames), and
+/// hands every frame to the review page's writer when one is given, so that the frames are
+/// decoded once for both.
 ///
 /// Colours: 240 grey levels plus our overlay palette, fixed for the whole movie so that a
 /// track keeps its colour; the contrast stretch is taken from the first frame and kept, so
-/// that bleaching shows as dimming rather than being hidden.
+/// that bleaching shows as dimming rather than being hidden. The movie holds every
+/// [`MovieOptions::step`]-th frame: capped by default, a portable summary.
 pub fn render_movie(
     stack: &mut Stack,
     spool: &mut OutlineSpool,
     overlay: &TrackOverlay,
     options: &MovieOptions,
     dir: &Path,
+    mut review: Option<&mut ReviewWriter>,
 ) -> Result<MovieOutputs> {
     let info = stack.info().clone();
     let (w, h) = (info.width, info.height);
     let factor = w.max(h).div_ceil(options.max_side_px.max(16)).max(1);
     let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
     let stretch = DisplayRange::from_values(&stack.read_frame(0)?.pixels.to_f32());
+    let step = options.step(info.frames);
     let out = MovieOutputs {
         movie: dir.join("qc_movie.gif"),
         sheet: dir.join("qc_sheet.png"),
-        frames: info.frames.div_ceil(options.every.max(1)),
+        frames: info.frames.div_ceil(step),
         size: (mw, mh),
     };
     let mut file = AtomicFile::create(&out.movie)?;
@@ -181,10 +187,16 @@ pub fn render_movie(
         let mut reader = spool.reader()?;
         for t in 0..info.frames {
             let outline = read_outline(&mut reader, &spool.path)?;
-            if t % options.every.max(1) != 0 {
+            if t % step != 0 {
+                if let Some(r) = review.as_deref_mut() {
+                    r.offer(t, &stack.read_frame(t)?.pixels.to_f32())?;
+                }
                 continue;
             }
             let raw = stack.read_frame(t)?.pixels.to_f32();
+            if let Some(r) = review.as_deref_mut() {
+                r.offer(t, &raw)?;
+            }
             let mut canvas = downscale_grey(&raw, w, h, factor, &stretch);
             draw_tails(&mut canvas, overlay, t, factor);
             draw_division_marks(&mut canvas, overlay, t, factor);
@@ -199,7 +211,7 @@ pub fn render_movie(
                 .map(|s| format_time(t as f64 * s))
                 .unwrap_or_default();
             caption_indexed(&mut canvas, &format!("t={t} {time}"));
-            sheet.offer(t / options.every.max(1), &canvas);
+            sheet.offer(t / step, &canvas);
             let frame = gif::Frame {
                 width: mw as u16,
                 height: mh as u16,

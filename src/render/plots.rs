@@ -89,6 +89,23 @@ fn framed<'a, 'b>(root: &'a DrawingArea<SVGBackend<'b>, Shift>, title: &str) -> 
     b
 }
 
+/// A tick label that fits its quantity: whole numbers without decimals (frames, counts), others
+/// with the few digits that tell them apart.
+fn tick(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return "0".into();
+    }
+    if (v - v.round()).abs() < 1e-9 * v.abs().max(1.0) && v.abs() < 1e6 {
+        return format!("{}", v.round() as i64);
+    }
+    if v.abs() >= 1e5 || v.abs() < 1e-3 {
+        return format!("{v:.1e}");
+    }
+    let decimals = (2 - v.abs().log10().floor() as i32).clamp(0, 6) as usize;
+    let s = format!("{v:.decimals$}");
+    s.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
 /// A line chart; with `log`, both axes are logarithmic (non-positive points are left out).
 pub fn line_chart(title: &str, x_desc: &str, y_desc: &str, series: &[Series], log: bool) -> String {
     let keep = |p: &&(f64, f64)| !log || (p.0 > 0.0 && p.1 > 0.0);
@@ -128,7 +145,13 @@ where
     Y: Ranged<ValueType = f64> + ValueFormatter<f64>,
     DB::ErrorType: 'static,
 {
-    chart.configure_mesh().x_desc(x_desc).y_desc(y_desc).draw()?;
+    chart
+        .configure_mesh()
+        .x_desc(x_desc)
+        .y_desc(y_desc)
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
+        .draw()?;
     for (i, s) in series.iter().enumerate() {
         draw_series(chart, s, i, keep)?;
     }
@@ -196,6 +219,8 @@ pub fn trajectories(title: &str, unit: &str, tracks: &[Vec<(f64, f64)>], limit: 
             .configure_mesh()
             .x_desc(format!("x ({unit})"))
             .y_desc(format!("y ({unit}), down as in the image"))
+            .x_label_formatter(&|v| tick(*v))
+            .y_label_formatter(&|v| tick(*v))
             .draw()?;
         for (i, t) in shown.iter().enumerate() {
             chart.draw_series(LineSeries::new(t.iter().copied(), colour(i).mix(0.7)))?;
@@ -264,7 +289,13 @@ pub fn histogram(title: &str, x_desc: &str, values: &[f64], bins: usize) -> Stri
     svg(|root| {
         let mut chart =
             framed(root, &format!("{title} (n = {})", values.len())).build_cartesian_2d(lo..hi, 0.0..top)?;
-        chart.configure_mesh().x_desc(x_desc).y_desc("tracks").draw()?;
+        chart
+            .configure_mesh()
+            .x_desc(x_desc)
+            .y_desc("tracks")
+            .x_label_formatter(&|v| tick(*v))
+            .y_label_formatter(&|v| tick(*v))
+            .draw()?;
         chart.draw_series(counts.iter().enumerate().map(|(k, &c)| {
             let x = lo + k as f64 * width;
             Rectangle::new([(x, 0.0), (x + width * 0.92, c as f64)], colour(0).mix(0.8).filled())
@@ -308,6 +339,7 @@ pub fn strip_chart(title: &str, y_desc: &str, groups: &[Strip]) -> String {
                 }
             })
             .y_desc(y_desc)
+            .y_label_formatter(&|v| tick(*v))
             .draw()?;
         for (k, g) in groups.iter().enumerate() {
             // Golden-ratio jitter: deterministic and evenly spread.

@@ -32,6 +32,7 @@ pub fn track_synthetic(p: &SynthParams, link: LinkOptions) -> TrackedScene {
         labels: false,
         linking: Some(link),
         movie: None,
+        review: None,
         replace: false,
         checkpoint_every: None,
         resume: false,

@@ -1,0 +1,439 @@
+//! The review page: `RUN/review/index.html`, a page that opens from the file system (no
+//! server, no network) to scrub, play and step through every frame of a run, zoom, see each
+//! nucleus's moment ellipse, id and tail, click a nucleus to see its track, and jump through
+//! the moments worth a look.
+//!
+//! What is stored, and why: every frame downscaled to a display size (long side 512 px by
+//! default) as a greyscale JPEG, loaded by the page only when shown; the recording's full
+//! resolution only on the frames worth a look and every N-th frame, N chosen so that the full
+//! frames together hold no more pixels than all display frames together; the overlays as
+//! compact numbers (one script file per 100 frames, also loaded when needed), drawn by the
+//! page. Scripts rather than JSON because a page opened from the file system may not fetch
+//! files, but may load scripts and images beside it.
+//!
+//! The folder is written under a hidden name and renamed into place when complete.
+
+mod page;
+
+use crate::error::{Error, Result};
+use crate::render::DisplayRange;
+use rayon::prelude::*;
+use std::collections::BTreeSet;
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+/// Frames per overlay script file.
+const FRAMES_PER_CHUNK: usize = 100;
+/// Frames decoded, stretched and encoded together (in parallel); bounds the memory held.
+const ENCODE_BATCH: usize = 8;
+/// JPEG quality of the stored frames (measured: a 512 px frame of a nucleus recording is
+/// ~18 KB at 75).
+const JPEG_QUALITY: u8 = 75;
+
+/// One point of a track as the page shows it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReviewPoint {
+    /// Frame number.
+    pub frame: usize,
+    /// Centroid, px.
+    pub x: f64,
+    /// Centroid, px.
+    pub y: f64,
+    /// Full major and minor axes of the moment ellipse, px.
+    pub axes: (f64, f64),
+    /// Major-axis angle from +x toward +y, degrees.
+    pub angle_deg: f64,
+    /// Confidence of the link into this point (`None` where the track starts or a gap was
+    /// closed).
+    pub link_confidence: Option<f64>,
+}
+
+/// A track as the page shows it: its points and the figures its panel lists.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReviewTrack {
+    /// Track id.
+    pub id: u32,
+    /// The mother's id.
+    pub parent: Option<u32>,
+    /// The daughters' ids.
+    pub daughters: Vec<u32>,
+    /// Mean speed over consecutive frames, px per frame.
+    pub speed_px_per_frame: Option<f64>,
+    /// Net displacement over path length.
+    pub directionality: Option<f64>,
+    /// Points in frame order.
+    pub points: Vec<ReviewPoint>,
+}
+
+/// What makes a moment worth a look.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum MomentKind {
+    /// The object count jumps (a frame the run's verdict flags).
+    CountJump,
+    /// A nucleus divides.
+    Division,
+    /// Two tracks share one object: a merge the segmentation did not split.
+    TransientMerge,
+    /// A track starts away from the border, not as a daughter, after the first frame.
+    StartsInside,
+    /// A track ends away from the border, not as a mother, before the last frame.
+    EndsInside,
+    /// Gap closing bridged missing frames.
+    ClosedGap,
+    /// A link had an alternative nearly as good.
+    LowConfidenceLink,
+}
+
+impl MomentKind {
+    /// Every kind, in the order of priority for full-resolution frames.
+    pub const ALL: [MomentKind; 7] = [
+        MomentKind::CountJump,
+        MomentKind::Division,
+        MomentKind::TransientMerge,
+        MomentKind::StartsInside,
+        MomentKind::EndsInside,
+        MomentKind::ClosedGap,
+        MomentKind::LowConfidenceLink,
+    ];
+
+    /// The label the page shows.
+    pub fn label(self) -> &'static str {
+        match self {
+            MomentKind::CountJump => "object count jumps",
+            MomentKind::Division => "division",
+            MomentKind::TransientMerge => "two tracks share an object",
+            MomentKind::StartsInside => "track starts inside the field",
+            MomentKind::EndsInside => "track ends inside the field",
+            MomentKind::ClosedGap => "gap closed",
+            MomentKind::LowConfidenceLink => "uncertain link",
+        }
+    }
+}
+
+/// One moment worth a look: a frame, why, and the track it concerns.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Moment {
+    /// The frame to look at.
+    pub frame: usize,
+    /// Why.
+    pub kind: MomentKind,
+    /// The track concerned, if one.
+    pub track: Option<u32>,
+    /// A short explanation.
+    pub note: String,
+}
+
+/// Everything the page shows but the pixels.
+#[derive(Debug, Clone)]
+pub struct ReviewInput {
+    /// The recording's name, for the title.
+    pub title: String,
+    /// Width and height of a frame, px.
+    pub size: (usize, usize),
+    /// Frames in the recording.
+    pub frames: usize,
+    /// Seconds between frames, when known.
+    pub interval_s: Option<f64>,
+    /// µm per pixel, when known.
+    pub pixel_size_um: Option<f64>,
+    /// The run's verdict and its findings, one line each.
+    pub verdict: Vec<String>,
+    /// Every track.
+    pub tracks: Vec<ReviewTrack>,
+    /// The moments worth a look, in order of priority within each kind.
+    pub moments: Vec<Moment>,
+}
+
+pub use crate::params::ReviewOptions;
+
+/// Which frames are stored at full resolution: up to half the budget for moments (in order
+/// of priority), the rest as every N-th frame. The budget: full frames together hold no more
+/// pixels than all display frames together (`frames / factor²` full frames).
+#[derive(Debug, Clone, PartialEq)]
+pub struct FullFramePlan {
+    /// The frames stored at full resolution.
+    pub frames: BTreeSet<usize>,
+    /// Every this many frames is among them (0: none regularly).
+    pub every: usize,
+}
+
+impl FullFramePlan {
+    /// The plan for `frames` frames downscaled by `factor`, given the moments.
+    pub fn choose(frames: usize, factor: usize, moments: &[Moment]) -> FullFramePlan {
+        if factor <= 1 || frames == 0 {
+            return FullFramePlan {
+                frames: BTreeSet::new(),
+                every: 0,
+            };
+        }
+        let budget = (frames / (factor * factor)).max(1);
+        let mut chosen = BTreeSet::new();
+        for kind in MomentKind::ALL {
+            for m in moments.iter().filter(|m| m.kind == kind) {
+                if chosen.len() >= budget / 2 {
+                    break;
+                }
+                chosen.insert(m.frame);
+            }
+        }
+        let left = budget.saturating_sub(chosen.len()).max(1);
+        let every = frames.div_ceil(left).max(1);
+        chosen.extend((0..frames).step_by(every));
+        FullFramePlan { frames: chosen, every }
+    }
+}
+
+/// Writes a review folder frame by frame: [`ReviewWriter::offer`] every frame in order, then
+/// [`ReviewWriter::finish`].
+pub struct ReviewWriter {
+    input: ReviewInput,
+    staging: PathBuf,
+    target: PathBuf,
+    factor: usize,
+    plan: FullFramePlan,
+    stretch: Option<DisplayRange>,
+    batch: Vec<(usize, Vec<u8>)>,
+    offered: usize,
+    bytes: u64,
+}
+
+/// Paths and sizes of a written review.
+#[derive(Debug, Clone)]
+pub struct ReviewOutputs {
+    /// The page.
+    pub page: PathBuf,
+    /// Frames stored at full resolution.
+    pub full_frames: usize,
+    /// Bytes of the whole folder.
+    pub bytes: u64,
+}
+
+impl ReviewWriter {
+    /// Starts writing `target` (a folder, replaced when complete).
+    ///
+    /// # Errors
+    /// The staging folder cannot be created.
+    pub fn new(target: &Path, input: ReviewInput, options: &ReviewOptions) -> Result<ReviewWriter> {
+        let (w, h) = input.size;
+        let factor = w.max(h).div_ceil(options.display_side_px.max(64)).max(1);
+        let plan = FullFramePlan::choose(input.frames, factor, &input.moments);
+        let name = target
+            .file_name()
+            .map(|n| n.to_string_lossy().to_string())
+            .unwrap_or_default();
+        let staging = target.with_file_name(format!(".{name}.partial-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&staging);
+        for sub in ["frames", "full", "data"] {
+            let d = staging.join(sub);
+            std::fs::create_dir_all(&d).map_err(|e| Error::output(&d, e))?;
+        }
+        Ok(ReviewWriter {
+            input,
+            staging,
+            target: target.to_path_buf(),
+            factor,
+            plan,
+            stretch: None,
+            batch: Vec::new(),
+            offered: 0,
+            bytes: 0,
+        })
+    }
+
+    /// Takes the next frame's samples (row-major, the recording's size). The contrast stretch
+    /// comes from the first frame and is kept, so that bleaching shows as dimming.
+    ///
+    /// # Errors
+    /// A frame out of order, or one that cannot be written.
+    pub fn offer(&mut self, t: usize, raw: &[f32]) -> Result<()> {
+        if t != self.offered {
+            return Err(Error::output(
+                &self.target,
+                std::io::Error::other(format!("frame {t} offered after {}", self.offered)),
+            ));
+        }
+        self.offered += 1;
+        let stretch = self.stretch.get_or_insert_with(|| DisplayRange::from_values(raw));
+        let grey = raw.iter().map(|&v| (stretch.unit(v) * 255.0).round() as u8).collect();
+        self.batch.push((t, grey));
+        if self.batch.len() >= ENCODE_BATCH {
+            self.encode_batch()?;
+        }
+        Ok(())
+    }
+
+    /// Encodes the held frames in parallel and writes them in frame order.
+    fn encode_batch(&mut self) -> Result<()> {
+        let (w, h) = self.input.size;
+        let factor = self.factor;
+        let plan = &self.plan;
+        let encoded: Vec<(usize, Vec<u8>, Option<Vec<u8>>)> = self
+            .batch
+            .par_iter()
+            .map(|(t, grey)| {
+                let (dw, dh, display) = downscale(grey, w, h, factor);
+                let small = jpeg(&display, dw, dh);
+                let full = plan.frames.contains(t).then(|| jpeg(grey, w, h));
+                (*t, small, full)
+            })
+            .collect();
+        self.batch.clear();
+        for (t, small, full) in encoded {
+            self.write(&format!("frames/{t:06}.jpg"), &small)?;
+            if let Some(full) = full {
+                self.write(&format!("full/{t:06}.jpg"), &full)?;
+            }
+        }
+        Ok(())
+    }
+
+    fn write(&mut self, name: &str, bytes: &[u8]) -> Result<()> {
+        let path = self.staging.join(name);
+        std::fs::write(&path, bytes).map_err(|e| Error::output(&path, e))?;
+        self.bytes += bytes.len() as u64;
+        Ok(())
+    }
+
+    /// Writes the data scripts and the page, and moves the folder into place (replacing an
+    /// earlier one).
+    ///
+    /// # Errors
+    /// Fewer frames offered than the recording holds, or a file that cannot be written.
+    pub fn finish(mut self) -> Result<ReviewOutputs> {
+        self.encode_batch()?;
+        if self.offered != self.input.frames {
+            return Err(Error::output(
+                &self.target,
+                std::io::Error::other(format!("{} of {} frames offered", self.offered, self.input.frames)),
+            ));
+        }
+        let run = page::run_script(&self.input, self.factor, &self.plan);
+        self.write("data/run.js", run.as_bytes())?;
+        let tracks = page::tracks_script(&self.input.tracks);
+        self.write("data/tracks.js", tracks.as_bytes())?;
+        for (k, script) in page::shape_scripts(&self.input, FRAMES_PER_CHUNK)
+            .into_iter()
+            .enumerate()
+        {
+            self.write(&format!("data/shapes_{k:04}.js"), script.as_bytes())?;
+        }
+        let html = page::html(&self.input.title);
+        self.write("index.html", html.as_bytes())?;
+        if self.target.exists() {
+            std::fs::remove_dir_all(&self.target).map_err(|e| Error::output(&self.target, e))?;
+        }
+        std::fs::rename(&self.staging, &self.target).map_err(|e| Error::output(&self.target, e))?;
+        Ok(ReviewOutputs {
+            page: self.target.join("index.html"),
+            full_frames: self.plan.frames.len(),
+            bytes: self.bytes,
+        })
+    }
+}
+
+impl Drop for ReviewWriter {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_dir_all(&self.staging);
+    }
+}
+
+/// Box-averaged downscale of an 8-bit image by an integer factor.
+fn downscale(grey: &[u8], w: usize, h: usize, factor: usize) -> (usize, usize, Vec<u8>) {
+    if factor == 1 {
+        return (w, h, grey.to_vec());
+    }
+    let (dw, dh) = (w.div_ceil(factor), h.div_ceil(factor));
+    let mut sum = vec![0u32; dw * dh];
+    let mut count = vec![0u32; dw * dh];
+    for (y, row) in grey.chunks_exact(w).enumerate() {
+        let base = (y / factor) * dw;
+        for (x, &v) in row.iter().enumerate() {
+            sum[base + x / factor] += v as u32;
+            count[base + x / factor] += 1;
+        }
+    }
+    let data = sum.iter().zip(&count).map(|(s, c)| ((s + c / 2) / c) as u8).collect();
+    (dw, dh, data)
+}
+
+/// A greyscale baseline JPEG (the `image` crate's encoder).
+fn jpeg(grey: &[u8], w: usize, h: usize) -> Vec<u8> {
+    let mut out = Vec::new();
+    image::codecs::jpeg::JpegEncoder::new_with_quality(&mut out, JPEG_QUALITY)
+        .encode(grey, w as u32, h as u32, image::ExtendedColorType::L8)
+        .expect("an in-memory buffer of the stated size encodes");
+    out
+}
+
+/// A number with at most `decimals` decimals, trailing zeros removed (compact data files).
+fn compact(v: f64, decimals: usize) -> String {
+    let mut s = format!("{v:.decimals$}");
+    if s.contains('.') {
+        while s.ends_with('0') {
+            s.pop();
+        }
+        if s.ends_with('.') {
+            s.pop();
+        }
+    }
+    if s == "-0" {
+        s = "0".into();
+    }
+    s
+}
+
+/// Appends `values` as a JSON array of numbers.
+fn push_numbers(out: &mut String, values: impl IntoIterator<Item = String>) {
+    out.push('[');
+    for (i, v) in values.into_iter().enumerate() {
+        if i > 0 {
+            out.push(',');
+        }
+        let _ = write!(out, "{v}");
+    }
+    out.push(']');
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn moment(frame: usize, kind: MomentKind) -> Moment {
+        Moment {
+            frame,
+            kind,
+            track: None,
+            note: String::new(),
+        }
+    }
+
+    #[test]
+    fn full_frames_keep_to_the_pixel_budget() {
+        // 400 frames at half size: 100 full frames at most (each holds four display frames'
+        // pixels), half of them moments in order of priority, the rest every 8th frame.
+        let moments: Vec<Moment> = (0..80)
+            .map(|i| moment(i * 5 + 1, MomentKind::LowConfidenceLink))
+            .chain([moment(7, MomentKind::CountJump)])
+            .collect();
+        let plan = FullFramePlan::choose(400, 2, &moments);
+        assert!(plan.frames.contains(&7), "the highest priority first");
+        assert_eq!(plan.every, 8);
+        assert!(plan.frames.len() <= 100, "{}", plan.frames.len());
+        assert_eq!(FullFramePlan::choose(400, 1, &moments).frames.len(), 0);
+    }
+
+    #[test]
+    fn downscale_averages_blocks() {
+        // 3 x 2 image, factor 2: blocks (0,1,3,4), (2,5) -> rounded means.
+        let (w, h, d) = downscale(&[0, 10, 20, 30, 40, 50], 3, 2, 2);
+        assert_eq!((w, h), (2, 1));
+        assert_eq!(d, vec![20, 35]);
+    }
+
+    #[test]
+    fn compact_numbers() {
+        assert_eq!(compact(12.3456, 1), "12.3");
+        assert_eq!(compact(12.0, 1), "12");
+        assert_eq!(compact(-0.01, 1), "0");
+    }
+}
