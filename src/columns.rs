@@ -134,6 +134,110 @@ pub fn push_fixed(out: &mut String, v: f64, decimals: usize) {
     }
 }
 
+/// One row of a CSV file read by column names ([`read_named_columns`]): cells by the index of
+/// their name in the list asked for, parsed with errors that name the file and the line.
+pub struct NamedRow<'a> {
+    record: &'a csv::StringRecord,
+    at: &'a [usize],
+    names: &'a [&'a str],
+    line: usize,
+    path: &'a std::path::Path,
+}
+
+impl NamedRow<'_> {
+    /// The cell of the `k`-th name, as written (empty when the row is short).
+    pub fn text(&self, k: usize) -> &str {
+        self.record.get(self.at[k]).unwrap_or("")
+    }
+
+    fn bad(&self, k: usize, what: &str) -> crate::error::Error {
+        crate::error::Error::input(
+            self.path,
+            format!("line {}: {} is not {what}", self.line, self.names[k]),
+        )
+    }
+
+    /// The cell of the `k`-th name as a finite number.
+    ///
+    /// # Errors
+    /// Not a finite number.
+    pub fn number(&self, k: usize) -> crate::error::Result<f64> {
+        self.text(k)
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite())
+            .ok_or_else(|| self.bad(k, "a number"))
+    }
+
+    /// The cell of the `k`-th name as a whole number.
+    ///
+    /// # Errors
+    /// Not a whole number.
+    pub fn whole(&self, k: usize) -> crate::error::Result<u32> {
+        self.text(k).parse().map_err(|_| self.bad(k, "a whole number"))
+    }
+
+    /// The cell of the `k`-th name: `None` when empty, else a whole number.
+    ///
+    /// # Errors
+    /// Neither empty nor a whole number.
+    pub fn optional_whole(&self, k: usize) -> crate::error::Result<Option<u32>> {
+        if self.text(k).is_empty() {
+            Ok(None)
+        } else {
+            self.whole(k).map(Some)
+        }
+    }
+
+    /// The cell of the `k`-th name: `None` when empty, else a finite number.
+    ///
+    /// # Errors
+    /// Neither empty nor a finite number.
+    pub fn optional_number(&self, k: usize) -> crate::error::Result<Option<f64>> {
+        if self.text(k).is_empty() {
+            Ok(None)
+        } else {
+            self.number(k).map(Some)
+        }
+    }
+}
+
+/// Reads the CSV file at `path` by column names (in any order, extra columns ignored) and
+/// turns each row into a `T`.
+///
+/// # Errors
+/// An unreadable file, a missing column, or what `each` refuses, naming the file.
+pub fn read_named_columns<T>(
+    path: &std::path::Path,
+    names: &[&str],
+    mut each: impl FnMut(&NamedRow) -> crate::error::Result<T>,
+) -> crate::error::Result<Vec<T>> {
+    let bad = |what: String| crate::error::Error::input(path, what);
+    let mut reader = csv::Reader::from_path(path).map_err(|e| bad(e.to_string()))?;
+    let header = reader.headers().map_err(|e| bad(e.to_string()))?.clone();
+    let at: Vec<usize> = names
+        .iter()
+        .map(|n| {
+            header
+                .iter()
+                .position(|h| h == *n)
+                .ok_or_else(|| bad(format!("missing column {n}")))
+        })
+        .collect::<crate::error::Result<_>>()?;
+    let mut out = Vec::new();
+    for (row, record) in reader.records().enumerate() {
+        let record = record.map_err(|e| bad(e.to_string()))?;
+        out.push(each(&NamedRow {
+            record: &record,
+            at: &at,
+            names,
+            line: row + 2,
+            path,
+        })?);
+    }
+    Ok(out)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -45,6 +45,7 @@ pub mod export;
 pub mod frames;
 pub mod image2d;
 pub mod link;
+pub mod lookalike;
 pub mod numeric;
 pub mod output;
 pub mod params;

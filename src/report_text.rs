@@ -467,3 +467,33 @@ pub fn flagged_frames(run_dir: &Path, record: &RunRecord) -> Vec<FlaggedFrame> {
         })
         .collect()
 }
+
+/// The expected accuracy of a run's look-alikes (`lookalike/summary.json`), one row per
+/// measure: name, mean, lowest to highest; empty when there is no such file.
+pub fn expected_accuracy(summary: &Path) -> Vec<Vec<String>> {
+    let Some(value) = std::fs::read(summary)
+        .ok()
+        .and_then(|b| serde_json::from_slice::<Value>(&b).ok())
+    else {
+        return Vec::new();
+    };
+    let show = crate::render::report::readable;
+    [
+        ("detection_f1", "Detection F1"),
+        ("mota", "MOTA (CLEAR-MOT accuracy)"),
+        ("link_recall", "Links found (recall)"),
+        ("mostly_tracked", "True tracks mostly tracked"),
+        ("divisions_recovered", "Divisions recovered"),
+    ]
+    .iter()
+    .filter_map(|(key, name)| {
+        let s = value.get("expected")?.get(key)?;
+        let get = |k: &str| s.get(k).and_then(Value::as_f64);
+        Some(vec![
+            name.to_string(),
+            show(get("mean")?),
+            format!("{} to {}", show(get("min")?), show(get("max")?)),
+        ])
+    })
+    .collect()
+}

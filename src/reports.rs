@@ -48,6 +48,7 @@ pub fn run_analysis(
     if let (Some(record), Some(run_dir)) = (&run.table.run_record, run.table.source.parent()) {
         page.tracking_parameters = crate::report_text::tracking_parameters(record);
         page.flagged = crate::report_text::flagged_frames(run_dir, record);
+        page.expected_accuracy = crate::report_text::expected_accuracy(&run_dir.join("lookalike").join("summary.json"));
         if run_dir.join("review").join("index.html").exists() {
             page.review_page = Some(relative_review_link(dir, run_dir));
         }
@@ -141,6 +142,7 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
         tracking_parameters: Vec::new(),
         flagged: Vec::new(),
         review_page: None,
+        expected_accuracy: Vec::new(),
         confinement: confinement_charts(a),
     }
 }

@@ -7,6 +7,7 @@
 //! and the recording.
 
 use crate::analyze::summarize_track;
+use crate::columns::read_named_columns;
 use crate::error::{Error, Result};
 use crate::record::{FrameSummary, RunRecord};
 use crate::render::review::{
@@ -289,7 +290,7 @@ pub fn write_review(run_dir: &Path, recording: Option<&Path>, options: &ReviewOp
 
 /// Opens the run's recording as the run read it (channel, projection), checking that it still
 /// has the run's size.
-fn open_recording(record: &RunRecord, given: Option<&Path>) -> Result<Stack> {
+pub(crate) fn open_recording(record: &RunRecord, given: Option<&Path>) -> Result<Stack> {
     let info = &record.input.stack;
     let path: PathBuf = given.map_or_else(|| info.path.clone(), Path::to_path_buf);
     if !path.exists() {
@@ -324,15 +325,6 @@ fn open_recording(record: &RunRecord, given: Option<&Path>) -> Result<Stack> {
 /// # Errors
 /// A missing column or a cell that is not a number, naming the file and line.
 pub fn read_linked_points(path: &Path) -> Result<Vec<LinkedPoint>> {
-    let bad = |what: String| Error::input(path, what);
-    let mut reader = csv::Reader::from_path(path).map_err(|e| bad(e.to_string()))?;
-    let header = reader.headers().map_err(|e| bad(e.to_string()))?.clone();
-    let column = |name: &str| {
-        header
-            .iter()
-            .position(|h| h == name)
-            .ok_or_else(|| bad(format!("missing column {name}")))
-    };
     let names = [
         "track_id",
         "parent_id",
@@ -345,44 +337,19 @@ pub fn read_linked_points(path: &Path) -> Result<Vec<LinkedPoint>> {
         "object",
         "link_confidence",
     ];
-    let at: Vec<usize> = names.iter().map(|n| column(n)).collect::<Result<_>>()?;
-    let mut points = Vec::new();
-    for (row, record) in reader.records().enumerate() {
-        let record = record.map_err(|e| bad(e.to_string()))?;
-        let line = row + 2;
-        let cell = |k: usize| record.get(at[k]).unwrap_or("");
-        let number = |k: usize| -> Result<f64> {
-            cell(k)
-                .parse::<f64>()
-                .ok()
-                .filter(|v| v.is_finite())
-                .ok_or_else(|| bad(format!("line {line}: {} is not a number", names[k])))
-        };
-        let whole = |k: usize| -> Result<u32> {
-            cell(k)
-                .parse::<u32>()
-                .map_err(|_| bad(format!("line {line}: {} is not a whole number", names[k])))
-        };
-        let optional = |k: usize| {
-            if cell(k).is_empty() {
-                Ok(None)
-            } else {
-                number(k).map(Some)
-            }
-        };
-        points.push(LinkedPoint {
-            track: whole(0)?,
-            parent: if cell(1).is_empty() { None } else { Some(whole(1)?) },
-            object: whole(8)?,
+    read_named_columns(path, &names, |row| {
+        Ok(LinkedPoint {
+            track: row.whole(0)?,
+            parent: row.optional_whole(1)?,
+            object: row.whole(8)?,
             point: ReviewPoint {
-                frame: whole(2)? as usize,
-                x: number(3)?,
-                y: number(4)?,
-                axes: (number(5)?, number(6)?),
-                angle_deg: number(7)?,
-                link_confidence: optional(9)?,
+                frame: row.whole(2)? as usize,
+                x: row.number(3)?,
+                y: row.number(4)?,
+                axes: (row.number(5)?, row.number(6)?),
+                angle_deg: row.number(7)?,
+                link_confidence: row.optional_number(9)?,
             },
-        });
-    }
-    Ok(points)
+        })
+    })
 }

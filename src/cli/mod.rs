@@ -9,6 +9,7 @@ mod demo;
 mod export;
 mod inspect;
 mod join;
+mod lookalike;
 mod param_file;
 mod preview;
 mod review;
@@ -66,6 +67,8 @@ enum Command {
     Demo(demo::DemoArgs),
     /// Write a run in another layout (the Cell Tracking Challenge's result layout).
     Export(export::ExportArgs),
+    /// The accuracy to expect on a run's recording: look-alikes with its statistics and a truth.
+    Lookalike(lookalike::LookalikeArgs),
     /// Write the review page of a finished run (review/index.html: scrub, zoom, click tracks).
     Review(review::ReviewArgs),
 }
@@ -103,6 +106,7 @@ pub fn run() -> i32 {
         Command::Batch(a) => batch::run(a),
         Command::Workflow(a) => done(workflow::run(a)),
         Command::Review(a) => done(review::run(a)),
+        Command::Lookalike(a) => done(lookalike::run(a)),
         Command::Demo(a) => done(demo::run(a)),
         Command::Export(a) => done(export::run(a)),
     };

@@ -135,6 +135,10 @@ pub struct TrackArgs {
     /// checkpoint.
     #[arg(long)]
     masks: Option<std::path::PathBuf>,
+    /// After tracking, make look-alikes of the recording and report the accuracy to expect
+    /// on it (RUN/lookalike/, shown in the analysis report).
+    #[arg(long)]
+    lookalike: bool,
 }
 
 pub fn run(mut args: TrackArgs) -> Result<Completion> {
@@ -155,6 +159,10 @@ pub fn run(mut args: TrackArgs) -> Result<Completion> {
     outputs.masks_without_intensities = args.masks.is_some() && args.run.has_no_recording();
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
     print_summary(&run);
+    if args.lookalike {
+        let out = args.run.output.join("lookalike");
+        super::lookalike::make(&args.run.output, &out, &caravan::lookalike::LookalikeOptions::default())?;
+    }
     if !args.linking.no_analysis {
         super::analyze::analyze_run_folder(&args.run.output);
     }

@@ -54,11 +54,17 @@ pub fn quantile(values: &[f64], q: f64) -> Option<f64> {
     if values.is_empty() {
         return None;
     }
+    // The two order statistics by selection (linear time), not a full sort: the same values.
     let mut v = values.to_vec();
-    v.sort_by(f64::total_cmp);
     let h = q.clamp(0.0, 1.0) * (v.len() - 1) as f64;
     let (lo, hi) = (h.floor() as usize, h.ceil() as usize);
-    Some(v[lo] + (h - lo as f64) * (v[hi] - v[lo]))
+    let (_, &mut at_lo, above) = v.select_nth_unstable_by(lo, f64::total_cmp);
+    let at_hi = if hi > lo {
+        above.iter().copied().min_by(f64::total_cmp).unwrap_or(at_lo)
+    } else {
+        at_lo
+    };
+    Some(at_lo + (h - lo as f64) * (at_hi - at_lo))
 }
 
 /// Disjoint sets over `0..n` (union-find with path halving), where a union keeps the smaller

@@ -3,6 +3,7 @@
 //! done here.
 
 mod font;
+pub mod lookalike;
 pub mod movie;
 pub mod plots;
 mod preview;

@@ -32,7 +32,7 @@ tr.group th{color:#00707a;padding-top:.8em}.warnings li{color:#8a3b0a}.caption{f
 .strip{display:flex;flex-wrap:wrap;gap:10px}.flagged{background:#111;color:#eee;padding:4px;font-size:.8em}.flagged p{margin:.2em 0;max-width:260px}";
 
 /// Opens a page with its title.
-fn page_start(title: &str) -> String {
+pub(crate) fn page_start(title: &str) -> String {
     format!(
         "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\"><title>{}</title><style>{STYLE}</style></head><body><h1>{}</h1>\
 <p class=\"note\">Caravan is research software. Statistics are only as good as the segmentation and tracking they rest on: look at the run's review page before trusting these numbers.</p>",
@@ -43,7 +43,7 @@ fn page_start(title: &str) -> String {
 
 /// Closes a page; the script records how many charts rendered and how many could not be drawn
 /// (the placeholder of `plots`), read by the browser test.
-fn page_end(html: &mut String) {
+pub(crate) fn page_end(html: &mut String) {
     html.push_str(concat!(
         "<script>const charts = [...document.querySelectorAll('figure svg')];",
         "const failed = charts.filter(s => s.textContent.includes('could not be drawn')).length;",
@@ -227,7 +227,7 @@ fn flagged_strip(html: &mut String, frames: &[FlaggedFrame], palette: &[[u8; 3]]
 }
 
 /// Standard base64 (RFC 4648, §4) with padding, for images inside the page.
-fn base64(bytes: &[u8]) -> String {
+pub(crate) fn base64(bytes: &[u8]) -> String {
     const ALPHABET: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
     let mut out = String::with_capacity(bytes.len().div_ceil(3) * 4);
     for chunk in bytes.chunks(3) {
@@ -304,6 +304,9 @@ pub struct AnalysisPage<'a> {
     pub flagged: Vec<FlaggedFrame>,
     /// The run's review page, relative to the report, when it has one.
     pub review_page: Option<String>,
+    /// The accuracy expected on the recording from its look-alikes (`track --lookalike`):
+    /// measure, mean, lowest to highest; empty without look-alikes.
+    pub expected_accuracy: Vec<Vec<String>>,
     /// Stream geometry, border response and lane profiles, when asked for.
     pub confinement: Vec<ChartSpec>,
 }
@@ -326,6 +329,14 @@ pub fn analysis_report(page: &AnalysisPage) -> String {
         unit_name(t),
         escape_html(page.units_source)
     );
+    if !page.expected_accuracy.is_empty() {
+        html.push_str("<h2 id=\"expected-accuracy\">Expected tracking accuracy on this recording</h2><p>Scored on look-alike recordings made with this recording's statistics and tracked as it was (<code>lookalike/report.html</code> in the run folder). The statistics below rest on tracks of about this quality; a look-alike lacks debris, odd shapes and focus drift, so where those occur this is an upper bound.</p>");
+        table(
+            &mut html,
+            &["measure", "mean", "lowest to highest"],
+            &page.expected_accuracy,
+        );
+    }
     html.push_str("<h2>Population statistics</h2>");
     statistics_table(&mut html, &page.statistics);
     html.push_str("<h2 id=\"how-fast\">How fast</h2><div class=\"grid\">");
@@ -558,7 +569,7 @@ fn qc_section(html: &mut String, record: &RunRecord) {
 }
 
 /// A table of text cells (escaped), scrolling sideways when wide.
-fn table(html: &mut String, header: &[&str], rows: &[Vec<String>]) {
+pub(crate) fn table(html: &mut String, header: &[&str], rows: &[Vec<String>]) {
     html.push_str("<div class=\"wide\"><table><tr>");
     for h in header {
         let _ = write!(html, "<th>{}</th>", escape_html(h));

@@ -6,6 +6,7 @@
 //! entering and leaving the field. Everything is deterministic for a given seed.
 
 mod scene;
+pub use scene::illumination;
 pub mod walks;
 
 pub use crate::numeric::Rng;
@@ -67,6 +68,13 @@ pub struct SynthParams {
     pub bleach_per_frame: f64,
     /// Read-noise standard deviation, grey levels.
     pub read_noise: f64,
+    /// Grey levels per photon (the camera's gain).
+    pub gain: f64,
+    /// Grey level of no light (the camera's offset).
+    pub offset: f64,
+    /// Depth of the illumination's fall-off from the centre to the corners (0.35: the corners
+    /// get 65% of the centre's light; a 15% left-right tilt comes on top).
+    pub vignette: f64,
     /// Pixel size written into the OME-XML, µm.
     pub pixel_size_um: f64,
     /// Frame interval written into the OME-XML, s.
@@ -198,6 +206,9 @@ impl SynthParams {
             background_photons: 60.0,
             bleach_per_frame: 0.002,
             read_noise: 3.0,
+            gain: 1.0,
+            offset: 100.0,
+            vignette: 0.35,
             pixel_size_um: 0.65,
             frame_interval_s: 300.0,
             drift_px_per_frame: if scenario == Scenario::Stripe { 2.5 } else { 0.0 },
@@ -216,7 +227,7 @@ impl SynthParams {
     /// Standard deviation of the camera noise over the background at the field's centre,
     /// grey levels: Poisson noise of the background photons plus read noise.
     pub fn background_noise_sd(&self) -> f64 {
-        (self.background_photons + self.read_noise * self.read_noise).sqrt()
+        (self.gain * self.gain * self.background_photons + self.read_noise * self.read_noise).sqrt()
     }
 
     /// Refuses sizes that cannot make a recording.
@@ -226,6 +237,13 @@ impl SynthParams {
                 "--size",
                 format!("{}x{}", self.width, self.height),
                 "each side must be 16 to 16384 px",
+            ));
+        }
+        if !(self.gain > 0.0 && self.gain.is_finite() && (0.0..=0.9).contains(&self.vignette) && self.offset >= 0.0) {
+            return Err(Error::parameter(
+                "gain/offset/vignette",
+                format!("{}/{}/{}", self.gain, self.offset, self.vignette),
+                "gain must be positive, offset at least 0, vignette from 0 to 0.9",
             ));
         }
         if self.frames == 0 {
@@ -330,6 +348,7 @@ pub fn write_recording(dir: &Path, params: &SynthParams) -> Result<SynthOutputs>
     };
     let description = ome_description(params);
     let (w, h) = (params.width, params.height);
+    let mut frames = AheadInParallel::new(params.frames, |t| scene.render(t));
     write_stack::<u16, _>(
         &out.recording,
         w,
@@ -337,9 +356,10 @@ pub fn write_recording(dir: &Path, params: &SynthParams) -> Result<SynthOutputs>
         params.frames,
         params.compression,
         Some(&description),
-        |t| Ok(scene.render(t)),
+        |t| Ok(frames.take(t)),
     )?;
     let mut points = Vec::new();
+    let mut labels = AheadInParallel::new(params.frames, |t| scene.labels(t));
     write_stack::<u16, _>(
         &out.truth_labels,
         w,
@@ -348,7 +368,7 @@ pub fn write_recording(dir: &Path, params: &SynthParams) -> Result<SynthOutputs>
         TiffCompression::Deflate,
         None,
         |t| {
-            let labels = scene.labels(t);
+            let labels = labels.take(t);
             points.extend(scene.visible_points(t, &labels));
             Ok(labels)
         },
@@ -360,6 +380,38 @@ pub fn write_recording(dir: &Path, params: &SynthParams) -> Result<SynthOutputs>
         .expect("serialisable");
     write_atomic(&out.scenario_json, &json)?;
     Ok(out)
+}
+
+/// Frames made a few at a time in parallel and handed out in order: each frame's randomness is
+/// seeded by its index, so the result is the same whatever the thread count.
+struct AheadInParallel<F: Fn(usize) -> Vec<u16> + Sync> {
+    make: F,
+    ready: std::collections::VecDeque<Vec<u16>>,
+    frames: usize,
+}
+
+impl<F: Fn(usize) -> Vec<u16> + Sync> AheadInParallel<F> {
+    /// Frames made together (bounds the memory held).
+    const BATCH: usize = 4;
+
+    fn new(frames: usize, make: F) -> Self {
+        AheadInParallel {
+            make,
+            ready: std::collections::VecDeque::new(),
+            frames,
+        }
+    }
+
+    /// Frame `t`; frames are asked for in order from 0.
+    fn take(&mut self, t: usize) -> Vec<u16> {
+        use rayon::prelude::*;
+        if self.ready.is_empty() {
+            let end = (t + Self::BATCH).min(self.frames).max(t + 1);
+            let batch: Vec<Vec<u16>> = (t..end).into_par_iter().map(&self.make).collect();
+            self.ready.extend(batch);
+        }
+        self.ready.pop_front().expect("a batch was made")
+    }
 }
 
 /// Truth points of one frame: every nucleus with visible pixels, at the centroid of its

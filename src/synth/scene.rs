@@ -80,6 +80,8 @@ struct Motion {
 
 fn motion(p: &SynthParams) -> Motion {
     let mut m = scenario_motion(p);
+    // A drift given for any scenario moves its nuclei too (the stripe's is its default).
+    m.drift_x = p.drift_px_per_frame;
     if let Some(sep) = p.separation {
         m.separation = sep;
     }
@@ -186,9 +188,9 @@ impl Scene {
         (0..w * h)
             .map(|i| {
                 let (x, y) = ((i % w) as f64 / w as f64, (i / w) as f64 / h as f64);
-                let light = illumination(x, y);
+                let light = illumination(x, y, p.vignette);
                 let photons = rng.poisson(light * (bleach * blurred[i] as f64 + p.background_photons));
-                (100.0 + photons + p.read_noise * rng.normal())
+                (p.offset + p.gain * photons + p.read_noise * rng.normal())
                     .round()
                     .clamp(0.0, 65535.0) as u16
             })
@@ -310,10 +312,11 @@ fn lattice_value(id: u32, octave: u32, i: i64, j: i64) -> f64 {
     (x >> 11) as f64 / (1u64 << 52) as f64 - 1.0
 }
 
-/// Uneven illumination: a vignette falling to 65% in the corners plus a 15% left-right tilt.
-fn illumination(x: f64, y: f64) -> f64 {
+/// Uneven illumination: a vignette falling by `vignette` to the corners (0.35 by default: to
+/// 65%) plus a 15% left-right tilt.
+pub fn illumination(x: f64, y: f64, vignette: f64) -> f64 {
     let r2 = ((x - 0.5).powi(2) + (y - 0.5).powi(2)) / 0.5;
-    (1.0 - 0.35 * r2) * (0.925 + 0.15 * x)
+    (1.0 - vignette * r2) * (0.925 + 0.15 * x)
 }
 
 fn for_each_pixel_near(n: &Nucleus, w: usize, h: usize, pad: f64, mut f: impl FnMut(usize, f64, f64)) {
