@@ -283,40 +283,23 @@ pub(crate) fn finish_run(
     );
     let verdict = judge(&figures);
     let movie_started = Instant::now();
-    let mut review = match (outputs.review, linking.is_some()) {
-        (Some(options), true) => {
-            // From tracks.csv as written, so that `caravan review` on the folder gives the
-            // same page byte for byte.
-            let points = read_linked_points(&dir.join("tracks.csv"))?;
-            let view = RunView {
-                info: &info,
-                per_frame: &frames,
-                count_jumps: &figures.count_jumps,
-                verdict: Some(&verdict),
-                diameter_px: diameter.px(),
-            };
-            Some(ReviewWriter::new(
-                &dir.join("review"),
-                review_input(&points, &view),
-                &options,
-            )?)
-        }
-        _ => None,
+    let view = RunView {
+        info: &info,
+        per_frame: &frames,
+        count_jumps: &figures.count_jumps,
+        verdict: Some(&verdict),
+        diameter_px: diameter.px(),
     };
-    let movie = match (spool, outputs.movie) {
-        (Some(s), Some(options)) => {
-            let divisions = resolution.as_ref().map(|r| r.divisions.as_slice()).unwrap_or_default();
-            let overlay = overlay(&tracked, &frames, divisions);
-            Some(render_movie(stack, s, &overlay, &options, dir, review.as_mut())?)
-        }
-        _ => {
-            if let Some(r) = review.as_mut() {
-                offer_all_frames(stack, r)?;
-            }
-            None
-        }
-    };
-    let review = review.map(ReviewWriter::finish).transpose()?;
+    let divisions = resolution.as_ref().map(|r| r.divisions.as_slice()).unwrap_or_default();
+    let (movie, review) = second_pass(
+        stack,
+        spool,
+        outputs,
+        linking.is_some(),
+        &view,
+        (&tracked, divisions),
+        dir,
+    )?;
     let run = RunOutcome {
         dir: dir.to_path_buf(),
         diameter: diameter.clone(),
@@ -368,6 +351,44 @@ pub(crate) fn finish_run(
     };
     write_atomic(&dir.join("run.json"), &record.to_bytes())?;
     Ok(run)
+}
+
+/// The second pass over the frames, after linking: the QC movie and the review page, each
+/// frame decoded once for both. The review page is made from `tracks.csv` as written, so that
+/// `caravan review` on the folder gives the same page byte for byte.
+fn second_pass(
+    stack: &mut Stack,
+    spool: Option<&mut OutlineSpool>,
+    outputs: &RunOptions,
+    linked: bool,
+    view: &RunView,
+    (tracked, divisions): (&[TrackedDetection], &[DivisionEvent]),
+    dir: &Path,
+) -> Result<(Option<MovieOutputs>, Option<ReviewOutputs>)> {
+    let mut review = match (outputs.review, linked) {
+        (Some(options), true) => {
+            let points = read_linked_points(&dir.join("tracks.csv"))?;
+            Some(ReviewWriter::new(
+                &dir.join("review"),
+                review_input(&points, view),
+                &options,
+            )?)
+        }
+        _ => None,
+    };
+    let movie = match (spool, outputs.movie) {
+        (Some(s), Some(options)) => {
+            let overlay = overlay(tracked, view.per_frame, divisions);
+            Some(render_movie(stack, s, &overlay, &options, dir, review.as_mut())?)
+        }
+        _ => {
+            if let Some(r) = review.as_mut() {
+                offer_all_frames(stack, r)?;
+            }
+            None
+        }
+    };
+    Ok((movie, review.map(ReviewWriter::finish).transpose()?))
 }
 
 /// The figures the verdict is judged from.

@@ -162,16 +162,20 @@ function drawTails(ctx) {
     const k = pointIndex(t, state.frame);
     if (k < 0) continue;
     ctx.strokeStyle = colour(t.id);
-    ctx.beginPath();
-    for (let j = Math.max(0, k - TAIL + 1); j <= k; j++) {
-      if (t.p[j * 4] < state.frame - TAIL) continue;
-      const [cx, cy] = toCanvas(t.p[j * 4 + 1], t.p[j * 4 + 2]);
-      if (j === Math.max(0, k - TAIL + 1)) ctx.moveTo(cx, cy); else ctx.lineTo(cx, cy);
+    // Each segment of the last TAIL frames, older ones fainter.
+    for (let j = Math.max(1, k - TAIL + 1); j <= k; j++) {
+      const age = state.frame - t.p[j * 4];
+      if (state.frame - t.p[(j - 1) * 4] > TAIL) continue;
+      const [x0, y0] = toCanvas(t.p[(j - 1) * 4 + 1], t.p[(j - 1) * 4 + 2]);
+      const [x1, y1] = toCanvas(t.p[j * 4 + 1], t.p[j * 4 + 2]);
+      ctx.globalAlpha = Math.max(0.15, 1 - age / TAIL);
+      ctx.beginPath();
+      ctx.moveTo(x0, y0);
+      ctx.lineTo(x1, y1);
+      ctx.stroke();
     }
-    ctx.globalAlpha = 0.7;
-    ctx.stroke();
-    ctx.globalAlpha = 1;
   }
+  ctx.globalAlpha = 1;
 }
 
 function drawSelectedPath(ctx) {
