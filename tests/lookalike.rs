@@ -268,4 +268,24 @@ fn lookalike_refuses_a_folder_without_tracks_in_one_line() {
     assert_eq!(out.status.code(), Some(2), "{err}");
     assert!(err.contains("holds no tracks"), "{err}");
     assert!(!seg.join("lookalike/summary.json").exists());
+    // Masks tracked without a recording: no intensities to imitate, said so.
+    let masked = dir.path().join("masked");
+    let masks = syn.join("truth_labels.tif");
+    assert!(caravan(&[
+        "track",
+        "--masks",
+        masks.to_str().unwrap(),
+        "-o",
+        masked.to_str().unwrap(),
+        "--no-analysis"
+    ])
+    .status
+    .success());
+    let out = caravan(&["lookalike", masked.to_str().unwrap()]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("without a recording") && err.trim().lines().count() == 1,
+        "{err}"
+    );
 }

@@ -136,6 +136,12 @@ pub fn imitate(run_dir: &Path, work: &Path, options: &LookalikeOptions) -> Resul
         ));
     }
     let objects = read_measured(&tracks)?;
+    if record.input.masks.is_some() && objects.iter().all(|o| o.mean_intensity.is_none()) {
+        return Err(Error::input(
+            run_dir,
+            "was tracked from masks without a recording: a look-alike needs the recording's intensities (track the masks with the recording)",
+        ));
+    }
     let mut stack = crate::review::open_recording(&record, None)?;
     let measured = measure(&mut stack, &objects)?;
     let info = stack.info().clone();
