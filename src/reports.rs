@@ -43,16 +43,7 @@ pub fn run_analysis(
     dir: &Path,
 ) -> Result<AnalysisRun> {
     let run = write_analysis_tables(input, calibration, filters, options, dir)?;
-    let mut page = analysis_page(&run);
-    page.parameters = crate::report_text::analysis_parameters(&run.analysis, filters);
-    if let (Some(record), Some(run_dir)) = (&run.table.run_record, run.table.source.parent()) {
-        page.tracking_parameters = crate::report_text::tracking_parameters(record);
-        page.flagged = crate::report_text::flagged_frames(run_dir, record);
-        page.expected_accuracy = crate::report_text::expected_accuracy(&run_dir.join("lookalike").join("summary.json"));
-        if run_dir.join("review").join("index.html").exists() {
-            page.review_page = Some(relative_review_link(dir, run_dir));
-        }
-    }
+    let page = analysis_page(&run, filters, dir);
     write_atomic(&dir.join("report.html"), analysis_report(&page).as_bytes())?;
     Ok(run)
 }
@@ -71,8 +62,42 @@ fn relative_review_link(report_dir: &Path, run_dir: &Path) -> String {
     }
 }
 
-/// What the analysis page shows, taken from the analysis.
-fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
+/// What the tracking run's folder adds to the page, when the tracks came from one: its
+/// parameters, its frames worth a look, the expected accuracy of its look-alikes and the link
+/// to its review page.
+struct FromRunFolder {
+    tracking_parameters: Vec<crate::render::report::ParameterRow>,
+    flagged: Vec<crate::render::report::FlaggedFrame>,
+    expected_accuracy: Vec<Vec<String>>,
+    review_page: Option<String>,
+}
+
+fn from_run_folder(run: &AnalysisRun, report_dir: &Path) -> FromRunFolder {
+    let none = FromRunFolder {
+        tracking_parameters: Vec::new(),
+        flagged: Vec::new(),
+        expected_accuracy: Vec::new(),
+        review_page: None,
+    };
+    let (Some(record), Some(run_dir)) = (&run.table.run_record, run.table.source.parent()) else {
+        return none;
+    };
+    FromRunFolder {
+        tracking_parameters: crate::report_text::tracking_parameters(record),
+        flagged: crate::report_text::flagged_frames(run_dir, record),
+        expected_accuracy: crate::report_text::expected_accuracy(&run_dir.join("lookalike").join("summary.json")),
+        review_page: run_dir
+            .join("review")
+            .join("index.html")
+            .exists()
+            .then(|| relative_review_link(report_dir, run_dir)),
+    }
+}
+
+/// What the analysis page shows, taken from the analysis, its filters and the tracking run's
+/// folder.
+fn analysis_page<'a>(run: &'a AnalysisRun, filters: &Filters, report_dir: &Path) -> AnalysisPage<'a> {
+    let folder = from_run_folder(run, report_dir);
     let a = &run.analysis;
     let (l, t) = (a.units.length.as_str(), a.units.time.as_str());
     let dt = a.units.time_per_frame;
@@ -138,11 +163,11 @@ fn analysis_page(run: &AnalysisRun) -> AnalysisPage<'_> {
             .iter()
             .filter_map(|b| b.correlation.map(|c| ((b.from + b.to) / 2.0, c)))
             .collect(),
-        parameters: Vec::new(),
-        tracking_parameters: Vec::new(),
-        flagged: Vec::new(),
-        review_page: None,
-        expected_accuracy: Vec::new(),
+        parameters: crate::report_text::analysis_parameters(a, filters),
+        tracking_parameters: folder.tracking_parameters,
+        flagged: folder.flagged,
+        review_page: folder.review_page,
+        expected_accuracy: folder.expected_accuracy,
         confinement: confinement_charts(a),
     }
 }

@@ -10,28 +10,26 @@ use caravan::lookalike::{synth_parameters, write_lookalike, LookalikeOptions};
 use caravan::score::files::score_files;
 use caravan::stack::{OpenOptions, Stack};
 use caravan::synth::{PersistentMotion, Scenario, SynthParams};
-use common::{caravan, ci_python, run_python, track_synthetic};
+use common::{caravan, caravan_ok, ci_python, run_python, synth_recording, track_synthetic};
 use std::path::{Path, PathBuf};
 
 /// Synthesizes a scene with `caravan synth` and tracks it with `caravan track` and its
 /// defaults (as a user runs it), tables only.
 fn tracked_scene(dir: &Path, name: &str, synth: &[&str]) -> (PathBuf, PathBuf) {
     let (syn, run) = (dir.join(format!("{name}_syn")), dir.join(format!("{name}_run")));
-    let mut args = vec!["synth", "-o", syn.to_str().unwrap(), "--size", "384x384"];
+    let mut args = vec!["--size", "384x384"];
     args.extend(synth);
-    let out = caravan(&args);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
-    let recording = syn.join("recording.tif");
-    let out = caravan(&[
+    let recording = synth_recording(&syn, &args);
+    let (recording, out) = (recording.to_str().unwrap(), run.to_str().unwrap());
+    caravan_ok(&[
         "track",
-        recording.to_str().unwrap(),
+        recording,
         "-o",
-        run.to_str().unwrap(),
+        out,
         "--no-analysis",
         "--no-movie",
         "--no-review",
     ]);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
     (syn, run)
 }
 
@@ -190,21 +188,11 @@ fn the_estimators_recover_the_parameters_a_recording_was_made_with() {
 #[test]
 fn track_with_lookalike_writes_what_an_independent_reader_reads_and_the_report_shows_it() {
     let dir = tempfile::tempdir().unwrap();
-    let syn = dir.path().join("syn");
-    let out = caravan(&[
-        "synth",
-        "-o",
-        syn.to_str().unwrap(),
-        "--size",
-        "256x256",
-        "--frames",
-        "12",
-        "--seed",
-        "7",
-    ]);
-    assert!(out.status.success());
+    let recording = synth_recording(
+        &dir.path().join("syn"),
+        &["--size", "256x256", "--frames", "12", "--seed", "7"],
+    );
     let run = dir.path().join("run");
-    let recording = syn.join("recording.tif");
     let out = caravan(&[
         "track",
         recording.to_str().unwrap(),
@@ -245,42 +233,25 @@ fn lookalike_refuses_a_folder_without_tracks_in_one_line() {
     assert!(err.contains("run.json"), "{err}");
     // A run of `segment` (detections only): named, with what is needed.
     let syn = dir.path().join("syn");
-    assert!(caravan(&[
-        "synth",
-        "-o",
-        syn.to_str().unwrap(),
-        "--size",
-        "256x256",
-        "--frames",
-        "4"
-    ])
-    .status
-    .success());
+    let recording = synth_recording(&syn, &["--size", "256x256", "--frames", "4"]);
     let seg = dir.path().join("seg");
-    let recording = syn.join("recording.tif");
-    assert!(
-        caravan(&["segment", recording.to_str().unwrap(), "-o", seg.to_str().unwrap()])
-            .status
-            .success()
-    );
+    caravan_ok(&["segment", recording.to_str().unwrap(), "-o", seg.to_str().unwrap()]);
     let out = caravan(&["lookalike", seg.to_str().unwrap()]);
     let err = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(2), "{err}");
     assert!(err.contains("holds no tracks"), "{err}");
-    assert!(!seg.join("lookalike/summary.json").exists());
+    assert!(!seg.join("lookalike").exists(), "nothing written for a refused run");
     // Masks tracked without a recording: no intensities to imitate, said so.
     let masked = dir.path().join("masked");
     let masks = syn.join("truth_labels.tif");
-    assert!(caravan(&[
+    caravan_ok(&[
         "track",
         "--masks",
         masks.to_str().unwrap(),
         "-o",
         masked.to_str().unwrap(),
-        "--no-analysis"
-    ])
-    .status
-    .success());
+        "--no-analysis",
+    ]);
     let out = caravan(&["lookalike", masked.to_str().unwrap()]);
     let err = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(2), "{err}");

@@ -4,18 +4,14 @@
 
 mod common;
 
-use common::{caravan, ci_python, run_python};
+use common::{caravan, caravan_ok, ci_python, run_python, synth_recording};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
 /// A 640 x 480 recording (downscaled 2:1 for display, so frames at full resolution are kept
 /// too) with divisions, tracked by the binary with its defaults.
 fn tracked_run(dir: &Path) -> PathBuf {
-    let syn = dir.join("syn");
-    let out = caravan(&[
-        "synth",
-        "-o",
-        syn.to_str().unwrap(),
+    let args = [
         "--size",
         "640x480",
         "--frames",
@@ -24,12 +20,10 @@ fn tracked_run(dir: &Path) -> PathBuf {
         "0.01",
         "--seed",
         "5",
-    ]);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    ];
+    let recording = synth_recording(&dir.join("syn"), &args);
     let run = dir.join("run");
-    let recording = syn.join("recording.tif");
-    let out = caravan(&["track", recording.to_str().unwrap(), "-o", run.to_str().unwrap()]);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    caravan_ok(&["track", recording.to_str().unwrap(), "-o", run.to_str().unwrap()]);
     run
 }
 
@@ -117,16 +111,7 @@ fn review_refuses_bad_input_in_one_line_and_leaves_nothing_half_written() {
 
     // Another recording of another size given in its place: refused, naming both sizes.
     let other = dir.path().join("other");
-    let out = caravan(&[
-        "synth",
-        "-o",
-        other.to_str().unwrap(),
-        "--size",
-        "128x128",
-        "--frames",
-        "3",
-    ]);
-    assert!(out.status.success());
+    synth_recording(&other, &["--size", "128x128", "--frames", "3"]);
     let given = other.join("recording.tif");
     let out = caravan(&["review", run.to_str().unwrap(), "--recording", given.to_str().unwrap()]);
     let err = String::from_utf8_lossy(&out.stderr);

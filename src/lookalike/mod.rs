@@ -20,7 +20,7 @@ use crate::score::files::score_files;
 use crate::stack::{OpenOptions, Stack};
 use crate::synth::illumination;
 use crate::synth::{write_recording, Look, PersistentMotion, Scenario, SynthParams};
-use measure::{measure, read_measured, RecordingStats};
+use measure::{measure, read_measured, Measured, RecordingStats};
 use serde::Serialize;
 use std::path::{Path, PathBuf};
 
@@ -120,13 +120,9 @@ pub struct LookalikeSummary {
 /// What a look-alike cannot tell, as the summary and the page say it.
 pub const LIMITS: &str = "A look-alike reproduces the statistics measured here: nucleus size, elongation, brightness and its spread, camera noise, density and packing, speed, persistence, drift, divisions, bleaching and uneven light. Debris, odd shapes, chromatin texture, mitotic figures, focus drift, cells that die or leave the focal plane are not in it: where they matter, the expected accuracy is an upper bound.";
 
-/// Measures the run in `run_dir`, synthesizes and tracks its look-alikes, and returns the
-/// summary (written by the caller).
-///
-/// # Errors
-/// A folder without a tracked run, a recording that cannot be found, or a failure to write the
-/// look-alikes' working files under `work`.
-pub fn imitate(run_dir: &Path, work: &Path, options: &LookalikeOptions) -> Result<LookalikeSummary> {
+/// The run's record, its tracked objects and its recording, opened once; refuses a folder that
+/// is not a tracked run with intensities.
+fn open_run(run_dir: &Path) -> Result<(RunRecord, Vec<Measured>, Stack)> {
     let record = RunRecord::read(&run_dir.join("run.json"))?;
     let tracks = run_dir.join("tracks.csv");
     if record.parameters.link.is_none() || !tracks.exists() {
@@ -142,8 +138,19 @@ pub fn imitate(run_dir: &Path, work: &Path, options: &LookalikeOptions) -> Resul
             "was tracked from masks without a recording: a look-alike needs the recording's intensities (track the masks with the recording)",
         ));
     }
-    let mut stack = crate::review::open_recording(&record, None)?;
-    let measured = measure(&mut stack, &objects)?;
+    let stack = crate::review::open_recording(&record, None)?;
+    Ok((record, objects, stack))
+}
+
+/// Measures the run, synthesizes and tracks its look-alikes (working files under `work`), and
+/// returns the summary (written by the caller).
+fn imitate(
+    run_dir: &Path,
+    (record, objects, stack): (&RunRecord, &[Measured], &mut Stack),
+    work: &Path,
+    options: &LookalikeOptions,
+) -> Result<LookalikeSummary> {
+    let measured = measure(stack, objects)?;
     let info = stack.info().clone();
     let synth = synth_parameters(&measured, (info.width, info.height), options.frames.max(2));
     // One after the other: tracking hands frames between its own threads and rayon's pool,
@@ -152,7 +159,7 @@ pub fn imitate(run_dir: &Path, work: &Path, options: &LookalikeOptions) -> Resul
         .map(|k| {
             let seed = options.seed + k as u64;
             track_lookalike(
-                &record,
+                record,
                 &SynthParams { seed, ..synth.clone() },
                 &work.join(format!("{k}")),
             )
@@ -321,13 +328,13 @@ fn vignette_for(unevenness: f64) -> f64 {
 /// into `out` (each written whole, then renamed); the look-alikes' own files are removed.
 ///
 /// # Errors
-/// As [`imitate`], or an output that cannot be written.
+/// A folder without a tracked run, a recording that cannot be found, or an output that
+/// cannot be written.
 pub fn write_lookalike(run_dir: &Path, out: &Path, options: &LookalikeOptions) -> Result<LookalikeSummary> {
+    let (record, objects, mut real) = open_run(run_dir)?;
     crate::output::ensure_dir(out)?;
     let work = WorkDir(out.join(format!(".work-{}", std::process::id())));
-    let summary = imitate(run_dir, &work.0, options)?;
-    let record = RunRecord::read(&run_dir.join("run.json"))?;
-    let mut real = crate::review::open_recording(&record, None)?;
+    let summary = imitate(run_dir, (&record, &objects, &mut real), &work.0, options)?;
     let mut imitation = Stack::open(&work.0.join("0/syn/recording.tif"), &OpenOptions::default())?;
     let frames = same_contrast_pngs(&mut real, &mut imitation)?;
     let json = serde_json::to_vec_pretty(&summary).expect("plain data");

@@ -8,7 +8,7 @@
 
 use super::font::{draw_text, text_width};
 use super::review::ReviewWriter;
-use super::{is_edge, DisplayRange, PALETTE};
+use super::{box_average, is_edge, DisplayRange, PALETTE};
 use crate::error::{Error, Result};
 use crate::output::AtomicFile;
 use crate::stack::Stack;
@@ -194,10 +194,11 @@ pub fn render_movie(
                 continue;
             }
             let raw = stack.read_frame(t)?.pixels.to_f32();
+            let averaged = box_average(&raw, w, h, factor);
             if let Some(r) = review.as_deref_mut() {
-                r.offer(t, &raw)?;
+                r.offer_averaged(t, &raw, (factor, &averaged))?;
             }
-            let mut canvas = downscale_grey(&raw, w, h, factor, &stretch);
+            let mut canvas = indexed_grey(&averaged, (mw, mh), &stretch);
             draw_tails(&mut canvas, overlay, t, factor);
             draw_division_marks(&mut canvas, overlay, t, factor);
             for (i, l) in outline {
@@ -257,22 +258,11 @@ fn faded_colour(track: u32, level: usize) -> u8 {
     (GREYS + level.min(SHADES.len() - 1) * PALETTE.len() + (track as usize - 1) % PALETTE.len()) as u8
 }
 
-/// Box-averaged downscale by an integer factor into palette grey indices.
-fn downscale_grey(raw: &[f32], w: usize, h: usize, factor: usize, stretch: &DisplayRange) -> image::GrayImage {
-    let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
-    let mut sum = vec![0f32; mw * mh];
-    let mut count = vec![0f32; mw * mh];
-    for y in 0..h {
-        for x in 0..w {
-            let k = (y / factor) * mw + x / factor;
-            sum[k] += raw[y * w + x];
-            count[k] += 1.0;
-        }
-    }
-    let data = sum
+/// A block-averaged frame ([`super::box_average`]) as palette grey indices.
+fn indexed_grey(averaged: &[f32], (mw, mh): (usize, usize), stretch: &DisplayRange) -> image::GrayImage {
+    let data = averaged
         .iter()
-        .zip(&count)
-        .map(|(s, c)| (stretch.unit(s / c) * (GREYS - 1) as f32).round() as u8)
+        .map(|&v| (stretch.unit(v) * (GREYS - 1) as f32).round() as u8)
         .collect();
     image::GrayImage::from_raw(mw as u32, mh as u32, data).expect("sized buffer")
 }

@@ -23,6 +23,22 @@ pub const PALETTE: [[u8; 3]; 12] = [
     [255, 150, 220],
 ];
 
+/// The mean of each `factor` x `factor` block of a `w` x `h` image (blocks at the right and
+/// bottom edges may be smaller): the downscale of the movie and of the review page alike.
+pub fn box_average(raw: &[f32], w: usize, h: usize, factor: usize) -> Vec<f32> {
+    let (bw, bh) = (w.div_ceil(factor), h.div_ceil(factor));
+    let mut sum = vec![0f32; bw * bh];
+    let mut count = vec![0f32; bw * bh];
+    for y in 0..h {
+        for x in 0..w {
+            let k = (y / factor) * bw + x / factor;
+            sum[k] += raw[y * w + x];
+            count[k] += 1.0;
+        }
+    }
+    sum.iter().zip(&count).map(|(s, c)| s / c).collect()
+}
+
 /// A linear display mapping: the 0.5th percentile of a reference image to black and the
 /// 99.8th to white (common practice for fluorescence display: ignores hot pixels and the
 /// darkest noise).
@@ -120,4 +136,19 @@ pub fn caption(img: &mut RgbImage, text: &str) {
             img.put_pixel(x, y, Rgb([255, 255, 255]));
         }
     });
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn box_average_takes_the_mean_of_each_block() {
+        // Hand-computed: a 3 x 2 image in blocks of 2, the right block one column wide:
+        // (0 + 10 + 30 + 40) / 4 = 20 and (20 + 50) / 2 = 35.
+        assert_eq!(
+            box_average(&[0.0, 10.0, 20.0, 30.0, 40.0, 50.0], 3, 2, 2),
+            vec![20.0, 35.0]
+        );
+    }
 }

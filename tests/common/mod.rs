@@ -56,6 +56,28 @@ pub fn caravan(args: &[&str]) -> std::process::Output {
         .unwrap()
 }
 
+/// Runs `caravan ARGS...`, failing the test with its error output unless it succeeds (not every
+/// test crate that shares this module runs it).
+#[allow(dead_code)]
+pub fn caravan_ok(args: &[&str]) -> std::process::Output {
+    let out = caravan(args);
+    assert!(
+        out.status.success(),
+        "caravan {args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    out
+}
+
+/// `caravan synth -o DIR ARGS...`; returns the recording's path.
+#[allow(dead_code)]
+pub fn synth_recording(dir: &std::path::Path, args: &[&str]) -> PathBuf {
+    let mut all = vec!["synth", "-o", dir.to_str().unwrap()];
+    all.extend(args);
+    caravan_ok(&all);
+    dir.join("recording.tif")
+}
+
 /// The Python of CI's virtual environment, or `None` outside CI (where the check is skipped).
 #[allow(dead_code)]
 pub fn ci_python() -> Option<String> {

@@ -16,7 +16,7 @@
 mod page;
 
 use crate::error::{Error, Result};
-use crate::render::DisplayRange;
+use crate::render::{box_average, DisplayRange};
 use rayon::prelude::*;
 use std::collections::BTreeSet;
 use std::fmt::Write as _;
@@ -192,7 +192,8 @@ pub struct ReviewWriter {
     factor: usize,
     plan: FullFramePlan,
     stretch: Option<DisplayRange>,
-    batch: Vec<(usize, Vec<u8>)>,
+    /// Frames waiting to be encoded: display pixels, and full-resolution ones where kept.
+    batch: Vec<(usize, Vec<u8>, Option<Vec<u8>>)>,
     offered: usize,
     bytes: u64,
 }
@@ -246,6 +247,15 @@ impl ReviewWriter {
     /// # Errors
     /// A frame out of order, or one that cannot be written.
     pub fn offer(&mut self, t: usize, raw: &[f32]) -> Result<()> {
+        self.offer_averaged(t, raw, (0, &[]))
+    }
+
+    /// [`ReviewWriter::offer`] with the frame already block-averaged by `factor` (the movie's
+    /// downscale, [`crate::render::box_average`]), used when it is the display's factor.
+    ///
+    /// # Errors
+    /// As [`ReviewWriter::offer`].
+    pub fn offer_averaged(&mut self, t: usize, raw: &[f32], (factor, averaged): (usize, &[f32])) -> Result<()> {
         if t != self.offered {
             return Err(Error::output(
                 &self.target,
@@ -253,9 +263,23 @@ impl ReviewWriter {
             ));
         }
         self.offered += 1;
-        let stretch = self.stretch.get_or_insert_with(|| DisplayRange::from_values(raw));
-        let grey = raw.iter().map(|&v| (stretch.unit(v) * 255.0).round() as u8).collect();
-        self.batch.push((t, grey));
+        let stretch = *self.stretch.get_or_insert_with(|| DisplayRange::from_values(raw));
+        let (w, h) = self.input.size;
+        let to_grey = |values: &[f32]| -> Vec<u8> {
+            values
+                .iter()
+                .map(|&v| (stretch.unit(v) * 255.0).round() as u8)
+                .collect()
+        };
+        // Averaged before stretching, so that only the display's pixels are mapped; the full
+        // frame is mapped only where it is kept.
+        let display = if factor == self.factor {
+            to_grey(averaged)
+        } else {
+            to_grey(&box_average(raw, w, h, self.factor))
+        };
+        let full = self.plan.frames.contains(&t).then(|| to_grey(raw));
+        self.batch.push((t, display, full));
         if self.batch.len() >= ENCODE_BATCH {
             self.encode_batch()?;
         }
@@ -265,17 +289,11 @@ impl ReviewWriter {
     /// Encodes the held frames in parallel and writes them in frame order.
     fn encode_batch(&mut self) -> Result<()> {
         let (w, h) = self.input.size;
-        let factor = self.factor;
-        let plan = &self.plan;
+        let (dw, dh) = (w.div_ceil(self.factor), h.div_ceil(self.factor));
         let encoded: Vec<(usize, Vec<u8>, Option<Vec<u8>>)> = self
             .batch
             .par_iter()
-            .map(|(t, grey)| {
-                let (dw, dh, display) = downscale(grey, w, h, factor);
-                let small = jpeg(&display, dw, dh);
-                let full = plan.frames.contains(t).then(|| jpeg(grey, w, h));
-                (*t, small, full)
-            })
+            .map(|(t, display, full)| (*t, jpeg(display, dw, dh), full.as_ref().map(|f| jpeg(f, w, h))))
             .collect();
         self.batch.clear();
         for (t, small, full) in encoded {
@@ -335,25 +353,6 @@ impl Drop for ReviewWriter {
     fn drop(&mut self) {
         let _ = std::fs::remove_dir_all(&self.staging);
     }
-}
-
-/// Box-averaged downscale of an 8-bit image by an integer factor.
-fn downscale(grey: &[u8], w: usize, h: usize, factor: usize) -> (usize, usize, Vec<u8>) {
-    if factor == 1 {
-        return (w, h, grey.to_vec());
-    }
-    let (dw, dh) = (w.div_ceil(factor), h.div_ceil(factor));
-    let mut sum = vec![0u32; dw * dh];
-    let mut count = vec![0u32; dw * dh];
-    for (y, row) in grey.chunks_exact(w).enumerate() {
-        let base = (y / factor) * dw;
-        for (x, &v) in row.iter().enumerate() {
-            sum[base + x / factor] += v as u32;
-            count[base + x / factor] += 1;
-        }
-    }
-    let data = sum.iter().zip(&count).map(|(s, c)| ((s + c / 2) / c) as u8).collect();
-    (dw, dh, data)
 }
 
 /// A greyscale baseline JPEG (the `image` crate's encoder).
@@ -420,14 +419,6 @@ mod tests {
         assert_eq!(plan.every, 8);
         assert!(plan.frames.len() <= 100, "{}", plan.frames.len());
         assert_eq!(FullFramePlan::choose(400, 1, &moments).frames.len(), 0);
-    }
-
-    #[test]
-    fn downscale_averages_blocks() {
-        // 3 x 2 image, factor 2: blocks (0,1,3,4), (2,5) -> rounded means.
-        let (w, h, d) = downscale(&[0, 10, 20, 30, 40, 50], 3, 2, 2);
-        assert_eq!((w, h), (2, 1));
-        assert_eq!(d, vec![20, 35]);
     }
 
     #[test]
