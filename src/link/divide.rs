@@ -117,9 +117,12 @@ struct Candidate {
 /// each the first point of its track after `f` (one may continue the mother's own track), with
 /// both daughters within [`LinkParams::daughter_reach_px`] of `m`, the midpoint of the daughters closer to the
 /// mother's predicted position than half the daughters' distance and than half the maximum
-/// step, and sizes and brightness within [`DivisionRules`]. Its cost is the squared distance
-/// from the predicted position to the daughters' midpoint; candidates are accepted in
-/// ascending cost, each point used once.
+/// step, and sizes and brightness within [`DivisionRules`]. For a mother seen entering mitosis
+/// (see `MotherFigures`) the second daughter may instead be the first point of a track at
+/// `f+2`: born hidden in her sister's or a neighbour's object, she comes out of it a frame on.
+/// Its cost is the squared distance from the predicted position to the daughters' midpoint,
+/// plus a quarter of the squared maximum step for a late daughter (so every on-time candidate
+/// comes first); candidates are accepted in ascending cost, each point used once.
 ///
 /// # Method
 /// Divisions as splitting events in the sense of the segment step of Jaqaman et al. (2008),
@@ -186,6 +189,9 @@ fn find_candidates(
     let typical_area = median_area_by_frame(points);
     let mut out = Vec::new();
     let max2 = params.daughter_reach_px().powi(2);
+    // Every candidate with a late daughter costs more than any on time (whose cost is below
+    // a quarter of the squared maximum step).
+    let late_penalty = (0.5 * params.max_step_px).powi(2);
     for pts in tracks.values() {
         for (pos, &m) in pts.iter().enumerate() {
             let f = points[m].detection.frame;
@@ -197,7 +203,7 @@ fn find_candidates(
             daughters.extend(starts_by_frame.get(&(f + 1)).into_iter().flatten().copied());
             daughters.retain(|&k| distance2(&points[m], &points[k]) <= max2);
             let gap_after = continuation.is_none() && pos + 1 < pts.len();
-            if daughters.len() < 2 || gap_after || pos + 1 < rules.min_mother_points {
+            if daughters.is_empty() || gap_after || pos + 1 < rules.min_mother_points {
                 continue;
             }
             let predicted = predicted_after(points, &pts[..=pos], params);
@@ -205,8 +211,15 @@ fn find_candidates(
             if !mother.mitotic && mother.area > rules.mother_to_typical_area * typical_area[&f] {
                 continue;
             }
-            for (i, &a) in daughters.iter().enumerate() {
-                for &b in &daughters[i + 1..] {
+            // A mitotic mother's second daughter may first be seen a frame late: born pressed
+            // against her sister or a neighbour, she comes out of that object a frame on.
+            let on_time = daughters.len();
+            if mother.mitotic {
+                let late = starts_by_frame.get(&(f + 2)).into_iter().flatten().copied();
+                daughters.extend(late.filter(|&k| distance2(&points[m], &points[k]) <= max2));
+            }
+            for (i, &a) in daughters[..on_time].iter().enumerate() {
+                for (j, &b) in daughters.iter().enumerate().skip(i + 1) {
                     // A mother whose track goes on must have it go on as one of the daughters.
                     if continuation.is_some_and(|c| a != c && b != c) {
                         continue;
@@ -223,7 +236,7 @@ fn find_candidates(
                     }
                     if let Some(cost) = division_cost(points, predicted, &mother, [a, b], params, rules) {
                         out.push(Candidate {
-                            cost,
+                            cost: cost + if j >= on_time { late_penalty } else { 0.0 },
                             mother: m,
                             daughters: [a, b],
                         });
@@ -507,6 +520,15 @@ mod tests {
     /// [`mitosis_movie`] with the mother's last two points `(area, mean)` and the daughters'
     /// `(area, mean)`.
     fn mitosis_movie_with(last: (f64, f64), daughters: [(f64, f64); 2]) -> Vec<TrackedDetection> {
+        mitosis_movie_sister_from(last, daughters, 6)
+    }
+
+    /// [`mitosis_movie_with`] whose second daughter is first seen at frame `sister_from`.
+    fn mitosis_movie_sister_from(
+        last: (f64, f64),
+        daughters: [(f64, f64); 2],
+        sister_from: usize,
+    ) -> Vec<TrackedDetection> {
         let with = |d: Detection, area: f64, mean: f64| Detection {
             area_px: area,
             mean_intensity: mean,
@@ -521,6 +543,7 @@ mod tests {
                 0..=3 => vec![with(nucleus(t, 1, x, 50.0, 100.0), 100.0, 500.0)],
                 4 | 5 => vec![with(nucleus(t, 1, x, 50.0, last.0), last.0, last.1)],
                 _ => (0..2)
+                    .filter(|&k| k == 0 || t >= sister_from)
                     .map(|k| {
                         let y = 50.0 + if k == 0 { -4.0 } else { 4.0 } * (1.0 + 0.1 * (t - 6) as f64);
                         let (area, mean) = daughters[k as usize];
@@ -548,6 +571,40 @@ mod tests {
         assert_eq!(events[0].frame, 5);
         let mut points = mitosis_movie(500.0);
         assert!(detect_divisions(&mut points, &params, &rules).is_empty());
+    }
+
+    #[test]
+    fn a_mitotic_mother_s_second_daughter_may_be_seen_a_frame_late() {
+        // Source: construction. A mother brightening 1.4x into mitosis (frames 4-5), one
+        // daughter from frame 6 on (her track goes on into it), the other first seen at frame
+        // 7 (born hidden in her sister's object): one division at frame 5 with both. A mother
+        // who did not brighten, with daughters that pass every rule when on time, gets no
+        // division from a daughter a frame late: without the brightening, a nucleus appearing
+        // near another is no evidence of a division.
+        let params = LinkParams::for_diameter(14.0);
+        let rules = DivisionRules::default();
+        let mut points = mitosis_movie_sister_from((110.0, 700.0), [(60.0, 500.0); 2], 7);
+        let events = detect_divisions(&mut points, &params, &rules);
+        assert_eq!(events.len(), 1, "{events:?}");
+        assert_eq!((events[0].frame, events[0].mother), (5, 1));
+        let mut first_frames: Vec<usize> = events[0]
+            .daughters
+            .iter()
+            .map(|&d| {
+                points
+                    .iter()
+                    .filter(|p| p.track_id == d)
+                    .map(|p| p.detection.frame)
+                    .min()
+                    .unwrap()
+            })
+            .collect();
+        first_frames.sort_unstable();
+        assert_eq!(first_frames, [6, 7]);
+        let mut on_time = mitosis_movie_with((110.0, 500.0), [(60.0, 500.0); 2]);
+        assert_eq!(detect_divisions(&mut on_time, &params, &rules).len(), 1);
+        let mut late = mitosis_movie_sister_from((110.0, 500.0), [(60.0, 500.0); 2], 7);
+        assert!(detect_divisions(&mut late, &params, &rules).is_empty());
     }
 
     #[test]

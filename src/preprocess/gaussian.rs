@@ -21,7 +21,13 @@ pub fn gaussian_radius(sigma: f32) -> usize {
 /// # Panics
 /// For orders other than 0 and 2 (a caller bug).
 pub fn gaussian_derivative_kernel(sigma: f32, order: u8) -> Vec<f32> {
-    let radius = gaussian_radius(sigma) as i64;
+    truncated_derivative_kernel(sigma, order, 4.0)
+}
+
+/// [`gaussian_derivative_kernel`] reaching `truncate` standard deviations either side (radius
+/// `⌊truncate·σ + 0.5⌋`, scipy's `truncate`; 4 in [`gaussian_derivative_kernel`]).
+pub fn truncated_derivative_kernel(sigma: f32, order: u8, truncate: f64) -> Vec<f32> {
+    let radius = (truncate * sigma as f64 + 0.5) as i64;
     let sigma = sigma as f64;
     let phi: Vec<f64> = (-radius..=radius)
         .map(|x| (-0.5 * (x * x) as f64 / (sigma * sigma)).exp())
@@ -67,6 +73,63 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
     let b = convolve_separable(image, &g0, &g2);
     a += &b;
     a
+}
+
+/// [`gaussian_laplace`] of a `width`-wide frame (`values`, row-major) at the given pixels
+/// only, with kernels reaching `truncate` standard deviations (4 gives exactly the whole-frame
+/// result: the same kernels, reflection at the borders and order of additions). The row
+/// passes run over the pixels' columns and the rows within the kernel's reach of them, so the
+/// work follows the pixels' box, not the frame.
+pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f64, pixels: &[u32]) -> Vec<f32> {
+    let height = values.len() / width.max(1);
+    let (Some(&first), true) = (pixels.first(), width > 0) else {
+        return Vec::new();
+    };
+    let g0 = truncated_derivative_kernel(sigma, 0, truncate);
+    let g2 = truncated_derivative_kernel(sigma, 2, truncate);
+    let r = g0.len() / 2;
+    let (mut x0, mut x1, mut y0, mut y1) = (first as usize % width, 0, first as usize / width, 0);
+    for &p in pixels {
+        let (x, y) = (p as usize % width, p as usize / width);
+        (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
+    }
+    // Rows y0 - r .. y1 + r (as offsets), columns x0..x1: each row filtered with g0 and g2.
+    let band = x1 - x0;
+    let rows = y1 - y0 + 2 * r;
+    let mut with_g0 = vec![0f32; rows * band];
+    let mut with_g2 = vec![0f32; rows * band];
+    let mut padded = vec![0f32; band + 2 * r];
+    for j in 0..rows {
+        let sy = reflect(y0 as isize + j as isize - r as isize, height);
+        let line = &values[sy * width..(sy + 1) * width];
+        for (i, v) in padded.iter_mut().enumerate() {
+            *v = line[reflect(x0 as isize + i as isize - r as isize, width)];
+        }
+        let out0 = &mut with_g0[j * band..(j + 1) * band];
+        for (k, &w0) in g0.iter().enumerate() {
+            out0.iter_mut()
+                .zip(&padded[k..k + band])
+                .for_each(|(o, &v)| *o += w0 * v);
+        }
+        let out2 = &mut with_g2[j * band..(j + 1) * band];
+        for (k, &w2) in g2.iter().enumerate() {
+            out2.iter_mut()
+                .zip(&padded[k..k + band])
+                .for_each(|(o, &v)| *o += w2 * v);
+        }
+    }
+    pixels
+        .iter()
+        .map(|&p| {
+            let (c, j) = (p as usize % width - x0, p as usize / width - y0);
+            let (mut a, mut b) = (0f32, 0f32);
+            for (k, (&w0, &w2)) in g0.iter().zip(&g2).enumerate() {
+                a += w0 * with_g2[(j + k) * band + c];
+                b += w2 * with_g0[(j + k) * band + c];
+            }
+            a + b
+        })
+        .collect()
 }
 
 /// Convolves rows with `kernel_x` and columns with `kernel_y` (odd-length, centred kernels),
@@ -141,5 +204,25 @@ mod tests {
             .sum();
         assert!(m0.abs() < 2e-3, "{m0}");
         assert!((m2 - 1.0).abs() < 5e-3, "{m2}");
+    }
+
+    #[test]
+    fn the_laplacian_at_some_pixels_equals_the_whole_frame_one() {
+        // Source: gaussian_laplace (checked against scipy.ndimage.gaussian_laplace in
+        // tests/reference_filters.rs): the sparse evaluation must give the same numbers at the
+        // pixels asked for, also next to the frame's edges where the kernel reflects.
+        let (w, h) = (37, 23);
+        let values: Vec<f32> = (0..w * h).map(|i| ((i * 7919) % 263) as f32 + (i % w) as f32).collect();
+        let image = crate::image2d::from_vec(w, h, values.clone());
+        let whole = gaussian_laplace(&image, 2.3);
+        let whole = whole.as_slice().unwrap();
+        let pixels: Vec<u32> = [0, 1, w, 5 * w + 17, 11 * w + 36, (h - 1) * w + 3, w * h - 1]
+            .into_iter()
+            .map(|p| p as u32)
+            .collect();
+        let at = gaussian_laplace_at(&values, w, 2.3, 4.0, &pixels);
+        for (&p, v) in pixels.iter().zip(at) {
+            assert_eq!(v, whole[p as usize], "pixel {p}");
+        }
     }
 }

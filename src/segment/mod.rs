@@ -3,6 +3,7 @@
 //! the mask (which splits touching nuclei), size filtering and per-object measurements.
 //! Linking is not done here.
 
+mod blobs;
 pub mod cluster;
 pub mod diameter;
 mod dim;
@@ -90,14 +91,13 @@ pub(crate) fn segment_frame_and_prepared(
         );
     }
     label::fill_holes(&mut mask, w, h);
-    let (mut labels, foreground) = split::split_touching_with_pixels(
-        &mask,
-        w,
-        h,
-        params.seed_h_px,
-        params.distance_smoothing_px,
-        Some((values, noise)),
-    );
+    let cues = split::IntensityCues {
+        values,
+        noise,
+        blobs: blobs::BlobRule::new(params.diameter_px, noise),
+    };
+    let (mut labels, foreground) =
+        split::split_touching_with_pixels(&mask, w, h, params.seed_h_px, params.distance_smoothing_px, Some(&cues));
     let expected_area = std::f64::consts::PI * params.diameter_px * params.diameter_px / 4.0;
     let clusters_cut = cluster::cut_oversized(&mut labels, &foreground, w, params.max_area_px, expected_area);
     let before = count_labels(&labels, &foreground);
@@ -216,9 +216,10 @@ mod tests {
     #[test]
     fn a_cluster_too_large_for_one_nucleus_is_cut_not_dropped() {
         // Source: construction. A uniform bright 60 x 30 px block (1800 px) on a dark frame has
-        // one distance maximum (a ridge) and no seam, so it is one object; at a 14 px diameter
-        // a nucleus covers 153.9 px and the largest object kept is 5 of them (769.7 px), so
-        // the block is cut into round(1800 / 153.9) = 12 parts, and nothing is dropped.
+        // one distance maximum (a ridge) and no seam; its blob response is high only at its two
+        // ends (flat inside), so the blob step halves it. At a 14 px diameter a nucleus covers
+        // 153.9 px and the largest object kept is 5 of them (769.7 px), so each half (900 px)
+        // is cut into round(900 / 153.9) = 6 parts, 12 in all, and nothing is dropped.
         let img = Image::from_shape_fn((80, 120), |(y, x)| {
             if (25..55).contains(&y) && (30..90).contains(&x) {
                 1000.0
@@ -234,7 +235,7 @@ mod tests {
             seg.size_filter,
             SizeFilterCounts {
                 dropped_small: 0,
-                clusters_cut: 1
+                clusters_cut: 2
             }
         );
         assert_eq!(seg.detections.len(), 12);

@@ -74,12 +74,32 @@ for t in range(T):
 with open(f"{seg}/tracks.csv", newline="") as f:
     tracks = list(csv.DictReader(f))
 assert list(tracks[0].keys())[:5] == ["track_id", "parent_id", "frame", "x", "y"]
-assert len(tracks) == len(dets), "every detection is on a track"
+with open(f"{seg}/run.json") as f:
+    shared = json.load(f)["shared_objects_split"]
+# Every detection is on a track, and an object that time split as two nuclei is on two (both
+# points keep its label; README, "How tracks are built"): one extra row per split.
+assert len(tracks) == len(dets) + shared, (len(tracks), len(dets), shared)
 keys = [(int(r["track_id"]), int(r["frame"])) for r in tracks]
 assert keys == sorted(keys) and len(set(keys)) == len(keys), "sorted by track then frame, one point per frame"
+points_of = {}
 for r in tracks:
-    d = by_key[(int(r["frame"]), int(r["object"]))]
-    assert (r["x"], r["y"], r["area_px"]) == (d["x"], d["y"], d["area_px"])
+    points_of.setdefault((int(r["frame"]), int(r["object"])), []).append(r)
+assert set(points_of) == set(by_key), "the tracks hold exactly the detected objects"
+assert sum(len(v) - 1 for v in points_of.values()) == shared
+for key, rows in points_of.items():
+    d = by_key[key]
+    if len(rows) == 1:
+        assert (rows[0]["x"], rows[0]["y"], rows[0]["area_px"]) == (d["x"], d["y"], d["area_px"])
+    else:
+        # A split object's area is shared out in whole pixels and its centroid is the parts'
+        # area-weighted mean (link/repair.rs, split_between).
+        assert len(rows) == 2, rows
+        areas = [float(r["area_px"]) for r in rows]
+        assert sum(areas) == float(d["area_px"]), (areas, d["area_px"])
+        for axis in ("x", "y"):
+            mean = sum(a * float(r[axis]) for a, r in zip(areas, rows)) / sum(areas)
+            assert abs(mean - float(d[axis])) < 0.01, (axis, mean, d[axis])
+for r in tracks:
     if r["link_confidence"]:
         assert 0.0 <= float(r["link_confidence"]) <= 1.0 and float(r["distance_from_prediction_px"]) >= 0.0
 with open(f"{seg}/per_track.csv", newline="") as f:
