@@ -202,8 +202,21 @@ fn find_candidates(
             let mut daughters: Vec<usize> = continuation.into_iter().collect();
             daughters.extend(starts_by_frame.get(&(f + 1)).into_iter().flatten().copied());
             daughters.retain(|&k| distance2(&points[m], &points[k]) <= max2);
+            // A mitotic mother's second daughter may first be seen a frame late: born pressed
+            // against her sister or a neighbour, she comes out of that object a frame on.
+            let late: Vec<usize> = starts_by_frame
+                .get(&(f + 2))
+                .into_iter()
+                .flatten()
+                .copied()
+                .filter(|&k| distance2(&points[m], &points[k]) <= max2)
+                .collect();
             let gap_after = continuation.is_none() && pos + 1 < pts.len();
-            if daughters.is_empty() || gap_after || pos + 1 < rules.min_mother_points {
+            if daughters.is_empty()
+                || daughters.len() + late.len() < 2
+                || gap_after
+                || pos + 1 < rules.min_mother_points
+            {
                 continue;
             }
             let predicted = predicted_after(points, &pts[..=pos], params);
@@ -211,12 +224,9 @@ fn find_candidates(
             if !mother.mitotic && mother.area > rules.mother_to_typical_area * typical_area[&f] {
                 continue;
             }
-            // A mitotic mother's second daughter may first be seen a frame late: born pressed
-            // against her sister or a neighbour, she comes out of that object a frame on.
             let on_time = daughters.len();
             if mother.mitotic {
-                let late = starts_by_frame.get(&(f + 2)).into_iter().flatten().copied();
-                daughters.extend(late.filter(|&k| distance2(&points[m], &points[k]) <= max2));
+                daughters.extend(late);
             }
             for (i, &a) in daughters[..on_time].iter().enumerate() {
                 for (j, &b) in daughters.iter().enumerate().skip(i + 1) {

@@ -226,7 +226,7 @@ fn each_basin_on_its_own(
 ) -> Vec<u32> {
     let boxes = basin_boxes(labels, width);
     let mut basin_values: Vec<Vec<f32>> = vec![Vec::new(); boxes.len()];
-    for (&l, &v) in labels.iter().zip(values) {
+    for (&l, &v) in labels.iter().zip(values).filter(|(&l, _)| l > 0) {
         basin_values[l as usize].push(v);
     }
     let component_bright = bright_level(basin_values.iter().skip(1).flatten().copied().collect());
