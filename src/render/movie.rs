@@ -3,8 +3,9 @@
 //! and the frame number and time; plus a contact sheet of evenly spaced frames.
 //!
 //! It shows final track ids, so it is drawn after linking: outlines are spooled to a compact
-//! file during segmentation ([`OutlineSpool`]) and the frames are decoded a second time, one at
-//! a time, so memory stays bounded by a frame.
+//! file during segmentation ([`OutlineSpool`]) and the frames are decoded a second time, a few
+//! at a time, drawn and compressed in parallel and written in order, so memory stays bounded
+//! by a few frames and the movie is the same whatever the thread count.
 
 use super::font::{draw_text, text_width};
 use super::review::ReviewWriter;
@@ -14,6 +15,7 @@ use crate::output::AtomicFile;
 use crate::stack::Stack;
 use image::{Rgb, RgbImage};
 use imageproc::drawing::draw_line_segment_mut;
+use rayon::prelude::*;
 use std::fs::File;
 use std::io::{BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
@@ -185,47 +187,91 @@ pub fn render_movie(
         let mut encoder = gif::Encoder::new(&mut file, mw as u16, mh as u16, &palette()).map_err(gif_error)?;
         encoder.set_repeat(gif::Repeat::Infinite).map_err(gif_error)?;
         let mut reader = spool.reader()?;
-        for t in 0..info.frames {
-            let outline = read_outline(&mut reader, &spool.path)?;
-            if t % step != 0 {
+        let look = MovieLook {
+            overlay,
+            stretch,
+            size: (w, h),
+            factor,
+            interval_s: info.calibration.frame_interval_s,
+        };
+        for first in (0..info.frames).step_by(DRAW_BATCH) {
+            let mut batch = Vec::with_capacity(DRAW_BATCH);
+            for t in first..(first + DRAW_BATCH).min(info.frames) {
+                let outline = read_outline(&mut reader, &spool.path)?;
+                batch.push((t, stack.read_frame(t)?.pixels.to_f32(), outline));
+            }
+            let drawn: Vec<Option<DrawnFrame>> = batch
+                .par_iter()
+                .map(|(t, raw, outline)| (t % step == 0).then(|| look.draw(*t, raw, outline)))
+                .collect();
+            for ((t, raw, _), drawn) in batch.iter().zip(drawn) {
+                let Some(d) = drawn else {
+                    if let Some(r) = review.as_deref_mut() {
+                        r.offer(*t, raw)?;
+                    }
+                    continue;
+                };
                 if let Some(r) = review.as_deref_mut() {
-                    r.offer(t, &stack.read_frame(t)?.pixels.to_f32())?;
+                    r.offer_averaged(*t, raw, (factor, &d.averaged))?;
                 }
-                continue;
+                sheet.offer(t / step, &d.canvas);
+                encoder.write_lzw_pre_encoded_frame(&d.gif).map_err(gif_error)?;
             }
-            let raw = stack.read_frame(t)?.pixels.to_f32();
-            let averaged = box_average(&raw, w, h, factor);
-            if let Some(r) = review.as_deref_mut() {
-                r.offer_averaged(t, &raw, (factor, &averaged))?;
-            }
-            let mut canvas = indexed_grey(&averaged, (mw, mh), &stretch);
-            draw_tails(&mut canvas, overlay, t, factor);
-            draw_division_marks(&mut canvas, overlay, t, factor);
-            for (i, l) in outline {
-                let track = overlay.track_of_label[t].get(l as usize - 1).copied().unwrap_or(0);
-                let (x, y) = (i as usize % w / factor, i as usize / w / factor);
-                canvas.put_pixel(x as u32, y as u32, image::Luma([track_colour(track)]));
-            }
-            let time = info
-                .calibration
-                .frame_interval_s
-                .map(|s| format_time(t as f64 * s))
-                .unwrap_or_default();
-            caption_indexed(&mut canvas, &format!("t={t} {time}"));
-            sheet.offer(t / step, &canvas);
-            let frame = gif::Frame {
-                width: mw as u16,
-                height: mh as u16,
-                delay: 10,
-                buffer: std::borrow::Cow::Borrowed(canvas.as_raw()),
-                ..gif::Frame::default()
-            };
-            encoder.write_frame(&frame).map_err(gif_error)?;
         }
     }
     file.commit()?;
     sheet.write(&out.sheet)?;
     Ok(out)
+}
+
+/// Frames read, then drawn and compressed in parallel, at a time (bounds the memory held: a
+/// few decoded frames).
+const DRAW_BATCH: usize = 8;
+
+/// What every movie frame is drawn with.
+struct MovieLook<'a> {
+    overlay: &'a TrackOverlay,
+    stretch: DisplayRange,
+    size: (usize, usize),
+    factor: usize,
+    interval_s: Option<f64>,
+}
+
+/// One movie frame: the block average it was drawn from (the review page's display frame
+/// when the factors agree), the drawn canvas and its GIF frame, already compressed.
+struct DrawnFrame {
+    averaged: Vec<f32>,
+    canvas: image::GrayImage,
+    gif: gif::Frame<'static>,
+}
+
+impl MovieLook<'_> {
+    /// Frame `t` downscaled, stretched, with tails, division marks, outlines in track colours
+    /// and the caption; compressed for the GIF (the same bytes as the encoder would write).
+    fn draw(&self, t: usize, raw: &[f32], outline: &[(u32, u32)]) -> DrawnFrame {
+        let ((w, h), factor) = (self.size, self.factor);
+        let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
+        let averaged = box_average(raw, w, h, factor);
+        let mut canvas = indexed_grey(&averaged, (mw, mh), &self.stretch);
+        draw_tails(&mut canvas, self.overlay, t, factor);
+        draw_division_marks(&mut canvas, self.overlay, t, factor);
+        for &(i, l) in outline {
+            let track = self.overlay.track_of_label[t].get(l as usize - 1).copied().unwrap_or(0);
+            let (x, y) = (i as usize % w / factor, i as usize / w / factor);
+            canvas.put_pixel(x as u32, y as u32, image::Luma([track_colour(track)]));
+        }
+        let time = self.interval_s.map(|s| format_time(t as f64 * s)).unwrap_or_default();
+        caption_indexed(&mut canvas, &format!("t={t} {time}"));
+        let mut gif = gif::Frame {
+            width: mw as u16,
+            height: mh as u16,
+            delay: 10,
+            buffer: std::borrow::Cow::Owned(canvas.as_raw().clone()),
+            ..gif::Frame::default()
+        };
+        gif.make_lzw_pre_encoded();
+        DrawnFrame { averaged, canvas, gif }
+    }
 }
 
 /// The fixed palette: 240 greys, then our overlay colours; entry 255 is white.
