@@ -226,7 +226,7 @@ pub fn render_movie(
 
 /// Frames read, then drawn and compressed in parallel, at a time (bounds the memory held: a
 /// few decoded frames).
-const DRAW_BATCH: usize = 8;
+const DRAW_BATCH: usize = 4;
 
 /// What every movie frame is drawn with.
 struct MovieLook<'a> {
