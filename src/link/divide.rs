@@ -202,6 +202,10 @@ fn find_candidates(
             let mut daughters: Vec<usize> = continuation.into_iter().collect();
             daughters.extend(starts_by_frame.get(&(f + 1)).into_iter().flatten().copied());
             daughters.retain(|&k| distance2(&points[m], &points[k]) <= max2);
+            let gap_after = continuation.is_none() && pos + 1 < pts.len();
+            if daughters.is_empty() || gap_after || pos + 1 < rules.min_mother_points {
+                continue;
+            }
             // A mitotic mother's second daughter may first be seen a frame late: born pressed
             // against her sister or a neighbour, she comes out of that object a frame on.
             let late: Vec<usize> = starts_by_frame
@@ -211,12 +215,7 @@ fn find_candidates(
                 .copied()
                 .filter(|&k| distance2(&points[m], &points[k]) <= max2)
                 .collect();
-            let gap_after = continuation.is_none() && pos + 1 < pts.len();
-            if daughters.is_empty()
-                || daughters.len() + late.len() < 2
-                || gap_after
-                || pos + 1 < rules.min_mother_points
-            {
+            if daughters.len() + late.len() < 2 {
                 continue;
             }
             let predicted = predicted_after(points, &pts[..=pos], params);

@@ -197,10 +197,10 @@ fn split_component(
         let levels: Vec<u32> = squared.iter().map(|&d| d.min(u32::MAX as f64 / 2.0) as u32).collect();
         return watershed::seeded_watershed(&levels, mask, &seeds, width, height);
     };
-    let (values, noise) = (&cues.values[..], cues.noise);
-    let labels = flood_on_landscape(&distance, values, noise, mask, width, height, seed_h_px);
+    let lit = Lit::of(&cues.values, mask, cues.noise);
+    let labels = flood_on_landscape(&distance, &lit, mask, (width, height), seed_h_px);
     let labels = if labels.iter().any(|&l| l > 1) {
-        each_basin_on_its_own(&labels, &distance, values, noise, width, seed_h_px)
+        each_basin_on_its_own(&labels, &distance, &lit, width, seed_h_px)
     } else {
         labels
     };
@@ -216,20 +216,12 @@ fn split_component(
 /// clamped; the same bound as a mitotic brightening in `link::divide`): on a crowded
 /// 1024 x 1024 recording of 20 frames that took segmentation from 3.48 s to 3.26 s on one
 /// thread, and 747 to 746 of 865 divisions on twelve crowded dividing scenes. Our own step.
-fn each_basin_on_its_own(
-    labels: &[u32],
-    distance: &[f32],
-    values: &[f32],
-    noise: f32,
-    width: usize,
-    seed_h_px: f64,
-) -> Vec<u32> {
+fn each_basin_on_its_own(labels: &[u32], distance: &[f32], component: &Lit, width: usize, seed_h_px: f64) -> Vec<u32> {
     let boxes = basin_boxes(labels, width);
     let mut basin_values: Vec<Vec<f32>> = vec![Vec::new(); boxes.len()];
-    for (&l, &v) in labels.iter().zip(values).filter(|(&l, _)| l > 0) {
+    for (&l, &v) in labels.iter().zip(component.values).filter(|(&l, _)| l > 0) {
         basin_values[l as usize].push(v);
     }
-    let component_bright = bright_level(basin_values.iter().skip(1).flatten().copied().collect());
     let mut out = vec![0u32; labels.len()];
     let mut next = 0u32;
     for (basin, (x0, x1, y0, y1)) in boxes.into_iter().enumerate().skip(1) {
@@ -238,7 +230,8 @@ fn each_basin_on_its_own(
         }
         let (w, h) = (x1 - x0, y1 - y0);
         let at = |i: usize| (y0 + i / w) * width + x0 + i % w;
-        if bright_level(std::mem::take(&mut basin_values[basin])) <= OWN_LEVEL_ABOVE * component_bright {
+        let bright = bright_level(std::mem::take(&mut basin_values[basin]));
+        if bright <= OWN_LEVEL_ABOVE * component.bright {
             (0..w * h)
                 .filter(|&i| labels[at(i)] as usize == basin)
                 .for_each(|i| out[at(i)] = next + 1);
@@ -247,8 +240,13 @@ fn each_basin_on_its_own(
         }
         let own: Vec<bool> = (0..w * h).map(|i| labels[at(i)] as usize == basin).collect();
         let d: Vec<f32> = (0..w * h).map(|i| distance[at(i)]).collect();
-        let v: Vec<f32> = (0..w * h).map(|i| values[at(i)]).collect();
-        let parts = flood_on_landscape(&d, &v, noise, &own, w, h, seed_h_px);
+        let v: Vec<f32> = (0..w * h).map(|i| component.values[at(i)]).collect();
+        let lit = Lit {
+            values: &v,
+            bright,
+            noise: component.noise,
+        };
+        let parts = flood_on_landscape(&d, &lit, &own, (w, h), seed_h_px);
         for (i, &part) in parts.iter().enumerate().filter(|(_, &part)| part > 0) {
             out[at(i)] = next + part;
         }
@@ -274,14 +272,12 @@ pub(super) fn basin_boxes(labels: &[u32], width: usize) -> Vec<(usize, usize, us
 /// flooding over it, within `mask`.
 fn flood_on_landscape(
     distance: &[f32],
-    values: &[f32],
-    noise: f32,
+    lit: &Lit,
     mask: &[bool],
-    width: usize,
-    height: usize,
+    (width, height): (usize, usize),
     seed_h_px: f64,
 ) -> Vec<u32> {
-    let (landscape, h) = intensity_weighted(distance, values, noise, mask, seed_h_px);
+    let (landscape, h) = intensity_weighted(distance, lit, mask, seed_h_px);
     let (seeds, _) = h_maxima_seeds(&landscape, mask, width, height, h);
     let levels: Vec<u32> = landscape
         .iter()
@@ -329,6 +325,25 @@ impl WindowCues {
 /// How much brighter than its component a basin must be to be split again at its own level.
 const OWN_LEVEL_ABOVE: f32 = 1.15;
 
+/// An object's intensities (indexed as its window), its bright level ([`bright_level`] of
+/// its pixels) and the frame's background noise σ: what its landscape is made from.
+struct Lit<'a> {
+    values: &'a [f32],
+    bright: f32,
+    noise: f32,
+}
+
+impl<'a> Lit<'a> {
+    fn of(values: &'a [f32], mask: &[bool], noise: f32) -> Self {
+        let inside = values.iter().zip(mask).filter(|(_, &m)| m).map(|(&v, _)| v).collect();
+        Lit {
+            values,
+            bright: bright_level(inside),
+            noise,
+        }
+    }
+}
+
 /// The bright level of an object's values: their 90th percentile (0 for none).
 fn bright_level(mut inside: Vec<f32>) -> f32 {
     if inside.is_empty() {
@@ -360,8 +375,8 @@ fn bright_level(mut inside: Vec<f32>) -> f32 {
 /// `benches/accuracy.sh` it lifted MOTA on the dense scenes by 3 to 7 points with no loss of
 /// precision; without the noise bound, a dim textured scene lost 7% of its mostly-tracked
 /// tracks to split nuclei.
-fn intensity_weighted(distance: &[f32], values: &[f32], noise: f32, mask: &[bool], seed_h_px: f64) -> (Vec<f32>, f64) {
-    let bright = bright_level(values.iter().zip(mask).filter(|(_, &m)| m).map(|(&v, _)| v).collect());
+fn intensity_weighted(distance: &[f32], lit: &Lit, mask: &[bool], seed_h_px: f64) -> (Vec<f32>, f64) {
+    let (values, bright, noise) = (lit.values, lit.bright, lit.noise);
     if bright <= 0.0 {
         return (distance.to_vec(), seed_h_px);
     }
