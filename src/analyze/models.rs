@@ -458,8 +458,9 @@ fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>
 /// ∂MSD/∂(D, P[, offset]) of the walk at lag `t`.
 fn walk_jacobian(t: f64, theta: &[f64]) -> Vec<f64> {
     let (d, p) = (theta[0], theta[1]);
-    let e = (-t / p).exp();
-    let mut j = vec![4.0 * (t - p * (1.0 - e)), -4.0 * d * ((1.0 - e) - t / p * e)];
+    // In expm1 form for a persistence far beyond the lag (see `furth_msd`).
+    let (x, em1) = (t / p, (-t / p).exp_m1());
+    let mut j = vec![4.0 * (t + p * em1), 4.0 * d * (em1 + x * (-x).exp())];
     if theta.len() > 2 {
         j.push(1.0);
     }

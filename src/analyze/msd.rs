@@ -127,8 +127,12 @@ pub fn model_points(
 /// Bewegungsrichtung", Z. Physik 2:244–256, doi:10.1007/BF01328731; in 2D as in G. A. Dunn
 /// (1983), Agents Actions Suppl. 12:14–33, and H. G. Othmer, S. R. Dunbar & W. Alt (1988),
 /// J. Math. Biol. 26:263–298, doi:10.1007/BF00277392. Fitted in [`super::models`].
+///
+/// Written as 4D[t + P·expm1(−t/P)]: with P thousands of times the lag (a walk straight over
+/// the lags fitted) 1 − e^{−t/P} computed as written loses all but a few digits and the
+/// fitted D and P drift on rounding noise.
 pub fn furth_msd(t: f64, d: f64, p: f64) -> f64 {
-    4.0 * d * (t - p * (1.0 - (-t / p).exp()))
+    4.0 * d * (t + p * (-t / p).exp_m1())
 }
 
 /// Slope of ln MSD against ln lag (ordinary least squares) over the given points: the

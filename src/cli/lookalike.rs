@@ -16,9 +16,9 @@ pub struct LookalikeArgs {
     /// Look-alike recordings to make.
     #[arg(long, default_value_t = 3)]
     count: usize,
-    /// Frames in each.
-    #[arg(long, default_value_t = 6)]
-    frames: usize,
+    /// Frames in each (default: enough for 2000 nucleus-frames together, 4 to 8).
+    #[arg(long)]
+    frames: Option<usize>,
     /// Seed of the first look-alike.
     #[arg(long, default_value_t = 1)]
     seed: u64,
@@ -28,7 +28,7 @@ pub fn run(args: LookalikeArgs) -> Result<()> {
     let out = args.output.clone().unwrap_or_else(|| args.run.join("lookalike"));
     let options = LookalikeOptions {
         count: args.count.max(1),
-        frames: args.frames.max(2),
+        frames: args.frames.map(|f| f.max(2)),
         seed: args.seed,
     };
     make(&args.run, &out, &options)
@@ -45,7 +45,7 @@ pub fn make(run: &Path, out: &Path, options: &LookalikeOptions) -> Result<()> {
     };
     println!(
         "expected accuracy on this recording ({} look-alikes of {} frames):",
-        options.count, options.frames
+        options.count, summary.synth_parameters.frames
     );
     show("detection F1", e.detection_f1);
     show("MOTA", e.mota);

@@ -6,6 +6,7 @@ use crate::columns::read_named_columns;
 use crate::error::{Error, Result};
 use crate::numeric::{median, quantile};
 use crate::stack::Stack;
+use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use serde::Serialize;
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -144,8 +145,13 @@ pub fn measure(stack: &mut Stack, objects: &[Measured]) -> Result<RecordingStats
     let mut backgrounds = BTreeMap::new();
     let mut pairs = Vec::new();
     let mut unevenness = 0.0;
+    // A frame read as the successor of one pick is kept for the next pick.
+    let mut held: Option<(usize, Vec<f32>)> = None;
     for &t in &picks {
-        let frame = stack.read_frame(t)?.pixels.to_f32();
+        let frame = match held.take() {
+            Some((k, frame)) if k == t => frame,
+            _ => stack.read_frame(t)?.pixels.to_f32(),
+        };
         backgrounds.insert(t, quantile_f32(&frame, 0.25));
         if t == picks[0] {
             unevenness = block_unevenness(&frame, info.width, info.height);
@@ -153,6 +159,7 @@ pub fn measure(stack: &mut Stack, objects: &[Measured]) -> Result<RecordingStats
         if t + 1 < info.frames {
             let next = stack.read_frame(t + 1)?.pixels.to_f32();
             pairs.extend(block_mean_variance(&frame, &next, info.width, info.height));
+            held = Some((t + 1, next));
         }
     }
     let background = median(&mut backgrounds.values().copied().collect::<Vec<_>>()).unwrap_or(0.0);
@@ -178,9 +185,52 @@ fn sample_frames(frames: usize) -> Vec<usize> {
     picks
 }
 
+/// The `q`-quantile of the finite values, as [`quantile`] defines it (linear between the two
+/// order statistics). Whole grey levels of up to 16 bits, what cameras record, are counted
+/// rather than selected (the same value, a tenth of the time on a megapixel frame).
 fn quantile_f32(values: &[f32], q: f64) -> f64 {
+    if let Some(counts) = grey_level_counts(values) {
+        return counted_quantile(&counts, q).unwrap_or(0.0);
+    }
     let v: Vec<f64> = values.iter().filter(|v| v.is_finite()).map(|&v| v as f64).collect();
     quantile(&v, q).unwrap_or(0.0)
+}
+
+/// How many values fall on each whole grey level 0..=65535; none when a value is not one.
+fn grey_level_counts(values: &[f32]) -> Option<Vec<u64>> {
+    let mut counts = vec![0u64; 1 << 16];
+    for &v in values {
+        let level = v as u32;
+        if level as f32 != v || level > 65535 {
+            return None;
+        }
+        counts[level as usize] += 1;
+    }
+    Some(counts)
+}
+
+/// The `q`-quantile of values given as counts per grey level (linear between the two order
+/// statistics at ⌊h⌋ and ⌈h⌉, h = q·(n − 1), as [`quantile`]).
+fn counted_quantile(counts: &[u64], q: f64) -> Option<f64> {
+    let n: u64 = counts.iter().sum();
+    if n == 0 {
+        return None;
+    }
+    let h = q.clamp(0.0, 1.0) * (n - 1) as f64;
+    let (lo, hi) = (h.floor() as u64, h.ceil() as u64);
+    // The level holding the order statistic of rank `rank` (0-based).
+    let level_of = |rank: u64| -> f64 {
+        let mut seen = 0;
+        for (level, &c) in counts.iter().enumerate() {
+            seen += c;
+            if seen > rank {
+                return level as f64;
+            }
+        }
+        (counts.len() - 1) as f64
+    };
+    let (at_lo, at_hi) = (level_of(lo), level_of(hi));
+    Some(at_lo + (h - lo as f64) * (at_hi - at_lo))
 }
 
 /// 1 − lowest / highest 25th percentile of 4 x 4 blocks.
@@ -292,18 +342,10 @@ fn shape_and_density(objects: &[Measured], w: usize, h: usize, frames: usize) ->
     let nuclei = median(&mut counts).unwrap_or(0.0);
     let (mut touching, mut total, mut packing) = (0usize, 0usize, Vec::new());
     for list in per_frame.values() {
-        for (i, a) in list.iter().enumerate() {
-            let nearest = list
-                .iter()
-                .enumerate()
-                .filter(|(j, _)| *j != i)
-                .map(|(_, b)| ((a.x - b.x).hypot(a.y - b.y), b.diameter))
-                .min_by(|p, q| p.0.total_cmp(&q.0));
-            if let Some((d, other)) = nearest {
-                total += 1;
-                touching += usize::from(d < 1.05 * (a.diameter + other) / 2.0);
-                packing.push(d / diameter.max(1.0));
-            }
+        for (a, (d, other)) in list.iter().zip(nearest_neighbours(list)) {
+            total += 1;
+            touching += usize::from(d < 1.05 * (a.diameter + other.diameter) / 2.0);
+            packing.push(d / diameter.max(1.0));
         }
     }
     let area = std::f64::consts::PI * diameter * diameter / 4.0;
@@ -335,6 +377,29 @@ fn shape_and_density(objects: &[Measured], w: usize, h: usize, frames: usize) ->
         bleach_per_frame: 0.0,
         unevenness: 0.0,
     }
+}
+
+/// Each object's distance to its nearest neighbour in the same frame, and that neighbour (a
+/// k-d tree: a frame of a few thousand nuclei is not compared pair by pair); none for a lone
+/// object.
+fn nearest_neighbours<'a>(list: &[&'a Measured]) -> Vec<(f64, &'a Measured)> {
+    if list.len() < 2 {
+        return Vec::new();
+    }
+    let points: Vec<[f64; 2]> = list.iter().map(|o| [o.x, o.y]).collect();
+    let tree: ImmutableKdTree<f64, 2> = ImmutableKdTree::new_from_slice(&points).expect("finite centroids");
+    let two = std::num::NonZero::new(2usize).expect("non-zero");
+    points
+        .iter()
+        .enumerate()
+        .map(|(i, p)| {
+            let hits = tree.query(p).nearest_n::<SquaredEuclidean<f64>>(two).execute();
+            // The object itself is one of the two (at distance 0), unless another sits at the
+            // very same place.
+            let other = hits.iter().find(|hit| hit.item as usize != i).unwrap_or(&hits[1]);
+            (other.distance.sqrt(), list[other.item as usize])
+        })
+        .collect()
 }
 
 /// Signal over the background, its spread between nuclei and its loss over time.
@@ -447,6 +512,26 @@ mod tests {
     use super::*;
 
     #[test]
+    fn counted_grey_levels_give_the_linear_quantile() {
+        // Source: Hyndman & Fan (1996), Am. Stat. 50(4):361–365, definition 7 (numpy's and R's
+        // default): h = q·(n − 1), linear between order statistics ⌊h⌋ and ⌈h⌉. Worked by hand:
+        // [1, 2, 3, 4, 10] at 0.3 → h = 1.2 → 2 + 0.2·(3 − 2) = 2.2; [5, 5, 5, 7] at 0.9 →
+        // h = 2.7 → 5 + 0.7·(7 − 5) = 6.4; at 0.25 → 5.
+        for (values, q, want) in [
+            (vec![10.0, 3.0, 1.0, 4.0, 2.0], 0.3, 2.2),
+            (vec![5.0, 7.0, 5.0, 5.0], 0.9, 6.4),
+            (vec![5.0, 7.0, 5.0, 5.0], 0.25, 5.0),
+        ] {
+            assert!(grey_level_counts(&values).is_some(), "whole grey levels are counted");
+            assert!((quantile_f32(&values, q) - want).abs() < 1e-9);
+            // The same values shifted by a half are not grey levels: selected instead.
+            let shifted: Vec<f32> = values.iter().map(|v| v + 0.5).collect();
+            assert!(grey_level_counts(&shifted).is_none());
+            assert!((quantile_f32(&shifted, q) - (want + 0.5)).abs() < 1e-6);
+        }
+    }
+
+    #[test]
     fn the_photon_transfer_line_of_a_poisson_camera() {
         // Construction: blocks whose difference variance is gain · mean + read² exactly
         // (gain 2, read noise 3), as a camera with 2 grey levels per photon gives (Janesick,
@@ -459,6 +544,37 @@ mod tests {
             (gain - 2.0).abs() < 1e-9 && (at_zero - 9.0).abs() < 1e-6,
             "{gain} {at_zero}"
         );
+    }
+
+    #[test]
+    fn nearest_neighbours_by_hand() {
+        // Worked by hand: (0, 0), (3, 4) and (10, 4): the first two are 5 apart, the third is
+        // 7 from the second; two objects on the very same spot are each other's nearest, at 0.
+        let at = |x: f64, y: f64, diameter: f64| Measured {
+            track: 0,
+            parent: None,
+            frame: 0,
+            x,
+            y,
+            diameter,
+            axis_ratio: 1.0,
+            mean_intensity: None,
+        };
+        let objects = [at(0.0, 0.0, 1.0), at(3.0, 4.0, 2.0), at(10.0, 4.0, 3.0)];
+        let list: Vec<&Measured> = objects.iter().collect();
+        let found: Vec<(f64, f64)> = nearest_neighbours(&list)
+            .iter()
+            .map(|(d, o)| (*d, o.diameter))
+            .collect();
+        assert_eq!(found, vec![(5.0, 2.0), (5.0, 1.0), (7.0, 2.0)]);
+        let twins = [at(2.0, 2.0, 1.0), at(2.0, 2.0, 2.0)];
+        let list: Vec<&Measured> = twins.iter().collect();
+        let found: Vec<(f64, f64)> = nearest_neighbours(&list)
+            .iter()
+            .map(|(d, o)| (*d, o.diameter))
+            .collect();
+        assert_eq!(found, vec![(0.0, 2.0), (0.0, 1.0)]);
+        assert!(nearest_neighbours(&list[..1]).is_empty());
     }
 
     #[test]

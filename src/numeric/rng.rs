@@ -28,6 +28,7 @@ impl Rng {
     }
 
     /// Next 64 random bits.
+    #[inline]
     pub fn next_u64(&mut self) -> u64 {
         let result = self.s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
         let t = self.s[1] << 17;
@@ -58,8 +59,57 @@ impl Rng {
         (-2.0 * u1.ln()).sqrt() * (std::f64::consts::TAU * u2).cos()
     }
 
+    /// Standard normal by the ziggurat method, for the millions of draws of a frame's noise:
+    /// one 64-bit draw and a table look-up for 99% of the values, no logarithm or cosine.
+    /// The layer comes from the draw's low 8 bits and the value from its high 52, so the two
+    /// are independent (the correlation Doornik found in the original scheme, which took
+    /// both from one 32-bit word).
+    ///
+    /// # Method
+    /// G. Marsaglia & W. W. Tsang (2000), "The ziggurat method for generating random
+    /// variables", J. Stat. Softw. 5(8), doi:10.18637/jss.v005.i08 (256 layers; the tail by
+    /// Marsaglia's 1964 method); J. A. Doornik (2005), "An improved ziggurat method to
+    /// generate normal random samples", University of Oxford.
+    #[inline]
+    pub fn ziggurat_normal(&mut self) -> f64 {
+        let table = ziggurat_table();
+        loop {
+            let bits = self.next_u64();
+            let layer = (bits & 0xff) as usize;
+            // Symmetric uniform in (−1, 1) from the high 52 bits.
+            let u = ((bits >> 12) as f64 + 0.5) * (2.0 / (1u64 << 52) as f64) - 1.0;
+            let x = u * table.x[layer];
+            if x.abs() < table.x[layer + 1] {
+                return x;
+            }
+            if layer == 0 {
+                return self.normal_tail(u < 0.0);
+            }
+            let (f_outer, f_inner) = (table.f[layer], table.f[layer + 1]);
+            if f_inner + (f_outer - f_inner) * self.uniform() < (-0.5 * x * x).exp() {
+                return x;
+            }
+        }
+    }
+
+    /// A normal value beyond the ziggurat's last layer (|x| > R), with the given sign
+    /// (G. Marsaglia (1964), "Generating a variable from the tail of the normal distribution",
+    /// Technometrics 6(1):101–102).
+    fn normal_tail(&mut self, negative: bool) -> f64 {
+        loop {
+            let a = -(1.0 - self.uniform()).ln() / ZIGGURAT_R;
+            let b = -(1.0 - self.uniform()).ln();
+            if 2.0 * b > a * a {
+                let x = ZIGGURAT_R + a;
+                return if negative { -x } else { x };
+            }
+        }
+    }
+
     /// Poisson-distributed count with mean `lambda`: Knuth's product method below 30, the
-    /// normal approximation with continuity rounding above (error < 1% in the variance there).
+    /// normal approximation with continuity rounding above (error < 1% in the variance there;
+    /// the normal value by the ziggurat).
+    #[inline]
     pub fn poisson(&mut self, lambda: f64) -> f64 {
         if lambda <= 0.0 {
             return 0.0;
@@ -74,8 +124,45 @@ impl Rng {
             }
             return k;
         }
-        (lambda + lambda.sqrt() * self.normal()).round().max(0.0)
+        // Rounded half up by truncation (a conversion, not a call to the C library's round).
+        let shifted = lambda + lambda.sqrt() * self.ziggurat_normal() + 0.5;
+        if shifted > 0.0 {
+            (shifted as u64) as f64
+        } else {
+            0.0
+        }
     }
+}
+
+/// The start of the ziggurat's tail, R, and the area of each of its 256 layers, V
+/// (Marsaglia & Tsang 2000, the 256-layer normal ziggurat; values as published there).
+const ZIGGURAT_R: f64 = 3.654_152_885_361_009;
+const ZIGGURAT_V: f64 = 0.004_928_673_233_99;
+
+/// The ziggurat's layer edges x₀ > x₁ = R > … > x₂₅₆ = 0 and the density f(x) = exp(−x²/2) at
+/// each: x₀ = V / f(R) (the base layer's width, tail included), x₍ᵢ₊₁₎ = f⁻¹(V / xᵢ + f(xᵢ)).
+struct Ziggurat {
+    x: [f64; 257],
+    f: [f64; 257],
+}
+
+fn ziggurat_table() -> &'static Ziggurat {
+    static TABLE: std::sync::OnceLock<Ziggurat> = std::sync::OnceLock::new();
+    TABLE.get_or_init(|| {
+        let density = |x: f64| (-0.5 * x * x).exp();
+        let mut x = [0.0; 257];
+        x[0] = ZIGGURAT_V / density(ZIGGURAT_R);
+        x[1] = ZIGGURAT_R;
+        for i in 1..255 {
+            x[i + 1] = (-2.0 * (ZIGGURAT_V / x[i] + density(x[i])).ln()).sqrt();
+        }
+        x[256] = 0.0;
+        let mut f = [0.0; 257];
+        for i in 0..257 {
+            f[i] = density(x[i]);
+        }
+        Ziggurat { x, f }
+    })
 }
 
 #[cfg(test)]
@@ -98,5 +185,35 @@ mod tests {
         let m = v.iter().sum::<f64>() / v.len() as f64;
         let var = v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / v.len() as f64;
         assert!(m.abs() < 0.03 && (var - 1.0).abs() < 0.05);
+    }
+
+    #[test]
+    fn ziggurat_draws_the_standard_normal() {
+        // Source: the standard normal's probabilities (any table; from memory, to 6 digits):
+        // P(|z| < 0.5) = 0.382925, P(|z| < 1) = 0.682689, P(|z| < 2) = 0.954500,
+        // P(|z| > 3) = 0.002700, P(|z| > R = 3.6542) = 0.000258 (the tail drawn apart), and
+        // its fourth moment 3. Two million draws: standard errors below 0.00035 for the
+        // shares, 0.0035 for the moment.
+        let mut r = Rng::new(11);
+        let v: Vec<f64> = (0..2_000_000).map(|_| r.ziggurat_normal()).collect();
+        let n = v.len() as f64;
+        let share = |test: &dyn Fn(f64) -> bool| v.iter().filter(|&&z| test(z)).count() as f64 / n;
+        for (bound, inside) in [(0.5, 0.382925), (1.0, 0.682689), (2.0, 0.954500)] {
+            let got = share(&|z: f64| z.abs() < bound);
+            assert!((got - inside).abs() < 0.0015, "P(|z| < {bound}) = {got}");
+        }
+        assert!((share(&|z: f64| z.abs() > 3.0) - 0.002700).abs() < 0.0003);
+        let tail = share(&|z: f64| z.abs() > ZIGGURAT_R);
+        assert!((tail - 0.000258).abs() < 0.00006, "tail {tail}");
+        assert!((share(&|z: f64| z > 0.0) - 0.5).abs() < 0.0015);
+        let m = v.iter().sum::<f64>() / n;
+        let fourth = v.iter().map(|z| z.powi(4)).sum::<f64>() / n;
+        assert!(
+            m.abs() < 0.003 && (fourth - 3.0).abs() < 0.02,
+            "mean {m}, fourth {fourth}"
+        );
+        // The last layer's edge meets 0: the recursion closes (Marsaglia & Tsang 2000).
+        let table = ziggurat_table();
+        assert!(table.x[255] > 0.0 && table.x[255] < 0.3, "x255 {}", table.x[255]);
     }
 }

@@ -38,7 +38,8 @@ pub(super) fn add_dim_nuclei(
     }
     let low = low as f32;
     clear_slivers(mask, min_area, (w, h));
-    let mut region = vec![0u32; mask.len()];
+    // Read at every pixel, written at a few (see `filled`).
+    let mut region = crate::numeric::filled(mask.len(), 0u32);
     let mut next = 0u32;
     let mut add: Vec<usize> = Vec::new();
     for start in 0..mask.len() {
@@ -63,7 +64,7 @@ pub(super) fn add_dim_nuclei(
 
 /// Clears the 8-connected components of `mask` smaller than `min_area` px.
 fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
-    let mut seen = vec![false; mask.len()];
+    let mut seen = crate::numeric::filled(mask.len(), false);
     for start in 0..mask.len() {
         if !mask[start] || seen[start] {
             continue;

@@ -417,16 +417,19 @@ impl<F: Fn(usize) -> Vec<u16> + Sync> AheadInParallel<F> {
 /// Truth points of one frame: every nucleus with visible pixels, at the centroid of its
 /// visible label pixels.
 pub fn truth_points_of(labels: &[u16], width: usize, frame: usize) -> Vec<TrackPoint> {
-    let mut sums: std::collections::BTreeMap<u16, (f64, f64, f64)> = Default::default();
-    for (i, &l) in labels.iter().enumerate() {
-        if l != 0 {
-            let e = sums.entry(l).or_default();
-            e.0 += (i % width) as f64;
-            e.1 += (i / width) as f64;
+    // Indexed by label (a 16-bit label has 65 536 possible values): sums in pixel order.
+    let mut sums = vec![(0f64, 0f64, 0f64); 1 << 16];
+    for (y, row) in labels.chunks_exact(width.max(1)).enumerate() {
+        for (x, &l) in row.iter().enumerate().filter(|(_, &l)| l != 0) {
+            let e = &mut sums[l as usize];
+            e.0 += x as f64;
+            e.1 += y as f64;
             e.2 += 1.0;
         }
     }
     sums.into_iter()
+        .enumerate()
+        .filter(|(_, (_, _, n))| *n > 0.0)
         .map(|(id, (sx, sy, n))| TrackPoint {
             track_id: id as u32,
             parent_id: None,

@@ -41,22 +41,50 @@ impl Nucleus {
         0.5 * (self.a + self.b)
     }
 
-    /// Chromatin-like texture at pixel (px, py), in [−1, 1]: value noise (random values on a
-    /// lattice, smoothly interpolated; Perlin (1985), SIGGRAPH Comput. Graph. 19(3):287–296, in
-    /// its simpler value form) in the nucleus's own rotated frame, so the pattern moves and
-    /// turns with it. Two octaves: granules of about 2.5 px and patches of about 6 px.
-    fn texture_at(&self, px: f64, py: f64) -> f64 {
-        let (dx, dy) = (px - self.x, py - self.y);
-        let (c, s) = (self.angle.cos(), self.angle.sin());
-        let (u, v) = (dx * c + dy * s, -dx * s + dy * c);
+    /// Chromatin-like texture at the point (u, v) of the nucleus's own rotated frame (see
+    /// [`Pose::local`]), in [−1, 1]: value noise (random values on a lattice, smoothly
+    /// interpolated; Perlin (1985), SIGGRAPH Comput. Graph. 19(3):287–296, in its simpler
+    /// value form), so the pattern moves and turns with it. Two octaves: granules of about
+    /// 2.5 px and patches of about 6 px.
+    fn texture_at(&self, (u, v): (f64, f64)) -> f64 {
         0.6 * value_noise(self.id, 0, u / 2.5, v / 2.5) + 0.4 * value_noise(self.id, 1, u / 6.0, v / 6.0)
+    }
+
+    /// Its centre, axes and rotation, the rotation's cosine and sine worked out once for the
+    /// many pixels drawn around it.
+    fn pose(&self) -> Pose {
+        Pose {
+            x: self.x,
+            y: self.y,
+            a: self.a,
+            b: self.b,
+            cos: self.angle.cos(),
+            sin: self.angle.sin(),
+        }
+    }
+}
+
+/// A nucleus's ellipse in the frame: centre, half-axes, and the cosine and sine of its angle.
+#[derive(Debug, Clone, Copy)]
+struct Pose {
+    x: f64,
+    y: f64,
+    a: f64,
+    b: f64,
+    cos: f64,
+    sin: f64,
+}
+
+impl Pose {
+    /// Pixel (px, py) in the ellipse's own frame: along its major and minor axes.
+    fn local(&self, px: f64, py: f64) -> (f64, f64) {
+        let (dx, dy) = (px - self.x, py - self.y);
+        (dx * self.cos + dy * self.sin, -dx * self.sin + dy * self.cos)
     }
 
     /// Normalised elliptical radius of pixel (px, py): 1 on the boundary.
     fn normalised_radius(&self, px: f64, py: f64) -> f64 {
-        let (dx, dy) = (px - self.x, py - self.y);
-        let (c, s) = (self.angle.cos(), self.angle.sin());
-        let (u, v) = (dx * c + dy * s, -dx * s + dy * c);
+        let (u, v) = self.local(px, py);
         ((u / self.a).powi(2) + (v / self.b).powi(2)).sqrt()
     }
 }
@@ -185,26 +213,31 @@ impl Scene {
         let bleach = (1.0 - p.bleach_per_frame).powi(t as i32);
         let mut rng = Rng::new(p.seed ^ (t as u64 + 1).wrapping_mul(0x9e37_79b9_7f4a_7c15));
         let blurred = blurred.as_slice().expect("standard layout");
-        (0..w * h)
-            .map(|i| {
-                let (x, y) = ((i % w) as f64 / w as f64, (i / w) as f64 / h as f64);
-                let light = illumination(x, y, p.vignette);
-                let photons = rng.poisson(light * (bleach * blurred[i] as f64 + p.background_photons));
-                (p.offset + p.gain * photons + p.read_noise * rng.normal())
-                    .round()
-                    .clamp(0.0, 65535.0) as u16
-            })
-            .collect()
+        let mut frame = Vec::with_capacity(w * h);
+        let columns: Vec<f64> = (0..w).map(|x| x as f64 / w as f64).collect();
+        for (y, row) in blurred.chunks_exact(w).enumerate() {
+            let v = y as f64 / h as f64;
+            frame.extend(row.iter().zip(&columns).map(|(&signal, &u)| {
+                let light = illumination(u, v, p.vignette);
+                let photons = rng.poisson(light * (bleach * signal as f64 + p.background_photons));
+                let grey = p.offset + p.gain * photons + p.read_noise * rng.ziggurat_normal();
+                // Rounded half up and clamped to 16 bits by the saturating conversion.
+                (grey + 0.5).max(0.0) as u16
+            }));
+        }
+        frame
     }
 
     /// Noise-free signal of frame `t` with overlapping nuclei drawn over each other (the
     /// brighter wins).
     fn overlaid_signal(&self, t: usize) -> Vec<f32> {
         let (w, h) = (self.params.width, self.params.height);
-        let mut signal = vec![0f32; w * h];
+        // Read before written below (see `filled`).
+        let mut signal = crate::numeric::filled(w * h, 0f32);
         for n in self.frames[t].iter().filter(|n| !n.hidden) {
+            let pose = n.pose();
             for_each_pixel_near(n, w, h, 2.5, |i, x, y| {
-                signal[i] = signal[i].max(self.nucleus_value(n, x, y) as f32);
+                signal[i] = signal[i].max(self.nucleus_value(n, &pose, x, y) as f32);
             });
         }
         signal
@@ -217,13 +250,17 @@ impl Scene {
     /// r₂).
     fn pressed_signal(&self, t: usize) -> Vec<f32> {
         let (w, h) = (self.params.width, self.params.height);
-        let nuclei: Vec<&Nucleus> = self.frames[t].iter().filter(|n| !n.hidden).collect();
+        let nuclei: Vec<(&Nucleus, Pose)> = self.frames[t]
+            .iter()
+            .filter(|n| !n.hidden)
+            .map(|n| (n, n.pose()))
+            .collect();
         // Per pixel: (r₁, owner), then r₂.
         let mut first = vec![(f64::INFINITY, usize::MAX); w * h];
         let mut second = vec![f64::INFINITY; w * h];
-        for (k, n) in nuclei.iter().enumerate() {
+        for (k, (n, pose)) in nuclei.iter().enumerate() {
             for_each_pixel_near(n, w, h, 2.5, |i, x, y| {
-                let r = n.normalised_radius(x, y);
+                let r = pose.normalised_radius(x, y);
                 if r < first[i].0 {
                     second[i] = first[i].0;
                     first[i] = (r, k);
@@ -239,23 +276,23 @@ impl Scene {
                 if k == usize::MAX {
                     return 0.0;
                 }
-                let n = nuclei[k];
+                let (n, pose) = &nuclei[k];
                 let (x, y) = ((i % w) as f64, (i / w) as f64);
                 let to_interface = (second[i] - r1) * n.radius() / 2.0;
                 let seam = 1.0 - depth * (-(to_interface / 0.75).powi(2)).exp();
-                (self.nucleus_value(n, x, y) * seam) as f32
+                (self.nucleus_value(n, pose, x, y) * seam) as f32
             })
             .collect()
     }
 
     /// The brightness of nucleus `n` at pixel (x, y): a soft-edged ellipse, textured.
-    fn nucleus_value(&self, n: &Nucleus, x: f64, y: f64) -> f64 {
-        let r = n.normalised_radius(x, y);
+    fn nucleus_value(&self, n: &Nucleus, pose: &Pose, x: f64, y: f64) -> f64 {
+        let r = pose.normalised_radius(x, y);
         let edge = 1.5 * n.radius();
         let mut profile = 1.0 / (1.0 + ((r - 1.0) * edge).exp());
         let texture = self.params.look.texture;
         if texture > 0.0 {
-            profile *= (1.0 + texture * n.texture_at(x, y)).max(0.0);
+            profile *= (1.0 + texture * n.texture_at(pose.local(x, y))).max(0.0);
         }
         let mitotic = if n.mitosis.is_some() { MITOTIC_BRIGHTNESS } else { 1.0 };
         n.brightness * mitotic * n.dimmed * profile
@@ -268,8 +305,9 @@ impl Scene {
         let mut best = vec![f64::INFINITY; w * h];
         let mut labels = vec![0u16; w * h];
         for n in self.frames[t].iter().filter(|n| !n.hidden) {
+            let pose = n.pose();
             for_each_pixel_near(n, w, h, 0.0, |i, x, y| {
-                let r = n.normalised_radius(x, y);
+                let r = pose.normalised_radius(x, y);
                 if r <= 1.0 && r < best[i] {
                     best[i] = r;
                     labels[i] = n.id as u16;
@@ -314,6 +352,7 @@ fn lattice_value(id: u32, octave: u32, i: i64, j: i64) -> f64 {
 
 /// Uneven illumination: a vignette falling by `vignette` to the corners (0.35 by default: to
 /// 65%) plus a 15% left-right tilt.
+#[inline]
 pub fn illumination(x: f64, y: f64, vignette: f64) -> f64 {
     let r2 = ((x - 0.5).powi(2) + (y - 0.5).powi(2)) / 0.5;
     (1.0 - vignette * r2) * (0.925 + 0.15 * x)

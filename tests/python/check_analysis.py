@@ -94,8 +94,10 @@ shapes = {
     "diffusion+noise": (lambda t, d, c: 4 * d * t + c, [1.0, 0.1]),
     "diffusion_with_drift": (lambda t, d, b: 4 * d * t + b * t * t, [1.0, 0.01]),
     "diffusion_with_drift+noise": (lambda t, d, b, c: 4 * d * t + b * t * t + c, [1.0, 0.01, 0.1]),
-    "persistent_random_walk": (lambda t, d, p: 4 * d * (t - p * (1 - np.exp(-t / p))), None),
-    "persistent_random_walk+noise": (lambda t, d, p, c: 4 * d * (t - p * (1 - np.exp(-t / p))) + c, None),
+    # Fürth's walk in expm1 form, 4D(t + P expm1(-t/P)): a walk straight over the lags fitted
+    # has P thousands of times t, where 1 - exp(-t/P) as written keeps only a few digits.
+    "persistent_random_walk": (lambda t, d, p: 4 * d * (t + p * np.expm1(-t / p)), None),
+    "persistent_random_walk+noise": (lambda t, d, p, c: 4 * d * (t + p * np.expm1(-t / p)) + c, None),
 }
 chosen = next(c for c in model["candidates"] if c["model"] == model["chosen"])
 f, p0 = shapes[chosen["model"]]
@@ -158,7 +160,9 @@ for frame in frames:
     for i in range(len(u)):
         for j in range(i + 1, len(u)):
             dist = math.hypot(*(pos[i] - pos[j]))
-            b = next((k for k, e in enumerate(edges) if dist <= e), None)
+            # The edges are written to 6 decimals, and the first is the median neighbour
+            # distance, which one pair has exactly: half a unit of the last decimal is allowed.
+            b = next((k for k, e in enumerate(edges) if dist <= e + 5e-7), None)
             if b is not None:
                 sums[b] += u[i] @ u[j]
                 counts[b] += 1
