@@ -19,7 +19,7 @@ use crate::record::{DiameterSource, RunRecord};
 use crate::score::files::score_files;
 use crate::stack::{OpenOptions, Stack};
 use crate::synth::illumination;
-use crate::synth::{write_recording, Look, PersistentMotion, Scenario, SynthOutputs, SynthParams};
+use crate::synth::{write_recording, Look, PersistentMotion, Scenario, SynthParams};
 use measure::{measure, read_measured, Measured, RecordingStats};
 use serde::Serialize;
 use std::path::{Path, PathBuf};
@@ -179,7 +179,19 @@ fn imitate(
     let info = stack.info().clone();
     let frames = options.frames_for(measured.nuclei_per_frame);
     let synth = synth_parameters(&measured, (info.width, info.height), frames);
-    let lookalikes = synthesize_and_track(record, &synth, work, options)?;
+    // One after the other: tracking hands frames between its own threads and rayon's pool,
+    // which look-alikes tracked from inside the pool could starve. (Synthesizing the next one
+    // on a thread of its own while one is tracked was measured: no gain on 2 cores.)
+    let lookalikes = (0..options.count)
+        .map(|k| {
+            let seed = options.seed + k as u64;
+            track_lookalike(
+                record,
+                &SynthParams { seed, ..synth.clone() },
+                &work.join(format!("{k}")),
+            )
+        })
+        .collect::<Result<Vec<_>>>()?;
     let column = |i: usize| -> Vec<f64> { lookalikes.iter().map(|l| l.scores[i]).collect() };
     let expected = ExpectedAccuracy {
         detection_f1: Spread::of(&column(0)),
@@ -200,34 +212,12 @@ fn imitate(
     })
 }
 
-/// Makes the look-alikes (`synth` with seeds from `options.seed` on) in `work/K/syn` and
-/// tracks each in `work/K/run`, one after the other: tracking hands frames between its own
-/// threads and rayon's pool, which look-alikes tracked from inside the pool could starve
-/// (synthesizing the next one on a thread of its own while one is tracked was measured: no
-/// gain on 2 cores, both already busy).
-fn synthesize_and_track(
-    record: &RunRecord,
-    synth: &SynthParams,
-    work: &Path,
-    options: &LookalikeOptions,
-) -> Result<Vec<Lookalike>> {
-    let params = |k: usize| SynthParams {
-        seed: options.seed + k as u64,
-        ..synth.clone()
-    };
-    let dir = |k: usize| work.join(format!("{k}"));
-    (0..options.count)
-        .map(|k| {
-            let outputs = write_recording(&dir(k).join("syn"), &params(k))?;
-            track_lookalike(record, params(k).seed, &outputs, &dir(k))
-        })
-        .collect::<Result<Vec<_>>>()
-}
-
-/// Tracks the look-alike synthesized as `syn` (seed `seed`) in `dir/run` as the run was
-/// tracked, scores it against its truth and measures it.
-fn track_lookalike(record: &RunRecord, seed: u64, syn: &SynthOutputs, dir: &Path) -> Result<Lookalike> {
-    let mut stack = Stack::open(&syn.recording, &OpenOptions::default())?;
+/// Synthesizes one look-alike into `dir/syn`, tracks it in `dir/run` as the run was tracked,
+/// scores it against its truth and measures it.
+fn track_lookalike(record: &RunRecord, params: &SynthParams, dir: &Path) -> Result<Lookalike> {
+    let syn = dir.join("syn");
+    let out = write_recording(&syn, params)?;
+    let mut stack = Stack::open(&out.recording, &OpenOptions::default())?;
     // Exactly the run's parameters: the diameter it used (the look-alike is drawn at the size
     // the run measured), its segmentation and its linking options; what linking measures from
     // motion is measured from the look-alike.
@@ -254,11 +244,7 @@ fn track_lookalike(record: &RunRecord, seed: u64, syn: &SynthOutputs, dir: &Path
         &outputs,
         "lookalike",
     )?;
-    let truth = syn
-        .recording
-        .parent()
-        .expect("the recording is inside the synthesis folder");
-    let (_, score) = score_files(truth, &run, None, None)?;
+    let (_, score) = score_files(&syn, &run, None, None)?;
     let measured = measure(&mut stack, &read_measured(&run.join("tracks.csv"))?)?;
     let divisions = if score.divisions.reference_events > 0 {
         score.divisions_recovered_fraction
@@ -266,7 +252,7 @@ fn track_lookalike(record: &RunRecord, seed: u64, syn: &SynthOutputs, dir: &Path
         f64::NAN
     };
     Ok(Lookalike {
-        seed,
+        seed: params.seed,
         measured,
         scores: [
             score.detection_f1,
