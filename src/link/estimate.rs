@@ -224,24 +224,31 @@ fn from_steps(steps: &mut [f64], errors: &mut [f64], pairs: &[([f64; 2], [f64; 2
 
 /// Confident links between consecutive frames (`links[t]` joins frame t to t+1), refined twice
 /// by predicting each linked nucleus one step ahead.
+///
+/// Each pass links every pair of frames from the previous pass's links alone, so the pairs of
+/// a pass are linked in parallel (collected in frame order: the same links on any thread
+/// count).
 fn refined_links(frames: &[Vec<[f64; 2]>]) -> Vec<Vec<(usize, usize)>> {
+    use rayon::prelude::*;
     let pairs = frames.len().saturating_sub(1);
     let mut links: Vec<Vec<(usize, usize)>> = (0..pairs)
+        .into_par_iter()
         .map(|t| confident_links(&frames[t], &frames[t + 1]))
         .collect();
     for _ in 0..REFINEMENTS {
-        let mut refined = Vec::with_capacity(pairs);
-        for t in 0..pairs {
-            let mut predicted = frames[t].clone();
-            if t > 0 {
-                for &(k, i) in &links[t - 1] {
-                    let (p, a) = (frames[t - 1][k], frames[t][i]);
-                    predicted[i] = [2.0 * a[0] - p[0], 2.0 * a[1] - p[1]];
+        links = (0..pairs)
+            .into_par_iter()
+            .map(|t| {
+                let mut predicted = frames[t].clone();
+                if t > 0 {
+                    for &(k, i) in &links[t - 1] {
+                        let (p, a) = (frames[t - 1][k], frames[t][i]);
+                        predicted[i] = [2.0 * a[0] - p[0], 2.0 * a[1] - p[1]];
+                    }
                 }
-            }
-            refined.push(confident_links(&predicted, &frames[t + 1]));
-        }
-        links = refined;
+                confident_links(&predicted, &frames[t + 1])
+            })
+            .collect();
     }
     links
 }

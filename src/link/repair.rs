@@ -78,6 +78,13 @@ pub fn split_shared_objects(detections: Vec<Detection>, tracks: &[Expected], min
 /// Whether `p` lies inside the detection's moment-equivalent ellipse (axes as measured).
 fn inside_ellipse(d: &Detection, p: [f64; 2]) -> bool {
     let (dx, dy) = (p[0] - d.x, p[1] - d.y);
+    // Inside the ellipse is within its longer half-axis of the centre: most of a frame's
+    // tracks are ruled out before the rotation (a margin keeps the boundary's rounding out of
+    // it: this never rules out a point the exact test keeps).
+    let reach = (d.major_axis_px / 2.0).max((d.minor_axis_px / 2.0).max(1e-9));
+    if dx * dx + dy * dy > reach * reach * (1.0 + 1e-6) {
+        return false;
+    }
     let (s, c) = d.orientation_deg.to_radians().sin_cos();
     let along = (dx * c + dy * s) / (d.major_axis_px / 2.0);
     let across = (-dx * s + dy * c) / (d.minor_axis_px / 2.0).max(1e-9);

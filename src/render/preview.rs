@@ -26,17 +26,24 @@ pub const PALETTE: [[u8; 3]; 12] = [
 /// The mean of each `factor` x `factor` block of a `w` x `h` image (blocks at the right and
 /// bottom edges may be smaller): the downscale of the movie and of the review page alike.
 pub fn box_average(raw: &[f32], w: usize, h: usize, factor: usize) -> Vec<f32> {
+    let factor = factor.max(1);
     let (bw, bh) = (w.div_ceil(factor), h.div_ceil(factor));
     let mut sum = vec![0f32; bw * bh];
-    let mut count = vec![0f32; bw * bh];
-    for y in 0..h {
-        for x in 0..w {
-            let k = (y / factor) * bw + x / factor;
-            sum[k] += raw[y * w + x];
-            count[k] += 1.0;
+    // Row by row, each block's sum accumulated in the same order as pixel by pixel (rows
+    // down, then across), without a division per pixel.
+    for (y, row) in raw.chunks_exact(w.max(1)).take(h).enumerate() {
+        let sums = &mut sum[(y / factor) * bw..(y / factor + 1) * bw];
+        for (s, block) in sums.iter_mut().zip(row.chunks(factor)) {
+            for &v in block {
+                *s += v;
+            }
         }
     }
-    sum.iter().zip(&count).map(|(s, c)| s / c).collect()
+    let side = |b: usize, n: usize| (n - b * factor).min(factor) as f32;
+    sum.iter()
+        .enumerate()
+        .map(|(k, s)| s / (side(k % bw, w) * side(k / bw, h)))
+        .collect()
 }
 
 /// A linear display mapping: the 0.5th percentile of a reference image to black and the
@@ -71,6 +78,14 @@ impl DisplayRange {
         } else {
             0.0
         }
+    }
+
+    /// `v` as a display level 0..=`top`: [`DisplayRange::unit`] scaled and rounded half up by
+    /// conversion (a C library `roundf` call per pixel otherwise, ~2% of a default run). Equal
+    /// to `round` for these non-negative values but one: 0.5 − 2⁻²⁵, the largest `f32` below a
+    /// half, which `+ 0.5` rounds up to 1.
+    pub fn level(&self, v: f32, top: u8) -> u8 {
+        (self.unit(v) * top as f32 + 0.5) as u8
     }
 }
 
@@ -141,6 +156,22 @@ pub fn caption(img: &mut RgbImage, text: &str) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn display_levels_round_as_the_standard_library_does() {
+        // Source: f32::round (half away from zero) from Rust's standard library, against the
+        // conversion `level` uses, on 200 000 values across the range and on exact halves.
+        let range = DisplayRange::from_values(&[0.0, 1000.0]);
+        let mut rng = crate::numeric::Rng::new(3);
+        let values = (0..200_000).map(|_| rng.range(-50.0, 1050.0) as f32);
+        let halves = (0..=510).map(|k| k as f32 * 0.5 / 255.0 * range.span + range.lo);
+        for v in values.chain(halves) {
+            for top in [239u8, 255] {
+                let want = (range.unit(v) * top as f32).round() as u8;
+                assert_eq!(range.level(v, top), want, "{v} at {top}");
+            }
+        }
+    }
 
     #[test]
     fn box_average_takes_the_mean_of_each_block() {

@@ -265,12 +265,7 @@ impl ReviewWriter {
         self.offered += 1;
         let stretch = *self.stretch.get_or_insert_with(|| DisplayRange::from_values(raw));
         let (w, h) = self.input.size;
-        let to_grey = |values: &[f32]| -> Vec<u8> {
-            values
-                .iter()
-                .map(|&v| (stretch.unit(v) * 255.0).round() as u8)
-                .collect()
-        };
+        let to_grey = |values: &[f32]| -> Vec<u8> { values.iter().map(|&v| stretch.level(v, 255)).collect() };
         // Averaged before stretching, so that only the display's pixels are mapped; the full
         // frame is mapped only where it is kept.
         let display = if factor == self.factor {
