@@ -247,6 +247,12 @@ pub(crate) fn finish_run(
     started: Instant,
 ) -> Result<RunOutcome> {
     let info = stack.info().clone();
+    // The input's checksum (a whole read of the file) on a thread of its own, while linking
+    // keeps one core busy and the other would wait.
+    let checksum = {
+        let path = info.path.clone();
+        std::thread::spawn(move || crc32_file(&path).ok().map(|h| format!("{h:08x}")))
+    };
     let calibration = info.calibration;
     let small_object_share = (pass.object_count > 0).then(|| pass.small_objects as f64 / pass.object_count as f64);
     let FirstPass {
@@ -312,7 +318,7 @@ pub(crate) fn finish_run(
         warnings,
         verdict,
     };
-    let checksum = crc32_file(&info.path).ok().map(|h| format!("{h:08x}"));
+    let checksum = checksum.join().expect("the checksum thread only reads a file");
     let record = RunRecord {
         caravan_version: crate::VERSION.to_string(),
         command: command.to_string(),
