@@ -105,18 +105,8 @@ pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f
         for (i, v) in padded.iter_mut().enumerate() {
             *v = line[reflect(x0 as isize + i as isize - r as isize, width)];
         }
-        let out0 = &mut with_g0[j * band..(j + 1) * band];
-        for (k, &w0) in g0.iter().enumerate() {
-            out0.iter_mut()
-                .zip(&padded[k..k + band])
-                .for_each(|(o, &v)| *o += w0 * v);
-        }
-        let out2 = &mut with_g2[j * band..(j + 1) * band];
-        for (k, &w2) in g2.iter().enumerate() {
-            out2.iter_mut()
-                .zip(&padded[k..k + band])
-                .for_each(|(o, &v)| *o += w2 * v);
-        }
+        filter_padded_row(&mut with_g0[j * band..(j + 1) * band], &padded, &g0);
+        filter_padded_row(&mut with_g2[j * band..(j + 1) * band], &padded, &g2);
     }
     pixels
         .iter()
@@ -146,18 +136,7 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
         for i in (0..rx).chain(rx + w..w + 2 * rx) {
             padded[i] = src[reflect(i as isize - rx as isize, w)];
         }
-        // Accumulated tap by tap over the whole row (the same order of additions as a dot
-        // product per pixel, so results do not change, but the loop vectorises). The first tap
-        // is written, not added: a fresh zeroed page that is read before it is written costs
-        // the kernel a copy and a flush of every core's address cache.
-        for (k, &weight) in kernel_x.iter().enumerate() {
-            let shifted = &padded[k..k + w];
-            if k == 0 {
-                dst.iter_mut().zip(shifted).for_each(|(o, &v)| *o = weight * v);
-            } else {
-                dst.iter_mut().zip(shifted).for_each(|(o, &v)| *o += weight * v);
-            }
-        }
+        filter_padded_row(dst, &padded, kernel_x);
     }
     let ry = kernel_y.len() / 2;
     let mut out = Image::zeros((h, w));
@@ -167,15 +146,31 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
         let row = &mut dst[y * w..(y + 1) * w];
         for (k, &weight) in kernel_y.iter().enumerate() {
             let sy = reflect(y as isize + k as isize - ry as isize, h);
-            let line = &src[sy * w..(sy + 1) * w];
-            if k == 0 {
-                row.iter_mut().zip(line).for_each(|(o, &v)| *o = weight * v);
-            } else {
-                row.iter_mut().zip(line).for_each(|(o, &v)| *o += weight * v);
-            }
+            add_tap(row, &src[sy * w..(sy + 1) * w], weight, k == 0);
         }
     }
     out
+}
+
+/// `out` = `kernel` (odd length, centred) over `padded`, a row with `kernel.len() / 2`
+/// samples of border either side. Accumulated tap by tap over the whole row: the same order of
+/// additions as a dot product per pixel, so results do not change, but the loop vectorises.
+fn filter_padded_row(out: &mut [f32], padded: &[f32], kernel: &[f32]) {
+    let n = out.len();
+    for (k, &weight) in kernel.iter().enumerate() {
+        add_tap(out, &padded[k..k + n], weight, k == 0);
+    }
+}
+
+/// `out += weight · values`, or `out = weight · values` for the `first` tap: a fresh zeroed
+/// page that is read before it is written costs the kernel a copy and a flush of every core's
+/// address cache.
+fn add_tap(out: &mut [f32], values: &[f32], weight: f32, first: bool) {
+    if first {
+        out.iter_mut().zip(values).for_each(|(o, &v)| *o = weight * v);
+    } else {
+        out.iter_mut().zip(values).for_each(|(o, &v)| *o += weight * v);
+    }
 }
 
 /// Index into `0..n` under half-sample symmetric reflection, for any offset.

@@ -172,7 +172,6 @@ pub fn render_movie(
     let (w, h) = (info.width, info.height);
     let factor = w.max(h).div_ceil(options.max_side_px.max(16)).max(1);
     let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
-    let stretch = DisplayRange::from_values(&stack.read_frame(0)?.pixels.to_f32());
     let step = options.step(info.frames);
     let out = MovieOutputs {
         movie: dir.join("qc_movie.gif"),
@@ -187,13 +186,6 @@ pub fn render_movie(
         let mut encoder = gif::Encoder::new(&mut file, mw as u16, mh as u16, &palette()).map_err(gif_error)?;
         encoder.set_repeat(gif::Repeat::Infinite).map_err(gif_error)?;
         let mut reader = spool.reader()?;
-        let look = MovieLook {
-            overlay,
-            stretch,
-            size: (w, h),
-            factor,
-            interval_s: info.calibration.frame_interval_s,
-        };
         let spool_path = spool.path.clone();
         let mut read_batch = |first: usize| -> Result<Vec<FrameToDraw>> {
             (first..(first + DRAW_BATCH).min(info.frames))
@@ -204,6 +196,18 @@ pub fn render_movie(
                 .collect()
         };
         let mut next = read_batch(0)?;
+        // The contrast of the first frame, for the movie and the review page alike.
+        let stretch = DisplayRange::from_values(next.first().map_or(&[][..], |(_, raw, _)| raw));
+        if let Some(r) = review.as_deref_mut() {
+            r.set_stretch(stretch);
+        }
+        let look = MovieLook {
+            overlay,
+            stretch,
+            size: (w, h),
+            factor,
+            interval_s: info.calibration.frame_interval_s,
+        };
         for first in (0..info.frames).step_by(DRAW_BATCH) {
             // The next batch is read while this one is drawn.
             let batch = std::mem::take(&mut next);

@@ -104,25 +104,21 @@ pub(crate) fn split_basins_at_blobs(labels: &[u32], blob: &[f32], rule: &BlobRul
     }
     let boxes = basin_boxes(labels, width);
     for (basin, c) in centres.iter().enumerate().skip(1).filter(|(_, c)| c.len() >= 2) {
-        let (x0, x1, y0, y1) = boxes[basin];
-        let w = x1 - x0;
-        let at = |i: usize| (y0 + i / w) * width + x0 + i % w;
-        let local = |p: usize| (p / width - y0) * w + p % width - x0;
-        let cells = w * (y1 - y0);
-        let own: Vec<bool> = (0..cells).map(|i| labels[at(i)] as usize == basin).collect();
+        let b = boxes[basin];
+        let own = b.own(labels, basin);
         // The response in FLOOD_LEVELS steps up to the basin's strongest centre, whatever the
         // recording's grey levels (the level queue holds one bucket per step).
         let top = blob[c[0]].max(f32::MIN_POSITIVE);
-        let levels: Vec<u32> = (0..cells)
-            .map(|i| (blob[at(i)].clamp(0.0, top) / top * FLOOD_LEVELS) as u32)
+        let levels: Vec<u32> = (0..own.len())
+            .map(|i| (blob[b.at(i)].clamp(0.0, top) / top * FLOOD_LEVELS) as u32)
             .collect();
-        let mut seeds = vec![0u32; cells];
+        let mut seeds = vec![0u32; own.len()];
         for (k, &p) in c.iter().enumerate() {
-            seeds[local(p)] = k as u32 + 1;
+            seeds[b.local(p)] = k as u32 + 1;
         }
-        let parts = watershed::seeded_watershed(&levels, &own, &seeds, w, y1 - y0);
+        let parts = watershed::seeded_watershed(&levels, &own, &seeds, b.w, b.h);
         for (i, &part) in parts.iter().enumerate().filter(|(_, &part)| part > 0) {
-            out[at(i)] = first_label[basin] + part - 1;
+            out[b.at(i)] = first_label[basin] + part - 1;
         }
     }
     out
@@ -240,9 +236,8 @@ mod tests {
         assert_eq!(count, 2);
         assert_ne!(at[0], at[1]);
         // The same scene 50 times as bright (a 16-bit camera near its top), thresholded 50
-        // times as high: the same two parts,
-        // pixel for pixel up to their numbering (the rule is a ratio, the flood's steps follow
-        // the response).
+        // times as high: the same two parts, pixel for pixel up to their numbering (the rule
+        // is a ratio, the flood's steps follow the response).
         let all: Vec<(usize, usize)> = (0..w * h).map(|p| (p % w, p / w)).collect();
         let bright: Vec<f32> = values.iter().map(|v| 50.0 * v).collect();
         let (dim_labels, bright_labels) = (

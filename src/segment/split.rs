@@ -224,48 +224,84 @@ fn each_basin_on_its_own(labels: &[u32], distance: &[f32], component: &Lit, widt
     }
     let mut out = vec![0u32; labels.len()];
     let mut next = 0u32;
-    for (basin, (x0, x1, y0, y1)) in boxes.into_iter().enumerate().skip(1) {
-        if x0 >= x1 {
+    for (basin, b) in boxes.into_iter().enumerate().skip(1) {
+        if b.w == 0 {
             continue;
         }
-        let (w, h) = (x1 - x0, y1 - y0);
-        let at = |i: usize| (y0 + i / w) * width + x0 + i % w;
+        let own = b.own(labels, basin);
         let bright = bright_level(std::mem::take(&mut basin_values[basin]));
         if bright <= OWN_LEVEL_ABOVE * component.bright {
-            (0..w * h)
-                .filter(|&i| labels[at(i)] as usize == basin)
-                .for_each(|i| out[at(i)] = next + 1);
+            (0..own.len()).filter(|&i| own[i]).for_each(|i| out[b.at(i)] = next + 1);
             next += 1;
             continue;
         }
-        let own: Vec<bool> = (0..w * h).map(|i| labels[at(i)] as usize == basin).collect();
-        let d: Vec<f32> = (0..w * h).map(|i| distance[at(i)]).collect();
-        let v: Vec<f32> = (0..w * h).map(|i| component.values[at(i)]).collect();
+        let d: Vec<f32> = (0..own.len()).map(|i| distance[b.at(i)]).collect();
+        let v: Vec<f32> = (0..own.len()).map(|i| component.values[b.at(i)]).collect();
         let lit = Lit {
             values: &v,
             bright,
             noise: component.noise,
         };
-        let parts = flood_on_landscape(&d, &lit, &own, (w, h), seed_h_px);
+        let parts = flood_on_landscape(&d, &lit, &own, (b.w, b.h), seed_h_px);
         for (i, &part) in parts.iter().enumerate().filter(|(_, &part)| part > 0) {
-            out[at(i)] = next + part;
+            out[b.at(i)] = next + part;
         }
         next += parts.iter().copied().max().unwrap_or(0);
     }
     out
 }
 
-/// The bounding box `(x0, x1, y0, y1)` of each label of a `width`-wide label image (index =
-/// label; empty boxes, `x0 >= x1`, for labels not present).
-pub(super) fn basin_boxes(labels: &[u32], width: usize) -> Vec<(usize, usize, usize, usize)> {
+/// A basin's bounding box in a label image `width` wide: its cells, row by row, are where a
+/// basin is worked on by itself.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct BasinBox {
+    x0: usize,
+    y0: usize,
+    /// Columns and rows; 0 for a label not present.
+    pub w: usize,
+    pub h: usize,
+    width: usize,
+}
+
+impl BasinBox {
+    /// The image pixel of cell `i`.
+    pub fn at(&self, i: usize) -> usize {
+        (self.y0 + i / self.w) * self.width + self.x0 + i % self.w
+    }
+
+    /// The cell of image pixel `p` (inside the box).
+    pub fn local(&self, p: usize) -> usize {
+        (p / self.width - self.y0) * self.w + p % self.width - self.x0
+    }
+
+    /// Which cells belong to `basin`.
+    pub fn own(&self, labels: &[u32], basin: usize) -> Vec<bool> {
+        (0..self.w * self.h)
+            .map(|i| labels[self.at(i)] as usize == basin)
+            .collect()
+    }
+}
+
+/// The bounding box of each label of a `width`-wide label image (index = label; empty, `w`
+/// 0, for labels not present).
+pub(super) fn basin_boxes(labels: &[u32], width: usize) -> Vec<BasinBox> {
     let top = labels.iter().copied().max().unwrap_or(0) as usize;
-    let mut boxes = vec![(usize::MAX, 0, usize::MAX, 0); top + 1];
+    let mut edges = vec![(usize::MAX, 0, usize::MAX, 0); top + 1];
     for (p, &l) in labels.iter().enumerate() {
-        let b = &mut boxes[l as usize];
+        let b = &mut edges[l as usize];
         let (x, y) = (p % width, p / width);
         *b = (b.0.min(x), b.1.max(x + 1), b.2.min(y), b.3.max(y + 1));
     }
-    boxes
+    edges
+        .into_iter()
+        .map(|(x0, x1, y0, y1)| BasinBox {
+            x0,
+            y0,
+            w: x1.saturating_sub(x0),
+            h: y1.saturating_sub(y0),
+            width,
+        })
+        .collect()
 }
 
 /// Seeds at the h-maxima of the distance-and-intensity landscape ([`intensity_weighted`]) and

@@ -241,6 +241,12 @@ impl ReviewWriter {
         })
     }
 
+    /// The contrast stretch of the first frame, from a caller that has it already (the QC
+    /// movie's, [`DisplayRange::from_values`] of the same frame), so it is not worked out twice.
+    pub fn set_stretch(&mut self, stretch: DisplayRange) {
+        self.stretch = Some(stretch);
+    }
+
     /// Takes the next frame's samples (row-major, the recording's size). The contrast stretch
     /// comes from the first frame and is kept, so that bleaching shows as dimming.
     ///
