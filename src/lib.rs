@@ -30,6 +30,7 @@
 //! | [`shard`] | segmenting a frame range on its own, for joining later |
 //! | [`output`] | atomic files (temp then rename) and folder helpers |
 //! | [`image2d`] | the 2-D float image type |
+//! | [`simd`] | the vector instructions per-pixel loops run on, chosen at run time |
 //! | [`error`] | the error type: one line naming the file and the problem |
 //!
 //! Conventions, stated once: images are indexed `(row, column)` = `(y, x)`; pixel centres sit at
@@ -61,6 +62,7 @@ pub mod run_folder;
 pub mod score;
 pub mod segment;
 pub mod shard;
+pub mod simd;
 pub mod stack;
 pub mod synth;
 pub mod tracks;

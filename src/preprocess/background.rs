@@ -81,9 +81,14 @@ fn block_min(image: &Image, f: usize) -> Image {
     let (sh, sw) = (h.div_ceil(f), w.div_ceil(f));
     let mut out = vec![f32::INFINITY; sh * sw];
     let src = image.as_slice().expect("standard layout");
-    for (y, row) in src.chunks_exact(w).enumerate() {
-        let target = &mut out[(y / f) * sw..(y / f + 1) * sw];
-        for (o, block) in target.iter_mut().zip(row.chunks(f)) {
+    // Down each band of f rows first (whole rows at a time, vectorised), then across.
+    let mut band = vec![f32::INFINITY; w];
+    for (rows, target) in src.chunks(f * w).zip(out.chunks_exact_mut(sw)) {
+        band.fill(f32::INFINITY);
+        for row in rows.chunks_exact(w) {
+            band.iter_mut().zip(row).for_each(|(m, &v)| *m = m.min(v));
+        }
+        for (o, block) in target.iter_mut().zip(band.chunks(f)) {
             *o = block.iter().fold(*o, |m, &v| m.min(v));
         }
     }
@@ -107,13 +112,30 @@ fn upsample_bilinear_with(
     };
     let columns: Vec<(usize, usize, f32)> = (0..w).map(|x| coordinate(x, sw)).collect();
     let src = small.as_slice().expect("standard layout");
+    // Each small row interpolated across once (the rows of a block share it), then every
+    // output row is a blend of two such rows: the same products and sums as interpolating
+    // each pixel from its four samples.
+    let across = |r: usize| -> Vec<f32> {
+        let line = &src[r * sw..(r + 1) * sw];
+        columns
+            .iter()
+            .map(|&(x0, x1, fx)| line[x0] * (1.0 - fx) + line[x1] * fx)
+            .collect()
+    };
+    let mut cached: [(usize, Vec<f32>); 2] = [(usize::MAX, Vec::new()), (usize::MAX, Vec::new())];
     for (y, row) in out.chunks_exact_mut(w).take(h).enumerate() {
         let (y0, y1, fy) = coordinate(y, sh);
-        let (r0, r1) = (&src[y0 * sw..(y0 + 1) * sw], &src[y1 * sw..(y1 + 1) * sw]);
-        for (o, &(x0, x1, fx)) in row.iter_mut().zip(&columns) {
-            let top = r0[x0] * (1.0 - fx) + r0[x1] * fx;
-            let bottom = r1[x0] * (1.0 - fx) + r1[x1] * fx;
-            apply(o, top * (1.0 - fy) + bottom * fy);
+        for (slot, r) in [(0, y0), (1, y1)] {
+            if cached[slot].0 != r {
+                cached[slot] = match cached.iter().position(|c| c.0 == r) {
+                    Some(other) => cached[other].clone(),
+                    None => (r, across(r)),
+                };
+            }
+        }
+        let (top, bottom) = (&cached[0].1, &cached[1].1);
+        for ((o, &t), &b) in row.iter_mut().zip(top).zip(bottom) {
+            apply(o, t * (1.0 - fy) + b * fy);
         }
     }
 }

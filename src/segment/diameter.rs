@@ -86,12 +86,16 @@ pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
     let mut best_sigma = Image::zeros((h, w));
     let mut best_noise = Image::zeros((h, w));
     let mut sigma = SIGMA_RANGE.0;
+    let mut binned: Vec<Option<Image>> = Vec::new();
     while sigma <= SIGMA_RANGE.1.min(w.min(h) as f64 / 4.0) {
         let level = ((sigma / 3.0).log2().floor().max(0.0)) as u32;
         let factor = 1usize << level;
-        let binned = bin(image, factor);
+        if binned.len() <= level as usize {
+            binned.resize(level as usize + 1, None);
+        }
+        let binned = binned[level as usize].get_or_insert_with(|| bin(image, factor));
         let s = sigma / factor as f64;
-        let response = gaussian_laplace(&binned, s as f32);
+        let response = gaussian_laplace(binned, s as f32);
         let noise = (noise_sigma / factor as f64 * log_noise_gain(s)) as f32;
         let norm = -(s * s) as f32;
         keep_strongest(
@@ -124,8 +128,8 @@ pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
 }
 
 /// Where `norm` x `response` (binned by 2^`level`; each pixel reads its block's value) beats
-/// `best`, keeps it with its `sigma` and `noise`. Row by row with shifts (the factor is a power
-/// of two), not an indexed division per pixel: the same values, several times faster.
+/// `best`, keeps it with its `sigma` and `noise`. Row by row: a binned row is first spread to
+/// full width, then the row is compared branch-free ([`keep_strongest_in_row`], vectorised).
 fn keep_strongest(
     (response, level, norm): (&Image, u32, f32),
     (sigma, noise): (f32, f32),
@@ -143,16 +147,42 @@ fn keep_strongest(
         .chunks_exact_mut(w)
         .zip(best_sigma.as_slice_mut().expect("standard layout").chunks_exact_mut(w))
         .zip(best_noise.as_slice_mut().expect("standard layout").chunks_exact_mut(w));
+    let mut spread = vec![0f32; w];
     for (y, ((best, best_sigma), best_noise)) in rows.enumerate() {
         let by = (y >> level).min(rh - 1);
         let line = &response[by * rw..(by + 1) * rw];
-        for x in 0..w {
-            let r = norm * line[(x >> level).min(rw - 1)];
-            if r > best[x] {
-                best[x] = r;
-                best_sigma[x] = sigma;
-                best_noise[x] = noise;
-            }
+        let line = if level == 0 && rw >= w {
+            &line[..w]
+        } else {
+            spread
+                .iter_mut()
+                .enumerate()
+                .for_each(|(x, v)| *v = line[(x >> level).min(rw - 1)]);
+            &spread
+        };
+        keep_strongest_in_row(line, norm, sigma, noise, best, best_sigma, best_noise);
+    }
+}
+
+crate::multiversioned! {
+    /// One row of [`keep_strongest`]: where `norm · line[x]` > `best[x]`, it replaces it and
+    /// `sigma` and `noise` are kept beside it.
+    fn keep_strongest_in_row / keep_strongest_in_row_with(
+        line: &[f32],
+        norm: f32,
+        sigma: f32,
+        noise: f32,
+        best: &mut [f32],
+        best_sigma: &mut [f32],
+        best_noise: &mut [f32]
+    ) {
+        let cells = best.iter_mut().zip(best_sigma.iter_mut()).zip(best_noise.iter_mut());
+        for (((b, s), n), &v) in cells.zip(line) {
+            let r = norm * v;
+            let take = r > *b;
+            *b = if take { r } else { *b };
+            *s = if take { sigma } else { *s };
+            *n = if take { noise } else { *n };
         }
     }
 }
@@ -414,34 +444,69 @@ fn local_maxima(response: &Image, sigma: &Image) -> Vec<(usize, usize)> {
             if v.is_nan() || v <= 0.0 {
                 continue;
             }
+            // The 3 x 3 neighbourhood first: it lies inside every window and rules out most
+            // pixels in a few comparisons.
             let r = (sigma[[y, x]].round() as usize).max(3);
-            let (y0, y1, x0, x1) = (
-                y.saturating_sub(r),
-                (y + r).min(h - 1),
-                x.saturating_sub(r),
-                (x + r).min(w - 1),
-            );
-            let mut is_max = true;
-            'window: for yy in y0..=y1 {
-                for xx in x0..=x1 {
-                    let u = response[[yy, xx]];
-                    if u > v || (u == v && (yy, xx) < (y, x)) {
-                        is_max = false;
-                        break 'window;
-                    }
-                }
+            if beaten_within(response, (y, x), 1) || beaten_within(response, (y, x), r) {
+                continue;
             }
-            if is_max {
-                peaks.push((y, x));
-            }
+            peaks.push((y, x));
         }
     }
     peaks
 }
 
+/// Whether a pixel within `r` (a square window, clipped at the borders) of `(y, x)` beats it:
+/// has a larger response, or an equal one earlier in raster order.
+fn beaten_within(response: &Image, (y, x): (usize, usize), r: usize) -> bool {
+    let (h, w) = response.dim();
+    let v = response[[y, x]];
+    let (y0, y1, x0, x1) = (
+        y.saturating_sub(r),
+        (y + r).min(h - 1),
+        x.saturating_sub(r),
+        (x + r).min(w - 1),
+    );
+    (y0..=y1).any(|yy| {
+        (x0..=x1).any(|xx| {
+            let u = response[[yy, xx]];
+            u > v || (u == v && (yy, xx) < (y, x))
+        })
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_strongest_scale_is_kept_alike_on_every_instruction_level() {
+        // Source: definition (a response replaces the best only when strictly larger, NaN
+        // never does); the vector copies must match the portable build bit for bit
+        // (crate::simd), ties and NaN included.
+        let line: Vec<f32> = (0..67)
+            .map(|i| {
+                if i % 11 == 0 {
+                    f32::NAN
+                } else {
+                    ((i * 37) % 19) as f32 - 9.0
+                }
+            })
+            .collect();
+        let start: Vec<f32> = (0..67).map(|i| ((i * 13) % 7) as f32 - 3.0).collect();
+        let run = |level| {
+            let (mut b, mut s, mut n) = (start.clone(), vec![0f32; 67], vec![0f32; 67]);
+            keep_strongest_in_row_with(level, &line, -1.0, 2.5, 0.5, &mut b, &mut s, &mut n);
+            (b.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), s, n)
+        };
+        let portable = run(crate::simd::Level::Portable);
+        let taken = portable.1.iter().filter(|&&s| s == 2.5).count();
+        let by_hand = line.iter().zip(&start).filter(|(&v, &b)| -v > b).count();
+        assert_eq!(taken, by_hand);
+        for level in crate::simd::levels() {
+            assert_eq!(run(level), portable, "{level:?}");
+        }
+    }
     use crate::numeric::Rng;
 
     #[test]

@@ -137,36 +137,80 @@ fn min_max_all_finite(values: &[f32]) -> Option<(f32, f32)> {
 /// Counts per bin of finite `f32` values within [edges[0], edges[last + 1]], as numpy assigns
 /// them: the bin of `v` is the last one whose lower edge is ≤ `v`. For an `f32` value that
 /// comparison is exact against the edge rounded up to the next `f32`, so the whole loop runs in
-/// `f32`: a first guess from the value's position in the range, then corrections against
-/// those edges (one step at most, except when the range is narrow for `f32` precision), over
-/// four interleaved tallies (a frame has long stretches of one bin, which would otherwise
-/// chain every increment on the same counter).
+/// `f32`. Each value's position in the range, `t = (v − lo) · nbins / (hi − lo)`, names its
+/// bin `⌊t⌋` unless `t` lies within the arithmetic's error bound of a whole number; only such
+/// values (a few per hundred thousand) are placed by comparing with the edges. Blocks of values
+/// are positioned branch-free ([`position_block`], vectorised); tallies are interleaved eight
+/// ways (a frame has long stretches of one bin, which would otherwise chain every increment on
+/// the same counter).
 fn count_bins_f32(values: &[f32], lo: f64, denom: f64, edges: &[f64]) -> Vec<u64> {
+    const TALLIES: usize = 8;
     let nbins = edges.len() - 1;
     let last = nbins - 1;
     let lower: Vec<f32> = edges.iter().map(|&e| f32_at_or_above(e)).collect();
     let (lo32, scale) = (lo as f32, (nbins as f64 / denom) as f32);
-    let mut tallies = vec![0u64; 4 * nbins];
-    let mut guesses = [0i32; 2048];
-    for block in values.chunks(guesses.len()) {
-        // Vectorises: a saturating float-to-i32 conversion per value.
-        for (g, &v) in guesses.iter_mut().zip(block) {
-            *g = ((v - lo32) * scale) as i32;
+    let guess = |v: f32| (((v - lo32) * scale) as i32).max(0) as usize;
+    // Error of t: the subtraction, the product and the scale in f32 (≤ 2⁻²⁴ relative each, of
+    // values up to the largest magnitude in play), and each edge's own rounding to f32; eight
+    // times their sum is a safe margin.
+    let magnitude = lo.abs().max((lo + denom).abs());
+    let margin = (8.0 * f32::EPSILON as f64 * (nbins as f64 + 2.0 * magnitude * nbins as f64 / denom)) as f32;
+    // Tallies a cache line apart from a multiple of 4 KiB: loads and stores whose addresses
+    // agree in their low 12 bits are treated as dependent by the CPU.
+    let stride = nbins + 8;
+    let mut tallies = vec![0u64; TALLIES * stride];
+    let mut bins = [0u16; 2048];
+    for block in values.chunks(bins.len()) {
+        let bins = &mut bins[..block.len()];
+        if margin < 0.25 && nbins < UNPLACED as usize {
+            position_block(block, lo32, scale, last as u16, margin, bins);
+        } else {
+            bins.fill(UNPLACED);
         }
-        for (k, (&g, &v)) in guesses.iter().zip(block).enumerate() {
-            let mut i = (g.max(0) as usize).min(last);
-            while v < lower[i] {
-                i -= 1;
-            }
-            while i < last && v >= lower[i + 1] {
-                i += 1;
-            }
-            tallies[(k & 3) * nbins + i] += 1;
+        for (k, (&b, &v)) in bins.iter().zip(block).enumerate() {
+            let bin = if b == UNPLACED {
+                exact_bin(guess(v), v, &lower)
+            } else {
+                b as usize
+            };
+            tallies[(k % TALLIES) * stride + bin] += 1;
         }
     }
     (0..nbins)
-        .map(|i| (0..4).map(|t| tallies[t * nbins + i]).sum())
+        .map(|i| (0..TALLIES).map(|t| tallies[t * stride + i]).sum())
         .collect()
+}
+
+/// [`position_block`]'s mark for a value too near a bin edge to be placed by its position.
+const UNPLACED: u16 = u16::MAX;
+
+crate::multiversioned! {
+    /// The bin `⌊(v − lo) · scale⌋` (0..=`last`) of each value of `block`, or [`UNPLACED`] where
+    /// the position lies within `margin` of an inner bin edge. Branch-free, so it vectorises.
+    fn position_block / position_block_with(block: &[f32], lo: f32, scale: f32, last: u16, margin: f32, bins: &mut [u16]) {
+        let top = last as f32;
+        for (b, &v) in bins.iter_mut().zip(block) {
+            let t = ((v - lo) * scale).clamp(0.0, top + 1.0);
+            let whole = t.floor().min(top);
+            let fraction = t - whole;
+            let near = (fraction < margin && whole > 0.0) | (fraction > 1.0 - margin && whole < top);
+            *b = if near { UNPLACED } else { whole as u16 };
+        }
+    }
+}
+
+/// The bin of `v` walked from `start` against the `lower` edges (numpy's rule), as many steps
+/// as it takes.
+fn exact_bin(start: usize, v: f32, lower: &[f32]) -> usize {
+    let last = lower.len() - 2;
+    let mut i = start.min(last);
+    while i > 0 && v < lower[i] {
+        i -= 1;
+    }
+    while i < last && v >= lower[i + 1] {
+        i += 1;
+    }
+    i
 }
 
 /// The smallest `f32` that is ≥ `x` (finite `x` within the `f32` range).
@@ -445,6 +489,46 @@ mod tests {
         assert_eq!(Histogram::of_floats(with_nan, 16).unwrap().counts, h.counts);
         let f32_with_nan: Vec<f32> = b.iter().copied().chain([f32::NAN, f32::INFINITY]).collect();
         assert_eq!(Histogram::of_f32(&f32_with_nan, 16).unwrap().counts, h.counts);
+    }
+
+    #[test]
+    fn frame_bins_follow_numpys_rule_on_every_instruction_level() {
+        // Source: numpy's histogram rule (the bin of v is the last whose f64 edge is ≤ v; the
+        // top edge in the last bin), as the general f64 path applies it; the vectorised f32
+        // positions must agree on any range, near and far from zero, and every vector level
+        // must place the same values as the portable build (crate::simd).
+        let mut rng = crate::numeric::Rng::new(7);
+        for (offset, spread) in [(0.0, 1.0), (300.0, 2000.0), (1e6, 3.0), (-5.0, 1e-3), (7e4, 0.02)] {
+            let values: Vec<f32> = (0..20_000)
+                .map(|i| (offset + spread * if i % 5 == 0 { 0.0 } else { rng.uniform() }) as f32)
+                .collect();
+            let fast = Histogram::of_f32(&values, 256).unwrap();
+            let slow = Histogram::of_floats(values.iter().map(|&v| v as f64), 256).unwrap();
+            assert_eq!(fast.counts, slow.counts, "offset {offset} spread {spread}");
+            let mut portable = vec![0u16; values.len()];
+            position_block_with(
+                crate::simd::Level::Portable,
+                &values,
+                offset as f32,
+                255.0 / spread as f32,
+                255,
+                1e-3,
+                &mut portable,
+            );
+            for level in crate::simd::levels() {
+                let mut wide = vec![0u16; values.len()];
+                position_block_with(
+                    level,
+                    &values,
+                    offset as f32,
+                    255.0 / spread as f32,
+                    255,
+                    1e-3,
+                    &mut wide,
+                );
+                assert_eq!(wide, portable, "{level:?}");
+            }
+        }
     }
 
     #[test]
