@@ -1,14 +1,15 @@
-//! Frame production: frames decoded and segmented in parallel batches, handed over in frame
-//! order while the next batch is being segmented, with progress on a terminal.
+//! Frame production: frames decoded one by one and segmented in parallel, a few ahead,
+//! handed over in frame order, with progress on a terminal.
 
 use crate::error::{Error, Result};
 use crate::params::SegmentParams;
 use crate::segment::{masks, segment_frame, FrameSegmentation};
 use crate::stack::Stack;
 use indicatif::{ProgressBar, ProgressStyle};
-use rayon::prelude::*;
 use std::collections::VecDeque;
 use std::io::IsTerminal;
+use std::sync::mpsc::Receiver;
+use std::sync::Arc;
 
 /// A progress bar on stderr when it is a terminal; hidden (silent) otherwise, e.g. in logs.
 pub fn progress_bar(len: u64, what: &str) -> ProgressBar {
@@ -25,23 +26,27 @@ pub fn progress_bar(len: u64, what: &str) -> ProgressBar {
     bar
 }
 
-/// Segmented frames of a recording, in frame order. Frames are decoded in batches of a few per
-/// worker thread; while one batch is segmented in parallel the next is decoded, so reading
-/// overlaps computing, and memory is bounded by two batches, not by the recording's length.
+/// Segmented frames of a recording, in frame order. Each frame is decoded on the producing
+/// thread and handed to the worker pool as a task of its own, a few frames ahead of the one
+/// being delivered; results come back in frame order. A worker that finishes a frame takes
+/// the next one at once (no batch to wait for, so no core idles while the slowest frame of a
+/// batch finishes), and memory is bounded by the frames in flight, not by the recording's
+/// length.
 struct SegmentedFrames<'a> {
     stack: &'a mut Stack,
     /// The user's label masks, when they replace segmentation (see [`crate::segment::masks`]).
     masks: Option<&'a mut Stack>,
     /// Whether objects from masks are measured on the recording's intensities.
     intensities: bool,
-    params: &'a SegmentParams,
+    params: Arc<SegmentParams>,
     /// Frames not decoded yet.
     range: std::ops::Range<usize>,
-    /// Decoded (with their masks' labels), waiting to be segmented.
-    decoded: Vec<Decoded>,
-    ready: VecDeque<FrameSegmentation>,
+    /// Frames handed to the workers, oldest first: where each one's result will arrive.
+    in_flight: VecDeque<Receiver<std::thread::Result<FrameSegmentation>>>,
     failed: Option<Error>,
-    batch: usize,
+    /// How many frames may be in flight: a few per worker, so that every worker finds the
+    /// next frame waiting whichever frame finishes first.
+    window: usize,
     progress: ProgressBar,
 }
 
@@ -58,98 +63,84 @@ impl<'a> SegmentedFrames<'a> {
     /// Iterates over the frames of `stack` from `first` on.
     fn starting_at(
         (stack, masks, intensities): (&'a mut Stack, Option<&'a mut Stack>, bool),
-        params: &'a SegmentParams,
+        params: &SegmentParams,
         progress: ProgressBar,
         first: usize,
     ) -> Self {
         let frames = stack.info().frames;
-        let batch = 2 * rayon::current_num_threads().max(1);
         SegmentedFrames {
             stack,
             masks,
             intensities,
-            params,
+            params: Arc::new(params.clone()),
             range: first.min(frames)..frames,
-            decoded: Vec::new(),
-            ready: VecDeque::new(),
+            in_flight: VecDeque::new(),
             failed: None,
-            batch,
+            window: 3 * rayon::current_num_threads().max(1),
             progress,
         }
     }
 
-    fn decode_batch(
-        stack: &mut Stack,
-        mut masks: Option<&mut Stack>,
-        range: &mut std::ops::Range<usize>,
-        batch: usize,
-    ) -> Result<Vec<Decoded>> {
-        let end = (range.start + batch).min(range.end);
-        let frames = (range.start..end)
-            .map(|t| {
-                let labels = match masks.as_deref_mut() {
-                    Some(m) => Some(masks::mask_labels(&m.read_frame(t)?, &m.info().path)?),
-                    None => None,
-                };
-                Ok((stack.read_frame(t)?, labels))
-            })
-            .collect::<Result<Vec<_>>>();
-        range.start = end;
-        frames
+    /// Frame `t` (and its mask's labels).
+    fn decode(&mut self, t: usize) -> Result<Decoded> {
+        let labels = match self.masks.as_deref_mut() {
+            Some(m) => Some(masks::mask_labels(&m.read_frame(t)?, &m.info().path)?),
+            None => None,
+        };
+        Ok((self.stack.read_frame(t)?, labels))
     }
 
-    fn fill(&mut self) {
-        if self.decoded.is_empty() {
-            match Self::decode_batch(self.stack, self.masks.as_deref_mut(), &mut self.range, self.batch) {
-                Ok(frames) => self.decoded = frames,
-                Err(e) => {
-                    self.failed = Some(e);
-                    return;
-                }
+    /// Decodes frames and hands them to the workers until the window is full, the range is
+    /// done or a frame cannot be read.
+    fn top_up(&mut self) {
+        while self.failed.is_none() && self.in_flight.len() < self.window && !self.range.is_empty() {
+            let t = self.range.start;
+            self.range.start += 1;
+            match self.decode(t) {
+                Ok(decoded) => self.in_flight.push_back(self.spawn(decoded)),
+                Err(e) => self.failed = Some(e),
             }
         }
-        let current = std::mem::take(&mut self.decoded);
-        let (params, intensities) = (self.params, self.intensities);
-        let (stack, masks, range, batch) = (&mut *self.stack, self.masks.as_deref_mut(), &mut self.range, self.batch);
-        let (next, done) = rayon::join(
-            || Self::decode_batch(stack, masks, range, batch),
-            || {
-                current
-                    .par_iter()
-                    .map(|(f, labels)| {
-                        let segmented = match labels {
-                            Some(l) => masks::segment_from_mask(l, &f.to_image(), f.index, intensities),
-                            None => segment_frame(&f.to_image(), f.index, params),
-                        };
-                        FrameSegmentation {
-                            content_crc32: Some(f.content_crc32()),
-                            ..segmented
-                        }
-                    })
-                    .collect::<Vec<_>>()
-            },
-        );
-        self.progress.inc(done.len() as u64);
-        self.ready.extend(done);
-        match next {
-            Ok(frames) => self.decoded = frames,
-            Err(e) => self.failed = Some(e),
-        }
+    }
+
+    /// Segments a decoded frame on the worker pool; a panic is caught there and handed back
+    /// with the result, to be raised on the thread that reads it.
+    fn spawn(&self, (frame, labels): Decoded) -> Receiver<std::thread::Result<FrameSegmentation>> {
+        let (sender, receiver) = std::sync::mpsc::sync_channel(1);
+        let (params, intensities) = (Arc::clone(&self.params), self.intensities);
+        rayon::spawn(move || {
+            let segmented = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                let image = frame.to_image();
+                let segmented = match labels {
+                    Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
+                    None => segment_frame(&image, frame.index, &params),
+                };
+                FrameSegmentation {
+                    content_crc32: Some(frame.content_crc32()),
+                    ..segmented
+                }
+            }));
+            // The reader may have stopped early; then nobody wants this frame.
+            let _ = sender.send(segmented);
+        });
+        receiver
     }
 }
 
 impl Iterator for SegmentedFrames<'_> {
     type Item = Result<FrameSegmentation>;
     fn next(&mut self) -> Option<Self::Item> {
-        if self.ready.is_empty() && self.failed.is_none() && !(self.decoded.is_empty() && self.range.is_empty()) {
-            self.fill();
-        }
-        if let Some(seg) = self.ready.pop_front() {
-            return Some(Ok(seg));
+        self.top_up();
+        if let Some(arriving) = self.in_flight.pop_front() {
+            let segmented = arriving.recv().expect("a spawned frame always sends its result");
+            let segmented = segmented.unwrap_or_else(|panic| std::panic::resume_unwind(panic));
+            self.progress.inc(1);
+            self.top_up();
+            return Some(Ok(segmented));
         }
         if let Some(e) = self.failed.take() {
             self.range.start = self.range.end;
-            self.decoded.clear();
+            self.progress.finish_and_clear();
             return Some(Err(e));
         }
         self.progress.finish_and_clear();
@@ -159,9 +150,9 @@ impl Iterator for SegmentedFrames<'_> {
 
 /// Runs `consume` on the segmented frames `range` of `stack` (segmented by `masks` when given,
 /// measured on the recording's intensities when `intensities`), in frame order, while the next
-/// frames are being segmented: a producer thread decodes and segments batches (on the worker
-/// pool) and hands results over a short queue, so writing tables, logging and
-/// linking on the calling thread no longer leave the workers idle between batches.
+/// frames are being segmented: a producer thread decodes frames and has them segmented (on the
+/// worker pool), and hands results over a short queue, so writing tables, logging and linking
+/// on the calling thread do not leave the workers idle.
 /// Returns what `consume` returns; if it stops early, the producer stops at its next frame.
 pub fn with_segmented_frames<T>(
     (stack, masks, intensities): (&mut Stack, Option<&mut Stack>, bool),

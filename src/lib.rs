@@ -14,7 +14,7 @@
 //! | [`render`] | drawing overlays (the preview PNG, the QC movie) |
 //! | [`tracks`] | the `Detection` type and its CSV form |
 //! | [`columns`] | CSV tables from one list of columns (name and cell printer) |
-//! | [`frames`] | frame production: decoding and segmenting in parallel batches, in frame order, with progress |
+//! | [`frames`] | frame production: decoding and segmenting in parallel, a few frames ahead, in frame order, with progress |
 //! | [`pipeline`] | a run over a whole recording: parameters, first pass, linking, outputs, run record |
 //! | [`qc`] | linking quality figures, object-count jumps, soft warnings of a run |
 //! | [`workflow`] | the Snakemake workflow of a manifest (shards, joins, comparison) |

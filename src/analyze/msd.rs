@@ -197,9 +197,11 @@ pub fn track_autocorrelation(track: &Path, max_lag: usize, frame_interval: f64) 
         })
         .filter(|s| s.1 != 0.0 || s.2 != 0.0)
         .collect();
+    // Each step's length once, not once per pair it is in.
+    let lengths: Vec<f64> = steps.iter().map(|&(_, vx, vy)| vx.hypot(vy)).collect();
     let mut sums = vec![(0.0, 0.0, 0u32); max_lag + 1];
     for (i, &(f, vx, vy)) in steps.iter().enumerate() {
-        for &(g, wx, wy) in &steps[i..] {
+        for (&(g, wx, wy), &length) in steps[i..].iter().zip(&lengths[i..]) {
             let lag = g - f;
             if lag > max_lag {
                 break;
@@ -207,7 +209,7 @@ pub fn track_autocorrelation(track: &Path, max_lag: usize, frame_interval: f64) 
             let dot = vx * wx + vy * wy;
             let s = &mut sums[lag];
             s.0 += dot;
-            s.1 += dot / (vx.hypot(vy) * wx.hypot(wy));
+            s.1 += dot / (lengths[i] * length);
             s.2 += 1;
         }
     }

@@ -15,7 +15,6 @@ use crate::output::AtomicFile;
 use crate::stack::Stack;
 use image::{Rgb, RgbImage};
 use imageproc::drawing::draw_line_segment_mut;
-use rayon::prelude::*;
 use std::fs::File;
 use std::io::{BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
@@ -187,17 +186,13 @@ pub fn render_movie(
         encoder.set_repeat(gif::Repeat::Infinite).map_err(gif_error)?;
         let mut reader = spool.reader()?;
         let spool_path = spool.path.clone();
-        let mut read_batch = |first: usize| -> Result<Vec<FrameToDraw>> {
-            (first..(first + DRAW_BATCH).min(info.frames))
-                .map(|t| {
-                    let outline = read_outline(&mut reader, &spool_path)?;
-                    Ok((t, stack.read_frame(t)?.pixels.to_f32(), outline))
-                })
-                .collect()
+        let mut read = |t: usize| -> Result<FrameToDraw> {
+            let outline = read_outline(&mut reader, &spool_path)?;
+            Ok((t, stack.read_frame(t)?.pixels.to_f32(), outline))
         };
-        let mut next = read_batch(0)?;
+        let first = if info.frames > 0 { Some(read(0)?) } else { None };
         // The contrast of the first frame, for the movie and the review page alike.
-        let stretch = DisplayRange::from_values(next.first().map_or(&[][..], |(_, raw, _)| raw));
+        let stretch = DisplayRange::from_values(first.as_ref().map_or(&[][..], |(_, raw, _)| raw));
         if let Some(r) = review.as_deref_mut() {
             r.set_stretch(stretch);
         }
@@ -208,33 +203,24 @@ pub fn render_movie(
             factor,
             interval_s: info.calibration.frame_interval_s,
         };
-        for first in (0..info.frames).step_by(DRAW_BATCH) {
-            // The next batch is read while this one is drawn.
-            let batch = std::mem::take(&mut next);
-            let (read, drawn) = rayon::join(
-                || read_batch(first + DRAW_BATCH),
-                || -> Vec<Option<DrawnFrame>> {
-                    batch
-                        .par_iter()
-                        .map(|(t, raw, outline)| (t % step == 0).then(|| look.draw(*t, raw, outline)))
-                        .collect()
-                },
-            );
-            next = read?;
-            for ((t, raw, _), drawn) in batch.iter().zip(drawn) {
-                let Some(d) = drawn else {
-                    if let Some(r) = review.as_deref_mut() {
-                        r.offer(*t, raw)?;
-                    }
-                    continue;
-                };
-                if let Some(r) = review.as_deref_mut() {
-                    r.offer_averaged(*t, raw, (factor, &d.averaged))?;
-                }
-                sheet.offer(t / step, &d.canvas);
+        let reviewer = review.as_deref().map(ReviewWriter::encoder);
+        let mut write = |done: FinishedFrame| -> Result<()> {
+            if let (Some(r), Some(encoded)) = (review.as_deref_mut(), done.review) {
+                r.accept(encoded)?;
+            }
+            if let Some(d) = done.drawn {
+                sheet.offer(done.t / step, &d.canvas);
                 encoder.write_lzw_pre_encoded_frame(&d.gif).map_err(gif_error)?;
             }
-        }
+            Ok(())
+        };
+        let finish = |(t, raw, outline): FrameToDraw| -> FinishedFrame {
+            let drawn = (t % step == 0).then(|| look.draw(t, &raw, &outline));
+            let averaged = drawn.as_ref().map_or((0, &[][..]), |d| (factor, &d.averaged[..]));
+            let review = reviewer.as_ref().map(|r| r.encode(t, &raw, averaged));
+            FinishedFrame { t, drawn, review }
+        };
+        in_frame_order(first, (1..info.frames).map(&mut read), &finish, &mut write)?;
     }
     file.commit()?;
     sheet.write(&out.sheet)?;
@@ -244,10 +230,54 @@ pub fn render_movie(
 /// A frame to draw: its index, its values and its outline pixels (index, label).
 type FrameToDraw = (usize, Vec<f32>, Vec<(u32, u32)>);
 
-/// Frames drawn and compressed in parallel at a time (one per core of the machines we measure
-/// on), while as many more are read: four decoded frames held, as when four were read, then
-/// drawn (movie pass medians 1.35 and 1.36 s for batches of 4 and 2, alternated).
-const DRAW_BATCH: usize = 2;
+/// One frame of the movie pass once drawn and compressed: its movie frame (every `step`-th
+/// frame) and its review frame (when the page is written).
+struct FinishedFrame {
+    t: usize,
+    drawn: Option<DrawnFrame>,
+    review: Option<crate::render::review::EncodedFrame>,
+}
+
+/// Runs `finish` on `first` and each frame of `rest` as a task of its own on the worker pool,
+/// a few frames ahead, and hands the results to `write` in frame order on the calling thread
+/// (which reads the frames: `rest` is pulled here). Every worker takes the next frame as soon
+/// as it is done with one, and the calling thread's reading and writing overlap the drawing.
+/// Stops at the first error of reading or writing (frames in flight are finished and
+/// dropped); the outputs are the same on any number of threads.
+fn in_frame_order<F, R>(
+    first: Option<F>,
+    rest: impl Iterator<Item = Result<F>>,
+    finish: &(dyn Fn(F) -> R + Sync),
+    write: &mut dyn FnMut(R) -> Result<()>,
+) -> Result<()>
+where
+    F: Send,
+    R: Send,
+{
+    let window = 2 * rayon::current_num_threads().max(1);
+    rayon::in_place_scope(|scope| {
+        let mut in_flight = std::collections::VecDeque::new();
+        let mut frames = first.map(Ok).into_iter().chain(rest);
+        loop {
+            while in_flight.len() < window {
+                let Some(frame) = frames.next() else { break };
+                let frame = frame?;
+                let (sender, receiver) = std::sync::mpsc::sync_channel(1);
+                scope.spawn(move |_| {
+                    // The reader is gone only after an error; then nobody wants this frame.
+                    let _ = sender.send(finish(frame));
+                });
+                in_flight.push_back(receiver);
+            }
+            let Some(arriving) = in_flight.pop_front() else {
+                return Ok(());
+            };
+            // A task that panicked sends nothing; the scope raises its panic when it ends.
+            let Ok(done) = arriving.recv() else { return Ok(()) };
+            write(done)?;
+        }
+    })
+}
 
 /// What every movie frame is drawn with.
 struct MovieLook<'a> {

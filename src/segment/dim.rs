@@ -42,8 +42,9 @@ pub(super) fn add_dim_nuclei(
     let mut region = crate::numeric::filled(mask.len(), 0u32);
     let mut next = 0u32;
     let mut add: Vec<usize> = Vec::new();
-    for start in 0..mask.len() {
-        if mask[start] || region[start] != 0 || values[start] <= low {
+    let candidate = |m: bool, v: f32| !m & (v > low);
+    for start in chunks_where(mask, values, candidate).into_iter().flatten() {
+        if !candidate(mask[start], values[start]) || region[start] != 0 {
             continue;
         }
         next += 1;
@@ -65,7 +66,7 @@ pub(super) fn add_dim_nuclei(
 /// Clears the 8-connected components of `mask` smaller than `min_area` px.
 fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
     let mut seen = crate::numeric::filled(mask.len(), false);
-    for start in 0..mask.len() {
+    for start in chunks_where(mask, mask, |m, _| m).into_iter().flatten() {
         if !mask[start] || seen[start] {
             continue;
         }
@@ -81,6 +82,20 @@ fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
             }
         }
     }
+}
+
+/// The 64-pixel chunks of the frame where `test(mask, value)` holds for some pixel: each
+/// chunk is tested whole, branch-free (vectorised), so a scan for the few pixels that start
+/// something skips the empty stretches of a frame cheaply.
+fn chunks_where<T: Copy>(mask: &[bool], values: &[T], test: impl Fn(bool, T) -> bool) -> Vec<std::ops::Range<usize>> {
+    const CHUNK: usize = 64;
+    (0..mask.len().div_ceil(CHUNK))
+        .map(|c| c * CHUNK..((c + 1) * CHUNK).min(mask.len()))
+        .filter(|range| {
+            let (m, v) = (&mask[range.clone()], &values[range.clone()]);
+            m.iter().zip(v).fold(false, |any, (&m, &v)| any | test(m, v))
+        })
+        .collect()
 }
 
 /// Labels with `id` the 8-connected region above `low` and outside `mask` that holds `start`;
@@ -132,7 +147,8 @@ fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], (w, h): (usize, 
         return false;
     }
     let r = radius.floor() as isize;
-    let (x, y) = ((p % w) as isize, (p / w) as isize);
+    let (x, y) = super::hmaxima::column_row(p, w);
+    let (x, y) = (x as isize, y as isize);
     for dy in -r..=r {
         for dx in -r..=r {
             if ((dx * dx + dy * dy) as f64) > radius * radius {

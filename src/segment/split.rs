@@ -4,7 +4,7 @@
 //! frame, where nuclei cover a few percent of the pixels, that is most of the work saved.
 
 use super::blobs::{blob_response, split_basins_at_blobs, BlobRule};
-use super::hmaxima::{h_maxima_seeds, neighbours8};
+use super::hmaxima::{column_row, h_maxima_seeds, neighbours8};
 use super::{distance_transform, watershed};
 use crate::preprocess::{gaussian_blur, gaussian_radius};
 
@@ -141,7 +141,7 @@ fn find_components(mask: &[bool], width: usize, height: usize, visited: &mut [u3
         while cursor < pixels.len() {
             let p = pixels[cursor] as usize;
             cursor += 1;
-            let (x, y) = (p % width, p / width);
+            let (x, y) = column_row(p, width);
             (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
             for q in neighbours8(p, width, height) {
                 if mask[q] && visited[q] == 0 {
@@ -287,10 +287,11 @@ impl BasinBox {
 pub(super) fn basin_boxes(labels: &[u32], width: usize) -> Vec<BasinBox> {
     let top = labels.iter().copied().max().unwrap_or(0) as usize;
     let mut edges = vec![(usize::MAX, 0, usize::MAX, 0); top + 1];
-    for (p, &l) in labels.iter().enumerate() {
-        let b = &mut edges[l as usize];
-        let (x, y) = (p % width, p / width);
-        *b = (b.0.min(x), b.1.max(x + 1), b.2.min(y), b.3.max(y + 1));
+    for (y, row) in labels.chunks(width.max(1)).enumerate() {
+        for (x, &l) in row.iter().enumerate().filter(|(_, &l)| l > 0) {
+            let b = &mut edges[l as usize];
+            *b = (b.0.min(x), b.1.max(x + 1), b.2.min(y), b.3.max(y + 1));
+        }
     }
     edges
         .into_iter()

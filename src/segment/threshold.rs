@@ -112,26 +112,28 @@ fn widened_range(lo: f64, hi: f64) -> (f64, f64) {
     }
 }
 
-/// Smallest and largest value when every value is finite; `None` when one is not or there
-/// are none. One pass over eight lanes, so that the loop vectorises.
-fn min_max_all_finite(values: &[f32]) -> Option<(f32, f32)> {
-    let first = *values.first()?;
-    let (mut lo, mut hi, mut finite) = ([first; 8], [first; 8], [true; 8]);
-    let chunks = values.chunks_exact(8);
-    let rest = chunks.remainder();
-    for chunk in chunks {
-        for k in 0..8 {
-            lo[k] = if chunk[k] < lo[k] { chunk[k] } else { lo[k] };
-            hi[k] = if chunk[k] > hi[k] { chunk[k] } else { hi[k] };
-            finite[k] &= chunk[k].is_finite();
+crate::multiversioned! {
+    /// Smallest and largest value when every value is finite; `None` when one is not or there
+    /// are none. One pass over eight lanes, so that the loop vectorises.
+    fn min_max_all_finite / min_max_all_finite_with(values: &[f32]) -> Option<(f32, f32)> {
+        let first = *values.first()?;
+        let (mut lo, mut hi, mut finite) = ([first; 8], [first; 8], [true; 8]);
+        let chunks = values.chunks_exact(8);
+        let rest = chunks.remainder();
+        for chunk in chunks {
+            for k in 0..8 {
+                lo[k] = if chunk[k] < lo[k] { chunk[k] } else { lo[k] };
+                hi[k] = if chunk[k] > hi[k] { chunk[k] } else { hi[k] };
+                finite[k] &= chunk[k].is_finite();
+            }
         }
+        if !(finite.iter().all(|&f| f) && rest.iter().all(|v| v.is_finite())) {
+            return None;
+        }
+        let lo = lo.iter().chain(rest).fold(first, |m, &v| if v < m { v } else { m });
+        let hi = hi.iter().chain(rest).fold(first, |m, &v| if v > m { v } else { m });
+        Some((lo, hi))
     }
-    if !(finite.iter().all(|&f| f) && rest.iter().all(|v| v.is_finite())) {
-        return None;
-    }
-    let lo = lo.iter().chain(rest).fold(first, |m, &v| if v < m { v } else { m });
-    let hi = hi.iter().chain(rest).fold(first, |m, &v| if v > m { v } else { m });
-    Some((lo, hi))
 }
 
 /// Counts per bin of finite `f32` values within [edges[0], edges[last + 1]], as numpy assigns
@@ -140,11 +142,10 @@ fn min_max_all_finite(values: &[f32]) -> Option<(f32, f32)> {
 /// `f32`. Each value's position in the range, `t = (v − lo) · nbins / (hi − lo)`, names its
 /// bin `⌊t⌋` unless `t` lies within the arithmetic's error bound of a whole number; only such
 /// values (a few per hundred thousand) are placed by comparing with the edges. Blocks of values
-/// are positioned branch-free ([`position_block`], vectorised); tallies are interleaved eight
-/// ways (a frame has long stretches of one bin, which would otherwise chain every increment on
-/// the same counter).
+/// are positioned branch-free ([`position_block`], vectorised), then tallied into four
+/// sub-histograms in turn (a frame has long stretches of one bin, which would otherwise chain
+/// every increment on the same counter).
 fn count_bins_f32(values: &[f32], lo: f64, denom: f64, edges: &[f64]) -> Vec<u64> {
-    const TALLIES: usize = 8;
     let nbins = edges.len() - 1;
     let last = nbins - 1;
     let lower: Vec<f32> = edges.iter().map(|&e| f32_at_or_above(e)).collect();
@@ -155,46 +156,74 @@ fn count_bins_f32(values: &[f32], lo: f64, denom: f64, edges: &[f64]) -> Vec<u64
     // times their sum is a safe margin.
     let magnitude = lo.abs().max((lo + denom).abs());
     let margin = (8.0 * f32::EPSILON as f64 * (nbins as f64 + 2.0 * magnitude * nbins as f64 / denom)) as f32;
-    // Tallies a cache line apart from a multiple of 4 KiB: loads and stores whose addresses
-    // agree in their low 12 bits are treated as dependent by the CPU.
-    let stride = nbins + 8;
-    let mut tallies = vec![0u64; TALLIES * stride];
-    let mut bins = [0u16; 2048];
-    for block in values.chunks(bins.len()) {
-        let bins = &mut bins[..block.len()];
-        if margin < 0.25 && nbins < UNPLACED as usize {
-            position_block(block, lo32, scale, last as u16, margin, bins);
-        } else {
-            bins.fill(UNPLACED);
+    let mut counts = vec![0u64; nbins];
+    if margin >= 0.25 || nbins > NEAR_EDGE as usize {
+        for &v in values {
+            counts[exact_bin(guess(v), v, &lower)] += 1;
         }
-        for (k, (&b, &v)) in bins.iter().zip(block).enumerate() {
-            let bin = if b == UNPLACED {
-                exact_bin(guess(v), v, &lower)
-            } else {
-                b as usize
-            };
-            tallies[(k % TALLIES) * stride + bin] += 1;
+        return counts;
+    }
+    // Sub-histograms a cache line apart from a multiple of 4 KiB (loads and stores whose
+    // addresses agree in their low 12 bits are treated as dependent by the CPU), in 32 bits,
+    // added into the totals every 2²⁴ values.
+    let stride = nbins + 16;
+    let mut tallies = vec![0u32; 4 * stride];
+    let mut bins = [0u16; 2048];
+    for chunk in values.chunks(1 << 24) {
+        for block in chunk.chunks(bins.len()) {
+            let bins = &mut bins[..block.len()];
+            position_block(block, lo32, scale, last as u16, margin, bins);
+            let mut near = 0u16;
+            let quads = bins.chunks_exact(4);
+            for &b in quads.remainder() {
+                tallies[(b & !NEAR_EDGE) as usize] += 1;
+                near |= b;
+            }
+            for q in quads {
+                tallies[(q[0] & !NEAR_EDGE) as usize] += 1;
+                tallies[stride + (q[1] & !NEAR_EDGE) as usize] += 1;
+                tallies[2 * stride + (q[2] & !NEAR_EDGE) as usize] += 1;
+                tallies[3 * stride + (q[3] & !NEAR_EDGE) as usize] += 1;
+                near |= q[0] | q[1] | q[2] | q[3];
+            }
+            if near & NEAR_EDGE != 0 {
+                // Move the few values near an edge from their position's bin to their own.
+                for (&b, &v) in bins.iter().zip(block).filter(|(&b, _)| b & NEAR_EDGE != 0) {
+                    let (placed, exact) = ((b & !NEAR_EDGE) as usize, exact_bin(guess(v), v, &lower));
+                    counts[exact] += 1;
+                    counts[placed] -= 1;
+                }
+            }
+        }
+        for (i, c) in counts.iter_mut().enumerate() {
+            *c += (0..4)
+                .map(|k| std::mem::take(&mut tallies[k * stride + i]) as u64)
+                .sum::<u64>();
         }
     }
-    (0..nbins)
-        .map(|i| (0..TALLIES).map(|t| tallies[t * stride + i]).sum())
-        .collect()
+    counts
 }
 
-/// [`position_block`]'s mark for a value too near a bin edge to be placed by its position.
-const UNPLACED: u16 = u16::MAX;
+/// [`position_block`]'s mark (the top bit) on a value near a bin edge, whose bin must be
+/// checked against the edges.
+const NEAR_EDGE: u16 = 1 << 15;
 
 crate::multiversioned! {
-    /// The bin `⌊(v − lo) · scale⌋` (0..=`last`) of each value of `block`, or [`UNPLACED`] where
-    /// the position lies within `margin` of an inner bin edge. Branch-free, so it vectorises.
+    /// The bin `⌊(v − lo) · scale⌋` (0..=`last`) of each value of `block`, marked with
+    /// [`NEAR_EDGE`] where the position lies within `margin` of an inner bin edge. Branch-free,
+    /// so it vectorises.
     fn position_block / position_block_with(block: &[f32], lo: f32, scale: f32, last: u16, margin: f32, bins: &mut [u16]) {
         let top = last as f32;
         for (b, &v) in bins.iter_mut().zip(block) {
-            let t = ((v - lo) * scale).clamp(0.0, top + 1.0);
+            // max/min rather than clamp (NaN goes to 0), and the whole number read from the
+            // bits of 2²³ + whole (exact below 2²³) rather than a saturating conversion: forms
+            // the compiler vectorises.
+            let t = ((v - lo) * scale).max(0.0).min(top + 1.0);
             let whole = t.floor().min(top);
             let fraction = t - whole;
             let near = (fraction < margin && whole > 0.0) | (fraction > 1.0 - margin && whole < top);
-            *b = if near { UNPLACED } else { whole as u16 };
+            let bin = ((whole + 8_388_608.0).to_bits() & 0x7fff) as u16;
+            *b = bin | if near { NEAR_EDGE } else { 0 };
         }
     }
 }

@@ -183,6 +183,61 @@ impl FullFramePlan {
     }
 }
 
+/// A review frame compressed by [`ReviewEncoder::encode`], to be written by
+/// [`ReviewWriter::accept`].
+pub struct EncodedFrame {
+    t: usize,
+    display: Vec<u8>,
+    full: Option<Vec<u8>>,
+}
+
+/// How a [`ReviewWriter`] maps and compresses frames ([`ReviewWriter::encoder`]), apart from
+/// the writer, so that frames can be compressed on any thread.
+#[derive(Debug, Clone)]
+pub struct ReviewEncoder {
+    size: (usize, usize),
+    factor: usize,
+    plan: FullFramePlan,
+    stretch: Option<DisplayRange>,
+}
+
+impl ReviewEncoder {
+    /// Frame `t` (its samples, and its block average by `factor` when the caller has it, as
+    /// in [`ReviewWriter::offer_averaged`]) mapped to display grey levels and compressed.
+    pub fn encode(&self, t: usize, raw: &[f32], (factor, averaged): (usize, &[f32])) -> EncodedFrame {
+        let stretch = self.stretch.unwrap_or_else(|| DisplayRange::from_values(raw));
+        let (display, full) = self.greys(stretch, t, raw, (factor, averaged));
+        let (w, h) = self.size;
+        let (dw, dh) = (w.div_ceil(self.factor), h.div_ceil(self.factor));
+        EncodedFrame {
+            t,
+            display: jpeg(&display, dw, dh),
+            full: full.map(|f| jpeg(&f, w, h)),
+        }
+    }
+
+    /// The display frame's grey levels, and the full frame's where the plan keeps it.
+    /// Averaged before stretching, so that only the display's pixels are mapped; the full
+    /// frame is mapped only where it is kept.
+    fn greys(
+        &self,
+        stretch: DisplayRange,
+        t: usize,
+        raw: &[f32],
+        (factor, averaged): (usize, &[f32]),
+    ) -> (Vec<u8>, Option<Vec<u8>>) {
+        let (w, h) = self.size;
+        let to_grey = |values: &[f32]| -> Vec<u8> { values.iter().map(|&v| stretch.level(v, 255)).collect() };
+        let display = if factor == self.factor {
+            to_grey(averaged)
+        } else {
+            to_grey(&box_average(raw, w, h, self.factor))
+        };
+        let full = self.plan.frames.contains(&t).then(|| to_grey(raw));
+        (display, full)
+    }
+}
+
 /// Writes a review folder frame by frame: [`ReviewWriter::offer`] every frame in order, then
 /// [`ReviewWriter::finish`].
 pub struct ReviewWriter {
@@ -262,6 +317,40 @@ impl ReviewWriter {
     /// # Errors
     /// As [`ReviewWriter::offer`].
     pub fn offer_averaged(&mut self, t: usize, raw: &[f32], (factor, averaged): (usize, &[f32])) -> Result<()> {
+        self.check_order(t)?;
+        let stretch = *self.stretch.get_or_insert_with(|| DisplayRange::from_values(raw));
+        let (display, full) = self.encoder().greys(stretch, t, raw, (factor, averaged));
+        self.batch.push((t, display, full));
+        if self.batch.len() >= ENCODE_BATCH {
+            self.encode_batch()?;
+        }
+        Ok(())
+    }
+
+    /// What frames are compressed with, for a caller that compresses them in parallel
+    /// ([`ReviewEncoder::encode`]) and hands them to [`ReviewWriter::accept`] in order. The
+    /// stretch must be set first ([`ReviewWriter::set_stretch`]); without it, each frame's own.
+    pub fn encoder(&self) -> ReviewEncoder {
+        ReviewEncoder {
+            size: self.input.size,
+            factor: self.factor,
+            plan: self.plan.clone(),
+            stretch: self.stretch,
+        }
+    }
+
+    /// Writes a frame from [`ReviewEncoder::encode`]; frames must come in order, after any
+    /// offered ones.
+    ///
+    /// # Errors
+    /// As [`ReviewWriter::offer`].
+    pub fn accept(&mut self, frame: EncodedFrame) -> Result<()> {
+        self.check_order(frame.t)?;
+        self.encode_batch()?;
+        self.write_encoded(frame.t, &frame.display, frame.full.as_deref())
+    }
+
+    fn check_order(&mut self, t: usize) -> Result<()> {
         if t != self.offered {
             return Err(Error::output(
                 &self.target,
@@ -269,21 +358,6 @@ impl ReviewWriter {
             ));
         }
         self.offered += 1;
-        let stretch = *self.stretch.get_or_insert_with(|| DisplayRange::from_values(raw));
-        let (w, h) = self.input.size;
-        let to_grey = |values: &[f32]| -> Vec<u8> { values.iter().map(|&v| stretch.level(v, 255)).collect() };
-        // Averaged before stretching, so that only the display's pixels are mapped; the full
-        // frame is mapped only where it is kept.
-        let display = if factor == self.factor {
-            to_grey(averaged)
-        } else {
-            to_grey(&box_average(raw, w, h, self.factor))
-        };
-        let full = self.plan.frames.contains(&t).then(|| to_grey(raw));
-        self.batch.push((t, display, full));
-        if self.batch.len() >= ENCODE_BATCH {
-            self.encode_batch()?;
-        }
         Ok(())
     }
 
@@ -298,10 +372,15 @@ impl ReviewWriter {
             .collect();
         self.batch.clear();
         for (t, small, full) in encoded {
-            self.write(&format!("frames/{t:06}.jpg"), &small)?;
-            if let Some(full) = full {
-                self.write(&format!("full/{t:06}.jpg"), &full)?;
-            }
+            self.write_encoded(t, &small, full.as_deref())?;
+        }
+        Ok(())
+    }
+
+    fn write_encoded(&mut self, t: usize, display: &[u8], full: Option<&[u8]>) -> Result<()> {
+        self.write(&format!("frames/{t:06}.jpg"), display)?;
+        if let Some(full) = full {
+            self.write(&format!("full/{t:06}.jpg"), full)?;
         }
         Ok(())
     }
