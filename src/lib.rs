@@ -78,8 +78,13 @@ pub const VERSION: &str = env!("CARGO_PKG_VERSION");
 /// once (mmap/munmap) and faults them in again for the next frame, which costs time and makes
 /// worker threads queue on the process's memory-map lock. Serving them from the heap instead
 /// keeps the freed buffers for the next frame (measured in benches/versus_python.sh: 100
-/// frames of 1024² px, 4.1 s → 3.6 s on 2 cores, peak memory +12 MB). Call it first thing in
-/// a program (the `caravan` binary and the stage benchmarks do).
+/// frames of 1024² px, 4.1 s → 3.6 s on 2 cores, peak memory +12 MB). And no more malloc
+/// arenas than cores: glibc gives each new thread an arena of its own (up to 8 per core), and
+/// each arena keeps the buffers its thread freed, so the run's threads (workers, reader,
+/// linker) held several frames' worth each (the default run on 2 cores peaked at 117-130 MB
+/// with glibc's arenas and 85-103 MB with two, same speed, 3 alternating rounds; with one, the
+/// threads queued on it and the run took 10-25% longer). Call it first thing in a program (the
+/// `caravan` binary and the stage benchmarks do).
 #[cfg(all(target_os = "linux", target_env = "gnu"))]
 pub fn keep_freed_memory_for_reuse() {
     extern "C" {
@@ -87,10 +92,13 @@ pub fn keep_freed_memory_for_reuse() {
     }
     const M_TRIM_THRESHOLD: i32 = -1; // glibc malloc.h
     const M_MMAP_THRESHOLD: i32 = -3;
+    const M_ARENA_MAX: i32 = -8;
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get()).min(64) as i32;
     // SAFETY: mallopt(3) with documented parameters, before any allocation-heavy work or thread.
     unsafe {
         mallopt(M_MMAP_THRESHOLD, 256 << 20);
         mallopt(M_TRIM_THRESHOLD, 512 << 20);
+        mallopt(M_ARENA_MAX, cores);
     }
 }
 
