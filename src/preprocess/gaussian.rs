@@ -88,9 +88,11 @@ pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f
     let g0 = truncated_derivative_kernel(sigma, 0, truncate);
     let g2 = truncated_derivative_kernel(sigma, 2, truncate);
     let r = g0.len() / 2;
-    let (mut x0, mut x1, mut y0, mut y1) = (first as usize % width, 0, first as usize / width, 0);
+    let column_row = |p: u32| crate::segment::hmaxima::column_row(p as usize, width);
+    let ((fx, fy), mut x1, mut y1) = (column_row(first), 0, 0);
+    let (mut x0, mut y0) = (fx, fy);
     for &p in pixels {
-        let (x, y) = (p as usize % width, p as usize / width);
+        let (x, y) = column_row(p);
         (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
     }
     // Rows y0 - r .. y1 + r (as offsets), columns x0..x1: each row filtered with g0 and g2.
@@ -99,25 +101,37 @@ pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f
     let mut with_g0 = vec![0f32; rows * band];
     let mut with_g2 = vec![0f32; rows * band];
     let mut padded = vec![0f32; band + 2 * r];
+    // Columns x0 - r .. x1 + r of the frame; those inside it are copied, the rest reflected.
+    let inside = r.saturating_sub(x0)..(band + 2 * r).min(width + r - x0);
     for j in 0..rows {
         let sy = reflect(y0 as isize + j as isize - r as isize, height);
         let line = &values[sy * width..(sy + 1) * width];
-        for (i, v) in padded.iter_mut().enumerate() {
-            *v = line[reflect(x0 as isize + i as isize - r as isize, width)];
+        padded[inside.clone()].copy_from_slice(&line[x0 + inside.start - r..x0 + inside.end - r]);
+        for i in (0..inside.start).chain(inside.end..band + 2 * r) {
+            padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
         }
         filter_padded_row(&mut with_g0[j * band..(j + 1) * band], &padded, &g0);
         filter_padded_row(&mut with_g2[j * band..(j + 1) * band], &padded, &g2);
     }
+    // The column passes over the whole box (vectorised), then the pixels read from it.
+    let box_rows = y1 - y0;
+    let (mut across_g2, mut across_g0) = (vec![0f32; box_rows * band], vec![0f32; box_rows * band]);
+    for j in 0..box_rows {
+        let rows_g2: Vec<&[f32]> = (0..g0.len())
+            .map(|k| &with_g2[(j + k) * band..(j + k + 1) * band])
+            .collect();
+        let rows_g0: Vec<&[f32]> = (0..g0.len())
+            .map(|k| &with_g0[(j + k) * band..(j + k + 1) * band])
+            .collect();
+        filter_rows(&mut across_g2[j * band..(j + 1) * band], &rows_g2, &g0);
+        filter_rows(&mut across_g0[j * band..(j + 1) * band], &rows_g0, &g2);
+    }
     pixels
         .iter()
         .map(|&p| {
-            let (c, j) = (p as usize % width - x0, p as usize / width - y0);
-            let (mut a, mut b) = (0f32, 0f32);
-            for (k, (&w0, &w2)) in g0.iter().zip(&g2).enumerate() {
-                a += w0 * with_g2[(j + k) * band + c];
-                b += w2 * with_g0[(j + k) * band + c];
-            }
-            a + b
+            let (x, y) = column_row(p);
+            let i = (y - y0) * band + x - x0;
+            across_g2[i] + across_g0[i]
         })
         .collect()
 }

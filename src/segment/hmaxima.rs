@@ -91,8 +91,8 @@ pub fn h_maxima_seeds(values: &[f32], mask: &[bool], width: usize, height: usize
 fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f64) -> (Vec<u32>, Vec<u32>, u32) {
     // f32 arithmetic: distances of a frame are far below 2^24 / 256, so the product is exact
     // enough and `as u32` saturates.
-    let level = |v: f32| (v.max(0.0) * LEVELS_PER_UNIT as f32 + 0.5) as u32;
-    let levels: Vec<u32> = values.iter().map(|&v| level(v)).collect();
+    let mut levels = vec![0u32; values.len()];
+    quantise_levels(values, LEVELS_PER_UNIT as f32, 0.5, &mut levels);
     let h_levels = (h * LEVELS_PER_UNIT).round().max(0.0) as u32;
     // Marker = value − h (as levels, floored at 0); reconstruction starts from it.
     let mut rec: Vec<u32> = levels.iter().map(|&v| v.saturating_sub(h_levels)).collect();
@@ -131,6 +131,24 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
         }
     }
     (levels, rec, h_levels)
+}
+
+crate::multiversioned! {
+    /// `(max(v, 0) · scale + offset) as u32` for each value, with the `as` conversion's
+    /// saturation (NaN and below 0 to 0, 2³² and above to `u32::MAX`): flooding levels from
+    /// a distance map or landscape. Written so that it vectorises (a saturating conversion in
+    /// the loop stays scalar): the product is clamped into the range where truncation is
+    /// defined, and the top is selected apart.
+    pub(crate) fn quantise_levels / quantise_levels_with(values: &[f32], scale: f32, offset: f32, out: &mut [u32]) {
+        const BELOW_2_32: f32 = 4_294_967_040.0; // the largest f32 below 2³²
+        for (o, &v) in out.iter_mut().zip(values) {
+            let x = v.max(0.0) * scale + offset;
+            let inside = x.max(0.0).min(BELOW_2_32);
+            // SAFETY: `inside` is finite and within 0..=u32::MAX (f32::max drops a NaN).
+            let truncated = unsafe { inside.to_int_unchecked::<u32>() };
+            *o = if x >= 4_294_967_296.0 { u32::MAX } else { truncated };
+        }
+    }
 }
 
 /// The column and row of pixel `i` of a `width`-wide image. In 32 bits when the index fits
@@ -194,6 +212,39 @@ mod tests {
             .filter(|(_, &l)| l > 0)
             .map(|(i, &l)| (i, l))
             .collect()
+    }
+
+    #[test]
+    fn levels_convert_as_rusts_saturating_cast_on_every_instruction_level() {
+        // Source: the Rust reference's float-to-integer `as` (truncation toward zero, NaN to
+        // 0, saturation at both ends): the vectorised conversion must agree on ordinary
+        // distances, the edges of the range and non-finite values, on every level.
+        let mut values: Vec<f32> = (0..5000).map(|i| i as f32 * 0.013).collect();
+        values.extend([
+            f32::NAN,
+            f32::INFINITY,
+            f32::NEG_INFINITY,
+            -3.0,
+            -0.0,
+            0.0,
+            16_777_215.0,
+            16_777_216.0,
+        ]);
+        values.extend([
+            1.677_721_5e7,
+            1.677_721_6e7,
+            3.4e38,
+            4_294_967_040.0 / 256.0,
+            4_294_967_296.0 / 256.0,
+        ]);
+        for (scale, offset) in [(256.0f32, 0.5f32), (256.0, 0.0), (1.0, -2.5)] {
+            let want: Vec<u32> = values.iter().map(|&v| (v.max(0.0) * scale + offset) as u32).collect();
+            for level in crate::simd::levels() {
+                let mut got = vec![7u32; values.len()];
+                quantise_levels_with(level, &values, scale, offset, &mut got);
+                assert_eq!(got, want, "{level:?} scale {scale} offset {offset}");
+            }
+        }
     }
 
     #[test]

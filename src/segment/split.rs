@@ -316,10 +316,8 @@ fn flood_on_landscape(
 ) -> Vec<u32> {
     let (landscape, h) = intensity_weighted(distance, lit, mask, seed_h_px);
     let (seeds, _) = h_maxima_seeds(&landscape, mask, width, height, h);
-    let levels: Vec<u32> = landscape
-        .iter()
-        .map(|&v| (v.max(0.0) * super::hmaxima::LEVELS_PER_UNIT as f32) as u32)
-        .collect();
+    let mut levels = vec![0u32; landscape.len()];
+    super::hmaxima::quantise_levels(&landscape, super::hmaxima::LEVELS_PER_UNIT as f32, 0.0, &mut levels);
     watershed::seeded_watershed(&levels, mask, &seeds, width, height)
 }
 
