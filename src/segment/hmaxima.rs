@@ -143,6 +143,8 @@ crate::multiversioned! {
         const BELOW_2_32: f32 = 4_294_967_040.0; // the largest f32 below 2³²
         for (o, &v) in out.iter_mut().zip(values) {
             let x = v.max(0.0) * scale + offset;
+            // Not `clamp`: it keeps a NaN, and the conversion below must never see one.
+            #[allow(clippy::manual_clamp)]
             let inside = x.max(0.0).min(BELOW_2_32);
             // SAFETY: `inside` is finite and within 0..=u32::MAX (f32::max drops a NaN).
             let truncated = unsafe { inside.to_int_unchecked::<u32>() };
