@@ -88,7 +88,7 @@ pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f
     let g0 = truncated_derivative_kernel(sigma, 0, truncate);
     let g2 = truncated_derivative_kernel(sigma, 2, truncate);
     let r = g0.len() / 2;
-    let column_row = |p: u32| crate::segment::hmaxima::column_row(p as usize, width);
+    let column_row = |p: u32| crate::numeric::column_row(p as usize, width);
     let ((fx, fy), mut x1, mut y1) = (column_row(first), 0, 0);
     let (mut x0, mut y0) = (fx, fy);
     for &p in pixels {

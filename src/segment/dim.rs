@@ -147,7 +147,7 @@ fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], (w, h): (usize, 
         return false;
     }
     let r = radius.floor() as isize;
-    let (x, y) = super::hmaxima::column_row(p, w);
+    let (x, y) = crate::numeric::column_row(p, w);
     let (x, y) = (x as isize, y as isize);
     for dy in -r..=r {
         for dx in -r..=r {

@@ -1,6 +1,8 @@
 //! Seeds for the watershed: the h-maxima of the distance map, i.e. maxima whose dynamic
 //! (height above the saddle to a taller peak) is at least `h`.
 
+use crate::numeric::column_row;
+
 /// Levels per pixel of distance when values are quantised for the bucket queue: 1/256 px is
 /// far below the precision of a segmented outline.
 pub const LEVELS_PER_UNIT: f64 = 256.0;
@@ -150,17 +152,6 @@ crate::multiversioned! {
             let truncated = unsafe { inside.to_int_unchecked::<u32>() };
             *o = if x >= 4_294_967_296.0 { u32::MAX } else { truncated };
         }
-    }
-}
-
-/// The column and row of pixel `i` of a `width`-wide image. In 32 bits when the index fits
-/// (every real frame): a 64-bit division costs several times a 32-bit one on many x86 CPUs,
-/// and the flooding loops divide once per pixel they visit.
-#[inline]
-pub(crate) fn column_row(i: usize, width: usize) -> (usize, usize) {
-    match (u32::try_from(i), u32::try_from(width)) {
-        (Ok(i), Ok(width)) => ((i % width) as usize, (i / width) as usize),
-        _ => (i % width, i / width),
     }
 }
 

@@ -30,7 +30,7 @@ pub fn measure_objects(
         if l == 0 {
             continue;
         }
-        let (x, y) = crate::segment::hmaxima::column_row(i, width);
+        let (x, y) = crate::numeric::column_row(i, width);
         let (x, y) = (x as f64, y as f64);
         let m = &mut acc[l as usize];
         m.n += 1.0;

@@ -4,8 +4,9 @@
 //! frame, where nuclei cover a few percent of the pixels, that is most of the work saved.
 
 use super::blobs::{blob_response, split_basins_at_blobs, BlobRule};
-use super::hmaxima::{column_row, h_maxima_seeds, neighbours8};
+use super::hmaxima::{h_maxima_seeds, neighbours8};
 use super::{distance_transform, watershed};
+use crate::numeric::column_row;
 use crate::preprocess::{gaussian_blur, gaussian_radius};
 
 /// Marks a pixel as reached by the component search before its final label is known.
