@@ -51,19 +51,34 @@ impl PairCorrelation {
     /// Adds every pair of one frame within the last edge: the dot product of their vectors
     /// as given (unit vectors give cosines; [`scaled_fluctuations`] give Cavagna's C(r)).
     ///
-    /// The pairs within reach are found on a grid of cells one reach wide (each point meets
-    /// only the points of its own and the eight cells around it), so the work grows with the
-    /// number of points times their neighbours within reach, not with the square of the
-    /// points; each point's partners are then taken in index order, the order of the plain
-    /// double loop, so the sums are the same to the last bit.
+    /// The candidates within reach come from a k-d tree (a radius a millionth wider than the
+    /// reach, so that rounding in the squared distance drops no pair the distance below
+    /// keeps), so the work grows with the number of points times their neighbours within
+    /// reach, not with the square of the points; each point's partners are then taken in
+    /// index order, the order of the plain double loop, so the sums are the same to the last
+    /// bit. Frames with a point that is not finite compare every pair.
     pub fn add_frame(&mut self, positions: &[[f64; 2]], vectors: &[[f64; 2]]) {
         let Some(&reach) = self.bin_edges.last() else { return };
-        let grid = CellGrid::new(positions, reach);
+        let finite = positions.iter().flatten().all(|v| v.is_finite());
+        let tree: Option<ImmutableKdTree<f64, 2>> = finite
+            .then(|| ImmutableKdTree::new_from_slice(positions).ok())
+            .flatten();
+        let wider = (reach * (1.0 + 1e-6)).powi(2);
         let mut partners = Vec::new();
         for i in 0..positions.len() {
             let ui = vectors[i];
             partners.clear();
-            partners.extend(grid.around(positions[i]).filter(|&j| j > i));
+            match &tree {
+                Some(tree) => partners.extend(
+                    tree.query(&positions[i])
+                        .within::<SquaredEuclidean<f64>>(wider)
+                        .execute()
+                        .iter()
+                        .map(|hit| hit.item as usize)
+                        .filter(|&j| j > i),
+                ),
+                None => partners.extend(i + 1..positions.len()),
+            }
             partners.sort_unstable();
             for &j in &partners {
                 let uj = vectors[j];
@@ -124,54 +139,6 @@ pub fn scaled_fluctuations(velocities: &[[f64; 2]]) -> Option<Vec<[f64; 2]>> {
     (rms > 0.0).then(|| d.iter().map(|v| [v[0] / rms, v[1] / rms]).collect())
 }
 
-/// Points binned into square cells `side` wide, to find the points near a point without
-/// looking at all of them. Points that are not finite, or a side that is not positive and
-/// finite, put everything into one cell (every point is then a candidate, as without a grid).
-struct CellGrid {
-    side: f64,
-    origin: [f64; 2],
-    /// Points per cell, by cell key `(column, row)`.
-    cells: std::collections::HashMap<(i64, i64), Vec<usize>>,
-}
-
-impl CellGrid {
-    fn new(points: &[[f64; 2]], side: f64) -> Self {
-        let usable = side.is_finite() && side > 0.0 && points.iter().all(|p| p[0].is_finite() && p[1].is_finite());
-        let origin = points
-            .iter()
-            .fold([f64::INFINITY; 2], |o, p| [o[0].min(p[0]), o[1].min(p[1])]);
-        let mut grid = CellGrid {
-            side: if usable { side } else { f64::INFINITY },
-            origin: if usable { origin } else { [0.0; 2] },
-            cells: std::collections::HashMap::new(),
-        };
-        for (i, &p) in points.iter().enumerate() {
-            grid.cells.entry(grid.key(p)).or_default().push(i);
-        }
-        grid
-    }
-
-    fn key(&self, p: [f64; 2]) -> (i64, i64) {
-        if self.side.is_infinite() {
-            return (0, 0);
-        }
-        let cell = |v: f64, o: f64| ((v - o) / self.side).floor() as i64;
-        (cell(p[0], self.origin[0]), cell(p[1], self.origin[1]))
-    }
-
-    /// The points in the cell of `p` and the eight around it: every point within `side` of
-    /// `p`, and some farther.
-    fn around(&self, p: [f64; 2]) -> impl Iterator<Item = usize> + '_ {
-        let (cx, cy) = self.key(p);
-        (-1..=1)
-            .flat_map(move |dy| (-1..=1).map(move |dx| (cx + dx, cy + dy)))
-            .filter(move |&(x, y)| !self.side.is_infinite() || (x, y) == (0, 0))
-            .filter_map(|k| self.cells.get(&k))
-            .flatten()
-            .copied()
-    }
-}
-
 /// Distance to the nearest other point and the local density of each point, estimated as
 /// `k / (π r_k²)` with `r_k` the distance to the k-th nearest neighbour; `None` where there
 /// are too few points.
@@ -206,7 +173,7 @@ mod tests {
     use super::*;
 
     #[test]
-    fn pairs_on_the_grid_sum_as_the_plain_double_loop() {
+    fn pairs_from_the_tree_sum_as_the_plain_double_loop() {
         // Source: definition (C(r) sums over every pair within reach); the plain double loop
         // over all pairs, written out here, gives the same pair counts and the same sums to
         // the last bit, on a random field where most pairs are out of reach.
@@ -216,8 +183,8 @@ mod tests {
             .collect();
         let vectors: Vec<[f64; 2]> = (0..400).map(|_| [rng.normal(), rng.normal()]).collect();
         let edges: Vec<f64> = (1..=8).map(|i| i as f64 * 7.5).collect();
-        let mut grid = PairCorrelation::new(edges.clone());
-        grid.add_frame(&points, &vectors);
+        let mut tree = PairCorrelation::new(edges.clone());
+        tree.add_frame(&points, &vectors);
         let mut plain = PairCorrelation::new(edges.clone());
         for i in 0..points.len() {
             for j in i + 1..points.len() {
@@ -228,10 +195,10 @@ mod tests {
                 }
             }
         }
-        assert_eq!(grid.pairs, plain.pairs);
+        assert_eq!(tree.pairs, plain.pairs);
         assert!(plain.pairs.iter().sum::<usize>() > 100);
         let bits = |c: &PairCorrelation| c.product_sum.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
-        assert_eq!(bits(&grid), bits(&plain));
+        assert_eq!(bits(&tree), bits(&plain));
     }
 
     #[test]

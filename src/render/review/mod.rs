@@ -244,9 +244,9 @@ pub struct ReviewWriter {
     input: ReviewInput,
     staging: PathBuf,
     target: PathBuf,
-    factor: usize,
-    plan: FullFramePlan,
-    stretch: Option<DisplayRange>,
+    /// How frames are mapped and compressed: the display factor, the full-frame plan and the
+    /// contrast stretch.
+    encoder: ReviewEncoder,
     /// Frames waiting to be encoded: display pixels, and full-resolution ones where kept.
     batch: Vec<(usize, Vec<u8>, Option<Vec<u8>>)>,
     offered: usize,
@@ -287,9 +287,12 @@ impl ReviewWriter {
             input,
             staging,
             target: target.to_path_buf(),
-            factor,
-            plan,
-            stretch: None,
+            encoder: ReviewEncoder {
+                size: (w, h),
+                factor,
+                plan,
+                stretch: None,
+            },
             batch: Vec::new(),
             offered: 0,
             bytes: 0,
@@ -299,7 +302,7 @@ impl ReviewWriter {
     /// The contrast stretch of the first frame, from a caller that has it already (the QC
     /// movie's, [`DisplayRange::from_values`] of the same frame), so it is not worked out twice.
     pub fn set_stretch(&mut self, stretch: DisplayRange) {
-        self.stretch = Some(stretch);
+        self.encoder.stretch = Some(stretch);
     }
 
     /// Takes the next frame's samples (row-major, the recording's size). The contrast stretch
@@ -318,8 +321,11 @@ impl ReviewWriter {
     /// As [`ReviewWriter::offer`].
     pub fn offer_averaged(&mut self, t: usize, raw: &[f32], (factor, averaged): (usize, &[f32])) -> Result<()> {
         self.check_order(t)?;
-        let stretch = *self.stretch.get_or_insert_with(|| DisplayRange::from_values(raw));
-        let (display, full) = self.encoder().greys(stretch, t, raw, (factor, averaged));
+        let stretch = *self
+            .encoder
+            .stretch
+            .get_or_insert_with(|| DisplayRange::from_values(raw));
+        let (display, full) = self.encoder.greys(stretch, t, raw, (factor, averaged));
         self.batch.push((t, display, full));
         if self.batch.len() >= ENCODE_BATCH {
             self.encode_batch()?;
@@ -331,12 +337,7 @@ impl ReviewWriter {
     /// ([`ReviewEncoder::encode`]) and hands them to [`ReviewWriter::accept`] in order. The
     /// stretch must be set first ([`ReviewWriter::set_stretch`]); without it, each frame's own.
     pub fn encoder(&self) -> ReviewEncoder {
-        ReviewEncoder {
-            size: self.input.size,
-            factor: self.factor,
-            plan: self.plan.clone(),
-            stretch: self.stretch,
-        }
+        self.encoder.clone()
     }
 
     /// Writes a frame from [`ReviewEncoder::encode`]; frames must come in order, after any
@@ -364,7 +365,8 @@ impl ReviewWriter {
     /// Encodes the held frames in parallel and writes them in frame order.
     fn encode_batch(&mut self) -> Result<()> {
         let (w, h) = self.input.size;
-        let (dw, dh) = (w.div_ceil(self.factor), h.div_ceil(self.factor));
+        let factor = self.encoder.factor;
+        let (dw, dh) = (w.div_ceil(factor), h.div_ceil(factor));
         let encoded: Vec<(usize, Vec<u8>, Option<Vec<u8>>)> = self
             .batch
             .par_iter()
@@ -405,7 +407,7 @@ impl ReviewWriter {
                 std::io::Error::other(format!("{} of {} frames offered", self.offered, self.input.frames)),
             ));
         }
-        let run = page::run_script(&self.input, self.factor, &self.plan);
+        let run = page::run_script(&self.input, self.encoder.factor, &self.encoder.plan);
         self.write("data/run.js", run.as_bytes())?;
         let tracks = page::tracks_script(&self.input.tracks);
         self.write("data/tracks.js", tracks.as_bytes())?;
@@ -423,7 +425,7 @@ impl ReviewWriter {
         std::fs::rename(&self.staging, &self.target).map_err(|e| Error::output(&self.target, e))?;
         Ok(ReviewOutputs {
             page: self.target.join("index.html"),
-            full_frames: self.plan.frames.len(),
+            full_frames: self.encoder.plan.frames.len(),
             bytes: self.bytes,
         })
     }
