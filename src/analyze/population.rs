@@ -178,16 +178,12 @@ pub fn analyze_tracks_among(
     let median_span = median(&mut spans.iter().map(|&s| s as f64).collect::<Vec<f64>>()).unwrap_or(0.0);
     let fit_lags = options.fit_lags.unwrap_or((1, ((median_span / 4.0) as usize).max(3)));
     let max_lag = (longest / 2).max(fit_lags.1).min(500);
-    let per_track_msd: Vec<TrackMsd> = tracks.iter().map(|t| track_msd(&t.path, max_lag)).collect();
-    let motility_rows: Vec<Motility> = tracks
-        .iter()
-        .zip(&per_track_msd)
-        .map(|(t, msd)| motility((t.id, &t.path, msd), dt, options.axis_deg, options.fixed_elapsed_frames))
-        .collect();
-    let per_track_acf: Vec<TrackAutocorrelation> = tracks
-        .iter()
-        .map(|t| track_autocorrelation(&t.path, longest.clamp(1, 20), dt))
-        .collect();
+    // The collective figures (per frame, over every tracked point) need nothing of the
+    // per-track ones: the two are worked out at the same time.
+    let ((frames, neighbour_correlation), (per_track_msd, motility_rows, per_track_acf)) = rayon::join(
+        || collective(tracks, everyone, dt, options.density_neighbours),
+        || per_track_figures(tracks, (max_lag, longest.clamp(1, 20)), dt, options),
+    );
     let msd_points = pool_msd(&per_track_msd, None, dt);
     let acf_points = pool_autocorrelation(&per_track_acf, None);
     let fitted: Vec<MsdPoint> = msd_points
@@ -216,7 +212,6 @@ pub fn analyze_tracks_among(
         .filter_map(|m| m.mean_direction_deg)
         .map(f64::to_radians)
         .collect();
-    let (frames, neighbour_correlation) = collective(tracks, everyone, dt, options.density_neighbours);
     let recording = longest as f64 * dt;
     let mut warnings = model_warnings(&models, exponent, fitted.len(), fit_lags, dt, recording);
     let c = &options.confinement;
@@ -256,6 +251,28 @@ pub fn analyze_tracks_among(
         border,
         profiles: c.lane.map(|l| lane_profiles(recorded, l, axes, dt)).unwrap_or_default(),
     }
+}
+
+/// Each track's MSD sums (lags up to `max_lag`), motility row and direction autocorrelation
+/// (up to `acf_lags`), in track order; tracks in parallel.
+fn per_track_figures(
+    tracks: &[Track],
+    (max_lag, acf_lags): (usize, usize),
+    dt: f64,
+    options: &AnalysisOptions,
+) -> (Vec<TrackMsd>, Vec<Motility>, Vec<TrackAutocorrelation>) {
+    use rayon::prelude::*;
+    let per_track_msd: Vec<TrackMsd> = tracks.par_iter().map(|t| track_msd(&t.path, max_lag)).collect();
+    let motility_rows: Vec<Motility> = tracks
+        .par_iter()
+        .zip(&per_track_msd)
+        .map(|(t, msd)| motility((t.id, &t.path, msd), dt, options.axis_deg, options.fixed_elapsed_frames))
+        .collect();
+    let per_track_acf: Vec<TrackAutocorrelation> = tracks
+        .par_iter()
+        .map(|t| track_autocorrelation(&t.path, acf_lags, dt))
+        .collect();
+    (per_track_msd, motility_rows, per_track_acf)
 }
 
 /// The seed of the resampling: fixed, so that the same tracks give the same intervals.

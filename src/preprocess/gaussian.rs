@@ -88,7 +88,8 @@ pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f
     let g0 = truncated_derivative_kernel(sigma, 0, truncate);
     let g2 = truncated_derivative_kernel(sigma, 2, truncate);
     let r = g0.len() / 2;
-    let column_row = |p: u32| crate::numeric::column_row(p as usize, width);
+    let grid = crate::numeric::Grid::new(width, height);
+    let column_row = |p: u32| grid.column_row(p as usize);
     let ((fx, fy), mut x1, mut y1) = (column_row(first), 0, 0);
     let (mut x0, mut y0) = (fx, fy);
     for &p in pixels {
@@ -117,14 +118,18 @@ pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f
     let box_rows = y1 - y0;
     let (mut across_g2, mut across_g0) = (vec![0f32; box_rows * band], vec![0f32; box_rows * band]);
     for j in 0..box_rows {
-        let rows_g2: Vec<&[f32]> = (0..g0.len())
-            .map(|k| &with_g2[(j + k) * band..(j + k + 1) * band])
-            .collect();
-        let rows_g0: Vec<&[f32]> = (0..g0.len())
-            .map(|k| &with_g0[(j + k) * band..(j + k + 1) * band])
-            .collect();
-        filter_rows(&mut across_g2[j * band..(j + 1) * band], &rows_g2, &g0);
-        filter_rows(&mut across_g0[j * band..(j + 1) * band], &rows_g0, &g2);
+        filter_steps(
+            &mut across_g2[j * band..(j + 1) * band],
+            &with_g2[j * band..],
+            band,
+            &g0,
+        );
+        filter_steps(
+            &mut across_g0[j * band..(j + 1) * band],
+            &with_g0[j * band..],
+            band,
+            &g2,
+        );
     }
     pixels
         .iter()
@@ -189,45 +194,92 @@ const BLOCK: usize = 32;
 crate::multiversioned! {
     /// `out[x]` = Σₖ `kernel[k]` · `rows[k][x]`, added in the order of the taps (each row at
     /// least as long as `out`): one output row of a separable filter from the rows (column
-    /// pass) or shifted copies of one row (row pass) under its taps. Each block of [`BLOCK`] pixels is summed in registers over all
-    /// taps, not written back per tap.
+    /// pass) or shifted copies of one row (row pass) under its taps. See [`filter_lines`].
     fn filter_rows / filter_rows_with(out: &mut [f32], rows: &[&[f32]], kernel: &[f32]) {
-        let n = out.len();
-        let whole = n - n % BLOCK;
-        for x in (0..whole).step_by(BLOCK) {
-            let block = |row: &[f32]| -> [f32; BLOCK] { row[x..x + BLOCK].try_into().expect("block") };
-            let mut taps = kernel.iter().zip(rows);
-            let mut acc = [0f32; BLOCK];
-            if let Some((&weight, row)) = taps.next() {
-                acc.iter_mut().zip(block(row)).for_each(|(a, v)| *a = weight * v);
+        filter_lines(out, |k| rows[k], kernel);
+    }
+}
+
+crate::multiversioned! {
+    /// `out[x]` = Σₖ `kernel[k]` · `src[k · step + x]`, added in the order of the taps: as
+    /// [`filter_rows`] where the rows under the taps lie `step` apart in one buffer (the
+    /// shifted copies of a padded row for `step` 1; the rows of an image `step` wide for a
+    /// column pass away from its borders), with no list of rows to build per output row.
+    /// The same sums in the same order as [`filter_rows`], so the same bits.
+    fn filter_steps / filter_steps_with(out: &mut [f32], src: &[f32], step: usize, kernel: &[f32]) {
+        filter_lines(out, |k| &src[k * step..], kernel);
+    }
+}
+
+/// `out[x]` = Σₖ `kernel[k]` · `line(k)[x]`, taps added in order, every pixel's sum held in
+/// registers over all taps: blocks of [`BLOCK`] pixels, then 16 and 8 (a small object's box
+/// is narrower than a block), then the last few pixels as one block of 8 with its unused
+/// lanes zero (the same sums for the lanes that count; a store per tap there made the last
+/// pixels of each short row cost as much as the rest). Inlined into each instruction level's
+/// copy of its callers.
+#[inline(always)]
+fn filter_lines<'a>(out: &mut [f32], line: impl Fn(usize) -> &'a [f32], kernel: &[f32]) {
+    let n = out.len();
+    let mut x = 0;
+    while x + BLOCK <= n {
+        filter_block::<BLOCK>(out, &line, kernel, x);
+        x += BLOCK;
+    }
+    while x + 16 <= n {
+        filter_block::<16>(out, &line, kernel, x);
+        x += 16;
+    }
+    while x + 8 <= n {
+        filter_block::<8>(out, &line, kernel, x);
+        x += 8;
+    }
+    let rest = n - x;
+    if rest == 0 {
+        return;
+    }
+    let block = |k: usize| -> [f32; 8] {
+        let l = line(k);
+        match l.get(x..x + 8) {
+            // The line runs on past `out` (a column pass away from the last rows): its next
+            // values fill the unused lanes, whose sums are dropped.
+            Some(whole) => whole.try_into().expect("block"),
+            None => {
+                let mut values = [0f32; 8];
+                values[..rest].copy_from_slice(&l[x..n]);
+                values
             }
-            for (&weight, row) in taps {
-                acc.iter_mut().zip(block(row)).for_each(|(a, v)| *a += weight * v);
-            }
-            out[x..x + BLOCK].copy_from_slice(&acc);
         }
-        for (k, (&weight, row)) in kernel.iter().zip(rows).enumerate() {
-            add_tap(&mut out[whole..], &row[whole..n], weight, k == 0);
+    };
+    let mut acc = [0f32; 8];
+    for (k, &weight) in kernel.iter().enumerate() {
+        let values = block(k);
+        if k == 0 {
+            acc.iter_mut().zip(values).for_each(|(a, v)| *a = weight * v);
+        } else {
+            acc.iter_mut().zip(values).for_each(|(a, v)| *a += weight * v);
         }
     }
+    out[x..n].copy_from_slice(&acc[..rest]);
+}
+
+/// `out[x..x + N]` of [`filter_lines`], summed in registers over all taps in tap order.
+#[inline(always)]
+fn filter_block<'a, const N: usize>(out: &mut [f32], line: &impl Fn(usize) -> &'a [f32], kernel: &[f32], x: usize) {
+    let block = |k: usize| -> [f32; N] { line(k)[x..x + N].try_into().expect("block") };
+    let mut acc = [0f32; N];
+    if let Some(&weight) = kernel.first() {
+        acc.iter_mut().zip(block(0)).for_each(|(a, v)| *a = weight * v);
+    }
+    for (k, &weight) in kernel.iter().enumerate().skip(1) {
+        acc.iter_mut().zip(block(k)).for_each(|(a, v)| *a += weight * v);
+    }
+    out[x..x + N].copy_from_slice(&acc);
 }
 
 /// `out` = `kernel` (odd length, centred) over `padded`, a row with `kernel.len() / 2`
-/// samples of border either side: [`filter_rows`] over the row's shifted copies.
+/// samples of border either side: [`filter_steps`] over the row's shifted copies.
 fn filter_padded_row(out: &mut [f32], padded: &[f32], kernel: &[f32]) {
-    let shifted: Vec<&[f32]> = (0..kernel.len()).map(|k| &padded[k..]).collect();
-    filter_rows(out, &shifted, kernel);
-}
-
-/// `out += weight · values`, or `out = weight · values` for the `first` tap: a fresh zeroed
-/// page that is read before it is written costs the kernel a copy and a flush of every core's
-/// address cache.
-fn add_tap(out: &mut [f32], values: &[f32], weight: f32, first: bool) {
-    if first {
-        out.iter_mut().zip(values).for_each(|(o, &v)| *o = weight * v);
-    } else {
-        out.iter_mut().zip(values).for_each(|(o, &v)| *o += weight * v);
-    }
+    filter_steps(out, padded, 1, kernel);
 }
 
 /// Index into `0..n` under half-sample symmetric reflection, for any offset.
@@ -264,6 +316,38 @@ mod tests {
                     wide.iter().zip(&portable).all(|(a, b)| a.to_bits() == b.to_bits()),
                     "{level:?} {n}"
                 );
+            }
+        }
+    }
+
+    #[test]
+    fn rows_a_step_apart_filter_as_the_definition_on_every_level() {
+        // Source: the definition of the filter (each pixel's taps summed in tap order) and
+        // IEEE 754 lane-by-lane rounding (crate::simd): for steps 1 (a padded row) and 75 (a
+        // column pass over rows 75 wide), widths 1..=70, every level equals it bit for bit.
+        let kernel = gaussian_derivative_kernel(1.3, 0);
+        for step in [1usize, 75] {
+            let src: Vec<f32> = (0..75 * (kernel.len() + 1))
+                .map(|i| ((i * 7919) % 211) as f32 * 0.29 - 13.0)
+                .collect();
+            for n in 1..=70usize {
+                let expected: Vec<f32> = (0..n)
+                    .map(|x| {
+                        kernel
+                            .iter()
+                            .enumerate()
+                            .skip(1)
+                            .fold(kernel[0] * src[x], |s, (k, &w)| s + w * src[k * step + x])
+                    })
+                    .collect();
+                for level in crate::simd::levels() {
+                    let mut got = vec![f32::NAN; n];
+                    filter_steps_with(level, &mut got, &src, step, &kernel);
+                    assert!(
+                        got.iter().zip(&expected).all(|(a, b)| a.to_bits() == b.to_bits()),
+                        "{level:?} step {step} width {n}"
+                    );
+                }
             }
         }
     }

@@ -4,6 +4,7 @@
 
 mod font;
 pub mod lookalike;
+mod lzw;
 pub mod movie;
 pub mod plots;
 mod preview;

@@ -84,9 +84,12 @@ impl OutlineSpool {
     /// Appends one frame's outline pixels as (pixel index, label) pairs.
     pub fn push(&mut self, labels: &[u32], width: usize, height: usize) -> Result<()> {
         let mut pairs: Vec<u32> = Vec::new();
-        for (i, &l) in labels.iter().enumerate() {
-            if l != 0 && is_edge(labels, width, height, i % width, i / width) {
-                pairs.extend([i as u32, l]);
+        // Row by row (no division per pixel); most pixels are background.
+        for (y, row) in labels.chunks_exact(width.max(1)).take(height).enumerate() {
+            for (x, &l) in row.iter().enumerate() {
+                if l != 0 && is_edge(labels, width, height, x, y) {
+                    pairs.extend([(y * width + x) as u32, l]);
+                }
             }
         }
         let w = self.writer.as_mut().expect("still writing");
@@ -313,14 +316,13 @@ impl MovieLook<'_> {
         }
         let time = self.interval_s.map(|s| format_time(t as f64 * s)).unwrap_or_default();
         caption_indexed(&mut canvas, &format!("t={t} {time}"));
-        let mut gif = gif::Frame {
+        let gif = gif::Frame {
             width: mw as u16,
             height: mh as u16,
             delay: 10,
-            buffer: std::borrow::Cow::Owned(canvas.as_raw().clone()),
+            buffer: std::borrow::Cow::Owned(super::lzw::gif_lzw(canvas.as_raw())),
             ..gif::Frame::default()
         };
-        gif.make_lzw_pre_encoded();
         DrawnFrame { averaged, canvas, gif }
     }
 }

@@ -2,9 +2,9 @@
 //! touching nuclei of a cluster are each a bright blob, whatever the outline and the seam.
 
 use super::diameter::{log_noise_gain, MIN_BLOB_SIGNIFICANCE};
-use super::hmaxima::neighbours8;
 use super::split::basin_boxes;
 use super::watershed;
+use crate::numeric::Grid;
 use crate::preprocess::gaussian_laplace_at;
 
 /// Scale of the blob response over the expected diameter. A disc of diameter `d` responds
@@ -130,10 +130,11 @@ pub(crate) fn split_basins_at_blobs(labels: &[u32], blob: &[f32], rule: &BlobRul
 /// between them falling to [`SADDLE`] of the weaker.
 fn distinct_centres(labels: &[u32], blob: &[f32], rule: &BlobRule, width: usize, height: usize) -> Vec<Vec<usize>> {
     let basins = labels.iter().copied().max().unwrap_or(0) as usize;
+    let grid = Grid::new(width, height);
     let mut centres: Vec<Vec<usize>> = vec![Vec::new(); basins + 1];
     for (p, &l) in labels.iter().enumerate() {
         let b = blob[p];
-        if l > 0 && b >= rule.floor && neighbours8(p, width, height).all(|q| blob[q] < b) {
+        if l > 0 && b >= rule.floor && grid.neighbours8(p).all(|q| blob[q] < b) {
             centres[l as usize].push(p);
         }
     }

@@ -1,7 +1,8 @@
 //! Nuclei too dim for the frame's global threshold: found at a lower level, alone or pressed
 //! against brighter nuclei.
 
-use super::hmaxima::neighbours8;
+use super::label::{Connectivity, Runs};
+use crate::numeric::Grid;
 
 /// Adds to `mask` the nuclei too dim for the frame's threshold. A global threshold set by
 /// bright nuclei cuts a nucleus half as bright as its neighbours to a sliver or loses it. So
@@ -37,6 +38,7 @@ pub(super) fn add_dim_nuclei(
         return;
     }
     let low = low as f32;
+    let grid = Grid::new(w, h);
     clear_slivers(mask, min_area, (w, h));
     // Read at every pixel, written at a few (see `filled`).
     let mut region = crate::numeric::filled(mask.len(), 0u32);
@@ -53,9 +55,9 @@ pub(super) fn add_dim_nuclei(
             add.extend(pixels);
         } else if pixels
             .iter()
-            .any(|&p| is_summit(p, next, &region, values, (w, h), core_radius))
+            .any(|&p| is_summit(p, next, &region, values, &grid, core_radius))
         {
-            add.extend(pixels.into_iter().filter(|&p| !neighbours8(p, w, h).any(|q| mask[q])));
+            add.extend(pixels.into_iter().filter(|&p| !grid.neighbours8(p).any(|q| mask[q])));
         }
     }
     for p in add {
@@ -63,23 +65,18 @@ pub(super) fn add_dim_nuclei(
     }
 }
 
-/// Clears the 8-connected components of `mask` smaller than `min_area` px.
+/// Clears the 8-connected components of `mask` smaller than `min_area` px (their runs joined
+/// by union-find, [`Runs`]).
 fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
-    let mut seen = crate::numeric::filled(mask.len(), false);
-    for start in chunks_where(mask, mask, |m, _| m).into_iter().flatten() {
-        if !mask[start] || seen[start] {
-            continue;
-        }
-        seen[start] = true;
-        let pixels = grow(start, (w, h), |q| {
-            let take = mask[q] && !seen[q];
-            seen[q] |= take;
-            take
-        });
-        if (pixels.len() as f64) < min_area {
-            for p in pixels {
-                mask[p] = false;
-            }
+    let runs = Runs::of(mask, w, h, true);
+    let mut sets = runs.joined(Connectivity::Eight);
+    let mut area = vec![0usize; runs.len()];
+    for (k, &(_, s, e)) in runs.runs.iter().enumerate() {
+        area[sets.find(k)] += e - s;
+    }
+    for (k, &(y, s, e)) in runs.runs.iter().enumerate() {
+        if (area[sets.find(k)] as f64) < min_area {
+            mask[y * w + s..y * w + e].iter_mut().for_each(|m| *m = false);
         }
     }
 }
@@ -126,12 +123,13 @@ fn flood(
 /// first. `take` is asked for every neighbour reached and must mark what it accepts, so that
 /// it refuses the same pixel when asked again.
 fn grow(start: usize, (w, h): (usize, usize), mut take: impl FnMut(usize) -> bool) -> Vec<usize> {
+    let grid = Grid::new(w, h);
     let mut pixels = vec![start];
     let mut k = 0;
     while k < pixels.len() {
         let p = pixels[k];
         k += 1;
-        for q in neighbours8(p, w, h) {
+        for q in grid.neighbours8(p) {
             if take(q) {
                 pixels.push(q);
             }
@@ -142,12 +140,13 @@ fn grow(start: usize, (w, h): (usize, usize), mut take: impl FnMut(usize) -> boo
 
 /// Whether pixel `p` of region `id` is a local maximum (no 8-neighbour higher) with every
 /// pixel within `radius` of it inside the image and the region.
-fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], (w, h): (usize, usize), radius: f64) -> bool {
-    if neighbours8(p, w, h).any(|q| values[q] > values[p]) {
+fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], grid: &Grid, radius: f64) -> bool {
+    let (w, h) = (grid.width, grid.height);
+    if grid.neighbours8(p).any(|q| values[q] > values[p]) {
         return false;
     }
     let r = radius.floor() as isize;
-    let (x, y) = crate::numeric::column_row(p, w);
+    let (x, y) = grid.column_row(p);
     let (x, y) = (x as isize, y as isize);
     for dy in -r..=r {
         for dx in -r..=r {
@@ -178,7 +177,7 @@ mod tests {
             .map(|p| 100.0 - ((p % w) as f32 - 4.0).abs() - ((p / w) as f32 - 4.0).abs())
             .collect();
         let region: Vec<u32> = (0..w * h).map(|p| u32::from(!outside(p % w, p / w))).collect();
-        is_summit(4 * w + 4, 1, &region, &values, (w, h), 2.5)
+        is_summit(4 * w + 4, 1, &region, &values, &Grid::new(w, h), 2.5)
     }
 
     #[test]

@@ -1,7 +1,7 @@
 //! Seeds for the watershed: the h-maxima of the distance map, i.e. maxima whose dynamic
 //! (height above the saddle to a taller peak) is at least `h`.
 
-use crate::numeric::column_row;
+use crate::numeric::Grid;
 
 /// Levels per pixel of distance when values are quantised for the bucket queue: 1/256 px is
 /// far below the precision of a segmented outline.
@@ -34,12 +34,17 @@ pub fn h_maxima(values: &[f32], mask: &[bool], width: usize, height: usize, h: f
 pub fn h_maxima_seeds(values: &[f32], mask: &[bool], width: usize, height: usize, h: f64) -> (Vec<u32>, u32) {
     let (levels, rec, h_levels) = reconstruct(values, mask, width, height, h);
     let n = levels.len();
+    let grid = Grid::new(width, height);
+    let is_peak = |p: usize| levels[p] >= h_levels && levels[p] - rec[p] >= h_levels;
     let mut visited = vec![false; n];
-    let mut seeds = vec![0u32; n];
     let mut members = Vec::new();
-    let mut count = 0u32;
+    // Each regional maximum that holds a peak: its first pixel and its peaks. A plateau
+    // without a peak gives no seed, so only plateaus reached from a peak are explored (most
+    // of a landscape is slope); seeds are then numbered in raster order of their plateau's
+    // first pixel, as a scan from every pixel would number them.
+    let mut maxima: Vec<(usize, Vec<usize>)> = Vec::new();
     for start in 0..n {
-        if !mask[start] || visited[start] {
+        if !mask[start] || visited[start] || !is_peak(start) {
             continue;
         }
         // The plateau of `rec` through `start`, and whether anything around it is higher.
@@ -52,7 +57,7 @@ pub fn h_maxima_seeds(values: &[f32], mask: &[bool], width: usize, height: usize
         while cursor < members.len() {
             let p = members[cursor];
             cursor += 1;
-            for q in neighbours8(p, width, height).filter(|&q| mask[q]) {
+            for q in grid.neighbours8(p).filter(|&q| mask[q]) {
                 if rec[q] > level {
                     is_maximum = false;
                 } else if rec[q] == level && !visited[q] {
@@ -61,23 +66,19 @@ pub fn h_maxima_seeds(values: &[f32], mask: &[bool], width: usize, height: usize
                 }
             }
         }
-        if !is_maximum {
-            continue;
-        }
-        let peaks: Vec<usize> = members
-            .iter()
-            .copied()
-            .filter(|&p| levels[p] >= h_levels && levels[p] - rec[p] >= h_levels)
-            .collect();
-        if peaks.is_empty() {
-            continue;
-        }
-        count += 1;
-        for p in peaks {
-            seeds[p] = count;
+        if is_maximum {
+            let first = members.iter().copied().min().unwrap_or(start);
+            maxima.push((first, members.iter().copied().filter(|&p| is_peak(p)).collect()));
         }
     }
-    (seeds, count)
+    maxima.sort_unstable_by_key(|&(first, _)| first);
+    let mut seeds = vec![0u32; n];
+    for (k, (_, peaks)) in maxima.iter().enumerate() {
+        for &p in peaks {
+            seeds[p] = k as u32 + 1;
+        }
+    }
+    (seeds, maxima.len() as u32)
 }
 
 /// The quantised levels of `values`, the reconstruction by dilation of `levels − h` under
@@ -98,9 +99,7 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
     let h_levels = (h * LEVELS_PER_UNIT).round().max(0.0) as u32;
     // Marker = value − h (as levels, floored at 0); reconstruction starts from it.
     let mut rec: Vec<u32> = levels.iter().map(|&v| v.saturating_sub(h_levels)).collect();
-    let inside = |x: isize, y: isize| x >= 0 && y >= 0 && (x as usize) < width && (y as usize) < height;
-    // Neighbours scanned before a pixel in raster order; their mirror image for the anti-raster.
-    const BEFORE: [(isize, isize); 4] = [(-1, -1), (0, -1), (1, -1), (-1, 0)];
+    let grid = Grid::new(width, height);
     let mut queue = std::collections::VecDeque::new();
     for backward in [false, true] {
         for k in 0..width * height {
@@ -108,15 +107,8 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
             if !mask[p] {
                 continue;
             }
-            let (x, y) = column_row(p, width);
-            let (x, y) = (x as isize, y as isize);
-            let sign = if backward { -1 } else { 1 };
-            let earlier = BEFORE
-                .iter()
-                .map(|&(dx, dy)| (x + sign * dx, y + sign * dy))
-                .filter(|&(nx, ny)| inside(nx, ny))
-                .map(|(nx, ny)| ny as usize * width + nx as usize)
-                .filter(|&q| mask[q]);
+            let (earlier, count) = scanned_before(grid.column_row(p), backward, width, height);
+            let earlier = earlier[..count].iter().copied().filter(|&q| mask[q]);
             let raised = earlier.clone().fold(rec[p], |m, q| m.max(rec[q])).min(levels[p]);
             rec[p] = raised;
             if backward && earlier.clone().any(|q| rec[q] < raised && rec[q] < levels[q]) {
@@ -125,7 +117,7 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
         }
     }
     while let Some(p) = queue.pop_front() {
-        for q in neighbours8(p, width, height).filter(|&q| mask[q]) {
+        for q in grid.neighbours8(p).filter(|&q| mask[q]) {
             if rec[q] < rec[p] && rec[q] != levels[q] {
                 rec[q] = rec[p].min(levels[q]);
                 queue.push_back(q);
@@ -133,6 +125,48 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
         }
     }
     (levels, rec, h_levels)
+}
+
+/// The neighbours of the pixel at column `x`, row `y` that a raster scan (or, `backward`, an
+/// anti-raster scan) visits before it, inside the image: up-left, up, up-right, left
+/// (mirrored backward); the first `count` entries of the array.
+#[inline]
+fn scanned_before((x, y): (usize, usize), backward: bool, width: usize, height: usize) -> ([usize; 4], usize) {
+    let p = y * width + x;
+    let mut out = [0usize; 4];
+    let mut count = 0;
+    let mut add = |q: usize| {
+        out[count] = q;
+        count += 1;
+    };
+    if !backward {
+        if y > 0 {
+            if x > 0 {
+                add(p - width - 1);
+            }
+            add(p - width);
+            if x + 1 < width {
+                add(p - width + 1);
+            }
+        }
+        if x > 0 {
+            add(p - 1);
+        }
+    } else {
+        if y + 1 < height {
+            if x + 1 < width {
+                add(p + width + 1);
+            }
+            add(p + width);
+            if x > 0 {
+                add(p + width - 1);
+            }
+        }
+        if x + 1 < width {
+            add(p + 1);
+        }
+    }
+    (out, count)
 }
 
 crate::multiversioned! {
@@ -153,26 +187,6 @@ crate::multiversioned! {
             *o = if x >= 4_294_967_296.0 { u32::MAX } else { truncated };
         }
     }
-}
-
-pub(crate) fn neighbours8(i: usize, width: usize, height: usize) -> impl Iterator<Item = usize> {
-    let (x, y) = column_row(i, width);
-    let (x, y) = (x as isize, y as isize);
-    const OFFSETS: [(isize, isize); 8] = [(-1, -1), (0, -1), (1, -1), (-1, 0), (1, 0), (-1, 1), (0, 1), (1, 1)];
-    OFFSETS.iter().filter_map(move |&(dx, dy)| {
-        let (nx, ny) = (x + dx, y + dy);
-        (nx >= 0 && ny >= 0 && nx < width as isize && ny < height as isize).then(|| ny as usize * width + nx as usize)
-    })
-}
-
-/// The up-to-4 edge neighbours of a pixel inside the image.
-pub(crate) fn neighbours4(i: usize, width: usize, height: usize) -> impl Iterator<Item = usize> {
-    let (x, y) = column_row(i, width);
-    let left = (x > 0).then(|| i - 1);
-    let right = (x + 1 < width).then(|| i + 1);
-    let up = (y > 0).then(|| i - width);
-    let down = (y + 1 < height).then(|| i + width);
-    [up, left, right, down].into_iter().flatten()
 }
 
 #[cfg(test)]
@@ -241,6 +255,78 @@ mod tests {
     }
 
     #[test]
+    fn seeds_are_the_regional_maxima_of_the_reconstruction_in_raster_order() {
+        // Source: the definition in the doc of h_maxima_seeds (Soille 2003, §6.3.4: seeds are
+        // RMAX of the reconstruction, each keeping its pixels where values − R ≥ h), written
+        // as the plain scan: every plateau of R, in raster order of its first pixel, explored
+        // over 8 neighbours within the mask; a plateau with no higher neighbour that holds
+        // such pixels is the next seed. Smooth random landscapes (many plateaus and maxima)
+        // with holes in the mask, several h.
+        let (w, h) = (41, 29);
+        let mut rng = crate::numeric::Rng::new(8);
+        for round in 0..6 {
+            let bumps: Vec<(f64, f64, f64)> = (0..12)
+                .map(|_| {
+                    (
+                        rng.uniform() * w as f64,
+                        rng.uniform() * h as f64,
+                        1.0 + 5.0 * rng.uniform(),
+                    )
+                })
+                .collect();
+            let values: Vec<f32> = (0..w * h)
+                .map(|p| {
+                    let (x, y) = ((p % w) as f64, (p / w) as f64);
+                    let top = bumps
+                        .iter()
+                        .map(|&(bx, by, a)| a * (-((x - bx).powi(2) + (y - by).powi(2)) / 18.0).exp())
+                        .fold(0.0, f64::max);
+                    (top * 4.0).round() as f32 / 4.0
+                })
+                .collect();
+            let mask: Vec<bool> = (0..w * h).map(|_| rng.uniform() > 0.05).collect();
+            for seed_h in [0.25, 0.5, 1.0, 2.0] {
+                let (levels, rec, h_levels) = reconstruct(&values, &mask, w, h, seed_h);
+                let grid = Grid::new(w, h);
+                let mut plateau_of = vec![usize::MAX; w * h];
+                let mut want = vec![0u32; w * h];
+                let mut count = 0;
+                for start in (0..w * h).filter(|&p| mask[p]) {
+                    if plateau_of[start] != usize::MAX {
+                        continue;
+                    }
+                    plateau_of[start] = start;
+                    let mut members = vec![start];
+                    let mut highest = true;
+                    let mut k = 0;
+                    while k < members.len() {
+                        let p = members[k];
+                        k += 1;
+                        for q in grid.neighbours8(p).filter(|&q| mask[q]) {
+                            highest &= rec[q] <= rec[start];
+                            if rec[q] == rec[start] && plateau_of[q] == usize::MAX {
+                                plateau_of[q] = start;
+                                members.push(q);
+                            }
+                        }
+                    }
+                    let peaks: Vec<usize> = members
+                        .into_iter()
+                        .filter(|&p| levels[p] >= h_levels && levels[p] - rec[p] >= h_levels)
+                        .collect();
+                    if highest && !peaks.is_empty() {
+                        count += 1;
+                        peaks.into_iter().for_each(|p| want[p] = count);
+                    }
+                }
+                let (got, n) = h_maxima_seeds(&values, &mask, w, h, seed_h);
+                assert!(count > 1, "round {round}: a landscape with several seeds");
+                assert_eq!((n, got), (count, want), "round {round}, h {seed_h}");
+            }
+        }
+    }
+
+    #[test]
     fn reconstruction_is_the_fixed_point_of_geodesic_dilation() {
         // Source: the definition of grey reconstruction by dilation (Vincent 1993, §2):
         // repeat "dilate the marker by one 8-neighbourhood step within the mask, then cap it
@@ -257,7 +343,8 @@ mod tests {
                     if !mask[p] {
                         return naive[p];
                     }
-                    let m = neighbours8(p, w, h)
+                    let m = Grid::new(w, h)
+                        .neighbours8(p)
                         .filter(|&q| mask[q])
                         .fold(naive[p], |m, q| m.max(naive[q]));
                     m.min(levels[p])

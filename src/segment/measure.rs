@@ -23,6 +23,7 @@ pub fn measure_objects(
     height: usize,
     frame: usize,
 ) -> Vec<Detection> {
+    let grid = crate::numeric::Grid::new(width, height);
     let mut acc = vec![Moments::default(); count as usize + 1];
     for &i in pixels {
         let i = i as usize;
@@ -30,7 +31,7 @@ pub fn measure_objects(
         if l == 0 {
             continue;
         }
-        let (x, y) = crate::numeric::column_row(i, width);
+        let (x, y) = grid.column_row(i);
         let (x, y) = (x as f64, y as f64);
         let m = &mut acc[l as usize];
         m.n += 1.0;

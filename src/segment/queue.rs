@@ -12,6 +12,9 @@ pub struct LevelQueue {
     ends: Vec<(u32, u32)>,
     /// (pixel, next entry of the same level).
     entries: Vec<(u32, u32)>,
+    /// One bit per level, set while its list holds entries: the next level with work is found
+    /// a word of 64 levels at a time, not by visiting every empty level.
+    occupied: Vec<u64>,
 }
 
 impl LevelQueue {
@@ -22,6 +25,7 @@ impl LevelQueue {
         LevelQueue {
             ends: vec![(Self::NONE, Self::NONE); top as usize + 1],
             entries: Vec::new(),
+            occupied: vec![0; top as usize / 64 + 1],
         }
     }
 
@@ -32,6 +36,7 @@ impl LevelQueue {
         let (first, last) = &mut self.ends[level as usize];
         if *first == Self::NONE {
             *first = entry;
+            self.occupied[level as usize / 64] |= 1 << (level % 64);
         } else {
             self.entries[*last as usize].1 = entry;
         }
@@ -43,7 +48,24 @@ impl LevelQueue {
         let (first, _) = &mut self.ends[level as usize];
         let (pixel, next) = *self.entries.get(*first as usize)?;
         *first = next;
+        if next == Self::NONE {
+            self.occupied[level as usize / 64] &= !(1 << (level % 64));
+        }
         Some(pixel)
+    }
+
+    /// The highest level at most `level` whose list holds entries, if any.
+    pub fn highest_occupied(&self, level: u32) -> Option<u32> {
+        let mut word = level as usize / 64;
+        // Bits 0..=level % 64 of the first word.
+        let mut bits = self.occupied[word] & (u64::MAX >> (63 - level % 64));
+        loop {
+            if bits != 0 {
+                return Some((word * 64 + 63 - bits.leading_zeros() as usize) as u32);
+            }
+            word = word.checked_sub(1)?;
+            bits = self.occupied[word];
+        }
     }
 }
 
@@ -65,5 +87,27 @@ mod tests {
         assert_eq!((q.pop(0), q.pop(0), q.pop(3)), (Some(5), None, None));
         q.push(2, 13);
         assert_eq!(q.pop(2), Some(13));
+    }
+
+    #[test]
+    fn the_highest_occupied_level_is_found_across_words() {
+        // Hand-made, against a plain scan of the levels: entries at 3, 64, 200 of 0..=300,
+        // asked from every level, before and after levels empty.
+        let mut q = LevelQueue::new(300);
+        for (level, pixel) in [(3, 1), (64, 2), (200, 3), (200, 4)] {
+            q.push(level, pixel);
+        }
+        let scan = |held: &[u32], from: u32| held.iter().copied().filter(|&l| l <= from).max();
+        for from in 0..=300 {
+            assert_eq!(q.highest_occupied(from), scan(&[3, 64, 200], from), "from {from}");
+        }
+        assert_eq!(q.pop(200), Some(3));
+        assert_eq!(q.highest_occupied(300), Some(200));
+        assert_eq!(q.pop(200), Some(4));
+        assert_eq!(q.highest_occupied(300), Some(64));
+        assert_eq!((q.pop(64), q.pop(3)), (Some(2), Some(1)));
+        assert_eq!(q.highest_occupied(300), None);
+        q.push(63, 9);
+        assert_eq!((q.highest_occupied(62), q.highest_occupied(63)), (None, Some(63)));
     }
 }

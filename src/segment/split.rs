@@ -4,9 +4,9 @@
 //! frame, where nuclei cover a few percent of the pixels, that is most of the work saved.
 
 use super::blobs::{blob_response, split_basins_at_blobs, BlobRule};
-use super::hmaxima::{h_maxima_seeds, neighbours8};
+use super::hmaxima::h_maxima_seeds;
 use super::{distance_transform, watershed};
-use crate::numeric::column_row;
+use crate::numeric::Grid;
 use crate::preprocess::{gaussian_blur, gaussian_radius};
 
 /// Marks a pixel as reached by the component search before its final label is known.
@@ -128,6 +128,7 @@ pub(crate) fn split_touching_with_pixels(
 /// The 8-connected components of `mask` in raster order of their first pixel, with all their
 /// pixels in one list; `visited` (all zero on entry) is used to mark reached pixels.
 fn find_components(mask: &[bool], width: usize, height: usize, visited: &mut [u32]) -> (Vec<u32>, Vec<Component>) {
+    let grid = Grid::new(width, height);
     let mut pixels: Vec<u32> = Vec::new();
     let mut components = Vec::new();
     for start in 0..mask.len() {
@@ -142,9 +143,9 @@ fn find_components(mask: &[bool], width: usize, height: usize, visited: &mut [u3
         while cursor < pixels.len() {
             let p = pixels[cursor] as usize;
             cursor += 1;
-            let (x, y) = column_row(p, width);
+            let (x, y) = grid.column_row(p);
             (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
-            for q in neighbours8(p, width, height) {
+            for q in grid.neighbours8(p) {
                 if mask[q] && visited[q] == 0 {
                     visited[q] = VISITED;
                     pixels.push(q as u32);

@@ -1,8 +1,8 @@
 //! Seeded watershed on the distance map, restricted to the foreground mask, so that touching
 //! nuclei come out as separate objects.
 
-use super::hmaxima::neighbours4;
 use super::queue::LevelQueue;
+use crate::numeric::Grid;
 
 /// Floods the mask from labelled seeds, highest distance first, and returns one label per
 /// pixel (0 = background). `levels` are integer flooding levels (here squared distances):
@@ -17,6 +17,7 @@ use super::queue::LevelQueue;
 /// of jumping the queue.
 pub fn seeded_watershed(levels: &[u32], mask: &[bool], seeds: &[u32], width: usize, height: usize) -> Vec<u32> {
     let n = levels.len();
+    let grid = Grid::new(width, height);
     let mut labels = seeds.to_vec();
     let top = levels.iter().copied().max().unwrap_or(0) as usize;
     let mut queue = LevelQueue::new(top as u32);
@@ -25,16 +26,19 @@ pub fn seeded_watershed(levels: &[u32], mask: &[bool], seeds: &[u32], width: usi
             queue.push(levels[i], i as u32);
         }
     }
-    for level in (0..=top as u32).rev() {
+    let mut next = queue.highest_occupied(top as u32);
+    while let Some(level) = next {
         while let Some(p) = queue.pop(level) {
             let p = p as usize;
-            for q in neighbours4(p, width, height) {
+            for q in grid.neighbours4(p) {
                 if mask[q] && labels[q] == 0 {
                     labels[q] = labels[p];
                     queue.push(levels[q].min(level), q as u32);
                 }
             }
         }
+        // Later pushes go to this level or below, and this one is empty now.
+        next = queue.highest_occupied(level);
     }
     labels
 }
@@ -68,7 +72,7 @@ mod tests {
         let mut seeds = vec![0u32; n];
         let mut k = 0;
         for i in 0..n {
-            if mask[i] && neighbours4(i, w, h).all(|q| levels[q] < levels[i]) {
+            if mask[i] && Grid::new(w, h).neighbours4(i).all(|q| levels[q] < levels[i]) {
                 k += 1;
                 seeds[i] = k;
             }

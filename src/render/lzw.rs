@@ -1,0 +1,202 @@
+//! LZW compression of the movie's frames, as GIF stores them: the same code stream, byte for
+//! byte, as the `gif` crate's own pre-compression (which uses the `weezl` crate), at a
+//! fraction of the cost. The movie pass spent more time here than drawing the frames.
+//!
+//! # Method
+//! T. A. Welch (1984), "A technique for high-performance data compression", IEEE Computer
+//! 17(6):8–19, doi:10.1109/MC.1984.1659158, with the GIF conventions (CompuServe, "Graphics
+//! Interchange Format, Version 89a", 1990, appendix F): codes packed least significant bit
+//! first, a clear code first, the code width grown when the next code would not fit and the
+//! table restarted with a clear code once 4096 codes exist; the end code, then padding to a
+//! whole byte. The dictionary is a hash table of (prefix code, next byte) pairs, emptied in
+//! one pass when the table restarts.
+
+/// Codes a GIF table can hold (12-bit codes).
+const MAX_CODES: usize = 4096;
+/// Slots of the hash table: twice the codes, so that it stays at most half full.
+const SLOTS: usize = 2 * MAX_CODES;
+/// The `weezl` encoder keeps a string's first 16 extensions in a short list and then moves
+/// them to a full table of 256, without the extension whose arrival made it move: that string
+/// gets its code (the decoder defines it) but is never matched. Kept, so the stream is the
+/// same bytes (the missed match costs a few bytes per frame).
+const SHORT_LIST: u8 = 16;
+
+/// `data` (palette indices) compressed for a GIF image: the minimum code size byte, then the
+/// LZW code stream (not yet cut into sub-blocks), as `gif::Frame::make_lzw_pre_encoded`
+/// leaves it.
+pub fn gif_lzw(data: &[u8]) -> Vec<u8> {
+    let min_size = minimum_code_size(data);
+    let mut out = Vec::with_capacity(data.len() / 2 + 16);
+    out.push(min_size);
+    Encoder::new(min_size, out).encode(data)
+}
+
+/// The GIF minimum code size for `data`: enough bits for its largest index, at least 2, as
+/// the `gif` crate chooses it (the next power of two at or above max + 1, at least 4).
+fn minimum_code_size(data: &[u8]) -> u8 {
+    let top = u32::from(data.iter().copied().max().unwrap_or(0));
+    (top + 1).max(4).next_power_of_two().trailing_zeros() as u8
+}
+
+/// The state of one compression: the dictionary, the bit writer and the code width.
+struct Encoder {
+    clear: u16,
+    min_size: u8,
+    /// Bits per code now.
+    width: u8,
+    /// Codes defined so far (the next code to assign).
+    defined: usize,
+    /// Hash table: key + 1 (0 = empty slot), and the code of that key.
+    keys: Vec<u32>,
+    codes: Vec<u16>,
+    /// Extensions defined per code since the last clear (up to `SHORT_LIST` + 1).
+    extensions: Vec<u8>,
+    bits: u64,
+    pending: u8,
+    out: Vec<u8>,
+}
+
+impl Encoder {
+    fn new(min_size: u8, out: Vec<u8>) -> Encoder {
+        let clear = 1u16 << min_size;
+        Encoder {
+            clear,
+            min_size,
+            width: min_size + 1,
+            defined: usize::from(clear) + 2,
+            keys: vec![0; SLOTS],
+            codes: vec![0; SLOTS],
+            extensions: vec![0; MAX_CODES + 1],
+            bits: 0,
+            pending: 0,
+            out,
+        }
+    }
+
+    fn encode(mut self, data: &[u8]) -> Vec<u8> {
+        self.put(self.clear);
+        let Some((&first, rest)) = data.split_first() else {
+            self.put(self.clear + 1);
+            return self.finish();
+        };
+        let mut current = u16::from(first);
+        for &byte in rest {
+            let key = (u32::from(current) << 8) | u32::from(byte);
+            let mut slot = slot_of(key);
+            loop {
+                match self.keys[slot] {
+                    0 => break,
+                    k if k == key + 1 => break,
+                    _ => slot = (slot + 1) % SLOTS,
+                }
+            }
+            if self.keys[slot] != 0 {
+                current = self.codes[slot];
+                continue;
+            }
+            // A new string: its code is defined, the known prefix is written.
+            let extended = &mut self.extensions[usize::from(current)];
+            if *extended != SHORT_LIST {
+                self.keys[slot] = key + 1;
+                self.codes[slot] = self.defined as u16;
+            }
+            *extended = extended.saturating_add(1).min(SHORT_LIST + 1);
+            self.defined += 1;
+            self.put(current);
+            if self.defined > 1 << self.width && self.width < 12 {
+                self.width += 1;
+            }
+            if self.defined > MAX_CODES {
+                self.put(self.clear);
+                self.restart();
+            }
+            current = u16::from(byte);
+        }
+        self.put(current);
+        // The decoder defines one more code on reading the last one; the end code is read at
+        // the width that follows from it.
+        if self.defined >= 1 << self.width && self.width < 12 {
+            self.width += 1;
+        }
+        self.put(self.clear + 1);
+        self.finish()
+    }
+
+    /// Empties the dictionary after a clear code.
+    fn restart(&mut self) {
+        self.keys.iter_mut().for_each(|k| *k = 0);
+        self.extensions.iter_mut().for_each(|e| *e = 0);
+        self.defined = usize::from(self.clear) + 2;
+        self.width = self.min_size + 1;
+    }
+
+    /// Appends `code` at the current width, least significant bit first.
+    fn put(&mut self, code: u16) {
+        self.bits |= u64::from(code) << self.pending;
+        self.pending += self.width;
+        while self.pending >= 8 {
+            self.out.push(self.bits as u8);
+            self.bits >>= 8;
+            self.pending -= 8;
+        }
+    }
+
+    /// The stream with its last bits padded to a whole byte.
+    fn finish(mut self) -> Vec<u8> {
+        if self.pending > 0 {
+            self.out.push(self.bits as u8);
+        }
+        self.out
+    }
+}
+
+/// The first slot to look at for `key` (Fibonacci hashing: the top bits of the product with
+/// 2³² / φ spread neighbouring keys over the table).
+fn slot_of(key: u32) -> usize {
+    (key.wrapping_mul(0x9E37_79B1) >> (32 - SLOTS.trailing_zeros())) as usize
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The `gif` crate's own pre-compression (weezl's LZW): the reference.
+    fn by_the_gif_crate(data: &[u8]) -> Vec<u8> {
+        let mut frame = gif::Frame {
+            width: 1,
+            height: 1,
+            buffer: std::borrow::Cow::Owned(data.to_vec()),
+            ..gif::Frame::default()
+        };
+        frame.make_lzw_pre_encoded();
+        frame.buffer.into_owned()
+    }
+
+    #[test]
+    fn the_code_stream_is_the_gif_crates_byte_for_byte() {
+        // Source: the gif crate (0.14, LZW by weezl 0.1), a general-purpose GIF library: for
+        // empty and one-byte inputs, every minimum code size (largest index 0 to 255), runs
+        // (long strings, the table filled and restarted many times), noise (short strings,
+        // the table restarted often) and image-like rows, our bytes must equal its bytes.
+        let mut rng = crate::numeric::Rng::new(17);
+        let mut cases: Vec<Vec<u8>> = vec![vec![], vec![0], vec![255], vec![7, 7]];
+        for top in [1u32, 2, 3, 4, 7, 8, 15, 16, 31, 63, 64, 127, 128, 200, 255] {
+            for len in [2usize, 3, 100, 5000, 70_000] {
+                cases.push((0..len).map(|_| (rng.uniform() * (top + 1) as f64) as u8).collect());
+            }
+        }
+        cases.push(vec![42; 100_000]);
+        cases.push((0..200_000).map(|i| ((i / 37) % 240) as u8).collect());
+        cases.push(
+            (0..512 * 300)
+                .map(|i| {
+                    let (x, y) = ((i % 512) as f64, (i / 512) as f64);
+                    ((x * 0.05).sin() * (y * 0.03).cos() * 100.0 + 110.0 + rng.uniform() * 6.0) as u8
+                })
+                .collect(),
+        );
+        for (k, data) in cases.iter().enumerate() {
+            assert_eq!(gif_lzw(data), by_the_gif_crate(data), "case {k}, {} bytes", data.len());
+        }
+    }
+}
