@@ -71,10 +71,10 @@ fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
     let runs = Runs::of(mask, w, h, true);
     let mut sets = runs.joined(Connectivity::Eight);
     let mut area = vec![0usize; runs.len()];
-    for (k, &(_, s, e)) in runs.runs.iter().enumerate() {
+    for (k, &(_, s, e)) in runs.spans.iter().enumerate() {
         area[sets.find(k)] += e - s;
     }
-    for (k, &(y, s, e)) in runs.runs.iter().enumerate() {
+    for (k, &(y, s, e)) in runs.spans.iter().enumerate() {
         if (area[sets.find(k)] as f64) < min_area {
             mask[y * w + s..y * w + e].iter_mut().for_each(|m| *m = false);
         }

@@ -13,13 +13,13 @@ pub fn fill_holes(mask: &mut [bool], width: usize, height: usize) {
     let runs = Runs::of(mask, width, height, false);
     let mut sets = runs.joined(Connectivity::Four);
     let mut outside = vec![false; runs.len()];
-    for (k, &(y, s, e)) in runs.runs.iter().enumerate() {
+    for (k, &(y, s, e)) in runs.spans.iter().enumerate() {
         if y == 0 || y + 1 == height || s == 0 || e == width {
             let root = sets.find(k);
             outside[root] = true;
         }
     }
-    for (k, &(y, s, e)) in runs.runs.iter().enumerate() {
+    for (k, &(y, s, e)) in runs.spans.iter().enumerate() {
         let root = sets.find(k);
         if !outside[root] {
             mask[y * width + s..y * width + e].iter_mut().for_each(|m| *m = true);
@@ -43,7 +43,7 @@ pub enum Connectivity {
 /// touches, so the work follows the runs, not the pixels.
 pub struct Runs {
     /// (row, first column, end column exclusive), in raster order.
-    pub runs: Vec<(usize, usize, usize)>,
+    pub spans: Vec<(usize, usize, usize)>,
     /// Index of each row's first run; one more entry at the end.
     row_start: Vec<usize>,
 }
@@ -65,17 +65,17 @@ impl Runs {
             }
         }
         row_start.push(runs.len());
-        Runs { runs, row_start }
+        Runs { spans: runs, row_start }
     }
 
     /// Number of runs.
     pub fn len(&self) -> usize {
-        self.runs.len()
+        self.spans.len()
     }
 
     /// Whether there are no runs.
     pub fn is_empty(&self) -> bool {
-        self.runs.is_empty()
+        self.spans.is_empty()
     }
 
     /// The runs grouped into regions: run `k`'s region is the set of `k`.
@@ -83,17 +83,17 @@ impl Runs {
         // A run of the row above touches columns s..e of this row when it reaches past s
         // (past s − 1 with corners) and starts before e (before e + 1 with corners).
         let reach = usize::from(connectivity == Connectivity::Eight);
-        let mut sets = crate::numeric::DisjointSets::new(self.runs.len());
+        let mut sets = crate::numeric::DisjointSets::new(self.spans.len());
         for y in 1..self.row_start.len().saturating_sub(1) {
             let above = self.row_start[y - 1]..self.row_start[y];
             let mut a = above.start;
             for r in self.row_start[y]..self.row_start[y + 1] {
-                let (_, s, e) = self.runs[r];
-                while a < above.end && self.runs[a].2 + reach <= s {
+                let (_, s, e) = self.spans[r];
+                while a < above.end && self.spans[a].2 + reach <= s {
                     a += 1;
                 }
                 let mut b = a;
-                while b < above.end && self.runs[b].1 < e + reach {
+                while b < above.end && self.spans[b].1 < e + reach {
                     sets.union(b, r);
                     b += 1;
                 }
@@ -221,7 +221,7 @@ mod tests {
                     let runs = Runs::of(&mask, w, h, value);
                     let mut sets = runs.joined(connectivity);
                     let mut root_of = vec![usize::MAX; mask.len()];
-                    for (k, &(y, s, e)) in runs.runs.iter().enumerate() {
+                    for (k, &(y, s, e)) in runs.spans.iter().enumerate() {
                         let root = sets.find(k);
                         (s..e).for_each(|x| root_of[y * w + x] = root);
                     }
