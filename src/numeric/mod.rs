@@ -132,7 +132,7 @@ pub fn column_row(i: usize, width: usize) -> (usize, usize) {
 /// # Method
 /// D. Lemire, O. Kaser & N. Kurz (2019), "Faster remainder by direct computation:
 /// Applications to compilers and software libraries", Software: Practice and Experience
-/// 49(6):953–970, doi:10.1002/spe.2689: with `M = ⌊(2⁶⁴ − 1) / d⌋ + 1`, `⌊M·n / 2⁶⁴⌋ = ⌊n / d⌋`
+/// 49(6):953–970 (volume and pages from memory): with `M = ⌊(2⁶⁴ − 1) / d⌋ + 1`, `⌊M·n / 2⁶⁴⌋ = ⌊n / d⌋`
 /// for every 32-bit `n` and `d`. Larger indices fall back to a division.
 #[derive(Debug, Clone, Copy)]
 pub struct Grid {

@@ -1,15 +1,16 @@
 //! LZW compression of the movie's frames, as GIF stores them: the same code stream, byte for
-//! byte, as the `gif` crate's own pre-compression (which uses the `weezl` crate), at a
-//! fraction of the cost. The movie pass spent more time here than drawing the frames.
+//! byte, as the `gif` crate's own pre-compression (which uses the `weezl` crate), with about
+//! half its instructions (benches/SPEED.md). The movie pass spent more time there than on
+//! drawing the frames.
 //!
 //! # Method
 //! T. A. Welch (1984), "A technique for high-performance data compression", IEEE Computer
 //! 17(6):8–19, doi:10.1109/MC.1984.1659158, with the GIF conventions (CompuServe, "Graphics
-//! Interchange Format, Version 89a", 1990, appendix F): codes packed least significant bit
-//! first, a clear code first, the code width grown when the next code would not fit and the
-//! table restarted with a clear code once 4096 codes exist; the end code, then padding to a
-//! whole byte. The dictionary is a hash table of (prefix code, next byte) pairs, emptied in
-//! one pass when the table restarts.
+//! Interchange Format, Version 89a", 1990, appendix F; year and appendix from memory) as the
+//! `gif` crate applies them: codes packed least significant bit first, a clear code first, the
+//! code width grown when the next code would not fit and the table restarted with a clear code
+//! once 4096 codes exist; the end code, then padding to a whole byte. The dictionary is a hash
+//! table of (prefix code, next byte) pairs, emptied in one pass when the table restarts.
 
 /// Codes a GIF table can hold (12-bit codes).
 const MAX_CODES: usize = 4096;
@@ -17,8 +18,8 @@ const MAX_CODES: usize = 4096;
 const SLOTS: usize = 2 * MAX_CODES;
 /// The `weezl` encoder keeps a string's first 16 extensions in a short list and then moves
 /// them to a full table of 256, without the extension whose arrival made it move: that string
-/// gets its code (the decoder defines it) but is never matched. Kept, so the stream is the
-/// same bytes (the missed match costs a few bytes per frame).
+/// gets its code (the decoder defines it) but is never matched. Kept, so that the stream is
+/// the same bytes (a little longer than it could be).
 const SHORT_LIST: u8 = 16;
 
 /// `data` (palette indices) compressed for a GIF image: the minimum code size byte, then the
