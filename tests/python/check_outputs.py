@@ -10,6 +10,8 @@ usage: check_outputs.py SYNTH_DIR SEGMENT_DIR PREVIEW_PNG
   verdict agrees with figures recomputed here from detections.csv and tracks.csv (crowding,
   small objects, short tracks) by the limits the README states, and is the worst level of its
   findings.
+- qc_movie.gif: Pillow decodes every frame; its greys rise with the recording frame's
+  intensities.
 - the preview: Pillow opens it as an RGB PNG of the frame size.
 """
 import csv
@@ -146,6 +148,17 @@ assert ("short_tracks" in found) == (short > 0.5 and T >= 20), (short, T, found)
 
 movie = Image.open(f"{seg}/qc_movie.gif")
 assert movie.format == "GIF" and movie.size == (W, H) and movie.n_frames == T, (movie.format, movie.size, movie.n_frames)
+# Every frame decodes (Pillow's own LZW decoder) to the recording's frame: at the movie's full
+# size each grey pixel is a contrast stretch of its intensity, so ordered by intensity the
+# greys never fall (below the caption's rows; overlays are colours, or white, left out). A
+# pixel decoded wrong, or another frame's, breaks the order.
+for t in range(T):
+    movie.seek(t)
+    rgb = np.asarray(movie.convert("RGB")).astype(int)[16:]
+    grey = (rgb[..., 0] == rgb[..., 1]) & (rgb[..., 1] == rgb[..., 2]) & (rgb[..., 0] < 255)
+    assert grey.mean() > 0.5, (t, grey.mean())
+    levels = rgb[..., 0][grey][np.argsort(rec[t][16:][grey], kind="stable")]
+    assert np.all(np.diff(levels) >= 0), t
 sheet = Image.open(f"{seg}/qc_sheet.png")
 assert sheet.format == "PNG" and sheet.size[0] > W and sheet.size[1] >= H, sheet.size
 
