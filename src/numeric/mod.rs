@@ -114,17 +114,6 @@ impl DisjointSets {
     }
 }
 
-/// The column and row of pixel `i` of a `width`-wide image. In 32 bits when the index fits
-/// (every real frame): a 64-bit division costs several times a 32-bit one on many x86 CPUs,
-/// and the flooding loops divide once per pixel they visit.
-#[inline]
-pub fn column_row(i: usize, width: usize) -> (usize, usize) {
-    match (u32::try_from(i), u32::try_from(width)) {
-        (Ok(i), Ok(width)) => ((i % width) as usize, (i / width) as usize),
-        _ => (i % width, i / width),
-    }
-}
-
 /// The shape of a row-major image, with the width's reciprocal worked out once, so that the
 /// flooding loops find a pixel's column and row (and so its neighbours) with a multiplication
 /// instead of a division per pixel visited.
@@ -165,7 +154,7 @@ impl Grid {
             let row = ((self.reciprocal as u128 * i as u128) >> 64) as usize;
             (i - row * self.width, row)
         } else {
-            column_row(i, self.width)
+            (i % self.width, i / self.width)
         }
     }
 

@@ -99,23 +99,32 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
     let h_levels = (h * LEVELS_PER_UNIT).round().max(0.0) as u32;
     // Marker = value − h (as levels, floored at 0); reconstruction starts from it.
     let mut rec: Vec<u32> = levels.iter().map(|&v| v.saturating_sub(h_levels)).collect();
-    let grid = Grid::new(width, height);
     let mut queue = std::collections::VecDeque::new();
-    for backward in [false, true] {
-        for k in 0..width * height {
-            let p = if backward { width * height - 1 - k } else { k };
-            if !mask[p] {
-                continue;
-            }
-            let (earlier, count) = scanned_before(grid.column_row(p), backward, width, height);
-            let earlier = earlier[..count].iter().copied().filter(|&q| mask[q]);
-            let raised = earlier.clone().fold(rec[p], |m, q| m.max(rec[q])).min(levels[p]);
-            rec[p] = raised;
-            if backward && earlier.clone().any(|q| rec[q] < raised && rec[q] < levels[q]) {
-                queue.push_back(p);
-            }
+    let mut visit = |(x, y): (usize, usize), backward: bool| {
+        let p = y * width + x;
+        if !mask[p] {
+            return;
+        }
+        let (earlier, count) = scanned_before((x, y), backward, width, height);
+        let earlier = earlier[..count].iter().copied().filter(|&q| mask[q]);
+        let raised = earlier.clone().fold(rec[p], |m, q| m.max(rec[q])).min(levels[p]);
+        rec[p] = raised;
+        if backward && earlier.clone().any(|q| rec[q] < raised && rec[q] < levels[q]) {
+            queue.push_back(p);
+        }
+    };
+    // Columns and rows follow the scan; nothing is divided out per pixel.
+    for y in 0..height {
+        for x in 0..width {
+            visit((x, y), false);
         }
     }
+    for y in (0..height).rev() {
+        for x in (0..width).rev() {
+            visit((x, y), true);
+        }
+    }
+    let grid = Grid::new(width, height);
     while let Some(p) = queue.pop_front() {
         for q in grid.neighbours8(p).filter(|&q| mask[q]) {
             if rec[q] < rec[p] && rec[q] != levels[q] {

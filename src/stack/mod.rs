@@ -279,7 +279,7 @@ fn update_little_endian<T: Copy, const N: usize>(
 }
 
 #[cfg(test)]
-mod content_crc_tests {
+mod tests {
     use super::*;
 
     #[test]

@@ -202,8 +202,9 @@ pub struct ReviewEncoder {
 }
 
 impl ReviewEncoder {
-    /// Frame `t` (its samples, and its block average by `factor` when the caller has it, as
-    /// in [`ReviewWriter::offer_averaged`]) mapped to display grey levels and compressed.
+    /// Frame `t` (its samples, and its block average by `factor` when the caller has it: the
+    /// movie's downscale, [`crate::render::box_average`], used when it is the display's
+    /// factor) mapped to display grey levels and compressed.
     pub fn encode(&self, t: usize, raw: &[f32], (factor, averaged): (usize, &[f32])) -> EncodedFrame {
         let stretch = self.stretch.unwrap_or_else(|| DisplayRange::from_values(raw));
         let (display, full) = self.greys(stretch, t, raw, (factor, averaged));
@@ -311,21 +312,13 @@ impl ReviewWriter {
     /// # Errors
     /// A frame out of order, or one that cannot be written.
     pub fn offer(&mut self, t: usize, raw: &[f32]) -> Result<()> {
-        self.offer_averaged(t, raw, (0, &[]))
-    }
-
-    /// [`ReviewWriter::offer`] with the frame already block-averaged by `factor` (the movie's
-    /// downscale, [`crate::render::box_average`]), used when it is the display's factor.
-    ///
-    /// # Errors
-    /// As [`ReviewWriter::offer`].
-    pub fn offer_averaged(&mut self, t: usize, raw: &[f32], (factor, averaged): (usize, &[f32])) -> Result<()> {
         self.check_order(t)?;
         let stretch = *self
             .encoder
             .stretch
             .get_or_insert_with(|| DisplayRange::from_values(raw));
-        let (display, full) = self.encoder.greys(stretch, t, raw, (factor, averaged));
+        // No block average at hand: the display frame is averaged from `raw`.
+        let (display, full) = self.encoder.greys(stretch, t, raw, (0, &[]));
         self.batch.push((t, display, full));
         if self.batch.len() >= ENCODE_BATCH {
             self.encode_batch()?;
