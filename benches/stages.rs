@@ -90,3 +90,24 @@ fn motion_estimate_100_frames(b: Bencher) {
         .collect();
     b.bench(|| caravan::link::estimate::estimate_motion(black_box(&frames), 14.0));
 }
+
+/// The frame stretched to 8 bits, as the review page stores it at full resolution.
+static GREYS: LazyLock<Vec<u8>> = LazyLock::new(|| caravan::render::stretch_to_u8(FRAME.as_slice().unwrap()));
+
+/// A review frame at full resolution, 1024 x 1024, quality 75: our encoder ...
+#[divan::bench]
+fn review_jpeg_ours(b: Bencher) {
+    b.bench(|| caravan::render::jpeg::grey_jpeg(black_box(&GREYS), 1024, 1024, 75));
+}
+
+/// ... and the `image` crate's, which writes the same bytes (the ratio is the gain).
+#[divan::bench]
+fn review_jpeg_image_crate(b: Bencher) {
+    b.bench(|| {
+        let mut out = Vec::new();
+        image::codecs::jpeg::JpegEncoder::new_with_quality(&mut out, 75)
+            .encode(black_box(&GREYS), 1024, 1024, image::ExtendedColorType::L8)
+            .unwrap();
+        out
+    });
+}

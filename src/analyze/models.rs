@@ -303,10 +303,13 @@ fn fit_linear(model: MotionModel, points: &[MsdPoint], weights: &[f64]) -> Resul
 }
 
 /// Solves min Σ w (y − x·β)² by the normal equations (Gaussian elimination with partial
-/// pivoting); `None` when singular.
+/// pivoting), for up to three coefficients; `None` when singular or wider.
 pub fn weighted_least_squares(rows: &[(Vec<f64>, f64, f64)]) -> Option<Vec<f64>> {
     let k = rows.first()?.0.len();
-    let mut a = vec![vec![0.0; k + 1]; k];
+    if k > MAX_PARAMETERS {
+        return None;
+    }
+    let mut a = [[0.0; MAX_PARAMETERS + 1]; MAX_PARAMETERS];
     for (x, y, w) in rows {
         for i in 0..k {
             for j in 0..k {
@@ -315,11 +318,16 @@ pub fn weighted_least_squares(rows: &[(Vec<f64>, f64, f64)]) -> Option<Vec<f64>>
             a[i][k] += w * x[i] * y;
         }
     }
-    solve_augmented(a)
+    solve_augmented(&mut a[..k]).map(|x| x[..k].to_vec())
 }
 
-/// Gaussian elimination with partial pivoting on an augmented k × (k + 1) matrix.
-fn solve_augmented(mut a: Vec<Vec<f64>>) -> Option<Vec<f64>> {
+/// The most parameters a model has (D, v² or P, and the offset).
+const MAX_PARAMETERS: usize = 3;
+
+/// Gaussian elimination with partial pivoting on an augmented k × (k + 1) matrix (`k` rows,
+/// each row's first k + 1 entries used; k ≤ [`MAX_PARAMETERS`]); the first k entries of the
+/// result are the solution.
+fn solve_augmented(a: &mut [[f64; MAX_PARAMETERS + 1]]) -> Option<[f64; MAX_PARAMETERS]> {
     let k = a.len();
     let scale = a.iter().flat_map(|r| r[..k].iter()).fold(0.0f64, |m, v| m.max(v.abs()));
     for col in 0..k {
@@ -332,12 +340,12 @@ fn solve_augmented(mut a: Vec<Vec<f64>>) -> Option<Vec<f64>> {
         let pivot_row = &upper[col];
         for row in lower.iter_mut() {
             let f = row[col] / pivot_row[col];
-            for (x, p) in row[col..].iter_mut().zip(&pivot_row[col..]) {
+            for (x, p) in row[col..=k].iter_mut().zip(&pivot_row[col..=k]) {
                 *x -= f * p;
             }
         }
     }
-    let mut x = vec![0.0; k];
+    let mut x = [0.0; MAX_PARAMETERS];
     for r in (0..k).rev() {
         let s: f64 = (r + 1..k).map(|c| a[r][c] * x[c]).sum();
         x[r] = (a[r][k] - s) / a[r][r];
@@ -404,16 +412,17 @@ fn walk_msd(t: f64, theta: &[f64]) -> f64 {
 }
 
 /// Minimises [`walk_rss`] from `theta`; the parameters and their RSS, `None` if it never
-/// became finite.
+/// became finite. Each step's normal equations are summed in fixed-size arrays (a resampled
+/// analysis fits thousands of walks, and allocating per point and step cost a fifth of it).
 fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>) -> Option<(Vec<f64>, f64)> {
     let k = theta.len();
     let mut lambda = 1e-3;
     let mut current = walk_rss(points, weights, &theta);
     for _ in 0..500 {
-        let mut a = vec![vec![0.0; k + 1]; k];
+        let mut a = [[0.0; MAX_PARAMETERS + 1]; MAX_PARAMETERS];
         for (q, &w) in points.iter().zip(weights) {
-            let j = walk_jacobian(q.lag, &theta);
-            let r = q.msd - walk_msd(q.lag, &theta);
+            let (j, msd) = walk_slope_and_msd(q.lag, &theta);
+            let r = q.msd - msd;
             for i in 0..k {
                 for c in 0..k {
                     a[i][c] += w * j[i] * j[c];
@@ -421,10 +430,10 @@ fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>
                 a[i][k] += w * j[i] * r;
             }
         }
-        for (i, row) in a.iter_mut().enumerate() {
+        for (i, row) in a.iter_mut().enumerate().take(k) {
             row[i] *= 1.0 + lambda;
         }
-        let Some(step) = solve_augmented(a) else {
+        let Some(step) = solve_augmented(&mut a[..k]) else {
             lambda *= 10.0;
             if lambda > 1e12 {
                 break;
@@ -455,16 +464,14 @@ fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>
     (current.is_finite() && theta.iter().all(|t| t.is_finite())).then_some((theta, current))
 }
 
-/// ∂MSD/∂(D, P[, offset]) of the walk at lag `t`.
-fn walk_jacobian(t: f64, theta: &[f64]) -> Vec<f64> {
+/// ∂MSD/∂(D, P[, offset]) of the walk at lag `t` (the offset's entry 1, unused without it),
+/// and the walk's MSD there ([`walk_msd`], the same value: one `exp_m1` serves both).
+fn walk_slope_and_msd(t: f64, theta: &[f64]) -> ([f64; MAX_PARAMETERS], f64) {
     let (d, p) = (theta[0], theta[1]);
     // In expm1 form for a persistence far beyond the lag (see `furth_msd`).
     let (x, em1) = (t / p, (-t / p).exp_m1());
-    let mut j = vec![4.0 * (t + p * em1), 4.0 * d * (em1 + x * (-x).exp())];
-    if theta.len() > 2 {
-        j.push(1.0);
-    }
-    j
+    let msd = 4.0 * d * (t + p * em1) + theta.get(2).copied().unwrap_or(0.0);
+    ([4.0 * (t + p * em1), 4.0 * d * (em1 + x * (-x).exp()), 1.0], msd)
 }
 
 #[cfg(test)]

@@ -3,6 +3,7 @@
 //! done here.
 
 mod font;
+pub mod jpeg;
 pub mod lookalike;
 mod lzw;
 pub mod movie;

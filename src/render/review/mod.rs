@@ -16,6 +16,7 @@
 mod page;
 
 use crate::error::{Error, Result};
+use crate::render::jpeg::MAX_SIDE;
 use crate::render::{box_average, DisplayRange};
 use rayon::prelude::*;
 use std::collections::BTreeSet;
@@ -158,13 +159,19 @@ pub struct FullFramePlan {
 }
 
 impl FullFramePlan {
+    /// No frame at full resolution (nothing is downscaled, or the frame is wider than a JPEG
+    /// can be).
+    pub fn none() -> FullFramePlan {
+        FullFramePlan {
+            frames: BTreeSet::new(),
+            every: 0,
+        }
+    }
+
     /// The plan for `frames` frames downscaled by `factor`, given the moments.
     pub fn choose(frames: usize, factor: usize, moments: &[Moment]) -> FullFramePlan {
         if factor <= 1 || frames == 0 {
-            return FullFramePlan {
-                frames: BTreeSet::new(),
-                every: 0,
-            };
+            return FullFramePlan::none();
         }
         let budget = (frames / (factor * factor)).max(1);
         let mut chosen = BTreeSet::new();
@@ -272,8 +279,13 @@ impl ReviewWriter {
     /// The staging folder cannot be created.
     pub fn new(target: &Path, input: ReviewInput, options: &ReviewOptions) -> Result<ReviewWriter> {
         let (w, h) = input.size;
-        let factor = w.max(h).div_ceil(options.display_side_px.max(64)).max(1);
-        let plan = FullFramePlan::choose(input.frames, factor, &input.moments);
+        let side = options.display_side_px.clamp(64, MAX_SIDE);
+        let factor = w.max(h).div_ceil(side).max(1);
+        let plan = if w.max(h) <= MAX_SIDE {
+            FullFramePlan::choose(input.frames, factor, &input.moments)
+        } else {
+            FullFramePlan::none()
+        };
         let name = target
             .file_name()
             .map(|n| n.to_string_lossy().to_string())
@@ -430,13 +442,10 @@ impl Drop for ReviewWriter {
     }
 }
 
-/// A greyscale baseline JPEG (the `image` crate's encoder).
+/// A greyscale baseline JPEG ([`crate::render::jpeg`]); [`ReviewWriter::new`] keeps both
+/// the display and the full frames within the format's sides.
 fn jpeg(grey: &[u8], w: usize, h: usize) -> Vec<u8> {
-    let mut out = Vec::new();
-    image::codecs::jpeg::JpegEncoder::new_with_quality(&mut out, JPEG_QUALITY)
-        .encode(grey, w as u32, h as u32, image::ExtendedColorType::L8)
-        .expect("an in-memory buffer of the stated size encodes");
-    out
+    crate::render::jpeg::grey_jpeg(grey, w, h, JPEG_QUALITY).expect("sides kept within JPEG's limit")
 }
 
 /// A number with at most `decimals` decimals, trailing zeros removed (compact data files).
