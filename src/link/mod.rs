@@ -85,20 +85,41 @@ pub fn assign_with_alternatives(
         }
     }
     out.links.sort_by_key(|l| l.0);
-    out.second_best = out
-        .links
-        .iter()
-        .map(|&(s, t, _)| {
-            candidates
-                .iter()
-                .filter(|c| (c.0 == s) != (c.1 == t))
-                .map(|c| c.2)
-                .fold(alternative_cost, f64::min)
-        })
-        .collect();
+    out.second_best = second_best_costs(&out.links, n_sources, n_targets, candidates, alternative_cost);
     out.deaths = (0..n_sources).filter(|&i| !linked_source[i]).collect();
     out.births = (0..n_targets).filter(|&j| !linked_target[j]).collect();
     out
+}
+
+/// For each link `(s, t)`, the cheapest other way for either end: a candidate from `s` to
+/// another target or into `t` from another source, or the alternative cost if lower. The
+/// candidates are looked up by source and by target, not scanned for every link; a minimum does
+/// not depend on the order its values come in.
+fn second_best_costs(
+    links: &[(usize, usize, f64)],
+    n_sources: usize,
+    n_targets: usize,
+    candidates: &[(usize, usize, f64)],
+    alternative_cost: f64,
+) -> Vec<f64> {
+    // (the other end, cost) of every candidate, by source and by target.
+    let mut from_source: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n_sources];
+    let mut into_target: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n_targets];
+    for &(s, t, c) in candidates {
+        from_source[s].push((t, c));
+        into_target[t].push((s, c));
+    }
+    links
+        .iter()
+        .map(|&(s, t, _)| {
+            let elsewhere = from_source[s].iter().filter(|&&(other, _)| other != t);
+            let from_elsewhere = into_target[t].iter().filter(|&&(other, _)| other != s);
+            elsewhere
+                .chain(from_elsewhere)
+                .map(|&(_, c)| c)
+                .fold(alternative_cost, f64::min)
+        })
+        .collect()
 }
 
 /// What the global steps after frame-to-frame linking did.
@@ -308,6 +329,29 @@ mod tests {
         let r = link_frames(&[[0.0, 0.0]], &[[1.0, 0.0], [0.0, 3.0]], 5.0);
         assert_eq!(r.links, vec![(0, 0, 1.0)]);
         assert_eq!(r.second_best, vec![9.0]);
+    }
+
+    #[test]
+    fn second_best_by_lookup_is_the_scan_over_every_candidate() {
+        // Source: the definition, the cheapest candidate sharing exactly one end with the link
+        // (a scan over all candidates, the code before the lookup), on random dense frames.
+        let mut rng = crate::numeric::Rng::new(3);
+        let points = |rng: &mut crate::numeric::Rng, n: usize| -> Vec<[f64; 2]> {
+            (0..n).map(|_| [rng.uniform() * 60.0, rng.uniform() * 60.0]).collect()
+        };
+        for round in 0..20 {
+            let (sources, targets) = (points(&mut rng, 40 + round), points(&mut rng, 45));
+            let candidates = candidate_links(&sources, &vec![8.0; sources.len()], &targets);
+            let r = link_frames_gated(&sources, &vec![8.0; sources.len()], &targets);
+            assert!(r.links.len() > 10);
+            for (&(s, t, _), &got) in r.links.iter().zip(&r.second_best) {
+                let want = (candidates.iter())
+                    .filter(|c| (c.0 == s) != (c.1 == t))
+                    .map(|c| c.2)
+                    .fold(r.alternative_cost, f64::min);
+                assert_eq!(got.to_bits(), want.to_bits(), "round {round} link {s}->{t}");
+            }
+        }
     }
 
     #[test]

@@ -48,8 +48,11 @@ pub fn split_shared_objects(detections: Vec<Detection>, tracks: &[Expected], min
     let mut claimed = vec![false; tracks.len()];
     let mut out = Vec::with_capacity(detections.len() + 4);
     let mut splits = 0;
+    let by_column = TracksByColumn::of(tracks);
     for d in detections {
-        let inside: Vec<usize> = (0..tracks.len())
+        let inside: Vec<usize> = by_column
+            .near(&d)
+            .into_iter()
             .filter(|&k| !claimed[k] && inside_ellipse(&d, tracks[k].predicted))
             .collect();
         let pair = match inside[..] {
@@ -75,13 +78,47 @@ pub fn split_shared_objects(detections: Vec<Detection>, tracks: &[Expected], min
     (out, splits)
 }
 
+/// The tracks' finite predictions sorted by column, so that the tracks that can enter an
+/// object are found by two binary searches instead of testing every track against every
+/// object of the frame.
+struct TracksByColumn(Vec<(f64, usize)>);
+
+impl TracksByColumn {
+    fn of(tracks: &[Expected]) -> TracksByColumn {
+        let mut by_x: Vec<(f64, usize)> = (tracks.iter().enumerate())
+            .filter(|(_, t)| t.predicted.iter().all(|v| v.is_finite()))
+            .map(|(k, t)| (t.predicted[0], k))
+            .collect();
+        by_x.sort_by(|a, b| a.0.total_cmp(&b.0));
+        TracksByColumn(by_x)
+    }
+
+    /// The tracks whose prediction lies within a column band a tenth of a percent wider than
+    /// the detection's reach ([`ellipse_reach`]) on either side, ascending. Every track
+    /// [`inside_ellipse`] accepts is among them (its distance is within the reach, up to a
+    /// relative 10⁻⁶), and a track with a non-finite prediction is never inside.
+    fn near(&self, d: &Detection) -> Vec<usize> {
+        let band = ellipse_reach(d) * 1.001;
+        let lo = self.0.partition_point(|p| p.0 < d.x - band);
+        let hi = self.0.partition_point(|p| p.0 <= d.x + band);
+        let mut near: Vec<usize> = self.0[lo..hi.max(lo)].iter().map(|p| p.1).collect();
+        near.sort_unstable();
+        near
+    }
+}
+
+/// The detection's longer half-axis: no point farther from its centre is inside its ellipse.
+fn ellipse_reach(d: &Detection) -> f64 {
+    (d.major_axis_px / 2.0).max((d.minor_axis_px / 2.0).max(1e-9))
+}
+
 /// Whether `p` lies inside the detection's moment-equivalent ellipse (axes as measured).
 fn inside_ellipse(d: &Detection, p: [f64; 2]) -> bool {
     let (dx, dy) = (p[0] - d.x, p[1] - d.y);
     // Inside the ellipse is within its longer half-axis of the centre: most of a frame's
     // tracks are ruled out before the rotation (a margin keeps the boundary's rounding out of
     // it: this never rules out a point the exact test keeps).
-    let reach = (d.major_axis_px / 2.0).max((d.minor_axis_px / 2.0).max(1e-9));
+    let reach = ellipse_reach(d);
     if dx * dx + dy * dy > reach * reach * (1.0 + 1e-6) {
         return false;
     }
@@ -382,6 +419,67 @@ mod tests {
     use super::*;
     use crate::link::online::OnlineLinker;
     use crate::link::LinkParams;
+
+    #[test]
+    fn the_column_band_finds_every_track_inside_an_object() {
+        // Source: the definition, every track tested against every object (the code before the
+        // band), on random ellipses and predictions, some on the boundary and some not finite.
+        let mut rng = crate::numeric::Rng::new(7);
+        let tracks: Vec<Expected> = (0..400)
+            .map(|k| Expected {
+                predicted: match k % 97 {
+                    0 => [f64::NAN, 10.0],
+                    1 => [f64::INFINITY, 5.0],
+                    _ => [rng.uniform() * 200.0, rng.uniform() * 200.0],
+                },
+                area_px: 100.0,
+            })
+            .collect();
+        let by_column = TracksByColumn::of(&tracks);
+        let template = object_of_discs(&[(20.0, 20.0, 5.0)], 0);
+        let mut found = 0;
+        for i in 0..300 {
+            let minor = 4.0 + 16.0 * rng.uniform();
+            let d = Detection {
+                x: rng.uniform() * 200.0,
+                y: rng.uniform() * 200.0,
+                minor_axis_px: minor,
+                major_axis_px: minor * (1.0 + rng.uniform()),
+                orientation_deg: 180.0 * rng.uniform() - 90.0,
+                ..template.clone()
+            };
+            if i % 10 == 0 {
+                // A track exactly on the ellipse's end.
+                let (s, c) = d.orientation_deg.to_radians().sin_cos();
+                let k = i % tracks.len();
+                let p = [d.x + c * d.major_axis_px / 2.0, d.y + s * d.major_axis_px / 2.0];
+                let mut moved = tracks.clone();
+                moved[k].predicted = p;
+                let band = TracksByColumn::of(&moved);
+                let every: Vec<usize> = (0..moved.len())
+                    .filter(|&k| inside_ellipse(&d, moved[k].predicted))
+                    .collect();
+                let near: Vec<usize> = band
+                    .near(&d)
+                    .into_iter()
+                    .filter(|&k| inside_ellipse(&d, moved[k].predicted))
+                    .collect();
+                assert_eq!(near, every);
+                continue;
+            }
+            let every: Vec<usize> = (0..tracks.len())
+                .filter(|&k| inside_ellipse(&d, tracks[k].predicted))
+                .collect();
+            let near: Vec<usize> = by_column
+                .near(&d)
+                .into_iter()
+                .filter(|&k| inside_ellipse(&d, tracks[k].predicted))
+                .collect();
+            found += every.len();
+            assert_eq!(near, every, "object {i}");
+        }
+        assert!(found > 50, "{found}");
+    }
 
     #[test]
     fn the_smallest_part_is_a_share_of_a_disc_of_the_diameter() {

@@ -83,12 +83,19 @@ impl OutlineSpool {
 
     /// Appends one frame's outline pixels as (pixel index, label) pairs.
     pub fn push(&mut self, labels: &[u32], width: usize, height: usize) -> Result<()> {
+        const RUN: usize = 32;
         let mut pairs: Vec<u32> = Vec::new();
-        // Row by row (no division per pixel); most pixels are background.
+        // Row by row (no division per pixel); most pixels are background, so runs of 32 are
+        // first tested as a whole (one vectorised OR) and only those with an object looked into.
         for (y, row) in labels.chunks_exact(width.max(1)).take(height).enumerate() {
-            for (x, &l) in row.iter().enumerate() {
-                if l != 0 && is_edge(labels, width, height, x, y) {
-                    pairs.extend([(y * width + x) as u32, l]);
+            for (k, run) in row.chunks(RUN).enumerate() {
+                if run.iter().fold(0, |any, &l| any | l) == 0 {
+                    continue;
+                }
+                for (x, &l) in (k * RUN..).zip(run) {
+                    if l != 0 && is_edge(labels, width, height, x, y) {
+                        pairs.extend([(y * width + x) as u32, l]);
+                    }
                 }
             }
         }

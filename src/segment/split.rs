@@ -131,7 +131,15 @@ fn find_components(mask: &[bool], width: usize, height: usize, visited: &mut [u3
     let grid = Grid::new(width, height);
     let mut pixels: Vec<u32> = Vec::new();
     let mut components = Vec::new();
-    for start in 0..mask.len() {
+    const RUN: usize = 64;
+    // Most of a frame is background: runs of 64 mask cells are first tested as a whole (one
+    // vectorised OR), and only runs with foreground are walked.
+    let starts = mask
+        .chunks(RUN)
+        .enumerate()
+        .filter(|(_, run)| run.iter().fold(false, |any, &m| any | m))
+        .flat_map(|(k, run)| k * RUN..k * RUN + run.len());
+    for start in starts {
         if !mask[start] || visited[start] != 0 {
             continue;
         }
