@@ -225,13 +225,16 @@ pub fn read_named_columns<T>(
         })
         .collect::<crate::error::Result<_>>()?;
     let mut out = Vec::new();
-    for (row, record) in reader.records().enumerate() {
-        let record = record.map_err(|e| bad(e.to_string()))?;
+    // One record reused for every row (a new one per row was most of the time of reading).
+    let mut record = csv::StringRecord::new();
+    let mut line = 1;
+    while reader.read_record(&mut record).map_err(|e| bad(e.to_string()))? {
+        line += 1;
         out.push(each(&NamedRow {
             record: &record,
             at: &at,
             names,
-            line: row + 2,
+            line,
             path,
         })?);
     }

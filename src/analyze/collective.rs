@@ -53,7 +53,7 @@ impl PairCorrelation {
     ///
     /// The candidates within reach come from a k-d tree (a radius a millionth wider than the
     /// reach, so that rounding in the squared distance drops no pair the distance below
-    /// keeps), so the work grows with the number of points times their neighbours within
+    /// keeps; unsorted, as they are put in index order anyway), so the work grows with the number of points times their neighbours within
     /// reach, not with the square of the points; each point's partners are then taken in
     /// index order, the order of the plain double loop, so the sums are the same to the last
     /// bit. Frames with a point that is not finite compare every pair.
@@ -72,6 +72,7 @@ impl PairCorrelation {
                 Some(tree) => partners.extend(
                     tree.query(&positions[i])
                         .within::<SquaredEuclidean<f64>>(wider)
+                        .unsorted()
                         .execute()
                         .iter()
                         .map(|hit| hit.item as usize)

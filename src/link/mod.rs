@@ -214,7 +214,13 @@ fn candidate_links(sources: &[[f64; 2]], radii: &[f64], targets: &[[f64; 2]]) ->
     let tree: ImmutableKdTree<f64, 2> = ImmutableKdTree::new_from_slice(targets).expect("non-empty, finite points");
     let mut pairs = Vec::new();
     for (i, (s, r)) in sources.iter().zip(radii).enumerate() {
-        for hit in tree.query(s).within::<SquaredEuclidean<f64>>(r * r).execute() {
+        // Unsorted: the pairs are put in (source, target) order below.
+        for hit in tree
+            .query(s)
+            .within::<SquaredEuclidean<f64>>(r * r)
+            .unsorted()
+            .execute()
+        {
             pairs.push((i, hit.item as usize, hit.distance));
         }
     }

@@ -215,12 +215,14 @@ pub fn read_track_rows(text: &str) -> Result<Vec<TrackRow>, String> {
         }
         1 + newlines
     };
-    let mut reader = csv::ReaderBuilder::new()
-        .flexible(true)
-        .trim(csv::Trim::All)
-        .from_reader(text.as_bytes());
-    let header = reader.headers().map_err(|e| e.to_string())?.clone();
-    if header.is_empty() || header.iter().all(str::is_empty) {
+    // Cells are trimmed as they are read (as the reader's own `Trim::All` would, Unicode
+    // whitespace included), and one record is reused: trimming by the reader allocated two new
+    // records per row, most of the time of reading a large table.
+    let mut reader = csv::ReaderBuilder::new().flexible(true).from_reader(text.as_bytes());
+    let header: Vec<String> = (reader.headers().map_err(|e| e.to_string())?.iter())
+        .map(|h| h.trim().to_string())
+        .collect();
+    if header.is_empty() || header.iter().all(String::is_empty) {
         return Err("empty file".into());
     }
     let col = |name: &str| header.iter().position(|h| h == name);
@@ -228,13 +230,18 @@ pub fn read_track_rows(text: &str) -> Result<Vec<TrackRow>, String> {
     let (ti, fi, xi, yi) = (need("track_id")?, need("frame")?, need("x")?, need("y")?);
     let (pi, xu, ts) = (col("parent_id"), col("x_um"), col("time_s"));
     let mut rows = Vec::new();
-    for record in reader.records() {
-        let record = record.map_err(|e| e.to_string())?;
-        if record.iter().all(str::is_empty) {
+    let mut record = csv::StringRecord::new();
+    while reader.read_record(&mut record).map_err(|e| e.to_string())? {
+        if record.iter().all(|c| c.trim().is_empty()) {
             continue;
         }
         let line = record.position().map_or(0, |p| line_of(p.byte()));
-        let cell = |i: usize| record.get(i).ok_or(format!("line {line}: too few columns"));
+        let cell = |i: usize| {
+            record
+                .get(i)
+                .map(str::trim)
+                .ok_or(format!("line {line}: too few columns"))
+        };
         let whole = |i: usize, what: &str| -> Result<u64, String> {
             cell(i)?
                 .parse()
@@ -243,7 +250,7 @@ pub fn read_track_rows(text: &str) -> Result<Vec<TrackRow>, String> {
         let number = |i: usize, what: &str| -> Result<f64, String> {
             finite(cell(i)?).ok_or(format!("line {line}: {what} is not a finite number"))
         };
-        let optional = |i: Option<usize>| i.and_then(|i| record.get(i)).and_then(finite);
+        let optional = |i: Option<usize>| i.and_then(|i| record.get(i)).map(str::trim).and_then(finite);
         let id = |v: u64, what: &str| u32::try_from(v).map_err(|_| format!("line {line}: {what} is too large"));
         rows.push(TrackRow {
             line,
@@ -286,6 +293,33 @@ fn finite(cell: &str) -> Option<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn cells_are_trimmed_as_the_csv_readers_own_trimming_does() {
+        // Reference: the `csv` crate reading the same text with `Trim::All` (ASCII and Unicode
+        // whitespace around cells and header names; rows of blank cells skipped).
+        let text = " track_id ,frame\t,x, y\u{2003}\n 1 ,\t0, 2.5 ,\u{2003}3\u{2003}\n  ,  , , \n\u{a0}2,\u{a0}1\u{a0},\u{2009}4, 5e0 \n";
+        let rows = read_track_rows(text).unwrap();
+        let mut reader = csv::ReaderBuilder::new()
+            .flexible(true)
+            .trim(csv::Trim::All)
+            .from_reader(text.as_bytes());
+        let want: Vec<(u32, usize, f64, f64)> = (reader.records())
+            .map(|r| r.unwrap())
+            .filter(|r| !r.iter().all(str::is_empty))
+            .map(|r| {
+                (
+                    r[0].parse().unwrap(),
+                    r[1].parse().unwrap(),
+                    r[2].parse().unwrap(),
+                    r[3].parse().unwrap(),
+                )
+            })
+            .collect();
+        let got: Vec<(u32, usize, f64, f64)> = rows.iter().map(|r| (r.track_id, r.frame, r.x, r.y)).collect();
+        assert_eq!(got, want);
+        assert_eq!(got.len(), 2);
+    }
 
     #[test]
     fn quoted_fields_a_byte_order_mark_and_blank_lines_are_read() {
