@@ -3,7 +3,7 @@
 //! offset for localisation noise. The choice is by the small-sample Akaike information
 //! criterion, and every candidate's fit (or the reason it failed) is kept for the outputs.
 
-use super::msd::{furth_msd, MsdPoint};
+use super::msd::{furth_msd, furth_msd_given, MsdPoint};
 use serde::Serialize;
 
 /// The shape of a model's MSD curve.
@@ -470,7 +470,7 @@ fn walk_slope_and_msd(t: f64, theta: &[f64]) -> ([f64; MAX_PARAMETERS], f64) {
     let (d, p) = (theta[0], theta[1]);
     // In expm1 form for a persistence far beyond the lag (see `furth_msd`).
     let (x, em1) = (t / p, (-t / p).exp_m1());
-    let msd = 4.0 * d * (t + p * em1) + theta.get(2).copied().unwrap_or(0.0);
+    let msd = furth_msd_given(t, d, p, em1) + theta.get(2).copied().unwrap_or(0.0);
     ([4.0 * (t + p * em1), 4.0 * d * (em1 + x * (-x).exp()), 1.0], msd)
 }
 

@@ -132,7 +132,12 @@ pub fn model_points(
 /// the lags fitted) 1 − e^{−t/P} computed as written loses all but a few digits and the
 /// fitted D and P drift on rounding noise.
 pub fn furth_msd(t: f64, d: f64, p: f64) -> f64 {
-    4.0 * d * (t + p * (-t / p).exp_m1())
+    furth_msd_given(t, d, p, (-t / p).exp_m1())
+}
+
+/// [`furth_msd`] with `expm1(−t/P)` already computed (a fit's slope needs it too).
+pub fn furth_msd_given(t: f64, d: f64, p: f64, expm1: f64) -> f64 {
+    4.0 * d * (t + p * expm1)
 }
 
 /// Slope of ln MSD against ln lag (ordinary least squares) over the given points: the

@@ -435,7 +435,6 @@ mod tests {
                 area_px: 100.0,
             })
             .collect();
-        let by_column = TracksByColumn::of(&tracks);
         let template = object_of_discs(&[(20.0, 20.0, 5.0)], 0);
         let mut found = 0;
         for i in 0..300 {
@@ -448,33 +447,15 @@ mod tests {
                 orientation_deg: 180.0 * rng.uniform() - 90.0,
                 ..template.clone()
             };
+            // Every tenth object has a track exactly on its ellipse's end.
+            let mut moved = tracks.clone();
             if i % 10 == 0 {
-                // A track exactly on the ellipse's end.
                 let (s, c) = d.orientation_deg.to_radians().sin_cos();
-                let k = i % tracks.len();
-                let p = [d.x + c * d.major_axis_px / 2.0, d.y + s * d.major_axis_px / 2.0];
-                let mut moved = tracks.clone();
-                moved[k].predicted = p;
-                let band = TracksByColumn::of(&moved);
-                let every: Vec<usize> = (0..moved.len())
-                    .filter(|&k| inside_ellipse(&d, moved[k].predicted))
-                    .collect();
-                let near: Vec<usize> = band
-                    .near(&d)
-                    .into_iter()
-                    .filter(|&k| inside_ellipse(&d, moved[k].predicted))
-                    .collect();
-                assert_eq!(near, every);
-                continue;
+                moved[i % tracks.len()].predicted = [d.x + c * d.major_axis_px / 2.0, d.y + s * d.major_axis_px / 2.0];
             }
-            let every: Vec<usize> = (0..tracks.len())
-                .filter(|&k| inside_ellipse(&d, tracks[k].predicted))
-                .collect();
-            let near: Vec<usize> = by_column
-                .near(&d)
-                .into_iter()
-                .filter(|&k| inside_ellipse(&d, tracks[k].predicted))
-                .collect();
+            let inside = |k: &usize| inside_ellipse(&d, moved[*k].predicted);
+            let every: Vec<usize> = (0..moved.len()).filter(inside).collect();
+            let near: Vec<usize> = TracksByColumn::of(&moved).near(&d).into_iter().filter(inside).collect();
             found += every.len();
             assert_eq!(near, every, "object {i}");
         }

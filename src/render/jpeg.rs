@@ -263,7 +263,7 @@ fn transform_1d<const ROWS: bool>(v: &Lanes) -> Lanes {
 /// away from zero, is `(2|c'| + q) div 2q` with the sign of `c' = trunc(c / 8)`, and that
 /// integer division is a multiplication by `⌈2^32 / 2q⌉` and a shift (exact while
 /// `(2|c'| + q) · 2q < 2^32`, far beyond the ±2^11 of 8-bit samples).
-pub struct Divisors {
+struct Divisors {
     reciprocal: [u64; 64],
     quantiser: [i32; 64],
 }
