@@ -379,6 +379,7 @@ impl BitSink {
         block[0]
     }
 
+    /// Appends the Huffman code of `symbol`.
     #[inline(always)]
     fn symbol(&mut self, table: &HuffmanCodes, symbol: u8) {
         let (length, code) = table.codes[symbol as usize];
