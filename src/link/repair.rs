@@ -2,6 +2,7 @@
 //! and is split where the tracks say they are.
 
 use crate::tracks::{Detection, TrackedDetection};
+use kiddo::{ImmutableKdTree, SquaredEuclidean};
 
 /// The object's area over the two nuclei's summed areas must lie in this range for the
 /// object to be taken as the two of them (our own bounds: two touching nuclei segmented as one
@@ -48,9 +49,9 @@ pub fn split_shared_objects(detections: Vec<Detection>, tracks: &[Expected], min
     let mut claimed = vec![false; tracks.len()];
     let mut out = Vec::with_capacity(detections.len() + 4);
     let mut splits = 0;
-    let by_column = TracksByColumn::of(tracks);
+    let nearby = NearbyTracks::of(tracks);
     for d in detections {
-        let inside: Vec<usize> = by_column
+        let inside: Vec<usize> = nearby
             .near(&d)
             .into_iter()
             .filter(|&k| !claimed[k] && inside_ellipse(&d, tracks[k].predicted))
@@ -78,30 +79,40 @@ pub fn split_shared_objects(detections: Vec<Detection>, tracks: &[Expected], min
     (out, splits)
 }
 
-/// The tracks' finite predictions sorted by column, so that the tracks that can enter an
-/// object are found by two binary searches instead of testing every track against every
-/// object of the frame.
-struct TracksByColumn(Vec<(f64, usize)>);
+/// The tracks' finite predictions in a k-d tree, so that the tracks that can enter an object
+/// are found by one radius query instead of testing every track against every object of the
+/// frame (a track with a non-finite prediction is never inside an ellipse).
+struct NearbyTracks {
+    tree: Option<ImmutableKdTree<f64, 2>>,
+    /// The track of each point of the tree.
+    track_of: Vec<usize>,
+}
 
-impl TracksByColumn {
-    fn of(tracks: &[Expected]) -> TracksByColumn {
-        let mut by_x: Vec<(f64, usize)> = (tracks.iter().enumerate())
+impl NearbyTracks {
+    fn of(tracks: &[Expected]) -> NearbyTracks {
+        let (points, track_of): (Vec<[f64; 2]>, Vec<usize>) = (tracks.iter().enumerate())
             .filter(|(_, t)| t.predicted.iter().all(|v| v.is_finite()))
-            .map(|(k, t)| (t.predicted[0], k))
-            .collect();
-        by_x.sort_by(|a, b| a.0.total_cmp(&b.0));
-        TracksByColumn(by_x)
+            .map(|(k, t)| (t.predicted, k))
+            .unzip();
+        let tree = (!points.is_empty())
+            .then(|| ImmutableKdTree::new_from_slice(&points).ok())
+            .flatten();
+        NearbyTracks { tree, track_of }
     }
 
-    /// The tracks whose prediction lies within a column band a tenth of a percent wider than
-    /// the detection's reach ([`ellipse_reach`]) on either side, ascending. Every track
-    /// [`inside_ellipse`] accepts is among them (its distance is within the reach, up to a
-    /// relative 10⁻⁶), and a track with a non-finite prediction is never inside.
+    /// The tracks whose prediction lies within a tenth of a percent more than the detection's
+    /// reach ([`ellipse_reach`]), ascending: every track [`inside_ellipse`] accepts is among
+    /// them (its squared distance is within the squared reach, up to a relative 10⁻⁶).
     fn near(&self, d: &Detection) -> Vec<usize> {
-        let band = ellipse_reach(d) * 1.001;
-        let lo = self.0.partition_point(|p| p.0 < d.x - band);
-        let hi = self.0.partition_point(|p| p.0 <= d.x + band);
-        let mut near: Vec<usize> = self.0[lo..hi.max(lo)].iter().map(|p| p.1).collect();
+        let Some(tree) = &self.tree else { return Vec::new() };
+        let radius = ellipse_reach(d) * 1.001;
+        let mut near: Vec<usize> = (tree.query(&[d.x, d.y]))
+            .within::<SquaredEuclidean<f64>>(radius * radius)
+            .unsorted()
+            .execute()
+            .iter()
+            .map(|hit| self.track_of[hit.item as usize])
+            .collect();
         near.sort_unstable();
         near
     }
@@ -421,9 +432,9 @@ mod tests {
     use crate::link::LinkParams;
 
     #[test]
-    fn the_column_band_finds_every_track_inside_an_object() {
+    fn the_radius_query_finds_every_track_inside_an_object() {
         // Source: the definition, every track tested against every object (the code before the
-        // band), on random ellipses and predictions, some on the boundary and some not finite.
+        // query), on random ellipses and predictions, some on the boundary and some not finite.
         let mut rng = crate::numeric::Rng::new(7);
         let tracks: Vec<Expected> = (0..400)
             .map(|k| Expected {
@@ -455,7 +466,7 @@ mod tests {
             }
             let inside = |k: &usize| inside_ellipse(&d, moved[*k].predicted);
             let every: Vec<usize> = (0..moved.len()).filter(inside).collect();
-            let near: Vec<usize> = TracksByColumn::of(&moved).near(&d).into_iter().filter(inside).collect();
+            let near: Vec<usize> = NearbyTracks::of(&moved).near(&d).into_iter().filter(inside).collect();
             found += every.len();
             assert_eq!(near, every, "object {i}");
         }

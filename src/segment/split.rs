@@ -131,16 +131,11 @@ fn find_components(mask: &[bool], width: usize, height: usize, visited: &mut [u3
     let grid = Grid::new(width, height);
     let mut pixels: Vec<u32> = Vec::new();
     let mut components = Vec::new();
-    const RUN: usize = 64;
-    // Most of a frame is background: runs of 64 mask cells are first tested as a whole (one
-    // vectorised OR), and only runs with foreground are walked.
-    let starts = mask
-        .chunks(RUN)
-        .enumerate()
-        .filter(|(_, run)| run.iter().fold(false, |any, &m| any | m))
-        .flat_map(|(k, run)| k * RUN..k * RUN + run.len());
+    // Most of a frame is background: only the foreground runs are walked, in raster order.
+    let runs = super::label::Runs::of(mask, width, height, true);
+    let starts = (runs.spans.iter()).flat_map(|&(y, s, e)| y * width + s..y * width + e);
     for start in starts {
-        if !mask[start] || visited[start] != 0 {
+        if visited[start] != 0 {
             continue;
         }
         let first = pixels.len();
