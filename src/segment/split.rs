@@ -198,7 +198,10 @@ fn split_component(
         distance
     };
     let Some(cues) = intensity else {
-        let (seeds, _) = h_maxima_seeds(&distance, mask, width, height, seed_h_px);
+        let (seeds, count) = h_maxima_seeds(&distance, mask, width, height, seed_h_px);
+        if count <= 1 {
+            return watershed::flood_one_label(mask, seeds, width, height);
+        }
         let levels: Vec<u32> = squared.iter().map(|&d| d.min(u32::MAX as f64 / 2.0) as u32).collect();
         return watershed::seeded_watershed(&levels, mask, &seeds, width, height);
     };
@@ -320,7 +323,10 @@ fn flood_on_landscape(
     seed_h_px: f64,
 ) -> Vec<u32> {
     let (landscape, h) = intensity_weighted(distance, lit, mask, seed_h_px);
-    let (seeds, _) = h_maxima_seeds(&landscape, mask, width, height, h);
+    let (seeds, count) = h_maxima_seeds(&landscape, mask, width, height, h);
+    if count <= 1 {
+        return watershed::flood_one_label(mask, seeds, width, height);
+    }
     let mut levels = vec![0u32; landscape.len()];
     super::hmaxima::quantise_levels(&landscape, super::hmaxima::LEVELS_PER_UNIT as f32, 0.0, &mut levels);
     watershed::seeded_watershed(&levels, mask, &seeds, width, height)
