@@ -111,32 +111,24 @@ pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f
         for i in (0..inside.start).chain(inside.end..band + 2 * r) {
             padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
         }
-        filter_padded_row(&mut with_g0[j * band..(j + 1) * band], &padded, &g0);
-        filter_padded_row(&mut with_g2[j * band..(j + 1) * band], &padded, &g2);
+        let (g0_row, g2_row) = (
+            &mut with_g0[j * band..(j + 1) * band],
+            &mut with_g2[j * band..(j + 1) * band],
+        );
+        filter_steps_pair(g0_row, g2_row, &padded, 1, &g0, &g2);
     }
-    // The column passes over the whole box (vectorised), then the pixels read from it.
+    // The two column passes and their sum over the whole box (vectorised), then the pixels
+    // read from it.
     let box_rows = y1 - y0;
-    let (mut across_g2, mut across_g0) = (vec![0f32; box_rows * band], vec![0f32; box_rows * band]);
-    for j in 0..box_rows {
-        filter_steps(
-            &mut across_g2[j * band..(j + 1) * band],
-            &with_g2[j * band..],
-            band,
-            &g0,
-        );
-        filter_steps(
-            &mut across_g0[j * band..(j + 1) * band],
-            &with_g0[j * band..],
-            band,
-            &g2,
-        );
+    let mut laplacian = vec![0f32; box_rows * band];
+    for (j, row) in laplacian.chunks_exact_mut(band).enumerate() {
+        filter_steps_sum(row, &with_g2[j * band..], &with_g0[j * band..], band, &g0, &g2);
     }
     pixels
         .iter()
         .map(|&p| {
             let (x, y) = column_row(p);
-            let i = (y - y0) * band + x - x0;
-            across_g2[i] + across_g0[i]
+            laplacian[(y - y0) * band + x - x0]
         })
         .collect()
 }
@@ -230,7 +222,7 @@ crate::multiversioned! {
     /// least as long as `out`): one output row of a separable filter from the rows (column
     /// pass) or shifted copies of one row (row pass) under its taps. See [`filter_lines`].
     fn filter_rows / filter_rows_with(out: &mut [f32], rows: &[&[f32]], kernel: &[f32]) {
-        filter_lines(out, |k| rows[k], kernel);
+        filter_lines(out.len(), |_, k| rows[k], [kernel], |x, [sums]| out[x..x + sums.len()].copy_from_slice(sums));
     }
 }
 
@@ -241,41 +233,90 @@ crate::multiversioned! {
     /// column pass away from its borders), with no list of rows to build per output row.
     /// The same sums in the same order as [`filter_rows`], so the same bits.
     fn filter_steps / filter_steps_with(out: &mut [f32], src: &[f32], step: usize, kernel: &[f32]) {
-        filter_lines(out, |k| &src[k * step..], kernel);
+        let line = |_, k: usize| &src[k * step..];
+        filter_lines(out.len(), line, [kernel], |x, [sums]| out[x..x + sums.len()].copy_from_slice(sums));
     }
 }
 
-/// `out[x]` = Σₖ `kernel[k]` · `line(k)[x]`, taps added in order, every pixel's sum held in
-/// registers over all taps: blocks of [`BLOCK`] pixels, then 16 and 8 (a small object's box
-/// is narrower than a block), then the last few pixels as one block of 8 with its unused
-/// lanes zero (the same sums for the lanes that count; a store per tap there made the last
-/// pixels of each short row cost as much as the rest). Inlined into each instruction level's
-/// copy of its callers.
+crate::multiversioned! {
+    /// [`filter_steps`] of one `src` with two kernels at once (`out_a` with `kernel_a`, `out_b`
+    /// with `kernel_b`, both of one length): each value under the taps is loaded once for both
+    /// sums. The same sums as two separate calls, so the same bits.
+    fn filter_steps_pair / filter_steps_pair_with(
+        out_a: &mut [f32],
+        out_b: &mut [f32],
+        src: &[f32],
+        step: usize,
+        kernel_a: &[f32],
+        kernel_b: &[f32],
+    ) {
+        let line = |_, k: usize| &src[k * step..];
+        filter_lines(out_a.len(), line, [kernel_a, kernel_b], |x, [a, b]| {
+            out_a[x..x + a.len()].copy_from_slice(a);
+            out_b[x..x + b.len()].copy_from_slice(b);
+        });
+    }
+}
+
+crate::multiversioned! {
+    /// `out` = [`filter_steps`] of `src_a` with `kernel_a` + [`filter_steps`] of `src_b` with
+    /// `kernel_b` (kernels of one length): the two column passes of a Laplacian of Gaussian
+    /// and their sum in one pass, without the two intermediate images. Each filtered value is
+    /// the same sum as on its own, and the two are added last, so the same bits.
+    fn filter_steps_sum / filter_steps_sum_with(
+        out: &mut [f32],
+        src_a: &[f32],
+        src_b: &[f32],
+        step: usize,
+        kernel_a: &[f32],
+        kernel_b: &[f32],
+    ) {
+        let line = |m: usize, k: usize| if m == 0 { &src_a[k * step..] } else { &src_b[k * step..] };
+        filter_lines(out.len(), line, [kernel_a, kernel_b], |x, [a, b]| {
+            out[x..x + a.len()].iter_mut().zip(a.iter().zip(b)).for_each(|(o, (&a, &b))| *o = a + b);
+        });
+    }
+}
+
+/// For `M` filters of one length at once, the sums `Σₖ kernels[m][k] · line(m, k)[x]` for
+/// `x` in `0..n`, taps added in order, every pixel's sums held in registers over all taps:
+/// blocks of [`BLOCK`] pixels, then 16 and 8 (a small object's box is narrower than a block),
+/// then the last few pixels as one block of 8 with its unused lanes zero (the same sums for
+/// the lanes that count; a store per tap there made the last pixels of each short row cost as
+/// much as the rest). Each block's sums go to `emit(x, sums)`, one slice per filter as long as
+/// the pixels they stand for. Inlined into each instruction level's copy of its callers.
 #[inline(always)]
-fn filter_lines<'a>(out: &mut [f32], line: impl Fn(usize) -> &'a [f32], kernel: &[f32]) {
-    let n = out.len();
+fn filter_lines<'a, const M: usize>(
+    n: usize,
+    line: impl Fn(usize, usize) -> &'a [f32],
+    kernels: [&[f32]; M],
+    mut emit: impl FnMut(usize, [&[f32]; M]),
+) {
     let mut x = 0;
     while x + BLOCK <= n {
-        filter_block::<BLOCK>(out, &line, kernel, x);
+        let sums = filter_block::<BLOCK, M>(&|m, k| &line(m, k)[x..x + BLOCK], kernels);
+        emit(x, std::array::from_fn(|m| &sums[m][..]));
         x += BLOCK;
     }
     while x + 16 <= n {
-        filter_block::<16>(out, &line, kernel, x);
+        let sums = filter_block::<16, M>(&|m, k| &line(m, k)[x..x + 16], kernels);
+        emit(x, std::array::from_fn(|m| &sums[m][..]));
         x += 16;
     }
     while x + 8 <= n {
-        filter_block::<8>(out, &line, kernel, x);
+        let sums = filter_block::<8, M>(&|m, k| &line(m, k)[x..x + 8], kernels);
+        emit(x, std::array::from_fn(|m| &sums[m][..]));
         x += 8;
     }
     let rest = n - x;
     if rest == 0 {
         return;
     }
-    let block = |k: usize| -> [f32; 8] {
-        let l = line(k);
+    let tail = |m: usize, k: usize| -> [f32; 8] {
+        let l = line(m, k);
         match l.get(x..x + 8) {
-            // The line runs on past `out` (a column pass away from the last rows): its next
-            // values fill the unused lanes, whose sums are dropped.
+            // The line runs on past the output (a column pass away from the last rows): its
+            // next values fill the unused lanes, whose sums are dropped.
             Some(whole) => whole.try_into().expect("block"),
             None => {
                 let mut values = [0f32; 8];
@@ -284,30 +325,44 @@ fn filter_lines<'a>(out: &mut [f32], line: impl Fn(usize) -> &'a [f32], kernel: 
             }
         }
     };
-    let mut acc = [0f32; 8];
-    for (k, &weight) in kernel.iter().enumerate() {
-        let values = block(k);
-        if k == 0 {
-            acc.iter_mut().zip(values).for_each(|(a, v)| *a = weight * v);
-        } else {
-            acc.iter_mut().zip(values).for_each(|(a, v)| *a += weight * v);
-        }
-    }
-    out[x..n].copy_from_slice(&acc[..rest]);
+    let sums = filter_block_of::<8, M>(tail, kernels);
+    emit(x, std::array::from_fn(|m| &sums[m][..rest]));
 }
 
-/// `out[x..x + N]` of [`filter_lines`], summed in registers over all taps in tap order.
+/// The sums of [`filter_lines`] over one block of `N` pixels, `block(m, k)` being the values
+/// under tap `k` of filter `m`.
 #[inline(always)]
-fn filter_block<'a, const N: usize>(out: &mut [f32], line: &impl Fn(usize) -> &'a [f32], kernel: &[f32], x: usize) {
-    let block = |k: usize| -> [f32; N] { line(k)[x..x + N].try_into().expect("block") };
-    let mut acc = [0f32; N];
-    if let Some(&weight) = kernel.first() {
-        acc.iter_mut().zip(block(0)).for_each(|(a, v)| *a = weight * v);
+fn filter_block<'a, const N: usize, const M: usize>(
+    block: &impl Fn(usize, usize) -> &'a [f32],
+    kernels: [&[f32]; M],
+) -> [[f32; N]; M] {
+    filter_block_of::<N, M>(|m, k| block(m, k).try_into().expect("block"), kernels)
+}
+
+/// [`filter_block`] from blocks given by value.
+#[inline(always)]
+fn filter_block_of<const N: usize, const M: usize>(
+    block: impl Fn(usize, usize) -> [f32; N],
+    kernels: [&[f32]; M],
+) -> [[f32; N]; M] {
+    let taps = kernels[0].len();
+    // All of one length, so that the taps below are read without bounds checks.
+    let kernels = kernels.map(|kernel| &kernel[..taps]);
+    let mut acc = [[0f32; N]; M];
+    if taps == 0 {
+        return acc;
     }
-    for (k, &weight) in kernel.iter().enumerate().skip(1) {
-        acc.iter_mut().zip(block(k)).for_each(|(a, v)| *a += weight * v);
+    for m in 0..M {
+        let weight = kernels[m][0];
+        acc[m].iter_mut().zip(block(m, 0)).for_each(|(a, v)| *a = weight * v);
     }
-    out[x..x + N].copy_from_slice(&acc);
+    for k in 1..taps {
+        for m in 0..M {
+            let weight = kernels[m][k];
+            acc[m].iter_mut().zip(block(m, k)).for_each(|(a, v)| *a += weight * v);
+        }
+    }
+    acc
 }
 
 /// `out` = `kernel` (odd length, centred) over `padded`, a row with `kernel.len() / 2`
@@ -358,29 +413,42 @@ mod tests {
     fn rows_a_step_apart_filter_as_the_definition_on_every_level() {
         // Source: the definition of the filter (each pixel's taps summed in tap order) and
         // IEEE 754 lane-by-lane rounding (crate::simd): for steps 1 (a padded row) and 75 (a
-        // column pass over rows 75 wide), widths 1..=70, every level equals it bit for bit.
-        let kernel = gaussian_derivative_kernel(1.3, 0);
+        // column pass over rows 75 wide), widths 1..=70, every level equals it bit for bit;
+        // so do the two filters of one source at once (`filter_steps_pair`) and the sum of
+        // two sources' filters (`filter_steps_sum`, the two definitions added last).
+        let (g0, g2) = (gaussian_derivative_kernel(1.3, 0), gaussian_derivative_kernel(1.3, 2));
+        let source = |seed: usize| -> Vec<f32> {
+            (0..75 * (g0.len() + 1))
+                .map(|i| ((i * 7919 + seed) % 211) as f32 * 0.29 - 13.0)
+                .collect()
+        };
+        let (src, other) = (source(0), source(57));
+        let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
         for step in [1usize, 75] {
-            let src: Vec<f32> = (0..75 * (kernel.len() + 1))
-                .map(|i| ((i * 7919) % 211) as f32 * 0.29 - 13.0)
-                .collect();
-            for n in 1..=70usize {
-                let expected: Vec<f32> = (0..n)
+            let definition = |src: &[f32], kernel: &[f32], n: usize| -> Vec<f32> {
+                (0..n)
                     .map(|x| {
-                        kernel
-                            .iter()
-                            .enumerate()
-                            .skip(1)
-                            .fold(kernel[0] * src[x], |s, (k, &w)| s + w * src[k * step + x])
+                        let taps = kernel.iter().enumerate().skip(1);
+                        taps.fold(kernel[0] * src[x], |s, (k, &w)| s + w * src[k * step + x])
                     })
+                    .collect()
+            };
+            for n in 1..=70usize {
+                let expected = definition(&src, &g0, n);
+                let expected_g2 = definition(&src, &g2, n);
+                let expected_sum: Vec<f32> = (definition(&src, &g0, n).iter().zip(definition(&other, &g2, n)))
+                    .map(|(a, b)| a + b)
                     .collect();
                 for level in crate::simd::levels() {
+                    let context = format!("{level:?} step {step} width {n}");
                     let mut got = vec![f32::NAN; n];
-                    filter_steps_with(level, &mut got, &src, step, &kernel);
-                    assert!(
-                        got.iter().zip(&expected).all(|(a, b)| a.to_bits() == b.to_bits()),
-                        "{level:?} step {step} width {n}"
-                    );
+                    filter_steps_with(level, &mut got, &src, step, &g0);
+                    assert_eq!(bits(&got), bits(&expected), "{context}");
+                    let (mut a, mut b) = (vec![f32::NAN; n], vec![f32::NAN; n]);
+                    filter_steps_pair_with(level, &mut a, &mut b, &src, step, &g0, &g2);
+                    assert_eq!((bits(&a), bits(&b)), (bits(&expected), bits(&expected_g2)), "{context}");
+                    filter_steps_sum_with(level, &mut got, &src, &other, step, &g0, &g2);
+                    assert_eq!(bits(&got), bits(&expected_sum), "{context}");
                 }
             }
         }
