@@ -352,14 +352,13 @@ fn filter_block_of<const N: usize, const M: usize>(
     if taps == 0 {
         return acc;
     }
-    for m in 0..M {
-        let weight = kernels[m][0];
-        acc[m].iter_mut().zip(block(m, 0)).for_each(|(a, v)| *a = weight * v);
+    for (m, (sums, kernel)) in acc.iter_mut().zip(kernels).enumerate() {
+        sums.iter_mut().zip(block(m, 0)).for_each(|(a, v)| *a = kernel[0] * v);
     }
+    // Tap by tap, every filter at each tap (one filter's values are loaded once for all).
     for k in 1..taps {
-        for m in 0..M {
-            let weight = kernels[m][k];
-            acc[m].iter_mut().zip(block(m, k)).for_each(|(a, v)| *a += weight * v);
+        for (m, (sums, kernel)) in acc.iter_mut().zip(kernels).enumerate() {
+            sums.iter_mut().zip(block(m, k)).for_each(|(a, v)| *a += kernel[k] * v);
         }
     }
     acc
