@@ -114,20 +114,25 @@ fn widened_range(lo: f64, hi: f64) -> (f64, f64) {
 
 crate::multiversioned! {
     /// Smallest and largest value when every value is finite; `None` when one is not or there
-    /// are none. One pass over eight lanes, so that the loop vectorises.
+    /// are none. One pass over sixteen lanes (one AVX-512 register, two AVX2), the finiteness
+    /// read from the exponent bits, so that the loop vectorises. The extremes do not depend on
+    /// the order the values are met in (only which of +0 and −0 is kept for a zero extreme
+    /// can, and the two are equal in every later comparison and difference).
     fn min_max_all_finite / min_max_all_finite_with(values: &[f32]) -> Option<(f32, f32)> {
+        const LANES: usize = 16;
+        const EXPONENT: u32 = 0x7f80_0000;
         let first = *values.first()?;
-        let (mut lo, mut hi, mut finite) = ([first; 8], [first; 8], [true; 8]);
-        let chunks = values.chunks_exact(8);
+        let (mut lo, mut hi, mut not_finite) = ([first; LANES], [first; LANES], [false; LANES]);
+        let chunks = values.chunks_exact(LANES);
         let rest = chunks.remainder();
         for chunk in chunks {
-            for k in 0..8 {
+            for k in 0..LANES {
                 lo[k] = if chunk[k] < lo[k] { chunk[k] } else { lo[k] };
                 hi[k] = if chunk[k] > hi[k] { chunk[k] } else { hi[k] };
-                finite[k] &= chunk[k].is_finite();
+                not_finite[k] |= chunk[k].to_bits() & EXPONENT == EXPONENT;
             }
         }
-        if !(finite.iter().all(|&f| f) && rest.iter().all(|v| v.is_finite())) {
+        if not_finite.iter().any(|&f| f) || !rest.iter().all(|v| v.is_finite()) {
             return None;
         }
         let lo = lo.iter().chain(rest).fold(first, |m, &v| if v < m { v } else { m });
@@ -187,11 +192,17 @@ fn count_bins_f32(values: &[f32], lo: f64, denom: f64, edges: &[f64]) -> Vec<u64
                 near |= q[0] | q[1] | q[2] | q[3];
             }
             if near & NEAR_EDGE != 0 {
-                // Move the few values near an edge from their position's bin to their own.
-                for (&b, &v) in bins.iter().zip(block).filter(|(&b, _)| b & NEAR_EDGE != 0) {
-                    let (placed, exact) = ((b & !NEAR_EDGE) as usize, exact_bin(guess(v), v, &lower));
-                    counts[exact] += 1;
-                    counts[placed] -= 1;
+                // Move the few values near an edge (a few per block) from their position's bin
+                // to their own; pieces of 64 without one are passed over by one OR each.
+                for (piece, values) in bins.chunks(64).zip(block.chunks(64)) {
+                    if piece.iter().fold(0, |any, &b| any | b) & NEAR_EDGE == 0 {
+                        continue;
+                    }
+                    for (&b, &v) in piece.iter().zip(values).filter(|(&b, _)| b & NEAR_EDGE != 0) {
+                        let (placed, exact) = ((b & !NEAR_EDGE) as usize, exact_bin(guess(v), v, &lower));
+                        counts[exact] += 1;
+                        counts[placed] -= 1;
+                    }
                 }
             }
         }
@@ -439,6 +450,32 @@ mod tests {
         assert_eq!(fast.counts.iter().sum::<u64>(), 13);
         assert_eq!(fast.centers, slow.centers);
         assert!((fast.centers[0] - (1.0 + 13.0 / 16.0)).abs() < 1e-12);
+    }
+
+    #[test]
+    fn extremes_and_finiteness_on_every_instruction_level() {
+        // Source: the definition (the smallest and largest of the values; none when one is not
+        // finite), by a plain scalar fold. Lengths around the lane count, and a non-finite
+        // value (each of +∞, −∞, NaN) at every position of a 40-value frame.
+        let mut rng = crate::numeric::Rng::new(11);
+        for n in [1usize, 7, 15, 16, 17, 31, 33, 100] {
+            let values: Vec<f32> = (0..n).map(|_| (rng.uniform() * 2000.0 - 500.0) as f32).collect();
+            let want = values.iter().copied().fold(f32::INFINITY, f32::min).to_bits();
+            let want_hi = values.iter().copied().fold(f32::NEG_INFINITY, f32::max).to_bits();
+            for level in crate::simd::levels() {
+                let (lo, hi) = min_max_all_finite_with(level, &values).unwrap();
+                assert_eq!((lo.to_bits(), hi.to_bits()), (want, want_hi), "{level:?} {n}");
+            }
+        }
+        for bad in [f32::INFINITY, f32::NEG_INFINITY, f32::NAN] {
+            for at in 0..40 {
+                let mut values: Vec<f32> = (0..40).map(|i| i as f32).collect();
+                values[at] = bad;
+                for level in crate::simd::levels() {
+                    assert_eq!(min_max_all_finite_with(level, &values), None, "{level:?} {bad} at {at}");
+                }
+            }
+        }
     }
 
     fn bimodal() -> Vec<u32> {
