@@ -225,37 +225,35 @@ fn running_extreme_down<F: Fn(f32, f32) -> f32 + Copy>(
         let y = reflect(i as isize - r as isize, h);
         &src[y * w..(y + 1) * w]
     };
-    let mut prefix = vec![0f32; m * w];
+    // Built row by row without zeroing first (these are the large allocations of a frame's
+    // background step): the prefix extremes in order, the suffix extremes last row first.
+    let mut prefix: Vec<f32> = Vec::with_capacity(m * w);
     for i in 0..m {
-        let (done, rest) = prefix.split_at_mut(i * w);
-        let out = &mut rest[..w];
         if i % k == 0 {
-            out.copy_from_slice(padded_row(i));
+            prefix.extend_from_slice(padded_row(i));
         } else {
-            let previous = &done[(i - 1) * w..];
-            for ((o, &p), &v) in out.iter_mut().zip(previous).zip(padded_row(i)) {
-                *o = pick(p, v);
+            prefix.extend_from_within((i - 1) * w..i * w);
+            for (o, &v) in prefix[i * w..].iter_mut().zip(padded_row(i)) {
+                *o = pick(*o, v);
             }
         }
     }
-    let mut suffix = vec![0f32; m * w];
-    for i in (0..m).rev() {
-        let (head, after) = suffix.split_at_mut((i + 1) * w);
-        let out = &mut head[i * w..];
+    let mut suffix_reversed: Vec<f32> = Vec::with_capacity(m * w);
+    for (j, i) in (0..m).rev().enumerate() {
         if (i + 1) % k == 0 || i + 1 == m {
-            out.copy_from_slice(padded_row(i));
+            suffix_reversed.extend_from_slice(padded_row(i));
         } else {
-            for ((o, &n), &v) in out.iter_mut().zip(&after[..w]).zip(padded_row(i)) {
-                *o = pick(n, v);
+            suffix_reversed.extend_from_within((j - 1) * w..j * w);
+            for (o, &v) in suffix_reversed[j * w..].iter_mut().zip(padded_row(i)) {
+                *o = pick(*o, v);
             }
         }
     }
-    let mut out = vec![0f32; h * w];
-    for (y, row) in out.chunks_exact_mut(w.max(1)).enumerate().take(h) {
-        let (s, p) = (&suffix[y * w..(y + 1) * w], &prefix[(y + k - 1) * w..(y + k) * w]);
-        for ((o, &a), &b) in row.iter_mut().zip(s).zip(p) {
-            *o = pick(a, b);
-        }
+    let suffix_row = |i: usize| &suffix_reversed[(m - 1 - i) * w..(m - i) * w];
+    let mut out: Vec<f32> = Vec::with_capacity(h * w);
+    for y in 0..h {
+        let (s, p) = (suffix_row(y), &prefix[(y + k - 1) * w..(y + k) * w]);
+        out.extend(s.iter().zip(p).map(|(&a, &b)| pick(a, b)));
     }
     out
 }
