@@ -366,7 +366,7 @@ fn faded_colour(track: u32, level: usize) -> u8 {
 
 /// A block-averaged frame ([`super::box_average`]) as palette grey indices.
 fn indexed_grey(averaged: &[f32], (mw, mh): (usize, usize), stretch: &DisplayRange) -> image::GrayImage {
-    let data = averaged.iter().map(|&v| stretch.level(v, (GREYS - 1) as u8)).collect();
+    let data = stretch.levels(averaged, (GREYS - 1) as u8);
     image::GrayImage::from_raw(mw as u32, mh as u32, data).expect("sized buffer")
 }
 

@@ -118,6 +118,33 @@ impl DisplayRange {
     pub fn level(&self, v: f32, top: u8) -> u8 {
         (self.unit(v) * top as f32 + 0.5) as u8
     }
+
+    /// [`DisplayRange::level`] of every value, in a loop that vectorises (the review page and
+    /// the movie map every pixel of every frame; one value at a time, the saturating
+    /// conversion and the branch kept it scalar).
+    pub fn levels(&self, values: &[f32], top: u8) -> Vec<u8> {
+        let mut out = vec![0u8; values.len()];
+        display_levels(values, self.lo, self.span, top as f32, &mut out);
+        out
+    }
+}
+
+crate::multiversioned! {
+    /// [`DisplayRange::level`] of each value for the range `lo`, `lo + span`: the same
+    /// arithmetic, with the clamp written as `max` then `min` (which also send a NaN
+    /// quotient to 0, as the saturating conversion does) and the conversion of a value
+    /// known to lie in 0.5..=`top` + 0.5 done without saturation.
+    fn display_levels / display_levels_with(values: &[f32], lo: f32, span: f32, top: f32, out: &mut [u8]) {
+        for (o, &v) in out.iter_mut().zip(values) {
+            // Not `clamp`: it keeps a NaN, and the conversion below must never see one.
+            #[allow(clippy::manual_clamp)]
+            let unit = if v.is_finite() { ((v - lo) / span).max(0.0).min(1.0) } else { 0.0 };
+            let rounded = unit * top + 0.5;
+            // SAFETY: `unit` is in 0..=1 (f32::max drops a NaN), so `rounded` is finite and
+            // within 0.5..=top + 0.5 ≤ 255.5, where truncation to u32 is defined.
+            *o = unsafe { rounded.to_int_unchecked::<u32>() } as u8;
+        }
+    }
 }
 
 /// Maps intensities to 8 bits with the [`DisplayRange`] of the values themselves.
@@ -200,6 +227,40 @@ mod tests {
             for top in [239u8, 255] {
                 let want = (range.unit(v) * top as f32).round() as u8;
                 assert_eq!(range.level(v, top), want, "{v} at {top}");
+            }
+        }
+    }
+
+    #[test]
+    fn every_level_maps_as_one_value_at_a_time() {
+        // Source: `level`, one value at a time (checked against the standard library's
+        // f32::round in the test above), for the vectorised mapping on every instruction
+        // level: random values across and beyond the range, exact halves, infinities, NaN and
+        // a range so wide that the quotient overflows.
+        let mut rng = crate::numeric::Rng::new(5);
+        for range in [
+            DisplayRange::from_values(&[0.0, 1000.0]),
+            DisplayRange::from_values(&[-3e38, 3e38]),
+        ] {
+            let mut values: Vec<f32> = (0..5000).map(|_| rng.range(-50.0, 1050.0) as f32).collect();
+            values.extend((0..=510).map(|k| k as f32 * 0.5 / 255.0 * range.span + range.lo));
+            values.extend([
+                f32::INFINITY,
+                f32::NEG_INFINITY,
+                f32::NAN,
+                3e38,
+                -3e38,
+                -0.0,
+                f32::MIN_POSITIVE,
+            ]);
+            for top in [239u8, 255] {
+                let want: Vec<u8> = values.iter().map(|&v| range.level(v, top)).collect();
+                assert_eq!(range.levels(&values, top), want, "top {top}");
+                for level in crate::simd::levels() {
+                    let mut got = vec![0u8; values.len()];
+                    display_levels_with(level, &values, range.lo, range.span, top as f32, &mut got);
+                    assert_eq!(got, want, "{level:?} top {top}");
+                }
             }
         }
     }

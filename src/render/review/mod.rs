@@ -235,7 +235,7 @@ impl ReviewEncoder {
         (factor, averaged): (usize, &[f32]),
     ) -> (Vec<u8>, Option<Vec<u8>>) {
         let (w, h) = self.size;
-        let to_grey = |values: &[f32]| -> Vec<u8> { values.iter().map(|&v| stretch.level(v, 255)).collect() };
+        let to_grey = |values: &[f32]| -> Vec<u8> { stretch.levels(values, 255) };
         let display = if factor == self.factor {
             to_grey(averaged)
         } else {
