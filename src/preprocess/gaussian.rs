@@ -453,6 +453,32 @@ mod tests {
         }
     }
 
+    #[test]
+    fn windows_and_frames_filter_as_the_definition() {
+        // Source: the definition of a separable filter with reflected borders (scipy.ndimage
+        // mode 'reflect'; tested against scipy itself in tests/reference.rs): each row's taps
+        // summed in order, then each column's. An image of one band (an object's window) and of
+        // several, bit for bit.
+        let (kx, ky) = (gaussian_kernel(1.0), gaussian_kernel(2.2));
+        let sum = |line: &dyn Fn(isize) -> f32, kernel: &[f32], at: usize| -> f32 {
+            let r = (kernel.len() / 2) as isize;
+            let taps = kernel.iter().enumerate().skip(1);
+            taps.fold(kernel[0] * line(at as isize - r), |s, (k, &w)| {
+                s + w * line(at as isize + k as isize - r)
+            })
+        };
+        for (h, w) in [(1usize, 1usize), (3, 5), (32, 20), (70, 33)] {
+            let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 31 + x * 7919) % 97) as f32 * 0.7 - 20.0);
+            let across = Image::from_shape_fn((h, w), |(y, x)| sum(&|i| image[[y, reflect(i, w)]], &kx, x));
+            let want = Image::from_shape_fn((h, w), |(y, x)| sum(&|i| across[[reflect(i, h), x]], &ky, y));
+            let got = convolve_separable(&image, &kx, &ky);
+            assert!(
+                got.iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits()),
+                "{h} x {w}"
+            );
+        }
+    }
+
     /// The filter written as its definition: each pixel's taps summed in order.
     fn tap_by_tap(padded: &[f32], kernel: &[f32], n: usize) -> Vec<f32> {
         (0..n)
