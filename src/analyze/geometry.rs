@@ -43,7 +43,7 @@ impl Lane {
             .split(',')
             .map(|s| s.trim().parse::<f64>().ok().filter(|v| v.is_finite()))
             .collect::<Option<Vec<f64>>>()
-            .ok_or(format!("{text:?}: expected two numbers A,B"))?;
+            .ok_or_else(|| format!("{text:?}: expected two numbers A,B"))?;
         match v[..] {
             [a, b] if a != b => Ok(Lane {
                 from: a.min(b) * scale,

@@ -294,7 +294,7 @@ impl Region {
                         .map(|v| v * scale)
                 })
                 .collect::<Option<Vec<f64>>>()
-                .ok_or(format!("{text:?}: coordinates must be numbers"))
+                .ok_or_else(|| format!("{text:?}: coordinates must be numbers"))
         };
         if let Some(r) = text.strip_prefix("rect:") {
             let v = numbers(r)?;

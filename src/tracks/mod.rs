@@ -226,7 +226,7 @@ pub fn read_track_rows(text: &str) -> Result<Vec<TrackRow>, String> {
         return Err("empty file".into());
     }
     let col = |name: &str| header.iter().position(|h| h == name);
-    let need = |name: &str| col(name).ok_or(format!("missing column {name} (needs track_id, frame, x, y)"));
+    let need = |name: &str| col(name).ok_or_else(|| format!("missing column {name} (needs track_id, frame, x, y)"));
     let (ti, fi, xi, yi) = (need("track_id")?, need("frame")?, need("x")?, need("y")?);
     let (pi, xu, ts) = (col("parent_id"), col("x_um"), col("time_s"));
     let mut rows = Vec::new();
@@ -240,7 +240,7 @@ pub fn read_track_rows(text: &str) -> Result<Vec<TrackRow>, String> {
             record
                 .get(i)
                 .map(str::trim)
-                .ok_or(format!("line {line}: too few columns"))
+                .ok_or_else(|| format!("line {line}: too few columns"))
         };
         let whole = |i: usize, what: &str| -> Result<u64, String> {
             cell(i)?
@@ -248,7 +248,7 @@ pub fn read_track_rows(text: &str) -> Result<Vec<TrackRow>, String> {
                 .map_err(|_| format!("line {line}: {what} is not a whole number"))
         };
         let number = |i: usize, what: &str| -> Result<f64, String> {
-            finite(cell(i)?).ok_or(format!("line {line}: {what} is not a finite number"))
+            finite(cell(i)?).ok_or_else(|| format!("line {line}: {what} is not a finite number"))
         };
         let optional = |i: Option<usize>| i.and_then(|i| record.get(i)).map(str::trim).and_then(finite);
         let id = |v: u64, what: &str| u32::try_from(v).map_err(|_| format!("line {line}: {what} is too large"));
