@@ -38,26 +38,30 @@ pub(super) fn add_dim_nuclei(
         return;
     }
     let low = low as f32;
-    let grid = Grid::new(w, h);
     clear_slivers(mask, min_area, (w, h));
-    // Read at every pixel, written at a few (see `filled`).
-    let mut region = crate::numeric::filled(mask.len(), 0u32);
-    let mut next = 0u32;
-    let mut add: Vec<usize> = Vec::new();
-    let candidate = |m: bool, v: f32| !m & (v > low);
-    for start in chunks_where(mask, values, candidate).into_iter().flatten() {
-        if !candidate(mask[start], values[start]) || region[start] != 0 {
-            continue;
+    let candidates: Vec<bool> = mask.iter().zip(values).map(|(&m, &v)| !m & (v > low)).collect();
+    let regions = Regions::of(&candidates, (w, h));
+    let runs = &regions.runs.spans;
+    let mut touches = vec![false; runs.len()];
+    for (k, &run) in runs.iter().enumerate() {
+        touches[regions.of_run[k]] |= beside_mask(mask, run, (w, h));
+    }
+    let grid = Grid::new(w, h);
+    let mut summit = vec![false; runs.len()];
+    for (k, &(y, s, e)) in runs.iter().enumerate() {
+        let id = regions.of_run[k];
+        if touches[id] && !summit[id] {
+            summit[id] = (y * w + s..y * w + e).any(|p| is_summit(p, id, &regions, values, &grid, core_radius));
         }
-        next += 1;
-        let (pixels, touches) = flood(start, next, &mut region, mask, values, low, (w, h));
-        if !touches {
-            add.extend(pixels);
-        } else if pixels
-            .iter()
-            .any(|&p| is_summit(p, next, &region, values, &grid, core_radius))
-        {
-            add.extend(pixels.into_iter().filter(|&p| !grid.neighbours8(p).any(|q| mask[q])));
+    }
+    // Decided on the mask as it was: a pixel added makes no neighbour of a later one.
+    let mut add: Vec<usize> = Vec::new();
+    for (k, &(y, s, e)) in runs.iter().enumerate() {
+        let id = regions.of_run[k];
+        if !touches[id] {
+            add.extend(y * w + s..y * w + e);
+        } else if summit[id] {
+            add.extend((y * w + s..y * w + e).filter(|&p| !grid.neighbours8(p).any(|q| mask[q])));
         }
     }
     for p in add {
@@ -81,66 +85,39 @@ fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
     }
 }
 
-/// The 64-pixel chunks of the frame where `test(mask, value)` holds for some pixel: each
-/// chunk is tested whole, branch-free (vectorised), so a scan for the few pixels that start
-/// something skips the empty stretches of a frame cheaply.
-fn chunks_where<T: Copy>(mask: &[bool], values: &[T], test: impl Fn(bool, T) -> bool) -> Vec<std::ops::Range<usize>> {
-    const CHUNK: usize = 64;
-    (0..mask.len().div_ceil(CHUNK))
-        .map(|c| c * CHUNK..((c + 1) * CHUNK).min(mask.len()))
-        .filter(|range| {
-            let (m, v) = (&mask[range.clone()], &values[range.clone()]);
-            m.iter().zip(v).fold(false, |any, (&m, &v)| any | test(m, v))
-        })
-        .collect()
+/// The 8-connected regions of a mask as runs ([`Runs`], joined by union-find): each run's
+/// region is named by one of its runs. Found by scanning rows in order rather than by flooding
+/// from pixel to pixel, whose scattered reads of frame-sized maps cost most of this step.
+struct Regions {
+    runs: Runs,
+    /// The region of each run.
+    of_run: Vec<usize>,
 }
 
-/// Labels with `id` the 8-connected region above `low` and outside `mask` that holds `start`;
-/// returns its pixels and whether it touches the mask.
-fn flood(
-    start: usize,
-    id: u32,
-    region: &mut [u32],
-    mask: &[bool],
-    values: &[f32],
-    low: f32,
-    (w, h): (usize, usize),
-) -> (Vec<usize>, bool) {
-    region[start] = id;
-    let mut touches = false;
-    let pixels = grow(start, (w, h), |q| {
-        touches |= mask[q];
-        let take = region[q] == 0 && !mask[q] && values[q] > low;
-        if take {
-            region[q] = id;
-        }
-        take
-    });
-    (pixels, touches)
-}
-
-/// The 8-connected pixels reached from `start` through pixels that `take` accepts, `start`
-/// first. `take` is asked for every neighbour reached and must mark what it accepts, so that
-/// it refuses the same pixel when asked again.
-fn grow(start: usize, (w, h): (usize, usize), mut take: impl FnMut(usize) -> bool) -> Vec<usize> {
-    let grid = Grid::new(w, h);
-    let mut pixels = vec![start];
-    let mut k = 0;
-    while k < pixels.len() {
-        let p = pixels[k];
-        k += 1;
-        for q in grid.neighbours8(p) {
-            if take(q) {
-                pixels.push(q);
-            }
-        }
+impl Regions {
+    fn of(mask: &[bool], (w, h): (usize, usize)) -> Regions {
+        let runs = Runs::of(mask, w, h, true);
+        let mut sets = runs.joined(Connectivity::Eight);
+        let of_run = (0..runs.len()).map(|k| sets.find(k)).collect();
+        Regions { runs, of_run }
     }
-    pixels
+
+    /// The region holding the pixel at column `x`, row `y`, if any.
+    fn at(&self, x: usize, y: usize) -> Option<usize> {
+        self.runs.run_at(x, y).map(|k| self.of_run[k])
+    }
+}
+
+/// Whether the run `(y, s, e)` has a pixel of `mask` among its 8-neighbours.
+fn beside_mask(mask: &[bool], (y, s, e): (usize, usize, usize), (w, h): (usize, usize)) -> bool {
+    let (from, to) = (s.saturating_sub(1), (e + 1).min(w));
+    let row_has = |r: usize| mask[r * w + from..r * w + to].iter().any(|&m| m);
+    (y > 0 && row_has(y - 1)) || (y + 1 < h && row_has(y + 1)) || mask[y * w + from] || mask[y * w + to - 1]
 }
 
 /// Whether pixel `p` of region `id` is a local maximum (no 8-neighbour higher) with every
 /// pixel within `radius` of it inside the image and the region.
-fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], grid: &Grid, radius: f64) -> bool {
+fn is_summit(p: usize, id: usize, regions: &Regions, values: &[f32], grid: &Grid, radius: f64) -> bool {
     let (w, h) = (grid.width, grid.height);
     if grid.neighbours8(p).any(|q| values[q] > values[p]) {
         return false;
@@ -157,7 +134,7 @@ fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], grid: &Grid, rad
             if nx < 0 || ny < 0 || nx >= w as isize || ny >= h as isize {
                 return false;
             }
-            if region[ny as usize * w + nx as usize] != id {
+            if regions.at(nx as usize, ny as usize) != Some(id) {
                 return false;
             }
         }
@@ -169,15 +146,17 @@ fn is_summit(p: usize, id: u32, region: &[u32], values: &[f32], grid: &Grid, rad
 mod tests {
     use super::*;
 
-    /// A 9 x 9 region `1` with a single summit at the centre (values fall with the distance
-    /// from it), where the pixels for which `outside(x, y)` holds belong to region 0.
+    /// A 9 x 9 region with a single summit at the centre (values fall with the distance from
+    /// it), less the pixels for which `outside(x, y)` holds.
     fn summit_test(outside: impl Fn(usize, usize) -> bool) -> bool {
         let (w, h) = (9, 9);
         let values: Vec<f32> = (0..w * h)
             .map(|p| 100.0 - ((p % w) as f32 - 4.0).abs() - ((p / w) as f32 - 4.0).abs())
             .collect();
-        let region: Vec<u32> = (0..w * h).map(|p| u32::from(!outside(p % w, p / w))).collect();
-        is_summit(4 * w + 4, 1, &region, &values, &Grid::new(w, h), 2.5)
+        let inside: Vec<bool> = (0..w * h).map(|p| !outside(p % w, p / w)).collect();
+        let regions = Regions::of(&inside, (w, h));
+        let id = regions.at(4, 4).expect("the centre is inside");
+        is_summit(4 * w + 4, id, &regions, &values, &Grid::new(w, h), 2.5)
     }
 
     #[test]

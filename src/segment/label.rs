@@ -78,6 +78,15 @@ impl Runs {
         self.spans.is_empty()
     }
 
+    /// The run holding the pixel at column `x`, row `y`, if any (a binary search of the row's
+    /// runs).
+    pub fn run_at(&self, x: usize, y: usize) -> Option<usize> {
+        let row = *self.row_start.get(y)?..*self.row_start.get(y + 1)?;
+        let after = self.spans[row.clone()].partition_point(|&(_, s, _)| s <= x);
+        let k = row.start + after.checked_sub(1)?;
+        (x < self.spans[k].2).then_some(k)
+    }
+
     /// The runs grouped into regions: run `k`'s region is the set of `k`.
     pub fn joined(&self, connectivity: Connectivity) -> crate::numeric::DisjointSets {
         // A run of the row above touches columns s..e of this row when it reaches past s
@@ -211,7 +220,8 @@ mod tests {
     fn joined_runs_are_the_connected_regions() {
         // Source: the definition of 4- and 8-connectivity, by a plain flood: for random masks
         // (rows wider than the 32-pixel skip, densities from sparse to dense), two pixels share
-        // a run set exactly when the flood puts them in one region, for both values.
+        // a run set exactly when the flood puts them in one region, for both values; and the
+        // run found at a pixel is the one that holds it (none off the value).
         let mut rng = crate::numeric::Rng::new(5);
         let (w, h) = (75, 31);
         for density in [0.05, 0.3, 0.5, 0.8] {
@@ -224,6 +234,11 @@ mod tests {
                     for (k, &(y, s, e)) in runs.spans.iter().enumerate() {
                         let root = sets.find(k);
                         (s..e).for_each(|x| root_of[y * w + x] = root);
+                    }
+                    // Each pixel's run by binary search, as the runs themselves place it.
+                    for p in 0..mask.len() {
+                        let found = runs.run_at(p % w, p / w).map(|k| sets.find(k));
+                        assert_eq!(found, (mask[p] == value).then_some(root_of[p]), "pixel {p}");
                     }
                     let want = flooded(&mask, w, h, value, connectivity == Connectivity::Eight);
                     let mut pairs = std::collections::HashMap::new();
