@@ -90,7 +90,8 @@ pub(crate) fn split_touching_with_pixels(
     distance_smoothing_px: f64,
     intensity: Option<&IntensityCues>,
 ) -> (Vec<u32>, Vec<u32>) {
-    let mut labels = vec![0u32; mask.len()];
+    // Read before it is written (as the component search's marks): see `filled`.
+    let mut labels = crate::numeric::filled(mask.len(), 0u32);
     let (pixels, components) = find_components(mask, width, height, &mut labels);
     let pad = if distance_smoothing_px > 0.0 {
         gaussian_radius(distance_smoothing_px as f32).max(1)
