@@ -467,7 +467,7 @@ mod tests {
                 s + w * line(at as isize + k as isize - r)
             })
         };
-        for (h, w) in [(1usize, 1usize), (3, 5), (32, 20), (70, 33)] {
+        for (h, w) in [(1usize, 1usize), (3, 5), (4, 9), (2, 10), (32, 20), (70, 33)] {
             let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 31 + x * 7919) % 97) as f32 * 0.7 - 20.0);
             let across = Image::from_shape_fn((h, w), |(y, x)| sum(&|i| image[[y, reflect(i, w)]], &kx, x));
             let want = Image::from_shape_fn((h, w), |(y, x)| sum(&|i| across[[reflect(i, h), x]], &ky, y));
