@@ -53,8 +53,9 @@ impl PairCorrelation {
     ///
     /// The candidates within reach come from a k-d tree (a radius a millionth wider than the
     /// reach, so that rounding in the squared distance drops no pair the distance below
-    /// keeps; unsorted, as they are put in index order anyway), so the work grows with the number of points times their neighbours within
-    /// reach, not with the square of the points; each point's partners are then taken in
+    /// keeps; unsorted, as they are put in index order anyway), so the work grows with the
+    /// number of points times their neighbours within reach, not with the square of the
+    /// points; each point's partners are then taken in
     /// index order, the order of the plain double loop, so the sums are the same to the last
     /// bit. Frames with a point that is not finite compare every pair.
     pub fn add_frame(&mut self, positions: &[[f64; 2]], vectors: &[[f64; 2]]) {

@@ -111,17 +111,11 @@ impl DisplayRange {
         }
     }
 
-    /// `v` as a display level 0..=`top`: [`DisplayRange::unit`] scaled and rounded half up by
-    /// conversion (a C library `roundf` call per pixel otherwise, ~2% of a default run). Equal
-    /// to `round` for these non-negative values but one: 0.5 − 2⁻²⁵, the largest `f32` below a
-    /// half, which `+ 0.5` rounds up to 1.
-    pub fn level(&self, v: f32, top: u8) -> u8 {
-        (self.unit(v) * top as f32 + 0.5) as u8
-    }
-
-    /// [`DisplayRange::level`] of every value, in a loop that vectorises (the review page and
-    /// the movie map every pixel of every frame; one value at a time, the saturating
-    /// conversion and the branch kept it scalar).
+    /// Each value as a display level 0..=`top`: [`DisplayRange::unit`] scaled and rounded
+    /// half up by conversion (a C library `roundf` call per pixel otherwise, ~2% of a default
+    /// run), in a loop that vectorises (the review page and the movie map every pixel of every
+    /// frame). Equal to `round` for these non-negative values but one: 0.5 − 2⁻²⁵, the largest
+    /// `f32` below a half, which `+ 0.5` rounds up to 1.
     pub fn levels(&self, values: &[f32], top: u8) -> Vec<u8> {
         let mut out = vec![0u8; values.len()];
         display_levels(values, self.lo, self.span, top as f32, &mut out);
@@ -130,10 +124,10 @@ impl DisplayRange {
 }
 
 crate::multiversioned! {
-    /// [`DisplayRange::level`] of each value for the range `lo`, `lo + span`: the same
-    /// arithmetic, with the clamp written as `max` then `min` (which also send a NaN
-    /// quotient to 0, as the saturating conversion does) and the conversion of a value
-    /// known to lie in 0.5..=`top` + 0.5 done without saturation.
+    /// [`DisplayRange::levels`] for the range `lo`, `lo + span`: [`DisplayRange::unit`] with
+    /// the clamp written as `max` then `min` (which also send a NaN quotient to 0, as a
+    /// saturating conversion would), then the conversion of a value known to lie in
+    /// 0.5..=`top` + 0.5 done without saturation (the saturating one kept the loop scalar).
     fn display_levels / display_levels_with(values: &[f32], lo: f32, span: f32, top: f32, out: &mut [u8]) {
         for (o, &v) in out.iter_mut().zip(values) {
             // Not `clamp`: it keeps a NaN, and the conversion below must never see one.
@@ -218,25 +212,26 @@ mod tests {
     #[test]
     fn display_levels_round_as_the_standard_library_does() {
         // Source: f32::round (half away from zero) from Rust's standard library, against the
-        // conversion `level` uses, on 200 000 values across the range and on exact halves.
+        // conversion `levels` uses, on 200 000 values across the range and on exact halves.
         let range = DisplayRange::from_values(&[0.0, 1000.0]);
         let mut rng = crate::numeric::Rng::new(3);
         let values = (0..200_000).map(|_| rng.range(-50.0, 1050.0) as f32);
         let halves = (0..=510).map(|k| k as f32 * 0.5 / 255.0 * range.span + range.lo);
-        for v in values.chain(halves) {
-            for top in [239u8, 255] {
+        let values: Vec<f32> = values.chain(halves).collect();
+        for top in [239u8, 255] {
+            for (&v, got) in values.iter().zip(range.levels(&values, top)) {
                 let want = (range.unit(v) * top as f32).round() as u8;
-                assert_eq!(range.level(v, top), want, "{v} at {top}");
+                assert_eq!(got, want, "{v} at {top}");
             }
         }
     }
 
     #[test]
-    fn every_level_maps_as_one_value_at_a_time() {
-        // Source: `level`, one value at a time (checked against the standard library's
-        // f32::round in the test above), for the vectorised mapping on every instruction
-        // level: random values across and beyond the range, exact halves, infinities, NaN and
-        // a range so wide that the quotient overflows.
+    fn every_instruction_level_maps_as_the_standard_rounding() {
+        // Source: f32::round (half away from zero) from Rust's standard library, of
+        // `unit` scaled, one value at a time, for the mapping on every instruction level:
+        // random values across and beyond the range, exact halves, infinities, NaN and a range
+        // so wide that the quotient overflows.
         let mut rng = crate::numeric::Rng::new(5);
         for range in [
             DisplayRange::from_values(&[0.0, 1000.0]),
@@ -254,7 +249,9 @@ mod tests {
                 f32::MIN_POSITIVE,
             ]);
             for top in [239u8, 255] {
-                let want: Vec<u8> = values.iter().map(|&v| range.level(v, top)).collect();
+                let want: Vec<u8> = (values.iter())
+                    .map(|&v| (range.unit(v) * top as f32).round() as u8)
+                    .collect();
                 assert_eq!(range.levels(&values, top), want, "top {top}");
                 for level in crate::simd::levels() {
                     let mut got = vec![0u8; values.len()];

@@ -200,11 +200,8 @@ fn split_component(
     };
     let Some(cues) = intensity else {
         let (seeds, count) = h_maxima_seeds(&distance, mask, width, height, seed_h_px);
-        if count <= 1 {
-            return watershed::flood_one_label(mask, seeds, width, height);
-        }
-        let levels: Vec<u32> = squared.iter().map(|&d| d.min(u32::MAX as f64 / 2.0) as u32).collect();
-        return watershed::seeded_watershed(&levels, mask, &seeds, width, height);
+        let levels = || squared.iter().map(|&d| d.min(u32::MAX as f64 / 2.0) as u32).collect();
+        return watershed::flood_seeds(mask, seeds, count, (width, height), levels);
     };
     let lit = Lit::of(&cues.values, mask, cues.noise);
     let labels = flood_on_landscape(&distance, &lit, mask, (width, height), seed_h_px);
@@ -325,12 +322,11 @@ fn flood_on_landscape(
 ) -> Vec<u32> {
     let (landscape, h) = intensity_weighted(distance, lit, mask, seed_h_px);
     let (seeds, count) = h_maxima_seeds(&landscape, mask, width, height, h);
-    if count <= 1 {
-        return watershed::flood_one_label(mask, seeds, width, height);
-    }
-    let mut levels = vec![0u32; landscape.len()];
-    super::hmaxima::quantise_levels(&landscape, super::hmaxima::LEVELS_PER_UNIT as f32, 0.0, &mut levels);
-    watershed::seeded_watershed(&levels, mask, &seeds, width, height)
+    watershed::flood_seeds(mask, seeds, count, (width, height), || {
+        let mut levels = vec![0u32; landscape.len()];
+        super::hmaxima::quantise_levels(&landscape, super::hmaxima::LEVELS_PER_UNIT as f32, 0.0, &mut levels);
+        levels
+    })
 }
 
 /// What the intensity says about where nuclei are, for the whole frame: the prepared frame,

@@ -43,12 +43,28 @@ pub fn seeded_watershed(levels: &[u32], mask: &[bool], seeds: &[u32], width: usi
     labels
 }
 
-/// What [`seeded_watershed`] returns when the seeds carry one label or none, without levels
-/// or a queue: every mask pixel 4-connected to a seed takes the seed's label (pixels the
-/// flooding cannot reach stay 0). With a single label the order of flooding decides nothing,
-/// so the same labels come out (tested against [`seeded_watershed`]). Most components of a
-/// frame are one nucleus with one seed: this is their common case.
-pub fn flood_one_label(mask: &[bool], seeds: Vec<u32>, width: usize, height: usize) -> Vec<u32> {
+/// [`seeded_watershed`] from seeds carrying `count` labels, its levels made by `levels` only
+/// when there are two labels or more: with one or none, the order of flooding decides
+/// nothing, and a plain 4-connected fill from the seeds gives the same labels without levels
+/// or a queue. Most components of a frame are one nucleus with one seed.
+pub fn flood_seeds(
+    mask: &[bool],
+    seeds: Vec<u32>,
+    count: u32,
+    (width, height): (usize, usize),
+    levels: impl FnOnce() -> Vec<u32>,
+) -> Vec<u32> {
+    if count <= 1 {
+        return flood_one_label(mask, seeds, width, height);
+    }
+    seeded_watershed(&levels(), mask, &seeds, width, height)
+}
+
+/// What [`seeded_watershed`] returns when the seeds carry one label or none: every mask pixel
+/// 4-connected to a seed takes the seed's label (pixels the flooding cannot reach stay 0).
+/// With a single label the order of flooding decides nothing, so the same labels come out
+/// (tested against [`seeded_watershed`]).
+fn flood_one_label(mask: &[bool], seeds: Vec<u32>, width: usize, height: usize) -> Vec<u32> {
     let grid = Grid::new(width, height);
     let mut labels = seeds;
     let mut stack: Vec<u32> = (0..labels.len() as u32).filter(|&p| labels[p as usize] != 0).collect();
