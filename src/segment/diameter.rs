@@ -154,10 +154,10 @@ fn keep_strongest(
         let line = if level == 0 && rw >= w {
             &line[..w]
         } else {
-            spread
-                .iter_mut()
-                .enumerate()
-                .for_each(|(x, v)| *v = line[(x >> level).min(rw - 1)]);
+            // Pixel x reads block x >> level: blocks of 2^level pixels (the last one cut).
+            for (block, &v) in spread.chunks_mut(1 << level).zip(line) {
+                block.fill(v);
+            }
             &spread
         };
         keep_strongest_in_row(line, norm, sigma, noise, best, best_sigma, best_noise);
@@ -423,13 +423,23 @@ fn bin(image: &Image, factor: usize) -> Image {
     }
     let (h, w) = image.dim();
     let (bh, bw) = (h.div_ceil(factor), w.div_ceil(factor));
-    let mut sum = Image::zeros((bh, bw));
-    let mut count = Image::zeros((bh, bw));
-    for ((y, x), &v) in image.indexed_iter() {
-        sum[[y / factor, x / factor]] += v;
-        count[[y / factor, x / factor]] += 1.0;
+    let standard = image.as_standard_layout();
+    let values = standard.as_slice().expect("standard layout");
+    let mut out = vec![0f32; bh * bw];
+    // Each block's values are added row by row, left to right: raster order.
+    for (sums, rows) in out.chunks_exact_mut(bw).zip(values.chunks(factor * w)) {
+        for row in rows.chunks_exact(w) {
+            for (sum, block) in sums.iter_mut().zip(row.chunks(factor)) {
+                *sum = block.iter().fold(*sum, |s, &v| s + v);
+            }
+        }
+        let block_rows = rows.len() / w;
+        for (bx, sum) in sums.iter_mut().enumerate() {
+            let block_columns = factor.min(w - bx * factor);
+            *sum /= (block_rows * block_columns) as f32;
+        }
     }
-    sum / count
+    Image::from_shape_vec((bh, bw), out).expect("sized buffer")
 }
 
 /// Positive local maxima of the best response, each over a window of radius its own selected
@@ -437,23 +447,41 @@ fn bin(image: &Image, factor: usize) -> Image {
 /// of its own (ties: the first in raster order wins).
 fn local_maxima(response: &Image, sigma: &Image) -> Vec<(usize, usize)> {
     let (h, w) = response.dim();
+    let values = response.as_slice().expect("standard layout");
     let mut peaks = Vec::new();
     for y in 0..h {
         for x in 0..w {
-            let v = response[[y, x]];
+            let v = values[y * w + x];
             if v.is_nan() || v <= 0.0 {
                 continue;
             }
             // The 3 x 3 neighbourhood first: it lies inside every window and rules out most
             // pixels in a few comparisons.
+            if beaten_by_a_neighbour(values, (w, h), (y, x)) {
+                continue;
+            }
             let r = (sigma[[y, x]].round() as usize).max(3);
-            if beaten_within(response, (y, x), 1) || beaten_within(response, (y, x), r) {
+            if beaten_within(response, (y, x), r) {
                 continue;
             }
             peaks.push((y, x));
         }
     }
     peaks
+}
+
+/// [`beaten_within`] at radius 1, on the raw values of a `w` x `h` image: the rows above and
+/// below and the pixel's row, each as a slice of up to three values.
+fn beaten_by_a_neighbour(values: &[f32], (w, h): (usize, usize), (y, x): (usize, usize)) -> bool {
+    let v = values[y * w + x];
+    let (x0, x1) = (x.saturating_sub(1), (x + 1).min(w - 1));
+    let beats_at = |yy: usize, earlier_row: bool| {
+        let row = &values[yy * w + x0..=yy * w + x1];
+        row.iter()
+            .enumerate()
+            .any(|(i, &u)| u > v || (u == v && (earlier_row || x0 + i < x)))
+    };
+    (y > 0 && beats_at(y - 1, true)) || beats_at(y, false) || (y + 1 < h && beats_at(y + 1, false))
 }
 
 /// Whether a pixel within `r` (a square window, clipped at the borders) of `(y, x)` beats it:
@@ -508,6 +536,50 @@ mod tests {
         }
     }
     use crate::numeric::Rng;
+
+    #[test]
+    fn binning_is_the_block_mean_in_raster_order() {
+        // Source: the definition of a block mean (edge blocks over the pixels they hold, as
+        // skimage.measure.block_reduce with func=np.mean on the blocks that exist), the sum
+        // taken pixel by pixel in raster order so the f32 result is exactly defined.
+        for (h, w, factor) in [(8, 8, 2), (7, 13, 2), (9, 10, 4), (5, 3, 8), (1, 1, 2), (12, 17, 1)] {
+            let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 97 + x * 31) % 53) as f32 * 1.37 + 0.11);
+            let (bh, bw) = (h.div_ceil(factor), w.div_ceil(factor));
+            let mut sum = vec![0f32; bh * bw];
+            let mut count = vec![0f32; bh * bw];
+            for y in 0..h {
+                for x in 0..w {
+                    sum[(y / factor) * bw + x / factor] += image[[y, x]];
+                    count[(y / factor) * bw + x / factor] += 1.0;
+                }
+            }
+            let got = bin(&image, factor);
+            assert_eq!(got.dim(), (bh, bw));
+            for (g, (s, c)) in got.iter().zip(sum.iter().zip(&count)) {
+                assert_eq!(g.to_bits(), (s / c).to_bits(), "{h} x {w} by {factor}");
+            }
+        }
+    }
+
+    #[test]
+    fn the_neighbour_check_is_the_window_check_at_radius_one() {
+        // Source: the rule of `beaten_within` (a larger value, or an equal one earlier in
+        // raster order, within the clipped 3 x 3 window), on images full of ties, NaN and
+        // edges, where the fast check and the general one must agree on every pixel.
+        for (h, w) in [(1, 1), (1, 5), (6, 1), (9, 11)] {
+            let image = Image::from_shape_fn((h, w), |(y, x)| match (y * 7 + x * 3) % 5 {
+                0 => f32::NAN,
+                k => (k % 3) as f32,
+            });
+            let values = image.as_slice().unwrap();
+            for y in 0..h {
+                for x in 0..w {
+                    let fast = beaten_by_a_neighbour(values, (w, h), (y, x));
+                    assert_eq!(fast, beaten_within(&image, (y, x), 1), "{h} x {w} at {y}, {x}");
+                }
+            }
+        }
+    }
 
     #[test]
     fn the_crop_is_the_central_window() {
