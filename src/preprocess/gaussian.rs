@@ -85,9 +85,11 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
     let src = standard.as_slice().expect("standard layout");
     let r = g0.len() / 2;
     // Row r + y holds source row y filtered across; rows above r and below r + h hold the
-    // reflected rows the column kernels read.
-    let mut with_g0 = vec![0f32; (h + 2 * r) * w];
-    let mut with_g2 = vec![0f32; (h + 2 * r) * w];
+    // reflected rows the column kernels read. Every value is written before it is read, so
+    // the two images share the thread's spare buffer rather than zeroed allocations.
+    let rows = (h + 2 * r) * w;
+    let mut spare = scratch::take(2 * rows);
+    let (with_g0, with_g2) = spare[..2 * rows].split_at_mut(rows);
     with_g0[r * w..(r + h) * w]
         .par_chunks_mut(BAND_ROWS * w)
         .zip(with_g2[r * w..(r + h) * w].par_chunks_mut(BAND_ROWS * w))
@@ -100,12 +102,13 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
                 filter_steps_pair(g0_row, g2_row, &padded, 1, &g0, &g2);
             }
         });
-    for filtered in [&mut with_g0, &mut with_g2] {
+    for filtered in [&mut *with_g0, &mut *with_g2] {
         for j in (0..r).chain(r + h..h + 2 * r) {
             let from = r + reflect(j as isize - r as isize, h);
             filtered.copy_within(from * w..(from + 1) * w, j * w);
         }
     }
+    let (with_g0, with_g2) = (&*with_g0, &*with_g2);
     let mut out = vec![0f32; h * w];
     out.par_chunks_mut(BAND_ROWS * w).enumerate().for_each(|(band, dst)| {
         for (i, row) in dst.chunks_exact_mut(w).enumerate() {
@@ -113,6 +116,7 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
             filter_steps_sum(row, &with_g2[y * w..], &with_g0[y * w..], w, &g0, &g2);
         }
     });
+    scratch::give_back(spare);
     Image::from_shape_vec((h, w), out).expect("sized buffer")
 }
 
