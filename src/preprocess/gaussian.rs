@@ -524,7 +524,7 @@ mod tests {
         // Source: the definition of a separable filter with reflected borders (scipy.ndimage
         // mode 'reflect'; tested against scipy itself in tests/reference.rs): each row's taps
         // summed in order, then each column's. An image of one band (an object's window) and of
-        // several, bit for bit.
+        // several (300 rows: ten, filtered in parallel), bit for bit.
         let (kx, ky) = (gaussian_kernel(1.0), gaussian_kernel(2.2));
         let sum = |line: &dyn Fn(isize) -> f32, kernel: &[f32], at: usize| -> f32 {
             let r = (kernel.len() / 2) as isize;
@@ -533,7 +533,16 @@ mod tests {
                 s + w * line(at as isize + k as isize - r)
             })
         };
-        for (h, w) in [(1usize, 1usize), (3, 5), (4, 9), (2, 10), (32, 20), (70, 33)] {
+        for (h, w) in [
+            (1usize, 1usize),
+            (3, 5),
+            (4, 9),
+            (2, 10),
+            (32, 20),
+            (33, 3),
+            (70, 33),
+            (300, 17),
+        ] {
             let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 31 + x * 7919) % 97) as f32 * 0.7 - 20.0);
             let across = Image::from_shape_fn((h, w), |(y, x)| sum(&|i| image[[y, reflect(i, w)]], &kx, x));
             let want = Image::from_shape_fn((h, w), |(y, x)| sum(&|i| across[[reflect(i, h), x]], &ky, y));
