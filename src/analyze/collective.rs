@@ -59,7 +59,19 @@ impl PairCorrelation {
     /// index order, the order of the plain double loop, so the sums are the same to the last
     /// bit. Frames with a point that is not finite compare every pair.
     pub fn add_frame(&mut self, positions: &[[f64; 2]], vectors: &[[f64; 2]]) {
-        let Some(&reach) = self.bin_edges.last() else { return };
+        let pairs = self.frame_pairs(positions, vectors);
+        self.add_pairs(&pairs);
+    }
+
+    /// What [`PairCorrelation::add_frame`] adds for one frame, without adding it: each pair's
+    /// bin and dot product, in the order they are added. Frames can then be worked out in
+    /// parallel and added in frame order ([`PairCorrelation::add_pairs`]), the same sums to
+    /// the last bit.
+    pub fn frame_pairs(&self, positions: &[[f64; 2]], vectors: &[[f64; 2]]) -> Vec<(usize, f64)> {
+        let mut out = Vec::new();
+        let Some(&reach) = self.bin_edges.last() else {
+            return out;
+        };
         let finite = positions.iter().flatten().all(|v| v.is_finite());
         let tree: Option<ImmutableKdTree<f64, 2>> = finite
             .then(|| ImmutableKdTree::new_from_slice(positions).ok())
@@ -93,9 +105,17 @@ impl PairCorrelation {
                     .iter()
                     .position(|&e| d <= e)
                     .expect("within the last edge");
-                self.product_sum[bin] += ui[0] * uj[0] + ui[1] * uj[1];
-                self.pairs[bin] += 1;
+                out.push((bin, ui[0] * uj[0] + ui[1] * uj[1]));
             }
+        }
+        out
+    }
+
+    /// Adds pairs listed by [`PairCorrelation::frame_pairs`], in their order.
+    pub fn add_pairs(&mut self, pairs: &[(usize, f64)]) {
+        for &(bin, product) in pairs {
+            self.product_sum[bin] += product;
+            self.pairs[bin] += 1;
         }
     }
 

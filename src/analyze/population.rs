@@ -18,6 +18,7 @@ use super::table::{Track, Units};
 use crate::numeric::median;
 use crate::numeric::significant;
 use crate::tracks::PathPoint;
+use rayon::prelude::*;
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -381,6 +382,9 @@ pub fn model_warnings(
     out
 }
 
+/// Frames whose pairs [`collective`] lists at once before adding them up.
+const PAIR_FRAMES_AT_ONCE: usize = 8;
+
 /// Positions and velocities per frame, then the per-frame figures and the pooled neighbour
 /// correlation (bins one median neighbour distance wide, eight of them).
 fn collective(tracks: &[Track], everyone: &[Track], dt: f64, k: usize) -> (Vec<FrameOrder>, Vec<CorrelationBin>) {
@@ -400,33 +404,48 @@ fn collective(tracks: &[Track], everyone: &[Track], dt: f64, k: usize) -> (Vec<F
             e.0.push([p.x, p.y]);
         }
     }
-    let mut frames = Vec::with_capacity(by_frame.len());
+    // Each frame on its own (in parallel), then gathered in frame order: the same numbers as
+    // one frame after the other.
+    let by_frame: Vec<(usize, FrameData)> = by_frame.into_iter().collect();
+    let per_frame: Vec<(FrameOrder, Vec<f64>)> = by_frame
+        .par_iter()
+        .map(|(f, (positions, moving))| {
+            let nd = neighbour_distance_and_density(positions, k);
+            let nn: Vec<f64> = nd.iter().filter_map(|p| p.0).collect();
+            let mut dens: Vec<f64> = nd.iter().filter_map(|p| p.1).collect();
+            let velocities: Vec<[f64; 2]> = moving.iter().map(|m| m.1).collect();
+            let order = FrameOrder {
+                frame: *f,
+                moving: moving.len(),
+                order_parameter: order_parameter(&velocities),
+                mean_neighbour_distance: (!nn.is_empty()).then(|| nn.iter().sum::<f64>() / nn.len() as f64),
+                median_density: median(&mut dens),
+            };
+            (order, nn)
+        })
+        .collect();
     let mut all_nn = Vec::new();
-    for (&f, (positions, moving)) in &by_frame {
-        let nd = neighbour_distance_and_density(positions, k);
-        let nn: Vec<f64> = nd.iter().filter_map(|p| p.0).collect();
-        let mut dens: Vec<f64> = nd.iter().filter_map(|p| p.1).collect();
-        all_nn.extend(&nn);
-        let velocities: Vec<[f64; 2]> = moving.iter().map(|m| m.1).collect();
-        frames.push(FrameOrder {
-            frame: f,
-            moving: moving.len(),
-            order_parameter: order_parameter(&velocities),
-            mean_neighbour_distance: (!nn.is_empty()).then(|| nn.iter().sum::<f64>() / nn.len() as f64),
-            median_density: median(&mut dens),
-        });
+    let mut frames = Vec::with_capacity(per_frame.len());
+    for (order, nn) in per_frame {
+        all_nn.extend(nn);
+        frames.push(order);
     }
     let width = median(&mut all_nn).unwrap_or(0.0);
     if width <= 0.0 {
         return (frames, Vec::new());
     }
     let mut corr = PairCorrelation::new((1..=8).map(|i| i as f64 * width).collect());
-    for (_, moving) in by_frame.values() {
-        let positions: Vec<[f64; 2]> = moving.iter().map(|m| m.0).collect();
-        let velocities: Vec<[f64; 2]> = moving.iter().map(|m| m.1).collect();
-        if let Some(u) = scaled_fluctuations(&velocities) {
-            corr.add_frame(&positions, &u);
-        }
+    // A few frames' pairs at a time (a frame of a few hundred cells lists tens of thousands).
+    for group in by_frame.chunks(PAIR_FRAMES_AT_ONCE) {
+        let pairs: Vec<Vec<(usize, f64)>> = group
+            .par_iter()
+            .map(|(_, (_, moving))| {
+                let positions: Vec<[f64; 2]> = moving.iter().map(|m| m.0).collect();
+                let velocities: Vec<[f64; 2]> = moving.iter().map(|m| m.1).collect();
+                scaled_fluctuations(&velocities).map_or_else(Vec::new, |u| corr.frame_pairs(&positions, &u))
+            })
+            .collect();
+        pairs.iter().for_each(|p| corr.add_pairs(p));
     }
     let bins = corr
         .means()
