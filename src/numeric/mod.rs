@@ -164,18 +164,37 @@ impl Grid {
         let (x, y) = self.column_row(i);
         let (w, h) = (self.width, self.height);
         let (left, right, up, down) = (x > 0, x + 1 < w, y > 0, y + 1 < h);
-        [
-            (up && left).then(|| i - w - 1),
-            up.then(|| i - w),
-            (up && right).then(|| i - w + 1),
-            left.then(|| i - 1),
-            right.then(|| i + 1),
-            (down && left).then(|| i + w - 1),
-            down.then(|| i + w),
-            (down && right).then(|| i + w + 1),
-        ]
-        .into_iter()
-        .flatten()
+        let all = [
+            i.wrapping_sub(w + 1),
+            i.wrapping_sub(w),
+            i.wrapping_sub(w - 1),
+            i.wrapping_sub(1),
+            i + 1,
+            i + w - 1,
+            i + w,
+            i + w + 1,
+        ];
+        if left && right && up && down {
+            // Away from the edges (most pixels): all eight, no test per neighbour.
+            return all.into_iter().take(8);
+        }
+        let inside = [
+            up && left,
+            up,
+            up && right,
+            left,
+            right,
+            down && left,
+            down,
+            down && right,
+        ];
+        let mut kept = [0usize; 8];
+        let mut count = 0;
+        for (q, ok) in all.into_iter().zip(inside) {
+            kept[count] = q;
+            count += usize::from(ok);
+        }
+        kept.into_iter().take(count)
     }
 
     /// The up-to-4 edge neighbours of pixel `i` inside the image.
@@ -216,6 +235,22 @@ mod tests {
         assert_eq!(grid.neighbours8(11).collect::<Vec<_>>(), vec![6, 7, 10]);
         assert_eq!(grid.neighbours4(5).collect::<Vec<_>>(), vec![1, 4, 6, 9]);
         assert_eq!(grid.neighbours4(3).collect::<Vec<_>>(), vec![2, 7]);
+        // Every pixel of grids with one row, one column, or both, and a larger one: the
+        // definition (row above left to right, then left and right, then the row below),
+        // kept inside the grid.
+        for (w, h) in [(1, 1), (1, 4), (5, 1), (2, 2), (5, 4)] {
+            let grid = Grid::new(w, h);
+            for i in 0..w * h {
+                let (x, y) = ((i % w) as isize, (i / w) as isize);
+                let offsets = [(-1, -1), (0, -1), (1, -1), (-1, 0), (1, 0), (-1, 1), (0, 1), (1, 1)];
+                let inside = |(dx, dy): (isize, isize)| {
+                    let (a, b) = (x + dx, y + dy);
+                    (a >= 0 && b >= 0 && a < w as isize && b < h as isize).then(|| (b * w as isize + a) as usize)
+                };
+                let want: Vec<usize> = offsets.into_iter().filter_map(inside).collect();
+                assert_eq!(grid.neighbours8(i).collect::<Vec<_>>(), want, "{w} x {h}, pixel {i}");
+            }
+        }
     }
 
     #[test]
