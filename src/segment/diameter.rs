@@ -539,9 +539,9 @@ mod tests {
 
     #[test]
     fn binning_is_the_block_mean_in_raster_order() {
-        // Source: the definition of a block mean (edge blocks over the pixels they hold, as
-        // skimage.measure.block_reduce with func=np.mean on the blocks that exist), the sum
-        // taken pixel by pixel in raster order so the f32 result is exactly defined.
+        // Source: the definition of a block mean, edge blocks averaged over the pixels they
+        // hold (not padded with zeros), the sum taken pixel by pixel in raster order so that
+        // the f32 result is exactly defined.
         for (h, w, factor) in [(8, 8, 2), (7, 13, 2), (9, 10, 4), (5, 3, 8), (1, 1, 2), (12, 17, 1)] {
             let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 97 + x * 31) % 53) as f32 * 1.37 + 0.11);
             let (bh, bw) = (h.div_ceil(factor), w.div_ceil(factor));

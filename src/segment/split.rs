@@ -154,21 +154,12 @@ fn find_components(mask: &[bool], width: usize, height: usize) -> (Vec<u32>, Vec
             cursor += 1;
             let (x, y) = grid.column_row(p);
             (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
-            let mut reach = |q: usize| {
+            grid.for_each_neighbour8(p, |q| {
                 if state[q] == UNREACHED {
                     state[q] = REACHED;
                     pixels.push(q as u32);
                 }
-            };
-            if x > 0 && x + 1 < width && y > 0 && y + 1 < height {
-                // Away from the edges: the eight neighbours in `neighbours8`'s order.
-                let w = width;
-                [p - w - 1, p - w, p - w + 1, p - 1, p + 1, p + w - 1, p + w, p + w + 1]
-                    .into_iter()
-                    .for_each(&mut reach);
-            } else {
-                grid.neighbours8(p).for_each(&mut reach);
-            }
+            });
         }
         components.push(Component {
             pixels: first..pixels.len(),

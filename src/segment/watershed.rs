@@ -71,19 +71,12 @@ fn flood_one_label(mask: &[bool], seeds: Vec<u32>, width: usize, height: usize) 
     while let Some(p) = stack.pop() {
         let p = p as usize;
         let label = labels[p];
-        let mut reach = |q: usize| {
+        grid.for_each_neighbour4(p, |q| {
             if mask[q] && labels[q] == 0 {
                 labels[q] = label;
                 stack.push(q as u32);
             }
-        };
-        let (x, y) = grid.column_row(p);
-        if x > 0 && x + 1 < width && y > 0 && y + 1 < height {
-            // Away from the edges: the four neighbours without the edge tests.
-            [p - width, p - 1, p + 1, p + width].into_iter().for_each(&mut reach);
-        } else {
-            grid.neighbours4(p).for_each(&mut reach);
-        }
+        });
     }
     labels
 }
