@@ -69,17 +69,16 @@ pub(super) fn add_dim_nuclei(
     }
 }
 
-/// Clears the 8-connected components of `mask` smaller than `min_area` px (their runs joined
-/// by union-find, [`Runs`]).
+/// Clears the 8-connected components of `mask` smaller than `min_area` px ([`Regions`]).
 fn clear_slivers(mask: &mut [bool], min_area: f64, (w, h): (usize, usize)) {
-    let runs = Runs::of(mask, w, h, true);
-    let mut sets = runs.joined(Connectivity::Eight);
-    let mut area = vec![0usize; runs.len()];
-    for (k, &(_, s, e)) in runs.spans.iter().enumerate() {
-        area[sets.find(k)] += e - s;
+    let regions = Regions::of(mask, (w, h));
+    let spans = &regions.runs.spans;
+    let mut area = vec![0usize; spans.len()];
+    for (&id, &(_, s, e)) in regions.of_run.iter().zip(spans) {
+        area[id] += e - s;
     }
-    for (k, &(y, s, e)) in runs.spans.iter().enumerate() {
-        if (area[sets.find(k)] as f64) < min_area {
+    for (&id, &(y, s, e)) in regions.of_run.iter().zip(spans) {
+        if (area[id] as f64) < min_area {
             mask[y * w + s..y * w + e].iter_mut().for_each(|m| *m = false);
         }
     }
