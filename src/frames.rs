@@ -3,6 +3,7 @@
 
 use crate::error::{Error, Result};
 use crate::params::SegmentParams;
+use crate::render::box_average;
 use crate::segment::{masks, segment_frame, FrameSegmentation};
 use crate::stack::Stack;
 use indicatif::{ProgressBar, ProgressStyle};
@@ -38,6 +39,8 @@ struct SegmentedFrames<'a> {
     masks: Option<&'a mut Stack>,
     /// Whether objects from masks are measured on the recording's intensities.
     intensities: bool,
+    /// Block-average each frame by this factor too (see [`FrameSegmentation::downscaled`]).
+    downscale: Option<usize>,
     params: Arc<SegmentParams>,
     /// Frames not decoded yet.
     range: std::ops::Range<usize>,
@@ -60,6 +63,12 @@ impl<'a> SegmentedFrames<'a> {
         self
     }
 
+    /// Also block-averages each frame by `factor` (when given).
+    fn downscaled_by(mut self, factor: Option<usize>) -> Self {
+        self.downscale = factor;
+        self
+    }
+
     /// Iterates over the frames of `stack` from `first` on.
     fn starting_at(
         (stack, masks, intensities): (&'a mut Stack, Option<&'a mut Stack>, bool),
@@ -72,6 +81,7 @@ impl<'a> SegmentedFrames<'a> {
             stack,
             masks,
             intensities,
+            downscale: None,
             params: Arc::new(params.clone()),
             range: first.min(frames)..frames,
             in_flight: VecDeque::new(),
@@ -107,7 +117,7 @@ impl<'a> SegmentedFrames<'a> {
     /// with the result, to be raised on the thread that reads it.
     fn spawn(&self, (frame, labels): Decoded) -> Receiver<std::thread::Result<FrameSegmentation>> {
         let (sender, receiver) = std::sync::mpsc::sync_channel(1);
-        let (params, intensities) = (Arc::clone(&self.params), self.intensities);
+        let (params, intensities, downscale) = (Arc::clone(&self.params), self.intensities, self.downscale);
         rayon::spawn(move || {
             let segmented = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
                 let image = frame.to_image();
@@ -115,8 +125,10 @@ impl<'a> SegmentedFrames<'a> {
                     Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
                     None => segment_frame(&image, frame.index, &params),
                 };
+                let values = image.as_slice().expect("standard layout");
                 FrameSegmentation {
                     content_crc32: Some(frame.content_crc32()),
+                    downscaled: downscale.map(|f| box_average(values, frame.width, frame.height, f)),
                     ..segmented
                 }
             }));
@@ -149,7 +161,8 @@ impl Iterator for SegmentedFrames<'_> {
 }
 
 /// Runs `consume` on the segmented frames `range` of `stack` (segmented by `masks` when given,
-/// measured on the recording's intensities when `intensities`), in frame order, while the next
+/// measured on the recording's intensities when `intensities`, each also block-averaged by
+/// `downscale` when given: [`FrameSegmentation::downscaled`]), in frame order, while the next
 /// frames are being segmented: a producer thread decodes frames and has them segmented (on the
 /// worker pool), and hands results over a short queue, so writing tables, logging and linking
 /// on the calling thread do not leave the workers idle.
@@ -158,7 +171,7 @@ pub fn with_segmented_frames<T>(
     (stack, masks, intensities): (&mut Stack, Option<&mut Stack>, bool),
     params: &SegmentParams,
     progress: ProgressBar,
-    range: std::ops::Range<usize>,
+    (range, downscale): (std::ops::Range<usize>, Option<usize>),
     consume: impl FnOnce(&mut dyn Iterator<Item = Result<FrameSegmentation>>) -> T,
 ) -> T {
     let queue = 2 * rayon::current_num_threads().max(1);
@@ -166,7 +179,8 @@ pub fn with_segmented_frames<T>(
         let (sender, receiver) = std::sync::mpsc::sync_channel(queue);
         let producer = scope.spawn(move || {
             let frames = SegmentedFrames::starting_at((stack, masks, intensities), params, progress, range.start)
-                .until(range.end);
+                .until(range.end)
+                .downscaled_by(downscale);
             for seg in frames {
                 if sender.send(seg).is_err() {
                     break;

@@ -276,6 +276,12 @@ impl MovieOptions {
         };
         self.every.max(capped).max(1)
     }
+
+    /// The integer factor a `width` x `height` recording is downscaled by for the movie (1:
+    /// not downscaled): the least that brings the longest side to `max_side_px` or below.
+    pub fn factor(&self, width: usize, height: usize) -> usize {
+        width.max(height).div_ceil(self.max_side_px.max(16)).max(1)
+    }
 }
 
 impl Default for MovieOptions {

@@ -176,12 +176,17 @@ pub fn run_recording(
     }
     let mut spool = pass.spool(dir, &work, outputs, checkpoint.is_some())?;
     let first = checkpoint.as_ref().map_or(0, |c| c.frames_done());
+    let downscale = keep_downscaled(spool.as_mut(), outputs, &info, &work, first)?;
     let progress = progress_bar(info.frames as u64, "frames");
     progress.set_position(first as u64);
-    let mut handle = |seg: FrameSegmentation| -> Result<Vec<u32>> {
+    let mut handle = |mut seg: FrameSegmentation| -> Result<Vec<u32>> {
+        let downscaled = seg.downscaled.take();
         let (record, labels) = FrameRecord::of(seg);
         if let Some(s) = spool.as_mut() {
             s.push(&labels, info.width, info.height)?;
+            if let Some(values) = downscaled {
+                s.push_downscaled(record.frame, &values)?;
+            }
         }
         if let Some(c) = checkpoint.as_mut() {
             c.record(&record, || spool.as_mut().map_or(Ok(0), |s| s.flushed_len()))?;
@@ -191,7 +196,7 @@ pub fn run_recording(
     };
     let frames = first..info.frames;
     let source = (&mut *stack, masks.as_mut(), !outputs.masks_without_intensities);
-    with_segmented_frames(source, params, progress, frames, |segmented| {
+    with_segmented_frames(source, params, progress, (frames, downscale), |segmented| {
         if outputs.labels {
             write_stack::<u32, _>(
                 &work.join("labels.tif"),
@@ -230,6 +235,29 @@ pub fn run_recording(
         c.finish();
     }
     Ok(run)
+}
+
+/// Has `spool` keep the frames from `first` on downscaled for the movie, when a movie is made
+/// and the recording is larger than it; returns the factor frame production should
+/// downscale by.
+fn keep_downscaled(
+    spool: Option<&mut OutlineSpool>,
+    outputs: &RunOptions,
+    info: &crate::stack::StackInfo,
+    work: &Path,
+    first: usize,
+) -> Result<Option<usize>> {
+    let (Some(spool), Some(movie)) = (spool, outputs.movie) else {
+        return Ok(None);
+    };
+    let factor = movie.factor(info.width, info.height);
+    if factor < 2 {
+        // Not downscaled: the spool would hold more bytes than the frames it spares decoding.
+        return Ok(None);
+    }
+    let values = info.width.div_ceil(factor) * info.height.div_ceil(factor);
+    spool.keep_downscaled(work, first, values)?;
+    Ok(Some(factor))
 }
 
 /// After the first pass (segmented or replayed): resolves tracks, writes the track tables,

@@ -92,7 +92,7 @@ pub fn write_shard(
         (stack, None, true),
         params,
         progress,
-        range.0..range.1,
+        (range.0..range.1, None),
         |segmented| -> Result<()> {
             for seg in segmented {
                 let (record, labels) = FrameRecord::of(seg?);

@@ -583,16 +583,30 @@ fn analyze_and_compare_pass_independent_readers() {
 
 /// The tables and the QC movie of two run folders are byte-identical.
 fn assert_same_run_outputs(a: &Path, b: &Path) {
-    for name in [
+    let mut names: Vec<String> = [
         "detections.csv",
         "tracks.csv",
         "per_track.csv",
         "qc_movie.gif",
         "qc_sheet.png",
-    ] {
+    ]
+    .map(String::from)
+    .to_vec();
+    // Every file of the review page's folder too.
+    for sub in ["", "frames", "full", "data"] {
+        let dir = a.join("review").join(sub);
+        for entry in std::fs::read_dir(&dir).unwrap() {
+            let path = entry.unwrap().path();
+            if path.is_file() {
+                names.push(path.strip_prefix(a).unwrap().to_string_lossy().into_owned());
+            }
+        }
+    }
+    assert!(names.len() > 8, "{names:?}");
+    for name in names {
         assert_eq!(
-            std::fs::read(a.join(name)).unwrap(),
-            std::fs::read(b.join(name)).unwrap(),
+            std::fs::read(a.join(&name)).unwrap(),
+            std::fs::read(b.join(&name)).unwrap(),
             "{name}"
         );
     }
@@ -650,6 +664,12 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
             "--no-analysis".into(),
             "--checkpoint-every".into(),
             "5".into(),
+            // Movie and review frames downscaled: frames segmented before the kill are decoded
+            // again for them, the others were kept downscaled while segmenting.
+            "--qc-size".into(),
+            "256".into(),
+            "--review-size".into(),
+            "256".into(),
         ];
         args.extend(extra.iter().map(|s| s.to_string()));
         args
@@ -785,6 +805,10 @@ fn shards_linked_equal_one_track_run() {
             "--diameter",
             "14px",
             "--no-analysis",
+            "--qc-size",
+            "128",
+            "--review-size",
+            "128",
         ],
         "2",
     ));
@@ -815,7 +839,20 @@ fn shards_linked_equal_one_track_run() {
         "1",
     ));
     ok(&caravan(
-        &["join", &path("b"), &path("a"), "-o", &path("linked"), "--no-analysis"],
+        &[
+            "join",
+            &path("b"),
+            &path("a"),
+            "-o",
+            &path("linked"),
+            "--no-analysis",
+            // Downscaled movie and review frames: kept while segmenting in the one run, decoded
+            // again after joining the shards.
+            "--qc-size",
+            "128",
+            "--review-size",
+            "128",
+        ],
         "2",
     ));
     assert_same_run_outputs(&dir.path().join("whole"), &dir.path().join("linked"));

@@ -3,9 +3,12 @@
 //! and the frame number and time; plus a contact sheet of evenly spaced frames.
 //!
 //! It shows final track ids, so it is drawn after linking: outlines are spooled to a compact
-//! file during segmentation ([`OutlineSpool`]) and the frames are decoded a second time, a few
-//! at a time, drawn and compressed in parallel and written in order, so memory stays bounded
-//! by a few frames and the movie is the same whatever the thread count.
+//! file during segmentation ([`OutlineSpool`]), with each frame already downscaled for the
+//! movie, and the frames are drawn and compressed a few at a time in parallel and written in
+//! order, so memory stays bounded by a few frames and the movie is the same whatever the
+//! thread count. A frame is decoded a second time only where its samples are needed (the
+//! first frame's contrast, the review page's full-resolution frames) or were not spooled (the
+//! frames before a resumed run's checkpoint).
 
 use super::font::{draw_text, text_width};
 use super::review::ReviewWriter;
@@ -31,12 +34,31 @@ const TAIL: usize = 8;
 
 pub use crate::params::MovieOptions;
 
-/// Outline pixels of every frame, written during segmentation and read back in frame order.
+/// Outline pixels of every frame, written during segmentation and read back in frame order;
+/// and, when kept ([`OutlineSpool::keep_downscaled`]), the frames downscaled for the movie.
 pub struct OutlineSpool {
     path: PathBuf,
     writer: Option<BufWriter<File>>,
     /// Removed when dropped (a temporary spool), or kept (a checkpoint's).
     temporary: bool,
+    downscaled: Option<DownscaledSpool>,
+}
+
+/// Frames `first..first + held`, block-averaged for the movie, in a temporary file (removed
+/// when dropped): the movie pass reads them instead of decoding the frames again.
+struct DownscaledSpool {
+    path: PathBuf,
+    writer: BufWriter<File>,
+    first: usize,
+    held: usize,
+    /// Values per frame.
+    values: usize,
+}
+
+impl Drop for DownscaledSpool {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_file(&self.path);
+    }
 }
 
 impl OutlineSpool {
@@ -48,6 +70,7 @@ impl OutlineSpool {
             path,
             writer: Some(BufWriter::new(file)),
             temporary: true,
+            downscaled: None,
         })
     }
 
@@ -64,7 +87,40 @@ impl OutlineSpool {
             path: path.to_path_buf(),
             writer: Some(BufWriter::new(file)),
             temporary: false,
+            downscaled: None,
         })
+    }
+
+    /// Also keeps the frames from `first` on, downscaled to `values` samples each
+    /// ([`OutlineSpool::push_downscaled`]), in a temporary file in `dir`.
+    pub fn keep_downscaled(&mut self, dir: &Path, first: usize, values: usize) -> Result<()> {
+        let path = dir.join(format!(".downscaled.partial-{}", std::process::id()));
+        let file = File::create(&path).map_err(|e| Error::output(&path, e))?;
+        self.downscaled = Some(DownscaledSpool {
+            path,
+            writer: BufWriter::new(file),
+            first,
+            held: 0,
+            values,
+        });
+        Ok(())
+    }
+
+    /// Appends frame `t` downscaled for the movie (the frame after the last one kept, and of
+    /// the size given to [`OutlineSpool::keep_downscaled`]; otherwise the spool stops keeping
+    /// frames, and the movie pass decodes the rest).
+    pub fn push_downscaled(&mut self, t: usize, values: &[f32]) -> Result<()> {
+        let Some(d) = self.downscaled.as_mut() else {
+            return Ok(());
+        };
+        if t != d.first + d.held || values.len() != d.values {
+            self.downscaled = None;
+            return Ok(());
+        }
+        let bytes: Vec<u8> = values.iter().flat_map(|v| v.to_le_bytes()).collect();
+        d.writer.write_all(&bytes).map_err(|e| Error::output(&d.path, e))?;
+        d.held += 1;
+        Ok(())
     }
 
     /// Appends outline records written by another spool (a shard's), unchanged.
@@ -114,6 +170,46 @@ impl OutlineSpool {
         Ok(BufReader::new(
             File::open(&self.path).map_err(|e| Error::output(&self.path, e))?,
         ))
+    }
+
+    /// The kept downscaled frames, read in frame order.
+    fn downscaled_reader(&mut self) -> Result<Option<DownscaledReader<'_>>> {
+        let Some(d) = self.downscaled.as_mut() else {
+            return Ok(None);
+        };
+        d.writer.flush().map_err(|e| Error::output(&d.path, e))?;
+        let file = File::open(&d.path).map_err(|e| Error::output(&d.path, e))?;
+        Ok(Some(DownscaledReader {
+            spool: d,
+            reader: BufReader::with_capacity(1 << 16, file),
+            bytes: Vec::new(),
+        }))
+    }
+}
+
+/// Reads a [`DownscaledSpool`] back, frame by frame in order.
+struct DownscaledReader<'a> {
+    spool: &'a DownscaledSpool,
+    reader: BufReader<File>,
+    bytes: Vec<u8>,
+}
+
+impl DownscaledReader<'_> {
+    /// Frame `t` downscaled, when the spool holds it; frames must be asked for in order.
+    fn frame(&mut self, t: usize) -> Result<Option<Vec<f32>>> {
+        let d = self.spool;
+        if !(d.first..d.first + d.held).contains(&t) {
+            return Ok(None);
+        }
+        self.bytes.resize(4 * d.values, 0);
+        self.reader
+            .read_exact(&mut self.bytes)
+            .map_err(|e| Error::output(&d.path, e))?;
+        let values = self
+            .bytes
+            .chunks_exact(4)
+            .map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]]));
+        Ok(Some(values.collect()))
     }
 }
 
@@ -179,7 +275,7 @@ pub fn render_movie(
 ) -> Result<MovieOutputs> {
     let info = stack.info().clone();
     let (w, h) = (info.width, info.height);
-    let factor = w.max(h).div_ceil(options.max_side_px.max(16)).max(1);
+    let factor = options.factor(w, h);
     let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
     let step = options.step(info.frames);
     let out = MovieOutputs {
@@ -194,15 +290,35 @@ pub fn render_movie(
     {
         let mut encoder = gif::Encoder::new(&mut file, mw as u16, mh as u16, &palette()).map_err(gif_error)?;
         encoder.set_repeat(gif::Repeat::Infinite).map_err(gif_error)?;
-        let mut reader = spool.reader()?;
         let spool_path = spool.path.clone();
-        let mut read = |t: usize| -> Result<FrameToDraw> {
+        let mut reader = spool.reader()?;
+        let mut downscaled = spool.downscaled_reader()?;
+        // Frame `t`: its outline, its spooled downscale, and its samples where `whole` asks
+        // for them or nothing was spooled.
+        let mut read = |t: usize, whole: &dyn Fn(usize) -> bool| -> Result<FrameToDraw> {
             let outline = read_outline(&mut reader, &spool_path)?;
-            Ok((t, stack.read_frame(t)?.pixels.to_f32(), outline))
+            let averaged = match downscaled.as_mut() {
+                Some(d) => d.frame(t)?,
+                None => None,
+            };
+            let raw = match averaged.is_none() || whole(t) {
+                true => Some(stack.read_frame(t)?.pixels.to_f32()),
+                false => None,
+            };
+            Ok(FrameToDraw {
+                t,
+                raw,
+                averaged,
+                outline,
+            })
         };
-        let first = if info.frames > 0 { Some(read(0)?) } else { None };
+        let first = if info.frames > 0 {
+            Some(read(0, &|_| true)?)
+        } else {
+            None
+        };
         // The contrast of the first frame, for the movie and the review page alike.
-        let stretch = DisplayRange::from_values(first.as_ref().map_or(&[][..], |(_, raw, _)| raw));
+        let stretch = DisplayRange::from_values(first.as_ref().and_then(|f| f.raw.as_deref()).unwrap_or(&[]));
         if let Some(r) = review.as_deref_mut() {
             r.set_stretch(stretch);
         }
@@ -214,6 +330,7 @@ pub fn render_movie(
             interval_s: info.calibration.frame_interval_s,
         };
         let reviewer = review.as_deref().map(ReviewWriter::encoder);
+        let whole = |t: usize| reviewer.as_ref().is_some_and(|r| r.needs_whole(t, factor));
         let mut write = |done: FinishedFrame| -> Result<()> {
             if let (Some(r), Some(encoded)) = (review.as_deref_mut(), done.review) {
                 r.accept(encoded)?;
@@ -224,21 +341,38 @@ pub fn render_movie(
             }
             Ok(())
         };
-        let finish = |(t, raw, outline): FrameToDraw| -> FinishedFrame {
-            let drawn = (t % step == 0).then(|| look.draw(t, &raw, &outline));
-            let averaged = drawn.as_ref().map_or((0, &[][..]), |d| (factor, &d.averaged[..]));
-            let review = reviewer.as_ref().map(|r| r.encode(t, &raw, averaged));
+        let finish = |frame: FrameToDraw| -> FinishedFrame {
+            let t = frame.t;
+            let in_movie = t.is_multiple_of(step);
+            let averaged = match (frame.averaged, frame.raw.as_deref()) {
+                (Some(averaged), _) => Some(averaged),
+                (None, Some(raw)) if in_movie => Some(box_average(raw, w, h, factor)),
+                (None, _) => None,
+            };
+            let drawn = match (in_movie, averaged.as_deref()) {
+                (true, Some(averaged)) => Some(look.draw(t, averaged, &frame.outline)),
+                _ => None,
+            };
+            let review = reviewer
+                .as_ref()
+                .map(|r| r.encode(t, frame.raw.as_deref(), averaged.as_deref().map(|a| (factor, a))));
             FinishedFrame { t, drawn, review }
         };
-        in_frame_order(first, (1..info.frames).map(&mut read), &finish, &mut write)?;
+        in_frame_order(first, (1..info.frames).map(|t| read(t, &whole)), &finish, &mut write)?;
     }
     file.commit()?;
     sheet.write(&out.sheet)?;
     Ok(out)
 }
 
-/// A frame to draw: its index, its values and its outline pixels (index, label).
-type FrameToDraw = (usize, Vec<f32>, Vec<(u32, u32)>);
+/// A frame to draw: its index, its samples (where decoded), its block average for the movie
+/// (where spooled) and its outline pixels (index, label).
+struct FrameToDraw {
+    t: usize,
+    raw: Option<Vec<f32>>,
+    averaged: Option<Vec<f32>>,
+    outline: Vec<(u32, u32)>,
+}
 
 /// One frame of the movie pass once drawn and compressed: its movie frame (every `step`-th
 /// frame) and its review frame (when the page is written).
@@ -298,22 +432,20 @@ struct MovieLook<'a> {
     interval_s: Option<f64>,
 }
 
-/// One movie frame: the block average it was drawn from (the review page's display frame
-/// when the factors agree), the drawn canvas and its GIF frame, already compressed.
+/// One movie frame: the drawn canvas and its GIF frame, already compressed.
 struct DrawnFrame {
-    averaged: Vec<f32>,
     canvas: image::GrayImage,
     gif: gif::Frame<'static>,
 }
 
 impl MovieLook<'_> {
-    /// Frame `t` downscaled, stretched, with tails, division marks, outlines in track colours
-    /// and the caption; compressed for the GIF (the same bytes as the encoder would write).
-    fn draw(&self, t: usize, raw: &[f32], outline: &[(u32, u32)]) -> DrawnFrame {
+    /// Frame `t` (`averaged`: its block average by the movie's factor) stretched, with tails,
+    /// division marks, outlines in track colours and the caption; compressed for the GIF (the
+    /// same bytes as the encoder would write).
+    fn draw(&self, t: usize, averaged: &[f32], outline: &[(u32, u32)]) -> DrawnFrame {
         let ((w, h), factor) = (self.size, self.factor);
         let (mw, mh) = (w.div_ceil(factor), h.div_ceil(factor));
-        let averaged = box_average(raw, w, h, factor);
-        let mut canvas = indexed_grey(&averaged, (mw, mh), &self.stretch);
+        let mut canvas = indexed_grey(averaged, (mw, mh), &self.stretch);
         draw_tails(&mut canvas, self.overlay, t, factor);
         draw_division_marks(&mut canvas, self.overlay, t, factor);
         for &(i, l) in outline {
@@ -330,7 +462,7 @@ impl MovieLook<'_> {
             buffer: std::borrow::Cow::Owned(super::lzw::gif_lzw(canvas.as_raw())),
             ..gif::Frame::default()
         };
-        DrawnFrame { averaged, canvas, gif }
+        DrawnFrame { canvas, gif }
     }
 }
 
@@ -480,13 +612,13 @@ impl ContactSheet {
         );
         for (k, tile) in self.tiles.iter().enumerate() {
             let (ox, oy) = (gap + (k % columns) * (w + gap), gap + (k / columns) * (h + gap));
-            for (x, y, p) in tile
-                .enumerate_pixels()
-                .filter(|(x, y, _)| (*x as usize).is_multiple_of(step) && (*y as usize).is_multiple_of(step))
-            {
-                let i = p.0[0] as usize * 3;
-                let (tx, ty) = (x / step as u32, y / step as u32);
-                sheet.put_pixel(ox as u32 + tx, oy as u32 + ty, Rgb([pal[i], pal[i + 1], pal[i + 2]]));
+            let rows = tile.as_raw().chunks_exact(self.size.0.max(1)).step_by(step);
+            for (ty, row) in rows.enumerate() {
+                for (tx, &index) in row.iter().step_by(step).enumerate() {
+                    let i = index as usize * 3;
+                    let (x, y) = ((ox + tx) as u32, (oy + ty) as u32);
+                    sheet.put_pixel(x, y, Rgb([pal[i], pal[i + 1], pal[i + 2]]));
+                }
             }
         }
         let mut bytes = Vec::new();

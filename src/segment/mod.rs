@@ -46,6 +46,10 @@ pub struct FrameSegmentation {
     /// CRC-32 of the decoded frame ([`crate::stack::Frame::content_crc32`]), set by frame
     /// production; `None` for an image segmented on its own.
     pub content_crc32: Option<u32>,
+    /// The frame block-averaged ([`crate::render::box_average`]) by the factor frame
+    /// production was asked for: the QC movie's frame before it is drawn on, kept so that the
+    /// movie need not decode the frame again. `None` when not asked for.
+    pub downscaled: Option<Vec<f32>>,
 }
 
 /// What the size filter did in one frame: objects too small to be a nucleus are dropped and
@@ -117,6 +121,7 @@ pub(crate) fn segment_frame_and_prepared(
         nonfinite_pixels,
         size_filter,
         content_crc32: None,
+        downscaled: None,
     };
     (segmentation, prepared)
 }

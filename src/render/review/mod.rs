@@ -209,12 +209,15 @@ pub struct ReviewEncoder {
 }
 
 impl ReviewEncoder {
-    /// Frame `t` (its samples, and its block average by `factor` when the caller has it: the
-    /// movie's downscale, [`crate::render::box_average`], used when it is the display's
-    /// factor) mapped to display grey levels and compressed.
-    pub fn encode(&self, t: usize, raw: &[f32], (factor, averaged): (usize, &[f32])) -> EncodedFrame {
-        let stretch = self.stretch.unwrap_or_else(|| DisplayRange::from_values(raw));
-        let (display, full) = self.greys(stretch, t, raw, (factor, averaged));
+    /// Frame `t` mapped to display grey levels and compressed, from its samples (`raw`) and
+    /// its block average by some factor when the caller has it (the movie's downscale,
+    /// [`crate::render::box_average`], used when it is the display's factor). `raw` may be
+    /// left out where [`ReviewEncoder::needs_whole`] says so.
+    pub fn encode(&self, t: usize, raw: Option<&[f32]>, averaged: Option<(usize, &[f32])>) -> EncodedFrame {
+        let stretch = self
+            .stretch
+            .unwrap_or_else(|| DisplayRange::from_values(raw.expect("the whole frame without a stretch")));
+        let (display, full) = self.greys(stretch, t, raw, averaged);
         let (w, h) = self.size;
         let (dw, dh) = (w.div_ceil(self.factor), h.div_ceil(self.factor));
         EncodedFrame {
@@ -224,6 +227,13 @@ impl ReviewEncoder {
         }
     }
 
+    /// Whether [`ReviewEncoder::encode`] needs frame `t`'s samples when it is given the frame's
+    /// block average by `factor`: for a frame kept at full resolution, for another display
+    /// factor, or without a stretch set.
+    pub fn needs_whole(&self, t: usize, factor: usize) -> bool {
+        self.stretch.is_none() || factor != self.factor || self.plan.frames.contains(&t)
+    }
+
     /// The display frame's grey levels, and the full frame's where the plan keeps it.
     /// Averaged before stretching, so that only the display's pixels are mapped; the full
     /// frame is mapped only where it is kept.
@@ -231,17 +241,17 @@ impl ReviewEncoder {
         &self,
         stretch: DisplayRange,
         t: usize,
-        raw: &[f32],
-        (factor, averaged): (usize, &[f32]),
+        raw: Option<&[f32]>,
+        averaged: Option<(usize, &[f32])>,
     ) -> (Vec<u8>, Option<Vec<u8>>) {
         let (w, h) = self.size;
         let to_grey = |values: &[f32]| -> Vec<u8> { stretch.levels(values, 255) };
-        let display = if factor == self.factor {
-            to_grey(averaged)
-        } else {
-            to_grey(&box_average(raw, w, h, self.factor))
+        let whole = || raw.expect("the whole frame where the review needs it (see needs_whole)");
+        let display = match averaged {
+            Some((factor, averaged)) if factor == self.factor => to_grey(averaged),
+            _ => to_grey(&box_average(whole(), w, h, self.factor)),
         };
-        let full = self.plan.frames.contains(&t).then(|| to_grey(raw));
+        let full = self.plan.frames.contains(&t).then(|| to_grey(whole()));
         (display, full)
     }
 }
@@ -330,7 +340,7 @@ impl ReviewWriter {
             .stretch
             .get_or_insert_with(|| DisplayRange::from_values(raw));
         // No block average at hand: the display frame is averaged from `raw`.
-        let (display, full) = self.encoder.greys(stretch, t, raw, (0, &[]));
+        let (display, full) = self.encoder.greys(stretch, t, Some(raw), None);
         self.batch.push((t, display, full));
         if self.batch.len() >= ENCODE_BATCH {
             self.encode_batch()?;
