@@ -161,9 +161,10 @@ crate::multiversioned! {
     /// quantised coefficients in zig-zag order.
     fn transform_band / transform_band_with(band: &[u8], divisors: &Divisors, blocks: &mut [[i32; 64]]) {
         for (samples, block) in band.chunks_exact(64).zip(blocks.iter_mut()) {
-            let coefficients = forward_dct(samples);
+            // Quantised in row-major order (one vectorised loop), then put in zig-zag order.
+            let quantised = divisors.quantise_block(&forward_dct(samples));
             for (out, &k) in block.iter_mut().zip(&ZIGZAG) {
-                *out = divisors.quantise(coefficients[k / 8][k % 8], k);
+                *out = quantised[k];
             }
         }
     }
@@ -264,15 +265,17 @@ fn transform_1d<const ROWS: bool>(v: &Lanes) -> Lanes {
 /// integer division is a multiplication by `⌈2^32 / 2q⌉` and a shift (exact while
 /// `(2|c'| + q) · 2q < 2^32`, far beyond the ±2^11 of 8-bit samples).
 struct Divisors {
-    reciprocal: [u64; 64],
-    quantiser: [i32; 64],
+    /// `⌈2^32 / 2q⌉`: at most 2^31 (q = 1), so 32 bits hold it and the product with a 32-bit
+    /// numerator is one unsigned 32 x 32 → 64-bit multiplication, which vector units have.
+    reciprocal: [u32; 64],
+    quantiser: [u32; 64],
 }
 
 impl Divisors {
     fn of(quantisation: &[u8; 64]) -> Divisors {
         Divisors {
-            reciprocal: quantisation.map(|q| (1u64 << 32).div_ceil(2 * u64::from(q))),
-            quantiser: quantisation.map(i32::from),
+            reciprocal: quantisation.map(|q| (1u64 << 32).div_ceil(2 * u64::from(q)) as u32),
+            quantiser: quantisation.map(u32::from),
         }
     }
 
@@ -280,13 +283,23 @@ impl Divisors {
     #[inline(always)]
     fn quantise(&self, c: i32, k: usize) -> i32 {
         let v = c / 8;
-        let numerator = (2 * v.unsigned_abs() + self.quantiser[k] as u32) as u64;
-        let q = ((numerator * self.reciprocal[k]) >> 32) as i32;
+        let numerator = 2 * v.unsigned_abs() + self.quantiser[k];
+        let q = ((u64::from(numerator) * u64::from(self.reciprocal[k])) >> 32) as i32;
         if v < 0 {
             -q
         } else {
             q
         }
+    }
+
+    /// A block's coefficients (`[v][u]`, scaled by 8) quantised, in row-major order.
+    #[inline(always)]
+    fn quantise_block(&self, coefficients: &Lanes) -> [i32; 64] {
+        let mut out = [0i32; 64];
+        for (k, (o, &c)) in out.iter_mut().zip(coefficients.as_flattened()).enumerate() {
+            *o = self.quantise(c, k);
+        }
+        out
     }
 }
 
@@ -314,10 +327,12 @@ impl HuffmanCodes {
 }
 
 /// The entropy-coded segment: bits gathered most significant first in a 64-bit word and
-/// written out a byte at a time, each 0xFF byte followed by a stuffed 0x00 (T.81 F.1.2.3).
+/// written out four bytes at a time, each 0xFF byte followed by a stuffed 0x00 (T.81
+/// F.1.2.3).
 struct BitSink {
     out: Vec<u8>,
     word: u64,
+    /// Bits of `word` not written yet (fewer than 32 between calls).
     filled: u32,
 }
 
@@ -335,13 +350,27 @@ impl BitSink {
     fn put(&mut self, bits: u32, length: u32) {
         self.word = (self.word << length) | u64::from(bits);
         self.filled += length;
-        while self.filled >= 8 {
-            self.filled -= 8;
-            let byte = (self.word >> self.filled) as u8;
-            self.out.push(byte);
-            if byte == 0xff {
-                self.out.push(0);
+        if self.filled >= 32 {
+            self.filled -= 32;
+            self.write_four((self.word >> self.filled) as u32);
+        }
+    }
+
+    /// Writes four bytes, most significant first, stuffing a 0x00 after each 0xFF: copied at
+    /// once when none is 0xFF (no zero byte in the complement, the usual bit trick).
+    #[inline(always)]
+    fn write_four(&mut self, four: u32) {
+        let complement = !four;
+        let has_ff = complement.wrapping_sub(0x0101_0101) & !complement & 0x8080_8080 != 0;
+        if has_ff {
+            for byte in four.to_be_bytes() {
+                self.out.push(byte);
+                if byte == 0xff {
+                    self.out.push(0);
+                }
             }
+        } else {
+            self.out.extend_from_slice(&four.to_be_bytes());
         }
     }
 
@@ -390,6 +419,14 @@ impl BitSink {
     /// that complete a byte are kept (T.81 F.1.2.3 pads the last byte with 1-bits).
     fn finish(mut self) -> Vec<u8> {
         self.put(0x7f, 7);
+        while self.filled >= 8 {
+            self.filled -= 8;
+            let byte = (self.word >> self.filled) as u8;
+            self.out.push(byte);
+            if byte == 0xff {
+                self.out.push(0);
+            }
+        }
         self.out
     }
 }

@@ -205,11 +205,11 @@ impl DownscaledReader<'_> {
         self.reader
             .read_exact(&mut self.bytes)
             .map_err(|e| Error::output(&d.path, e))?;
-        let values = self
-            .bytes
-            .chunks_exact(4)
-            .map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]]));
-        Ok(Some(values.collect()))
+        let mut values = vec![0f32; d.values];
+        for (v, b) in values.iter_mut().zip(self.bytes.chunks_exact(4)) {
+            *v = f32::from_le_bytes(b.try_into().expect("four bytes"));
+        }
+        Ok(Some(values))
     }
 }
 
@@ -612,12 +612,14 @@ impl ContactSheet {
         );
         for (k, tile) in self.tiles.iter().enumerate() {
             let (ox, oy) = (gap + (k % columns) * (w + gap), gap + (k / columns) * (h + gap));
+            let sheet_width = sheet.width() as usize;
             let rows = tile.as_raw().chunks_exact(self.size.0.max(1)).step_by(step);
             for (ty, row) in rows.enumerate() {
-                for (tx, &index) in row.iter().step_by(step).enumerate() {
+                let start = 3 * ((oy + ty) * sheet_width + ox);
+                let out = &mut sheet.as_mut()[start..start + 3 * w];
+                for (rgb, &index) in out.chunks_exact_mut(3).zip(row.iter().step_by(step)) {
                     let i = index as usize * 3;
-                    let (x, y) = ((ox + tx) as u32, (oy + ty) as u32);
-                    sheet.put_pixel(x, y, Rgb([pal[i], pal[i + 1], pal[i + 2]]));
+                    rgb.copy_from_slice(&pal[i..i + 3]);
                 }
             }
         }
