@@ -4,7 +4,8 @@
 use crate::error::{Error, Result};
 use crate::params::SegmentParams;
 use crate::render::box_average;
-use crate::segment::{masks, segment_frame, FrameSegmentation};
+use crate::render::movie::outline_pairs;
+use crate::segment::{masks, segment_frame, FrameSegmentation, MovieFrame};
 use crate::stack::Stack;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::collections::VecDeque;
@@ -39,8 +40,8 @@ struct SegmentedFrames<'a> {
     masks: Option<&'a mut Stack>,
     /// Whether objects from masks are measured on the recording's intensities.
     intensities: bool,
-    /// Block-average each frame by this factor too (see [`FrameSegmentation::downscaled`]).
-    downscale: Option<usize>,
+    /// What is kept of each frame besides its segmentation.
+    keep: Keep,
     params: Arc<SegmentParams>,
     /// Frames not decoded yet.
     range: std::ops::Range<usize>,
@@ -53,6 +54,29 @@ struct SegmentedFrames<'a> {
     progress: ProgressBar,
 }
 
+/// What frame production keeps of each frame besides its segmentation's measurements.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Keep {
+    /// The label image ([`FrameSegmentation::labels`]; left empty otherwise, so that it is
+    /// freed on the worker instead of queued).
+    pub labels: bool,
+    /// The movie's share ([`FrameSegmentation::movie`]): the outline pixels.
+    pub outline: bool,
+    /// With the outline, the frame downscaled by this factor for the movie.
+    pub downscale: Option<usize>,
+}
+
+impl Default for Keep {
+    /// The labels, nothing for the movie.
+    fn default() -> Self {
+        Keep {
+            labels: true,
+            outline: false,
+            downscale: None,
+        }
+    }
+}
+
 /// A decoded frame and, with masks, its labels.
 type Decoded = (crate::stack::Frame, Option<Vec<u32>>);
 
@@ -63,9 +87,9 @@ impl<'a> SegmentedFrames<'a> {
         self
     }
 
-    /// Also block-averages each frame by `factor` (when given).
-    fn downscaled_by(mut self, factor: Option<usize>) -> Self {
-        self.downscale = factor;
+    /// Keeps `keep` of each frame.
+    fn keeping(mut self, keep: Keep) -> Self {
+        self.keep = keep;
         self
     }
 
@@ -81,7 +105,7 @@ impl<'a> SegmentedFrames<'a> {
             stack,
             masks,
             intensities,
-            downscale: None,
+            keep: Keep::default(),
             params: Arc::new(params.clone()),
             range: first.min(frames)..frames,
             in_flight: VecDeque::new(),
@@ -117,7 +141,7 @@ impl<'a> SegmentedFrames<'a> {
     /// with the result, to be raised on the thread that reads it.
     fn spawn(&self, (frame, labels): Decoded) -> Receiver<std::thread::Result<FrameSegmentation>> {
         let (sender, receiver) = std::sync::mpsc::sync_channel(1);
-        let (params, intensities, downscale) = (Arc::clone(&self.params), self.intensities, self.downscale);
+        let (params, intensities, keep) = (Arc::clone(&self.params), self.intensities, self.keep);
         rayon::spawn(move || {
             let segmented = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
                 let image = frame.to_image();
@@ -125,12 +149,22 @@ impl<'a> SegmentedFrames<'a> {
                     Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
                     None => segment_frame(&image, frame.index, &params),
                 };
-                let values = image.as_slice().expect("standard layout");
-                FrameSegmentation {
+                let mut segmented = FrameSegmentation {
                     content_crc32: Some(frame.content_crc32()),
-                    downscaled: downscale.map(|f| box_average(values, frame.width, frame.height, f)),
                     ..segmented
+                };
+                if keep.outline {
+                    let (w, h) = (frame.width, frame.height);
+                    let values = image.as_slice().expect("standard layout");
+                    segmented.movie = Some(MovieFrame {
+                        outline: outline_pairs(&segmented.labels, w, h),
+                        downscaled: keep.downscale.map(|f| box_average(values, w, h, f)),
+                    });
                 }
+                if !keep.labels {
+                    segmented.labels = Vec::new();
+                }
+                segmented
             }));
             // The reader may have stopped early; then nobody wants this frame.
             let _ = sender.send(segmented);
@@ -162,7 +196,7 @@ impl Iterator for SegmentedFrames<'_> {
 
 /// Runs `consume` on the segmented frames `range` of `stack` (segmented by `masks` when given,
 /// measured on the recording's intensities when `intensities`, each also block-averaged by
-/// `downscale` when given: [`FrameSegmentation::downscaled`]), in frame order, while the next
+/// `keep` asks for), in frame order, while the next
 /// frames are being segmented: a producer thread decodes frames and has them segmented (on the
 /// worker pool), and hands results over a short queue, so writing tables, logging and linking
 /// on the calling thread do not leave the workers idle.
@@ -171,7 +205,7 @@ pub fn with_segmented_frames<T>(
     (stack, masks, intensities): (&mut Stack, Option<&mut Stack>, bool),
     params: &SegmentParams,
     progress: ProgressBar,
-    (range, downscale): (std::ops::Range<usize>, Option<usize>),
+    (range, keep): (std::ops::Range<usize>, Keep),
     consume: impl FnOnce(&mut dyn Iterator<Item = Result<FrameSegmentation>>) -> T,
 ) -> T {
     let queue = 2 * rayon::current_num_threads().max(1);
@@ -180,7 +214,7 @@ pub fn with_segmented_frames<T>(
         let producer = scope.spawn(move || {
             let frames = SegmentedFrames::starting_at((stack, masks, intensities), params, progress, range.start)
                 .until(range.end)
-                .downscaled_by(downscale);
+                .keeping(keep);
             for seg in frames {
                 if sender.send(seg).is_err() {
                     break;

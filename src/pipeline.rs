@@ -6,7 +6,7 @@ use crate::analyze::{summarize_track, write_per_track, TrackSummary};
 use crate::checkpoint::{CheckpointLog, Fingerprint, FrameRecord};
 use crate::columns::{write_header, write_rows, Column};
 use crate::error::{Error, Result};
-use crate::frames::{progress_bar, with_segmented_frames};
+use crate::frames::{progress_bar, with_segmented_frames, Keep};
 use crate::link::divide::DivisionEvent;
 use crate::link::estimate::MotionSource;
 use crate::link::online::OnlineLinker;
@@ -176,15 +176,19 @@ pub fn run_recording(
     }
     let mut spool = pass.spool(dir, &work, outputs, checkpoint.is_some())?;
     let first = checkpoint.as_ref().map_or(0, |c| c.frames_done());
-    let downscale = keep_downscaled(spool.as_mut(), outputs, &info, &work, first)?;
+    let keep = Keep {
+        labels: outputs.labels,
+        outline: spool.is_some(),
+        downscale: keep_downscaled(spool.as_mut(), outputs, &info, &work, first)?,
+    };
     let progress = progress_bar(info.frames as u64, "frames");
     progress.set_position(first as u64);
     let mut handle = |mut seg: FrameSegmentation| -> Result<Vec<u32>> {
-        let downscaled = seg.downscaled.take();
+        let movie = seg.movie.take();
         let (record, labels) = FrameRecord::of(seg);
-        if let Some(s) = spool.as_mut() {
-            s.push(&labels, info.width, info.height)?;
-            if let Some(values) = downscaled {
+        if let (Some(s), Some(movie)) = (spool.as_mut(), movie) {
+            s.push_outline(&movie.outline)?;
+            if let Some(values) = movie.downscaled {
                 s.push_downscaled(record.frame, &values)?;
             }
         }
@@ -196,7 +200,7 @@ pub fn run_recording(
     };
     let frames = first..info.frames;
     let source = (&mut *stack, masks.as_mut(), !outputs.masks_without_intensities);
-    with_segmented_frames(source, params, progress, (frames, downscale), |segmented| {
+    with_segmented_frames(source, params, progress, (frames, keep), |segmented| {
         if outputs.labels {
             write_stack::<u32, _>(
                 &work.join("labels.tif"),

@@ -6,7 +6,7 @@
 
 use crate::checkpoint::{Fingerprint, FrameRecord};
 use crate::error::{Error, Result};
-use crate::frames::{progress_bar, with_segmented_frames};
+use crate::frames::{progress_bar, with_segmented_frames, Keep};
 use crate::output::write_atomic;
 use crate::params::SegmentParams;
 use crate::pipeline::{finish_run, DiameterSource, FirstPass, RunOptions, RunOutcome};
@@ -92,7 +92,7 @@ pub fn write_shard(
         (stack, None, true),
         params,
         progress,
-        (range.0..range.1, None),
+        (range.0..range.1, Keep::default()),
         |segmented| -> Result<()> {
             for seg in segmented {
                 let (record, labels) = FrameRecord::of(seg?);

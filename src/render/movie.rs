@@ -137,27 +137,16 @@ impl OutlineSpool {
         Ok(w.get_ref().metadata().map_err(|e| Error::output(&self.path, e))?.len())
     }
 
-    /// Appends one frame's outline pixels as (pixel index, label) pairs.
+    /// Appends one frame's outline pixels ([`outline_pairs`] of its labels).
     pub fn push(&mut self, labels: &[u32], width: usize, height: usize) -> Result<()> {
-        const RUN: usize = 32;
-        let mut pairs: Vec<u32> = Vec::new();
-        // Row by row (no division per pixel); most pixels are background, so runs of 32 are
-        // first tested as a whole (one vectorised OR) and only those with an object looked into.
-        for (y, row) in labels.chunks_exact(width.max(1)).take(height).enumerate() {
-            for (k, run) in row.chunks(RUN).enumerate() {
-                if run.iter().fold(0, |any, &l| any | l) == 0 {
-                    continue;
-                }
-                for (x, &l) in (k * RUN..).zip(run) {
-                    if l != 0 && is_edge(labels, width, height, x, y) {
-                        pairs.extend([(y * width + x) as u32, l]);
-                    }
-                }
-            }
-        }
+        self.push_outline(&outline_pairs(labels, width, height))
+    }
+
+    /// Appends one frame's outline pixels, given as [`outline_pairs`].
+    pub fn push_outline(&mut self, pairs: &[u32]) -> Result<()> {
         let w = self.writer.as_mut().expect("still writing");
         let bytes: Vec<u8> = std::iter::once((pairs.len() / 2) as u32)
-            .chain(pairs)
+            .chain(pairs.iter().copied())
             .flat_map(u32::to_le_bytes)
             .collect();
         w.write_all(&bytes).map_err(|e| Error::output(&self.path, e))
@@ -211,6 +200,28 @@ impl DownscaledReader<'_> {
         }
         Ok(Some(values))
     }
+}
+
+/// The outline pixels of a label image (object pixels on the image border or with a
+/// 4-neighbour of another label, [`is_edge`]) as (pixel index, label) pairs in raster order.
+pub fn outline_pairs(labels: &[u32], width: usize, height: usize) -> Vec<u32> {
+    const RUN: usize = 32;
+    let mut pairs: Vec<u32> = Vec::new();
+    // Row by row (no division per pixel); most pixels are background, so runs of 32 are first
+    // tested as a whole (one vectorised OR) and only those with an object looked into.
+    for (y, row) in labels.chunks_exact(width.max(1)).take(height).enumerate() {
+        for (k, run) in row.chunks(RUN).enumerate() {
+            if run.iter().fold(0, |any, &l| any | l) == 0 {
+                continue;
+            }
+            for (x, &l) in (k * RUN..).zip(run) {
+                if l != 0 && is_edge(labels, width, height, x, y) {
+                    pairs.extend([(y * width + x) as u32, l]);
+                }
+            }
+        }
+    }
+    pairs
 }
 
 impl Drop for OutlineSpool {
@@ -634,6 +645,37 @@ impl ContactSheet {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn outline_pairs_are_the_edge_pixels_in_raster_order() {
+        // Source: definition (an object pixel on the image border or with a 4-neighbour of
+        // another label), pixel by pixel, on label images of blobs with widths that do and do
+        // not fill the 32-pixel runs the search skips by, and on empty and one-pixel images.
+        let mut rng = crate::numeric::Rng::new(4);
+        for (w, h) in [(1usize, 1usize), (0, 0), (31, 5), (32, 7), (70, 40)] {
+            let labels: Vec<u32> = (0..w * h)
+                .map(|i| {
+                    let (x, y) = ((i % w) as f64, (i / w) as f64);
+                    let blob = ((x / 6.0).sin() * (y / 4.0).cos() > 0.3) as u32;
+                    blob * (1 + (rng.uniform() * 3.0) as u32)
+                })
+                .collect();
+            let at = |x: i64, y: i64| {
+                let inside = (0..w as i64).contains(&x) && (0..h as i64).contains(&y);
+                inside.then(|| labels[y as usize * w + x as usize])
+            };
+            let mut want = Vec::new();
+            for (i, &l) in labels.iter().enumerate() {
+                let (x, y) = ((i % w) as i64, (i / w) as i64);
+                let neighbours = [at(x - 1, y), at(x + 1, y), at(x, y - 1), at(x, y + 1)];
+                if l != 0 && neighbours.iter().any(|n| *n != Some(l)) {
+                    want.extend([i as u32, l]);
+                }
+            }
+            assert!(w * h < 100 || !want.is_empty());
+            assert_eq!(outline_pairs(&labels, w, h), want, "{w}x{h}");
+        }
+    }
 
     #[test]
     fn time_captions_and_palette() {

@@ -94,7 +94,7 @@ pub fn segment_from_mask(mask: &[u32], raw: &Image, frame: usize, intensities: b
         nonfinite_pixels: intensity.iter().filter(|v| !v.is_finite()).count(),
         size_filter: SizeFilterCounts::default(),
         content_crc32: None,
-        downscaled: None,
+        movie: None,
     }
 }
 

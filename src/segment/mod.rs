@@ -46,9 +46,21 @@ pub struct FrameSegmentation {
     /// CRC-32 of the decoded frame ([`crate::stack::Frame::content_crc32`]), set by frame
     /// production; `None` for an image segmented on its own.
     pub content_crc32: Option<u32>,
-    /// The frame block-averaged ([`crate::render::box_average`]) by the factor frame
-    /// production was asked for: the QC movie's frame before it is drawn on, kept so that the
-    /// movie need not decode the frame again. `None` when not asked for.
+    /// What frame production kept of the frame for the QC movie, when asked
+    /// ([`crate::frames::Keep`]); `None` otherwise.
+    pub movie: Option<MovieFrame>,
+}
+
+/// What the QC movie needs of a frame, taken by frame production on the worker that
+/// segmented it (the label image is at hand there, in cache, and need not travel).
+#[derive(Debug, Clone, PartialEq)]
+pub struct MovieFrame {
+    /// Outline pixels as (pixel index, label) pairs in raster order
+    /// ([`crate::render::movie::outline_pairs`]).
+    pub outline: Vec<u32>,
+    /// The frame block-averaged ([`crate::render::box_average`]) by the factor asked for: the
+    /// movie's frame before it is drawn on, kept so that the movie need not decode the frame
+    /// again. `None` when not asked for.
     pub downscaled: Option<Vec<f32>>,
 }
 
@@ -121,7 +133,7 @@ pub(crate) fn segment_frame_and_prepared(
         nonfinite_pixels,
         size_filter,
         content_crc32: None,
-        downscaled: None,
+        movie: None,
     };
     (segmentation, prepared)
 }
