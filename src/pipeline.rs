@@ -392,7 +392,8 @@ pub(crate) fn finish_run(
 }
 
 /// The second pass over the frames, after linking: the QC movie and the review page, each
-/// frame decoded once for both. The review page is made from `tracks.csv` as written, so that
+/// frame read once for both (from the spool of downscaled frames where the first pass kept
+/// them, otherwise decoded again). The review page is made from `tracks.csv` as written, so that
 /// `caravan review` on the folder gives the same page byte for byte.
 fn second_pass(
     stack: &mut Stack,

@@ -269,8 +269,10 @@ pub struct MovieOutputs {
 }
 
 /// Renders `qc_movie.gif` and `qc_sheet.png` into `dir` (a second pass over the frames), and
-/// hands every frame to the review page's writer when one is given, so that the frames are
-/// decoded once for both.
+/// hands every frame to the review page's writer when one is given, so that each frame is
+/// read once for both: from the spool's downscaled frames where it kept them
+/// ([`OutlineSpool::keep_downscaled`]), decoding again only the frames whose samples are
+/// needed (the first, for the contrast; the review's full-resolution ones).
 ///
 /// Colours: 240 grey levels plus our overlay palette, fixed for the whole movie so that a
 /// track keeps its colour; the contrast stretch is taken from the first frame and kept, so
