@@ -195,7 +195,7 @@ impl Iterator for SegmentedFrames<'_> {
 }
 
 /// Runs `consume` on the segmented frames `range` of `stack` (segmented by `masks` when given,
-/// measured on the recording's intensities when `intensities`, each also block-averaged by
+/// measured on the recording's intensities when `intensities`, keeping of each frame what
 /// `keep` asks for), in frame order, while the next
 /// frames are being segmented: a producer thread decodes frames and has them segmented (on the
 /// worker pool), and hands results over a short queue, so writing tables, logging and linking

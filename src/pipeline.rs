@@ -17,7 +17,9 @@ use crate::params::{Length, SegmentParams};
 use crate::qc::{count_jumps, linking_qc, warnings_for, RunWarning};
 pub use crate::record::{DiameterSource, FrameSummary, LinkingQc};
 use crate::record::{RunCounts, RunInput, RunParameters, RunRecord, Timings, RESEARCH_USE};
-use crate::render::movie::{render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay};
+use crate::render::movie::{
+    render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay, DOWNSCALED_BUDGET_BYTES,
+};
 use crate::render::review::{ReviewOptions, ReviewOutputs, ReviewWriter};
 use crate::review::{offer_all_frames, read_linked_points, review_input, RunView};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
@@ -186,7 +188,8 @@ pub fn run_recording(
     let mut handle = |mut seg: FrameSegmentation| -> Result<Vec<u32>> {
         let movie = seg.movie.take();
         let (record, labels) = FrameRecord::of(seg);
-        if let (Some(s), Some(movie)) = (spool.as_mut(), movie) {
+        if let Some(s) = spool.as_mut() {
+            let movie = movie.expect("frame production keeps the movie's share when a spool is kept");
             s.push_outline(&movie.outline)?;
             if let Some(values) = movie.downscaled {
                 s.push_downscaled(record.frame, &values)?;
@@ -260,7 +263,7 @@ fn keep_downscaled(
         return Ok(None);
     }
     let values = info.width.div_ceil(factor) * info.height.div_ceil(factor);
-    spool.keep_downscaled(work, first, values)?;
+    spool.keep_downscaled(work, first, values, DOWNSCALED_BUDGET_BYTES)?;
     Ok(Some(factor))
 }
 

@@ -592,16 +592,23 @@ fn assert_same_run_outputs(a: &Path, b: &Path) {
     ]
     .map(String::from)
     .to_vec();
-    // Every file of the review page's folder too.
-    for sub in ["", "frames", "full", "data"] {
-        let dir = a.join("review").join(sub);
-        for entry in std::fs::read_dir(&dir).unwrap() {
-            let path = entry.unwrap().path();
-            if path.is_file() {
-                names.push(path.strip_prefix(a).unwrap().to_string_lossy().into_owned());
+    // Every file of the review page's folder too, the same files in both.
+    let review_files = |run: &Path| -> Vec<String> {
+        let mut files = Vec::new();
+        for sub in ["", "frames", "full", "data"] {
+            for entry in std::fs::read_dir(run.join("review").join(sub)).unwrap() {
+                let path = entry.unwrap().path();
+                if path.is_file() {
+                    files.push(path.strip_prefix(run).unwrap().to_string_lossy().into_owned());
+                }
             }
         }
-    }
+        files.sort();
+        files
+    };
+    let reviewed = review_files(a);
+    assert_eq!(reviewed, review_files(b));
+    names.extend(reviewed);
     assert!(names.len() > 8, "{names:?}");
     for name in names {
         assert_eq!(

@@ -357,20 +357,25 @@ impl BitSink {
     }
 
     /// Writes four bytes, most significant first, stuffing a 0x00 after each 0xFF: copied at
-    /// once when none is 0xFF (no zero byte in the complement, the usual bit trick).
+    /// once when none is 0xFF, that is when the complement has no zero byte (the has-zero-byte
+    /// test of S. E. Anderson's "Bit Twiddling Hacks", from memory).
     #[inline(always)]
     fn write_four(&mut self, four: u32) {
         let complement = !four;
         let has_ff = complement.wrapping_sub(0x0101_0101) & !complement & 0x8080_8080 != 0;
         if has_ff {
-            for byte in four.to_be_bytes() {
-                self.out.push(byte);
-                if byte == 0xff {
-                    self.out.push(0);
-                }
-            }
+            four.to_be_bytes().into_iter().for_each(|byte| self.push_stuffed(byte));
         } else {
             self.out.extend_from_slice(&four.to_be_bytes());
+        }
+    }
+
+    /// Writes one byte, and a stuffed 0x00 after a 0xFF.
+    #[inline(always)]
+    fn push_stuffed(&mut self, byte: u8) {
+        self.out.push(byte);
+        if byte == 0xff {
+            self.out.push(0);
         }
     }
 
@@ -421,11 +426,7 @@ impl BitSink {
         self.put(0x7f, 7);
         while self.filled >= 8 {
             self.filled -= 8;
-            let byte = (self.word >> self.filled) as u8;
-            self.out.push(byte);
-            if byte == 0xff {
-                self.out.push(0);
-            }
+            self.push_stuffed((self.word >> self.filled) as u8);
         }
         self.out
     }

@@ -53,7 +53,14 @@ struct DownscaledSpool {
     held: usize,
     /// Values per frame.
     values: usize,
+    /// Frames it may hold at most (its budget of bytes).
+    most: usize,
 }
+
+/// Bytes of downscaled frames a spool keeps at most: 1 GiB, about 1000 frames of a 1024²
+/// recording at the movie's default size (frames after that are decoded again by the movie
+/// pass, so a very long recording does not fill the disk with a temporary file).
+pub const DOWNSCALED_BUDGET_BYTES: usize = 1 << 30;
 
 impl Drop for DownscaledSpool {
     fn drop(&mut self) {
@@ -92,8 +99,9 @@ impl OutlineSpool {
     }
 
     /// Also keeps the frames from `first` on, downscaled to `values` samples each
-    /// ([`OutlineSpool::push_downscaled`]), in a temporary file in `dir`.
-    pub fn keep_downscaled(&mut self, dir: &Path, first: usize, values: usize) -> Result<()> {
+    /// ([`OutlineSpool::push_downscaled`]), in a temporary file in `dir` of at most
+    /// `budget_bytes` ([`DOWNSCALED_BUDGET_BYTES`] in a run).
+    pub fn keep_downscaled(&mut self, dir: &Path, first: usize, values: usize, budget_bytes: usize) -> Result<()> {
         let path = dir.join(format!(".downscaled.partial-{}", std::process::id()));
         let file = File::create(&path).map_err(|e| Error::output(&path, e))?;
         self.downscaled = Some(DownscaledSpool {
@@ -102,19 +110,19 @@ impl OutlineSpool {
             first,
             held: 0,
             values,
+            most: budget_bytes / (4 * values).max(1),
         });
         Ok(())
     }
 
-    /// Appends frame `t` downscaled for the movie (the frame after the last one kept, and of
-    /// the size given to [`OutlineSpool::keep_downscaled`]; otherwise the spool stops keeping
-    /// frames, and the movie pass decodes the rest).
+    /// Appends frame `t` downscaled for the movie, if it is the frame after the last one kept,
+    /// of the size given to [`OutlineSpool::keep_downscaled`] and within the budget; the movie
+    /// pass decodes the frames not kept.
     pub fn push_downscaled(&mut self, t: usize, values: &[f32]) -> Result<()> {
         let Some(d) = self.downscaled.as_mut() else {
             return Ok(());
         };
-        if t != d.first + d.held || values.len() != d.values {
-            self.downscaled = None;
+        if t != d.first + d.held || values.len() != d.values || d.held >= d.most {
             return Ok(());
         }
         let bytes: Vec<u8> = values.iter().flat_map(|v| v.to_le_bytes()).collect();
@@ -314,9 +322,10 @@ pub fn render_movie(
                 Some(d) => d.frame(t)?,
                 None => None,
             };
-            let raw = match averaged.is_none() || whole(t) {
-                true => Some(stack.read_frame(t)?.pixels.to_f32()),
-                false => None,
+            let raw = if averaged.is_none() || whole(t) {
+                Some(stack.read_frame(t)?.pixels.to_f32())
+            } else {
+                None
             };
             Ok(FrameToDraw {
                 t,
@@ -647,6 +656,32 @@ impl ContactSheet {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_downscaled_spool_keeps_frames_in_order_within_its_budget() {
+        // Construction: a budget of two and a half frames of 6 values, frames from 3 on. The
+        // first two are read back as written (the same bits, NaN and −0 included); the third
+        // is over the budget, a frame out of order or of another size is not kept, and frames
+        // before the first were never kept: the movie pass decodes those.
+        let dir = tempfile::tempdir().unwrap();
+        let mut spool = OutlineSpool::create(dir.path()).unwrap();
+        spool.keep_downscaled(dir.path(), 3, 6, 4 * 6 * 5 / 2).unwrap();
+        let frame = |t: usize| -> Vec<f32> { (0..6).map(|i| (t * 10 + i) as f32 * 0.37).collect() };
+        let mut odd = frame(3);
+        odd[1] = f32::NAN;
+        odd[2] = -0.0;
+        spool.push_downscaled(3, &odd).unwrap();
+        spool.push_downscaled(5, &frame(5)).unwrap(); // out of order: not kept
+        spool.push_downscaled(4, &frame(4)[..5]).unwrap(); // another size: not kept
+        spool.push_downscaled(4, &frame(4)).unwrap();
+        spool.push_downscaled(5, &frame(5)).unwrap(); // over the budget
+        let mut reader = spool.downscaled_reader().unwrap().unwrap();
+        let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(reader.frame(2).unwrap(), None);
+        assert_eq!(bits(&reader.frame(3).unwrap().unwrap()), bits(&odd));
+        assert_eq!(reader.frame(4).unwrap(), Some(frame(4)));
+        assert_eq!(reader.frame(5).unwrap(), None);
+    }
 
     #[test]
     fn outline_pairs_are_the_edge_pixels_in_raster_order() {

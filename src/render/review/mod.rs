@@ -213,6 +213,10 @@ impl ReviewEncoder {
     /// its block average by some factor when the caller has it (the movie's downscale,
     /// [`crate::render::box_average`], used when it is the display's factor). `raw` may be
     /// left out where [`ReviewEncoder::needs_whole`] says so.
+    ///
+    /// # Panics
+    /// If `raw` is left out where [`ReviewEncoder::needs_whole`] asks for it (a caller's
+    /// mistake, not the data's).
     pub fn encode(&self, t: usize, raw: Option<&[f32]>, averaged: Option<(usize, &[f32])>) -> EncodedFrame {
         let stretch = self
             .stretch
