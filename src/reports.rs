@@ -8,7 +8,8 @@ use crate::analyze::population::Analysis;
 use crate::analyze::population::AnalysisOptions;
 use crate::analyze::profiles::{Direction, ProfileBin};
 use crate::analyze::resample::{Interval, ModelIntervals};
-use crate::analyze::run::{write_analysis_tables, AnalysisRun, ANALYSIS_TABLES};
+use crate::analyze::run::{write_tables_of, AnalysisRun, ANALYSIS_TABLES};
+use crate::analyze::table::read_tracks;
 use crate::analyze::table::{CalibrationOverride, Filters};
 use crate::error::Result;
 use crate::output::write_atomic;
@@ -42,8 +43,23 @@ pub fn run_analysis(
     options: &AnalysisOptions,
     dir: &Path,
 ) -> Result<AnalysisRun> {
-    let run = write_analysis_tables(input, calibration, filters, options, dir)?;
-    let page = analysis_page(&run, filters, dir);
+    let table = read_tracks(input, calibration)?;
+    // The frames worth a look (the review page's moments, from the run folder's tracks.csv)
+    // are found while the analysis runs: they need only the run's record.
+    let run_folder = table
+        .run_record
+        .clone()
+        .zip(table.source.parent().map(Path::to_path_buf));
+    let (run, flagged) = rayon::join(
+        || write_tables_of(table, filters, options, dir),
+        || {
+            run_folder
+                .as_ref()
+                .map(|(record, run_dir)| crate::report_text::flagged_frames(run_dir, record))
+        },
+    );
+    let run = run?;
+    let page = analysis_page(&run, filters, dir, flagged.unwrap_or_default());
     write_atomic(&dir.join("report.html"), analysis_report(&page).as_bytes())?;
     Ok(run)
 }
@@ -72,7 +88,11 @@ struct FromRunFolder {
     review_page: Option<String>,
 }
 
-fn from_run_folder(run: &AnalysisRun, report_dir: &Path) -> FromRunFolder {
+fn from_run_folder(
+    run: &AnalysisRun,
+    report_dir: &Path,
+    flagged: Vec<crate::render::report::FlaggedFrame>,
+) -> FromRunFolder {
     let none = FromRunFolder {
         tracking_parameters: Vec::new(),
         flagged: Vec::new(),
@@ -84,7 +104,7 @@ fn from_run_folder(run: &AnalysisRun, report_dir: &Path) -> FromRunFolder {
     };
     FromRunFolder {
         tracking_parameters: crate::report_text::tracking_parameters(record),
-        flagged: crate::report_text::flagged_frames(run_dir, record),
+        flagged,
         expected_accuracy: crate::report_text::expected_accuracy(&run_dir.join("lookalike").join("summary.json")),
         review_page: run_dir
             .join("review")
@@ -96,8 +116,13 @@ fn from_run_folder(run: &AnalysisRun, report_dir: &Path) -> FromRunFolder {
 
 /// What the analysis page shows, taken from the analysis, its filters and the tracking run's
 /// folder.
-fn analysis_page<'a>(run: &'a AnalysisRun, filters: &Filters, report_dir: &Path) -> AnalysisPage<'a> {
-    let folder = from_run_folder(run, report_dir);
+fn analysis_page<'a>(
+    run: &'a AnalysisRun,
+    filters: &Filters,
+    report_dir: &Path,
+    flagged: Vec<crate::render::report::FlaggedFrame>,
+) -> AnalysisPage<'a> {
+    let folder = from_run_folder(run, report_dir, flagged);
     let a = &run.analysis;
     let (l, t) = (a.units.length.as_str(), a.units.time.as_str());
     let dt = a.units.time_per_frame;

@@ -63,7 +63,20 @@ pub fn write_analysis_tables(
     options: &AnalysisOptions,
     dir: &Path,
 ) -> Result<AnalysisRun> {
-    let (table, analysis) = analyze_input(input, calibration, filters, options)?;
+    write_tables_of(read_tracks(input, calibration)?, filters, options, dir)
+}
+
+/// [`write_analysis_tables`] for tracks already read.
+///
+/// # Errors
+/// No track left after filtering; outputs not writable.
+pub fn write_tables_of(
+    table: TrackTable,
+    filters: &Filters,
+    options: &AnalysisOptions,
+    dir: &Path,
+) -> Result<AnalysisRun> {
+    let analysis = analyze_table(&table, filters, options)?;
     ensure_dir(dir)?;
     write_table(dir, "track_stats.csv", |w| write_track_stats(w, &analysis))?;
     write_table(dir, "steps.csv", |w| write_steps(w, &analysis))?;

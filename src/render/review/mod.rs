@@ -426,14 +426,20 @@ impl ReviewWriter {
                 std::io::Error::other(format!("{} of {} frames offered", self.offered, self.input.frames)),
             ));
         }
-        let run = page::run_script(&self.input, self.encoder.factor, &self.encoder.plan);
+        // The three data files are made at once (the shapes, the largest, frame by frame in
+        // parallel within); written in a fixed order.
+        let (run, (tracks, shapes)) = rayon::join(
+            || page::run_script(&self.input, self.encoder.factor, &self.encoder.plan),
+            || {
+                rayon::join(
+                    || page::tracks_script(&self.input.tracks),
+                    || page::shape_scripts(&self.input, FRAMES_PER_CHUNK),
+                )
+            },
+        );
         self.write("data/run.js", run.as_bytes())?;
-        let tracks = page::tracks_script(&self.input.tracks);
         self.write("data/tracks.js", tracks.as_bytes())?;
-        for (k, script) in page::shape_scripts(&self.input, FRAMES_PER_CHUNK)
-            .into_iter()
-            .enumerate()
-        {
+        for (k, script) in shapes.into_iter().enumerate() {
             self.write(&format!("data/shapes_{k:04}.js"), script.as_bytes())?;
         }
         let html = page::html(&self.input.title);

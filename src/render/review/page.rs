@@ -4,6 +4,7 @@
 
 use super::{compact, push_numbers, FullFramePlan, MomentKind, ReviewInput, ReviewTrack};
 use crate::render::PALETTE;
+use rayon::prelude::*;
 use std::fmt::Write as _;
 
 const STYLE: &str = include_str!("page.css");
@@ -108,29 +109,39 @@ pub(super) fn shape_scripts(input: &ReviewInput, chunk: usize) -> Vec<String> {
         .chunks(chunk.max(1))
         .enumerate()
         .map(|(k, frames)| {
+            // Each frame's line on its own (in parallel), then joined in frame order.
+            let lines: Vec<String> = frames.par_iter().map(|objects| frame_shapes(objects)).collect();
             let mut out = format!("caravanShapes({k},[\n");
-            for (i, objects) in frames.iter().enumerate() {
-                let mut objects = objects.clone();
-                objects.sort_by_key(|o| o.0);
-                push_numbers(
-                    &mut out,
-                    objects.iter().flat_map(|(id, p)| {
-                        [
-                            id.to_string(),
-                            compact(p.x, 1),
-                            compact(p.y, 1),
-                            compact(p.axes.0, 1),
-                            compact(p.axes.1, 1),
-                            compact(p.angle_deg, 0),
-                        ]
-                    }),
-                );
-                out.push_str(if i + 1 < frames.len() { ",\n" } else { "\n" });
+            for (i, line) in lines.iter().enumerate() {
+                out.push_str(line);
+                out.push_str(if i + 1 < lines.len() { ",\n" } else { "\n" });
             }
             out.push_str("]);\n");
             out
         })
         .collect()
+}
+
+/// One frame's objects as a JSON array: for each, in track order, its track, centre, axes and
+/// angle.
+fn frame_shapes(objects: &[(u32, &super::ReviewPoint)]) -> String {
+    let mut objects = objects.to_vec();
+    objects.sort_by_key(|o| o.0);
+    let mut out = String::new();
+    push_numbers(
+        &mut out,
+        objects.iter().flat_map(|(id, p)| {
+            [
+                id.to_string(),
+                compact(p.x, 1),
+                compact(p.y, 1),
+                compact(p.axes.0, 1),
+                compact(p.axes.1, 1),
+                compact(p.angle_deg, 0),
+            ]
+        }),
+    );
+    out
 }
 
 /// The key a moment kind has in the data (and in the page's filter).
