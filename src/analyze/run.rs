@@ -6,7 +6,7 @@ use super::outputs::{
     write_neighbour_correlation, write_order, write_profiles, write_steps, write_stream, write_track_stats,
 };
 use super::population::{analyze_tracks_among, remove_common_drift, Analysis, AnalysisOptions};
-use super::table::{apply_filters, read_tracks, CalibrationOverride, Filters, Track, TrackTable};
+use super::table::{apply_filters, Filters, Track, TrackTable};
 use crate::error::{Error, Result};
 use crate::output::{ensure_dir, write_atomic, AtomicFile};
 use std::io::Write;
@@ -52,21 +52,8 @@ pub fn default_output_dir(input: &Path) -> PathBuf {
     }
 }
 
-/// Reads, filters and analyses `input`, then writes the tables and `summary.json` into `dir`.
-///
-/// # Errors
-/// Unreadable or malformed input; no track left after filtering; outputs not writable.
-pub fn write_analysis_tables(
-    input: &Path,
-    calibration: CalibrationOverride,
-    filters: &Filters,
-    options: &AnalysisOptions,
-    dir: &Path,
-) -> Result<AnalysisRun> {
-    write_tables_of(read_tracks(input, calibration)?, filters, options, dir)
-}
-
-/// [`write_analysis_tables`] for tracks already read.
+/// Filters and analyses tracks already read ([`super::table::read_tracks`]), then writes the
+/// tables and `summary.json` into `dir`.
 ///
 /// # Errors
 /// No track left after filtering; outputs not writable.
@@ -121,21 +108,6 @@ pub fn write_tables_of(
         analysis,
         summary: population,
     })
-}
-
-/// Reads, filters and analyses `input` without writing anything.
-///
-/// # Errors
-/// Unreadable or malformed input; no track left after filtering.
-pub fn analyze_input(
-    input: &Path,
-    calibration: CalibrationOverride,
-    filters: &Filters,
-    options: &AnalysisOptions,
-) -> Result<(TrackTable, Analysis)> {
-    let table = read_tracks(input, calibration)?;
-    let analysis = analyze_table(&table, filters, options)?;
-    Ok((table, analysis))
 }
 
 /// Filters and analyses tracks already read.
