@@ -2,8 +2,8 @@
 //! handed over in frame order, with progress on a terminal.
 
 use crate::error::{Error, Result};
+use crate::image2d::box_average;
 use crate::params::SegmentParams;
-use crate::render::box_average;
 use crate::render::movie::outline_pairs;
 use crate::segment::{masks, segment_frame, FrameSegmentation, MovieFrame};
 use crate::stack::Stack;

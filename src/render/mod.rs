@@ -12,4 +12,5 @@ mod preview;
 pub mod report;
 pub mod review;
 
-pub use preview::{box_average, caption, is_edge, outline_preview, stretch_to_u8, DisplayRange, PALETTE};
+pub use crate::image2d::box_average;
+pub use preview::{caption, is_edge, outline_preview, stretch_to_u8, DisplayRange, PALETTE};

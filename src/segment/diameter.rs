@@ -416,30 +416,17 @@ pub fn central_crop(image: &Image, max_side: usize) -> std::borrow::Cow<'_, Imag
     std::borrow::Cow::Owned(image.slice(ndarray::s![y0..y0 + ch, x0..x0 + cw]).to_owned())
 }
 
-/// Mean over `factor` x `factor` blocks (edge blocks averaged over what exists).
+/// Mean over `factor` x `factor` blocks (edge blocks averaged over what exists):
+/// [`crate::image2d::box_average`], as an image.
 fn bin(image: &Image, factor: usize) -> Image {
     if factor == 1 {
         return image.clone();
     }
     let (h, w) = image.dim();
-    let (bh, bw) = (h.div_ceil(factor), w.div_ceil(factor));
     let standard = image.as_standard_layout();
     let values = standard.as_slice().expect("standard layout");
-    let mut out = vec![0f32; bh * bw];
-    // Each block's values are added row by row, left to right: raster order.
-    for (sums, rows) in out.chunks_exact_mut(bw).zip(values.chunks(factor * w)) {
-        for row in rows.chunks_exact(w) {
-            for (sum, block) in sums.iter_mut().zip(row.chunks(factor)) {
-                *sum = block.iter().fold(*sum, |s, &v| s + v);
-            }
-        }
-        let block_rows = rows.len() / w;
-        for (bx, sum) in sums.iter_mut().enumerate() {
-            let block_columns = factor.min(w - bx * factor);
-            *sum /= (block_rows * block_columns) as f32;
-        }
-    }
-    Image::from_shape_vec((bh, bw), out).expect("sized buffer")
+    let means = crate::image2d::box_average(values, w, h, factor);
+    Image::from_shape_vec((h.div_ceil(factor), w.div_ceil(factor)), means).expect("sized buffer")
 }
 
 /// Positive local maxima of the best response, each over a window of radius its own selected

@@ -58,7 +58,7 @@ pub struct MovieFrame {
     /// Outline pixels as (pixel index, label) pairs in raster order
     /// ([`crate::render::movie::outline_pairs`]).
     pub outline: Vec<u32>,
-    /// The frame block-averaged ([`crate::render::box_average`]) by the factor asked for: the
+    /// The frame block-averaged ([`crate::image2d::box_average`]) by the factor asked for: the
     /// movie's frame before it is drawn on, kept so that the movie need not decode the frame
     /// again. `None` when not asked for.
     pub downscaled: Option<Vec<f32>>,
