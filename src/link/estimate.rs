@@ -7,7 +7,6 @@
 //! wanderers a short reach.
 
 use super::motion::MotionNoise;
-use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use serde::{Deserialize, Serialize};
 
 /// A link counts as confident when its length is at most this share of the distance to the
@@ -81,17 +80,151 @@ pub fn confident_links(predicted: &[[f64; 2]], targets: &[[f64; 2]]) -> Vec<(usi
 }
 
 /// For each query point: the index of its nearest point in `points`, and the squared
-/// distances to the nearest and the second nearest.
+/// distances to the nearest and the second nearest (ties for the nearest go to the lower
+/// index).
+///
+/// The points are sorted into a uniform grid of about two points per cell, and each query
+/// looks at rings of cells around its own until no unseen cell can hold a point nearer than
+/// its second nearest: exact, and a few cells per query instead of a tree's descent and a
+/// result list. A k-d tree (kiddo's `nearest_n`) took ~0.4 µs per query, ~55 ms of a
+/// 100-frame recording's motion estimate on one core after the last frame; see
+/// `benches/SPEED.md`.
 fn nearest_two(queries: &[[f64; 2]], points: &[[f64; 2]]) -> Vec<(usize, f64, f64)> {
-    let tree: ImmutableKdTree<f64, 2> = ImmutableKdTree::new_from_slice(points).expect("finite points");
-    let two = std::num::NonZero::new(2usize).expect("non-zero");
-    queries
-        .iter()
-        .map(|q| {
-            let hits = tree.query(q).nearest_n::<SquaredEuclidean<f64>>(two).execute();
-            (hits[0].item as usize, hits[0].distance, hits[1].distance)
-        })
-        .collect()
+    let grid = PointGrid::new(points);
+    queries.iter().map(|q| grid.nearest_two(q)).collect()
+}
+
+/// Points binned into square cells (a counting sort by cell), for [`nearest_two`].
+struct PointGrid<'a> {
+    points: &'a [[f64; 2]],
+    origin: [f64; 2],
+    cell: f64,
+    columns: usize,
+    rows: usize,
+    /// `order[starts[c]..starts[c + 1]]`: the points of cell `c` (row-major), ascending index.
+    starts: Vec<u32>,
+    order: Vec<u32>,
+}
+
+impl<'a> PointGrid<'a> {
+    fn new(points: &'a [[f64; 2]]) -> Self {
+        let (mut lo, mut hi) = ([f64::INFINITY; 2], [f64::NEG_INFINITY; 2]);
+        for p in points {
+            for a in 0..2 {
+                lo[a] = lo[a].min(p[a]);
+                hi[a] = hi[a].max(p[a]);
+            }
+        }
+        let span = [(hi[0] - lo[0]).max(0.0), (hi[1] - lo[1]).max(0.0)];
+        // About two points per cell over the points' box, and never more cells along a side
+        // than half the points (a box as thin as a line).
+        let n = points.len().max(1) as f64;
+        let cell = (span[0] * span[1] * 1.0 / n).sqrt().max(2.0 * span[0].max(span[1]) / n);
+        let cell = if cell.is_finite() && cell > 0.0 { cell } else { 1.0 };
+        let count = |extent: f64| ((extent / cell) as usize + 1).min(1 << 12);
+        let (columns, rows) = (count(span[0]), count(span[1]));
+        let mut grid = PointGrid {
+            points,
+            origin: lo,
+            cell,
+            columns,
+            rows,
+            starts: vec![0; columns * rows + 1],
+            order: vec![0; points.len()],
+        };
+        let cells: Vec<usize> = points.iter().map(|p| grid.cell_of(p)).collect();
+        for &c in &cells {
+            grid.starts[c + 1] += 1;
+        }
+        for c in 0..columns * rows {
+            grid.starts[c + 1] += grid.starts[c];
+        }
+        let mut next = grid.starts.clone();
+        for (i, &c) in cells.iter().enumerate() {
+            grid.order[next[c] as usize] = i as u32;
+            next[c] += 1;
+        }
+        grid
+    }
+
+    /// The (column, row) of the cell holding `p`, clamped to the grid.
+    fn column_row(&self, p: &[f64; 2]) -> (usize, usize) {
+        let at = |v: f64, lo: f64, n: usize| (((v - lo) / self.cell).max(0.0) as usize).min(n - 1);
+        (
+            at(p[0], self.origin[0], self.columns),
+            at(p[1], self.origin[1], self.rows),
+        )
+    }
+
+    fn cell_of(&self, p: &[f64; 2]) -> usize {
+        let (x, y) = self.column_row(p);
+        y * self.columns + x
+    }
+
+    /// [`nearest_two`] for one query. Ring `r` holds the cells `r` steps away (Chebyshev) from
+    /// the query's cell (or the nearest cell, for a query outside the grid); a point in ring `r`
+    /// or beyond lies outside the square of rings `0..r`, at least the query's distance to the
+    /// edge of its own cell plus `r − 1` cells away along one axis, so once that bound squared
+    /// exceeds the second nearest squared distance, no unseen point can come nearer or tie.
+    fn nearest_two(&self, q: &[f64; 2]) -> (usize, f64, f64) {
+        let (cx, cy) = self.column_row(q);
+        let mut best = (usize::MAX, f64::INFINITY, f64::INFINITY);
+        let reach = self.columns.max(self.rows);
+        // The query's distance to the edges of its own cell (negative outside it).
+        let (left, top) = (
+            q[0] - (self.origin[0] + cx as f64 * self.cell),
+            q[1] - (self.origin[1] + cy as f64 * self.cell),
+        );
+        let inside = left.min(top).min(self.cell - left).min(self.cell - top);
+        for r in 0..=reach {
+            // Every point of ring r or beyond lies outside the square of rings 0..r.
+            let bound = inside + r.saturating_sub(1) as f64 * self.cell;
+            if r > 0 && bound > 0.0 && bound * bound > best.2 {
+                break;
+            }
+            self.for_each_in_ring(cx, cy, r, |i| {
+                let p = self.points[i];
+                let d = (q[0] - p[0]) * (q[0] - p[0]) + (q[1] - p[1]) * (q[1] - p[1]);
+                // Without branches: which way a comparison goes is not predictable.
+                let nearer = d < best.1 || (d == best.1 && i < best.0);
+                best.2 = if nearer { best.1 } else { best.2.min(d) };
+                best.1 = if nearer { d } else { best.1 };
+                best.0 = if nearer { i } else { best.0 };
+            });
+        }
+        best
+    }
+
+    /// Calls `f` with the index of every point in the cells of ring `r` around `(cx, cy)`.
+    fn for_each_in_ring(&self, cx: usize, cy: usize, r: usize, mut f: impl FnMut(usize)) {
+        let (x0, x1) = (cx.saturating_sub(r), (cx + r).min(self.columns - 1));
+        let (y0, y1) = (cy.saturating_sub(r), (cy + r).min(self.rows - 1));
+        for y in y0..=y1 {
+            let edge_row = y + r == cy || y == cy + r;
+            // Inside the ring's square only its left and right cells belong to the ring.
+            let columns = if edge_row || r == 0 {
+                (x0..=x1).step_by(1)
+            } else {
+                let step = (2 * r).max(1);
+                if cx < r || cx + r > self.columns - 1 {
+                    // One side of the square falls outside the grid: visit the side inside.
+                    let x = if cx >= r { cx - r } else { cx + r };
+                    if x > self.columns - 1 {
+                        continue;
+                    }
+                    (x..=x).step_by(1)
+                } else {
+                    (cx - r..=cx + r).step_by(step)
+                }
+            };
+            for x in columns {
+                let c = y * self.columns + x;
+                for &i in &self.order[self.starts[c] as usize..self.starts[c + 1] as usize] {
+                    f(i as usize);
+                }
+            }
+        }
+    }
 }
 
 /// Measures the motion of a recording from its detections' positions, frame by frame.
@@ -124,11 +257,16 @@ pub fn estimate_motion(frames: &[Vec<[f64; 2]>], diameter_px: f64) -> MotionEsti
     let mut residual_into: Vec<Vec<Option<[f64; 2]>>> = frames.iter().map(|f| vec![None; f.len()]).collect();
     let mut errors = Vec::new();
     let mut error_pairs = Vec::new();
+    // source_of[j]: the source in frame t - 1 of the link into detection j of frame t (links
+    // are one to one: each side is the other's nearest).
+    let mut source_of: Vec<Option<usize>> = Vec::new();
     for t in 0..links.len() {
+        let mut next_source_of = vec![None; frames[t + 1].len()];
         for &(i, j) in &links[t] {
+            next_source_of[j] = Some(i);
             let (a, b) = (frames[t][i], frames[t + 1][j]);
             steps.push((b[0] - a[0]).powi(2) + (b[1] - a[1]).powi(2));
-            let Some(&(k, _)) = t.checked_sub(1).and_then(|u| links[u].iter().find(|l| l.1 == i)) else {
+            let Some(k) = source_of.get(i).copied().flatten() else {
                 continue;
             };
             let p = frames[t - 1][k];
@@ -139,6 +277,7 @@ pub fn estimate_motion(frames: &[Vec<[f64; 2]>], diameter_px: f64) -> MotionEsti
             }
             residual_into[t + 1][j] = Some(e);
         }
+        source_of = next_source_of;
     }
     from_steps(&mut steps, &mut errors, &error_pairs, diameter_px)
 }
@@ -376,6 +515,41 @@ mod tests {
         let e = estimate_motion(&frames, 10.0);
         assert_eq!(e.source, MotionSource::Diameter);
         assert_eq!(e.max_step_px, 6.0);
+    }
+
+    #[test]
+    fn nearest_two_is_the_definition() {
+        // Against the definition, by brute force over every point: the nearest point (lowest
+        // index among equals) and the two smallest squared distances. Points scattered, in
+        // clumps with exact duplicates, on a line, and queries inside and far outside.
+        let mut rng = Rng::new(5);
+        let mut sets: Vec<Vec<[f64; 2]>> = Vec::new();
+        sets.push(
+            (0..300)
+                .map(|_| [rng.range(0.0, 1000.0), rng.range(0.0, 700.0)])
+                .collect(),
+        );
+        let clumps: Vec<[f64; 2]> = (0..40).map(|k| [(k % 5) as f64 * 3.0, (k / 5 % 3) as f64]).collect();
+        sets.push(clumps);
+        sets.push((0..50).map(|k| [k as f64 * 7.5, 2.0]).collect());
+        sets.push(vec![[4.0, 4.0], [4.0, 4.0]]);
+        sets.push((0..20).map(|_| [rng.range(0.0, 1e-9), rng.range(0.0, 1e6)]).collect());
+        for points in &sets {
+            let mut queries: Vec<[f64; 2]> = points.iter().take(60).copied().collect();
+            queries.extend((0..200).map(|_| [rng.range(-2000.0, 3000.0), rng.range(-2000.0, 3000.0)]));
+            queries.extend((0..100).map(|_| [rng.range(-1.0, 16.0), rng.range(-1.0, 4.0)]));
+            let got = nearest_two(&queries, points);
+            for (q, &(j, d1, d2)) in queries.iter().zip(&got) {
+                let d: Vec<f64> = points
+                    .iter()
+                    .map(|p| (q[0] - p[0]) * (q[0] - p[0]) + (q[1] - p[1]) * (q[1] - p[1]))
+                    .collect();
+                let mut sorted = d.clone();
+                sorted.sort_by(f64::total_cmp);
+                let first = d.iter().position(|&x| x == sorted[0]).unwrap();
+                assert_eq!((j, d1, d2), (first, sorted[0], sorted[1]), "query {q:?}");
+            }
+        }
     }
 
     #[test]
