@@ -74,14 +74,47 @@ pub fn write_rows<'r, R: 'r>(
     let mut line = String::with_capacity(256);
     for row in rows {
         line.clear();
-        for (k, c) in columns.iter().enumerate() {
-            if k > 0 {
-                line.push(',');
-            }
-            (c.print)(row, &mut line);
-        }
-        line.push('\n');
+        push_row(&mut line, columns, row);
         out.write_all(line.as_bytes())?;
+    }
+    Ok(())
+}
+
+/// Appends `row`'s line (its cells and the line end) to `line`.
+fn push_row<R>(line: &mut String, columns: &[Column<R>], row: &R) {
+    for (k, c) in columns.iter().enumerate() {
+        if k > 0 {
+            line.push(',');
+        }
+        (c.print)(row, line);
+    }
+    line.push('\n');
+}
+
+/// Rows per parallel task of [`write_table_in_parallel`], and tasks formatted before their
+/// text is written (so a long table is never held as text all at once).
+const ROWS_PER_TASK: usize = 2048;
+const TASKS_AT_ONCE: usize = 16;
+
+/// [`write_table`] of a slice, its lines formatted on every core, blocks of rows at a time,
+/// and written in order: the same bytes (each line depends on its row alone). For the long
+/// tables written while nothing else runs (`tracks.csv`: ~30 ms on one core for 100 frames
+/// of 300 nuclei).
+pub fn write_table_in_parallel<R: Sync>(out: &mut impl Write, columns: &[Column<R>], rows: &[R]) -> io::Result<()> {
+    use rayon::prelude::*;
+    write_header(out, columns)?;
+    for group in rows.chunks(ROWS_PER_TASK * TASKS_AT_ONCE) {
+        let texts: Vec<String> = group
+            .par_chunks(ROWS_PER_TASK)
+            .map(|chunk| {
+                let mut text = String::with_capacity(chunk.len() * 64);
+                chunk.iter().for_each(|row| push_row(&mut text, columns, row));
+                text
+            })
+            .collect();
+        for text in texts {
+            out.write_all(text.as_bytes())?;
+        }
     }
     Ok(())
 }
@@ -244,6 +277,27 @@ pub fn read_named_columns<T>(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_table_written_in_parallel_is_the_standard_formatter_line_by_line() {
+        // Source: Rust's standard formatter (`{}` and `{:.3}`) line by line, in row order,
+        // for tables shorter than one task, across tasks and across groups of tasks (40 000
+        // rows), and empty.
+        let columns: Vec<Column<(u32, f64)>> = vec![
+            Column::shown("id", |r: &(u32, f64)| Some(r.0)),
+            Column::fixed("value", 3, |r: &(u32, f64)| Some(r.1)),
+        ];
+        for n in [0usize, 5, ROWS_PER_TASK + 1, 40_000] {
+            let rows: Vec<(u32, f64)> = (0..n).map(|i| (i as u32, (i as f64 * 0.37).sin() * 1e3)).collect();
+            let mut out = Vec::new();
+            write_table_in_parallel(&mut out, &columns, &rows).unwrap();
+            let mut expected = String::from("id,value\n");
+            for (id, v) in &rows {
+                expected += &format!("{id},{v:.3}\n");
+            }
+            assert!(String::from_utf8(out).unwrap() == expected, "{n} rows");
+        }
+    }
 
     #[test]
     fn header_and_rows_come_from_the_same_columns() {

@@ -7,7 +7,7 @@ use super::msd::{AutocorrelationPoint, MsdPoint};
 use super::population::{Analysis, CorrelationBin, FrameOrder};
 use super::resample::{Interval, ModelIntervals};
 use super::stats::mean_sd;
-use crate::columns::{write_table, Column};
+use crate::columns::{write_table, write_table_in_parallel, Column};
 use crate::numeric::median;
 use serde_json::{json, Map, Value};
 use std::io::{self, Write};
@@ -49,7 +49,7 @@ pub fn write_steps(out: &mut impl Write, a: &Analysis) -> io::Result<()> {
         Column::fixed("heading_deg", 6, |s: &Step| s.heading_deg),
         Column::fixed("turning_deg", 6, |s: &Step| s.turning_deg),
     ];
-    write_table(out, &columns, &a.steps)
+    write_table_in_parallel(out, &columns, &a.steps)
 }
 
 /// One row of `msd.csv`: the pooled point, its interval and the per-cell mean at its lag.

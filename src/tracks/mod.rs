@@ -1,7 +1,7 @@
 //! The records that flow between stages: a [`Detection`] is one segmented nucleus in one
 //! frame. This module also owns their CSV form. No maths beyond bookkeeping.
 
-use crate::columns::{write_table, Column};
+use crate::columns::{write_table, write_table_in_parallel, Column};
 use crate::stack::Calibration;
 use std::io::{self, Write};
 
@@ -133,7 +133,7 @@ pub fn track_columns(calibration: &Calibration) -> Vec<Column<TrackedDetection>>
 /// Writes `tracks.csv`: the header, then `points` in the order given (callers sort by track,
 /// then frame).
 pub fn write_tracks(out: &mut impl Write, points: &[TrackedDetection], calibration: &Calibration) -> io::Result<()> {
-    write_table(out, &track_columns(calibration), points)
+    write_table_in_parallel(out, &track_columns(calibration), points)
 }
 
 /// A point of a ground-truth or result track, as in `truth.csv`.
