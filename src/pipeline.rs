@@ -2,6 +2,7 @@
 //! first pass over the segmented frames ([`crate::frames`]), linking, and the outputs with
 //! their run record. No per-pixel work happens here.
 
+use crate::analyze::run::EarlyAnalysis;
 use crate::analyze::{summarize_track, write_per_track, TrackSummary};
 use crate::checkpoint::{CheckpointLog, Fingerprint, FrameRecord};
 use crate::columns::{write_header, write_rows, Column};
@@ -102,6 +103,9 @@ pub struct RunOutcome {
     pub warnings: Vec<RunWarning>,
     /// Whether the run can be trusted, with the reasons.
     pub verdict: RunVerdict,
+    /// The default migration analysis when [`RunOptions::analysis`] asked for it and it
+    /// could be made (nothing of it is written yet).
+    pub analysis: Option<EarlyAnalysis>,
 }
 
 impl RunOutcome {
@@ -133,6 +137,10 @@ pub struct RunOptions {
     pub masks: Option<PathBuf>,
     /// The masks are the recording too: objects are measured without intensities.
     pub masks_without_intensities: bool,
+    /// With linking: work out the default migration analysis of the tracks while the movie
+    /// and the review page are drawn ([`RunOutcome::analysis`]), for a caller that writes
+    /// it once the run is complete ([`crate::reports::run_early_analysis`]).
+    pub analysis: bool,
 }
 
 /// Segments every frame of an open recording and writes `detections.csv` (and optionally
@@ -332,15 +340,25 @@ pub(crate) fn finish_run(
         diameter_px: diameter.px(),
     };
     let divisions = resolution.as_ref().map(|r| r.divisions.as_slice()).unwrap_or_default();
-    let (movie, review) = second_pass(
-        stack,
-        spool,
-        outputs,
-        linking.is_some(),
-        &view,
-        (&tracked, divisions),
-        dir,
-    )?;
+    // The analysis needs only tracks.csv and the calibration: it is worked out on a thread of
+    // its own while the movie is drawn (whose frames keep both cores busy only in bursts).
+    let early = outputs.analysis && linking.is_some();
+    let tracks_csv = dir.join("tracks.csv");
+    let (passed, analysis) = std::thread::scope(|scope| {
+        let analysis = early.then(|| scope.spawn(|| EarlyAnalysis::of_run(&tracks_csv, &calibration)));
+        let passed = second_pass(
+            stack,
+            spool,
+            outputs,
+            linking.is_some(),
+            &view,
+            (&tracked, divisions),
+            dir,
+        );
+        let analysis = analysis.and_then(|h| h.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)));
+        (passed, analysis)
+    });
+    let (movie, review) = passed?;
     let run = RunOutcome {
         dir: dir.to_path_buf(),
         diameter: diameter.clone(),
@@ -352,6 +370,7 @@ pub(crate) fn finish_run(
         review,
         warnings,
         verdict,
+        analysis,
     };
     let checksum = checksum.join().expect("the checksum thread only reads a file");
     let record = RunRecord {

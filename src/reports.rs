@@ -8,8 +8,8 @@ use crate::analyze::population::Analysis;
 use crate::analyze::population::AnalysisOptions;
 use crate::analyze::profiles::{Direction, ProfileBin};
 use crate::analyze::resample::{Interval, ModelIntervals};
-use crate::analyze::run::{write_tables_of, AnalysisRun, ANALYSIS_TABLES};
-use crate::analyze::table::read_tracks;
+use crate::analyze::run::{write_tables, write_tables_of, AnalysisRun, EarlyAnalysis, ANALYSIS_TABLES};
+use crate::analyze::table::{read_run_record, read_tracks, TrackTable};
 use crate::analyze::table::{CalibrationOverride, Filters};
 use crate::error::Result;
 use crate::output::write_atomic;
@@ -44,6 +44,45 @@ pub fn run_analysis(
     dir: &Path,
 ) -> Result<AnalysisRun> {
     let table = read_tracks(input, calibration)?;
+    finish_analysis(table, None, filters, options, dir)
+}
+
+/// [`run_analysis`] of the tracking run folder `run_dir` with the default filters and options,
+/// from its analysis worked out while the run drew its movie ([`EarlyAnalysis`], whose tracks
+/// were read from the run's folder before it was put in place): the same folder, byte for
+/// byte. Falls back to reading the folder when its `run.json` is not a record of this version.
+///
+/// # Errors
+/// As [`run_analysis`].
+pub fn run_early_analysis(early: EarlyAnalysis, run_dir: &Path, dir: &Path) -> Result<AnalysisRun> {
+    let EarlyAnalysis { mut table, analysis } = early;
+    table.source = run_dir.join("tracks.csv");
+    match read_run_record(&table.source)? {
+        (Some(record), None) => {
+            table.run_record = Some(record);
+            finish_analysis(
+                table,
+                Some(analysis),
+                &Filters::default(),
+                &AnalysisOptions::default(),
+                dir,
+            )
+        }
+        _ => {
+            let defaults = (Filters::default(), AnalysisOptions::default());
+            run_analysis(run_dir, CalibrationOverride::default(), &defaults.0, &defaults.1, dir)
+        }
+    }
+}
+
+/// Writes the tables (analysing `table` unless `analysis` is given) and the page.
+fn finish_analysis(
+    table: TrackTable,
+    analysis: Option<Analysis>,
+    filters: &Filters,
+    options: &AnalysisOptions,
+    dir: &Path,
+) -> Result<AnalysisRun> {
     // The frames worth a look (the review page's moments, from the run folder's tracks.csv)
     // are found while the analysis runs: they need only the run's record.
     let run_folder = table
@@ -51,7 +90,10 @@ pub fn run_analysis(
         .clone()
         .zip(table.source.parent().map(Path::to_path_buf));
     let (run, flagged) = rayon::join(
-        || write_tables_of(table, filters, options, dir),
+        || match analysis {
+            Some(analysis) => write_tables(table, analysis, filters, options, dir),
+            None => write_tables_of(table, filters, options, dir),
+        },
         || {
             run_folder
                 .as_ref()

@@ -113,6 +113,50 @@ fn track_is_identical_on_every_instruction_level() {
 }
 
 #[test]
+fn the_analysis_of_a_track_run_is_the_one_its_folder_gives() {
+    // Source: `caravan analyze` reading the finished run folder (tracks.csv and run.json as
+    // written), an independent path to the same figures: `caravan track` works its analysis
+    // out while the movie is drawn, from the tracks file and the calibration in memory, and
+    // must write the same folder byte for byte. The scene is calibrated (OME-XML pixel size
+    // and interval), so the units come from the run record.
+    let dir = tempfile::tempdir().unwrap();
+    let rec = synth_into(
+        &dir.path().join("syn"),
+        &[
+            "--scenario",
+            "stripe",
+            "--size",
+            "256x160",
+            "--frames",
+            "24",
+            "--seed",
+            "3",
+        ],
+    );
+    let run = dir.path().join("run");
+    ok(&caravan(&["track", &rec, "-o", run.to_str().unwrap()], "2"));
+    let early = dir.path().join("early");
+    copy_folder(&run.join("analysis"), &early);
+    ok(&caravan(&["analyze", run.to_str().unwrap(), "--force"], "2"));
+    let mut names: Vec<_> = std::fs::read_dir(&early)
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    names.sort();
+    assert!(names.len() >= 8, "{names:?}");
+    let summary = std::fs::read_to_string(early.join("summary.json")).unwrap();
+    assert!(summary.contains("\"length\": \"um\""), "{summary}");
+    for name in &names {
+        let (a, b) = (
+            std::fs::read(early.join(name)).unwrap(),
+            std::fs::read(run.join("analysis").join(name)).unwrap(),
+        );
+        assert!(a == b, "{name:?} differs");
+    }
+    assert_eq!(std::fs::read_dir(run.join("analysis")).unwrap().count(), names.len());
+}
+
+#[test]
 fn track_is_identical_whatever_the_thread_count() {
     let dir = tempfile::tempdir().unwrap();
     let rec = synth(dir.path());

@@ -64,6 +64,43 @@ pub fn write_tables_of(
     dir: &Path,
 ) -> Result<AnalysisRun> {
     let analysis = analyze_table(&table, filters, options)?;
+    write_tables(table, analysis, filters, options, dir)
+}
+
+/// A tracking run's analysis with the default filters and options, worked out before its
+/// folder is complete (while the movie is drawn) and written once it is ([`write_tables`]).
+#[derive(Debug, Clone)]
+pub struct EarlyAnalysis {
+    /// The tracks as read, `run_record` still empty.
+    pub table: TrackTable,
+    /// The figures, with the default filters and options.
+    pub analysis: Analysis,
+}
+
+impl EarlyAnalysis {
+    /// The default analysis of the run whose `tracks.csv` has just been written, with the
+    /// calibration its `run.json` will hold (the default options have no border, the one
+    /// figure that needs the rest of the record); `None` when it cannot be made (too few
+    /// tracks, an unreadable table): the analysis after the run then meets the same problem
+    /// and says so.
+    pub fn of_run(tracks_csv: &Path, calibration: &crate::stack::Calibration) -> Option<EarlyAnalysis> {
+        let table = super::table::read_run_tracks(tracks_csv, calibration).ok()?;
+        let analysis = analyze_table(&table, &Filters::default(), &AnalysisOptions::default()).ok()?;
+        Some(EarlyAnalysis { table, analysis })
+    }
+}
+
+/// Writes an analysis's tables and `summary.json` into `dir` (see [`write_tables_of`]).
+///
+/// # Errors
+/// Outputs not writable.
+pub fn write_tables(
+    table: TrackTable,
+    analysis: Analysis,
+    filters: &Filters,
+    options: &AnalysisOptions,
+    dir: &Path,
+) -> Result<AnalysisRun> {
     ensure_dir(dir)?;
     write_table(dir, "track_stats.csv", |w| write_track_stats(w, &analysis))?;
     write_table(dir, "steps.csv", |w| write_steps(w, &analysis))?;

@@ -150,7 +150,8 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
     let text = std::fs::read_to_string(&csv).map_err(|e| Error::input(&csv, e.to_string()))?;
     let rows = crate::tracks::read_track_rows(&text).map_err(|e| Error::input(&csv, e))?;
     let (run_record, ignored) = read_run_record(&csv)?;
-    let mut units = resolve_units(given, run_record.as_ref(), &rows)?;
+    let run_calibration = run_record.as_ref().map(|r| &r.input.stack.calibration);
+    let mut units = resolve_units(given, run_calibration, &rows)?;
     if let Some(why) = ignored {
         units.source = format!("{} (run.json beside the tracks not used: {why})", units.source);
     }
@@ -163,10 +164,38 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
     })
 }
 
+/// [`read_tracks`] of a tracking run's `tracks.csv` before its `run.json` is written, with the
+/// calibration that `run.json` will hold (as read back from it) and no command-line override:
+/// the same table but for `run_record`, which is left empty (see [`read_run_record`]).
+///
+/// # Errors
+/// As [`read_tracks`].
+pub fn read_run_tracks(csv: &Path, calibration: &crate::stack::Calibration) -> Result<TrackTable> {
+    let text = std::fs::read_to_string(csv).map_err(|e| Error::input(csv, e.to_string()))?;
+    let rows = crate::tracks::read_track_rows(&text).map_err(|e| Error::input(csv, e))?;
+    let calibration = as_read_back(calibration);
+    let units = resolve_units(CalibrationOverride::default(), Some(&calibration), &rows)?;
+    let tracks = build_tracks(&rows, &units).map_err(|e| Error::input(csv, e))?;
+    Ok(TrackTable {
+        source: csv.to_path_buf(),
+        units,
+        tracks,
+        run_record: None,
+    })
+}
+
+/// `calibration` written as JSON and parsed again, as [`read_tracks`] gets it from `run.json`:
+/// serde_json's reader is not guaranteed to return every written `f64` bit for bit, and the
+/// analysis must not depend on whether it read the file.
+fn as_read_back(calibration: &crate::stack::Calibration) -> crate::stack::Calibration {
+    let text = serde_json::to_string(calibration).expect("a calibration is serialisable");
+    serde_json::from_str(&text).expect("a calibration reads back")
+}
+
 /// The run record beside `csv`, if any. A file that is not JSON is an error; JSON that is not a
 /// run record of this version (one written by an earlier version) is not used, and the reason
 /// is returned so the analysis can say so.
-fn read_run_record(csv: &Path) -> Result<(Option<crate::record::RunRecord>, Option<String>)> {
+pub fn read_run_record(csv: &Path) -> Result<(Option<crate::record::RunRecord>, Option<String>)> {
     let path = csv.with_file_name("run.json");
     if !path.exists() {
         return Ok((None, None));
@@ -185,11 +214,10 @@ fn read_run_record(csv: &Path) -> Result<(Option<crate::record::RunRecord>, Opti
 
 fn resolve_units(
     given: CalibrationOverride,
-    run: Option<&crate::record::RunRecord>,
+    run_cal: Option<&crate::stack::Calibration>,
     rows: &[crate::tracks::TrackRow],
 ) -> Result<Units> {
-    let run_cal = run.map(|r| r.input.stack.calibration);
-    let from_run = |pick: fn(&crate::stack::Calibration) -> Option<f64>| run_cal.as_ref().and_then(pick);
+    let from_run = |pick: fn(&crate::stack::Calibration) -> Option<f64>| run_cal.and_then(pick);
     let from_csv_px = rows
         .iter()
         .find(|r| r.x.abs() > 1.0)

@@ -203,16 +203,24 @@ pub fn run(args: AnalyzeArgs) -> Result<()> {
 }
 
 /// The default analysis of a fresh run folder into its `analysis/`, reported but not fatal:
-/// a run whose tracks are all short still has its tracking outputs.
-pub fn analyze_run_folder(dir: &std::path::Path) -> Option<caravan::analyze::run::AnalysisRun> {
+/// a run whose tracks are all short still has its tracking outputs. `early` is the analysis
+/// the run worked out while drawing its movie, if any (the same folder results).
+pub fn analyze_run_folder(
+    dir: &std::path::Path,
+    early: Option<caravan::analyze::run::EarlyAnalysis>,
+) -> Option<caravan::analyze::run::AnalysisRun> {
     let out = default_output_dir(dir);
-    match run_analysis(
-        dir,
-        CalibrationOverride::default(),
-        &Filters::default(),
-        &AnalysisOptions::default(),
-        &out,
-    ) {
+    let done = match early {
+        Some(early) => caravan::reports::run_early_analysis(early, dir, &out),
+        None => run_analysis(
+            dir,
+            CalibrationOverride::default(),
+            &Filters::default(),
+            &AnalysisOptions::default(),
+            &out,
+        ),
+    };
+    match done {
         Ok(run) => {
             println!("report: {}", out.join("report.html").display());
             Some(run)

@@ -134,9 +134,9 @@ fn track_one(input: &Path, folder: &Path, args: &BatchArgs) -> Result<Outcome> {
     outputs.checkpoint_every = Some(25);
     outputs.resume = resume;
     outputs.replace = replace;
-    let run = run_recording(&mut stack, diameter, &params, folder, &outputs, "track")?;
+    let mut run = run_recording(&mut stack, diameter, &params, folder, &outputs, "track")?;
     if !args.linking.no_analysis {
-        analyze_run_folder(folder);
+        analyze_run_folder(folder, run.analysis.take());
     }
     Ok(Outcome::Done(run.verdict.verdict))
 }

@@ -41,6 +41,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         resume: false,
         masks: None,
         masks_without_intensities: false,
+        analysis: true,
     };
     let run = run_recording(
         &mut stack,
@@ -71,7 +72,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         println!("QC movie: {} frames of {}x{} px", m.frames, m.size.0, m.size.1);
     }
     println!("outputs:\n  recording   {}\n  truth       {}\n  tracks      {}\n  per track   {}\n  detections  {}\n  labels      {}\n  run record  {}\n  QC movie    {}\n  QC sheet    {}\n  review page {}", synth.recording.display(), synth.truth_csv.display(), show("tracks.csv"), show("per_track.csv"), show("detections.csv"), show("labels.tif"), show("run.json"), show("qc_movie.gif"), show("qc_sheet.png"), show("review/index.html"));
-    if let Some(analysis) = super::analyze::analyze_run_folder(&run_dir) {
+    if let Some(analysis) = super::analyze::analyze_run_folder(&run_dir, run.analysis) {
         println!("migration statistics (tracks of 10+ points):");
         super::analyze::print_analysis(&analysis);
     }

@@ -43,7 +43,7 @@ pub fn run(args: JoinArgs) -> Result<Completion> {
     let run = join_shards(&mut stack, &args.shards, &args.output, &outputs)?;
     print_summary(&run);
     if !args.linking.no_analysis {
-        super::analyze::analyze_run_folder(&args.output);
+        super::analyze::analyze_run_folder(&args.output, None);
     }
     Ok(Completion::of(run.verdict.verdict))
 }

@@ -31,6 +31,7 @@ pub fn run(args: SegmentArgs) -> Result<Completion> {
         resume: false,
         masks: None,
         masks_without_intensities: false,
+        analysis: false,
     };
     let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "segment")?;
     print_summary(&run);

@@ -112,6 +112,7 @@ impl LinkingArgs {
             resume: false,
             masks: None,
             masks_without_intensities: false,
+            analysis: !self.no_analysis,
         })
     }
 }
@@ -157,14 +158,14 @@ pub fn run(mut args: TrackArgs) -> Result<Completion> {
     outputs.resume = args.resume;
     outputs.masks = args.masks.clone();
     outputs.masks_without_intensities = args.masks.is_some() && args.run.has_no_recording();
-    let run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
+    let mut run = run_recording(&mut stack, diameter, &params, &args.run.output, &outputs, "track")?;
     print_summary(&run);
     if args.lookalike {
         let out = args.run.output.join("lookalike");
         super::lookalike::make(&args.run.output, &out, &caravan::lookalike::LookalikeOptions::default())?;
     }
     if !args.linking.no_analysis {
-        super::analyze::analyze_run_folder(&args.run.output);
+        super::analyze::analyze_run_folder(&args.run.output, run.analysis.take());
     }
     Ok(Completion::of(run.verdict.verdict))
 }

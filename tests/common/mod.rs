@@ -38,6 +38,7 @@ pub fn track_synthetic(p: &SynthParams, link: LinkOptions) -> TrackedScene {
         resume: false,
         masks: None,
         masks_without_intensities: false,
+        analysis: false,
     };
     let run = dir.path().join("run");
     let diameter = resolve_diameter(&mut stack, None, &SegmentParams::for_diameter).unwrap();
