@@ -83,7 +83,7 @@ pub fn confident_links(predicted: &[[f64; 2]], targets: &[[f64; 2]]) -> Vec<(usi
 /// distances to the nearest and the second nearest (ties for the nearest go to the lower
 /// index).
 ///
-/// The points are sorted into a uniform grid of about two points per cell, and each query
+/// The points are sorted into a uniform grid of about one point per cell, and each query
 /// looks at rings of cells around its own until no unseen cell can hold a point nearer than
 /// its second nearest: exact, and a few cells per query instead of a tree's descent and a
 /// result list. A k-d tree (kiddo's `nearest_n`) took ~0.4 µs per query, ~55 ms of a
@@ -116,10 +116,10 @@ impl<'a> PointGrid<'a> {
             }
         }
         let span = [(hi[0] - lo[0]).max(0.0), (hi[1] - lo[1]).max(0.0)];
-        // About two points per cell over the points' box, and never more cells along a side
-        // than half the points (a box as thin as a line).
+        // About one point per cell over the points' box (two or four per cell were slower),
+        // and never more cells along a side than half the points (a box as thin as a line).
         let n = points.len().max(1) as f64;
-        let cell = (span[0] * span[1] * 1.0 / n).sqrt().max(2.0 * span[0].max(span[1]) / n);
+        let cell = (span[0] * span[1] / n).sqrt().max(2.0 * span[0].max(span[1]) / n);
         let cell = if cell.is_finite() && cell > 0.0 { cell } else { 1.0 };
         let count = |extent: f64| ((extent / cell) as usize + 1).min(1 << 12);
         let (columns, rows) = (count(span[0]), count(span[1]));
@@ -197,30 +197,25 @@ impl<'a> PointGrid<'a> {
 
     /// Calls `f` with the index of every point in the cells of ring `r` around `(cx, cy)`.
     fn for_each_in_ring(&self, cx: usize, cy: usize, r: usize, mut f: impl FnMut(usize)) {
+        let mut cell = |x: usize, y: usize| {
+            let c = y * self.columns + x;
+            for &i in &self.order[self.starts[c] as usize..self.starts[c + 1] as usize] {
+                f(i as usize);
+            }
+        };
         let (x0, x1) = (cx.saturating_sub(r), (cx + r).min(self.columns - 1));
         let (y0, y1) = (cy.saturating_sub(r), (cy + r).min(self.rows - 1));
         for y in y0..=y1 {
-            let edge_row = y + r == cy || y == cy + r;
-            // Inside the ring's square only its left and right cells belong to the ring.
-            let columns = if edge_row || r == 0 {
-                (x0..=x1).step_by(1)
+            if r == 0 || y + r == cy || y == cy + r {
+                // The ring's top or bottom row: all of it within the grid.
+                (x0..=x1).for_each(|x| cell(x, y));
             } else {
-                let step = (2 * r).max(1);
-                if cx < r || cx + r > self.columns - 1 {
-                    // One side of the square falls outside the grid: visit the side inside.
-                    let x = if cx >= r { cx - r } else { cx + r };
-                    if x > self.columns - 1 {
-                        continue;
-                    }
-                    (x..=x).step_by(1)
-                } else {
-                    (cx - r..=cx + r).step_by(step)
+                // A row between them: its left and right cells, where the grid has them.
+                if cx >= r {
+                    cell(cx - r, y);
                 }
-            };
-            for x in columns {
-                let c = y * self.columns + x;
-                for &i in &self.order[self.starts[c] as usize..self.starts[c + 1] as usize] {
-                    f(i as usize);
+                if cx + r < self.columns {
+                    cell(cx + r, y);
                 }
             }
         }
