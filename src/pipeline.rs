@@ -341,7 +341,8 @@ pub(crate) fn finish_run(
     };
     let divisions = resolution.as_ref().map(|r| r.divisions.as_slice()).unwrap_or_default();
     // The analysis needs only tracks.csv and the calibration: it is worked out on a thread of
-    // its own while the movie is drawn (whose frames keep both cores busy only in bursts).
+    // its own while the movie is drawn, so that its one-core stretches (reading the table,
+    // the pooled fits) fill the gaps of the movie pass instead of following it on their own.
     let early = outputs.analysis && linking.is_some();
     let tracks_csv = dir.join("tracks.csv");
     let (passed, analysis) = std::thread::scope(|scope| {

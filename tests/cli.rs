@@ -135,20 +135,25 @@ fn the_analysis_of_a_track_run_is_the_one_its_folder_gives() {
     );
     let run = dir.path().join("run");
     ok(&caravan(&["track", &rec, "-o", run.to_str().unwrap()], "2"));
-    let early = dir.path().join("early");
-    copy_folder(&run.join("analysis"), &early);
+    let summary = std::fs::read_to_string(run.join("analysis/summary.json")).unwrap();
+    assert!(summary.contains("\"length\": \"um\""), "{summary}");
+    assert_analysis_as_its_folder_gives(&run, &dir.path().join("early"));
+}
+
+/// The run folder's `analysis/` (kept in `keep`) equals, file for file and byte for byte,
+/// what `caravan analyze` writes when it reads the finished folder.
+fn assert_analysis_as_its_folder_gives(run: &Path, keep: &Path) {
+    copy_folder(&run.join("analysis"), keep);
     ok(&caravan(&["analyze", run.to_str().unwrap(), "--force"], "2"));
-    let mut names: Vec<_> = std::fs::read_dir(&early)
+    let mut names: Vec<_> = std::fs::read_dir(keep)
         .unwrap()
         .map(|e| e.unwrap().file_name())
         .collect();
     names.sort();
     assert!(names.len() >= 8, "{names:?}");
-    let summary = std::fs::read_to_string(early.join("summary.json")).unwrap();
-    assert!(summary.contains("\"length\": \"um\""), "{summary}");
     for name in &names {
         let (a, b) = (
-            std::fs::read(early.join(name)).unwrap(),
+            std::fs::read(keep.join(name)).unwrap(),
             std::fs::read(run.join("analysis").join(name)).unwrap(),
         );
         assert!(a == b, "{name:?} differs");
@@ -821,7 +826,7 @@ fn a_run_killed_mid_way_resumes_to_identical_outputs() {
 fn shards_linked_equal_one_track_run() {
     // Split stages: frames 0..12 and 12..30 segmented apart (even in the other order), then
     // linked: every output equals one `track` run byte for byte; run.json but for the command
-    // name and timings. Shards that leave a gap are refused with exit code 2, and so are
+    // name and timings; the analysis as `caravan analyze` of the joined folder gives it. Shards that leave a gap are refused with exit code 2, and so are
     // shards cut from one path before and after the file was replaced by another recording of
     // the same size (issue 21).
     let dir = tempfile::tempdir().unwrap();
@@ -896,7 +901,6 @@ fn shards_linked_equal_one_track_run() {
             &path("a"),
             "-o",
             &path("linked"),
-            "--no-analysis",
             // Downscaled movie and review frames: kept while segmenting in the one run, decoded
             // again after joining the shards.
             "--qc-size",
@@ -907,6 +911,8 @@ fn shards_linked_equal_one_track_run() {
         "2",
     ));
     assert_same_run_outputs(&dir.path().join("whole"), &dir.path().join("linked"));
+    // The joined run's analysis, worked out while its movie was drawn, is the folder's.
+    assert_analysis_as_its_folder_gives(&dir.path().join("linked"), &dir.path().join("linked_analysis"));
     let strip = |name: &str| {
         let mut v = run_record_without_timings(&dir.path().join(name));
         v.as_object_mut().unwrap().remove("command");

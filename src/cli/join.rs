@@ -40,10 +40,10 @@ pub fn run(args: JoinArgs) -> Result<Completion> {
     let outputs = args
         .linking
         .outputs(stack.info().calibration.pixel_size_um, args.force)?;
-    let run = join_shards(&mut stack, &args.shards, &args.output, &outputs)?;
+    let mut run = join_shards(&mut stack, &args.shards, &args.output, &outputs)?;
     print_summary(&run);
     if !args.linking.no_analysis {
-        super::analyze::analyze_run_folder(&args.output, None);
+        super::analyze::analyze_run_folder(&args.output, run.analysis.take());
     }
     Ok(Completion::of(run.verdict.verdict))
 }
