@@ -56,22 +56,14 @@ pub fn run_analysis(
 /// As [`run_analysis`].
 pub fn run_early_analysis(early: EarlyAnalysis, run_dir: &Path, dir: &Path) -> Result<AnalysisRun> {
     let EarlyAnalysis { mut table, analysis } = early;
+    let (filters, options) = (Filters::default(), AnalysisOptions::default());
     table.source = run_dir.join("tracks.csv");
     match read_run_record(&table.source)? {
         (Some(record), None) => {
             table.run_record = Some(record);
-            finish_analysis(
-                table,
-                Some(analysis),
-                &Filters::default(),
-                &AnalysisOptions::default(),
-                dir,
-            )
+            finish_analysis(table, Some(analysis), &filters, &options, dir)
         }
-        _ => {
-            let defaults = (Filters::default(), AnalysisOptions::default());
-            run_analysis(run_dir, CalibrationOverride::default(), &defaults.0, &defaults.1, dir)
-        }
+        _ => run_analysis(run_dir, CalibrationOverride::default(), &filters, &options, dir),
     }
 }
 

@@ -17,6 +17,13 @@ use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
+/// What a shard keeps of each frame: its outline for the movie, not its label image.
+const OUTLINE_ONLY: Keep = Keep {
+    labels: false,
+    outline: true,
+    downscale: None,
+};
+
 /// `shard.json`: what a shard holds, written last (its presence marks a complete shard).
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct ShardInfo {
@@ -81,7 +88,6 @@ pub fn write_shard(
         segment: params.clone(),
         open: open.clone(),
     };
-    let (w, h) = (stack.info().width, stack.info().height);
     let pid = std::process::id();
     let log_temp = dir.join(format!(".frames.jsonl.partial-{pid}"));
     let outlines_temp = dir.join(format!(".outlines.bin.partial-{pid}"));
@@ -92,11 +98,15 @@ pub fn write_shard(
         (stack, None, true),
         params,
         progress,
-        (range.0..range.1, Keep::default()),
+        // The outline is found on the worker that segmented the frame; the label image
+        // stays there.
+        (range.0..range.1, OUTLINE_ONLY),
         |segmented| -> Result<()> {
             for seg in segmented {
-                let (record, labels) = FrameRecord::of(seg?);
-                spool.push(&labels, w, h)?;
+                let mut seg = seg?;
+                let movie = seg.movie.take().expect("frame production keeps the outline when asked");
+                spool.push_outline(&movie.outline)?;
+                let (record, _) = FrameRecord::of(seg);
                 writeln!(log, "{}", serde_json::to_string(&record).expect("serialisable"))
                     .map_err(|e| Error::output(&log_temp, e))?;
             }

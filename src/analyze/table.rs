@@ -147,15 +147,17 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
     } else {
         input.to_path_buf()
     };
-    let text = std::fs::read_to_string(&csv).map_err(|e| Error::input(&csv, e.to_string()))?;
-    let rows = crate::tracks::read_track_rows(&text).map_err(|e| Error::input(&csv, e))?;
-    let (run_record, ignored) = read_run_record(&csv)?;
-    let run_calibration = run_record.as_ref().map(|r| &r.input.stack.calibration);
-    let mut units = resolve_units(given, run_calibration, &rows)?;
-    if let Some(why) = ignored {
-        units.source = format!("{} (run.json beside the tracks not used: {why})", units.source);
-    }
-    let tracks = build_tracks(&rows, &units).map_err(|e| Error::input(&csv, e))?;
+    let mut run_record = None;
+    let (units, tracks) = read_table(&csv, |rows| {
+        let (record, ignored) = read_run_record(&csv)?;
+        let run_calibration = record.as_ref().map(|r| &r.input.stack.calibration);
+        let mut units = resolve_units(given, run_calibration, rows)?;
+        if let Some(why) = ignored {
+            units.source = format!("{} (run.json beside the tracks not used: {why})", units.source);
+        }
+        run_record = record;
+        Ok(units)
+    })?;
     Ok(TrackTable {
         source: csv,
         units,
@@ -171,17 +173,29 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
 /// # Errors
 /// As [`read_tracks`].
 pub fn read_run_tracks(csv: &Path, calibration: &crate::stack::Calibration) -> Result<TrackTable> {
-    let text = std::fs::read_to_string(csv).map_err(|e| Error::input(csv, e.to_string()))?;
-    let rows = crate::tracks::read_track_rows(&text).map_err(|e| Error::input(csv, e))?;
     let calibration = as_read_back(calibration);
-    let units = resolve_units(CalibrationOverride::default(), Some(&calibration), &rows)?;
-    let tracks = build_tracks(&rows, &units).map_err(|e| Error::input(csv, e))?;
+    let (units, tracks) = read_table(csv, |rows| {
+        resolve_units(CalibrationOverride::default(), Some(&calibration), rows)
+    })?;
     Ok(TrackTable {
         source: csv.to_path_buf(),
         units,
         tracks,
         run_record: None,
     })
+}
+
+/// The rows of the tracks CSV `csv`, and its tracks in the units `units_of` finds for them
+/// (called once the rows are read, so a broken table is reported before anything else).
+fn read_table(
+    csv: &Path,
+    units_of: impl FnOnce(&[crate::tracks::TrackRow]) -> Result<Units>,
+) -> Result<(Units, Vec<Track>)> {
+    let text = std::fs::read_to_string(csv).map_err(|e| Error::input(csv, e.to_string()))?;
+    let rows = crate::tracks::read_track_rows(&text).map_err(|e| Error::input(csv, e))?;
+    let units = units_of(&rows)?;
+    let tracks = build_tracks(&rows, &units).map_err(|e| Error::input(csv, e))?;
+    Ok((units, tracks))
 }
 
 /// `calibration` written as JSON and parsed again, as [`read_tracks`] gets it from `run.json`:

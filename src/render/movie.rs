@@ -145,11 +145,6 @@ impl OutlineSpool {
         Ok(w.get_ref().metadata().map_err(|e| Error::output(&self.path, e))?.len())
     }
 
-    /// Appends one frame's outline pixels ([`outline_pairs`] of its labels).
-    pub fn push(&mut self, labels: &[u32], width: usize, height: usize) -> Result<()> {
-        self.push_outline(&outline_pairs(labels, width, height))
-    }
-
     /// Appends one frame's outline pixels, given as [`outline_pairs`].
     pub fn push_outline(&mut self, pairs: &[u32]) -> Result<()> {
         let w = self.writer.as_mut().expect("still writing");
