@@ -143,28 +143,32 @@ impl<'a> SegmentedFrames<'a> {
         let (sender, receiver) = std::sync::mpsc::sync_channel(1);
         let (params, intensities, keep) = (Arc::clone(&self.params), self.intensities, self.keep);
         rayon::spawn(move || {
+            // One frame per worker: its filters stay on this thread (see the function).
+            let on_this_thread = crate::preprocess::filters_on_this_thread;
             let segmented = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                let image = frame.to_image();
-                let segmented = match labels {
-                    Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
-                    None => segment_frame(&image, frame.index, &params),
-                };
-                let mut segmented = FrameSegmentation {
-                    content_crc32: Some(frame.content_crc32()),
-                    ..segmented
-                };
-                if keep.outline {
-                    let (w, h) = (frame.width, frame.height);
-                    let values = image.as_slice().expect("standard layout");
-                    segmented.movie = Some(MovieFrame {
-                        outline: outline_pairs(&segmented.labels, w, h),
-                        downscaled: keep.downscale.map(|f| box_average(values, w, h, f)),
-                    });
-                }
-                if !keep.labels {
-                    segmented.labels = Vec::new();
-                }
-                segmented
+                on_this_thread(|| {
+                    let image = frame.to_image();
+                    let segmented = match labels {
+                        Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
+                        None => segment_frame(&image, frame.index, &params),
+                    };
+                    let mut segmented = FrameSegmentation {
+                        content_crc32: Some(frame.content_crc32()),
+                        ..segmented
+                    };
+                    if keep.outline {
+                        let (w, h) = (frame.width, frame.height);
+                        let values = image.as_slice().expect("standard layout");
+                        segmented.movie = Some(MovieFrame {
+                            outline: outline_pairs(&segmented.labels, w, h),
+                            downscaled: keep.downscale.map(|f| box_average(values, w, h, f)),
+                        });
+                    }
+                    if !keep.labels {
+                        segmented.labels = Vec::new();
+                    }
+                    segmented
+                })
             }));
             // The reader may have stopped early; then nobody wants this frame.
             let _ = sender.send(segmented);

@@ -96,6 +96,7 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
         .par_chunks_mut(BAND_ROWS * stride)
         .zip(with_g2[r * stride..(r + h) * stride].par_chunks_mut(BAND_ROWS * stride))
         .zip(src.par_chunks(BAND_ROWS * w))
+        .with_min_len(bands_per_task())
         .for_each(|((g0_band, g2_band), src)| {
             let mut padded = vec![0f32; w + 2 * r];
             let rows = g0_band.chunks_exact_mut(stride).zip(g2_band.chunks_exact_mut(stride));
@@ -108,7 +109,8 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
     reflect_rows(with_g2, h, r, stride);
     let (with_g0, with_g2) = (&*with_g0, &*with_g2);
     let mut out = vec![0f32; h * w];
-    out.par_chunks_mut(BAND_ROWS * w).enumerate().for_each(|(band, dst)| {
+    let bands = out.par_chunks_mut(BAND_ROWS * w).enumerate();
+    bands.with_min_len(bands_per_task()).for_each(|(band, dst)| {
         by_strips(dst, w, band * BAND_ROWS, |out, y, x0| {
             let at = y * stride + x0;
             filter_steps_sum(out, &with_g2[at..], &with_g0[at..], stride, &g0, &g2);
@@ -157,6 +159,43 @@ fn by_strips(dst: &mut [f32], w: usize, first: usize, mut filter: impl FnMut(&mu
 /// handover costs little, few enough that a frame splits into tasks for both cores.
 const BAND_ROWS: usize = 32;
 
+thread_local! {
+    /// Set while [`filters_on_this_thread`] runs: the filters keep their bands on the thread.
+    static ON_THIS_THREAD: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// Runs `work` with the whole-image filters kept on the calling thread (their bands one after
+/// another, the same sums, so the same bits), restoring the setting afterwards.
+///
+/// For work that is already one task among many on the worker pool, as each frame of the first
+/// pass is: a filter that splits its bands across the workers makes the worker that waits for
+/// a stolen band take up other work meanwhile (rayon's work stealing), often a whole frame, and
+/// its own frame, held up behind that one, holds up the frames read in order after it. Sampled
+/// over a 100-frame run that left one core idle for ~40 ms every few hundred ms. Where a filter
+/// is the only work left (the diameter estimate's last sampled frame) splitting it pays, so it
+/// stays the default.
+pub fn filters_on_this_thread<T>(work: impl FnOnce() -> T) -> T {
+    /// Restores the setting on the way out, also when `work` panics.
+    struct Restore(bool);
+    impl Drop for Restore {
+        fn drop(&mut self) {
+            ON_THIS_THREAD.with(|on| on.set(self.0));
+        }
+    }
+    let _restore = Restore(ON_THIS_THREAD.with(|on| on.replace(true)));
+    work()
+}
+
+/// The fewest bands a parallel task of a whole-image filter takes: all of them (so no task is
+/// handed to another thread) inside [`filters_on_this_thread`], else one.
+fn bands_per_task() -> usize {
+    if ON_THIS_THREAD.with(|on| on.get()) {
+        usize::MAX
+    } else {
+        1
+    }
+}
+
 /// Fills `padded` (`line.len() + 2·r` long) with `line` and `r` reflected samples either side.
 fn pad_row(padded: &mut [f32], line: &[f32], r: usize) {
     let w = line.len();
@@ -172,56 +211,85 @@ fn pad_row(padded: &mut [f32], line: &[f32], r: usize) {
 /// passes run over the pixels' columns and the rows within the kernel's reach of them, so the
 /// work follows the pixels' box, not the frame.
 pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f64, pixels: &[u32]) -> Vec<f32> {
-    let height = values.len() / width.max(1);
-    let (Some(&first), true) = (pixels.first(), width > 0) else {
-        return Vec::new();
-    };
-    let g0 = truncated_derivative_kernel(sigma, 0, truncate);
-    let g2 = truncated_derivative_kernel(sigma, 2, truncate);
-    let r = g0.len() / 2;
-    let grid = crate::numeric::Grid::new(width, height);
-    let column_row = |p: u32| grid.column_row(p as usize);
-    let ((fx, fy), mut x1, mut y1) = (column_row(first), 0, 0);
-    let (mut x0, mut y0) = (fx, fy);
-    for &p in pixels {
-        let (x, y) = column_row(p);
-        (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
-    }
-    // Rows y0 - r .. y1 + r (as offsets), columns x0..x1: each row filtered with g0 and g2.
-    let band = x1 - x0;
-    let rows = y1 - y0 + 2 * r;
-    let mut with_g0 = vec![0f32; rows * band];
-    let mut with_g2 = vec![0f32; rows * band];
-    let mut padded = vec![0f32; band + 2 * r];
-    // Columns x0 - r .. x1 + r of the frame; those inside it are copied, the rest reflected.
-    let inside = r.saturating_sub(x0)..(band + 2 * r).min(width + r - x0);
-    for j in 0..rows {
-        let sy = reflect(y0 as isize + j as isize - r as isize, height);
-        let line = &values[sy * width..(sy + 1) * width];
-        padded[inside.clone()].copy_from_slice(&line[x0 + inside.start - r..x0 + inside.end - r]);
-        for i in (0..inside.start).chain(inside.end..band + 2 * r) {
-            padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
+    LaplaceKernels::new(sigma, truncate).at(values, width, pixels)
+}
+
+/// The two kernels of a Laplacian of Gaussian (the Gaussian and its second derivative, cut at
+/// a number of standard deviations), made once for the many small boxes of one frame that
+/// [`LaplaceKernels::at`] filters (each kernel is a few dozen exponentials).
+pub struct LaplaceKernels {
+    g0: Vec<f32>,
+    g2: Vec<f32>,
+}
+
+impl LaplaceKernels {
+    /// The kernels of σ = `sigma` reaching `truncate` standard deviations either side.
+    pub fn new(sigma: f32, truncate: f64) -> Self {
+        LaplaceKernels {
+            g0: truncated_derivative_kernel(sigma, 0, truncate),
+            g2: truncated_derivative_kernel(sigma, 2, truncate),
         }
-        let (g0_row, g2_row) = (
-            &mut with_g0[j * band..(j + 1) * band],
-            &mut with_g2[j * band..(j + 1) * band],
-        );
-        filter_steps_pair(g0_row, g2_row, &padded, 1, &g0, &g2);
     }
-    // The two column passes and their sum over the whole box (vectorised), then the pixels
-    // read from it.
-    let box_rows = y1 - y0;
-    let mut laplacian = vec![0f32; box_rows * band];
-    for (j, row) in laplacian.chunks_exact_mut(band).enumerate() {
-        filter_steps_sum(row, &with_g2[j * band..], &with_g0[j * band..], band, &g0, &g2);
-    }
-    pixels
-        .iter()
-        .map(|&p| {
+
+    /// [`gaussian_laplace_at`] with these kernels. Its three images (the two row passes and
+    /// their column sum) are cut from the thread's spare buffer: every value is written before
+    /// it is read, and a frame asks for one box per object.
+    pub fn at(&self, values: &[f32], width: usize, pixels: &[u32]) -> Vec<f32> {
+        let height = values.len() / width.max(1);
+        let (Some(&first), true) = (pixels.first(), width > 0) else {
+            return Vec::new();
+        };
+        let (g0, g2) = (&self.g0, &self.g2);
+        let r = g0.len() / 2;
+        let grid = crate::numeric::Grid::new(width, height);
+        let column_row = |p: u32| grid.column_row(p as usize);
+        let ((fx, fy), mut x1, mut y1) = (column_row(first), 0, 0);
+        let (mut x0, mut y0) = (fx, fy);
+        for &p in pixels {
             let (x, y) = column_row(p);
-            laplacian[(y - y0) * band + x - x0]
-        })
-        .collect()
+            (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
+        }
+        // Rows y0 - r .. y1 + r (as offsets), columns x0..x1: each row filtered with g0 and g2.
+        let band = x1 - x0;
+        let rows = y1 - y0 + 2 * r;
+        let box_rows = y1 - y0;
+        let (across, box_len, padded_len) = (rows * band, box_rows * band, band + 2 * r);
+        let mut spare = scratch::take(2 * across + box_len + padded_len);
+        let (with_g0, rest) = spare.split_at_mut(across);
+        let (with_g2, rest) = rest.split_at_mut(across);
+        let (laplacian, rest) = rest.split_at_mut(box_len);
+        let padded = &mut rest[..padded_len];
+        // Columns x0 - r .. x1 + r of the frame; those inside it are copied, the rest reflected.
+        let inside = r.saturating_sub(x0)..padded_len.min(width + r - x0);
+        for j in 0..rows {
+            let sy = reflect(y0 as isize + j as isize - r as isize, height);
+            let line = &values[sy * width..(sy + 1) * width];
+            padded[inside.clone()].copy_from_slice(&line[x0 + inside.start - r..x0 + inside.end - r]);
+            for i in (0..inside.start).chain(inside.end..padded_len) {
+                padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
+            }
+            let (g0_row, g2_row) = (
+                &mut with_g0[j * band..(j + 1) * band],
+                &mut with_g2[j * band..(j + 1) * band],
+            );
+            filter_steps_pair(g0_row, g2_row, padded, 1, g0, g2);
+        }
+        // The two column passes and their sum over the whole box (vectorised), then the pixels
+        // read from it.
+        let (with_g0, with_g2) = (&*with_g0, &*with_g2);
+        for (j, row) in laplacian.chunks_exact_mut(band).enumerate() {
+            filter_steps_sum(row, &with_g2[j * band..], &with_g0[j * band..], band, g0, g2);
+        }
+        let at = pixels
+            .iter()
+            .map(|&p| {
+                let (x, y) = column_row(p);
+                laplacian[(y - y0) * band + x - x0]
+            })
+            .collect();
+        scratch::give_back(spare);
+        at
+    }
 }
 
 /// Convolves rows with `kernel_x` and columns with `kernel_y` (odd-length, centred kernels),
@@ -254,6 +322,7 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
     across[ry * stride..(ry + h) * stride]
         .par_chunks_mut(BAND_ROWS * stride)
         .zip(src.par_chunks(BAND_ROWS * w))
+        .with_min_len(bands_per_task())
         .for_each(|(dst, src)| {
             let mut padded = vec![0f32; w + 2 * rx];
             for (line, out) in src.chunks_exact(w).zip(dst.chunks_exact_mut(stride)) {
@@ -264,7 +333,8 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
     reflect_rows(across, h, ry, stride);
     let across = &*across;
     let mut out = vec![0f32; h * w];
-    out.par_chunks_mut(BAND_ROWS * w).enumerate().for_each(|(band, dst)| {
+    let bands = out.par_chunks_mut(BAND_ROWS * w).enumerate();
+    bands.with_min_len(bands_per_task()).for_each(|(band, dst)| {
         by_strips(dst, w, band * BAND_ROWS, |out, y, x0| {
             filter_steps(out, &across[y * stride + x0..], stride, kernel_y);
         });
@@ -362,10 +432,9 @@ crate::multiversioned! {
 
 /// For `M` filters of one length at once, the sums `Σₖ kernels[m][k] · line(m, k)[x]` for
 /// `x` in `0..n`, taps added in order, every pixel's sums held in registers over all taps:
-/// blocks of [`BLOCK`] pixels, then 16 and 8 (a small object's box is narrower than a block),
-/// then the last few pixels as one block of 8 with its unused lanes zero (the same sums for
-/// the lanes that count; a store per tap there made the last pixels of each short row cost as
-/// much as the rest). Each block's sums go to `emit(x, sums)`, one slice per filter as long as
+/// blocks of [`BLOCK`] pixels, then 16 (a small object's box is narrower than a block), then
+/// the last pixels as one block of 16 (more than 8 left) or 8 ([`filter_tail`]; the same sums
+/// for the lanes that count). Each block's sums go to `emit(x, sums)`, one slice per filter as long as
 /// the pixels they stand for. Inlined into each instruction level's copy of its callers.
 #[inline(always)]
 fn filter_lines<'a, const M: usize>(
@@ -385,29 +454,46 @@ fn filter_lines<'a, const M: usize>(
         emit(x, std::array::from_fn(|m| &sums[m][..]));
         x += 16;
     }
-    while x + 8 <= n {
-        let sums = filter_block::<8, M>(&|m, k| &line(m, k)[x..x + 8], kernels);
-        emit(x, std::array::from_fn(|m| &sums[m][..]));
-        x += 8;
-    }
     let rest = n - x;
-    if rest == 0 {
+    if rest > 8 {
+        // Nine to fifteen pixels left (a small object's box is often that wide): one block of
+        // 16 instead of one of 8 and a tail of 8, half the sums on a CPU with 16-lane vectors.
+        filter_tail::<16, M>(n, x, &line, kernels, &mut emit);
         return;
     }
-    let tail = |m: usize, k: usize| -> [f32; 8] {
+    if rest == 8 {
+        let sums = filter_block::<8, M>(&|m, k| &line(m, k)[x..x + 8], kernels);
+        emit(x, std::array::from_fn(|m| &sums[m][..]));
+    } else if rest > 0 {
+        filter_tail::<8, M>(n, x, &line, kernels, &mut emit);
+    }
+}
+
+/// The last `n − x` (fewer than `N`) pixels of [`filter_lines`] as one block of `N` whose
+/// unused lanes are dropped: where the line runs on past the output (a column pass away from
+/// the last rows, a padded row) its next values fill them, elsewhere zeros. A store per tap
+/// there made the last pixels of each short row cost as much as the rest.
+#[inline(always)]
+fn filter_tail<'a, const N: usize, const M: usize>(
+    n: usize,
+    x: usize,
+    line: &impl Fn(usize, usize) -> &'a [f32],
+    kernels: [&[f32]; M],
+    emit: &mut impl FnMut(usize, [&[f32]; M]),
+) {
+    let rest = n - x;
+    let tail = |m: usize, k: usize| -> [f32; N] {
         let l = line(m, k);
-        match l.get(x..x + 8) {
-            // The line runs on past the output (a column pass away from the last rows): its
-            // next values fill the unused lanes, whose sums are dropped.
+        match l.get(x..x + N) {
             Some(whole) => whole.try_into().expect("block"),
             None => {
-                let mut values = [0f32; 8];
+                let mut values = [0f32; N];
                 values[..rest].copy_from_slice(&l[x..n]);
                 values
             }
         }
     };
-    let sums = filter_block_of::<8, M>(tail, kernels);
+    let sums = filter_block_of::<N, M>(tail, kernels);
     emit(x, std::array::from_fn(|m| &sums[m][..rest]));
 }
 
@@ -554,6 +640,26 @@ mod tests {
                 "{h} x {w}"
             );
         }
+    }
+
+    #[test]
+    fn filters_kept_on_one_thread_give_the_same_bits_and_the_setting_is_restored() {
+        // Source: the filters split into bands or not (each band's sums do not depend on the
+        // thread that makes them): on images of ten bands, the Gaussian and the Laplacian of
+        // Gaussian inside `filters_on_this_thread` equal those outside bit for bit; the setting
+        // holds inside only, and is restored after a panic too.
+        let image = Image::from_shape_fn((300, 41), |(y, x)| ((y * 131 + x * 7919) % 263) as f32 * 0.71 - 40.0);
+        let bits = |i: &Image| i.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
+        let outside = (bits(&gaussian_blur(&image, 1.4)), bits(&gaussian_laplace(&image, 2.3)));
+        let inside = filters_on_this_thread(|| {
+            assert_eq!(bands_per_task(), usize::MAX);
+            (bits(&gaussian_blur(&image, 1.4)), bits(&gaussian_laplace(&image, 2.3)))
+        });
+        assert_eq!(inside, outside);
+        assert_eq!(bands_per_task(), 1);
+        let panicked = std::panic::catch_unwind(|| filters_on_this_thread(|| panic!("a frame failed")));
+        assert!(panicked.is_err());
+        assert_eq!(bands_per_task(), 1);
     }
 
     #[test]

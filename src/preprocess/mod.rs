@@ -9,8 +9,8 @@ pub use background::{
     background_estimate, grey_opening_square, max_filter_square, min_filter_square, tophat, tophat_in_place,
 };
 pub use gaussian::{
-    convolve_separable, gaussian_blur, gaussian_derivative_kernel, gaussian_kernel, gaussian_laplace,
-    gaussian_laplace_at, gaussian_radius,
+    convolve_separable, filters_on_this_thread, gaussian_blur, gaussian_derivative_kernel, gaussian_kernel,
+    gaussian_laplace, gaussian_laplace_at, gaussian_radius, LaplaceKernels,
 };
 pub use noise::{immerkaer_sigma, robust_noise_sigma, MEDIAN_ABS_OF_STANDARD_NORMAL};
 

@@ -5,7 +5,7 @@ use super::diameter::{log_noise_gain, MIN_BLOB_SIGNIFICANCE};
 use super::split::basin_boxes;
 use super::watershed;
 use crate::numeric::Grid;
-use crate::preprocess::gaussian_laplace_at;
+use crate::preprocess::LaplaceKernels;
 
 /// Scale of the blob response over the expected diameter. A disc of diameter `d` responds
 /// most at σ = d / (2√2) (fixtures/methods/check_values.md §6); 0.265 = 0.75 / (2√2) is tuned
@@ -59,12 +59,25 @@ impl BlobRule {
     }
 }
 
+/// The kernels of the blob response of `rule` (made once per frame, used for every object).
+pub(crate) fn blob_kernels(rule: &BlobRule) -> LaplaceKernels {
+    LaplaceKernels::new(rule.sigma_px as f32, TRUNCATE)
+}
+
 /// The scale-normalised blob response `−σ²∇²G_σ * values` at `pixels` of a `width`-wide frame
-/// (equal to the response of the whole frame at them, with kernels cut at [`TRUNCATE`]).
-pub(crate) fn blob_response(values: &[f32], width: usize, pixels: &[u32], rule: &BlobRule) -> Vec<f32> {
+/// (equal to the response of the whole frame at them, with kernels cut at [`TRUNCATE`];
+/// `kernels` from [`blob_kernels`] of `rule`).
+pub(crate) fn blob_response(
+    values: &[f32],
+    width: usize,
+    pixels: &[u32],
+    rule: &BlobRule,
+    kernels: &LaplaceKernels,
+) -> Vec<f32> {
     let sigma = rule.sigma_px as f32;
     let scale = -sigma * sigma;
-    gaussian_laplace_at(values, width, sigma, TRUNCATE, pixels)
+    kernels
+        .at(values, width, pixels)
         .into_iter()
         .map(|l| scale * l)
         .collect()
@@ -209,7 +222,10 @@ mod tests {
         let inside: Vec<u32> = (0..values.len() as u32).filter(|&p| labels[p as usize] == 1).collect();
         let rule = BlobRule::new(diameter, 1.0);
         let mut blob = vec![f32::NEG_INFINITY; values.len()];
-        for (&p, b) in inside.iter().zip(blob_response(values, w, &inside, &rule)) {
+        for (&p, b) in inside
+            .iter()
+            .zip(blob_response(values, w, &inside, &rule, &blob_kernels(&rule)))
+        {
             blob[p as usize] = b;
         }
         let out = split_basins_at_blobs(&labels, &blob, &rule, w);
@@ -261,7 +277,8 @@ mod tests {
         let (w, h) = (48, 32);
         let values = scene(w, h, &[(24.0, 16.0, 11.0, 5.0, 800.0)]);
         let all: Vec<u32> = (0..(w * h) as u32).collect();
-        let response = blob_response(&values, w, &all, &BlobRule::new(14.0, 1.0));
+        let rule = BlobRule::new(14.0, 1.0);
+        let response = blob_response(&values, w, &all, &rule, &blob_kernels(&rule));
         let row = &response[16 * w..17 * w];
         let maxima = (1..w - 1)
             .filter(|&x| row[x] > row[x - 1] && row[x] > row[x + 1])

@@ -3,10 +3,11 @@
 //! runs on a small window around each component instead of the whole frame: on a typical
 //! frame, where nuclei cover a few percent of the pixels, that is most of the work saved.
 
-use super::blobs::{blob_response, split_basins_at_blobs, BlobRule};
+use super::blobs::{blob_kernels, blob_response, split_basins_at_blobs, BlobRule};
 use super::hmaxima::h_maxima_seeds;
 use super::{distance_transform, watershed};
 use crate::numeric::Grid;
+use crate::preprocess::LaplaceKernels;
 use crate::preprocess::{gaussian_blur, gaussian_radius};
 
 /// An 8-connected foreground component: its pixels and its bounding box.
@@ -97,6 +98,7 @@ pub(crate) fn split_touching_with_pixels(
         1
     };
     let mut next = 0u32;
+    let kernels = intensity.map(|cues| blob_kernels(&cues.blobs));
     for c in &components {
         let window = Window::around(c, pad, width, height);
         let own = &pixels[c.pixels.clone()];
@@ -104,7 +106,9 @@ pub(crate) fn split_touching_with_pixels(
         for &p in own {
             local_mask[window.local(p as usize, width)] = true;
         }
-        let local_cues = intensity.map(|cues| WindowCues::of(cues, own, &window, width));
+        let local_cues = intensity
+            .zip(kernels.as_ref())
+            .map(|(cues, k)| WindowCues::of(cues, k, own, &window, width));
         let local = split_component(
             &local_mask,
             local_cues.as_ref(),
@@ -352,7 +356,7 @@ struct WindowCues {
 }
 
 impl WindowCues {
-    fn of(cues: &IntensityCues, own: &[u32], window: &Window, width: usize) -> Self {
+    fn of(cues: &IntensityCues, kernels: &LaplaceKernels, own: &[u32], window: &Window, width: usize) -> Self {
         let len = window.width * window.height;
         let mut local = WindowCues {
             values: vec![0.0; len],
@@ -360,7 +364,7 @@ impl WindowCues {
             blob: vec![f32::NEG_INFINITY; len],
             blobs: cues.blobs,
         };
-        let response = blob_response(cues.values, width, own, &cues.blobs);
+        let response = blob_response(cues.values, width, own, &cues.blobs, kernels);
         for (&p, b) in own.iter().zip(response) {
             let i = window.local(p as usize, width);
             local.values[i] = cues.values[p as usize];
