@@ -77,11 +77,17 @@ pub fn assign_with_alternatives(
     };
     let mut linked_source = vec![false; n_sources];
     let mut linked_target = vec![false; n_targets];
+    let mut link = |(s, t, c): (usize, usize, f64)| {
+        linked_source[s] = true;
+        linked_target[t] = true;
+        out.links.push((s, t, c));
+    };
     for component in components(n_sources, n_targets, candidates) {
-        for (s, t, c) in solve_component(&component, candidates, alternative_cost) {
-            linked_source[s] = true;
-            linked_target[t] = true;
-            out.links.push((s, t, c));
+        match lone_link(&component, candidates, alternative_cost) {
+            Some(lone) => lone.into_iter().for_each(&mut link),
+            None => solve_component(&component, candidates, alternative_cost)
+                .into_iter()
+                .for_each(&mut link),
         }
     }
     out.links.sort_by_key(|l| l.0);
@@ -102,24 +108,53 @@ fn second_best_costs(
     candidates: &[(usize, usize, f64)],
     alternative_cost: f64,
 ) -> Vec<f64> {
-    // (the other end, cost) of every candidate, by source and by target.
-    let mut from_source: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n_sources];
-    let mut into_target: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n_targets];
-    for &(s, t, c) in candidates {
-        from_source[s].push((t, c));
-        into_target[t].push((s, c));
-    }
+    // (the other end, cost) of every candidate, by source and by target: one list each, cut
+    // at offsets counted first, rather than a list per object (hundreds of allocations a
+    // frame).
+    let from_source = Grouped::of(n_sources, candidates.iter().map(|&(s, t, c)| (s, (t, c))));
+    let into_target = Grouped::of(n_targets, candidates.iter().map(|&(s, t, c)| (t, (s, c))));
     links
         .iter()
         .map(|&(s, t, _)| {
-            let elsewhere = from_source[s].iter().filter(|&&(other, _)| other != t);
-            let from_elsewhere = into_target[t].iter().filter(|&&(other, _)| other != s);
+            let elsewhere = from_source.group(s).iter().filter(|&&(other, _)| other != t);
+            let from_elsewhere = into_target.group(t).iter().filter(|&&(other, _)| other != s);
             elsewhere
                 .chain(from_elsewhere)
                 .map(|&(_, c)| c)
                 .fold(alternative_cost, f64::min)
         })
         .collect()
+}
+
+/// Values grouped by a key in `0..keys`, each group in the order the values came in, all in one
+/// list (a compressed sparse row layout).
+struct Grouped<T> {
+    /// Where each key's values start in `values`; one more entry at the end.
+    starts: Vec<usize>,
+    values: Vec<T>,
+}
+
+impl<T: Copy + Default> Grouped<T> {
+    fn of(keys: usize, pairs: impl Iterator<Item = (usize, T)> + Clone) -> Self {
+        let mut starts = vec![0usize; keys + 1];
+        for (k, _) in pairs.clone() {
+            starts[k + 1] += 1;
+        }
+        for k in 0..keys {
+            starts[k + 1] += starts[k];
+        }
+        let mut next = starts.clone();
+        let mut values = vec![T::default(); starts[keys]];
+        for (k, v) in pairs {
+            values[next[k]] = v;
+            next[k] += 1;
+        }
+        Grouped { starts, values }
+    }
+
+    fn group(&self, key: usize) -> &[T] {
+        &self.values[self.starts[key]..self.starts[key + 1]]
+    }
 }
 
 /// What the global steps after frame-to-frame linking did.
@@ -242,14 +277,22 @@ fn components(n_sources: usize, n_targets: usize, candidates: &[(usize, usize, f
     for &(s, t, _) in candidates {
         sets.union(s, n_sources + t);
     }
-    let mut by_root: std::collections::BTreeMap<usize, Component> = Default::default();
+    // Components in order of their first candidate (their order does not matter: the links
+    // are sorted by source afterwards); within one, sources, targets and edges in candidate
+    // order, which sets the rows and columns of its assignment problem.
+    let mut index_of_root = vec![usize::MAX; n_sources + n_targets];
+    let mut found: Vec<Component> = Vec::new();
     for (k, &(s, t, _)) in candidates.iter().enumerate() {
         let root = sets.find(s);
-        let c = by_root.entry(root).or_insert_with(|| Component {
-            sources: vec![],
-            targets: vec![],
-            edges: vec![],
-        });
+        if index_of_root[root] == usize::MAX {
+            index_of_root[root] = found.len();
+            found.push(Component {
+                sources: vec![],
+                targets: vec![],
+                edges: vec![],
+            });
+        }
+        let c = &mut found[index_of_root[root]];
         c.edges.push(k);
         if !c.sources.contains(&s) {
             c.sources.push(s);
@@ -258,7 +301,25 @@ fn components(n_sources: usize, n_targets: usize, candidates: &[(usize, usize, f
             c.targets.push(t);
         }
     }
-    by_root.into_values().collect()
+    found
+}
+
+/// The links of a component of one source and one target joined by one candidate, without
+/// the assignment solver: its (2 x 2) problem takes the link (cost `2v`: the link and its
+/// auxiliary entry) over death and birth (`2·alt`) exactly when `v < alt` in the solver's
+/// integer costs. `None` for any other component, and for a tie (left to the solver, whose
+/// tie-breaking this does not repeat).
+fn lone_link(c: &Component, candidates: &[(usize, usize, f64)], alternative: f64) -> Option<Vec<(usize, usize, f64)>> {
+    let [k] = c.edges[..] else {
+        return None;
+    };
+    let (s, t, d2) = candidates[k];
+    let (v, alt) = (scale_cost(d2), scale_cost(alternative));
+    match v.cmp(&alt) {
+        std::cmp::Ordering::Less => Some(vec![(s, t, d2)]),
+        std::cmp::Ordering::Greater => Some(Vec::new()),
+        std::cmp::Ordering::Equal => None,
+    }
 }
 
 /// Costs in squared px become integers in units of 1/1000 px² (the solver needs `Ord`
@@ -357,6 +418,44 @@ mod tests {
                     .fold(r.alternative_cost, f64::min);
                 assert_eq!(got.to_bits(), want.to_bits(), "round {round} link {s}->{t}");
             }
+        }
+    }
+
+    #[test]
+    fn a_lone_link_is_decided_as_the_solver_decides_it() {
+        // Source: the Hungarian solver (pathfinding's kuhn_munkres) on every component, the
+        // path before the shortcut: random sparse frames where most components are one source
+        // and one target, with alternative costs below, equal to and above the links' costs.
+        let mut rng = crate::numeric::Rng::new(9);
+        for round in 0..40 {
+            let n = 30 + round;
+            let sources: Vec<[f64; 2]> = (0..n).map(|_| [rng.uniform() * 400.0, rng.uniform() * 400.0]).collect();
+            let targets: Vec<[f64; 2]> = sources
+                .iter()
+                .map(|p| [p[0] + 3.0 * rng.uniform(), p[1] + 3.0 * rng.uniform()])
+                .collect();
+            let candidates = candidate_links(&sources, &vec![6.0; n], &targets);
+            let some_link = candidates[round % candidates.len()].2;
+            for alternative in [some_link, 0.5 * some_link, 1.05 * some_link, 20.0] {
+                let got = assign_with_alternatives(n, n, &candidates, alternative);
+                let mut want: Vec<(usize, usize, f64)> = components(n, n, &candidates)
+                    .iter()
+                    .flat_map(|c| solve_component(c, &candidates, alternative))
+                    .collect();
+                want.sort_by_key(|l| l.0);
+                assert_eq!(got.links, want, "round {round}, alternative {alternative}");
+            }
+        }
+    }
+
+    #[test]
+    fn grouped_values_keep_their_keys_and_order() {
+        // Source: the definition, a list per key filled in arrival order.
+        let pairs = [(2usize, 'a'), (0, 'b'), (2, 'c'), (4, 'd'), (0, 'e')];
+        let grouped = Grouped::of(5, pairs.iter().copied());
+        for key in 0..5 {
+            let want: Vec<char> = pairs.iter().filter(|p| p.0 == key).map(|p| p.1).collect();
+            assert_eq!(grouped.group(key), &want[..], "key {key}");
         }
     }
 
