@@ -94,6 +94,18 @@ fn motion_estimate_100_frames(b: Bencher) {
 /// The frame stretched to 8 bits, as the review page stores it at full resolution.
 static GREYS: LazyLock<Vec<u8>> = LazyLock::new(|| caravan::render::stretch_to_u8(FRAME.as_slice().unwrap()));
 
+/// A movie frame's LZW code stream: the frame's grey levels block-averaged 2 x 2 to 512 x 512
+/// and stretched to the movie's 240 greys, as the QC movie's frames are before their overlay.
+#[divan::bench]
+fn movie_frame_lzw(b: Bencher) {
+    let small = caravan::render::box_average(FRAME.as_slice().unwrap(), 1024, 1024, 2);
+    let greys: Vec<u8> = caravan::render::stretch_to_u8(&small)
+        .iter()
+        .map(|&g| (g as u32 * 239 / 255) as u8)
+        .collect();
+    b.bench(|| caravan::render::lzw::gif_lzw(black_box(&greys)));
+}
+
 /// A review frame at full resolution, 1024 x 1024, quality 75: our encoder ...
 #[divan::bench]
 fn review_jpeg_ours(b: Bencher) {

@@ -10,7 +10,8 @@
 //! `gif` crate applies them: codes packed least significant bit first, a clear code first, the
 //! code width grown when the next code would not fit and the table restarted with a clear code
 //! once 4096 codes exist; the end code, then padding to a whole byte. The dictionary is a hash
-//! table of (prefix code, next byte) pairs, emptied in one pass when the table restarts.
+//! table of (prefix code, next byte) pairs, each slot holding the pair and its code in one
+//! 32-bit word (one load per probe), emptied in one pass when the table restarts.
 
 /// Codes a GIF table can hold (12-bit codes).
 const MAX_CODES: usize = 4096;
@@ -47,9 +48,9 @@ struct Encoder {
     width: u8,
     /// Codes defined so far (the next code to assign).
     defined: usize,
-    /// Hash table: key + 1 (0 = empty slot), and the code of that key.
-    keys: Vec<u32>,
-    codes: Vec<u16>,
+    /// Hash table: `key << 12 | code` per slot, 0 for an empty one (no string is given code
+    /// 0: codes start past the clear and end codes).
+    slots: Vec<u32>,
     /// Extensions defined per code since the last clear (up to `SHORT_LIST` + 1).
     extensions: Vec<u8>,
     bits: u64,
@@ -65,8 +66,7 @@ impl Encoder {
             min_size,
             width: min_size + 1,
             defined: usize::from(clear) + 2,
-            keys: vec![0; SLOTS],
-            codes: vec![0; SLOTS],
+            slots: vec![0; SLOTS],
             extensions: vec![0; MAX_CODES + 1],
             bits: 0,
             pending: 0,
@@ -84,22 +84,21 @@ impl Encoder {
         for &byte in rest {
             let key = (u32::from(current) << 8) | u32::from(byte);
             let mut slot = slot_of(key);
-            loop {
-                match self.keys[slot] {
-                    0 => break,
-                    k if k == key + 1 => break,
-                    _ => slot = (slot + 1) % SLOTS,
-                }
+            let mut entry = self.slots[slot];
+            while entry != 0 && entry >> 12 != key {
+                slot = (slot + 1) % SLOTS;
+                entry = self.slots[slot];
             }
-            if self.keys[slot] != 0 {
-                current = self.codes[slot];
+            if entry != 0 {
+                current = (entry & 0xFFF) as u16;
                 continue;
             }
             // A new string: its code is defined, the known prefix is written.
             let extended = &mut self.extensions[usize::from(current)];
-            if *extended != SHORT_LIST {
-                self.keys[slot] = key + 1;
-                self.codes[slot] = self.defined as u16;
+            // Code 4096 is defined only to be cleared at once (the table restarts below): it
+            // is never stored, so every stored code fits its 12 bits.
+            if *extended != SHORT_LIST && self.defined < MAX_CODES {
+                self.slots[slot] = key << 12 | self.defined as u32;
             }
             *extended = extended.saturating_add(1).min(SHORT_LIST + 1);
             self.defined += 1;
@@ -125,7 +124,7 @@ impl Encoder {
 
     /// Empties the dictionary after a clear code.
     fn restart(&mut self) {
-        self.keys.iter_mut().for_each(|k| *k = 0);
+        self.slots.iter_mut().for_each(|k| *k = 0);
         self.extensions.iter_mut().for_each(|e| *e = 0);
         self.defined = usize::from(self.clear) + 2;
         self.width = self.min_size + 1;

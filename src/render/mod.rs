@@ -5,7 +5,7 @@
 mod font;
 pub mod jpeg;
 pub mod lookalike;
-mod lzw;
+pub mod lzw;
 pub mod movie;
 pub mod plots;
 mod preview;
