@@ -170,8 +170,8 @@ thread_local! {
 /// For work that is already one task among many on the worker pool, as each frame of the first
 /// pass is: a filter that splits its bands across the workers makes the worker that waits for
 /// a stolen band take up other work meanwhile (rayon's work stealing), often a whole frame, and
-/// its own frame, held up behind that one, holds up the frames read in order after it. Sampled
-/// over a 100-frame run that left one core idle for ~40 ms every few hundred ms. Where a filter
+/// its own frame, held up behind that one, holds up the frames read in order after it (a
+/// sampled 100-frame run showed one core idle for ~40 ms every few hundred ms). Where a filter
 /// is the only work left (the diameter estimate's last sampled frame) splitting it pays, so it
 /// stays the default.
 pub fn filters_on_this_thread<T>(work: impl FnOnce() -> T) -> T {

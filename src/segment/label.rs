@@ -50,7 +50,7 @@ pub struct Runs {
 
 impl Runs {
     /// The runs of pixels equal to `value` in a `width` x `height` mask. Stretches without
-    /// a change are skipped eight pixels at a time ([`next_equal`]).
+    /// a change are skipped eight pixels at a time (read as one 64-bit word).
     pub fn of(mask: &[bool], width: usize, height: usize, value: bool) -> Runs {
         let mut runs = Vec::new();
         let mut row_start = Vec::with_capacity(height + 1);
