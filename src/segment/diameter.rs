@@ -148,15 +148,20 @@ fn keep_strongest(
         .zip(best_sigma.as_slice_mut().expect("standard layout").chunks_exact_mut(w))
         .zip(best_noise.as_slice_mut().expect("standard layout").chunks_exact_mut(w));
     let mut spread = vec![0f32; w];
+    // The binned row last spread: the 2^level rows of a block share it, so it is spread once.
+    let mut spread_row = None;
     for (y, ((best, best_sigma), best_noise)) in rows.enumerate() {
         let by = (y >> level).min(rh - 1);
         let line = &response[by * rw..(by + 1) * rw];
         let line = if level == 0 && rw >= w {
             &line[..w]
         } else {
-            // Pixel x reads block x >> level: blocks of 2^level pixels (the last one cut).
-            for (block, &v) in spread.chunks_mut(1 << level).zip(line) {
-                block.fill(v);
+            if spread_row != Some(by) {
+                // Pixel x reads block x >> level: blocks of 2^level pixels (the last one cut).
+                for (block, &v) in spread.chunks_mut(1 << level).zip(line) {
+                    block.fill(v);
+                }
+                spread_row = Some(by);
             }
             &spread
         };
@@ -522,6 +527,46 @@ mod tests {
             assert_eq!(run(level), portable, "{level:?}");
         }
     }
+    #[test]
+    fn a_binned_response_is_read_block_by_block() {
+        // Source: definition (pixel (x, y) of a response binned by 2^level reads block
+        // (x >> level, y >> level), the last row of blocks standing in for any rows past it;
+        // it replaces the best only when norm x response is strictly larger): levels 0-3 on
+        // full sizes that do and do not divide into blocks, over a best already half filled.
+        for (level, (h, w), (rh, rw)) in [
+            (0u32, (5, 7), (5, 7)),
+            (1, (9, 7), (5, 4)),
+            (2, (13, 10), (3, 3)),
+            (3, (17, 9), (2, 2)),
+        ] {
+            let response = Image::from_shape_fn((rh, rw), |(y, x)| ((y * 7 + x * 3) % 5) as f32 - 2.0);
+            let start = |y: usize, x: usize| {
+                if (x + y).is_multiple_of(2) {
+                    0.5
+                } else {
+                    f32::NEG_INFINITY
+                }
+            };
+            let mut best = Image::from_shape_fn((h, w), |(y, x)| start(y, x));
+            let (mut best_sigma, mut best_noise) = (Image::zeros((h, w)), Image::zeros((h, w)));
+            keep_strongest(
+                (&response, level, -1.5),
+                (4.0, 0.25),
+                (&mut best, &mut best_sigma, &mut best_noise),
+            );
+            for y in 0..h {
+                for x in 0..w {
+                    let r = -1.5 * response[[(y >> level).min(rh - 1), x >> level]];
+                    let taken = r > start(y, x);
+                    let context = format!("level {level}, pixel ({x}, {y})");
+                    assert_eq!(best[[y, x]], if taken { r } else { start(y, x) }, "{context}");
+                    assert_eq!(best_sigma[[y, x]], if taken { 4.0 } else { 0.0 }, "{context}");
+                    assert_eq!(best_noise[[y, x]], if taken { 0.25 } else { 0.0 }, "{context}");
+                }
+            }
+        }
+    }
+
     use crate::numeric::Rng;
 
     #[test]
