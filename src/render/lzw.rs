@@ -9,9 +9,10 @@
 //! Interchange Format, Version 89a", 1990, appendix F; year and appendix from memory) as the
 //! `gif` crate applies them: codes packed least significant bit first, a clear code first, the
 //! code width grown when the next code would not fit and the table restarted with a clear code
-//! once 4096 codes exist; the end code, then padding to a whole byte. The dictionary is a hash
-//! table of (prefix code, next byte) pairs, each slot holding the pair and its code in one
-//! 32-bit word (one load per probe), emptied in one pass when the table restarts.
+//! once 4096 codes exist; the end code, then padding to a whole byte. The dictionary is a table
+//! indexed directly by (palette index, next byte) for the one-byte strings, and a hash table of
+//! (prefix code, next byte) pairs for the longer ones, each slot holding the pair and its code
+//! in one 32-bit word (one load per probe), emptied in one pass when the table restarts.
 
 /// Codes a GIF table can hold (12-bit codes).
 const MAX_CODES: usize = 4096;
@@ -48,9 +49,16 @@ struct Encoder {
     width: u8,
     /// Codes defined so far (the next code to assign).
     defined: usize,
-    /// Hash table: `key << 12 | code` per slot, 0 for an empty one (no string is given code
-    /// 0: codes start past the clear and end codes).
+    /// Hash table of the strings of two bytes or more: `key << 12 | code` per slot, 0 for an
+    /// empty one (no string is given code 0: codes start past the clear and end codes).
     slots: Vec<u32>,
+    /// The extensions of the one-byte strings (the palette indices), indexed directly by
+    /// `index << 8 | byte`: `epoch << 12 | code`, valid only when its epoch is the current
+    /// one, so that a restart empties it by counting up instead of clearing 256 KB. Half the
+    /// look-ups of a noisy frame start from a single byte.
+    roots: Vec<u32>,
+    /// Restarts so far, plus one (never 0, so a zeroed entry is never valid).
+    epoch: u32,
     /// Extensions defined per code since the last clear (up to `SHORT_LIST` + 1).
     extensions: Vec<u8>,
     bits: u64,
@@ -67,6 +75,8 @@ impl Encoder {
             width: min_size + 1,
             defined: usize::from(clear) + 2,
             slots: vec![0; SLOTS],
+            roots: vec![0; usize::from(clear) << 8],
+            epoch: 1,
             extensions: vec![0; MAX_CODES + 1],
             bits: 0,
             pending: 0,
@@ -83,14 +93,22 @@ impl Encoder {
         let mut current = u16::from(first);
         for &byte in rest {
             let key = (u32::from(current) << 8) | u32::from(byte);
-            let mut slot = slot_of(key);
-            let mut entry = self.slots[slot];
-            while entry != 0 && entry >> 12 != key {
-                slot = (slot + 1) % SLOTS;
-                entry = self.slots[slot];
-            }
-            if entry != 0 {
-                current = (entry & 0xFFF) as u16;
+            let root = current < self.clear;
+            let mut slot = 0;
+            let known = if root {
+                let entry = self.roots[key as usize];
+                (entry >> 12 == self.epoch).then_some(entry & 0xFFF)
+            } else {
+                slot = slot_of(key);
+                let mut entry = self.slots[slot];
+                while entry != 0 && entry >> 12 != key {
+                    slot = (slot + 1) % SLOTS;
+                    entry = self.slots[slot];
+                }
+                (entry != 0).then_some(entry & 0xFFF)
+            };
+            if let Some(code) = known {
+                current = code as u16;
                 continue;
             }
             // A new string: its code is defined, the known prefix is written.
@@ -98,7 +116,11 @@ impl Encoder {
             // Code 4096 is defined only to be cleared at once (the table restarts below): it
             // is never stored, so every stored code fits its 12 bits.
             if *extended != SHORT_LIST && self.defined < MAX_CODES {
-                self.slots[slot] = key << 12 | self.defined as u32;
+                if root {
+                    self.roots[key as usize] = self.epoch << 12 | self.defined as u32;
+                } else {
+                    self.slots[slot] = key << 12 | self.defined as u32;
+                }
             }
             *extended = extended.saturating_add(1).min(SHORT_LIST + 1);
             self.defined += 1;
@@ -125,6 +147,12 @@ impl Encoder {
     /// Empties the dictionary after a clear code.
     fn restart(&mut self) {
         self.slots.iter_mut().for_each(|k| *k = 0);
+        self.epoch += 1;
+        if self.epoch >= 1 << 20 {
+            // The epoch would overflow its 20 bits: empty the table for real.
+            self.roots.iter_mut().for_each(|r| *r = 0);
+            self.epoch = 1;
+        }
         self.extensions.iter_mut().for_each(|e| *e = 0);
         self.defined = usize::from(self.clear) + 2;
         self.width = self.min_size + 1;
