@@ -54,8 +54,8 @@ struct Encoder {
     slots: Vec<u32>,
     /// The extensions of the one-byte strings (the palette indices), indexed directly by
     /// `index << 8 | byte`: `epoch << 12 | code`, valid only when its epoch is the current
-    /// one, so that a restart empties it by counting up instead of clearing 256 KB. Half the
-    /// look-ups of a noisy frame start from a single byte.
+    /// one, so that a restart empties it by counting up instead of clearing 256 KB. Every code
+    /// written starts the next look-up from a single byte: about a third of a movie frame's.
     roots: Vec<u32>,
     /// Restarts so far, plus one (never 0, so a zeroed entry is never valid).
     epoch: u32,
