@@ -144,37 +144,47 @@ impl<'a> SegmentedFrames<'a> {
         let (params, intensities, keep) = (Arc::clone(&self.params), self.intensities, self.keep);
         rayon::spawn(move || {
             // One frame per worker: its filters stay on this thread (see the function).
-            let on_this_thread = crate::preprocess::filters_on_this_thread;
             let segmented = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                on_this_thread(|| {
-                    let image = frame.to_image();
-                    let segmented = match labels {
-                        Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
-                        None => segment_frame(&image, frame.index, &params),
-                    };
-                    let mut segmented = FrameSegmentation {
-                        content_crc32: Some(frame.content_crc32()),
-                        ..segmented
-                    };
-                    if keep.outline {
-                        let (w, h) = (frame.width, frame.height);
-                        let values = image.as_slice().expect("standard layout");
-                        segmented.movie = Some(MovieFrame {
-                            outline: outline_pairs(&segmented.labels, w, h),
-                            downscaled: keep.downscale.map(|f| box_average(values, w, h, f)),
-                        });
-                    }
-                    if !keep.labels {
-                        segmented.labels = Vec::new();
-                    }
-                    segmented
-                })
+                crate::preprocess::filters_on_this_thread(|| produce(frame, labels, &params, intensities, keep))
             }));
             // The reader may have stopped early; then nobody wants this frame.
             let _ = sender.send(segmented);
         });
         receiver
     }
+}
+
+/// One decoded frame segmented (from its mask's `labels` when given, measured on the
+/// recording's intensities when `intensities`), with its content checksum and what `keep`
+/// asks for of it.
+fn produce(
+    frame: crate::stack::Frame,
+    labels: Option<Vec<u32>>,
+    params: &SegmentParams,
+    intensities: bool,
+    keep: Keep,
+) -> FrameSegmentation {
+    let image = frame.to_image();
+    let segmented = match labels {
+        Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
+        None => segment_frame(&image, frame.index, params),
+    };
+    let mut segmented = FrameSegmentation {
+        content_crc32: Some(frame.content_crc32()),
+        ..segmented
+    };
+    if keep.outline {
+        let (w, h) = (frame.width, frame.height);
+        let values = image.as_slice().expect("standard layout");
+        segmented.movie = Some(MovieFrame {
+            outline: outline_pairs(&segmented.labels, w, h),
+            downscaled: keep.downscale.map(|f| box_average(values, w, h, f)),
+        });
+    }
+    if !keep.labels {
+        segmented.labels = Vec::new();
+    }
+    segmented
 }
 
 impl Iterator for SegmentedFrames<'_> {

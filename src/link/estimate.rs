@@ -7,6 +7,7 @@
 //! wanderers a short reach.
 
 use super::motion::MotionNoise;
+use crate::numeric::Grouped;
 use serde::{Deserialize, Serialize};
 
 /// A link counts as confident when its length is at most this share of the distance to the
@@ -101,9 +102,8 @@ struct PointGrid<'a> {
     cell: f64,
     columns: usize,
     rows: usize,
-    /// `order[starts[c]..starts[c + 1]]`: the points of cell `c` (row-major), ascending index.
-    starts: Vec<u32>,
-    order: Vec<u32>,
+    /// The points of each cell (row-major), ascending index.
+    by_cell: Grouped<u32>,
 }
 
 impl<'a> PointGrid<'a> {
@@ -129,21 +129,12 @@ impl<'a> PointGrid<'a> {
             cell,
             columns,
             rows,
-            starts: vec![0; columns * rows + 1],
-            order: vec![0; points.len()],
+            // Filled below: a point's cell needs the grid's geometry above.
+            by_cell: Grouped::default(),
         };
         let cells: Vec<usize> = points.iter().map(|p| grid.cell_of(p)).collect();
-        for &c in &cells {
-            grid.starts[c + 1] += 1;
-        }
-        for c in 0..columns * rows {
-            grid.starts[c + 1] += grid.starts[c];
-        }
-        let mut next = grid.starts.clone();
-        for (i, &c) in cells.iter().enumerate() {
-            grid.order[next[c] as usize] = i as u32;
-            next[c] += 1;
-        }
+        let indexed = cells.iter().enumerate().map(|(i, &c)| (c, i as u32));
+        grid.by_cell = Grouped::of(columns * rows, indexed);
         grid
     }
 
@@ -198,8 +189,7 @@ impl<'a> PointGrid<'a> {
     /// Calls `f` with the index of every point in the cells of ring `r` around `(cx, cy)`.
     fn for_each_in_ring(&self, cx: usize, cy: usize, r: usize, mut f: impl FnMut(usize)) {
         let mut cell = |x: usize, y: usize| {
-            let c = y * self.columns + x;
-            for &i in &self.order[self.starts[c] as usize..self.starts[c + 1] as usize] {
+            for &i in self.by_cell.group(y * self.columns + x) {
                 f(i as usize);
             }
         };

@@ -111,8 +111,8 @@ fn second_best_costs(
     // (the other end, cost) of every candidate, by source and by target: one list each, cut
     // at offsets counted first, rather than a list per object (hundreds of allocations a
     // frame).
-    let from_source = Grouped::of(n_sources, candidates.iter().map(|&(s, t, c)| (s, (t, c))));
-    let into_target = Grouped::of(n_targets, candidates.iter().map(|&(s, t, c)| (t, (s, c))));
+    let from_source = crate::numeric::Grouped::of(n_sources, candidates.iter().map(|&(s, t, c)| (s, (t, c))));
+    let into_target = crate::numeric::Grouped::of(n_targets, candidates.iter().map(|&(s, t, c)| (t, (s, c))));
     links
         .iter()
         .map(|&(s, t, _)| {
@@ -124,37 +124,6 @@ fn second_best_costs(
                 .fold(alternative_cost, f64::min)
         })
         .collect()
-}
-
-/// Values grouped by a key in `0..keys`, each group in the order the values came in, all in one
-/// list (a compressed sparse row layout).
-struct Grouped<T> {
-    /// Where each key's values start in `values`; one more entry at the end.
-    starts: Vec<usize>,
-    values: Vec<T>,
-}
-
-impl<T: Copy + Default> Grouped<T> {
-    fn of(keys: usize, pairs: impl Iterator<Item = (usize, T)> + Clone) -> Self {
-        let mut starts = vec![0usize; keys + 1];
-        for (k, _) in pairs.clone() {
-            starts[k + 1] += 1;
-        }
-        for k in 0..keys {
-            starts[k + 1] += starts[k];
-        }
-        let mut next = starts.clone();
-        let mut values = vec![T::default(); starts[keys]];
-        for (k, v) in pairs {
-            values[next[k]] = v;
-            next[k] += 1;
-        }
-        Grouped { starts, values }
-    }
-
-    fn group(&self, key: usize) -> &[T] {
-        &self.values[self.starts[key]..self.starts[key + 1]]
-    }
 }
 
 /// What the global steps after frame-to-frame linking did.
@@ -445,17 +414,6 @@ mod tests {
                 want.sort_by_key(|l| l.0);
                 assert_eq!(got.links, want, "round {round}, alternative {alternative}");
             }
-        }
-    }
-
-    #[test]
-    fn grouped_values_keep_their_keys_and_order() {
-        // Source: the definition, a list per key filled in arrival order.
-        let pairs = [(2usize, 'a'), (0, 'b'), (2, 'c'), (4, 'd'), (0, 'e')];
-        let grouped = Grouped::of(5, pairs.iter().copied());
-        for key in 0..5 {
-            let want: Vec<char> = pairs.iter().filter(|p| p.0 == key).map(|p| p.1).collect();
-            assert_eq!(grouped.group(key), &want[..], "key {key}");
         }
     }
 

@@ -35,6 +35,51 @@ pub fn filled<T: Clone>(n: usize, value: T) -> Vec<T> {
     v
 }
 
+/// Values grouped by a key in `0..keys`, each group in the order the values came in, all in one
+/// list (a compressed sparse row layout, made by a counting sort): one allocation for all the
+/// groups instead of a list per key.
+pub struct Grouped<T> {
+    /// Where each key's values start in `values`; one more entry at the end.
+    starts: Vec<usize>,
+    values: Vec<T>,
+}
+
+impl<T> Default for Grouped<T> {
+    /// No keys and no values.
+    fn default() -> Self {
+        Grouped {
+            starts: vec![0],
+            values: Vec::new(),
+        }
+    }
+}
+
+impl<T: Copy + Default> Grouped<T> {
+    /// The `(key, value)` pairs grouped by key (every key below `keys`); the pairs are gone
+    /// through twice, once to count each key's values and once to place them.
+    pub fn of(keys: usize, pairs: impl Iterator<Item = (usize, T)> + Clone) -> Self {
+        let mut starts = vec![0usize; keys + 1];
+        for (k, _) in pairs.clone() {
+            starts[k + 1] += 1;
+        }
+        for k in 0..keys {
+            starts[k + 1] += starts[k];
+        }
+        let mut next = starts.clone();
+        let mut values = vec![T::default(); starts[keys]];
+        for (k, v) in pairs {
+            values[next[k]] = v;
+            next[k] += 1;
+        }
+        Grouped { starts, values }
+    }
+
+    /// The values of `key`, in the order they came in.
+    pub fn group(&self, key: usize) -> &[T] {
+        &self.values[self.starts[key]..self.starts[key + 1]]
+    }
+}
+
 /// The median of the values (mean of the two middle ones for an even count); `None` if empty.
 /// Sorts `v`.
 pub fn median(v: &mut [f64]) -> Option<f64> {
@@ -251,6 +296,18 @@ fn inside_only<const N: usize>(all: [usize; N], inside: [bool; N]) -> std::iter:
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn grouped_values_keep_their_keys_and_order() {
+        // Source: the definition, a list per key filled in arrival order; keys without values
+        // give empty groups.
+        let pairs = [(2usize, 'a'), (0, 'b'), (2, 'c'), (4, 'd'), (0, 'e')];
+        let grouped = Grouped::of(6, pairs.iter().copied());
+        for key in 0..6 {
+            let want: Vec<char> = pairs.iter().filter(|p| p.0 == key).map(|p| p.1).collect();
+            assert_eq!(grouped.group(key), &want[..], "key {key}");
+        }
+    }
 
     #[test]
     fn the_grid_divides_as_integer_division() {

@@ -205,15 +205,6 @@ fn pad_row(padded: &mut [f32], line: &[f32], r: usize) {
     }
 }
 
-/// [`gaussian_laplace`] of a `width`-wide frame (`values`, row-major) at the given pixels
-/// only, with kernels reaching `truncate` standard deviations (4 gives exactly the whole-frame
-/// result: the same kernels, reflection at the borders and order of additions). The row
-/// passes run over the pixels' columns and the rows within the kernel's reach of them, so the
-/// work follows the pixels' box, not the frame.
-pub fn gaussian_laplace_at(values: &[f32], width: usize, sigma: f32, truncate: f64, pixels: &[u32]) -> Vec<f32> {
-    LaplaceKernels::new(sigma, truncate).at(values, width, pixels)
-}
-
 /// The two kernels of a Laplacian of Gaussian (the Gaussian and its second derivative, cut at
 /// a number of standard deviations), made once for the many small boxes of one frame that
 /// [`LaplaceKernels::at`] filters (each kernel is a few dozen exponentials).
@@ -231,9 +222,13 @@ impl LaplaceKernels {
         }
     }
 
-    /// [`gaussian_laplace_at`] with these kernels. Its three images (the two row passes and
-    /// their column sum) are cut from the thread's spare buffer: every value is written before
-    /// it is read, and a frame asks for one box per object.
+    /// [`gaussian_laplace`] of a `width`-wide frame (`values`, row-major) at the given pixels
+    /// only, with these kernels (cut at 4 standard deviations they give exactly the whole-frame
+    /// result: the same kernels, reflection at the borders and order of additions). The row
+    /// passes run over the pixels' columns and the rows within the kernel's reach of them, so
+    /// the work follows the pixels' box, not the frame. Its three images (the two row passes
+    /// and their column sum) are cut from the thread's spare buffer: every value is written
+    /// before it is read, and a frame asks for one box per object.
     pub fn at(&self, values: &[f32], width: usize, pixels: &[u32]) -> Vec<f32> {
         let height = values.len() / width.max(1);
         let (Some(&first), true) = (pixels.first(), width > 0) else {
@@ -741,7 +736,7 @@ mod tests {
             .into_iter()
             .map(|p| p as u32)
             .collect();
-        let at = gaussian_laplace_at(&values, w, 2.3, 4.0, &pixels);
+        let at = LaplaceKernels::new(2.3, 4.0).at(&values, w, &pixels);
         for (&p, v) in pixels.iter().zip(at) {
             assert_eq!(v, whole[p as usize], "pixel {p}");
         }
