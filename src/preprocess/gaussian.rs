@@ -226,9 +226,10 @@ impl LaplaceKernels {
     /// only, with these kernels (cut at 4 standard deviations they give exactly the whole-frame
     /// result: the same kernels, reflection at the borders and order of additions). The row
     /// passes run over the pixels' columns and the rows within the kernel's reach of them, so
-    /// the work follows the pixels' box, not the frame. Its three images (the two row passes
-    /// and their column sum) are cut from the thread's spare buffer: every value is written
-    /// before it is read, and a frame asks for one box per object.
+    /// the work follows the pixels' box, not the frame. Its four images (the padded rows, the
+    /// two row passes and their column sum) are cut from the thread's spare buffer: every value
+    /// that reaches a pixel asked for is written before it is read, and a frame asks for one
+    /// box per object.
     pub fn at(&self, values: &[f32], width: usize, pixels: &[u32]) -> Vec<f32> {
         let height = values.len() / width.max(1);
         let (Some(&first), true) = (pixels.first(), width > 0) else {
@@ -244,42 +245,43 @@ impl LaplaceKernels {
             let (x, y) = column_row(p);
             (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
         }
-        // Rows y0 - r .. y1 + r (as offsets), columns x0..x1: each row filtered with g0 and g2.
+        // Rows y0 - r .. y1 + r (as offsets), each padded to columns x0 - r .. x1 + r and laid
+        // end to end, `stride` apart: one row pass over them all filters every row with g0 and
+        // g2 (an output `j · stride + x` with `x < band` is row j's column x; the others
+        // straddle two rows and are never read). One call instead of one per row: a small
+        // object's rows are a vector or two wide, and a call per row cost more than its sums.
         let band = x1 - x0;
         let rows = y1 - y0 + 2 * r;
         let box_rows = y1 - y0;
-        let (across, box_len, padded_len) = (rows * band, box_rows * band, band + 2 * r);
-        let mut spare = scratch::take(2 * across + box_len + padded_len);
-        let (with_g0, rest) = spare.split_at_mut(across);
-        let (with_g2, rest) = rest.split_at_mut(across);
-        let (laplacian, rest) = rest.split_at_mut(box_len);
-        let padded = &mut rest[..padded_len];
+        let stride = band + 2 * r;
+        let all = rows * stride;
+        let across = (rows - 1) * stride + band;
+        let box_len = (box_rows - 1) * stride + band;
+        let mut spare = scratch::take(3 * all + box_len);
+        let (padded, rest) = spare.split_at_mut(all);
+        let (with_g0, rest) = rest.split_at_mut(all);
+        let (with_g2, rest) = rest.split_at_mut(all);
+        let laplacian = &mut rest[..box_len];
         // Columns x0 - r .. x1 + r of the frame; those inside it are copied, the rest reflected.
-        let inside = r.saturating_sub(x0)..padded_len.min(width + r - x0);
-        for j in 0..rows {
+        let inside = r.saturating_sub(x0)..stride.min(width + r - x0);
+        for (j, padded) in padded.chunks_exact_mut(stride).enumerate() {
             let sy = reflect(y0 as isize + j as isize - r as isize, height);
             let line = &values[sy * width..(sy + 1) * width];
             padded[inside.clone()].copy_from_slice(&line[x0 + inside.start - r..x0 + inside.end - r]);
-            for i in (0..inside.start).chain(inside.end..padded_len) {
+            for i in (0..inside.start).chain(inside.end..stride) {
                 padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
             }
-            let (g0_row, g2_row) = (
-                &mut with_g0[j * band..(j + 1) * band],
-                &mut with_g2[j * band..(j + 1) * band],
-            );
-            filter_steps_pair(g0_row, g2_row, padded, 1, g0, g2);
         }
-        // The two column passes and their sum over the whole box (vectorised), then the pixels
-        // read from it.
-        let (with_g0, with_g2) = (&*with_g0, &*with_g2);
-        for (j, row) in laplacian.chunks_exact_mut(band).enumerate() {
-            filter_steps_sum(row, &with_g2[j * band..], &with_g0[j * band..], band, g0, g2);
-        }
+        filter_steps_pair(&mut with_g0[..across], &mut with_g2[..across], padded, 1, g0, g2);
+        // The two column passes and their sum over the whole box in one call (an output reads
+        // the outputs of the row pass in its own column only, so the straddling ones stay
+        // apart), then the pixels read from it.
+        filter_steps_sum(laplacian, with_g2, with_g0, stride, g0, g2);
         let at = pixels
             .iter()
             .map(|&p| {
                 let (x, y) = column_row(p);
-                laplacian[(y - y0) * band + x - x0]
+                laplacian[(y - y0) * stride + x - x0]
             })
             .collect();
         scratch::give_back(spare);
@@ -307,6 +309,9 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
     }
     let standard = image.as_standard_layout();
     let src = standard.as_slice().expect("standard layout");
+    if w <= STRIP && h * w <= SMALL_IMAGE {
+        return convolve_small(src, (w, h), kernel_x, kernel_y);
+    }
     let (rx, ry) = (kernel_x.len() / 2, kernel_y.len() / 2);
     // Row ry + y holds source row y filtered across, the rows above and below the reflected
     // rows the column kernel reads ([`gaussian_laplace`] has the same layout).
@@ -334,6 +339,41 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
             filter_steps(out, &across[y * stride + x0..], stride, kernel_y);
         });
     });
+    scratch::give_back(spare);
+    Image::from_shape_vec((h, w), out).expect("sized buffer")
+}
+
+/// Pixels up to which an image no wider than a [`STRIP`] is filtered by [`convolve_small`]
+/// (an object's window; a frame is far larger).
+const SMALL_IMAGE: usize = 1 << 14;
+
+/// [`convolve_separable`] of a small `w` x `h` image (an object's window), on this thread: its
+/// rows padded and laid end to end, `w + 2·rx` apart, are filtered across by one call (an
+/// output straddling two rows is never read), and the column pass is one call over the rows
+/// so filtered, `w + 2·rx` apart too, whose outputs are then packed `w` apart. A window's rows
+/// are a vector or two wide, and a call per row, a task per band and the strips cost more than
+/// its sums. The same sums in the same order as the whole-image path, so the same bits.
+fn convolve_small(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kernel_y: &[f32]) -> Image {
+    let (rx, ry) = (kernel_x.len() / 2, kernel_y.len() / 2);
+    let stride = w + 2 * rx;
+    let rows = h + 2 * ry;
+    let across_len = (h - 1) * stride + w;
+    let down_len = (h - 1) * stride + w;
+    let mut spare = scratch::take(h * stride + rows * stride + down_len);
+    let (padded, rest) = spare.split_at_mut(h * stride);
+    let (across, rest) = rest.split_at_mut(rows * stride);
+    let down = &mut rest[..down_len];
+    for (line, padded) in src.chunks_exact(w).zip(padded.chunks_exact_mut(stride)) {
+        pad_row(padded, line, rx);
+    }
+    // Row ry + y of `across` is source row y filtered across (its first w values).
+    filter_steps(&mut across[ry * stride..ry * stride + across_len], padded, 1, kernel_x);
+    reflect_rows(across, h, ry, stride);
+    filter_steps(down, across, stride, kernel_y);
+    let mut out = Vec::with_capacity(h * w);
+    for row in down.chunks(stride) {
+        out.extend_from_slice(&row[..w]);
+    }
     scratch::give_back(spare);
     Image::from_shape_vec((h, w), out).expect("sized buffer")
 }
@@ -606,8 +646,9 @@ mod tests {
     fn windows_and_frames_filter_as_the_definition() {
         // Source: the definition of a separable filter with reflected borders (scipy.ndimage
         // mode 'reflect'; tested against scipy itself in tests/reference.rs): each row's taps
-        // summed in order, then each column's. An image of one band (an object's window) and of
-        // several (300 rows: ten, filtered in parallel), bit for bit.
+        // summed in order, then each column's. Small images (an object's window: rows laid end
+        // to end, one call per pass) and larger ones (wider than a strip, or more pixels than
+        // a window: bands in parallel, strips), bit for bit.
         let (kx, ky) = (gaussian_kernel(1.0), gaussian_kernel(2.2));
         let sum = |line: &dyn Fn(isize) -> f32, kernel: &[f32], at: usize| -> f32 {
             let r = (kernel.len() / 2) as isize;
@@ -625,6 +666,9 @@ mod tests {
             (33, 3),
             (70, 33),
             (300, 17),
+            (40, 129),
+            (170, 100),
+            (300, 141),
         ] {
             let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 31 + x * 7919) % 97) as f32 * 0.7 - 20.0);
             let across = Image::from_shape_fn((h, w), |(y, x)| sum(&|i| image[[y, reflect(i, w)]], &kx, x));
@@ -643,7 +687,7 @@ mod tests {
         // thread that makes them): on images of ten bands, the Gaussian and the Laplacian of
         // Gaussian inside `filters_on_this_thread` equal those outside bit for bit; the setting
         // holds inside only, and is restored after a panic too.
-        let image = Image::from_shape_fn((300, 41), |(y, x)| ((y * 131 + x * 7919) % 263) as f32 * 0.71 - 40.0);
+        let image = Image::from_shape_fn((300, 141), |(y, x)| ((y * 131 + x * 7919) % 263) as f32 * 0.71 - 40.0);
         let bits = |i: &Image| i.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
         let outside = (bits(&gaussian_blur(&image, 1.4)), bits(&gaussian_laplace(&image, 2.3)));
         let inside = filters_on_this_thread(|| {
@@ -726,19 +770,30 @@ mod tests {
     fn the_laplacian_at_some_pixels_equals_the_whole_frame_one() {
         // Source: gaussian_laplace (checked against scipy.ndimage.gaussian_laplace in
         // tests/reference.rs): the sparse evaluation must give the same numbers at the
-        // pixels asked for, also next to the frame's edges where the kernel reflects.
+        // pixels asked for, also next to the frame's edges where the kernel reflects: pixels
+        // spread over the frame, a small object inside it (a box narrower than a vector, whose
+        // rows are filtered end to end), one in a corner, one across the frame.
         let (w, h) = (37, 23);
         let values: Vec<f32> = (0..w * h).map(|i| ((i * 7919) % 263) as f32 + (i % w) as f32).collect();
         let image = crate::image2d::from_vec(w, h, values.clone());
         let whole = gaussian_laplace(&image, 2.3);
         let whole = whole.as_slice().unwrap();
-        let pixels: Vec<u32> = [0, 1, w, 5 * w + 17, 11 * w + 36, (h - 1) * w + 3, w * h - 1]
+        let disc = |cx: usize, cy: usize, r: usize| -> Vec<u32> {
+            (0..w * h)
+                .filter(|&p| (p % w).abs_diff(cx).pow(2) + (p / w).abs_diff(cy).pow(2) <= r * r)
+                .map(|p| p as u32)
+                .collect()
+        };
+        let spread: Vec<u32> = [0, 1, w, 5 * w + 17, 11 * w + 36, (h - 1) * w + 3, w * h - 1]
             .into_iter()
             .map(|p| p as u32)
             .collect();
-        let at = LaplaceKernels::new(2.3, 4.0).at(&values, w, &pixels);
-        for (&p, v) in pixels.iter().zip(at) {
-            assert_eq!(v, whole[p as usize], "pixel {p}");
+        let row: Vec<u32> = (0..w as u32).map(|x| 9 * w as u32 + x).collect();
+        for pixels in [spread, disc(18, 11, 4), disc(1, 21, 3), row] {
+            let at = LaplaceKernels::new(2.3, 4.0).at(&values, w, &pixels);
+            for (&p, v) in pixels.iter().zip(at) {
+                assert_eq!(v.to_bits(), whole[p as usize].to_bits(), "pixel {p}");
+            }
         }
     }
 }
