@@ -89,47 +89,24 @@ impl Envelope {
 /// (phase 1 of A. Meijster, J. B. T. M. Roerdink & W. H. Hesselink (2000), "A general
 /// algorithm for computing distance transforms in linear time", in Mathematical Morphology and
 /// its Applications to Image and Signal Processing, Kluwer, pp. 331–340), which reads memory in
-/// order; the row pass is the envelope above.
+/// order; the row pass is the envelope above, or, at unit spacing over a short run of a row
+/// (an object's, in its window), a comparison of every pair of columns, which gives the same
+/// whole numbers.
 pub fn squared_edt(mask: &[bool], width: usize, height: usize, spacing: (f64, f64)) -> Vec<f64> {
-    // Rows to the nearest background pixel of the column (u32::MAX: none).
-    let mut g = vec![u32::MAX; width * height];
-    for y in 0..height {
-        for x in 0..width {
-            let i = y * width + x;
-            g[i] = if !mask[i] {
-                0
-            } else if y > 0 {
-                g[i - width].saturating_add(1)
-            } else {
-                u32::MAX
-            };
-        }
-    }
-    for y in (0..height.saturating_sub(1)).rev() {
-        for x in 0..width {
-            let i = y * width + x;
-            let below = g[i + width].saturating_add(1);
-            if below < g[i] {
-                g[i] = below;
-            }
-        }
-    }
+    let g = column_distances(mask, width, height);
     let row_step2 = spacing.0 * spacing.0;
     let mut out = vec![0f64; width * height];
     let mut line = vec![0f64; width];
     let mut envelope = Envelope::default();
     for y in 0..height {
-        for (l, &d) in line.iter_mut().zip(&g[y * width..(y + 1) * width]) {
+        let column = &g[y * width..(y + 1) * width];
+        for (l, &d) in line.iter_mut().zip(column) {
             *l = if d == u32::MAX {
                 FAR
             } else {
                 row_step2 * (d as f64) * (d as f64)
             };
         }
-        // Background pixels are 0; each run of foreground is worked out from the parabolas
-        // between the background pixels around it (or the row's ends), which are the only
-        // ones that can be lowest there: the same numbers as the whole row's envelope, for the
-        // fraction of the row the nuclei cover.
         let row = &mut out[y * width..(y + 1) * width];
         let background = |x: usize| !mask[y * width + x];
         let mut x = 0;
@@ -143,11 +120,89 @@ pub fn squared_edt(mask: &[bool], width: usize, height: usize, spacing: (f64, f6
             while end < width && !background(end) {
                 end += 1;
             }
-            envelope.transform_range(&line, spacing.1, row, start..(end + 1).min(width));
+            let range = start..(end + 1).min(width);
+            if spacing != (1.0, 1.0) || !nearest_in_short_run(column, row, range.clone()) {
+                envelope.transform_range(&line, spacing.1, row, range);
+            }
             x = end;
         }
     }
     out
+}
+
+/// Each pixel's distance in pixels to the nearest background pixel of its column (0 on the
+/// background, `u32::MAX` where the column has none): phase 1 of Meijster et al. (2000), one
+/// downward and one upward scan over whole rows, each a select per pixel (so that it
+/// vectorises).
+fn column_distances(mask: &[bool], width: usize, height: usize) -> Vec<u32> {
+    let mut g = vec![0u32; width * height];
+    for (d, &m) in g.iter_mut().zip(mask).take(width) {
+        *d = if m { u32::MAX } else { 0 };
+    }
+    for y in 1..height {
+        let (above, rest) = g.split_at_mut(y * width);
+        let (above, row) = (&above[(y - 1) * width..], &mut rest[..width]);
+        let mask = &mask[y * width..(y + 1) * width];
+        for ((d, &a), &m) in row.iter_mut().zip(above).zip(mask) {
+            *d = if m { a.saturating_add(1) } else { 0 };
+        }
+    }
+    for y in (0..height.saturating_sub(1)).rev() {
+        let (row, below) = g[y * width..(y + 2) * width].split_at_mut(width);
+        for (d, &b) in row.iter_mut().zip(below.iter()) {
+            *d = (*d).min(b.saturating_add(1));
+        }
+    }
+    g
+}
+
+/// Ranges of a row up to this long (a run of foreground and the background pixel either
+/// side) take [`nearest_in_short_run`] instead of the envelope.
+const SHORT_RUN: usize = 32;
+
+/// The longest column distance [`nearest_in_short_run`] takes: its square plus the square of a
+/// [`SHORT_RUN`] stays below 2³¹, the mark of a column without background.
+const SHORT_RUN_COLUMN: u32 = 46_000;
+
+/// No background in the column, in [`nearest_in_short_run`]'s squares.
+const NO_BACKGROUND: u32 = 1 << 31;
+
+/// The row pass over `range` at unit spacing by trying every column, when the range is at
+/// most [`SHORT_RUN`] long and its column distances at most [`SHORT_RUN_COLUMN`] (else
+/// `false`, nothing written): `out[q]` = min over `p` in `range` of `(q − p)² + column[p]²`.
+/// In whole numbers, so exact; the envelope's result is the same exact minimum (a sum of two
+/// squares of integers, exact in `f64`), so the same bits. For an object's rows, a dozen or
+/// two pixels long, comparing every pair (in 32-bit lanes, a whole [`SHORT_RUN`] at a time)
+/// costs less than the envelope's divisions.
+fn nearest_in_short_run(column: &[u32], out: &mut [f64], range: std::ops::Range<usize>) -> bool {
+    let column = &column[range.clone()];
+    if column.len() > SHORT_RUN || column.iter().any(|&d| d != u32::MAX && d > SHORT_RUN_COLUMN) {
+        return false;
+    }
+    // Past the range, and where a column has no background, a square no minimum takes.
+    let mut squares = [NO_BACKGROUND; SHORT_RUN];
+    for (s, &d) in squares.iter_mut().zip(column) {
+        if d != u32::MAX {
+            *s = d * d;
+        }
+    }
+    nearest_of_squares(&squares, &mut out[range]);
+    true
+}
+
+crate::multiversioned! {
+    /// `out[q]` = min over `p` of `(q − p)² + squares[p]` (`f64::INFINITY` where that is at
+    /// least [`NO_BACKGROUND`]), for `q` below `out.len()` (at most [`SHORT_RUN`]).
+    fn nearest_of_squares / nearest_of_squares_with(squares: &[u32; SHORT_RUN], out: &mut [f64]) {
+        for (q, o) in out.iter_mut().enumerate() {
+            let mut nearest = u32::MAX;
+            for (p, &f) in squares.iter().enumerate() {
+                let d = q as i32 - p as i32;
+                nearest = nearest.min(f + (d * d) as u32);
+            }
+            *o = if nearest >= NO_BACKGROUND { FAR } else { f64::from(nearest) };
+        }
+    }
 }
 
 /// Euclidean distance transform with unit spacing, as `f32`.
@@ -193,6 +248,38 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn short_runs_take_the_nearest_square_on_every_level() {
+        // Source: the definition, min over p of (q − p)² + squares[p], for random squares (some
+        // marking a column without background) on every instruction level, and a run whose
+        // columns all lack background giving infinity.
+        let mut rng = crate::numeric::Rng::new(3);
+        for case in 0..200 {
+            let len = 1 + case % SHORT_RUN;
+            let mut squares = [NO_BACKGROUND; SHORT_RUN];
+            for s in squares.iter_mut().take(len) {
+                let d = (rng.next_u64() % 60) as u32;
+                *s = if d == 59 && case % 3 == 0 { NO_BACKGROUND } else { d * d };
+            }
+            let want: Vec<f64> = (0..len)
+                .map(|q| {
+                    (0..len)
+                        .filter(|&p| squares[p] < NO_BACKGROUND)
+                        .map(|p| f64::from(squares[p]) + (q as f64 - p as f64).powi(2))
+                        .fold(FAR, f64::min)
+                })
+                .collect();
+            for level in crate::simd::levels() {
+                let mut got = vec![0.0; len];
+                nearest_of_squares_with(level, &squares, &mut got);
+                assert_eq!(got, want, "case {case}, {level:?}");
+            }
+        }
+        let mut got = [0.0; 5];
+        nearest_of_squares(&[NO_BACKGROUND; SHORT_RUN], &mut got);
+        assert_eq!(got, [FAR; 5]);
     }
 
     #[test]
