@@ -96,40 +96,60 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
     // enough and `as u32` saturates.
     let mut levels = vec![0u32; values.len()];
     quantise_levels(values, LEVELS_PER_UNIT as f32, 0.5, &mut levels);
+    // Outside the mask nothing is reconstructed (callers read only the mask's pixels): level
+    // and marker 0 there, so that no neighbour's mask need be asked below (a 0 raises no
+    // maximum, and a pixel at its level is never queued or raised).
+    for (l, _) in levels.iter_mut().zip(mask).filter(|(_, &m)| !m) {
+        *l = 0;
+    }
     let h_levels = (h * LEVELS_PER_UNIT).round().max(0.0) as u32;
     // Marker = value − h (as levels, floored at 0); reconstruction starts from it.
     let mut rec: Vec<u32> = levels.iter().map(|&v| v.saturating_sub(h_levels)).collect();
-    let mut queue = std::collections::VecDeque::new();
-    let mut visit = |(x, y): (usize, usize), backward: bool| {
-        let p = y * width + x;
+    let mut queue = Vec::new();
+    let mut visit = |p: usize, earlier: &[usize], backward: bool| {
         if !mask[p] {
             return;
         }
-        let (earlier, count) = scanned_before((x, y), backward, width, height);
-        let earlier = earlier[..count].iter().copied().filter(|&q| mask[q]);
-        let raised = earlier.clone().fold(rec[p], |m, q| m.max(rec[q])).min(levels[p]);
+        let raised = earlier.iter().fold(rec[p], |m, &q| m.max(rec[q])).min(levels[p]);
         rec[p] = raised;
-        if backward && earlier.clone().any(|q| rec[q] < raised && rec[q] < levels[q]) {
-            queue.push_back(p);
+        if backward && earlier.iter().any(|&q| rec[q] < raised && rec[q] < levels[q]) {
+            queue.push(p);
         }
     };
-    // Columns and rows follow the scan; nothing is divided out per pixel.
+    // Pixels away from the image's edges (most of them) take their four neighbours without a
+    // test; the edges ask `scanned_before`.
+    let w = width;
     for y in 0..height {
         for x in 0..width {
-            visit((x, y), false);
+            let p = y * w + x;
+            if y > 0 && x > 0 && x + 1 < w {
+                visit(p, &[p - w - 1, p - w, p - w + 1, p - 1], false);
+            } else {
+                let (earlier, count) = scanned_before((x, y), false, width, height);
+                visit(p, &earlier[..count], false);
+            }
         }
     }
     for y in (0..height).rev() {
         for x in (0..width).rev() {
-            visit((x, y), true);
+            let p = y * w + x;
+            if y + 1 < height && x > 0 && x + 1 < w {
+                visit(p, &[p + w + 1, p + w, p + w - 1, p + 1], true);
+            } else {
+                let (earlier, count) = scanned_before((x, y), true, width, height);
+                visit(p, &earlier[..count], true);
+            }
         }
     }
+    // First in, first out, as Vincent's propagation.
     let grid = Grid::new(width, height);
-    while let Some(p) = queue.pop_front() {
-        for q in grid.neighbours8(p).filter(|&q| mask[q]) {
+    let mut next = 0;
+    while let Some(&p) = queue.get(next) {
+        next += 1;
+        for q in grid.neighbours8(p) {
             if rec[q] < rec[p] && rec[q] != levels[q] {
                 rec[q] = rec[p].min(levels[q]);
-                queue.push_back(q);
+                queue.push(q);
             }
         }
     }

@@ -42,9 +42,15 @@ impl Window {
         }
     }
 
-    /// Index within the window of frame pixel `i` (which must lie inside it).
-    fn local(&self, i: usize, frame_width: usize) -> usize {
-        (i / frame_width - self.y0) * self.width + (i % frame_width - self.x0)
+    /// Index within the window of each of the frame's pixels `own` (which must lie inside
+    /// it), `frame` being the frame's grid (its column and row without a division).
+    fn local(&self, own: &[u32], frame: &Grid) -> Vec<u32> {
+        own.iter()
+            .map(|&p| {
+                let (x, y) = frame.column_row(p as usize);
+                ((y - self.y0) * self.width + (x - self.x0)) as u32
+            })
+            .collect()
     }
 }
 
@@ -99,16 +105,18 @@ pub(crate) fn split_touching_with_pixels(
     };
     let mut next = 0u32;
     let kernels = intensity.map(|cues| blob_kernels(&cues.blobs));
+    let grid = Grid::new(width, height);
     for c in &components {
         let window = Window::around(c, pad, width, height);
         let own = &pixels[c.pixels.clone()];
+        let at = window.local(own, &grid);
         let mut local_mask = vec![false; window.width * window.height];
-        for &p in own {
-            local_mask[window.local(p as usize, width)] = true;
+        for &i in &at {
+            local_mask[i as usize] = true;
         }
         let local_cues = intensity
             .zip(kernels.as_ref())
-            .map(|(cues, k)| WindowCues::of(cues, k, own, &window, width));
+            .map(|(cues, k)| WindowCues::of(cues, k, own, &at, &window, width));
         let local = split_component(
             &local_mask,
             local_cues.as_ref(),
@@ -118,8 +126,8 @@ pub(crate) fn split_touching_with_pixels(
             distance_smoothing_px,
         );
         let mut most = 0;
-        for &p in own {
-            let l = local[window.local(p as usize, width)];
+        for (&p, &i) in own.iter().zip(&at) {
+            let l = local[i as usize];
             labels[p as usize] = if l == 0 { 0 } else { next + l };
             most = most.max(l);
         }
@@ -356,7 +364,15 @@ struct WindowCues {
 }
 
 impl WindowCues {
-    fn of(cues: &IntensityCues, kernels: &LaplaceKernels, own: &[u32], window: &Window, width: usize) -> Self {
+    /// The cues at the frame's pixels `own`, at `at` in the window.
+    fn of(
+        cues: &IntensityCues,
+        kernels: &LaplaceKernels,
+        own: &[u32],
+        at: &[u32],
+        window: &Window,
+        width: usize,
+    ) -> Self {
         let len = window.width * window.height;
         let mut local = WindowCues {
             values: vec![0.0; len],
@@ -365,8 +381,8 @@ impl WindowCues {
             blobs: cues.blobs,
         };
         let response = blob_response(cues.values, width, own, &cues.blobs, kernels);
-        for (&p, b) in own.iter().zip(response) {
-            let i = window.local(p as usize, width);
+        for ((&p, &i), b) in own.iter().zip(at).zip(response) {
+            let i = i as usize;
             local.values[i] = cues.values[p as usize];
             local.blob[i] = b;
         }
