@@ -86,7 +86,7 @@ fn block_min(image: &Image, f: usize) -> Image {
     for (rows, target) in src.chunks(f * w).zip(out.chunks_exact_mut(sw)) {
         band.fill(f32::INFINITY);
         for row in rows.chunks_exact(w) {
-            band.iter_mut().zip(row).for_each(|(m, &v)| *m = m.min(v));
+            fold_extreme(&mut band, row, false);
         }
         for (o, block) in target.iter_mut().zip(band.chunks(f)) {
             *o = block.iter().fold(*o, |m, &v| m.min(v));
@@ -155,38 +155,38 @@ pub fn grey_opening_square(image: &Image, window: usize) -> Image {
     }
     let standard = image.as_standard_layout();
     let src = standard.as_slice().expect("standard layout");
-    let columns_eroded = running_extreme_down(src, w, h, window, f32::min);
-    let eroded_t = running_extreme_down(&transpose(&columns_eroded, w, h), h, w, window, f32::min);
-    let rows_dilated_t = running_extreme_down(&eroded_t, h, w, window, f32::max);
-    let opened = running_extreme_down(&transpose(&rows_dilated_t, h, w), w, h, window, f32::max);
+    let columns_eroded = running_extreme_down(src, w, h, window, false);
+    let eroded_t = running_extreme_down(&transpose(&columns_eroded, w, h), h, w, window, false);
+    let rows_dilated_t = running_extreme_down(&eroded_t, h, w, window, true);
+    let opened = running_extreme_down(&transpose(&rows_dilated_t, h, w), w, h, window, true);
     Image::from_shape_vec((h, w), opened).expect("sized buffer")
 }
 
 /// Running minimum over a `window` x `window` square (grey erosion).
 pub fn min_filter_square(image: &Image, window: usize) -> Image {
-    filter_square(image, window, f32::min)
+    filter_square(image, window, false)
 }
 
 /// Running maximum over a `window` x `window` square (reflected borders).
 pub fn max_filter_square(image: &Image, window: usize) -> Image {
-    filter_square(image, window, f32::max)
+    filter_square(image, window, true)
 }
 
 /// A separable running extreme: down the columns, then across the rows (as the columns of the
 /// transposed result). Each pass takes whole rows as vectors of lanes, so the extremes of all
-/// columns are carried at once instead of one dependent chain per line. Generic over `pick`
-/// so that the comparison is inlined rather than called through a pointer. The extreme of a
-/// square is that of its columns' extremes in either order, and every value is one of the
-/// inputs, so the result does not depend on the order.
-fn filter_square<F: Fn(f32, f32) -> f32 + Copy>(image: &Image, window: usize, pick: F) -> Image {
+/// columns are carried at once instead of one dependent chain per line; the maximum where
+/// `maximum`, else the minimum. The extreme of a square is that of its columns' extremes in
+/// either order, and every value is one of the inputs, so the result does not depend on the
+/// order.
+fn filter_square(image: &Image, window: usize, maximum: bool) -> Image {
     let (h, w) = image.dim();
     if h == 0 || w == 0 {
         return image.clone();
     }
     let standard = image.as_standard_layout();
     let src = standard.as_slice().expect("standard layout");
-    let down = running_extreme_down(src, w, h, window, pick);
-    let across = running_extreme_down(&transpose(&down, w, h), h, w, window, pick);
+    let down = running_extreme_down(src, w, h, window, maximum);
+    let across = running_extreme_down(&transpose(&down, w, h), h, w, window, maximum);
     Image::from_shape_vec((h, w), transpose(&across, h, w)).expect("sized buffer")
 }
 
@@ -210,14 +210,8 @@ fn transpose(src: &[f32], w: usize, h: usize) -> Vec<f32> {
 /// rows beyond the ends reflected: the van Herk/Gil-Werman block prefix and suffix extremes
 /// (M. van Herk (1992), Pattern Recognit. Lett. 13(7):517–521; J. Gil & M. Werman (1993),
 /// IEEE PAMI 15(5):504–507), with a whole row as the unit, so each step is a vector operation
-/// across the columns.
-fn running_extreme_down<F: Fn(f32, f32) -> f32 + Copy>(
-    src: &[f32],
-    w: usize,
-    h: usize,
-    window: usize,
-    pick: F,
-) -> Vec<f32> {
+/// across the columns ([`fold_extreme`]); the maximum where `maximum`, else the minimum.
+fn running_extreme_down(src: &[f32], w: usize, h: usize, window: usize, maximum: bool) -> Vec<f32> {
     let k = window.max(1);
     let r = k / 2;
     let m = h + 2 * r;
@@ -233,9 +227,7 @@ fn running_extreme_down<F: Fn(f32, f32) -> f32 + Copy>(
             prefix.extend_from_slice(padded_row(i));
         } else {
             prefix.extend_from_within((i - 1) * w..i * w);
-            for (o, &v) in prefix[i * w..].iter_mut().zip(padded_row(i)) {
-                *o = pick(*o, v);
-            }
+            fold_extreme(&mut prefix[i * w..], padded_row(i), maximum);
         }
     }
     let mut suffix_reversed: Vec<f32> = Vec::with_capacity(m * w);
@@ -244,18 +236,29 @@ fn running_extreme_down<F: Fn(f32, f32) -> f32 + Copy>(
             suffix_reversed.extend_from_slice(padded_row(i));
         } else {
             suffix_reversed.extend_from_within((j - 1) * w..j * w);
-            for (o, &v) in suffix_reversed[j * w..].iter_mut().zip(padded_row(i)) {
-                *o = pick(*o, v);
-            }
+            fold_extreme(&mut suffix_reversed[j * w..], padded_row(i), maximum);
         }
     }
     let suffix_row = |i: usize| &suffix_reversed[(m - 1 - i) * w..(m - i) * w];
     let mut out: Vec<f32> = Vec::with_capacity(h * w);
     for y in 0..h {
         let (s, p) = (suffix_row(y), &prefix[(y + k - 1) * w..(y + k) * w]);
-        out.extend(s.iter().zip(p).map(|(&a, &b)| pick(a, b)));
+        out.extend_from_slice(s);
+        fold_extreme(&mut out[y * w..], p, maximum);
     }
     out
+}
+
+crate::multiversioned! {
+    /// `into[i]` = the larger (`maximum`) or smaller of `into[i]` and `values[i]`, on the
+    /// widest instruction level: exact (one of the two values), so the same on every level.
+    fn fold_extreme / fold_extreme_with(into: &mut [f32], values: &[f32], maximum: bool) {
+        if maximum {
+            into.iter_mut().zip(values).for_each(|(o, &v)| *o = o.max(v));
+        } else {
+            into.iter_mut().zip(values).for_each(|(o, &v)| *o = o.min(v));
+        }
+    }
 }
 
 #[cfg(test)]
@@ -263,11 +266,30 @@ mod tests {
     use super::*;
 
     #[test]
+    fn extremes_fold_as_min_and_max_on_every_level() {
+        // Source: f32::min and f32::max, value by value, on every instruction level; lengths
+        // that are and are not a multiple of a vector, values with ties and signed zeros.
+        for n in [0usize, 1, 7, 16, 33, 70] {
+            let into: Vec<f32> = (0..n).map(|i| ((i * 37) % 11) as f32 - 5.0).collect();
+            let values: Vec<f32> = (0..n).map(|i| ((i * 53) % 13) as f32 - 6.0).collect();
+            for maximum in [false, true] {
+                let pick = if maximum { f32::max } else { f32::min };
+                let want: Vec<f32> = into.iter().zip(&values).map(|(&a, &b)| pick(a, b)).collect();
+                for level in crate::simd::levels() {
+                    let mut got = into.clone();
+                    fold_extreme_with(level, &mut got, &values, maximum);
+                    assert_eq!(got, want, "n {n}, maximum {maximum}, {level:?}");
+                }
+            }
+        }
+    }
+
+    #[test]
     fn running_extreme_matches_brute_force() {
         // Source: definition of the running minimum, checked by direct search.
         let line: Vec<f32> = (0..23).map(|i| ((i * 7919) % 13) as f32).collect();
         for k in [1usize, 3, 5, 7, 9] {
-            let fast = running_extreme_down(&line, 1, line.len(), k, f32::min);
+            let fast = running_extreme_down(&line, 1, line.len(), k, false);
             for (i, &v) in fast.iter().enumerate() {
                 let r = (k / 2) as isize;
                 let want = (-r..=r)
