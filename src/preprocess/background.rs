@@ -268,7 +268,7 @@ mod tests {
     #[test]
     fn extremes_fold_as_min_and_max_on_every_level() {
         // Source: f32::min and f32::max, value by value, on every instruction level; lengths
-        // that are and are not a multiple of a vector, values with ties and signed zeros.
+        // that are and are not a multiple of a vector, values with ties.
         for n in [0usize, 1, 7, 16, 33, 70] {
             let into: Vec<f32> = (0..n).map(|i| ((i * 37) % 11) as f32 - 5.0).collect();
             let values: Vec<f32> = (0..n).map(|i| ((i * 53) % 13) as f32 - 6.0).collect();
