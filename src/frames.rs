@@ -5,7 +5,7 @@ use crate::error::{Error, Result};
 use crate::image2d::box_average;
 use crate::params::SegmentParams;
 use crate::render::movie::outline_pairs;
-use crate::segment::{masks, segment_frame, FrameSegmentation, MovieFrame};
+use crate::segment::{masks, segment_frame, segment_whole_number_frame, FrameSegmentation, MovieFrame};
 use crate::stack::Stack;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::collections::VecDeque;
@@ -167,6 +167,7 @@ fn produce(
     let image = frame.to_image();
     let segmented = match labels {
         Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
+        None if frame.pixels.are_whole_numbers() => segment_whole_number_frame(&image, frame.index, params),
         None => segment_frame(&image, frame.index, params),
     };
     let mut segmented = FrameSegmentation {

@@ -80,6 +80,13 @@ pub fn segment_frame(raw: &Image, frame: usize, params: &SegmentParams) -> Frame
     segment_frame_and_prepared(raw, frame, params).0
 }
 
+/// [`segment_frame`] of a frame whose samples were whole numbers (8, 16 or 32 bits), which
+/// cannot be NaN or infinite: the frame is not scanned for them (a pass over the frame, ~1.5%
+/// of its segmentation). The same result as [`segment_frame`] for such a frame.
+pub fn segment_whole_number_frame(raw: &Image, frame: usize, params: &SegmentParams) -> FrameSegmentation {
+    segment_finite(raw, 0, frame, params).0
+}
+
 /// [`segment_frame`], also returning the prepared (smoothed, background-subtracted) frame that
 /// it thresholded, for callers that measure on it too (the diameter estimate).
 pub(crate) fn segment_frame_and_prepared(
@@ -88,7 +95,17 @@ pub(crate) fn segment_frame_and_prepared(
     params: &SegmentParams,
 ) -> (FrameSegmentation, Image) {
     let (raw, nonfinite_pixels) = replace_nonfinite(raw);
-    let raw = raw.as_ref();
+    segment_finite(raw.as_ref(), nonfinite_pixels, frame, params)
+}
+
+/// [`segment_frame_and_prepared`] of a frame without NaN or infinite pixels (`nonfinite_pixels`
+/// of them were replaced before).
+fn segment_finite(
+    raw: &Image,
+    nonfinite_pixels: usize,
+    frame: usize,
+    params: &SegmentParams,
+) -> (FrameSegmentation, Image) {
     let (h, w) = raw.dim();
     let prepared = prepare(raw, params);
     let values = prepared.as_slice().expect("standard layout");
@@ -268,6 +285,29 @@ mod tests {
                 assert_eq!(v > above, v as f64 > t, "threshold {t}, value {v}");
             }
         }
+    }
+
+    #[test]
+    fn a_whole_number_frame_segments_as_any_frame() {
+        // Source: the definition of the non-finite replacement (the identity on a frame
+        // without NaN or infinity): segmenting a 16-bit-like frame without the scan gives the
+        // same labels, detections and threshold as with it.
+        let mut rng = crate::numeric::Rng::new(4);
+        let img = Image::from_shape_fn((96, 128), |(y, x)| {
+            let r2 = (y as f64 - 40.0).powi(2) + (x as f64 - 50.0).powi(2);
+            (100.0 + if r2 <= 49.0 { 400.0 } else { 0.0 } + 10.0 * rng.normal()).round() as f32
+        });
+        let params = SegmentParams::for_diameter(14.0);
+        let (with, without) = (
+            segment_frame(&img, 3, &params),
+            segment_whole_number_frame(&img, 3, &params),
+        );
+        assert_eq!(
+            (with.labels, with.detections.len()),
+            (without.labels, without.detections.len())
+        );
+        assert_eq!(with.threshold.to_bits(), without.threshold.to_bits());
+        assert_eq!(with.detections.len(), 1);
     }
 
     #[test]

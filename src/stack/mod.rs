@@ -65,6 +65,11 @@ pub enum Pixels {
 }
 
 impl Pixels {
+    /// Whether the samples are whole numbers (no NaN or infinity can be among them).
+    pub fn are_whole_numbers(&self) -> bool {
+        !matches!(self, Pixels::F32(_))
+    }
+
     /// Number of samples held.
     pub fn len(&self) -> usize {
         match self {
