@@ -145,10 +145,24 @@ fn distinct_centres(labels: &[u32], blob: &[f32], rule: &BlobRule, width: usize,
     let basins = labels.iter().copied().max().unwrap_or(0) as usize;
     let grid = Grid::new(width, height);
     let mut centres: Vec<Vec<usize>> = vec![Vec::new(); basins + 1];
-    for (p, &l) in labels.iter().enumerate() {
+    // Away from the window's edges the eight neighbours are read without a test.
+    let w = width;
+    let above_all = |p: usize, x: usize, y: usize| {
         let b = blob[p];
-        if l > 0 && b >= rule.floor && grid.neighbours8(p).all(|q| blob[q] < b) {
-            centres[l as usize].push(p);
+        if x > 0 && x + 1 < w && y > 0 && y + 1 < height {
+            [p - w - 1, p - w, p - w + 1, p - 1, p + 1, p + w - 1, p + w, p + w + 1]
+                .iter()
+                .all(|&q| blob[q] < b)
+        } else {
+            grid.neighbours8(p).all(|q| blob[q] < b)
+        }
+    };
+    for (y, row) in labels.chunks_exact(w.max(1)).enumerate() {
+        for (x, &l) in row.iter().enumerate() {
+            let p = y * w + x;
+            if l > 0 && blob[p] >= rule.floor && above_all(p, x, y) {
+                centres[l as usize].push(p);
+            }
         }
     }
     let min2 = rule.separation_px.powi(2);

@@ -119,8 +119,10 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
     // Pixels away from the image's edges (most of them) take their four neighbours without a
     // test; the edges ask `scanned_before`.
     let w = width;
-    for y in 0..height {
-        for x in 0..width {
+    // Only the mask's box is scanned: a pixel outside the mask is left as it is.
+    let (rows, columns) = mask_box(mask, width);
+    for y in rows.clone() {
+        for x in columns.clone() {
             let p = y * w + x;
             if y > 0 && x > 0 && x + 1 < w {
                 visit(p, &[p - w - 1, p - w, p - w + 1, p - 1], false);
@@ -130,8 +132,8 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
             }
         }
     }
-    for y in (0..height).rev() {
-        for x in (0..width).rev() {
+    for y in rows.rev() {
+        for x in columns.clone().rev() {
             let p = y * w + x;
             if y + 1 < height && x > 0 && x + 1 < w {
                 visit(p, &[p + w + 1, p + w, p + w - 1, p + 1], true);
@@ -154,6 +156,22 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
         }
     }
     (levels, rec, h_levels)
+}
+
+/// The rows and the columns of a `width`-wide mask that hold any of its pixels (empty ranges
+/// for an empty mask).
+fn mask_box(mask: &[bool], width: usize) -> (std::ops::Range<usize>, std::ops::Range<usize>) {
+    let mut any_in_column = vec![false; width];
+    let (mut first_row, mut end_row) = (usize::MAX, 0);
+    for (y, row) in mask.chunks_exact(width.max(1)).enumerate() {
+        if row.contains(&true) {
+            (first_row, end_row) = (first_row.min(y), y + 1);
+            any_in_column.iter_mut().zip(row).for_each(|(a, &m)| *a |= m);
+        }
+    }
+    let first_column = any_in_column.iter().position(|&a| a).unwrap_or(0);
+    let end_column = any_in_column.iter().rposition(|&a| a).map_or(0, |x| x + 1);
+    (first_row.min(end_row)..end_row, first_column..end_column)
 }
 
 /// The neighbours of the pixel at column `x`, row `y` that a raster scan (or, `backward`, an
@@ -359,12 +377,24 @@ mod tests {
     fn reconstruction_is_the_fixed_point_of_geodesic_dilation() {
         // Source: the definition of grey reconstruction by dilation (Vincent 1993, §2):
         // repeat "dilate the marker by one 8-neighbourhood step within the mask, then cap it
-        // by the image" until nothing changes. Random landscape with holes in the mask.
+        // by the image" until nothing changes. Random landscape with holes in the mask
+        // reaching the image's edges, and with a mask whose box lies well inside the image
+        // (as an object's in its window).
         let (w, h) = (37, 23);
         let mut rng = crate::numeric::Rng::new(5);
         let values: Vec<f32> = (0..w * h).map(|_| (rng.uniform() * 6.0) as f32).collect();
-        let mask: Vec<bool> = (0..w * h).map(|_| rng.uniform() > 0.15).collect();
-        let (levels, rec, h_levels) = reconstruct(&values, &mask, w, h, 1.0);
+        let holes: Vec<bool> = (0..w * h).map(|_| rng.uniform() > 0.15).collect();
+        let inside: Vec<bool> = (0..w * h)
+            .map(|p| (4..30).contains(&(p % w)) && (5..19).contains(&(p / w)) && holes[p])
+            .collect();
+        for mask in [holes, inside] {
+            reconstruction_is_the_fixed_point_on(&values, &mask, w, h);
+        }
+    }
+
+    /// [`reconstruction_is_the_fixed_point_of_geodesic_dilation`] on one mask.
+    fn reconstruction_is_the_fixed_point_on(values: &[f32], mask: &[bool], w: usize, h: usize) {
+        let (levels, rec, h_levels) = reconstruct(values, mask, w, h, 1.0);
         let mut naive: Vec<u32> = levels.iter().map(|&v| v.saturating_sub(h_levels)).collect();
         loop {
             let next: Vec<u32> = (0..w * h)
