@@ -28,6 +28,13 @@ fn gaussian_sigma_1_4(b: Bencher) {
     b.bench(|| gaussian_blur(black_box(&FRAME), 1.4));
 }
 
+/// The same filter as a run's frame takes it, kept on the thread segmenting the frame (a band
+/// of rows at a time).
+#[divan::bench]
+fn gaussian_sigma_1_4_on_its_thread(b: Bencher) {
+    b.bench(|| caravan::preprocess::filters_on_this_thread(|| gaussian_blur(black_box(&FRAME), 1.4)));
+}
+
 #[divan::bench]
 fn tophat_background(b: Bencher) {
     b.bench(|| tophat(black_box(&FRAME), 29, 7.0));
