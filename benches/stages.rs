@@ -67,6 +67,17 @@ fn whole_frame(b: Bencher) {
     b.bench(|| segment_frame(black_box(&FRAME), 0, &PARAMS));
 }
 
+/// A frame as a run segments it: its filters kept on its thread, without the scan for NaN
+/// (the benchmark frame's samples are whole numbers, as a 16-bit recording's).
+#[divan::bench]
+fn whole_frame_as_a_run_does(b: Bencher) {
+    b.bench(|| {
+        caravan::preprocess::filters_on_this_thread(|| {
+            caravan::segment::segment_whole_number_frame(black_box(&FRAME), 0, &PARAMS)
+        })
+    });
+}
+
 /// One sampled frame of the diameter estimate (a run examines up to five, in parallel): to
 /// compare with `whole_frame`, the per-frame cost it is paid once against.
 #[divan::bench]

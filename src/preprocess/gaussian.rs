@@ -351,15 +351,14 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
 /// reads (its own and the kernel's reach above and below, reflected at the image's edges) are
 /// held in a buffer of a band's size, and the reach below is carried over to the next band,
 /// so the row pass's output is read back from the second-level cache instead of from a
-/// frame-sized image in memory, and the output is written once, not zeroed first. The same
-/// sums in the same order, so the same bits.
+/// frame-sized image in memory, and the output is zeroed a band at a time, in cache, rather
+/// than all at once. The same sums in the same order, so the same bits.
 fn convolve_in_bands(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kernel_y: &[f32]) -> Image {
     let (rx, ry) = (kernel_x.len() / 2, kernel_y.len() / 2);
     let stride = row_stride(w);
     let held = BAND_ROWS + 2 * ry;
-    let mut spare = scratch::take(held * stride + BAND_ROWS * w + w + 2 * rx);
-    let (across, rest) = spare.split_at_mut(held * stride);
-    let (band_out, padded) = rest.split_at_mut(BAND_ROWS * w);
+    let mut spare = scratch::take(held * stride + w + 2 * rx);
+    let (across, padded) = spare.split_at_mut(held * stride);
     let padded = &mut padded[..w + 2 * rx];
     let mut out = Vec::with_capacity(h * w);
     // `across` holds the rows from image row y0 − ry on, `filled` of them filtered already.
@@ -371,11 +370,11 @@ fn convolve_in_bands(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kern
             pad_row(padded, &src[line * w..(line + 1) * w], rx);
             filter_padded_row(&mut across[k * stride..k * stride + w], padded, kernel_x);
         }
-        let band_out = &mut band_out[..rows * w];
-        by_strips(band_out, w, 0, |o, y, x0| {
+        // Zeroed a band at a time, in cache, just before the column pass writes it.
+        out.resize((y0 + rows) * w, 0.0);
+        by_strips(&mut out[y0 * w..], w, 0, |o, y, x0| {
             filter_steps(o, &across[y * stride + x0..], stride, kernel_y);
         });
-        out.extend_from_slice(band_out);
         // The reach below this band is the reach above the next.
         across.copy_within(rows * stride..(rows + 2 * ry) * stride, 0);
         (y0, filled) = (y0 + rows, 2 * ry);
