@@ -105,41 +105,30 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
     let h_levels = (h * LEVELS_PER_UNIT).round().max(0.0) as u32;
     // Marker = value − h (as levels, floored at 0); reconstruction starts from it.
     let mut rec: Vec<u32> = levels.iter().map(|&v| v.saturating_sub(h_levels)).collect();
-    let mut queue = Vec::new();
-    let mut visit = |p: usize, earlier: &[usize], backward: bool| {
-        if !mask[p] {
-            return;
-        }
-        let raised = earlier.iter().fold(rec[p], |m, &q| m.max(rec[q])).min(levels[p]);
-        rec[p] = raised;
-        if backward && earlier.iter().any(|&q| rec[q] < raised && rec[q] < levels[q]) {
-            queue.push(p);
-        }
-    };
-    // Pixels away from the image's edges (most of them) take their four neighbours without a
-    // test; the edges ask `scanned_before`.
-    let w = width;
-    // Only the mask's box is scanned: a pixel outside the mask is left as it is.
+    // Only the mask's box is scanned: outside it every level and marker is 0, and a 0 neither
+    // raises a neighbour nor is raised (its level caps it), so a neighbour outside the box
+    // counts as 0. Row by row: the neighbours in the row scanned before are taken for the
+    // whole row at once (`from_row`), then the row is swept along, each pixel after its
+    // neighbour in the row.
     let (rows, columns) = mask_box(mask, width);
+    let (c0, n) = (columns.start, columns.len());
+    let (mut from_row, mut lowest) = (vec![0u32; n], vec![0u32; n]);
+    let mut queue = Vec::new();
     for y in rows.clone() {
-        for x in columns.clone() {
-            let p = y * w + x;
-            if y > 0 && x > 0 && x + 1 < w {
-                visit(p, &[p - w - 1, p - w, p - w + 1, p - 1], false);
-            } else {
-                let (earlier, count) = scanned_before((x, y), false, width, height);
-                visit(p, &earlier[..count], false);
-            }
-        }
+        let row = y * width + c0..y * width + c0 + n;
+        let before = (y > rows.start).then(|| (y - 1) * width + c0);
+        raise_row(&mut rec, &levels, row.clone(), before, &mut from_row, false);
     }
-    for y in rows.rev() {
-        for x in columns.clone().rev() {
-            let p = y * w + x;
-            if y + 1 < height && x > 0 && x + 1 < w {
-                visit(p, &[p + w + 1, p + w, p + w - 1, p + 1], true);
-            } else {
-                let (earlier, count) = scanned_before((x, y), true, width, height);
-                visit(p, &earlier[..count], true);
+    for y in rows.clone().rev() {
+        let row = y * width + c0..y * width + c0 + n;
+        let before = (y + 1 < rows.end).then(|| (y + 1) * width + c0);
+        raise_row(&mut rec, &levels, row.clone(), before, &mut from_row, true);
+        // A pixel that could still raise a neighbour scanned before it (the next in the row,
+        // or one in the row below) seeds the propagation.
+        lowest_raisable(&rec, &levels, row.clone(), before, &mut lowest);
+        for (p, &low) in row.clone().zip(lowest.iter()).rev() {
+            if low < rec[p] {
+                queue.push(p);
             }
         }
     }
@@ -158,6 +147,81 @@ fn reconstruct(values: &[f32], mask: &[bool], width: usize, height: usize, h: f6
     (levels, rec, h_levels)
 }
 
+/// One row of a scan of [`reconstruct`]: each pixel of `row` in `rec` raised to the largest of
+/// itself, its three neighbours in the row scanned before (that row's pixels from index
+/// `before` on, under the row's; none for the scan's first row) and its neighbour scanned
+/// before it in the row (the left one, or the right one when `backward`), then capped by its
+/// level. Neighbours past the row's ends count as 0. The neighbours in the other row are taken
+/// for the whole row first, into `from_row` (vectorised); only the sweep along the row is
+/// sequential.
+fn raise_row(
+    rec: &mut [u32],
+    levels: &[u32],
+    row: std::ops::Range<usize>,
+    before: Option<usize>,
+    from_row: &mut [u32],
+    backward: bool,
+) {
+    let n = row.len();
+    let from_row = &mut from_row[..n];
+    from_row.copy_from_slice(&rec[row.clone()]);
+    if let Some(b) = before {
+        let other = &rec[b..b + n];
+        from_row.iter_mut().zip(other).for_each(|(m, &o)| *m = (*m).max(o));
+        if n > 1 {
+            from_row[1..].iter_mut().zip(other).for_each(|(m, &o)| *m = (*m).max(o));
+            from_row[..n - 1]
+                .iter_mut()
+                .zip(&other[1..])
+                .for_each(|(m, &o)| *m = (*m).max(o));
+        }
+    }
+    let (rec_row, levels_row) = (&mut rec[row.clone()], &levels[row]);
+    let mut run = 0;
+    let mut sweep = |i: usize| {
+        run = from_row[i].max(run).min(levels_row[i]);
+        rec_row[i] = run;
+    };
+    if backward {
+        (0..n).rev().for_each(&mut sweep);
+    } else {
+        (0..n).for_each(&mut sweep);
+    }
+}
+
+/// For each pixel of `row` (in a backward scan of [`reconstruct`]), the lowest marker among
+/// its neighbours scanned before it (the next one in the row and the three in the row below,
+/// from index `before`) that are still below their level (`u32::MAX` if none): the pixel can
+/// raise one of them exactly when this is below its own marker. Whole rows at a time
+/// (vectorised).
+fn lowest_raisable(
+    rec: &[u32],
+    levels: &[u32],
+    row: std::ops::Range<usize>,
+    before: Option<usize>,
+    lowest: &mut [u32],
+) {
+    let n = row.len();
+    let lowest = &mut lowest[..n];
+    let raisable = |q: usize| if rec[q] < levels[q] { rec[q] } else { u32::MAX };
+    lowest.fill(u32::MAX);
+    for (i, low) in lowest.iter_mut().enumerate().take(n.saturating_sub(1)) {
+        *low = raisable(row.start + i + 1);
+    }
+    if let Some(b) = before {
+        for (i, low) in lowest.iter_mut().enumerate() {
+            let mut m = (*low).min(raisable(b + i));
+            if i > 0 {
+                m = m.min(raisable(b + i - 1));
+            }
+            if i + 1 < n {
+                m = m.min(raisable(b + i + 1));
+            }
+            *low = m;
+        }
+    }
+}
+
 /// The rows and the columns of a `width`-wide mask that hold any of its pixels (empty ranges
 /// for an empty mask).
 fn mask_box(mask: &[bool], width: usize) -> (std::ops::Range<usize>, std::ops::Range<usize>) {
@@ -172,48 +236,6 @@ fn mask_box(mask: &[bool], width: usize) -> (std::ops::Range<usize>, std::ops::R
     let first_column = any_in_column.iter().position(|&a| a).unwrap_or(0);
     let end_column = any_in_column.iter().rposition(|&a| a).map_or(0, |x| x + 1);
     (first_row.min(end_row)..end_row, first_column..end_column)
-}
-
-/// The neighbours of the pixel at column `x`, row `y` that a raster scan (or, `backward`, an
-/// anti-raster scan) visits before it, inside the image: up-left, up, up-right, left
-/// (mirrored backward); the first `count` entries of the array.
-#[inline]
-fn scanned_before((x, y): (usize, usize), backward: bool, width: usize, height: usize) -> ([usize; 4], usize) {
-    let p = y * width + x;
-    let mut out = [0usize; 4];
-    let mut count = 0;
-    let mut add = |q: usize| {
-        out[count] = q;
-        count += 1;
-    };
-    if !backward {
-        if y > 0 {
-            if x > 0 {
-                add(p - width - 1);
-            }
-            add(p - width);
-            if x + 1 < width {
-                add(p - width + 1);
-            }
-        }
-        if x > 0 {
-            add(p - 1);
-        }
-    } else {
-        if y + 1 < height {
-            if x + 1 < width {
-                add(p + width + 1);
-            }
-            add(p + width);
-            if x > 0 {
-                add(p + width - 1);
-            }
-        }
-        if x + 1 < width {
-            add(p + 1);
-        }
-    }
-    (out, count)
 }
 
 crate::multiversioned! {
