@@ -86,7 +86,7 @@ fn block_min(image: &Image, f: usize) -> Image {
     for (rows, target) in src.chunks(f * w).zip(out.chunks_exact_mut(sw)) {
         band.fill(f32::INFINITY);
         for row in rows.chunks_exact(w) {
-            fold_extreme(&mut band, row, false);
+            fold_extreme(&mut band, row, Extreme::Min);
         }
         for (o, block) in target.iter_mut().zip(band.chunks(f)) {
             *o = block.iter().fold(*o, |m, &v| m.min(v));
@@ -155,38 +155,37 @@ pub fn grey_opening_square(image: &Image, window: usize) -> Image {
     }
     let standard = image.as_standard_layout();
     let src = standard.as_slice().expect("standard layout");
-    let columns_eroded = running_extreme_down(src, w, h, window, false);
-    let eroded_t = running_extreme_down(&transpose(&columns_eroded, w, h), h, w, window, false);
-    let rows_dilated_t = running_extreme_down(&eroded_t, h, w, window, true);
-    let opened = running_extreme_down(&transpose(&rows_dilated_t, h, w), w, h, window, true);
+    let columns_eroded = running_extreme_down(src, w, h, window, Extreme::Min);
+    let eroded_t = running_extreme_down(&transpose(&columns_eroded, w, h), h, w, window, Extreme::Min);
+    let rows_dilated_t = running_extreme_down(&eroded_t, h, w, window, Extreme::Max);
+    let opened = running_extreme_down(&transpose(&rows_dilated_t, h, w), w, h, window, Extreme::Max);
     Image::from_shape_vec((h, w), opened).expect("sized buffer")
 }
 
 /// Running minimum over a `window` x `window` square (grey erosion).
 pub fn min_filter_square(image: &Image, window: usize) -> Image {
-    filter_square(image, window, false)
+    filter_square(image, window, Extreme::Min)
 }
 
 /// Running maximum over a `window` x `window` square (reflected borders).
 pub fn max_filter_square(image: &Image, window: usize) -> Image {
-    filter_square(image, window, true)
+    filter_square(image, window, Extreme::Max)
 }
 
 /// A separable running extreme: down the columns, then across the rows (as the columns of the
 /// transposed result). Each pass takes whole rows as vectors of lanes, so the extremes of all
-/// columns are carried at once instead of one dependent chain per line; the maximum where
-/// `maximum`, else the minimum. The extreme of a square is that of its columns' extremes in
+/// columns are carried at once instead of one dependent chain per line. The extreme of a square is that of its columns' extremes in
 /// either order, and every value is one of the inputs, so the result does not depend on the
 /// order.
-fn filter_square(image: &Image, window: usize, maximum: bool) -> Image {
+fn filter_square(image: &Image, window: usize, extreme: Extreme) -> Image {
     let (h, w) = image.dim();
     if h == 0 || w == 0 {
         return image.clone();
     }
     let standard = image.as_standard_layout();
     let src = standard.as_slice().expect("standard layout");
-    let down = running_extreme_down(src, w, h, window, maximum);
-    let across = running_extreme_down(&transpose(&down, w, h), h, w, window, maximum);
+    let down = running_extreme_down(src, w, h, window, extreme);
+    let across = running_extreme_down(&transpose(&down, w, h), h, w, window, extreme);
     Image::from_shape_vec((h, w), transpose(&across, h, w)).expect("sized buffer")
 }
 
@@ -210,8 +209,8 @@ fn transpose(src: &[f32], w: usize, h: usize) -> Vec<f32> {
 /// rows beyond the ends reflected: the van Herk/Gil-Werman block prefix and suffix extremes
 /// (M. van Herk (1992), Pattern Recognit. Lett. 13(7):517–521; J. Gil & M. Werman (1993),
 /// IEEE PAMI 15(5):504–507), with a whole row as the unit, so each step is a vector operation
-/// across the columns ([`fold_extreme`]); the maximum where `maximum`, else the minimum.
-fn running_extreme_down(src: &[f32], w: usize, h: usize, window: usize, maximum: bool) -> Vec<f32> {
+/// across the columns ([`fold_extreme`]).
+fn running_extreme_down(src: &[f32], w: usize, h: usize, window: usize, extreme: Extreme) -> Vec<f32> {
     let k = window.max(1);
     let r = k / 2;
     let m = h + 2 * r;
@@ -227,7 +226,7 @@ fn running_extreme_down(src: &[f32], w: usize, h: usize, window: usize, maximum:
             prefix.extend_from_slice(padded_row(i));
         } else {
             prefix.extend_from_within((i - 1) * w..i * w);
-            fold_extreme(&mut prefix[i * w..], padded_row(i), maximum);
+            fold_extreme(&mut prefix[i * w..], padded_row(i), extreme);
         }
     }
     let mut suffix_reversed: Vec<f32> = Vec::with_capacity(m * w);
@@ -236,7 +235,7 @@ fn running_extreme_down(src: &[f32], w: usize, h: usize, window: usize, maximum:
             suffix_reversed.extend_from_slice(padded_row(i));
         } else {
             suffix_reversed.extend_from_within((j - 1) * w..j * w);
-            fold_extreme(&mut suffix_reversed[j * w..], padded_row(i), maximum);
+            fold_extreme(&mut suffix_reversed[j * w..], padded_row(i), extreme);
         }
     }
     let suffix_row = |i: usize| &suffix_reversed[(m - 1 - i) * w..(m - i) * w];
@@ -244,19 +243,27 @@ fn running_extreme_down(src: &[f32], w: usize, h: usize, window: usize, maximum:
     for y in 0..h {
         let (s, p) = (suffix_row(y), &prefix[(y + k - 1) * w..(y + k) * w]);
         out.extend_from_slice(s);
-        fold_extreme(&mut out[y * w..], p, maximum);
+        fold_extreme(&mut out[y * w..], p, extreme);
     }
     out
 }
 
+/// Which extreme a running filter keeps.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Extreme {
+    /// The smallest value (erosion).
+    Min,
+    /// The largest value (dilation).
+    Max,
+}
+
 crate::multiversioned! {
-    /// `into[i]` = the larger (`maximum`) or smaller of `into[i]` and `values[i]`, on the
-    /// widest instruction level: exact (one of the two values), so the same on every level.
-    fn fold_extreme / fold_extreme_with(into: &mut [f32], values: &[f32], maximum: bool) {
-        if maximum {
-            into.iter_mut().zip(values).for_each(|(o, &v)| *o = o.max(v));
-        } else {
-            into.iter_mut().zip(values).for_each(|(o, &v)| *o = o.min(v));
+    /// `into[i]` = the `extreme` of `into[i]` and `values[i]`, on the widest instruction level:
+    /// exact (one of the two values), so the same on every level.
+    fn fold_extreme / fold_extreme_with(into: &mut [f32], values: &[f32], extreme: Extreme) {
+        match extreme {
+            Extreme::Max => into.iter_mut().zip(values).for_each(|(o, &v)| *o = o.max(v)),
+            Extreme::Min => into.iter_mut().zip(values).for_each(|(o, &v)| *o = o.min(v)),
         }
     }
 }
@@ -272,13 +279,13 @@ mod tests {
         for n in [0usize, 1, 7, 16, 33, 70] {
             let into: Vec<f32> = (0..n).map(|i| ((i * 37) % 11) as f32 - 5.0).collect();
             let values: Vec<f32> = (0..n).map(|i| ((i * 53) % 13) as f32 - 6.0).collect();
-            for maximum in [false, true] {
-                let pick = if maximum { f32::max } else { f32::min };
+            for extreme in [Extreme::Min, Extreme::Max] {
+                let pick = if extreme == Extreme::Max { f32::max } else { f32::min };
                 let want: Vec<f32> = into.iter().zip(&values).map(|(&a, &b)| pick(a, b)).collect();
                 for level in crate::simd::levels() {
                     let mut got = into.clone();
-                    fold_extreme_with(level, &mut got, &values, maximum);
-                    assert_eq!(got, want, "n {n}, maximum {maximum}, {level:?}");
+                    fold_extreme_with(level, &mut got, &values, extreme);
+                    assert_eq!(got, want, "n {n}, {extreme:?}, {level:?}");
                 }
             }
         }
@@ -289,7 +296,7 @@ mod tests {
         // Source: definition of the running minimum, checked by direct search.
         let line: Vec<f32> = (0..23).map(|i| ((i * 7919) % 13) as f32).collect();
         for k in [1usize, 3, 5, 7, 9] {
-            let fast = running_extreme_down(&line, 1, line.len(), k, false);
+            let fast = running_extreme_down(&line, 1, line.len(), k, Extreme::Min);
             for (i, &v) in fast.iter().enumerate() {
                 let r = (k / 2) as isize;
                 let want = (-r..=r)

@@ -397,17 +397,17 @@ fn convolve_small(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kernel_
     let (rx, ry) = (kernel_x.len() / 2, kernel_y.len() / 2);
     let stride = w + 2 * rx;
     let rows = h + 2 * ry;
-    let across_len = (h - 1) * stride + w;
-    let down_len = (h - 1) * stride + w;
-    let mut spare = scratch::take(h * stride + rows * stride + down_len);
+    // Outputs of a pass over `h` rows `stride` apart (the last row's tail is not computed).
+    let span = (h - 1) * stride + w;
+    let mut spare = scratch::take(h * stride + rows * stride + span);
     let (padded, rest) = spare.split_at_mut(h * stride);
     let (across, rest) = rest.split_at_mut(rows * stride);
-    let down = &mut rest[..down_len];
+    let down = &mut rest[..span];
     for (line, padded) in src.chunks_exact(w).zip(padded.chunks_exact_mut(stride)) {
         pad_row(padded, line, rx);
     }
     // Row ry + y of `across` is source row y filtered across (its first w values).
-    filter_steps(&mut across[ry * stride..ry * stride + across_len], padded, 1, kernel_x);
+    filter_steps(&mut across[ry * stride..ry * stride + span], padded, 1, kernel_x);
     reflect_rows(across, h, ry, stride);
     filter_steps(down, across, stride, kernel_y);
     let mut out = Vec::with_capacity(h * w);
@@ -709,6 +709,7 @@ mod tests {
             (40, 129),
             (170, 100),
             (300, 141),
+            (3000, 6),
         ] {
             let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 31 + x * 7919) % 97) as f32 * 0.7 - 20.0);
             let across = Image::from_shape_fn((h, w), |(y, x)| sum(&|i| image[[y, reflect(i, w)]], &kx, x));

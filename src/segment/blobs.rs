@@ -147,7 +147,7 @@ fn distinct_centres(labels: &[u32], blob: &[f32], rule: &BlobRule, width: usize,
     let mut centres: Vec<Vec<usize>> = vec![Vec::new(); basins + 1];
     // Away from the window's edges the eight neighbours are read without a test.
     let w = width;
-    let above_all = |p: usize, x: usize, y: usize| {
+    let above_its_neighbours = |p: usize, x: usize, y: usize| {
         let b = blob[p];
         if x > 0 && x + 1 < w && y > 0 && y + 1 < height {
             [p - w - 1, p - w, p - w + 1, p - 1, p + 1, p + w - 1, p + w, p + w + 1]
@@ -160,7 +160,7 @@ fn distinct_centres(labels: &[u32], blob: &[f32], rule: &BlobRule, width: usize,
     for (y, row) in labels.chunks_exact(w.max(1)).enumerate() {
         for (x, &l) in row.iter().enumerate() {
             let p = y * w + x;
-            if l > 0 && blob[p] >= rule.floor && above_all(p, x, y) {
+            if l > 0 && blob[p] >= rule.floor && above_its_neighbours(p, x, y) {
                 centres[l as usize].push(p);
             }
         }

@@ -107,6 +107,10 @@ pub fn squared_edt(mask: &[bool], width: usize, height: usize, spacing: (f64, f6
                 row_step2 * (d as f64) * (d as f64)
             };
         }
+        // Background pixels are 0; each run of foreground is worked out from the parabolas
+        // between the background pixels around it (or the row's ends), which are the only
+        // ones that can be lowest there: the same numbers as the whole row's envelope, for the
+        // fraction of the row the nuclei cover.
         let row = &mut out[y * width..(y + 1) * width];
         let background = |x: usize| !mask[y * width + x];
         let mut x = 0;

@@ -44,7 +44,7 @@ impl Window {
 
     /// Index within the window of each of the frame's pixels `own` (which must lie inside
     /// it), `frame` being the frame's grid (its column and row without a division).
-    fn local(&self, own: &[u32], frame: &Grid) -> Vec<u32> {
+    fn local_indices(&self, own: &[u32], frame: &Grid) -> Vec<u32> {
         own.iter()
             .map(|&p| {
                 let (x, y) = frame.column_row(p as usize);
@@ -109,7 +109,7 @@ pub(crate) fn split_touching_with_pixels(
     for c in &components {
         let window = Window::around(c, pad, width, height);
         let own = &pixels[c.pixels.clone()];
-        let at = window.local(own, &grid);
+        let at = window.local_indices(own, &grid);
         let mut local_mask = vec![false; window.width * window.height];
         for &i in &at {
             local_mask[i as usize] = true;
