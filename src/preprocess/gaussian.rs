@@ -186,10 +186,15 @@ pub fn filters_on_this_thread<T>(work: impl FnOnce() -> T) -> T {
     work()
 }
 
+/// Whether the whole-image filters are kept on this thread ([`filters_on_this_thread`]).
+fn kept_on_this_thread() -> bool {
+    ON_THIS_THREAD.with(|on| on.get())
+}
+
 /// The fewest bands a parallel task of a whole-image filter takes: all of them (so no task is
 /// handed to another thread) inside [`filters_on_this_thread`], else one.
 fn bands_per_task() -> usize {
-    if ON_THIS_THREAD.with(|on| on.get()) {
+    if kept_on_this_thread() {
         usize::MAX
     } else {
         1
@@ -293,7 +298,11 @@ impl LaplaceKernels {
 /// reflecting at the borders (`d c b a | a b c d | d c b a`). Bands of rows are filtered in
 /// parallel (each output row depends on nothing but the input, so the result is the same on
 /// any number of threads): a frame's filter then keeps both cores busy when it is the last
-/// piece of work left, as in the diameter estimate's last sampled frame.
+/// piece of work left, as in the diameter estimate's last sampled frame. A small image (an
+/// object's window) has its padded rows laid end to end and filtered by one call per pass,
+/// and a filter kept on its thread ([`filters_on_this_thread`], a frame of the first pass)
+/// goes a band of rows at a time through a band-sized buffer: the same sums in the same order
+/// on all three paths.
 ///
 /// The column pass goes down strips of 128 columns rather than along whole rows, and the
 /// row-filtered image's rows are 16 values longer than the image's: each output row then
@@ -312,7 +321,7 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
     if w <= STRIP && h * w <= SMALL_IMAGE {
         return convolve_small(src, (w, h), kernel_x, kernel_y);
     }
-    if bands_per_task() == usize::MAX {
+    if kept_on_this_thread() {
         return convolve_in_bands(src, (w, h), kernel_x, kernel_y);
     }
     let (rx, ry) = (kernel_x.len() / 2, kernel_y.len() / 2);

@@ -59,28 +59,30 @@ impl BlobRule {
     }
 }
 
-/// The kernels of the blob response of `rule` (made once per frame, used for every object).
-pub(crate) fn blob_kernels(rule: &BlobRule) -> LaplaceKernels {
-    LaplaceKernels::new(rule.sigma_px as f32, TRUNCATE)
+/// The scale-normalised blob response `−σ²∇²G_σ` of a rule, its kernels made once (a frame
+/// asks for it at every object's pixels).
+pub(crate) struct BlobResponse {
+    /// `−σ²`.
+    scale: f32,
+    kernels: LaplaceKernels,
 }
 
-/// The scale-normalised blob response `−σ²∇²G_σ * values` at `pixels` of a `width`-wide frame
-/// (equal to the response of the whole frame at them, with kernels cut at [`TRUNCATE`];
-/// `kernels` from [`blob_kernels`] of `rule`).
-pub(crate) fn blob_response(
-    values: &[f32],
-    width: usize,
-    pixels: &[u32],
-    rule: &BlobRule,
-    kernels: &LaplaceKernels,
-) -> Vec<f32> {
-    let sigma = rule.sigma_px as f32;
-    let scale = -sigma * sigma;
-    kernels
-        .at(values, width, pixels)
-        .into_iter()
-        .map(|l| scale * l)
-        .collect()
+impl BlobResponse {
+    /// The response at `rule`'s scale, kernels cut at [`TRUNCATE`].
+    pub(crate) fn of(rule: &BlobRule) -> Self {
+        let sigma = rule.sigma_px as f32;
+        BlobResponse {
+            scale: -sigma * sigma,
+            kernels: LaplaceKernels::new(sigma, TRUNCATE),
+        }
+    }
+
+    /// The response of `values` (a `width`-wide frame) at `pixels`: equal to the response of
+    /// the whole frame at them.
+    pub(crate) fn at(&self, values: &[f32], width: usize, pixels: &[u32]) -> Vec<f32> {
+        let at = self.kernels.at(values, width, pixels);
+        at.into_iter().map(|l| self.scale * l).collect()
+    }
 }
 
 /// Splits every basin of `labels` (0 = background; 1, 2, ... basins of a window `width` wide)
@@ -236,10 +238,7 @@ mod tests {
         let inside: Vec<u32> = (0..values.len() as u32).filter(|&p| labels[p as usize] == 1).collect();
         let rule = BlobRule::new(diameter, 1.0);
         let mut blob = vec![f32::NEG_INFINITY; values.len()];
-        for (&p, b) in inside
-            .iter()
-            .zip(blob_response(values, w, &inside, &rule, &blob_kernels(&rule)))
-        {
+        for (&p, b) in inside.iter().zip(BlobResponse::of(&rule).at(values, w, &inside)) {
             blob[p as usize] = b;
         }
         let out = split_basins_at_blobs(&labels, &blob, &rule, w);
@@ -292,7 +291,7 @@ mod tests {
         let values = scene(w, h, &[(24.0, 16.0, 11.0, 5.0, 800.0)]);
         let all: Vec<u32> = (0..(w * h) as u32).collect();
         let rule = BlobRule::new(14.0, 1.0);
-        let response = blob_response(&values, w, &all, &rule, &blob_kernels(&rule));
+        let response = BlobResponse::of(&rule).at(&values, w, &all);
         let row = &response[16 * w..17 * w];
         let maxima = (1..w - 1)
             .filter(|&x| row[x] > row[x - 1] && row[x] > row[x + 1])

@@ -100,13 +100,6 @@ pub fn squared_edt(mask: &[bool], width: usize, height: usize, spacing: (f64, f6
     let mut envelope = Envelope::default();
     for y in 0..height {
         let column = &g[y * width..(y + 1) * width];
-        for (l, &d) in line.iter_mut().zip(column) {
-            *l = if d == u32::MAX {
-                FAR
-            } else {
-                row_step2 * (d as f64) * (d as f64)
-            };
-        }
         // Background pixels are 0; each run of foreground is worked out from the parabolas
         // between the background pixels around it (or the row's ends), which are the only
         // ones that can be lowest there: the same numbers as the whole row's envelope, for the
@@ -126,6 +119,14 @@ pub fn squared_edt(mask: &[bool], width: usize, height: usize, spacing: (f64, f6
             }
             let range = start..(end + 1).min(width);
             if spacing != (1.0, 1.0) || !nearest_in_short_run(column, row, range.clone()) {
+                // The envelope reads the column distances of its range only, as squares.
+                for (l, &d) in line[range.clone()].iter_mut().zip(&column[range.clone()]) {
+                    *l = if d == u32::MAX {
+                        FAR
+                    } else {
+                        row_step2 * (d as f64) * (d as f64)
+                    };
+                }
                 envelope.transform_range(&line, spacing.1, row, range);
             }
             x = end;

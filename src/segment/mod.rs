@@ -125,11 +125,7 @@ fn segment_finite(
         );
     }
     label::fill_holes(&mut mask, w, h);
-    let cues = split::IntensityCues {
-        values,
-        noise,
-        blobs: blobs::BlobRule::new(params.diameter_px, noise),
-    };
+    let cues = split::IntensityCues::new(values, noise, blobs::BlobRule::new(params.diameter_px, noise));
     let (mut labels, foreground) =
         split::split_touching_with_pixels(&mask, w, h, params.seed_h_px, params.distance_smoothing_px, Some(&cues));
     let expected_area = std::f64::consts::PI * params.diameter_px * params.diameter_px / 4.0;

@@ -3,11 +3,10 @@
 //! runs on a small window around each component instead of the whole frame: on a typical
 //! frame, where nuclei cover a few percent of the pixels, that is most of the work saved.
 
-use super::blobs::{blob_kernels, blob_response, split_basins_at_blobs, BlobRule};
+use super::blobs::{split_basins_at_blobs, BlobResponse, BlobRule};
 use super::hmaxima::h_maxima_seeds;
 use super::{distance_transform, watershed};
 use crate::numeric::Grid;
-use crate::preprocess::LaplaceKernels;
 use crate::preprocess::{gaussian_blur, gaussian_radius};
 
 /// An 8-connected foreground component: its pixels and its bounding box.
@@ -104,7 +103,6 @@ pub(crate) fn split_touching_with_pixels(
         1
     };
     let mut next = 0u32;
-    let kernels = intensity.map(|cues| blob_kernels(&cues.blobs));
     let grid = Grid::new(width, height);
     for c in &components {
         let window = Window::around(c, pad, width, height);
@@ -114,9 +112,7 @@ pub(crate) fn split_touching_with_pixels(
         for &i in &at {
             local_mask[i as usize] = true;
         }
-        let local_cues = intensity
-            .zip(kernels.as_ref())
-            .map(|(cues, k)| WindowCues::of(cues, k, own, &at, &window, width));
+        let local_cues = intensity.map(|cues| WindowCues::of(cues, own, &at, &window, width));
         let local = split_component(
             &local_mask,
             local_cues.as_ref(),
@@ -352,6 +348,20 @@ pub(crate) struct IntensityCues<'a> {
     pub values: &'a [f32],
     pub noise: f32,
     pub blobs: BlobRule,
+    /// The blob response of `blobs`.
+    pub response: BlobResponse,
+}
+
+impl<'a> IntensityCues<'a> {
+    /// The cues of a prepared frame with background noise σ `noise`, blobs found by `blobs`.
+    pub fn new(values: &'a [f32], noise: f32, blobs: BlobRule) -> Self {
+        IntensityCues {
+            values,
+            noise,
+            blobs,
+            response: BlobResponse::of(&blobs),
+        }
+    }
 }
 
 /// [`IntensityCues`] in one component's window: its own pixels' values and blob response
@@ -365,14 +375,7 @@ struct WindowCues {
 
 impl WindowCues {
     /// The cues at the frame's pixels `own`, at `at` in the window.
-    fn of(
-        cues: &IntensityCues,
-        kernels: &LaplaceKernels,
-        own: &[u32],
-        at: &[u32],
-        window: &Window,
-        width: usize,
-    ) -> Self {
+    fn of(cues: &IntensityCues, own: &[u32], at: &[u32], window: &Window, width: usize) -> Self {
         let len = window.width * window.height;
         let mut local = WindowCues {
             values: vec![0.0; len],
@@ -380,7 +383,7 @@ impl WindowCues {
             blob: vec![f32::NEG_INFINITY; len],
             blobs: cues.blobs,
         };
-        let response = blob_response(cues.values, width, own, &cues.blobs, kernels);
+        let response = cues.response.at(cues.values, width, own);
         for ((&p, &i), b) in own.iter().zip(at).zip(response) {
             let i = i as usize;
             local.values[i] = cues.values[p as usize];
@@ -538,15 +541,12 @@ mod tests {
     /// Intensity cues whose blob step never fires (no response reaches an infinite floor), so
     /// that a test sees the distance-and-intensity landscape alone.
     fn landscape_only(values: &[f32], noise: f32) -> IntensityCues<'_> {
-        IntensityCues {
-            values,
-            noise,
-            blobs: BlobRule {
-                sigma_px: 1.0,
-                floor: f32::INFINITY,
-                separation_px: 0.0,
-            },
-        }
+        let blobs = BlobRule {
+            sigma_px: 1.0,
+            floor: f32::INFINITY,
+            separation_px: 0.0,
+        };
+        IntensityCues::new(values, noise, blobs)
     }
 
     fn object_sizes(labels: &[u32]) -> Vec<usize> {
