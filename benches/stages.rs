@@ -109,6 +109,13 @@ fn motion_estimate_100_frames(b: Bencher) {
     b.bench(|| caravan::link::estimate::estimate_motion(black_box(&frames), 14.0));
 }
 
+/// The outline pixels of a segmented frame, as the first pass spools them for the movie.
+#[divan::bench]
+fn outline_of_a_segmented_frame(b: Bencher) {
+    let labels = segment_frame(&FRAME, 0, &PARAMS).labels;
+    b.bench(|| caravan::render::movie::outline_pairs(black_box(&labels), 1024, 1024));
+}
+
 /// The frame stretched to 8 bits, as the review page stores it at full resolution.
 static GREYS: LazyLock<Vec<u8>> = LazyLock::new(|| caravan::render::stretch_to_u8(FRAME.as_slice().unwrap()));
 

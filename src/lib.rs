@@ -48,6 +48,7 @@ pub mod image2d;
 pub mod link;
 pub mod lookalike;
 pub mod numeric;
+pub mod ordered;
 pub mod output;
 pub mod params;
 pub mod pipeline;

@@ -8,11 +8,13 @@ use crate::checkpoint::{CheckpointLog, Fingerprint, FrameRecord};
 use crate::columns::{write_header, write_rows, Column};
 use crate::error::{Error, Result};
 use crate::frames::{progress_bar, with_segmented_frames, Keep};
+use crate::image2d::Image;
 use crate::link::divide::DivisionEvent;
 use crate::link::estimate::MotionSource;
 use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
+use crate::ordered::in_frame_order;
 use crate::output::{crc32_file, write_atomic, AtomicFile};
 use crate::params::{Length, SegmentParams};
 use crate::qc::{count_jumps, linking_qc, warnings_for, RunWarning};
@@ -32,7 +34,6 @@ use crate::stack::Stack;
 use crate::tracks::PathPoint;
 use crate::tracks::{detection_columns, write_tracks, Detection, TrackedDetection};
 use crate::verdict::{judge, RunFigures, RunVerdict};
-use rayon::prelude::*;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
@@ -53,19 +54,18 @@ pub fn resolve_diameter(
             px: len.to_pixels("--diameter", stack.info().calibration.pixel_size_um)?,
         });
     }
-    let picks = sample_frames(stack.info().frames);
-    // Read in order (one reader), keep only the crop examined, then examine in parallel.
-    let mut crops = Vec::with_capacity(picks.len());
-    for t in picks {
-        crops.push((
-            t,
-            central_crop(&stack.read_frame(t)?.to_image(), ESTIMATE_CROP_PX).into_owned(),
-        ));
-    }
-    let frames: Vec<_> = crops
-        .par_iter()
-        .map(|(t, crop)| examine_frame(crop, *t, params_for))
-        .collect();
+    // Read in order (one reader), keeping only the crop examined, while the crops read before
+    // are examined in parallel.
+    let mut frames = Vec::new();
+    let crops = sample_frames(stack.info().frames).into_iter().map(|t| {
+        let crop = central_crop(&stack.read_frame(t)?.to_image(), ESTIMATE_CROP_PX).into_owned();
+        Ok((t, crop))
+    });
+    let examine = |(t, crop): (usize, Image)| examine_frame(&crop, t, params_for);
+    in_frame_order(None, crops, &examine, &mut |frame| {
+        frames.push(frame);
+        Ok(())
+    })?;
     let noise: Vec<String> = frames.iter().map(|f| format!("{:.1}", f.noise_sigma)).collect();
     let sampled: Vec<String> = frames.iter().map(|f| f.frame.to_string()).collect();
     combine(frames).map(DiameterSource::Estimated).ok_or_else(|| {

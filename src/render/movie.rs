@@ -14,6 +14,7 @@ use super::font::{draw_text, text_width};
 use super::review::ReviewWriter;
 use super::{box_average, is_edge, DisplayRange, PALETTE};
 use crate::error::{Error, Result};
+use crate::ordered::in_frame_order;
 use crate::output::AtomicFile;
 use crate::stack::Stack;
 use image::{Rgb, RgbImage};
@@ -208,23 +209,68 @@ impl DownscaledReader<'_> {
 /// The outline pixels of a label image (object pixels on the image border or with a
 /// 4-neighbour of another label, [`is_edge`]) as (pixel index, label) pairs in raster order.
 pub fn outline_pairs(labels: &[u32], width: usize, height: usize) -> Vec<u32> {
-    const RUN: usize = 32;
+    outline_pairs_by(labels, width, height, edges_in_run)
+}
+
+/// [`outline_pairs`] with the runs inside the image compared by `edges_in` ([`edges_in_run`]
+/// on one instruction level or another).
+fn outline_pairs_by(
+    labels: &[u32],
+    width: usize,
+    height: usize,
+    edges_in: impl Fn(&[u32], &[u32], &[u32], &[u32], &[u32]) -> u64,
+) -> Vec<u32> {
     let mut pairs: Vec<u32> = Vec::new();
-    // Row by row (no division per pixel); most pixels are background, so runs of 32 are first
-    // tested as a whole (one vectorised OR) and only those with an object looked into.
-    for (y, row) in labels.chunks_exact(width.max(1)).take(height).enumerate() {
+    if width == 0 {
+        return pairs;
+    }
+    // Row by row (no division per pixel); most pixels are background, so runs of RUN pixels
+    // are first tested as a whole (one vectorised OR) and only those with an object looked
+    // into, all RUN at once ([`edges_in_run`]) away from the image's border.
+    for (y, row) in labels.chunks_exact(width).take(height).enumerate() {
+        let inner = y > 0 && y + 1 < height;
         for (k, run) in row.chunks(RUN).enumerate() {
             if run.iter().fold(0, |any, &l| any | l) == 0 {
                 continue;
             }
-            for (x, &l) in (k * RUN..).zip(run) {
-                if l != 0 && is_edge(labels, width, height, x, y) {
-                    pairs.extend([(y * width + x) as u32, l]);
-                }
+            let x0 = k * RUN;
+            let mut edges = if inner && x0 > 0 && x0 + RUN < width {
+                let at = |dy: isize, dx: isize| {
+                    let start = (y as isize + dy) as usize * width + (x0 as isize + dx) as usize;
+                    &labels[start..start + RUN]
+                };
+                edges_in(run, at(0, -1), at(0, 1), at(-1, 0), at(1, 0))
+            } else {
+                let edge = |i: usize| run[i] != 0 && is_edge(labels, width, height, x0 + i, y);
+                (0..run.len()).fold(0u64, |m, i| m | (u64::from(edge(i)) << i))
+            };
+            while edges != 0 {
+                let i = edges.trailing_zeros() as usize;
+                pairs.extend([(y * width + x0 + i) as u32, run[i]]);
+                edges &= edges - 1;
             }
         }
     }
     pairs
+}
+
+/// Pixels per run of [`outline_pairs`]: a bit each in a `u64`.
+const RUN: usize = 64;
+
+crate::multiversioned! {
+    /// Bit `i` set where `run[i]` is an object pixel whose `left`, `right`, `up` or `down`
+    /// neighbour (the runs one pixel to each side, all of [`RUN`] pixels) has another label:
+    /// [`is_edge`] for a run inside the image, compared lane by lane.
+    fn edges_in_run / edges_in_run_with(run: &[u32], left: &[u32], right: &[u32], up: &[u32], down: &[u32]) -> u64 {
+        let (run, left, right, up, down) = (&run[..RUN], &left[..RUN], &right[..RUN], &up[..RUN], &down[..RUN]);
+        let mut edges = 0u64;
+        for i in 0..RUN {
+            let l = run[i];
+            let differs = (left[i] != l) | (right[i] != l) | (up[i] != l) | (down[i] != l);
+            edges |= u64::from((l != 0) & differs) << i;
+        }
+        edges
+    }
 }
 
 impl Drop for OutlineSpool {
@@ -397,47 +443,6 @@ struct FinishedFrame {
     t: usize,
     drawn: Option<DrawnFrame>,
     review: Option<crate::render::review::EncodedFrame>,
-}
-
-/// Runs `finish` on `first` and each frame of `rest` as a task of its own on the worker pool,
-/// a few frames ahead, and hands the results to `write` in frame order on the calling thread
-/// (which reads the frames: `rest` is pulled here). Every worker takes the next frame as soon
-/// as it is done with one, and the calling thread's reading and writing overlap the drawing.
-/// Stops at the first error of reading or writing (frames in flight are finished and
-/// dropped); the outputs are the same on any number of threads.
-fn in_frame_order<F, R>(
-    first: Option<F>,
-    rest: impl Iterator<Item = Result<F>>,
-    finish: &(dyn Fn(F) -> R + Sync),
-    write: &mut dyn FnMut(R) -> Result<()>,
-) -> Result<()>
-where
-    F: Send,
-    R: Send,
-{
-    let window = 2 * rayon::current_num_threads().max(1);
-    rayon::in_place_scope(|scope| {
-        let mut in_flight = std::collections::VecDeque::new();
-        let mut frames = first.map(Ok).into_iter().chain(rest);
-        loop {
-            while in_flight.len() < window {
-                let Some(frame) = frames.next() else { break };
-                let frame = frame?;
-                let (sender, receiver) = std::sync::mpsc::sync_channel(1);
-                scope.spawn(move |_| {
-                    // The reader is gone only after an error; then nobody wants this frame.
-                    let _ = sender.send(finish(frame));
-                });
-                in_flight.push_back(receiver);
-            }
-            let Some(arriving) = in_flight.pop_front() else {
-                return Ok(());
-            };
-            // A task that panicked sends nothing; the scope raises its panic when it ends.
-            let Ok(done) = arriving.recv() else { return Ok(()) };
-            write(done)?;
-        }
-    })
 }
 
 /// What every movie frame is drawn with.
@@ -682,9 +687,24 @@ mod tests {
     fn outline_pairs_are_the_edge_pixels_in_raster_order() {
         // Source: definition (an object pixel on the image border or with a 4-neighbour of
         // another label), pixel by pixel, on label images of blobs with widths that do and do
-        // not fill the 32-pixel runs the search skips by, and on empty and one-pixel images.
+        // not fill the 64-pixel runs the search skips by (runs inside the image are compared
+        // lane by lane, the others pixel by pixel), on every instruction level, and on empty
+        // and one-pixel images.
         let mut rng = crate::numeric::Rng::new(4);
-        for (w, h) in [(1usize, 1usize), (0, 0), (31, 5), (32, 7), (70, 40)] {
+        let sizes = [
+            (1usize, 1usize),
+            (0, 0),
+            (31, 5),
+            (64, 7),
+            (70, 40),
+            (200, 12),
+            (300, 7),
+            (193, 3),
+        ];
+        for ((w, h), level) in sizes
+            .into_iter()
+            .flat_map(|s| crate::simd::levels().into_iter().map(move |l| (s, l)))
+        {
             let labels: Vec<u32> = (0..w * h)
                 .map(|i| {
                     let (x, y) = ((i % w) as f64, (i / w) as f64);
@@ -705,7 +725,10 @@ mod tests {
                 }
             }
             assert!(w * h < 100 || !want.is_empty());
-            assert_eq!(outline_pairs(&labels, w, h), want, "{w}x{h}");
+            let edges_in =
+                |a: &[u32], b: &[u32], c: &[u32], d: &[u32], e: &[u32]| edges_in_run_with(level, a, b, c, d, e);
+            let found = outline_pairs_by(&labels, w, h, edges_in);
+            assert_eq!(found, want, "{w}x{h} on {level:?}");
         }
     }
 
