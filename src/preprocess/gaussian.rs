@@ -120,6 +120,55 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
     Image::from_shape_vec((h, w), out).expect("sized buffer")
 }
 
+/// [`gaussian_laplace`] on this thread, handed over a band of rows at a time (at least 32
+/// rows, and twice the kernels' reach): `each_band(first_row, values)` with the band's rows
+/// one after another, from the top down. The rows filtered across that a band's column pass
+/// reads are held in two buffers of a band's size (the kernels' reach below carried over to
+/// the next band, as a frame's Gaussian does on its thread), so they are read back from the
+/// second-level cache, and no frame-sized response is made when the caller only folds it
+/// into something else (the diameter estimate keeps each pixel's strongest scale). The same
+/// sums in the same order as [`gaussian_laplace`], so the same bits (tested).
+pub fn laplace_by_bands(image: &Image, sigma: f32, mut each_band: impl FnMut(usize, &[f32])) {
+    let g0 = gaussian_derivative_kernel(sigma, 0);
+    let g2 = gaussian_derivative_kernel(sigma, 2);
+    let (h, w) = image.dim();
+    if w == 0 || h == 0 {
+        return;
+    }
+    let standard = image.as_standard_layout();
+    let src = standard.as_slice().expect("standard layout");
+    let r = g0.len() / 2;
+    let stride = row_stride(w);
+    // Bands of at least twice the kernels' reach: the reach carried from band to band is
+    // copied, so that it costs at most a pass over half the band's rows.
+    let band_rows = BAND_ROWS.max(4 * r);
+    let held = band_rows + 2 * r;
+    let mut spare = scratch::take(2 * held * stride + w + 2 * r + band_rows * w);
+    let (with_g0, rest) = spare.split_at_mut(held * stride);
+    let (with_g2, rest) = rest.split_at_mut(held * stride);
+    let (padded, band_out) = rest.split_at_mut(w + 2 * r);
+    for band in Bands::new(h, band_rows, r) {
+        for k in band.to_filter.clone() {
+            let line = band.source_row(k);
+            pad_row(padded, &src[line * w..(line + 1) * w], r);
+            let (a, b) = (
+                &mut with_g0[k * stride..k * stride + w],
+                &mut with_g2[k * stride..k * stride + w],
+            );
+            filter_steps_pair(a, b, padded, 1, &g0, &g2);
+        }
+        let out = &mut band_out[..band.rows * w];
+        by_strips(out, w, 0, |o, y, x0| {
+            let at = y * stride + x0;
+            filter_steps_sum(o, &with_g2[at..], &with_g0[at..], stride, &g0, &g2);
+        });
+        each_band(band.top, out);
+        with_g0.copy_within(band.carried(stride), 0);
+        with_g2.copy_within(band.carried(stride), 0);
+    }
+    scratch::give_back(spare);
+}
+
 /// Columns per strip of a column pass ([`by_strips`]): the rows under a kernel of up to ~25
 /// taps, over this many columns and from two images, stay within the first-level cache from
 /// one output row to the next (each row reuses all but one of the rows above it).
@@ -370,26 +419,90 @@ fn convolve_in_bands(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kern
     let (across, padded) = spare.split_at_mut(held * stride);
     let padded = &mut padded[..w + 2 * rx];
     let mut out = Vec::with_capacity(h * w);
-    // `across` holds the rows from image row y0 − ry on, `filled` of them filtered already.
-    let (mut y0, mut filled) = (0, 0);
-    while y0 < h {
-        let rows = (y0 + BAND_ROWS).min(h) - y0;
-        for k in filled..rows + 2 * ry {
-            let line = reflect(y0 as isize - ry as isize + k as isize, h);
+    for band in Bands::new(h, BAND_ROWS, ry) {
+        for k in band.to_filter.clone() {
+            let line = band.source_row(k);
             pad_row(padded, &src[line * w..(line + 1) * w], rx);
             filter_padded_row(&mut across[k * stride..k * stride + w], padded, kernel_x);
         }
         // Zeroed a band at a time, in cache, just before the column pass writes it.
-        out.resize((y0 + rows) * w, 0.0);
-        by_strips(&mut out[y0 * w..], w, 0, |o, y, x0| {
+        out.resize((band.top + band.rows) * w, 0.0);
+        by_strips(&mut out[band.top * w..], w, 0, |o, y, x0| {
             filter_steps(o, &across[y * stride + x0..], stride, kernel_y);
         });
-        // The reach below this band is the reach above the next.
-        across.copy_within(rows * stride..(rows + 2 * ry) * stride, 0);
-        (y0, filled) = (y0 + rows, 2 * ry);
+        across.copy_within(band.carried(stride), 0);
     }
     scratch::give_back(spare);
     Image::from_shape_vec((h, w), out).expect("sized buffer")
+}
+
+/// The bands of rows of a separable filter that runs a band at a time with the rows filtered
+/// across held in a buffer ([`convolve_in_bands`], [`laplace_by_bands`]): row `k` of the
+/// buffer holds image row `top − reach + k` (reflected at the image's edges), for the
+/// column kernel reaching `reach` rows above and below; the first band fills all its rows,
+/// each later band finds the `2·reach` rows it shares with the band before at the buffer's top
+/// ([`Band::carried`]) and fills the rest.
+struct Bands {
+    h: usize,
+    band_rows: usize,
+    reach: usize,
+    top: usize,
+}
+
+impl Bands {
+    fn new(h: usize, band_rows: usize, reach: usize) -> Bands {
+        Bands {
+            h,
+            band_rows,
+            reach,
+            top: 0,
+        }
+    }
+}
+
+/// One band of [`Bands`].
+struct Band {
+    /// Its first output row.
+    top: usize,
+    /// Its output rows.
+    rows: usize,
+    /// The buffer rows still to filter across.
+    to_filter: std::ops::Range<usize>,
+    reach: usize,
+    h: usize,
+}
+
+impl Band {
+    /// The image row that buffer row `k` holds.
+    fn source_row(&self, k: usize) -> usize {
+        reflect(self.top as isize - self.reach as isize + k as isize, self.h)
+    }
+
+    /// The buffer's values (rows `stride` apart) that the next band finds at its top: the
+    /// reach below this band is the reach above the next.
+    fn carried(&self, stride: usize) -> std::ops::Range<usize> {
+        self.rows * stride..(self.rows + 2 * self.reach) * stride
+    }
+}
+
+impl Iterator for Bands {
+    type Item = Band;
+    fn next(&mut self) -> Option<Band> {
+        if self.top >= self.h {
+            return None;
+        }
+        let rows = (self.top + self.band_rows).min(self.h) - self.top;
+        let filled = if self.top == 0 { 0 } else { 2 * self.reach };
+        let band = Band {
+            top: self.top,
+            rows,
+            to_filter: filled..rows + 2 * self.reach,
+            reach: self.reach,
+            h: self.h,
+        };
+        self.top += rows;
+        Some(band)
+    }
 }
 
 /// Pixels up to which an image no wider than a [`STRIP`] is filtered by [`convolve_small`]
@@ -796,7 +909,7 @@ mod tests {
         // too: a second-derivative filter along each axis with the Gaussian along the other,
         // added): two separable filters with reflected borders, then their sum, in f32. Sizes
         // from one pixel to wider than a band, and kernels reaching several periods of
-        // reflection past images smaller than them.
+        // reflection past images smaller than them; the whole-image and the banded path.
         for (w, h, sigma) in [
             (1, 1, 1.0),
             (3, 2, 2.5),
@@ -804,6 +917,8 @@ mod tests {
             (9, 70, 1.6),
             (70, 33, 0.7),
             (5, 40, 6.0),
+            (150, 101, 5.5),
+            (40, 200, 1.5),
         ] {
             let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 131 + x * 7919) % 263) as f32 * 0.71 - 40.0);
             let (g0, g2) = (
@@ -815,6 +930,14 @@ mod tests {
             assert_eq!(got.dim(), want.dim());
             let same = got.iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits());
             assert!(same, "{w} x {h}, sigma {sigma}");
+            let mut banded = Vec::new();
+            laplace_by_bands(&image, sigma, |first, band| {
+                assert_eq!(first * w, banded.len(), "bands in order, none skipped");
+                assert!(band.len() % w == 0 && band.len() / w >= BAND_ROWS.min(h - first));
+                banded.extend_from_slice(band);
+            });
+            let same = banded.len() == want.len() && banded.iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits());
+            assert!(same, "banded, {w} x {h}, sigma {sigma}");
         }
     }
 

@@ -8,7 +8,9 @@
 use crate::image2d::Image;
 use crate::numeric::lower_median;
 use crate::params::SegmentParams;
-use crate::preprocess::{gaussian_derivative_kernel, gaussian_laplace, robust_noise_sigma};
+use crate::preprocess::{
+    gaussian_derivative_kernel, gaussian_laplace, gaussian_radius, laplace_by_bands, robust_noise_sigma,
+};
 use serde::{Deserialize, Serialize};
 
 /// The σ at which `−σ²·∇²G_σ * I` peaks at one pixel, over the given σ values.
@@ -78,37 +80,30 @@ pub fn log_noise_gain(s: f64) -> f64 {
 /// frame from selecting its smallest scale: white noise's normalised response falls as
 /// `1/s`, so an unconstrained maximum over scales lands on the noise (fixtures/methods/check_values.md §13).
 ///
-/// Work is bounded: scales from 1.5 to 24 px in steps of 8%, scales above 3 px computed on
-/// images binned 2x, 4x, ... (binning by the mean divides white noise by the factor).
+/// Work is bounded: scales from 1.5 to 24 px in steps of 8%, scales of 6 px and more computed
+/// on images binned 2x, 4x, ... (so that the scale on the binned grid stays at 3 px or more;
+/// binning by the mean divides white noise by the factor). The scales are searched in two
+/// runs of about equal work in parallel and the two strongest responses merged, the earlier
+/// run's kept on a tie: the same as one search in scale order.
 pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
     let (h, w) = image.dim();
-    let mut best = Image::from_elem((h, w), f32::NEG_INFINITY);
-    let mut best_sigma = Image::zeros((h, w));
-    let mut best_noise = Image::zeros((h, w));
-    let mut sigma = SIGMA_RANGE.0;
-    let mut binned: Vec<Option<Image>> = Vec::new();
-    while sigma <= SIGMA_RANGE.1.min(w.min(h) as f64 / 4.0) {
-        let level = ((sigma / 3.0).log2().floor().max(0.0)) as u32;
-        let factor = 1usize << level;
-        if binned.len() <= level as usize {
-            binned.resize(level as usize + 1, None);
-        }
-        let binned = binned[level as usize].get_or_insert_with(|| bin(image, factor));
-        let s = sigma / factor as f64;
-        let response = gaussian_laplace(binned, s as f32);
-        let noise = (noise_sigma / factor as f64 * log_noise_gain(s)) as f32;
-        let norm = -(s * s) as f32;
-        keep_strongest(
-            (&response, level, norm),
-            (sigma as f32, noise),
-            (&mut best, &mut best_sigma, &mut best_noise),
-        );
-        sigma *= 1.08;
-    }
-    local_maxima(&best, &best_sigma)
+    let scales = search_scales((h, w), noise_sigma);
+    let levels = scales.iter().map(|s| s.level).max().map_or(0, |l| l as usize + 1);
+    let binned: Vec<Option<Image>> = (0..levels).map(|l| (l > 0).then(|| bin(image, 1 << l))).collect();
+    let at_level = |level: u32| binned[level as usize].as_ref().unwrap_or(image);
+    let (first, second) = scales.split_at(halfway_by_work(&scales, &at_level));
+    let (mut strongest, later) = rayon::join(
+        || strongest_over(first, 0, &at_level, (h, w)),
+        || strongest_over(second, first.len(), &at_level, (h, w)),
+    );
+    strongest.merge(&later);
+    let Strongest { response: best, scale } = strongest;
+    let chosen = |i: usize| (scale[i] as usize).checked_sub(1).map(|k| &scales[k]);
+    local_maxima(&best, |i| chosen(i).map_or(0.0, |s| s.sigma))
         .into_iter()
         .filter_map(|(y, x)| {
-            let (response, noise) = (best[[y, x]] as f64, best_noise[[y, x]] as f64);
+            let scale = chosen(y * w + x)?;
+            let (response, noise) = (best[[y, x]] as f64, scale.noise as f64);
             let significance = if noise > 0.0 {
                 response / noise
             } else if response > 0.0 {
@@ -119,7 +114,7 @@ pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
             (significance >= MIN_BLOB_SIGNIFICANCE).then_some(Blob {
                 y,
                 x,
-                sigma: best_sigma[[y, x]] as f64,
+                sigma: scale.sigma as f64,
                 response,
                 significance,
             })
@@ -127,67 +122,159 @@ pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
         .collect()
 }
 
-/// Where `norm` x `response` (binned by 2^`level`; each pixel reads its block's value) beats
-/// `best`, keeps it with its `sigma` and `noise`. Row by row: a binned row is first spread to
-/// full width, then the row is compared branch-free ([`keep_strongest_in_row`], vectorised).
-fn keep_strongest(
-    (response, level, norm): (&Image, u32, f32),
-    (sigma, noise): (f32, f32),
-    (best, best_sigma, best_noise): (&mut Image, &mut Image, &mut Image),
-) {
-    let w = best.ncols();
-    let (rh, rw) = response.dim();
-    if w == 0 || rh == 0 || rw == 0 {
-        return;
+/// One scale of the search of [`significant_blobs`].
+#[derive(Debug, Clone, Copy)]
+struct SearchScale {
+    /// σ on the frame's grid, px.
+    sigma: f32,
+    /// The image is binned by 2^level for it.
+    level: u32,
+    /// σ on the binned grid, px.
+    binned_sigma: f32,
+    /// The normalisation −s² (s on the binned grid).
+    norm: f32,
+    /// The normalised response of the frame's white noise at this scale.
+    noise: f32,
+}
+
+/// The scales searched in a `h` x `w` frame with noise σ `noise_sigma`, smallest first.
+fn search_scales((h, w): (usize, usize), noise_sigma: f64) -> Vec<SearchScale> {
+    let mut scales = Vec::new();
+    let mut sigma = SIGMA_RANGE.0;
+    while sigma <= SIGMA_RANGE.1.min(w.min(h) as f64 / 4.0) {
+        let level = ((sigma / 3.0).log2().floor().max(0.0)) as u32;
+        let factor = 1usize << level;
+        let s = sigma / factor as f64;
+        scales.push(SearchScale {
+            sigma: sigma as f32,
+            level,
+            binned_sigma: s as f32,
+            norm: -(s * s) as f32,
+            noise: (noise_sigma / factor as f64 * log_noise_gain(s)) as f32,
+        });
+        sigma *= 1.08;
     }
-    let response = response.as_slice().expect("standard layout");
-    let rows = best
-        .as_slice_mut()
-        .expect("standard layout")
-        .chunks_exact_mut(w)
-        .zip(best_sigma.as_slice_mut().expect("standard layout").chunks_exact_mut(w))
-        .zip(best_noise.as_slice_mut().expect("standard layout").chunks_exact_mut(w));
-    let mut spread = vec![0f32; w];
-    // The binned row last spread: the 2^level rows of a block share it, so it is spread once.
-    let mut spread_row = None;
-    for (y, ((best, best_sigma), best_noise)) in rows.enumerate() {
-        let by = (y >> level).min(rh - 1);
-        let line = &response[by * rw..(by + 1) * rw];
-        let line = if level == 0 && rw >= w {
-            &line[..w]
-        } else {
-            if spread_row != Some(by) {
-                // Pixel x reads block x >> level: blocks of 2^level pixels (the last one cut).
-                for (block, &v) in spread.chunks_mut(1 << level).zip(line) {
-                    block.fill(v);
-                }
-                spread_row = Some(by);
+    scales
+}
+
+/// Where to cut `scales` into two runs of about equal work (a scale's work: its kernel's
+/// length times the pixels of its binned image).
+fn halfway_by_work<'a>(scales: &[SearchScale], at_level: &dyn Fn(u32) -> &'a Image) -> usize {
+    let work: Vec<usize> = scales
+        .iter()
+        .map(|s| (2 * gaussian_radius(s.binned_sigma) + 1) * at_level(s.level).len())
+        .collect();
+    let total: usize = work.iter().sum();
+    let mut done = 0;
+    work.iter()
+        .take_while(|&&w| {
+            done += w;
+            2 * done <= total
+        })
+        .count()
+}
+
+/// Each pixel's strongest normalised response over some scales, and which scale gave it
+/// (`scale[i]` = 1 + the scale's index in the search; 0 where none did, the response then
+/// −∞).
+struct Strongest {
+    response: Image,
+    scale: Vec<u8>,
+}
+
+impl Strongest {
+    /// Takes `later`'s pixels where its response is strictly stronger: a search over scales
+    /// that come after this one's, so that on a tie the earlier scale stays, as in one
+    /// search in scale order.
+    fn merge(&mut self, later: &Strongest) {
+        let response = self.response.as_slice_mut().expect("standard layout");
+        let later_response = later.response.as_slice().expect("standard layout");
+        let cells = response.iter_mut().zip(self.scale.iter_mut());
+        for ((r, s), (&lr, &ls)) in cells.zip(later_response.iter().zip(&later.scale)) {
+            if lr > *r {
+                (*r, *s) = (lr, ls);
             }
-            &spread
-        };
-        keep_strongest_in_row(line, norm, sigma, noise, best, best_sigma, best_noise);
+        }
+    }
+}
+
+/// The strongest normalised response at each pixel of a `h` x `w` frame over `scales` (the
+/// first of them the `first`-th of the search), in order, a strictly stronger one replacing
+/// the one kept: each scale's response is filtered a band of rows at a time
+/// ([`laplace_by_bands`]) on the image binned for it (`at_level`) and folded in at once
+/// ([`keep_strongest`]).
+fn strongest_over<'a>(
+    scales: &[SearchScale],
+    first: usize,
+    at_level: &dyn Fn(u32) -> &'a Image,
+    (h, w): (usize, usize),
+) -> Strongest {
+    assert!(first + scales.len() < usize::from(u8::MAX), "a scale index fits a byte");
+    let mut strongest = Strongest {
+        response: Image::from_elem((h, w), f32::NEG_INFINITY),
+        scale: vec![0; h * w],
+    };
+    let mut spread = vec![0f32; w];
+    for (k, scale) in scales.iter().enumerate() {
+        let index = (first + k + 1) as u8;
+        let binned = at_level(scale.level);
+        laplace_by_bands(binned, scale.binned_sigma, |first_row, band| {
+            let rows = band.chunks_exact(binned.ncols());
+            for (by, line) in (first_row..).zip(rows) {
+                keep_strongest(
+                    (line, by, scale.level),
+                    (scale.norm, index),
+                    &mut strongest,
+                    &mut spread,
+                );
+            }
+        });
+    }
+    strongest
+}
+
+/// Where `norm` x `line` (row `by` of a response binned by 2^`level`; each pixel reads its
+/// block's value) beats the strongest response kept, keeps it with its scale `index`, over
+/// the frame rows the binned row covers. A binned row is first spread to full width (into
+/// `spread`), then each row compared branch-free ([`keep_strongest_in_row`], vectorised).
+fn keep_strongest(
+    (line, by, level): (&[f32], usize, u32),
+    (norm, index): (f32, u8),
+    strongest: &mut Strongest,
+    spread: &mut [f32],
+) {
+    let (h, w) = strongest.response.dim();
+    let line = if level == 0 {
+        &line[..w]
+    } else {
+        // Pixel x reads block x >> level: blocks of 2^level pixels (the last one cut).
+        for (block, &v) in spread.chunks_mut(1 << level).zip(line) {
+            block.fill(v);
+        }
+        &*spread
+    };
+    let response = strongest.response.as_slice_mut().expect("standard layout");
+    for y in (by << level)..((by + 1) << level).min(h) {
+        let row = y * w..(y + 1) * w;
+        keep_strongest_in_row(line, norm, index, &mut response[row.clone()], &mut strongest.scale[row]);
     }
 }
 
 crate::multiversioned! {
     /// One row of [`keep_strongest`]: where `norm · line[x]` > `best[x]`, it replaces it and
-    /// `sigma` and `noise` are kept beside it.
+    /// `index` is kept beside it in `scale[x]`.
     fn keep_strongest_in_row / keep_strongest_in_row_with(
         line: &[f32],
         norm: f32,
-        sigma: f32,
-        noise: f32,
+        index: u8,
         best: &mut [f32],
-        best_sigma: &mut [f32],
-        best_noise: &mut [f32]
+        scale: &mut [u8]
     ) {
-        let cells = best.iter_mut().zip(best_sigma.iter_mut()).zip(best_noise.iter_mut());
-        for (((b, s), n), &v) in cells.zip(line) {
+        for ((b, s), &v) in best.iter_mut().zip(scale.iter_mut()).zip(line) {
             let r = norm * v;
             let take = r > *b;
             *b = if take { r } else { *b };
-            *s = if take { sigma } else { *s };
-            *n = if take { noise } else { *n };
+            *s = if take { index } else { *s };
         }
     }
 }
@@ -435,9 +522,9 @@ fn bin(image: &Image, factor: usize) -> Image {
 }
 
 /// Positive local maxima of the best response, each over a window of radius its own selected
-/// scale σ* (at least 3 px), so that a weak large-scale response between nuclei is not a blob
+/// scale σ* (`sigma_at(pixel index)`, at least 3 px), so that a weak large-scale response between nuclei is not a blob
 /// of its own (ties: the first in raster order wins).
-fn local_maxima(response: &Image, sigma: &Image) -> Vec<(usize, usize)> {
+fn local_maxima(response: &Image, sigma_at: impl Fn(usize) -> f32) -> Vec<(usize, usize)> {
     let (h, w) = response.dim();
     let values = response.as_slice().expect("standard layout");
     let mut peaks = Vec::new();
@@ -452,7 +539,7 @@ fn local_maxima(response: &Image, sigma: &Image) -> Vec<(usize, usize)> {
             if beaten_by_a_neighbour(values, (w, h), (y, x)) {
                 continue;
             }
-            let r = (sigma[[y, x]].round() as usize).max(3);
+            let r = (sigma_at(y * w + x).round() as usize).max(3);
             if beaten_within(response, (y, x), r) {
                 continue;
             }
@@ -515,29 +602,30 @@ mod tests {
             .collect();
         let start: Vec<f32> = (0..67).map(|i| ((i * 13) % 7) as f32 - 3.0).collect();
         let run = |level| {
-            let (mut b, mut s, mut n) = (start.clone(), vec![0f32; 67], vec![0f32; 67]);
-            keep_strongest_in_row_with(level, &line, -1.0, 2.5, 0.5, &mut b, &mut s, &mut n);
-            (b.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), s, n)
+            let (mut b, mut s) = (start.clone(), vec![0u8; 67]);
+            keep_strongest_in_row_with(level, &line, -1.0, 7, &mut b, &mut s);
+            (b.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), s)
         };
         let portable = run(crate::simd::Level::Portable);
-        let taken = portable.1.iter().filter(|&&s| s == 2.5).count();
+        let taken = portable.1.iter().filter(|&&s| s == 7).count();
         let by_hand = line.iter().zip(&start).filter(|(&v, &b)| -v > b).count();
         assert_eq!(taken, by_hand);
         for level in crate::simd::levels() {
             assert_eq!(run(level), portable, "{level:?}");
         }
     }
+
     #[test]
     fn a_binned_response_is_read_block_by_block() {
         // Source: definition (pixel (x, y) of a response binned by 2^level reads block
-        // (x >> level, y >> level), the last row of blocks standing in for any rows past it;
-        // it replaces the best only when norm x response is strictly larger): levels 0-3 on
-        // full sizes that do and do not divide into blocks, over a best already half filled.
+        // (x >> level, y >> level); it replaces the best only when norm x response is
+        // strictly larger): levels 0-3 on full sizes that do and do not divide into blocks,
+        // over a best already half filled.
         for (level, (h, w), (rh, rw)) in [
             (0u32, (5, 7), (5, 7)),
             (1, (9, 7), (5, 4)),
-            (2, (13, 10), (3, 3)),
-            (3, (17, 9), (2, 2)),
+            (2, (13, 10), (4, 3)),
+            (3, (17, 9), (3, 2)),
         ] {
             let response = Image::from_shape_fn((rh, rw), |(y, x)| ((y * 7 + x * 3) % 5) as f32 - 2.0);
             let start = |y: usize, x: usize| {
@@ -547,24 +635,71 @@ mod tests {
                     f32::NEG_INFINITY
                 }
             };
-            let mut best = Image::from_shape_fn((h, w), |(y, x)| start(y, x));
-            let (mut best_sigma, mut best_noise) = (Image::zeros((h, w)), Image::zeros((h, w)));
-            keep_strongest(
-                (&response, level, -1.5),
-                (4.0, 0.25),
-                (&mut best, &mut best_sigma, &mut best_noise),
-            );
+            let mut strongest = Strongest {
+                response: Image::from_shape_fn((h, w), |(y, x)| start(y, x)),
+                scale: vec![0; h * w],
+            };
+            let mut spread = vec![0f32; w];
+            let rows = response.as_slice().unwrap().chunks_exact(rw);
+            for (by, line) in rows.enumerate() {
+                keep_strongest((line, by, level), (-1.5, 4), &mut strongest, &mut spread);
+            }
             for y in 0..h {
                 for x in 0..w {
-                    let r = -1.5 * response[[(y >> level).min(rh - 1), x >> level]];
+                    let r = -1.5 * response[[y >> level, x >> level]];
                     let taken = r > start(y, x);
                     let context = format!("level {level}, pixel ({x}, {y})");
-                    assert_eq!(best[[y, x]], if taken { r } else { start(y, x) }, "{context}");
-                    assert_eq!(best_sigma[[y, x]], if taken { 4.0 } else { 0.0 }, "{context}");
-                    assert_eq!(best_noise[[y, x]], if taken { 0.25 } else { 0.0 }, "{context}");
+                    let want = if taken { r } else { start(y, x) };
+                    assert_eq!(strongest.response[[y, x]], want, "{context}");
+                    assert_eq!(strongest.scale[y * w + x], if taken { 4 } else { 0 }, "{context}");
                 }
             }
         }
+    }
+
+    #[test]
+    fn the_search_in_two_runs_keeps_what_one_search_in_scale_order_keeps() {
+        // Source: definition (each pixel keeps the first scale whose normalised response is
+        // strictly the strongest, scales in order, each response from gaussian_laplace on the
+        // image binned for it and read block by block), on a frame of discs of three sizes in
+        // noise, with the scales cut at every point: the two runs merged must keep the same
+        // responses and scales bit for bit.
+        let mut rng = Rng::new(12);
+        let (h, w) = (90, 70);
+        let image = Image::from_shape_fn((h, w), |(y, x)| {
+            let disc = |cy: f64, cx: f64, r: f64| f64::from((y as f64 - cy).hypot(x as f64 - cx) < r);
+            (40.0 * (disc(20.0, 20.0, 3.0) + disc(60.0, 30.0, 8.0) + disc(45.0, 55.0, 14.0)) + rng.normal()) as f32
+        });
+        let scales = search_scales((h, w), 1.0);
+        assert!(scales.iter().any(|s| s.level == 2), "binned levels searched");
+        let binned: Vec<Image> = (0..3).map(|l| bin(&image, 1 << l)).collect();
+        let at_level = |l: u32| &binned[l as usize];
+        let mut want_response = vec![f32::NEG_INFINITY; h * w];
+        let mut want_scale = vec![0u8; h * w];
+        for (k, scale) in scales.iter().enumerate() {
+            let response = gaussian_laplace(at_level(scale.level), scale.binned_sigma);
+            for (i, (r, s)) in want_response.iter_mut().zip(want_scale.iter_mut()).enumerate() {
+                let (y, x) = ((i / w) >> scale.level, (i % w) >> scale.level);
+                let v = scale.norm * response[[y, x]];
+                if v > *r {
+                    (*r, *s) = (v, k as u8 + 1);
+                }
+            }
+        }
+        for cut in 0..=scales.len() {
+            let (first, second) = scales.split_at(cut);
+            let mut got = strongest_over(first, 0, &at_level, (h, w));
+            got.merge(&strongest_over(second, cut, &at_level, (h, w)));
+            let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(
+                bits(got.response.as_slice().unwrap()),
+                bits(&want_response),
+                "cut at {cut}"
+            );
+            assert_eq!(got.scale, want_scale, "cut at {cut}");
+        }
+        let cut = halfway_by_work(&scales, &at_level);
+        assert!(0 < cut && cut < scales.len(), "{cut} of {}", scales.len());
     }
 
     use crate::numeric::Rng;
