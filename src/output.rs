@@ -108,25 +108,86 @@ impl Staging {
     }
 
     /// Moves the staged files named in `names` (those that exist) into the run folder, in
-    /// order (put the run record last), and removes the staging folder.
+    /// order (put the run record last), and takes the folder's `stale` names (outputs of an
+    /// earlier run that this one does not replace) out of it. What an earlier run left under
+    /// those names is set aside in the staging folder rather than deleted in place (a file
+    /// stays where it is until the staged one replaces it in one rename), and the staging
+    /// folder is then removed on a thread of its own ([`Removal`]): freeing the blocks of an
+    /// earlier movie and review page takes the file system a while, and nothing needs to wait
+    /// for it but the end of the process.
     ///
     /// # Errors
     /// [`Error::Output`] when a rename fails.
-    pub fn publish(mut self, names: &[&str]) -> Result<()> {
+    pub fn publish(mut self, names: &[&str], stale: &[&str]) -> Result<Removal> {
+        let aside = self.work.join(".replaced");
+        std::fs::create_dir_all(&aside).map_err(|e| Error::output(&aside, e))?;
         for name in names {
             let from = self.work.join(name);
             if from.exists() {
                 let to = self.dir.join(name);
-                if from.is_dir() && to.is_dir() {
-                    // A folder is replaced whole (a rename cannot replace a non-empty one).
-                    std::fs::remove_dir_all(&to).map_err(|e| Error::output(&to, e))?;
-                }
+                set_aside(&to, &aside.join(name), to.is_dir())?;
                 std::fs::rename(&from, &to).map_err(|e| Error::output(&to, e))?;
             }
         }
+        for name in stale {
+            // As before publishing set aside: an earlier output that cannot be moved stays.
+            let _ = set_aside(&self.dir.join(name), &aside.join(name), true);
+        }
         self.published = true;
-        let _ = std::fs::remove_dir_all(&self.work);
+        // Renamed first, so that a later staging folder of this process is never the one
+        // being removed.
+        let removing = self.dir.join(format!(
+            ".staging-{}-removing-{}",
+            std::process::id(),
+            REMOVALS.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
+        ));
+        let gone = if std::fs::rename(&self.work, &removing).is_ok() {
+            removing
+        } else {
+            self.work.clone()
+        };
+        Ok(Removal::start(gone))
+    }
+}
+
+/// Staging folders of this process set for removal so far (each gets a name of its own).
+static REMOVALS: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
+/// Moves an earlier output at `path` out of the way, to `aside`: a folder is renamed (a
+/// rename cannot replace a non-empty one), a file `moved` away is renamed too, and a file
+/// about to be replaced is linked there, so that it stays in place until the rename that
+/// replaces it and its blocks are freed with the staging folder. Where the file system has no
+/// links, the replacing rename frees it. Nothing there: nothing to do.
+fn set_aside(path: &Path, aside: &Path, moved: bool) -> Result<()> {
+    let Ok(meta) = std::fs::symlink_metadata(path) else {
+        return Ok(());
+    };
+    if moved || meta.is_dir() {
+        std::fs::rename(path, aside).map_err(|e| Error::output(path, e))
+    } else {
+        let _ = std::fs::hard_link(path, aside);
         Ok(())
+    }
+}
+
+/// A folder being removed on a thread of its own; dropping this waits until it is gone (so
+/// that the process does not end half-way through). [`Staging::publish`] makes one.
+#[derive(Debug)]
+pub struct Removal(Option<std::thread::JoinHandle<()>>);
+
+impl Removal {
+    fn start(path: PathBuf) -> Removal {
+        Removal(Some(std::thread::spawn(move || {
+            let _ = std::fs::remove_dir_all(&path);
+        })))
+    }
+}
+
+impl Drop for Removal {
+    fn drop(&mut self) {
+        if let Some(thread) = self.0.take() {
+            let _ = thread.join();
+        }
     }
 }
 
@@ -191,6 +252,43 @@ mod tests {
             std::fs::write(&p, text).unwrap();
             assert_eq!(crc32_file(&p).unwrap(), want, "{text:?}");
         }
+    }
+
+    #[test]
+    fn publishing_replaces_earlier_outputs_and_removes_them_in_the_background() {
+        // Source: the contract of Staging::publish (the staged names replace the folder's,
+        // the stale names leave it, nothing of the staging folder is left once the removal
+        // is dropped), checked by reading the folder back.
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        let write = |p: &Path, text: &str| {
+            std::fs::create_dir_all(p.parent().unwrap()).unwrap();
+            std::fs::write(p, text).unwrap();
+        };
+        write(&d.join("table.csv"), "old table");
+        write(&d.join("page/index.html"), "old page");
+        write(&d.join("page/frames/1.jpg"), "old frame");
+        write(&d.join("movie.gif"), "old movie");
+        write(&d.join("keep.txt"), "not an output");
+        let staging = Staging::new(d).unwrap();
+        write(&staging.path().join("table.csv"), "new table");
+        write(&staging.path().join("page/index.html"), "new page");
+        let removal = staging
+            .publish(&["table.csv", "page", "absent.json"], &["movie.gif"])
+            .unwrap();
+        drop(removal);
+        let read = |p: &str| std::fs::read_to_string(d.join(p)).ok();
+        assert_eq!(read("table.csv").as_deref(), Some("new table"));
+        assert_eq!(read("page/index.html").as_deref(), Some("new page"));
+        assert!(!d.join("page/frames").exists(), "a folder is replaced whole");
+        assert!(!d.join("movie.gif").exists() && !d.join("absent.json").exists());
+        assert_eq!(read("keep.txt").as_deref(), Some("not an output"));
+        let mut names: Vec<String> = std::fs::read_dir(d)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        assert_eq!(names, ["keep.txt", "page", "table.csv"], "no staging folder left");
     }
 
     #[test]

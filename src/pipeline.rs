@@ -15,7 +15,7 @@ use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
 use crate::ordered::in_frame_order;
-use crate::output::{crc32_file, write_atomic, AtomicFile};
+use crate::output::{crc32_file, write_atomic, AtomicFile, Removal};
 use crate::params::{Length, SegmentParams};
 use crate::qc::{count_jumps, linking_qc, warnings_for, RunWarning};
 pub use crate::record::{DiameterSource, FrameSummary, LinkingQc};
@@ -106,6 +106,9 @@ pub struct RunOutcome {
     /// The default migration analysis when [`RunOptions::analysis`] asked for it and it
     /// could be made (nothing of it is written yet).
     pub analysis: Option<EarlyAnalysis>,
+    /// An earlier run's outputs in this folder that this run replaced, being removed in the
+    /// background; the last clone dropped waits until they are gone.
+    pub replaced_outputs: Option<std::sync::Arc<Removal>>,
 }
 
 impl RunOutcome {
@@ -244,7 +247,7 @@ pub fn run_recording(
         started,
     )?;
     drop(spool);
-    folder.publish(|name| outputs.writes(name))?;
+    run.replaced_outputs = Some(std::sync::Arc::new(folder.publish(|name| outputs.writes(name))?));
     run.dir = dir.to_path_buf();
     if let Some(c) = checkpoint {
         c.finish();
@@ -372,6 +375,7 @@ pub(crate) fn finish_run(
         warnings,
         verdict,
         analysis,
+        replaced_outputs: None,
     };
     let checksum = checksum.join().expect("the checksum thread only reads a file");
     let record = RunRecord {
@@ -438,19 +442,19 @@ fn second_pass(
         }
         _ => None,
     };
-    let movie = match (spool, outputs.movie) {
+    match (spool, outputs.movie) {
         (Some(s), Some(options)) => {
             let overlay = overlay(tracked, view.per_frame, divisions);
-            Some(render_movie(stack, s, &overlay, &options, dir, review.as_mut())?)
+            let (movie, review) = render_movie(stack, s, &overlay, &options, dir, review)?;
+            Ok((Some(movie), review))
         }
         _ => {
             if let Some(r) = review.as_mut() {
                 offer_all_frames(stack, r)?;
             }
-            None
+            Ok((None, review.map(ReviewWriter::finish).transpose()?))
         }
-    };
-    Ok((movie, review.map(ReviewWriter::finish).transpose()?))
+    }
 }
 
 /// The figures the verdict is judged from.

@@ -5,8 +5,8 @@
 //! failed run leaves the earlier outputs as they were.
 
 use crate::error::{Error, Result};
-use crate::output::{ensure_dir, Staging};
-use std::path::{Path, PathBuf};
+use crate::output::{ensure_dir, Removal, Staging};
+use std::path::Path;
 
 /// Every file (and the `review` folder) a run may write; a replacing run removes the ones it
 /// did not write this time, so that a folder never mixes two runs.
@@ -94,7 +94,6 @@ impl FolderLock {
 /// A run's output folder while the run writes into it (locked for this run, see
 /// [`FolderLock`]).
 pub struct RunFolder {
-    dir: PathBuf,
     staging: Staging,
     _lock: FolderLock,
 }
@@ -112,7 +111,6 @@ impl RunFolder {
         let lock = FolderLock::take(dir)?;
         remove_stale_partials(dir);
         Ok(RunFolder {
-            dir: dir.to_path_buf(),
             staging: Staging::new(dir)?,
             _lock: lock,
         })
@@ -123,23 +121,16 @@ impl RunFolder {
         self.staging.path()
     }
 
-    /// Moves the staged outputs into the folder (run.json last) and removes those of
+    /// Moves the staged outputs into the folder (run.json last) and takes out those of
     /// [`RUN_OUTPUTS`] that this run did not write (`written(name)` is false), left by an
-    /// earlier run.
+    /// earlier run. What the earlier run left is removed on a thread of its own: dropping the
+    /// returned [`Removal`] waits for it.
     ///
     /// # Errors
     /// A file that cannot be moved into place.
-    pub fn publish(self, written: impl Fn(&str) -> bool) -> Result<()> {
-        self.staging.publish(&RUN_OUTPUTS)?;
-        for name in RUN_OUTPUTS.iter().filter(|n| !written(n)) {
-            let path = self.dir.join(name);
-            let _ = if path.is_dir() {
-                std::fs::remove_dir_all(path)
-            } else {
-                std::fs::remove_file(path)
-            };
-        }
-        Ok(())
+    pub fn publish(self, written: impl Fn(&str) -> bool) -> Result<Removal> {
+        let stale: Vec<&str> = RUN_OUTPUTS.iter().copied().filter(|n| !written(n)).collect();
+        self.staging.publish(&RUN_OUTPUTS, &stale)
     }
 }
 

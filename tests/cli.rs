@@ -426,6 +426,13 @@ fn an_earlier_run_is_kept_unless_forced() {
         out.join("tracks.csv").exists() && !out.join("qc_movie.gif").exists(),
         "no stale movie from the earlier run"
     );
+    // The replaced outputs are removed before the command ends.
+    let hidden: Vec<String> = std::fs::read_dir(&out)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.starts_with(".staging"))
+        .collect();
+    assert!(hidden.is_empty(), "{hidden:?}");
 }
 
 #[test]

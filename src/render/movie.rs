@@ -11,7 +11,7 @@
 //! frames before a resumed run's checkpoint).
 
 use super::font::{draw_text, text_width};
-use super::review::ReviewWriter;
+use super::review::{ReviewOutputs, ReviewWriter};
 use super::{box_average, is_edge, DisplayRange, PALETTE};
 use crate::error::{Error, Result};
 use crate::ordered::in_frame_order;
@@ -321,7 +321,9 @@ pub struct MovieOutputs {
 /// hands every frame to the review page's writer when one is given, so that each frame is
 /// read once for both: from the spool's downscaled frames where it kept them
 /// ([`OutlineSpool::keep_downscaled`]), decoding again only the frames whose samples are
-/// needed (the first, for the contrast; the review's full-resolution ones).
+/// needed (the first, for the contrast; the review's full-resolution ones). The review page
+/// is finished ([`ReviewWriter::finish`]) while the contact sheet is compressed, and its
+/// outputs returned with the movie's.
 ///
 /// Colours: 240 grey levels plus our overlay palette, fixed for the whole movie so that a
 /// track keeps its colour; the contrast stretch is taken from the first frame and kept, so
@@ -333,8 +335,8 @@ pub fn render_movie(
     overlay: &TrackOverlay,
     options: &MovieOptions,
     dir: &Path,
-    mut review: Option<&mut ReviewWriter>,
-) -> Result<MovieOutputs> {
+    mut review: Option<ReviewWriter>,
+) -> Result<(MovieOutputs, Option<ReviewOutputs>)> {
     let info = stack.info().clone();
     let (w, h) = (info.width, info.height);
     let factor = options.factor(w, h);
@@ -382,7 +384,7 @@ pub fn render_movie(
         };
         // The contrast of the first frame, for the movie and the review page alike.
         let stretch = DisplayRange::from_values(first.as_ref().and_then(|f| f.raw.as_deref()).unwrap_or(&[]));
-        if let Some(r) = review.as_deref_mut() {
+        if let Some(r) = review.as_mut() {
             r.set_stretch(stretch);
         }
         let look = MovieLook {
@@ -392,10 +394,10 @@ pub fn render_movie(
             factor,
             interval_s: info.calibration.frame_interval_s,
         };
-        let reviewer = review.as_deref().map(ReviewWriter::encoder);
+        let reviewer = review.as_ref().map(ReviewWriter::encoder);
         let whole = |t: usize| reviewer.as_ref().is_some_and(|r| r.needs_whole(t, factor));
         let mut write = |done: FinishedFrame| -> Result<()> {
-            if let (Some(r), Some(encoded)) = (review.as_deref_mut(), done.review) {
+            if let (Some(r), Some(encoded)) = (review.as_mut(), done.review) {
                 r.accept(encoded)?;
             }
             if let Some(d) = done.drawn {
@@ -424,8 +426,12 @@ pub fn render_movie(
         in_frame_order(first, (1..info.frames).map(|t| read(t, &whole)), &finish, &mut write)?;
     }
     file.commit()?;
-    sheet.write(&out.sheet)?;
-    Ok(out)
+    let (sheet, review) = rayon::join(
+        || sheet.write(&out.sheet),
+        || review.map(ReviewWriter::finish).transpose(),
+    );
+    sheet?;
+    Ok((out, review?))
 }
 
 /// A frame to draw: its index, its samples (where decoded), its block average for the movie
