@@ -3,6 +3,7 @@
 //! checked against it.
 
 use crate::image2d::Image;
+use std::ops::Range;
 
 /// Normalised Gaussian weights `exp(-x²/2σ²)` for `x = -r..=r`, `r = int(4σ + 0.5)`.
 pub fn gaussian_kernel(sigma: f32) -> Vec<f32> {
@@ -148,7 +149,13 @@ pub fn laplace_by_bands(image: &Image, sigma: f32, mut each_band: impl FnMut(usi
     let (with_g2, rest) = rest.split_at_mut(held * stride);
     let (padded, band_out) = rest.split_at_mut(w + 2 * r);
     for band in Bands::new(h, band_rows, r) {
-        for k in band.to_filter.clone() {
+        for k in band.reflected_last() {
+            if let Some(held) = band.held_copy_of(k) {
+                // A reflected row whose source row is filtered already: the same sums.
+                with_g0.copy_within(held * stride..held * stride + w, k * stride);
+                with_g2.copy_within(held * stride..held * stride + w, k * stride);
+                continue;
+            }
             let line = band.source_row(k);
             pad_row(padded, &src[line * w..(line + 1) * w], r);
             let (a, b) = (
@@ -467,7 +474,7 @@ struct Band {
     /// Its output rows.
     rows: usize,
     /// The buffer rows still to filter across.
-    to_filter: std::ops::Range<usize>,
+    to_filter: Range<usize>,
     reach: usize,
     h: usize,
 }
@@ -478,9 +485,27 @@ impl Band {
         reflect(self.top as isize - self.reach as isize + k as isize, self.h)
     }
 
+    /// The buffer rows still to filter with those that reflection puts above the image
+    /// last (the first band's top `reach` rows), so that their source rows come first.
+    fn reflected_last(&self) -> impl Iterator<Item = usize> {
+        let Range { start, end } = self.to_filter;
+        (start.max(self.reach)..end).chain(start..self.reach.min(end))
+    }
+
+    /// The buffer row already filtered, in [`Band::reflected_last`]'s order, that holds the
+    /// same image row as buffer row `k` (reflection at the image's edges repeats rows), if
+    /// any.
+    fn held_copy_of(&self, k: usize) -> Option<usize> {
+        let held = (self.source_row(k) + self.reach).checked_sub(self.top)?;
+        let Range { start, end } = self.to_filter;
+        let carried = held < start;
+        let filtered_before = held >= start.max(self.reach) && (k < self.reach || held < k);
+        (held != k && held < end && (carried || filtered_before)).then_some(held)
+    }
+
     /// The buffer's values (rows `stride` apart) that the next band finds at its top: the
     /// reach below this band is the reach above the next.
-    fn carried(&self, stride: usize) -> std::ops::Range<usize> {
+    fn carried(&self, stride: usize) -> Range<usize> {
         self.rows * stride..(self.rows + 2 * self.reach) * stride
     }
 }
