@@ -176,10 +176,19 @@ fn set_aside(path: &Path, aside: &Path, moved: bool) -> Result<()> {
 pub struct Removal(Option<std::thread::JoinHandle<()>>);
 
 impl Removal {
+    /// Starts removing `path`; where no thread can be started, removes it before returning.
     fn start(path: PathBuf) -> Removal {
-        Removal(Some(std::thread::spawn(move || {
-            let _ = std::fs::remove_dir_all(&path);
-        })))
+        let in_thread = path.clone();
+        let thread = std::thread::Builder::new().name("removal".into()).spawn(move || {
+            let _ = std::fs::remove_dir_all(&in_thread);
+        });
+        match thread {
+            Ok(thread) => Removal(Some(thread)),
+            Err(_) => {
+                let _ = std::fs::remove_dir_all(&path);
+                Removal(None)
+            }
+        }
     }
 }
 

@@ -150,10 +150,10 @@ pub fn laplace_by_bands(image: &Image, sigma: f32, mut each_band: impl FnMut(usi
     let (padded, band_out) = rest.split_at_mut(w + 2 * r);
     for band in Bands::new(h, band_rows, r) {
         for k in band.reflected_last() {
-            if let Some(held) = band.held_copy_of(k) {
+            if let Some(source) = band.held_copy_of(k) {
                 // A reflected row whose source row is filtered already: the same sums.
-                with_g0.copy_within(held * stride..held * stride + w, k * stride);
-                with_g2.copy_within(held * stride..held * stride + w, k * stride);
+                with_g0.copy_within(source * stride..source * stride + w, k * stride);
+                with_g2.copy_within(source * stride..source * stride + w, k * stride);
                 continue;
             }
             let line = band.source_row(k);
