@@ -51,16 +51,18 @@ struct Encoder {
     defined: usize,
     /// Hash table of the strings of two bytes or more: `key << 12 | code` per slot, 0 for an
     /// empty one (no string is given code 0: codes start past the clear and end codes).
-    slots: Vec<u32>,
+    slots: Box<[u32; SLOTS]>,
     /// The extensions of the one-byte strings (the palette indices), indexed directly by
     /// `index << 8 | byte`: `epoch << 12 | code`, valid only when its epoch is the current
     /// one, so that a restart empties it by counting up instead of clearing 256 KB. Every code
     /// written starts the next look-up from a single byte: about a third of a movie frame's.
-    roots: Vec<u32>,
+    /// Sized for the largest palette, so that a key (below 2^16) indexes it without a check.
+    roots: Box<[u32; 1 << 16]>,
     /// Restarts so far, plus one (never 0, so a zeroed entry is never valid).
     epoch: u32,
-    /// Extensions defined per code since the last clear (up to `SHORT_LIST` + 1).
-    extensions: Vec<u8>,
+    /// Extensions defined per code since the last clear (up to `SHORT_LIST` + 1), indexed by
+    /// a code (below 2^12).
+    extensions: Box<[u8; MAX_CODES]>,
     bits: u64,
     pending: u8,
     out: Vec<u8>,
@@ -74,10 +76,10 @@ impl Encoder {
             min_size,
             width: min_size + 1,
             defined: usize::from(clear) + 2,
-            slots: vec![0; SLOTS],
-            roots: vec![0; usize::from(clear) << 8],
+            slots: zeroed_on_the_heap(),
+            roots: zeroed_on_the_heap(),
             epoch: 1,
-            extensions: vec![0; MAX_CODES + 1],
+            extensions: zeroed_on_the_heap(),
             bits: 0,
             pending: 0,
             out,
@@ -96,7 +98,7 @@ impl Encoder {
             let root = current < self.clear;
             let mut slot = 0;
             let known = if root {
-                let entry = self.roots[key as usize];
+                let entry = self.roots[key as u16 as usize];
                 (entry >> 12 == self.epoch).then_some(entry & 0xFFF)
             } else {
                 slot = slot_of(key);
@@ -112,12 +114,12 @@ impl Encoder {
                 continue;
             }
             // A new string: its code is defined, the known prefix is written.
-            let extended = &mut self.extensions[usize::from(current)];
+            let extended = &mut self.extensions[usize::from(current) % MAX_CODES];
             // Code 4096 is defined only to be cleared at once (the table restarts below): it
             // is never stored, so every stored code fits its 12 bits.
             if *extended != SHORT_LIST && self.defined < MAX_CODES {
                 if root {
-                    self.roots[key as usize] = self.epoch << 12 | self.defined as u32;
+                    self.roots[key as u16 as usize] = self.epoch << 12 | self.defined as u32;
                 } else {
                     self.slots[slot] = key << 12 | self.defined as u32;
                 }
@@ -158,24 +160,35 @@ impl Encoder {
         self.width = self.min_size + 1;
     }
 
-    /// Appends `code` at the current width, least significant bit first.
+    /// Appends `code` at the current width, least significant bit first; four whole bytes
+    /// are written at a time (the same bytes as one at a time).
     fn put(&mut self, code: u16) {
         self.bits |= u64::from(code) << self.pending;
         self.pending += self.width;
-        while self.pending >= 8 {
-            self.out.push(self.bits as u8);
-            self.bits >>= 8;
-            self.pending -= 8;
+        if self.pending >= 32 {
+            self.out.extend_from_slice(&(self.bits as u32).to_le_bytes());
+            self.bits >>= 32;
+            self.pending -= 32;
         }
     }
 
     /// The stream with its last bits padded to a whole byte.
     fn finish(mut self) -> Vec<u8> {
-        if self.pending > 0 {
+        while self.pending > 0 {
             self.out.push(self.bits as u8);
+            self.bits >>= 8;
+            self.pending = self.pending.saturating_sub(8);
         }
         self.out
     }
+}
+
+/// A zeroed array made on the heap (not built on the stack first: the root table is 256 KB).
+fn zeroed_on_the_heap<T: Copy + Default, const N: usize>() -> Box<[T; N]> {
+    vec![T::default(); N]
+        .into_boxed_slice()
+        .try_into()
+        .unwrap_or_else(|_| unreachable!("N values"))
 }
 
 /// The first slot to look at for `key` (Fibonacci hashing: the top bits of the product with
