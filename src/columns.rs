@@ -238,15 +238,21 @@ impl NamedRow<'_> {
 /// Reads the CSV file at `path` by column names (in any order, extra columns ignored) and
 /// turns each row into a `T`.
 ///
+/// A large table without quotes (as the tables Caravan writes are) is read in pieces of whole
+/// lines in parallel, each piece's rows in order; anything a piece cannot take as it is (a
+/// row of another length, a cell `each` refuses, bytes that are not text) sends the whole file
+/// through the one sequential reader, so that the error names the same line as it always did.
+///
 /// # Errors
 /// An unreadable file, a missing column, or what `each` refuses, naming the file.
-pub fn read_named_columns<T>(
+pub fn read_named_columns<T: Send>(
     path: &std::path::Path,
     names: &[&str],
-    mut each: impl FnMut(&NamedRow) -> crate::error::Result<T>,
+    each: impl Fn(&NamedRow) -> crate::error::Result<T> + Sync,
 ) -> crate::error::Result<Vec<T>> {
     let bad = |what: String| crate::error::Error::input(path, what);
-    let mut reader = csv::Reader::from_path(path).map_err(|e| bad(e.to_string()))?;
+    let bytes = std::fs::read(path).map_err(|e| bad(e.to_string()))?;
+    let mut reader = csv::Reader::from_reader(&bytes[..]);
     let header = reader.headers().map_err(|e| bad(e.to_string()))?.clone();
     let at: Vec<usize> = names
         .iter()
@@ -257,26 +263,179 @@ pub fn read_named_columns<T>(
                 .ok_or_else(|| bad(format!("missing column {n}")))
         })
         .collect::<crate::error::Result<_>>()?;
-    let mut out = Vec::new();
-    // One record reused for every row (a new one per row was most of the time of reading).
-    let mut record = csv::StringRecord::new();
-    let mut line = 1;
-    while reader.read_record(&mut record).map_err(|e| bad(e.to_string()))? {
-        line += 1;
-        out.push(each(&NamedRow {
-            record: &record,
-            at: &at,
-            names,
-            line,
-            path,
-        })?);
+    let body = &bytes[reader.position().byte() as usize..];
+    let table = Table {
+        path,
+        names,
+        at: &at,
+        fields: header.len(),
+    };
+    match table.in_pieces(body, &each) {
+        Some(rows) => Ok(rows),
+        None => table.in_order(reader, &each),
     }
-    Ok(out)
+}
+
+/// What [`read_named_columns`] reads by: the file, the names asked for, their columns, and
+/// the number of fields every row has (the header's).
+struct Table<'a> {
+    path: &'a std::path::Path,
+    names: &'a [&'a str],
+    at: &'a [usize],
+    fields: usize,
+}
+
+/// Bytes of rows from which [`Table::in_pieces`] reads in parallel (below, one reader).
+const PIECES_FROM_BYTES: usize = 1 << 18;
+
+impl Table<'_> {
+    /// The rows after the header, one after another.
+    fn in_order<T>(
+        &self,
+        mut reader: csv::Reader<&[u8]>,
+        each: &impl Fn(&NamedRow) -> crate::error::Result<T>,
+    ) -> crate::error::Result<Vec<T>> {
+        let bad = |what: String| crate::error::Error::input(self.path, what);
+        let mut out = Vec::new();
+        // One record reused for every row (a new one per row was most of the time of reading).
+        let mut record = csv::StringRecord::new();
+        let mut line = 1;
+        while reader.read_record(&mut record).map_err(|e| bad(e.to_string()))? {
+            line += 1;
+            out.push(each(&self.row(&record, line))?);
+        }
+        Ok(out)
+    }
+
+    /// The rows of `body` (the bytes after the header) read in pieces of whole lines in
+    /// parallel, when it is large and holds no quote; `None` when it is small or quoted, or a
+    /// piece meets anything but a clean row (then [`Table::in_order`] says what).
+    fn in_pieces<T: Send>(
+        &self,
+        body: &[u8],
+        each: &(impl Fn(&NamedRow) -> crate::error::Result<T> + Sync),
+    ) -> Option<Vec<T>> {
+        use rayon::prelude::*;
+        if body.len() < PIECES_FROM_BYTES || body.contains(&b'"') {
+            return None;
+        }
+        let pieces = whole_line_pieces(body, rayon::current_num_threads().max(1) * 2);
+        let read: Vec<Option<Vec<T>>> = pieces
+            .par_iter()
+            .map(|piece| {
+                let mut reader = csv::ReaderBuilder::new()
+                    .has_headers(false)
+                    .flexible(true)
+                    .from_reader(*piece);
+                let mut record = csv::StringRecord::new();
+                let mut rows = Vec::new();
+                while reader.read_record(&mut record).ok()? {
+                    if record.len() != self.fields {
+                        return None;
+                    }
+                    // The line is only for an error message, and an error sends the file
+                    // through `in_order` again.
+                    rows.push(each(&self.row(&record, 0)).ok()?);
+                }
+                Some(rows)
+            })
+            .collect();
+        let mut out = Vec::new();
+        for rows in read {
+            out.extend(rows?);
+        }
+        Some(out)
+    }
+
+    fn row<'r>(&'r self, record: &'r csv::StringRecord, line: usize) -> NamedRow<'r> {
+        NamedRow {
+            record,
+            at: self.at,
+            names: self.names,
+            line,
+            path: self.path,
+        }
+    }
+}
+
+/// `bytes` cut into about `count` pieces that each end just after a line feed (the last where
+/// the bytes end).
+fn whole_line_pieces(bytes: &[u8], count: usize) -> Vec<&[u8]> {
+    let mut pieces = Vec::with_capacity(count);
+    let mut start = 0;
+    for k in 1..count {
+        let guess = (bytes.len() * k / count).max(start);
+        let Some(feed) = bytes[guess..].iter().position(|&b| b == b'\n') else {
+            break;
+        };
+        let end = guess + feed + 1;
+        if end > start {
+            pieces.push(&bytes[start..end]);
+            start = end;
+        }
+    }
+    pieces.push(&bytes[start..]);
+    pieces
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A table of `rows` rows (`id,x,label`, x = id / 8) as text, lines ended by `ending`.
+    fn table_text(rows: usize, ending: &str) -> String {
+        let mut text = format!("label,id,x{ending}");
+        for i in 0..rows {
+            text.push_str(&format!("n{i},{i},{}{ending}", i as f64 / 8.0));
+        }
+        text
+    }
+
+    fn read_ids(path: &std::path::Path) -> crate::error::Result<Vec<(u32, f64)>> {
+        read_named_columns(path, &["id", "x"], |row| Ok((row.whole(0)?, row.number(1)?)))
+    }
+
+    #[test]
+    fn a_large_table_read_in_pieces_has_every_row_in_order() {
+        // Source: definition (the rows as they were written, id and x = id / 8 exactly in
+        // binary), for a table large enough to be read in pieces, with LF and CRLF endings,
+        // and for a small one read in order.
+        let dir = tempfile::tempdir().unwrap();
+        for (rows, ending) in [(30_000usize, "\n"), (30_000, "\r\n"), (50, "\n")] {
+            let text = table_text(rows, ending);
+            let path = dir.path().join("t.csv");
+            std::fs::write(&path, &text).unwrap();
+            let want: Vec<(u32, f64)> = (0..rows).map(|i| (i as u32, i as f64 / 8.0)).collect();
+            assert_eq!(read_ids(&path).unwrap(), want, "{rows} rows, {ending:?}");
+            let body = &text.as_bytes()[text.find(ending).unwrap() + ending.len()..];
+            let at = [1, 2];
+            let table = Table {
+                path: &path,
+                names: &["id", "x"],
+                at: &at,
+                fields: 3,
+            };
+            let pieces = table.in_pieces(body, &|row: &NamedRow| Ok((row.whole(0)?, row.number(1)?)));
+            assert_eq!(pieces.is_some(), rows > 1000, "read in pieces only when large");
+        }
+    }
+
+    #[test]
+    fn an_error_in_a_piece_names_the_line_as_a_reader_in_order_does() {
+        // Source: definition (line 1 is the header, row k is line k + 1): a bad cell late in
+        // a large table, and a row missing a field, are refused naming their line.
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("t.csv");
+        let mut text = table_text(30_000, "\n");
+        text = text.replace("\nn25000,25000,3125\n", "\nn25000,25000,many\n");
+        std::fs::write(&path, &text).unwrap();
+        let err = read_ids(&path).unwrap_err().to_string();
+        assert!(err.contains("line 25002: x is not a number"), "{err}");
+        let short = table_text(30_000, "\n").replace("\nn20000,20000,2500\n", "\nn20000,20000\n");
+        std::fs::write(&path, short).unwrap();
+        let err = read_ids(&path).unwrap_err().to_string();
+        assert!(err.contains("line: 20002") && err.contains("2 fields"), "{err}");
+    }
 
     #[test]
     fn a_table_written_in_parallel_is_the_standard_formatter_line_by_line() {
