@@ -125,7 +125,7 @@ impl Staging {
             let from = self.work.join(name);
             if from.exists() {
                 let to = self.dir.join(name);
-                set_aside(&to, &aside.join(name), to.is_dir())?;
+                set_aside(&to, &aside.join(name), false)?;
                 std::fs::rename(&from, &to).map_err(|e| Error::output(&to, e))?;
             }
         }
@@ -154,15 +154,15 @@ impl Staging {
 static REMOVALS: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
 
 /// Moves an earlier output at `path` out of the way, to `aside`: a folder is renamed (a
-/// rename cannot replace a non-empty one), a file `moved` away is renamed too, and a file
-/// about to be replaced is linked there, so that it stays in place until the rename that
-/// replaces it and its blocks are freed with the staging folder. Where the file system has no
-/// links, the replacing rename frees it. Nothing there: nothing to do.
-fn set_aside(path: &Path, aside: &Path, moved: bool) -> Result<()> {
+/// rename cannot replace a non-empty one), a file `taken_out` (not replaced) is renamed too,
+/// and a file about to be replaced is linked there, so that it stays in place until the
+/// rename that replaces it and its blocks are freed with the staging folder. Where the file
+/// system has no links, the replacing rename frees it. Nothing there: nothing to do.
+fn set_aside(path: &Path, aside: &Path, taken_out: bool) -> Result<()> {
     let Ok(meta) = std::fs::symlink_metadata(path) else {
         return Ok(());
     };
-    if moved || meta.is_dir() {
+    if taken_out || meta.is_dir() {
         std::fs::rename(path, aside).map_err(|e| Error::output(path, e))
     } else {
         let _ = std::fs::hard_link(path, aside);

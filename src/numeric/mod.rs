@@ -207,6 +207,13 @@ impl Grid {
     #[inline]
     pub fn neighbours8(&self, i: usize) -> impl Iterator<Item = usize> {
         let (x, y) = self.column_row(i);
+        self.neighbours8_at(i, (x, y))
+    }
+
+    /// [`Grid::neighbours8`] of pixel `i` whose column and row `(x, y)` the caller knows
+    /// already (a scan in raster order), without finding them again.
+    #[inline]
+    pub fn neighbours8_at(&self, i: usize, (x, y): (usize, usize)) -> impl Iterator<Item = usize> {
         let (w, h) = (self.width, self.height);
         let (left, right, up, down) = (x > 0, x + 1 < w, y > 0, y + 1 < h);
         let all = [

@@ -174,9 +174,9 @@ pub fn max_filter_square(image: &Image, window: usize) -> Image {
 
 /// A separable running extreme: down the columns, then across the rows (as the columns of the
 /// transposed result). Each pass takes whole rows as vectors of lanes, so the extremes of all
-/// columns are carried at once instead of one dependent chain per line. The extreme of a square is that of its columns' extremes in
-/// either order, and every value is one of the inputs, so the result does not depend on the
-/// order.
+/// columns are carried at once instead of one dependent chain per line. The extreme of a
+/// square is that of its columns' extremes in either order, and every value is one of the
+/// inputs, so the result does not depend on the order.
 fn filter_square(image: &Image, window: usize, extreme: Extreme) -> Image {
     let (h, w) = image.dim();
     if h == 0 || w == 0 {

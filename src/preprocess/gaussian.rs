@@ -149,21 +149,20 @@ pub fn laplace_by_bands(image: &Image, sigma: f32, mut each_band: impl FnMut(usi
     let (with_g2, rest) = rest.split_at_mut(held * stride);
     let (padded, band_out) = rest.split_at_mut(w + 2 * r);
     for band in Bands::new(h, band_rows, r) {
-        for k in band.reflected_last() {
-            if let Some(source) = band.held_copy_of(k) {
-                // A reflected row whose source row is filtered already: the same sums.
-                with_g0.copy_within(source * stride..source * stride + w, k * stride);
-                with_g2.copy_within(source * stride..source * stride + w, k * stride);
-                continue;
+        band.fill(|k, source| match source {
+            RowSource::Held(from) => {
+                with_g0.copy_within(from * stride..from * stride + w, k * stride);
+                with_g2.copy_within(from * stride..from * stride + w, k * stride);
             }
-            let line = band.source_row(k);
-            pad_row(padded, &src[line * w..(line + 1) * w], r);
-            let (a, b) = (
-                &mut with_g0[k * stride..k * stride + w],
-                &mut with_g2[k * stride..k * stride + w],
-            );
-            filter_steps_pair(a, b, padded, 1, &g0, &g2);
-        }
+            RowSource::Image(line) => {
+                pad_row(padded, &src[line * w..(line + 1) * w], r);
+                let (a, b) = (
+                    &mut with_g0[k * stride..k * stride + w],
+                    &mut with_g2[k * stride..k * stride + w],
+                );
+                filter_steps_pair(a, b, padded, 1, &g0, &g2);
+            }
+        });
         let out = &mut band_out[..band.rows * w];
         by_strips(out, w, 0, |o, y, x0| {
             let at = y * stride + x0;
@@ -427,11 +426,13 @@ fn convolve_in_bands(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kern
     let padded = &mut padded[..w + 2 * rx];
     let mut out = Vec::with_capacity(h * w);
     for band in Bands::new(h, BAND_ROWS, ry) {
-        for k in band.to_filter.clone() {
-            let line = band.source_row(k);
-            pad_row(padded, &src[line * w..(line + 1) * w], rx);
-            filter_padded_row(&mut across[k * stride..k * stride + w], padded, kernel_x);
-        }
+        band.fill(|k, source| match source {
+            RowSource::Held(from) => across.copy_within(from * stride..from * stride + w, k * stride),
+            RowSource::Image(line) => {
+                pad_row(padded, &src[line * w..(line + 1) * w], rx);
+                filter_padded_row(&mut across[k * stride..k * stride + w], padded, kernel_x);
+            }
+        });
         // Zeroed a band at a time, in cache, just before the column pass writes it.
         out.resize((band.top + band.rows) * w, 0.0);
         by_strips(&mut out[band.top * w..], w, 0, |o, y, x0| {
@@ -473,7 +474,7 @@ struct Band {
     top: usize,
     /// Its output rows.
     rows: usize,
-    /// The buffer rows still to filter across.
+    /// The buffer rows still to fill.
     to_filter: Range<usize>,
     reach: usize,
     h: usize,
@@ -485,8 +486,22 @@ impl Band {
         reflect(self.top as isize - self.reach as isize + k as isize, self.h)
     }
 
-    /// The buffer rows still to filter with those that reflection puts above the image
-    /// last (the first band's top `reach` rows), so that their source rows come first.
+    /// Fills the buffer rows still to fill, calling `row(k, source)` for each buffer row `k`:
+    /// from an image row filtered across, or as a copy of a buffer row already filtered that
+    /// holds the same image row (reflection at the image's edges repeats rows: the same sums).
+    /// The rows that reflection puts above the image come last, so that their source rows are
+    /// filtered first.
+    fn fill(&self, mut row: impl FnMut(usize, RowSource)) {
+        for k in self.reflected_last() {
+            match self.held_copy_of(k) {
+                Some(from) => row(k, RowSource::Held(from)),
+                None => row(k, RowSource::Image(self.source_row(k))),
+            }
+        }
+    }
+
+    /// The buffer rows still to fill with those that reflection puts above the image last
+    /// (the first band's top `reach` rows), so that their source rows come first.
     fn reflected_last(&self) -> impl Iterator<Item = usize> {
         let Range { start, end } = self.to_filter;
         (start.max(self.reach)..end).chain(start..self.reach.min(end))
@@ -508,6 +523,14 @@ impl Band {
     fn carried(&self, stride: usize) -> Range<usize> {
         self.rows * stride..(self.rows + 2 * self.reach) * stride
     }
+}
+
+/// Where a buffer row of a [`Band`] comes from ([`Band::fill`]).
+enum RowSource {
+    /// This image row, filtered across.
+    Image(usize),
+    /// This buffer row, filtered already (it holds the same image row).
+    Held(usize),
 }
 
 impl Iterator for Bands {

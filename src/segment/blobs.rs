@@ -147,22 +147,12 @@ fn distinct_centres(labels: &[u32], blob: &[f32], rule: &BlobRule, width: usize,
     let basins = labels.iter().copied().max().unwrap_or(0) as usize;
     let grid = Grid::new(width, height);
     let mut centres: Vec<Vec<usize>> = vec![Vec::new(); basins + 1];
-    // Away from the window's edges the eight neighbours are read without a test.
-    let w = width;
-    let above_its_neighbours = |p: usize, x: usize, y: usize| {
-        let b = blob[p];
-        if x > 0 && x + 1 < w && y > 0 && y + 1 < height {
-            [p - w - 1, p - w, p - w + 1, p - 1, p + 1, p + w - 1, p + w, p + w + 1]
-                .iter()
-                .all(|&q| blob[q] < b)
-        } else {
-            grid.neighbours8(p).all(|q| blob[q] < b)
-        }
-    };
-    for (y, row) in labels.chunks_exact(w.max(1)).enumerate() {
+    // Row by row, so that each pixel's column and row are known without a division.
+    for (y, row) in labels.chunks_exact(width.max(1)).enumerate() {
         for (x, &l) in row.iter().enumerate() {
-            let p = y * w + x;
-            if l > 0 && blob[p] >= rule.floor && above_its_neighbours(p, x, y) {
+            let p = y * width + x;
+            let b = blob[p];
+            if l > 0 && b >= rule.floor && grid.neighbours8_at(p, (x, y)).all(|q| blob[q] < b) {
                 centres[l as usize].push(p);
             }
         }

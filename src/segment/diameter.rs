@@ -93,8 +93,8 @@ pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
     let at_level = |level: u32| binned[level as usize].as_ref().unwrap_or(image);
     let (first, second) = scales.split_at(halfway_by_work(&scales, &at_level));
     let (mut strongest, later) = rayon::join(
-        || strongest_over(first, 0, &at_level, (h, w)),
-        || strongest_over(second, first.len(), &at_level, (h, w)),
+        || strongest_over(first, 0, &at_level),
+        || strongest_over(second, first.len(), &at_level),
     );
     strongest.merge(&later);
     let Strongest { response: best, scale } = strongest;
@@ -198,18 +198,14 @@ impl Strongest {
     }
 }
 
-/// The strongest normalised response at each pixel of a `h` x `w` frame over `scales` (the
-/// first of them the `first`-th of the search), in order, a strictly stronger one replacing
-/// the one kept: each scale's response is filtered a band of rows at a time
+/// The strongest normalised response at each pixel of the frame (`at_level(0)`) over `scales`
+/// (the first of them the `first`-th of the search), in order, a strictly stronger one
+/// replacing the one kept: each scale's response is filtered a band of rows at a time
 /// ([`laplace_by_bands`]) on the image binned for it (`at_level`) and folded in at once
 /// ([`keep_strongest`]).
-fn strongest_over<'a>(
-    scales: &[SearchScale],
-    first: usize,
-    at_level: &dyn Fn(u32) -> &'a Image,
-    (h, w): (usize, usize),
-) -> Strongest {
+fn strongest_over<'a>(scales: &[SearchScale], first: usize, at_level: &dyn Fn(u32) -> &'a Image) -> Strongest {
     assert!(first + scales.len() < usize::from(u8::MAX), "a scale index fits a byte");
+    let (h, w) = at_level(0).dim();
     let mut strongest = Strongest {
         response: Image::from_elem((h, w), f32::NEG_INFINITY),
         scale: vec![0; h * w],
@@ -688,8 +684,8 @@ mod tests {
         }
         for cut in 0..=scales.len() {
             let (first, second) = scales.split_at(cut);
-            let mut got = strongest_over(first, 0, &at_level, (h, w));
-            got.merge(&strongest_over(second, cut, &at_level, (h, w)));
+            let mut got = strongest_over(first, 0, &at_level);
+            got.merge(&strongest_over(second, cut, &at_level));
             let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
             assert_eq!(
                 bits(got.response.as_slice().unwrap()),
