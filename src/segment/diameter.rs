@@ -550,13 +550,13 @@ fn local_maxima(response: &Image, sigma_at: impl Fn(usize) -> f32) -> Vec<(usize
 fn beaten_by_a_neighbour(values: &[f32], (w, h): (usize, usize), (y, x): (usize, usize)) -> bool {
     let v = values[y * w + x];
     let (x0, x1) = (x.saturating_sub(1), (x + 1).min(w - 1));
-    let beats_at = |yy: usize, earlier_row: bool| {
+    let beats_at = |yy: usize| {
         let row = &values[yy * w + x0..=yy * w + x1];
         row.iter()
             .enumerate()
-            .any(|(i, &u)| u > v || (u == v && (earlier_row || x0 + i < x)))
+            .any(|(i, &u)| u > v || (u == v && (yy, x0 + i) < (y, x)))
     };
-    (y > 0 && beats_at(y - 1, true)) || beats_at(y, false) || (y + 1 < h && beats_at(y + 1, false))
+    (y > 0 && beats_at(y - 1)) || beats_at(y) || (y + 1 < h && beats_at(y + 1))
 }
 
 /// Whether a pixel within `r` (a square window, clipped at the borders) of `(y, x)` beats it:
@@ -581,6 +581,17 @@ fn beaten_within(response: &Image, (y, x): (usize, usize), r: usize) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Values with many ties, some NaN and some not positive, for the local maxima's tests.
+    fn tied_values(n: usize, seed: u64) -> Vec<f32> {
+        let mut rng = crate::numeric::Rng::new(seed);
+        (0..n)
+            .map(|_| match (rng.uniform() * 20.0) as u32 {
+                0 => f32::NAN,
+                k => (k % 6) as f32 - 1.0,
+            })
+            .collect()
+    }
 
     #[test]
     fn the_strongest_scale_is_kept_alike_on_every_instruction_level() {
@@ -729,16 +740,23 @@ mod tests {
         // Source: the rule of `beaten_within` (a larger value, or an equal one earlier in
         // raster order, within the clipped 3 x 3 window), on images full of ties, NaN and
         // edges, where the fast check and the general one must agree on every pixel.
-        for (h, w) in [(1, 1), (1, 5), (6, 1), (9, 11)] {
-            let image = Image::from_shape_fn((h, w), |(y, x)| match (y * 7 + x * 3) % 5 {
+        // The random images (few levels) have equal values one row down and one column left,
+        // among others: such a tie is later in raster order and must not beat the pixel.
+        let patterned = [(1, 1), (1, 5), (6, 1), (9, 11)].map(|(h, w)| {
+            Image::from_shape_fn((h, w), |(y, x)| match (y * 7 + x * 3) % 5 {
                 0 => f32::NAN,
                 k => (k % 3) as f32,
-            });
+            })
+        });
+        let random = [(9usize, 11usize), (20, 20)]
+            .map(|(h, w)| Image::from_shape_vec((h, w), tied_values(h * w, (h * w) as u64)).expect("sized"));
+        for image in patterned.iter().chain(&random) {
+            let (h, w) = image.dim();
             let values = image.as_slice().unwrap();
             for y in 0..h {
                 for x in 0..w {
                     let fast = beaten_by_a_neighbour(values, (w, h), (y, x));
-                    assert_eq!(fast, beaten_within(&image, (y, x), 1), "{h} x {w} at {y}, {x}");
+                    assert_eq!(fast, beaten_within(image, (y, x), 1), "{h} x {w} at {y}, {x}");
                 }
             }
         }
