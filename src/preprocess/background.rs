@@ -33,10 +33,23 @@ pub fn tophat(image: &Image, window: usize, smooth_sigma: f32) -> Image {
 /// [`tophat`] overwriting its input. On the reduced grid the background is interpolated and
 /// subtracted in the same pass, without a full-size background image.
 pub fn tophat_in_place(image: &mut Image, window: usize, smooth_sigma: f32) {
+    let (h, w) = image.dim();
+    let minima = TophatMinima::new((w, h), window).map(|mut m| {
+        m.take_rows(image.as_slice().expect("standard layout"));
+        m
+    });
+    tophat_in_place_from(image, window, smooth_sigma, minima);
+}
+
+/// [`tophat_in_place`] with the block minima of the reduced grid already taken from `image`'s
+/// rows (by [`TophatMinima::take_rows`], e.g. as a filter made them, so that the frame is not
+/// read once more for them); `minima` is `None` exactly where [`TophatMinima::new`] is.
+pub fn tophat_in_place_from(image: &mut Image, window: usize, smooth_sigma: f32, minima: Option<TophatMinima>) {
     let subtract = |v: &mut f32, background: f32| *v = (*v - background).max(0.0);
     let dim = image.dim();
-    match reduced_background(image, window, smooth_sigma) {
-        Some((small, factor)) => {
+    match minima {
+        Some(minima) => {
+            let (small, factor) = reduced_background(minima, window, smooth_sigma);
             let values = image.as_slice_mut().expect("standard layout");
             upsample_bilinear_with(&small, factor, dim, values, subtract);
         }
@@ -51,8 +64,11 @@ pub fn tophat_in_place(image: &mut Image, window: usize, smooth_sigma: f32) {
 
 /// The smoothed opening that [`tophat`] subtracts.
 pub fn background_estimate(image: &Image, window: usize, smooth_sigma: f32) -> Image {
-    match reduced_background(image, window, smooth_sigma) {
-        Some((small, factor)) => {
+    let (h, w) = image.dim();
+    match TophatMinima::new((w, h), window) {
+        Some(mut minima) => {
+            minima.take_rows(image.as_slice().expect("standard layout"));
+            let (small, factor) = reduced_background(minima, window, smooth_sigma);
             let mut out = Image::zeros(image.dim());
             let values = out.as_slice_mut().expect("standard layout");
             upsample_bilinear_with(&small, factor, image.dim(), values, |v, b| *v = b);
@@ -62,37 +78,85 @@ pub fn background_estimate(image: &Image, window: usize, smooth_sigma: f32) -> I
     }
 }
 
-/// For windows of 16 px and more: the background on the grid reduced by block minima of
-/// `window / 8` px, with that factor; `None` for smaller windows (estimated at full size).
-fn reduced_background(image: &Image, window: usize, smooth_sigma: f32) -> Option<(Image, usize)> {
-    let factor = (window / 8).max(1);
-    if factor == 1 {
-        return None;
-    }
-    let small = block_min(image, factor);
+/// The background on the grid reduced by block minima (`minima`, of the factor
+/// [`TophatMinima::new`] chose for `window`), with that factor.
+fn reduced_background(minima: TophatMinima, window: usize, smooth_sigma: f32) -> (Image, usize) {
+    let factor = minima.f;
+    let small = minima.finish();
     let small_window = (window / factor) | 1;
     let background = gaussian_blur(&grey_opening_square(&small, small_window), smooth_sigma / factor as f32);
-    Some((background, factor))
+    (background, factor)
 }
 
-/// Minimum over non-overlapping `f` x `f` blocks (edge blocks over what exists).
-fn block_min(image: &Image, f: usize) -> Image {
-    let (h, w) = image.dim();
-    let (sh, sw) = (h.div_ceil(f), w.div_ceil(f));
-    let mut out = vec![f32::INFINITY; sh * sw];
-    let src = image.as_slice().expect("standard layout");
-    // Down each band of f rows first (whole rows at a time, vectorised), then across.
-    let mut band = vec![f32::INFINITY; w];
-    for (rows, target) in src.chunks(f * w).zip(out.chunks_exact_mut(sw)) {
-        band.fill(f32::INFINITY);
-        for row in rows.chunks_exact(w) {
-            fold_extreme(&mut band, row, Extreme::Min);
-        }
-        for (o, block) in target.iter_mut().zip(band.chunks(f)) {
-            *o = block.iter().fold(*o, |m, &v| m.min(v));
+/// The minima over non-overlapping `f` x `f` blocks of an image (edge blocks over what
+/// exists), taken from its rows as they come, top to bottom ([`TophatMinima::take_rows`]):
+/// the start of [`tophat`]'s reduced background, for windows of 16 px and more, where `f` is
+/// `window / 8`.
+pub struct TophatMinima {
+    w: usize,
+    h: usize,
+    f: usize,
+    /// The column minima of the block row being taken.
+    band: Vec<f32>,
+    /// Rows of it taken so far.
+    band_rows: usize,
+    /// Each column's minimum with the `f − 1` columns after it, across the block row.
+    across: Vec<f32>,
+    /// The block minima, a block row at a time.
+    out: Vec<f32>,
+}
+
+impl TophatMinima {
+    /// For a `w` x `h` image and the top-hat's `window`; `None` for windows under 16 px,
+    /// whose background is estimated at full size.
+    pub fn new((w, h): (usize, usize), window: usize) -> Option<TophatMinima> {
+        let f = (window / 8).max(1);
+        (f > 1).then(|| TophatMinima {
+            w,
+            h,
+            f,
+            band: vec![f32::INFINITY; w],
+            band_rows: 0,
+            across: Vec::with_capacity(w),
+            out: Vec::with_capacity(h.div_ceil(f) * w.div_ceil(f)),
+        })
+    }
+
+    /// Takes the image's next whole rows (in order; any number at a time). Down each block
+    /// row first (whole rows at a time, vectorised), then across when its last row is in.
+    pub fn take_rows(&mut self, rows: &[f32]) {
+        for row in rows.chunks_exact(self.w.max(1)) {
+            fold_extreme(&mut self.band, row, Extreme::Min);
+            self.band_rows += 1;
+            let taken = self.out.len() / self.w.div_ceil(self.f) * self.f + self.band_rows;
+            if self.band_rows == self.f || taken == self.h {
+                self.close_band();
+            }
         }
     }
-    Image::from_shape_vec((sh, sw), out).expect("sized buffer")
+
+    /// Across the block row: the minimum of `f` values from each column (`INF.min(b₀).min(b₁)…`
+    /// in order, clipped at the right edge), taken for every column by `f` whole-row folds of
+    /// the row shifted by 0 to `f − 1` (vectorised), then read at each block's first column:
+    /// the same values, compared in the same order, as folding each block on its own.
+    fn close_band(&mut self) {
+        let w = self.w;
+        self.across.clear();
+        self.across.resize(w, f32::INFINITY);
+        for k in 0..self.f.min(w) {
+            fold_extreme(&mut self.across[..w - k], &self.band[k..], Extreme::Min);
+        }
+        self.out.extend(self.across.iter().step_by(self.f));
+        self.band.fill(f32::INFINITY);
+        self.band_rows = 0;
+    }
+
+    /// The block minima, once every row is taken.
+    fn finish(self) -> Image {
+        let (sh, sw) = (self.h.div_ceil(self.f), self.w.div_ceil(self.f));
+        debug_assert_eq!(self.out.len(), sh * sw, "every row taken");
+        Image::from_shape_vec((sh, sw), self.out).expect("every row taken")
+    }
 }
 
 /// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points;
@@ -125,6 +189,10 @@ fn upsample_bilinear_with(
     let mut cached: [(usize, Vec<f32>); 2] = [(usize::MAX, Vec::new()), (usize::MAX, Vec::new())];
     for (y, row) in out.chunks_exact_mut(w).take(h).enumerate() {
         let (y0, y1, fy) = coordinate(y, sh);
+        // Moving down a small row, the bottom row becomes the top one: swapped, not copied.
+        if cached[0].0 != y0 && cached[1].0 == y0 {
+            cached.swap(0, 1);
+        }
         for (slot, r) in [(0, y0), (1, y1)] {
             if cached[slot].0 != r {
                 cached[slot] = match cached.iter().position(|c| c.0 == r) {
@@ -388,5 +456,47 @@ mod tests {
         assert!((out[[10, 20]] - 10.0).abs() < 1e-4);
         assert!(out[[10, 10]].abs() < 1e-4);
         assert!(out[[3, 30]].abs() < 1e-4);
+    }
+
+    #[test]
+    fn block_minima_taken_row_by_row_are_each_blocks_minimum() {
+        // Source: the definition, the minimum of each f x f block (edge blocks over what
+        // exists) by direct search; rows handed over one at a time, all at once, and in pieces
+        // of several rows; sizes that are and are not multiples of the block, ties included.
+        let mut rng = crate::numeric::Rng::new(5);
+        for (w, h, window) in [
+            (37usize, 29usize, 16usize),
+            (64, 64, 24),
+            (5, 40, 40),
+            (100, 3, 16),
+            (17, 17, 130),
+        ] {
+            let values: Vec<f32> = (0..w * h).map(|_| (rng.uniform() * 20.0).floor() as f32).collect();
+            let minima = TophatMinima::new((w, h), window).expect("windows of 16 px and more are reduced");
+            let f = minima.f;
+            let (sh, sw) = (h.div_ceil(f), w.div_ceil(f));
+            let mut want = vec![f32::INFINITY; sh * sw];
+            for y in 0..h {
+                for x in 0..w {
+                    let o = &mut want[(y / f) * sw + x / f];
+                    *o = o.min(values[y * w + x]);
+                }
+            }
+            for piece_rows in [1usize, 2, 7, h] {
+                let mut m = TophatMinima::new((w, h), window).expect("reduced");
+                values.chunks(piece_rows * w).for_each(|rows| m.take_rows(rows));
+                let got = m.finish();
+                assert_eq!(got.dim(), (sh, sw));
+                assert_eq!(
+                    got.as_slice().expect("standard layout"),
+                    &want[..],
+                    "{w}x{h}, f {f}, {piece_rows} rows"
+                );
+            }
+        }
+        assert!(
+            TophatMinima::new((64, 64), 15).is_none(),
+            "windows under 16 px are not reduced"
+        );
     }
 }

@@ -55,11 +55,21 @@ pub fn truncated_derivative_kernel(sigma: f32, order: u8, truncate: f64) -> Vec<
 /// Separable convolution with a sampled Gaussian; boundary by half-sample reflection.
 /// (C. F. Gauss's kernel; implementation follows the scipy.ndimage conventions.)
 pub fn gaussian_blur(image: &Image, sigma: f32) -> Image {
-    if sigma <= 0.0 {
-        return image.clone();
-    }
-    let k = gaussian_kernel(sigma);
-    convolve_separable(image, &k, &k)
+    gaussian_blur_watched(image, sigma, &mut |_| {})
+}
+
+/// [`gaussian_blur`], handing the result's rows to `watch` as they are made (whole rows, top
+/// to bottom, in one or more calls), so that a caller needing one more look at every value
+/// (the top-hat's block minima) has it while the rows are still in cache.
+pub fn gaussian_blur_watched(image: &Image, sigma: f32, watch: &mut dyn FnMut(&[f32])) -> Image {
+    let out = if sigma <= 0.0 {
+        image.as_standard_layout().into_owned()
+    } else {
+        let k = gaussian_kernel(sigma);
+        return convolve_watched(image, &k, &k, watch);
+    };
+    watch(out.as_slice().expect("standard layout"));
+    out
 }
 
 /// The Laplacian of Gaussian, `∂²/∂x² + ∂²/∂y²` of `G_σ * I`, as `scipy.ndimage.gaussian_laplace`.
@@ -366,19 +376,34 @@ impl LaplaceKernels {
 /// one thread, `cargo bench --bench stages`). The same sums in the same order, so the same
 /// bits.
 pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> Image {
-    use rayon::prelude::*;
+    convolve_watched(image, kernel_x, kernel_y, &mut |_| {})
+}
+
+/// [`convolve_separable`], handing the output's rows to `watch` as
+/// [`gaussian_blur_watched`] does: a band at a time where the filter is kept on its thread,
+/// the whole image at the end otherwise.
+fn convolve_watched(image: &Image, kernel_x: &[f32], kernel_y: &[f32], watch: &mut dyn FnMut(&[f32])) -> Image {
     let (h, w) = image.dim();
-    if w == 0 || h == 0 {
-        return image.clone();
-    }
-    let standard = image.as_standard_layout();
-    let src = standard.as_slice().expect("standard layout");
-    if w <= STRIP && h * w <= SMALL_IMAGE {
-        return convolve_small(src, (w, h), kernel_x, kernel_y);
-    }
-    if kept_on_this_thread() {
-        return convolve_in_bands(src, (w, h), kernel_x, kernel_y);
-    }
+    let out = if w == 0 || h == 0 {
+        image.as_standard_layout().into_owned()
+    } else {
+        let standard = image.as_standard_layout();
+        let src = standard.as_slice().expect("standard layout");
+        if w <= STRIP && h * w <= SMALL_IMAGE {
+            convolve_small(src, (w, h), kernel_x, kernel_y)
+        } else if kept_on_this_thread() {
+            return convolve_in_bands(src, (w, h), kernel_x, kernel_y, watch);
+        } else {
+            convolve_in_parallel(src, (w, h), kernel_x, kernel_y)
+        }
+    };
+    watch(out.as_slice().expect("standard layout"));
+    out
+}
+
+/// [`convolve_separable`]'s bands of rows filtered in parallel.
+fn convolve_in_parallel(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kernel_y: &[f32]) -> Image {
+    use rayon::prelude::*;
     let (rx, ry) = (kernel_x.len() / 2, kernel_y.len() / 2);
     // Row ry + y holds source row y filtered across, the rows above and below the reflected
     // rows the column kernel reads ([`gaussian_laplace`] has the same layout).
@@ -417,7 +442,13 @@ pub fn convolve_separable(image: &Image, kernel_x: &[f32], kernel_y: &[f32]) -> 
 /// so the row pass's output is read back from the second-level cache instead of from a
 /// frame-sized image in memory, and the output is zeroed a band at a time, in cache, rather
 /// than all at once. The same sums in the same order, so the same bits.
-fn convolve_in_bands(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kernel_y: &[f32]) -> Image {
+fn convolve_in_bands(
+    src: &[f32],
+    (w, h): (usize, usize),
+    kernel_x: &[f32],
+    kernel_y: &[f32],
+    watch: &mut dyn FnMut(&[f32]),
+) -> Image {
     let (rx, ry) = (kernel_x.len() / 2, kernel_y.len() / 2);
     let stride = row_stride(w);
     let held = BAND_ROWS + 2 * ry;
@@ -438,6 +469,7 @@ fn convolve_in_bands(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], kern
         by_strips(&mut out[band.top * w..], w, 0, |o, y, x0| {
             filter_steps(o, &across[y * stride + x0..], stride, kernel_y);
         });
+        watch(&out[band.top * w..]);
         across.copy_within(band.carried(stride), 0);
     }
     scratch::give_back(spare);

@@ -7,10 +7,11 @@ mod noise;
 
 pub use background::{
     background_estimate, grey_opening_square, max_filter_square, min_filter_square, tophat, tophat_in_place,
+    tophat_in_place_from, TophatMinima,
 };
 pub use gaussian::{
-    convolve_separable, filters_on_this_thread, gaussian_blur, gaussian_derivative_kernel, gaussian_kernel,
-    gaussian_laplace, gaussian_radius, laplace_by_bands, LaplaceKernels,
+    convolve_separable, filters_on_this_thread, gaussian_blur, gaussian_blur_watched, gaussian_derivative_kernel,
+    gaussian_kernel, gaussian_laplace, gaussian_radius, laplace_by_bands, LaplaceKernels,
 };
 pub use noise::{immerkaer_sigma, robust_noise_sigma, MEDIAN_ABS_OF_STANDARD_NORMAL};
 
@@ -19,17 +20,26 @@ use crate::params::{BackgroundMethod, SegmentParams};
 
 /// Smooths, then removes the background as the parameters ask. The result is the image that
 /// thresholds see; it is non-negative after background subtraction.
+///
+/// The top-hat's block minima are taken from the smoothed rows as the filter makes them
+/// ([`gaussian_blur_watched`]), rather than by reading the smoothed frame once more.
 pub fn prepare(raw: &Image, params: &SegmentParams) -> Image {
-    let mut smoothed = gaussian_blur(raw, params.smoothing_sigma_px as f32);
+    let sigma = params.smoothing_sigma_px as f32;
     match params.background {
-        BackgroundMethod::None => {}
-        BackgroundMethod::Tophat => tophat_in_place(
-            &mut smoothed,
-            background_window(params.diameter_px),
-            (params.diameter_px / 2.0) as f32,
-        ),
+        BackgroundMethod::None => gaussian_blur(raw, sigma),
+        BackgroundMethod::Tophat => {
+            let (h, w) = raw.dim();
+            let window = background_window(params.diameter_px);
+            let mut minima = TophatMinima::new((w, h), window);
+            let mut smoothed = gaussian_blur_watched(raw, sigma, &mut |rows| {
+                if let Some(m) = minima.as_mut() {
+                    m.take_rows(rows);
+                }
+            });
+            tophat_in_place_from(&mut smoothed, window, (params.diameter_px / 2.0) as f32, minima);
+            smoothed
+        }
     }
-    smoothed
 }
 
 /// Side of the square structuring element for background estimation: an odd number of pixels
@@ -38,4 +48,43 @@ pub fn prepare(raw: &Image, params: &SegmentParams) -> Image {
 pub fn background_window(diameter_px: f64) -> usize {
     let side = (2.0 * diameter_px).ceil() as usize;
     side | 1
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_prepared_frame_is_the_top_hat_of_the_smoothed_frame() {
+        // Source: gaussian_blur and tophat, each checked against scipy.ndimage elsewhere:
+        // prepare takes the top-hat's block minima from the filter's rows as it makes them,
+        // which must give the same bits as the two steps one after the other, on the filter's
+        // banded path (kept on this thread) and its parallel one, for a reduced window (16 px
+        // and more) and a full-size one.
+        let mut rng = crate::numeric::Rng::new(9);
+        let (w, h) = (300usize, 170usize);
+        let raw = Image::from_shape_vec(
+            (h, w),
+            (0..w * h)
+                .map(|i| (i % 97) as f32 + (rng.uniform() * 50.0) as f32)
+                .collect(),
+        )
+        .expect("sized");
+        for diameter_px in [14.0, 6.0] {
+            let params = SegmentParams::for_diameter(diameter_px);
+            assert_eq!(params.background, BackgroundMethod::Tophat);
+            let window = background_window(diameter_px);
+            let want = tophat(
+                &gaussian_blur(&raw, params.smoothing_sigma_px as f32),
+                window,
+                (diameter_px / 2.0) as f32,
+            );
+            assert_eq!(prepare(&raw, &params), want, "diameter {diameter_px}, in parallel");
+            assert_eq!(
+                filters_on_this_thread(|| prepare(&raw, &params)),
+                want,
+                "diameter {diameter_px}, on this thread"
+            );
+        }
+    }
 }
