@@ -26,7 +26,7 @@ use crate::render::movie::{
 use crate::render::review::{ReviewOptions, ReviewOutputs, ReviewWriter};
 use crate::review::{offer_all_frames, read_linked_points, review_input, RunView};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
-use crate::segment::diameter::{central_crop, combine, examine_frame, sample_frames, Confidence, ESTIMATE_CROP_PX};
+use crate::segment::diameter::{central_window, combine, examine_frame, sample_frames, Confidence, ESTIMATE_CROP_PX};
 use crate::segment::masks::open_masks;
 use crate::segment::FrameSegmentation;
 use crate::stack::write::{write_stack, TiffCompression};
@@ -58,8 +58,9 @@ pub fn resolve_diameter(
     // are examined in parallel.
     let mut frames = Vec::new();
     let crops = sample_frames(stack.info().frames).into_iter().map(|t| {
-        let crop = central_crop(&stack.read_frame(t)?.to_image(), ESTIMATE_CROP_PX).into_owned();
-        Ok((t, crop))
+        let frame = stack.read_frame(t)?;
+        let (y0, x0, rows, columns) = central_window((frame.height, frame.width), ESTIMATE_CROP_PX);
+        Ok((t, frame.window_image((y0, x0), (rows, columns))))
     });
     let examine = |(t, crop): (usize, Image)| examine_frame(&crop, t, params_for);
     in_frame_order(None, crops, &examine, &mut |frame| {

@@ -499,9 +499,14 @@ pub fn central_crop(image: &Image, max_side: usize) -> std::borrow::Cow<'_, Imag
     if h <= max_side && w <= max_side {
         return std::borrow::Cow::Borrowed(image);
     }
-    let (ch, cw) = (h.min(max_side), w.min(max_side));
-    let (y0, x0) = ((h - ch) / 2, (w - cw) / 2);
+    let (y0, x0, ch, cw) = central_window((h, w), max_side);
     std::borrow::Cow::Owned(image.slice(ndarray::s![y0..y0 + ch, x0..x0 + cw]).to_owned())
+}
+
+/// Where [`central_crop`] cuts an `h` x `w` image: first row and column, rows and columns.
+pub fn central_window((h, w): (usize, usize), max_side: usize) -> (usize, usize, usize, usize) {
+    let (ch, cw) = (h.min(max_side), w.min(max_side));
+    ((h - ch) / 2, (w - cw) / 2, ch, cw)
 }
 
 /// Mean over `factor` x `factor` blocks (edge blocks averaged over what exists):
@@ -524,16 +529,29 @@ fn local_maxima(response: &Image, sigma_at: impl Fn(usize) -> f32) -> Vec<(usize
     let (h, w) = response.dim();
     let values = response.as_slice().expect("standard layout");
     let mut peaks = Vec::new();
+    let mut inside = vec![false; w.saturating_sub(2)];
     for y in 0..h {
+        let interior = y > 0 && y + 1 < h && w >= 3;
+        if interior {
+            let row = |yy: usize| &values[yy * w..(yy + 1) * w];
+            above_their_neighbours(row(y - 1), row(y), row(y + 1), &mut inside);
+        }
         for x in 0..w {
-            let v = values[y * w + x];
-            if v.is_nan() || v <= 0.0 {
-                continue;
-            }
-            // The 3 x 3 neighbourhood first: it lies inside every window and rules out most
-            // pixels in a few comparisons.
-            if beaten_by_a_neighbour(values, (w, h), (y, x)) {
-                continue;
+            if interior && x > 0 && x + 1 < w {
+                // Positive and above its eight neighbours: worked out for the row at once.
+                if !inside[x - 1] {
+                    continue;
+                }
+            } else {
+                let v = values[y * w + x];
+                if v.is_nan() || v <= 0.0 {
+                    continue;
+                }
+                // The 3 x 3 neighbourhood first: it lies inside every window and rules out
+                // most pixels in a few comparisons.
+                if beaten_by_a_neighbour(values, (w, h), (y, x)) {
+                    continue;
+                }
             }
             let r = (sigma_at(y * w + x).round() as usize).max(3);
             if beaten_within(response, (y, x), r) {
@@ -543,6 +561,25 @@ fn local_maxima(response: &Image, sigma_at: impl Fn(usize) -> f32) -> Vec<(usize
         }
     }
     peaks
+}
+
+crate::multiversioned! {
+    /// For each pixel of `row` but the first and last (`out[x − 1]` for pixel `x`), whether it
+    /// is positive and not beaten by any of its eight neighbours in `above`, `row` and `below`
+    /// (as [`beaten_by_a_neighbour`]: a larger value, or an equal one earlier in raster order;
+    /// NaN beats nothing and is not positive), a whole row at a time on the widest
+    /// instruction level. Comparisons only, so the same on every level.
+    fn above_their_neighbours / above_their_neighbours_with(above: &[f32], row: &[f32], below: &[f32], out: &mut [bool]) {
+        let n = out.len();
+        let (a, b) = (&above[..n + 2], &below[..n + 2]);
+        let r = &row[..n + 2];
+        for (i, o) in out.iter_mut().enumerate() {
+            let v = r[i + 1];
+            let earlier = (a[i] >= v) | (a[i + 1] >= v) | (a[i + 2] >= v) | (r[i] >= v);
+            let later = (r[i + 2] > v) | (b[i] > v) | (b[i + 1] > v) | (b[i + 2] > v);
+            *o = (v > 0.0) & !(earlier | later);
+        }
+    }
 }
 
 /// [`beaten_within`] at radius 1, on the raw values of a `w` x `h` image: the rows above and
@@ -591,6 +628,61 @@ mod tests {
                 k => (k % 6) as f32 - 1.0,
             })
             .collect()
+    }
+
+    #[test]
+    fn pixels_above_their_neighbours_are_found_alike_on_every_level() {
+        // Source: definition (positive, and no neighbour larger or equal and earlier in raster
+        // order; NaN beats nothing), pixel by pixel through beaten_by_a_neighbour, on rows
+        // that do and do not fill whole vectors, on every instruction level.
+        for w in [3usize, 4, 17, 64, 131] {
+            let values = tied_values(3 * w, w as u64);
+            let want: Vec<bool> = (1..w - 1)
+                .map(|x| {
+                    let v = values[w + x];
+                    v > 0.0 && !beaten_by_a_neighbour(&values, (w, 3), (1, x))
+                })
+                .collect();
+            if w >= 17 {
+                assert!(want.iter().any(|&p| p) && want.iter().any(|&p| !p), "both kinds at {w}");
+            }
+            for level in crate::simd::levels() {
+                let mut got = vec![false; w - 2];
+                above_their_neighbours_with(level, &values[..w], &values[w..2 * w], &values[2 * w..], &mut got);
+                assert_eq!(got, want, "width {w}, {level:?}");
+            }
+        }
+    }
+
+    #[test]
+    fn local_maxima_are_the_pixels_no_pixel_of_their_window_beats() {
+        // Source: definition (positive, and no pixel within the window of radius max(3, σ*)
+        // larger, or equal and earlier in raster order), by direct search over every pixel's
+        // window, on images with ties, NaN and peaks at the edges and corners.
+        for (h, w) in [(1usize, 1usize), (2, 9), (9, 2), (12, 15), (40, 33)] {
+            let values = tied_values(h * w, (h * 100 + w) as u64);
+            let image = Image::from_shape_vec((h, w), values.clone()).expect("sized");
+            let radius = |i: usize| if i.is_multiple_of(3) { 1.0f32 } else { 4.4 };
+            let want: Vec<(usize, usize)> = (0..h)
+                .flat_map(|y| (0..w).map(move |x| (y, x)))
+                .filter(|&(y, x)| {
+                    let v = values[y * w + x];
+                    let r = (radius(y * w + x).round() as usize).max(3) as isize;
+                    v > 0.0
+                        && !(-r..=r).any(|dy| {
+                            (-r..=r).any(|dx| {
+                                let (yy, xx) = (y as isize + dy, x as isize + dx);
+                                let inside = (0..h as isize).contains(&yy) && (0..w as isize).contains(&xx);
+                                inside && {
+                                    let u = values[yy as usize * w + xx as usize];
+                                    u > v || (u == v && (yy, xx) < (y as isize, x as isize))
+                                }
+                            })
+                        })
+                })
+                .collect();
+            assert_eq!(local_maxima(&image, radius), want, "{h} x {w}");
+        }
     }
 
     #[test]

@@ -128,6 +128,27 @@ impl Frame {
     pub fn to_image(&self) -> Image {
         image2d::from_vec(self.width, self.height, self.pixels.to_f32())
     }
+
+    /// The `rows` x `columns` window from row `y0` and column `x0` as an image (what cutting
+    /// it from [`Frame::to_image`] gives), converting only its samples: the diameter estimate
+    /// keeps a quarter of a large frame.
+    ///
+    /// # Panics
+    /// If the window reaches past the frame (a caller's mistake).
+    pub fn window_image(&self, (y0, x0): (usize, usize), (rows, columns): (usize, usize)) -> Image {
+        assert!(
+            y0 + rows <= self.height && x0 + columns <= self.width,
+            "window inside the frame"
+        );
+        let lines = (y0..y0 + rows).map(|y| y * self.width + x0..y * self.width + x0 + columns);
+        let values: Vec<f32> = match &self.pixels {
+            Pixels::U8(v) => lines.flat_map(|r| v[r].iter().map(|&p| p as f32)).collect(),
+            Pixels::U16(v) => lines.flat_map(|r| v[r].iter().map(|&p| p as f32)).collect(),
+            Pixels::U32(v) => lines.flat_map(|r| v[r].iter().map(|&p| p as f32)).collect(),
+            Pixels::F32(v) => lines.flat_map(|r| v[r].iter().copied()).collect(),
+        };
+        image2d::from_vec(columns, rows, values)
+    }
 }
 
 /// How a Z dimension is handled.
@@ -286,6 +307,36 @@ fn update_little_endian<T: Copy, const N: usize>(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_window_is_the_same_pixels_as_cut_from_the_whole_frame() {
+        // Source: ndarray's slicing of the whole frame's image (Frame::to_image), for every
+        // sample type, windows at the corners, in the middle and the whole frame.
+        let (w, h) = (7usize, 5usize);
+        let n = w * h;
+        for pixels in [
+            Pixels::U8((0..n).map(|i| (i * 7 % 256) as u8).collect()),
+            Pixels::U16((0..n).map(|i| (i * 977 % 65_536) as u16).collect()),
+            Pixels::U32((0..n).map(|i| (i * 1_000_003) as u32).collect()),
+            Pixels::F32((0..n).map(|i| i as f32 * -0.37).collect()),
+        ] {
+            let frame = Frame {
+                index: 0,
+                width: w,
+                height: h,
+                pixels,
+            };
+            let whole = frame.to_image();
+            for (y0, x0, rows, columns) in [(0, 0, 2, 3), (3, 4, 2, 3), (1, 2, 3, 1), (0, 0, h, w), (2, 0, 0, 4)] {
+                let want = whole.slice(ndarray::s![y0..y0 + rows, x0..x0 + columns]).to_owned();
+                assert_eq!(
+                    frame.window_image((y0, x0), (rows, columns)),
+                    want,
+                    "{y0},{x0} {rows}x{columns}"
+                );
+            }
+        }
+    }
 
     #[test]
     fn a_frame_hashes_as_zlib_hashes_its_little_endian_samples() {
