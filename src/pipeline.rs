@@ -363,7 +363,8 @@ pub(crate) fn finish_run(
         let analysis = analysis.and_then(|h| h.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)));
         (passed, analysis)
     });
-    let (movie, review) = passed?;
+    let (movie, review, linked_points) = passed?;
+    let analysis = analysis.map(|a| EarlyAnalysis { linked_points, ..a });
     let run = RunOutcome {
         dir: dir.to_path_buf(),
         diameter: diameter.clone(),
@@ -422,7 +423,8 @@ pub(crate) fn finish_run(
 /// The second pass over the frames, after linking: the QC movie and the review page, each
 /// frame read once for both (from the spool of downscaled frames where the first pass kept
 /// them, otherwise decoded again). The review page is made from `tracks.csv` as written, so that
-/// `caravan review` on the folder gives the same page byte for byte.
+/// `caravan review` on the folder gives the same page byte for byte; the points read for it
+/// are returned for the report.
 fn second_pass(
     stack: &mut Stack,
     spool: Option<&mut OutlineSpool>,
@@ -431,15 +433,14 @@ fn second_pass(
     view: &RunView,
     (tracked, divisions): (&[TrackedDetection], &[DivisionEvent]),
     dir: &Path,
-) -> Result<(Option<MovieOutputs>, Option<ReviewOutputs>)> {
+) -> Result<SecondPass> {
+    let mut points = None;
     let mut review = match (outputs.review, linked) {
         (Some(options), true) => {
-            let points = read_linked_points(&dir.join("tracks.csv"))?;
-            Some(ReviewWriter::new(
-                &dir.join("review"),
-                review_input(&points, view),
-                &options,
-            )?)
+            let read = std::sync::Arc::new(read_linked_points(&dir.join("tracks.csv"))?);
+            let input = review_input(&read, view);
+            points = Some(read);
+            Some(ReviewWriter::new(&dir.join("review"), input, &options)?)
         }
         _ => None,
     };
@@ -447,16 +448,24 @@ fn second_pass(
         (Some(s), Some(options)) => {
             let overlay = overlay(tracked, view.per_frame, divisions);
             let (movie, review) = render_movie(stack, s, &overlay, &options, dir, review)?;
-            Ok((Some(movie), review))
+            Ok((Some(movie), review, points))
         }
         _ => {
             if let Some(r) = review.as_mut() {
                 offer_all_frames(stack, r)?;
             }
-            Ok((None, review.map(ReviewWriter::finish).transpose()?))
+            Ok((None, review.map(ReviewWriter::finish).transpose()?, points))
         }
     }
 }
+
+/// What [`second_pass`] made: the movie, the review page, and the linked points the page was
+/// made from.
+type SecondPass = (
+    Option<MovieOutputs>,
+    Option<ReviewOutputs>,
+    Option<std::sync::Arc<Vec<crate::review::LinkedPoint>>>,
+);
 
 /// The figures the verdict is judged from.
 fn run_figures(

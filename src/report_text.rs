@@ -9,7 +9,7 @@ use crate::params::{BackgroundMethod, ThresholdMethod};
 use crate::record::RunRecord;
 use crate::render::report::{unit_name, FlaggedFrame, NumberKind, ParameterRow, StatisticRow};
 use crate::render::review::MomentKind;
-use crate::review::{read_linked_points, review_input, RunView};
+use crate::review::{read_linked_points, review_input, LinkedPoint, RunView};
 use serde_json::Value;
 use std::path::Path;
 
@@ -418,9 +418,19 @@ pub fn tracking_parameters(record: &RunRecord) -> Vec<ParameterRow> {
 
 /// Up to six frames worth a look (the review page's moments, most telling kind
 /// first), each with the run's objects, when the run folder has its review page's frames.
-pub fn flagged_frames(run_dir: &Path, record: &RunRecord) -> Vec<FlaggedFrame> {
-    let Ok(points) = read_linked_points(&run_dir.join("tracks.csv")) else {
-        return Vec::new();
+/// `linked` is the folder's `tracks.csv` as [`read_linked_points`] reads it, where the caller
+/// has it already (the run that wrote the folder); otherwise the file is read.
+pub fn flagged_frames(run_dir: &Path, record: &RunRecord, linked: Option<&[LinkedPoint]>) -> Vec<FlaggedFrame> {
+    let read;
+    let points = match linked {
+        Some(points) => points,
+        None => match read_linked_points(&run_dir.join("tracks.csv")) {
+            Ok(points) => {
+                read = points;
+                &read
+            }
+            Err(_) => return Vec::new(),
+        },
     };
     let view = RunView {
         info: &record.input.stack,
@@ -429,7 +439,7 @@ pub fn flagged_frames(run_dir: &Path, record: &RunRecord) -> Vec<FlaggedFrame> {
         verdict: record.verdict.as_ref(),
         diameter_px: record.parameters.diameter.px(),
     };
-    let input = review_input(&points, &view);
+    let input = review_input(points, &view);
     let mut chosen: Vec<(usize, String)> = Vec::new();
     for kind in MomentKind::ALL {
         for m in input.moments.iter().filter(|m| m.kind == kind) {

@@ -44,7 +44,7 @@ pub fn run_analysis(
     dir: &Path,
 ) -> Result<AnalysisRun> {
     let table = read_tracks(input, calibration)?;
-    finish_analysis(table, None, filters, options, dir)
+    finish_analysis(table, None, filters, options, dir, None)
 }
 
 /// [`run_analysis`] of the tracking run folder `run_dir` with the default filters and options,
@@ -55,25 +55,31 @@ pub fn run_analysis(
 /// # Errors
 /// As [`run_analysis`].
 pub fn run_early_analysis(early: EarlyAnalysis, run_dir: &Path, dir: &Path) -> Result<AnalysisRun> {
-    let EarlyAnalysis { mut table, analysis } = early;
+    let EarlyAnalysis {
+        mut table,
+        analysis,
+        linked_points,
+    } = early;
     let (filters, options) = (Filters::default(), AnalysisOptions::default());
     table.source = run_dir.join("tracks.csv");
     match read_run_record(&table.source)? {
         (Some(record), None) => {
             table.run_record = Some(record);
-            finish_analysis(table, Some(analysis), &filters, &options, dir)
+            finish_analysis(table, Some(analysis), &filters, &options, dir, linked_points.as_deref().map(Vec::as_slice))
         }
         _ => run_analysis(run_dir, CalibrationOverride::default(), &filters, &options, dir),
     }
 }
 
-/// Writes the tables (analysing `table` unless `analysis` is given) and the page.
+/// Writes the tables (analysing `table` unless `analysis` is given) and the page; `linked` is
+/// the run folder's tracks as the review read them, where the run hands them over.
 fn finish_analysis(
     table: TrackTable,
     analysis: Option<Analysis>,
     filters: &Filters,
     options: &AnalysisOptions,
     dir: &Path,
+    linked: Option<&[crate::review::LinkedPoint]>,
 ) -> Result<AnalysisRun> {
     // The frames worth a look (the review page's moments, from the run folder's tracks.csv)
     // are found while the analysis runs: they need only the run's record.
@@ -89,7 +95,7 @@ fn finish_analysis(
         || {
             run_folder
                 .as_ref()
-                .map(|(record, run_dir)| crate::report_text::flagged_frames(run_dir, record))
+                .map(|(record, run_dir)| crate::report_text::flagged_frames(run_dir, record, linked))
         },
     );
     let run = run?;

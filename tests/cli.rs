@@ -137,6 +137,10 @@ fn the_analysis_of_a_track_run_is_the_one_its_folder_gives() {
     ok(&caravan(&["track", &rec, "-o", run.to_str().unwrap()], "2"));
     let summary = std::fs::read_to_string(run.join("analysis/summary.json")).unwrap();
     assert!(summary.contains("\"length\": \"um\""), "{summary}");
+    // The run hands the report the points its review page read; the frames worth a look made
+    // from them must be there, as reading the folder makes them.
+    let report = std::fs::read_to_string(run.join("analysis/report.html")).unwrap();
+    assert!(report.contains("class=\"flagged\""), "frames worth a look in the report");
     assert_analysis_as_its_folder_gives(&run, &dir.path().join("early"));
 }
 
