@@ -1,7 +1,8 @@
 //! Work on a sequence of frames read in order on one thread and handled in parallel on the
 //! worker pool, with the results taken back in order: the movie pass (frames drawn and
-//! compressed) and the diameter estimate (sampled frames examined) both read a stack, which
-//! only one thread can do, and do more with each frame than reading costs.
+//! compressed) reads a stack, which only one thread can do, and does more with each frame than
+//! reading costs. (The diameter estimate, whose frames' work is itself parallel, cuts it into
+//! pieces of its own instead: `segment::diameter::examine_frames`.)
 
 use crate::error::Result;
 

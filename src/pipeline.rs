@@ -8,13 +8,11 @@ use crate::checkpoint::{CheckpointLog, Fingerprint, FrameRecord};
 use crate::columns::{write_header, write_rows, Column};
 use crate::error::{Error, Result};
 use crate::frames::{progress_bar, with_segmented_frames, Keep};
-use crate::image2d::Image;
 use crate::link::divide::DivisionEvent;
 use crate::link::estimate::MotionSource;
 use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
-use crate::ordered::in_frame_order;
 use crate::output::{crc32_file, write_atomic, AtomicFile, Removal};
 use crate::params::{Length, SegmentParams};
 use crate::qc::{count_jumps, linking_qc, warnings_for, RunWarning};
@@ -26,7 +24,7 @@ use crate::render::movie::{
 use crate::render::review::{ReviewOptions, ReviewOutputs, ReviewWriter};
 use crate::review::{offer_all_frames, read_linked_points, review_input, RunView};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
-use crate::segment::diameter::{central_window, combine, examine_frame, sample_frames, Confidence, ESTIMATE_CROP_PX};
+use crate::segment::diameter::{central_window, combine, examine_frames, sample_frames, Confidence, ESTIMATE_CROP_PX};
 use crate::segment::masks::open_masks;
 use crate::segment::FrameSegmentation;
 use crate::stack::write::{write_stack, TiffCompression};
@@ -56,17 +54,12 @@ pub fn resolve_diameter(
     }
     // Read in order (one reader), keeping only the crop examined, while the crops read before
     // are examined in parallel.
-    let mut frames = Vec::new();
     let crops = sample_frames(stack.info().frames).into_iter().map(|t| {
         let frame = stack.read_frame(t)?;
         let (y0, x0, rows, columns) = central_window((frame.height, frame.width), ESTIMATE_CROP_PX);
         Ok((t, frame.window_image((y0, x0), (rows, columns))))
     });
-    let examine = |(t, crop): (usize, Image)| examine_frame(&crop, t, params_for);
-    in_frame_order(None, crops, &examine, &mut |frame| {
-        frames.push(frame);
-        Ok(())
-    })?;
+    let frames = examine_frames(crops, params_for)?;
     let noise: Vec<String> = frames.iter().map(|f| format!("{:.1}", f.noise_sigma)).collect();
     let sampled: Vec<String> = frames.iter().map(|f| f.frame.to_string()).collect();
     combine(frames).map(DiameterSource::Estimated).ok_or_else(|| {

@@ -65,7 +65,14 @@ pub fn run_early_analysis(early: EarlyAnalysis, run_dir: &Path, dir: &Path) -> R
     match read_run_record(&table.source)? {
         (Some(record), None) => {
             table.run_record = Some(record);
-            finish_analysis(table, Some(analysis), &filters, &options, dir, linked_points.as_deref().map(Vec::as_slice))
+            finish_analysis(
+                table,
+                Some(analysis),
+                &filters,
+                &options,
+                dir,
+                linked_points.as_deref().map(Vec::as_slice),
+            )
         }
         _ => run_analysis(run_dir, CalibrationOverride::default(), &filters, &options, dir),
     }

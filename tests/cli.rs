@@ -140,7 +140,10 @@ fn the_analysis_of_a_track_run_is_the_one_its_folder_gives() {
     // The run hands the report the points its review page read; the frames worth a look made
     // from them must be there, as reading the folder makes them.
     let report = std::fs::read_to_string(run.join("analysis/report.html")).unwrap();
-    assert!(report.contains("class=\"flagged\""), "frames worth a look in the report");
+    assert!(
+        report.contains("class=\"flagged\""),
+        "frames worth a look in the report"
+    );
     assert_analysis_as_its_folder_gives(&run, &dir.path().join("early"));
 }
 
