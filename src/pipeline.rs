@@ -287,12 +287,6 @@ pub(crate) fn finish_run(
     started: Instant,
 ) -> Result<RunOutcome> {
     let info = stack.info().clone();
-    // The input's checksum (a whole read of the file) on a thread of its own, while linking
-    // keeps one core busy and the other would wait.
-    let checksum = {
-        let path = info.path.clone();
-        std::thread::spawn(move || crc32_file(&path).ok().map(|h| format!("{h:08x}")))
-    };
     let calibration = info.calibration;
     let small_object_share = (pass.object_count > 0).then(|| pass.small_objects as f64 / pass.object_count as f64);
     let FirstPass {
@@ -305,9 +299,19 @@ pub(crate) fn finish_run(
     csv.commit()?;
     let first_pass_s = started.elapsed().as_secs_f64();
     let mut tracked = Vec::new();
-    let (tracks, linking_qc, resolution, linking) = match outputs.linking {
-        Some(options) => {
-            let (linking, points, shared_objects_split) = link_detections(detections, &options, diameter.px());
+    // The input's checksum (a whole read of the file) on a thread of its own, started once the
+    // motion estimate (on every core) is done, so that it fills the other core while the
+    // linker works frame by frame on one.
+    let linking = outputs
+        .linking
+        .map(|options| resolve_linking(&detections, &options, diameter.px()));
+    let checksum = {
+        let path = info.path.clone();
+        std::thread::spawn(move || crc32_file(&path).ok().map(|h| format!("{h:08x}")))
+    };
+    let (tracks, linking_qc, resolution, linking) = match linking {
+        Some(linking) => {
+            let (points, shared_objects_split) = link_detections(detections, &linking);
             tracked = points;
             let mut resolution = resolve_tracks(&mut tracked, &linking.params);
             resolution.shared_objects_split += shared_objects_split;
@@ -495,22 +499,29 @@ fn run_figures(
     }
 }
 
-/// Measures the recording's motion from the detections' positions, resolves the linking
-/// parameters from it and the user's options, and links every frame in order. Also returns
-/// how many objects were split because two tracks entered them.
-fn link_detections(
-    detections: Vec<Vec<crate::tracks::Detection>>,
+/// Measures the recording's motion from the detections' positions and resolves the linking
+/// parameters from it and the user's options.
+fn resolve_linking(
+    detections: &[Vec<crate::tracks::Detection>],
     options: &LinkOptions,
     diameter_px: f64,
-) -> (ResolvedLinking, Vec<TrackedDetection>, usize) {
+) -> ResolvedLinking {
     let positions: Vec<Vec<[f64; 2]>> = detections
         .iter()
         .map(|frame| frame.iter().map(|d| [d.x, d.y]).collect())
         .collect();
-    let linking = options.resolve(diameter_px, &positions);
+    options.resolve(diameter_px, &positions)
+}
+
+/// Links every frame in order with `linking`'s parameters; also returns how many objects were
+/// split because two tracks entered them.
+fn link_detections(
+    detections: Vec<Vec<crate::tracks::Detection>>,
+    linking: &ResolvedLinking,
+) -> (Vec<TrackedDetection>, usize) {
     let mut linker = OnlineLinker::new(linking.params);
     let tracked = detections.into_iter().flat_map(|frame| linker.push(frame)).collect();
-    (linking, tracked, linker.shared_objects_split())
+    (tracked, linker.shared_objects_split())
 }
 
 impl RunOptions {
