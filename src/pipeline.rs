@@ -22,6 +22,7 @@ use crate::render::movie::{
     render_movie, MovieOptions, MovieOutputs, OutlineSpool, TrackOverlay, DOWNSCALED_BUDGET_BYTES,
 };
 use crate::render::review::{ReviewOptions, ReviewOutputs, ReviewWriter};
+use crate::reports::RunAnalysis;
 use crate::review::{offer_all_frames, read_linked_points, review_input, RunView};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
 use crate::segment::diameter::{central_window, combine, examine_frames, sample_frames, Confidence, ESTIMATE_CROP_PX};
@@ -98,8 +99,8 @@ pub struct RunOutcome {
     /// Whether the run can be trusted, with the reasons.
     pub verdict: RunVerdict,
     /// The default migration analysis when [`RunOptions::analysis`] asked for it and it
-    /// could be made (nothing of it is written yet).
-    pub analysis: Option<EarlyAnalysis>,
+    /// could be made (nothing of it is written yet), with the points the review page read.
+    pub analysis: Option<RunAnalysis>,
     /// An earlier run's outputs in this folder that this run replaced, being removed in the
     /// background; the last clone dropped waits until they are gone.
     pub replaced_outputs: Option<std::sync::Arc<Removal>>,
@@ -361,7 +362,7 @@ pub(crate) fn finish_run(
         (passed, analysis)
     });
     let (movie, review, linked_points) = passed?;
-    let analysis = analysis.map(|a| EarlyAnalysis { linked_points, ..a });
+    let analysis = analysis.map(|early| RunAnalysis { early, linked_points });
     let run = RunOutcome {
         dir: dir.to_path_buf(),
         diameter: diameter.clone(),

@@ -47,6 +47,17 @@ pub fn run_analysis(
     finish_analysis(table, None, filters, options, dir, None)
 }
 
+/// What a tracking run hands its analysis: the analysis worked out while the movie was drawn,
+/// and the run's `tracks.csv` as its review page read it (when it made one), from which the
+/// report's frames worth a look are made without reading the file again.
+#[derive(Debug, Clone)]
+pub struct RunAnalysis {
+    /// The analysis.
+    pub early: EarlyAnalysis,
+    /// The points the review page was made from.
+    pub linked_points: Option<std::sync::Arc<Vec<crate::review::LinkedPoint>>>,
+}
+
 /// [`run_analysis`] of the tracking run folder `run_dir` with the default filters and options,
 /// from its analysis worked out while the run drew its movie ([`EarlyAnalysis`], whose tracks
 /// were read from the run's folder before it was put in place): the same folder, byte for
@@ -54,12 +65,9 @@ pub fn run_analysis(
 ///
 /// # Errors
 /// As [`run_analysis`].
-pub fn run_early_analysis(early: EarlyAnalysis, run_dir: &Path, dir: &Path) -> Result<AnalysisRun> {
-    let EarlyAnalysis {
-        mut table,
-        analysis,
-        linked_points,
-    } = early;
+pub fn run_early_analysis(early: RunAnalysis, run_dir: &Path, dir: &Path) -> Result<AnalysisRun> {
+    let RunAnalysis { early, linked_points } = early;
+    let EarlyAnalysis { mut table, analysis } = early;
     let (filters, options) = (Filters::default(), AnalysisOptions::default());
     table.source = run_dir.join("tracks.csv");
     match read_run_record(&table.source)? {

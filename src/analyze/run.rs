@@ -75,9 +75,6 @@ pub struct EarlyAnalysis {
     pub table: TrackTable,
     /// The figures, with the default filters and options.
     pub analysis: Analysis,
-    /// The run's `tracks.csv` as the review page read it, when the run made one: the report's
-    /// frames worth a look come from the same points, which need not be read again.
-    pub linked_points: Option<std::sync::Arc<Vec<crate::review::LinkedPoint>>>,
 }
 
 impl EarlyAnalysis {
@@ -89,11 +86,7 @@ impl EarlyAnalysis {
     pub fn of_run(tracks_csv: &Path, calibration: &crate::stack::Calibration) -> Option<EarlyAnalysis> {
         let table = super::table::read_run_tracks(tracks_csv, calibration).ok()?;
         let analysis = analyze_table(&table, &Filters::default(), &AnalysisOptions::default()).ok()?;
-        Some(EarlyAnalysis {
-            table,
-            analysis,
-            linked_points: None,
-        })
+        Some(EarlyAnalysis { table, analysis })
     }
 }
 

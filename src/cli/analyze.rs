@@ -207,7 +207,7 @@ pub fn run(args: AnalyzeArgs) -> Result<()> {
 /// the run worked out while drawing its movie, if any (the same folder results).
 pub fn analyze_run_folder(
     dir: &std::path::Path,
-    early: Option<caravan::analyze::run::EarlyAnalysis>,
+    early: Option<caravan::reports::RunAnalysis>,
 ) -> Option<caravan::analyze::run::AnalysisRun> {
     let out = default_output_dir(dir);
     let done = match early {
