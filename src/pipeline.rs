@@ -13,7 +13,7 @@ use crate::link::estimate::MotionSource;
 use crate::link::online::OnlineLinker;
 use crate::link::{nearest_neighbour_distances, resolve_tracks, TrackResolution};
 use crate::link::{LinkOptions, MaxStepSource, ResolvedLinking};
-use crate::output::{crc32_file, write_atomic, AtomicFile, Removal};
+use crate::output::{crc32_file, write_atomic, AtomicFile, Commits, Removal};
 use crate::params::{Length, SegmentParams};
 use crate::qc::{count_jumps, linking_qc, warnings_for, RunWarning};
 pub use crate::record::{DiameterSource, FrameSummary, LinkingQc};
@@ -297,7 +297,9 @@ pub(crate) fn finish_run(
         mut neighbour_distances,
         ..
     } = pass;
-    csv.commit()?;
+    // detections.csv is waited for on the disk while linking goes on (before run.json).
+    let mut commits = Commits::default();
+    commits.start(csv);
     let first_pass_s = started.elapsed().as_secs_f64();
     let mut tracked = Vec::new();
     // The input's checksum (a whole read of the file) on a thread of its own, started once the
@@ -377,6 +379,7 @@ pub(crate) fn finish_run(
         analysis,
         replaced_outputs: None,
     };
+    commits.wait()?;
     let checksum = checksum.join().expect("the checksum thread only reads a file");
     let record = RunRecord {
         caravan_version: crate::VERSION.to_string(),

@@ -15,7 +15,7 @@ use super::review::{ReviewOutputs, ReviewWriter};
 use super::{box_average, is_edge, DisplayRange, PALETTE};
 use crate::error::{Error, Result};
 use crate::ordered::in_frame_order;
-use crate::output::AtomicFile;
+use crate::output::{AtomicFile, Commits};
 use crate::stack::Stack;
 use image::{Rgb, RgbImage};
 use imageproc::drawing::draw_line_segment_mut;
@@ -425,11 +425,15 @@ pub fn render_movie(
         };
         in_frame_order(first, (1..info.frames).map(|t| read(t, &whole)), &finish, &mut write)?;
     }
-    file.commit()?;
+    // The movie's commit waits on the disk on a thread of its own while the contact sheet
+    // and the review page are finished.
+    let mut commits = Commits::default();
+    commits.start(file);
     let (sheet, review) = rayon::join(
         || sheet.write(&out.sheet),
         || review.map(ReviewWriter::finish).transpose(),
     );
+    commits.wait()?;
     sheet?;
     Ok((out, review?))
 }
