@@ -23,7 +23,7 @@ use crate::render::movie::{
 };
 use crate::render::review::{ReviewOptions, ReviewOutputs, ReviewWriter};
 use crate::reports::RunAnalysis;
-use crate::review::{offer_all_frames, read_linked_points, review_input, RunView};
+use crate::review::{offer_all_frames, read_linked_points, review_input, ReviewedTracks, RunView};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
 use crate::segment::diameter::{central_window, combine, examine_frames, sample_frames, Confidence, ESTIMATE_CROP_PX};
 use crate::segment::masks::open_masks;
@@ -363,8 +363,8 @@ pub(crate) fn finish_run(
         let analysis = analysis.and_then(|h| h.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)));
         (passed, analysis)
     });
-    let (movie, review, linked_points) = passed?;
-    let analysis = analysis.map(|early| RunAnalysis { early, linked_points });
+    let (movie, review, reviewed) = passed?;
+    let analysis = analysis.map(|early| RunAnalysis { early, reviewed });
     let run = RunOutcome {
         dir: dir.to_path_buf(),
         diameter: diameter.clone(),
@@ -425,7 +425,7 @@ pub(crate) fn finish_run(
 /// frame read once for both (from the spool of downscaled frames where the first pass kept
 /// them, otherwise decoded again). The review page is made from `tracks.csv` as written, so that
 /// `caravan review` on the folder gives the same page byte for byte; the points read for it
-/// are returned for the report.
+/// and the moments found in them are returned for the report.
 fn second_pass(
     stack: &mut Stack,
     spool: Option<&mut OutlineSpool>,
@@ -435,12 +435,13 @@ fn second_pass(
     (tracked, divisions): (&[TrackedDetection], &[DivisionEvent]),
     dir: &Path,
 ) -> Result<SecondPass> {
-    let mut points = None;
+    let mut reviewed = None;
     let mut review = match (outputs.review, linked) {
         (Some(options), true) => {
-            let read = std::sync::Arc::new(read_linked_points(&dir.join("tracks.csv"))?);
-            let input = review_input(&read, view);
-            points = Some(read);
+            let points = read_linked_points(&dir.join("tracks.csv"))?;
+            let input = review_input(&points, view);
+            let moments = input.moments.clone();
+            reviewed = Some(ReviewedTracks { points, moments });
             Some(ReviewWriter::new(&dir.join("review"), input, &options)?)
         }
         _ => None,
@@ -449,24 +450,19 @@ fn second_pass(
         (Some(s), Some(options)) => {
             let overlay = overlay(tracked, view.per_frame, divisions);
             let (movie, review) = render_movie(stack, s, &overlay, &options, dir, review)?;
-            Ok((Some(movie), review, points))
+            Ok((Some(movie), review, reviewed))
         }
         _ => {
             if let Some(r) = review.as_mut() {
                 offer_all_frames(stack, r)?;
             }
-            Ok((None, review.map(ReviewWriter::finish).transpose()?, points))
+            Ok((None, review.map(ReviewWriter::finish).transpose()?, reviewed))
         }
     }
 }
 
-/// What [`second_pass`] made: the movie, the review page, and the linked points the page was
-/// made from.
-type SecondPass = (
-    Option<MovieOutputs>,
-    Option<ReviewOutputs>,
-    Option<std::sync::Arc<Vec<crate::review::LinkedPoint>>>,
-);
+/// What [`second_pass`] made: the movie, the review page, and what the page was made from.
+type SecondPass = (Option<MovieOutputs>, Option<ReviewOutputs>, Option<ReviewedTracks>);
 
 /// The figures the verdict is judged from.
 fn run_figures(

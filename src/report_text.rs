@@ -9,7 +9,7 @@ use crate::params::{BackgroundMethod, ThresholdMethod};
 use crate::record::RunRecord;
 use crate::render::report::{unit_name, FlaggedFrame, NumberKind, ParameterRow, StatisticRow};
 use crate::render::review::MomentKind;
-use crate::review::{read_linked_points, review_input, LinkedPoint, RunView};
+use crate::review::{read_linked_points, review_input, ReviewedTracks, RunView};
 use serde_json::Value;
 use std::path::Path;
 
@@ -418,31 +418,32 @@ pub fn tracking_parameters(record: &RunRecord) -> Vec<ParameterRow> {
 
 /// Up to six frames worth a look (the review page's moments, most telling kind
 /// first), each with the run's objects, when the run folder has its review page's frames.
-/// `linked` is the folder's `tracks.csv` as [`read_linked_points`] reads it, where the caller
-/// has it already (the run that wrote the folder); otherwise the file is read.
-pub fn flagged_frames(run_dir: &Path, record: &RunRecord, linked: Option<&[LinkedPoint]>) -> Vec<FlaggedFrame> {
-    let read;
-    let points = match linked {
-        Some(points) => points,
-        None => match read_linked_points(&run_dir.join("tracks.csv")) {
-            Ok(points) => {
-                read = points;
-                &read
-            }
-            Err(_) => return Vec::new(),
-        },
+/// `reviewed` is what the run that wrote the folder found for its review page, where the
+/// caller has it; otherwise the folder's `tracks.csv` is read and its moments found again.
+pub fn flagged_frames(run_dir: &Path, record: &RunRecord, reviewed: Option<&ReviewedTracks>) -> Vec<FlaggedFrame> {
+    let found;
+    let reviewed = match reviewed {
+        Some(reviewed) => reviewed,
+        None => {
+            let Ok(points) = read_linked_points(&run_dir.join("tracks.csv")) else {
+                return Vec::new();
+            };
+            let view = RunView {
+                info: &record.input.stack,
+                per_frame: &record.per_frame,
+                count_jumps: &record.count_jumps,
+                verdict: record.verdict.as_ref(),
+                diameter_px: record.parameters.diameter.px(),
+            };
+            let moments = review_input(&points, &view).moments;
+            found = ReviewedTracks { points, moments };
+            &found
+        }
     };
-    let view = RunView {
-        info: &record.input.stack,
-        per_frame: &record.per_frame,
-        count_jumps: &record.count_jumps,
-        verdict: record.verdict.as_ref(),
-        diameter_px: record.parameters.diameter.px(),
-    };
-    let input = review_input(points, &view);
+    let (points, size) = (&reviewed.points, (record.input.stack.width, record.input.stack.height));
     let mut chosen: Vec<(usize, String)> = Vec::new();
     for kind in MomentKind::ALL {
-        for m in input.moments.iter().filter(|m| m.kind == kind) {
+        for m in reviewed.moments.iter().filter(|m| m.kind == kind) {
             if chosen.len() < FLAGGED_FRAMES && !chosen.iter().any(|c| c.0 == m.frame) {
                 let track = m.track.map_or(String::new(), |t| format!(", track {t}"));
                 let note = if m.note.is_empty() {
@@ -471,7 +472,7 @@ pub fn flagged_frames(run_dir: &Path, record: &RunRecord, linked: Option<&[Linke
                 frame,
                 note,
                 jpeg,
-                size: input.size,
+                size,
                 ellipses,
             })
         })

@@ -17,6 +17,7 @@ use crate::render::plots::{Series, Strip};
 use crate::render::report::{analysis_report, comparison_report, AnalysisPage, ChartSpec, ComparedStatistic};
 use crate::render::report::{readable, unit_name};
 use crate::report_text::model_name;
+use crate::review::ReviewedTracks;
 use std::path::Path;
 
 /// Every file an analysis folder holds: the tables, `summary.json` and `report.html`.
@@ -48,14 +49,14 @@ pub fn run_analysis(
 }
 
 /// What a tracking run hands its analysis: the analysis worked out while the movie was drawn,
-/// and the run's `tracks.csv` as its review page read it (when it made one), from which the
-/// report's frames worth a look are made without reading the file again.
+/// and the run's tracks and moments as its review page found them (when it made one), from
+/// which the report's frames worth a look are made without reading tracks.csv again.
 #[derive(Debug, Clone)]
 pub struct RunAnalysis {
     /// The analysis.
     pub early: EarlyAnalysis,
-    /// The points the review page was made from.
-    pub linked_points: Option<std::sync::Arc<Vec<crate::review::LinkedPoint>>>,
+    /// What the review page was made from.
+    pub reviewed: Option<ReviewedTracks>,
 }
 
 /// [`run_analysis`] of the tracking run folder `run_dir` with the default filters and options,
@@ -66,35 +67,28 @@ pub struct RunAnalysis {
 /// # Errors
 /// As [`run_analysis`].
 pub fn run_early_analysis(early: RunAnalysis, run_dir: &Path, dir: &Path) -> Result<AnalysisRun> {
-    let RunAnalysis { early, linked_points } = early;
+    let RunAnalysis { early, reviewed } = early;
     let EarlyAnalysis { mut table, analysis } = early;
     let (filters, options) = (Filters::default(), AnalysisOptions::default());
     table.source = run_dir.join("tracks.csv");
     match read_run_record(&table.source)? {
         (Some(record), None) => {
             table.run_record = Some(record);
-            finish_analysis(
-                table,
-                Some(analysis),
-                &filters,
-                &options,
-                dir,
-                linked_points.as_deref().map(Vec::as_slice),
-            )
+            finish_analysis(table, Some(analysis), &filters, &options, dir, reviewed.as_ref())
         }
         _ => run_analysis(run_dir, CalibrationOverride::default(), &filters, &options, dir),
     }
 }
 
-/// Writes the tables (analysing `table` unless `analysis` is given) and the page; `linked` is
-/// the run folder's tracks as the review read them, where the run hands them over.
+/// Writes the tables (analysing `table` unless `analysis` is given) and the page; `reviewed`
+/// is what the run's review page was made from, where the run hands it over.
 fn finish_analysis(
     table: TrackTable,
     analysis: Option<Analysis>,
     filters: &Filters,
     options: &AnalysisOptions,
     dir: &Path,
-    linked: Option<&[crate::review::LinkedPoint]>,
+    reviewed: Option<&ReviewedTracks>,
 ) -> Result<AnalysisRun> {
     // The frames worth a look (the review page's moments, from the run folder's tracks.csv)
     // are found while the analysis runs: they need only the run's record.
@@ -110,7 +104,7 @@ fn finish_analysis(
         || {
             run_folder
                 .as_ref()
-                .map(|(record, run_dir)| crate::report_text::flagged_frames(run_dir, record, linked))
+                .map(|(record, run_dir)| crate::report_text::flagged_frames(run_dir, record, reviewed))
         },
     );
     let run = run?;

@@ -38,6 +38,17 @@ pub struct LinkedPoint {
     pub point: ReviewPoint,
 }
 
+/// A run's tracks as its review page read them from `tracks.csv`, and the moments worth a
+/// look found in them: what the report's frames worth a look are made of, handed over by the
+/// run that made the page so that neither is made twice.
+#[derive(Debug, Clone)]
+pub struct ReviewedTracks {
+    /// The linked points, as [`read_linked_points`] reads them.
+    pub points: Vec<LinkedPoint>,
+    /// The moments, as [`review_input`] finds them.
+    pub moments: Vec<crate::render::review::Moment>,
+}
+
 /// What the review needs of a run besides its tracks.
 pub struct RunView<'a> {
     /// The recording.
