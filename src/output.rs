@@ -55,9 +55,21 @@ impl AtomicFile {
 
 /// Commits ([`AtomicFile::commit`]) running on threads of their own, waited for together:
 /// most of a commit is waiting for the disk to confirm the file (`sync_all`, a few to 25 ms a
-/// file), time in which the cores can go on with the run instead of idling.
+/// file), time in which the cores can go on with the run instead of idling. Dropped without
+/// [`Commits::wait`] (a caller returning early with an error), it still waits for them, so
+/// that no commit outlives the folder it writes into.
 #[derive(Default)]
 pub struct Commits(Vec<Commit>);
+
+impl Drop for Commits {
+    fn drop(&mut self) {
+        for commit in self.0.drain(..) {
+            if let Commit::OnThread(handle) = commit {
+                let _ = handle.join();
+            }
+        }
+    }
+}
 
 /// One commit of [`Commits`]: on its thread, or already done where no thread could start.
 enum Commit {
@@ -84,9 +96,8 @@ impl Commits {
     }
 
     /// Waits for every commit; the first error in the order they were started.
-    pub fn wait(self) -> Result<()> {
-        let results: Vec<Result<()>> = self
-            .0
+    pub fn wait(mut self) -> Result<()> {
+        let results: Vec<Result<()>> = std::mem::take(&mut self.0)
             .into_iter()
             .map(|commit| match commit {
                 Commit::OnThread(handle) => handle.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)),

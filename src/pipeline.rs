@@ -99,7 +99,7 @@ pub struct RunOutcome {
     /// Whether the run can be trusted, with the reasons.
     pub verdict: RunVerdict,
     /// The default migration analysis when [`RunOptions::analysis`] asked for it and it
-    /// could be made (nothing of it is written yet), with the points the review page read.
+    /// could be made (nothing of it is written yet), with what the review page was made from.
     pub analysis: Option<RunAnalysis>,
     /// An earlier run's outputs in this folder that this run replaced, being removed in the
     /// background; the last clone dropped waits until they are gone.
@@ -302,12 +302,12 @@ pub(crate) fn finish_run(
     commits.start(csv);
     let first_pass_s = started.elapsed().as_secs_f64();
     let mut tracked = Vec::new();
-    // The input's checksum (a whole read of the file) on a thread of its own, started once the
-    // motion estimate (on every core) is done, so that it fills the other core while the
-    // linker works frame by frame on one.
     let linking = outputs
         .linking
         .map(|options| resolve_linking(&detections, &options, diameter.px()));
+    // The input's checksum (a whole read of the file) on a thread of its own, started once the
+    // motion estimate (on every core) is done, so that it fills the other core while the
+    // linker works frame by frame on one.
     let checksum = {
         let path = info.path.clone();
         std::thread::spawn(move || crc32_file(&path).ok().map(|h| format!("{h:08x}")))

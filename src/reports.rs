@@ -60,14 +60,15 @@ pub struct RunAnalysis {
 }
 
 /// [`run_analysis`] of the tracking run folder `run_dir` with the default filters and options,
-/// from its analysis worked out while the run drew its movie ([`EarlyAnalysis`], whose tracks
-/// were read from the run's folder before it was put in place): the same folder, byte for
-/// byte. Falls back to reading the folder when its `run.json` is not a record of this version.
+/// from what the run hands over ([`RunAnalysis`]: its analysis worked out while it drew its
+/// movie, whose tracks were read from the run's folder before it was put in place, and what
+/// its review page was made from): the same folder, byte for byte. Falls back to reading the
+/// folder when its `run.json` is not a record of this version.
 ///
 /// # Errors
 /// As [`run_analysis`].
-pub fn run_early_analysis(early: RunAnalysis, run_dir: &Path, dir: &Path) -> Result<AnalysisRun> {
-    let RunAnalysis { early, reviewed } = early;
+pub fn run_early_analysis(handed: RunAnalysis, run_dir: &Path, dir: &Path) -> Result<AnalysisRun> {
+    let RunAnalysis { early, reviewed } = handed;
     let EarlyAnalysis { mut table, analysis } = early;
     let (filters, options) = (Filters::default(), AnalysisOptions::default());
     table.source = run_dir.join("tracks.csv");
