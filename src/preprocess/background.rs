@@ -33,11 +33,7 @@ pub fn tophat(image: &Image, window: usize, smooth_sigma: f32) -> Image {
 /// [`tophat`] overwriting its input. On the reduced grid the background is interpolated and
 /// subtracted in the same pass, without a full-size background image.
 pub fn tophat_in_place(image: &mut Image, window: usize, smooth_sigma: f32) {
-    let (h, w) = image.dim();
-    let minima = TophatMinima::new((w, h), window).map(|mut m| {
-        m.take_rows(image.as_slice().expect("standard layout"));
-        m
-    });
+    let minima = TophatMinima::of_image(image, window);
     tophat_in_place_from(image, window, smooth_sigma, minima);
 }
 
@@ -64,10 +60,8 @@ pub fn tophat_in_place_from(image: &mut Image, window: usize, smooth_sigma: f32,
 
 /// The smoothed opening that [`tophat`] subtracts.
 pub fn background_estimate(image: &Image, window: usize, smooth_sigma: f32) -> Image {
-    let (h, w) = image.dim();
-    match TophatMinima::new((w, h), window) {
-        Some(mut minima) => {
-            minima.take_rows(image.as_slice().expect("standard layout"));
+    match TophatMinima::of_image(image, window) {
+        Some(minima) => {
             let (small, factor) = reduced_background(minima, window, smooth_sigma);
             let mut out = Image::zeros(image.dim());
             let values = out.as_slice_mut().expect("standard layout");
@@ -100,6 +94,8 @@ pub struct TophatMinima {
     band: Vec<f32>,
     /// Rows of it taken so far.
     band_rows: usize,
+    /// Rows of the image taken so far.
+    rows_taken: usize,
     /// Each column's minimum with the `f − 1` columns after it, across the block row.
     across: Vec<f32>,
     /// The block minima, a block row at a time.
@@ -117,9 +113,18 @@ impl TophatMinima {
             f,
             band: vec![f32::INFINITY; w],
             band_rows: 0,
+            rows_taken: 0,
             across: Vec::with_capacity(w),
             out: Vec::with_capacity(h.div_ceil(f) * w.div_ceil(f)),
         })
+    }
+
+    /// Every row of `image` taken at once; `None` as [`TophatMinima::new`].
+    fn of_image(image: &Image, window: usize) -> Option<TophatMinima> {
+        let (h, w) = image.dim();
+        let mut minima = TophatMinima::new((w, h), window)?;
+        minima.take_rows(image.as_slice().expect("standard layout"));
+        Some(minima)
     }
 
     /// Takes the image's next whole rows (in order; any number at a time). Down each block
@@ -128,8 +133,8 @@ impl TophatMinima {
         for row in rows.chunks_exact(self.w.max(1)) {
             fold_extreme(&mut self.band, row, Extreme::Min);
             self.band_rows += 1;
-            let taken = self.out.len() / self.w.div_ceil(self.f) * self.f + self.band_rows;
-            if self.band_rows == self.f || taken == self.h {
+            self.rows_taken += 1;
+            if self.band_rows == self.f || self.rows_taken == self.h {
                 self.close_band();
             }
         }

@@ -653,16 +653,10 @@ fn local_maxima(response: &Image, sigma_at: impl Fn(usize) -> f32) -> Vec<(usize
                 if !inside[x - 1] {
                     continue;
                 }
-            } else {
-                let v = values[y * w + x];
-                if v.is_nan() || v <= 0.0 {
-                    continue;
-                }
-                // The 3 x 3 neighbourhood first: it lies inside every window and rules out
-                // most pixels in a few comparisons.
-                if beaten_by_a_neighbour(values, (w, h), (y, x)) {
-                    continue;
-                }
+            } else if values[y * w + x].is_nan() || values[y * w + x] <= 0.0 {
+                // A pixel at the image's edge: its window (which holds its 3 x 3
+                // neighbourhood) is searched directly.
+                continue;
             }
             let r = (sigma_at(y * w + x).round() as usize).max(3);
             if beaten_within(response, (y, x), r) {
@@ -677,7 +671,7 @@ fn local_maxima(response: &Image, sigma_at: impl Fn(usize) -> f32) -> Vec<(usize
 crate::multiversioned! {
     /// For each pixel of `row` but the first and last (`out[x − 1]` for pixel `x`), whether it
     /// is positive and not beaten by any of its eight neighbours in `above`, `row` and `below`
-    /// (as [`beaten_by_a_neighbour`]: a larger value, or an equal one earlier in raster order;
+    /// (as [`beaten_within`] at radius 1: a larger value, or an equal one earlier in raster order;
     /// NaN beats nothing and is not positive), a whole row at a time on the widest
     /// instruction level. Comparisons only, so the same on every level.
     fn above_their_neighbours / above_their_neighbours_with(above: &[f32], row: &[f32], below: &[f32], out: &mut [bool]) {
@@ -691,20 +685,6 @@ crate::multiversioned! {
             *o = (v > 0.0) & !(earlier | later);
         }
     }
-}
-
-/// [`beaten_within`] at radius 1, on the raw values of a `w` x `h` image: the rows above and
-/// below and the pixel's row, each as a slice of up to three values.
-fn beaten_by_a_neighbour(values: &[f32], (w, h): (usize, usize), (y, x): (usize, usize)) -> bool {
-    let v = values[y * w + x];
-    let (x0, x1) = (x.saturating_sub(1), (x + 1).min(w - 1));
-    let beats_at = |yy: usize| {
-        let row = &values[yy * w + x0..=yy * w + x1];
-        row.iter()
-            .enumerate()
-            .any(|(i, &u)| u > v || (u == v && (yy, x0 + i) < (y, x)))
-    };
-    (y > 0 && beats_at(y - 1)) || beats_at(y) || (y + 1 < h && beats_at(y + 1))
 }
 
 /// Whether a pixel within `r` (a square window, clipped at the borders) of `(y, x)` beats it:
@@ -744,15 +724,13 @@ mod tests {
     #[test]
     fn pixels_above_their_neighbours_are_found_alike_on_every_level() {
         // Source: definition (positive, and no neighbour larger or equal and earlier in raster
-        // order; NaN beats nothing), pixel by pixel through beaten_by_a_neighbour, on rows
-        // that do and do not fill whole vectors, on every instruction level.
+        // order; NaN beats nothing), pixel by pixel through the window check at radius one, on
+        // rows that do and do not fill whole vectors, on every instruction level.
         for w in [3usize, 4, 17, 64, 131] {
             let values = tied_values(3 * w, w as u64);
+            let image = Image::from_shape_vec((3, w), values.clone()).expect("sized");
             let want: Vec<bool> = (1..w - 1)
-                .map(|x| {
-                    let v = values[w + x];
-                    v > 0.0 && !beaten_by_a_neighbour(&values, (w, 3), (1, x))
-                })
+                .map(|x| values[w + x] > 0.0 && !beaten_within(&image, (1, x), 1))
                 .collect();
             if w >= 17 {
                 assert!(want.iter().any(|&p| p) && want.iter().any(|&p| !p), "both kinds at {w}");
@@ -939,10 +917,11 @@ mod tests {
     }
 
     #[test]
-    fn the_neighbour_check_is_the_window_check_at_radius_one() {
+    fn the_row_check_is_the_window_check_at_radius_one() {
         // Source: the rule of `beaten_within` (a larger value, or an equal one earlier in
-        // raster order, within the clipped 3 x 3 window), on images full of ties, NaN and
-        // edges, where the fast check and the general one must agree on every pixel.
+        // raster order, within the 3 x 3 window), on images full of ties and NaN, where the
+        // row-at-once check and the general one must agree on every pixel they both see (the
+        // row check's: not on the image's edge).
         // The random images (few levels) have equal values one row down and one column left,
         // among others: such a tie is later in raster order and must not beat the pixel.
         let patterned = [(1, 1), (1, 5), (6, 1), (9, 11)].map(|(h, w)| {
@@ -956,10 +935,13 @@ mod tests {
         for image in patterned.iter().chain(&random) {
             let (h, w) = image.dim();
             let values = image.as_slice().unwrap();
-            for y in 0..h {
-                for x in 0..w {
-                    let fast = beaten_by_a_neighbour(values, (w, h), (y, x));
-                    assert_eq!(fast, beaten_within(image, (y, x), 1), "{h} x {w} at {y}, {x}");
+            let row = |y: usize| &values[y * w..(y + 1) * w];
+            for y in (1..h.saturating_sub(1)).filter(|_| w >= 3) {
+                let mut fast = vec![false; w - 2];
+                above_their_neighbours(row(y - 1), row(y), row(y + 1), &mut fast);
+                for x in 1..w - 1 {
+                    let want = values[y * w + x] > 0.0 && !beaten_within(image, (y, x), 1);
+                    assert_eq!(fast[x - 1], want, "{h} x {w} at {y}, {x}");
                 }
             }
         }
