@@ -1,6 +1,7 @@
 //! Multi-page TIFF and BigTIFF files. Every page is described and checked when the file is
 //! opened (dimensions, sample type, memory limit, data extents inside the file); pixels are
-//! decoded one frame at a time into a buffer that is reused.
+//! decoded one frame at a time, straight into the frame's own vector where a page holds one
+//! sample per pixel, otherwise through a buffer that is reused.
 
 use super::calibration::pixel_size_from_resolution;
 use super::ome::{OmePixels, PlaneIndex};
@@ -165,41 +166,28 @@ impl TiffStack {
         self.decoder
             .seek_to_image(ifd)
             .map_err(|e| tiff_error(&path, Some(t), e))?;
-        if let Err(e) = self.decoder.read_image_to_buffer(&mut self.buffer) {
-            if self.lzw_tiles_fallback() {
-                let big_endian = self.info.byte_order == "big-endian";
-                let bytes = self.info.sample_type.bytes() as usize;
-                let pixels = super::lenient_lzw::decode_tiles(
-                    &path,
-                    t,
-                    &mut self.decoder,
-                    self.info.width,
-                    self.info.height,
-                    bytes,
-                    big_endian,
-                )?;
-                return Ok(if self.white_is_zero { invert(pixels) } else { pixels });
-            }
-            return Err(tiff_error(&path, Some(t), e));
-        }
         let pick = Picker {
             pixels: self.info.width * self.info.height,
             samples: self.info.samples_per_pixel,
             sample: self.sample,
             planar: self.planar,
         };
+        if pick.samples == 1 {
+            match self.decode_into_place(pick.pixels) {
+                Ok(Some(pixels)) => return Ok(pixels),
+                Ok(None) => {}
+                Err(e) => return self.after_failed_decode(t, e),
+            }
+        }
+        if let Err(e) = self.decoder.read_image_to_buffer(&mut self.buffer) {
+            return self.after_failed_decode(t, e);
+        }
         let pixels = match &self.buffer {
             DecodingResult::U8(v) => Pixels::U8(pick.pick(v)),
             DecodingResult::U16(v) => Pixels::U16(pick.pick(v)),
             DecodingResult::U32(v) => Pixels::U32(pick.pick(v)),
             DecodingResult::F32(v) => Pixels::F32(pick.pick(v)),
-            _ => {
-                return Err(Error::input_at(
-                    &path,
-                    t,
-                    "decoded to a sample type Caravan does not read",
-                ))
-            }
+            _ => return Err(Error::input_at(&path, t, UNREAD_SAMPLE_TYPE)),
         };
         if pixels.len() != pick.pixels {
             return Err(Error::input_at(
@@ -209,8 +197,63 @@ impl TiffStack {
             ));
         }
         // The tiff crate (0.11) already turns WhiteIsZero samples into BlackIsZero ones as it
-        // decodes; only the lenient LZW path above, which decodes on its own, inverts here.
+        // decodes; only the lenient LZW path below, which decodes on its own, inverts here.
         Ok(pixels)
+    }
+
+    /// A page of one sample per pixel decoded straight into the vector the frame keeps, for
+    /// the sample types Caravan reads: the same bytes as through the decoder's own buffer
+    /// (the crate fills both with `read_image_bytes`), without the copy out of it (2 MB per
+    /// 1024 x 1024 16-bit frame, on the reading thread). `None` where the page's layout is
+    /// not that of `pixels` samples of one of those types; the caller then decodes as before.
+    fn decode_into_place(&mut self, pixels: usize) -> tiff::TiffResult<Option<Pixels>> {
+        use tiff::decoder::DecodingSampleType as Type;
+        fn decoded<T: bytemuck::Pod>(decoder: &mut TiffDecoder, pixels: usize) -> tiff::TiffResult<Vec<T>> {
+            let mut samples = vec![T::zeroed(); pixels];
+            decoder.read_image_bytes(bytemuck::cast_slice_mut(&mut samples))?;
+            Ok(samples)
+        }
+        let layout = self.decoder.image_buffer_layout()?;
+        let Some(kind) = layout.sample_type.filter(|_| layout.planes == 1) else {
+            return Ok(None);
+        };
+        let size = match kind {
+            Type::U8 => 1,
+            Type::U16 => 2,
+            Type::U32 | Type::F32 => 4,
+            _ => return Ok(None),
+        };
+        if layout.len != pixels * size {
+            return Ok(None);
+        }
+        let decoder = &mut self.decoder;
+        Ok(Some(match kind {
+            Type::U8 => Pixels::U8(decoded(decoder, pixels)?),
+            Type::U16 => Pixels::U16(decoded(decoder, pixels)?),
+            Type::U32 => Pixels::U32(decoded(decoder, pixels)?),
+            _ => Pixels::F32(decoded(decoder, pixels)?),
+        }))
+    }
+
+    /// What a failed decode of frame `t` becomes: LZW tiles the crate rejects are decoded
+    /// again by the lenient decoder; anything else is an error naming the file and frame.
+    fn after_failed_decode(&mut self, t: usize, e: tiff::TiffError) -> Result<Pixels> {
+        let path = self.info.path.clone();
+        if !self.lzw_tiles_fallback() {
+            return Err(tiff_error(&path, Some(t), e));
+        }
+        let big_endian = self.info.byte_order == "big-endian";
+        let bytes = self.info.sample_type.bytes() as usize;
+        let pixels = super::lenient_lzw::decode_tiles(
+            &path,
+            t,
+            &mut self.decoder,
+            self.info.width,
+            self.info.height,
+            bytes,
+            big_endian,
+        )?;
+        Ok(if self.white_is_zero { invert(pixels) } else { pixels })
     }
 }
 
@@ -546,6 +589,9 @@ fn tiff_error(path: &Path, frame: Option<usize>, e: tiff::TiffError) -> Error {
         problem,
     }
 }
+
+/// The error for a page that decodes to a sample type outside those of [`Pixels`].
+const UNREAD_SAMPLE_TYPE: &str = "decoded to a sample type Caravan does not read";
 
 /// Selects one sample of every pixel from an interleaved or planar buffer.
 struct Picker {
