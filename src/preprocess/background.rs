@@ -282,43 +282,91 @@ fn transpose(src: &[f32], w: usize, h: usize) -> Vec<f32> {
 /// rows beyond the ends reflected: the van Herk/Gil-Werman block prefix and suffix extremes
 /// (M. van Herk (1992), Pattern Recognit. Lett. 13(7):517–521; J. Gil & M. Werman (1993),
 /// IEEE PAMI 15(5):504–507), with a whole row as the unit, so each step is a vector operation
-/// across the columns ([`fold_extreme`]).
+/// across the columns ([`fold_extreme`]). The padded rows are cut into blocks of `window`;
+/// an output row needs the suffix extreme of its own block and the prefix extreme of that
+/// block or the next, so the blocks are taken one at a time and only three blocks' rows are
+/// held (in cache) instead of the prefix and suffix extremes of the whole image.
 fn running_extreme_down(src: &[f32], w: usize, h: usize, window: usize, extreme: Extreme) -> Vec<f32> {
     let k = window.max(1);
     let r = k / 2;
-    let m = h + 2 * r;
-    let padded_row = |i: usize| {
-        let y = reflect(i as isize - r as isize, h);
-        &src[y * w..(y + 1) * w]
-    };
-    // Built row by row without zeroing first (these are the large allocations of a frame's
-    // background step): the prefix extremes in order, the suffix extremes last row first.
-    let mut prefix: Vec<f32> = Vec::with_capacity(m * w);
-    for i in 0..m {
-        if i % k == 0 {
-            prefix.extend_from_slice(padded_row(i));
-        } else {
-            prefix.extend_from_within((i - 1) * w..i * w);
-            fold_extreme(&mut prefix[i * w..], padded_row(i), extreme);
-        }
-    }
-    let mut suffix_reversed: Vec<f32> = Vec::with_capacity(m * w);
-    for (j, i) in (0..m).rev().enumerate() {
-        if (i + 1) % k == 0 || i + 1 == m {
-            suffix_reversed.extend_from_slice(padded_row(i));
-        } else {
-            suffix_reversed.extend_from_within((j - 1) * w..j * w);
-            fold_extreme(&mut suffix_reversed[j * w..], padded_row(i), extreme);
-        }
-    }
-    let suffix_row = |i: usize| &suffix_reversed[(m - 1 - i) * w..(m - i) * w];
+    let padded = PaddedRows { src, w, h, r, extreme };
     let mut out: Vec<f32> = Vec::with_capacity(h * w);
-    for y in 0..h {
-        let (s, p) = (suffix_row(y), &prefix[(y + k - 1) * w..(y + k) * w]);
-        out.extend_from_slice(s);
-        fold_extreme(&mut out[y * w..], p, extreme);
+    let (mut suffix, mut next_prefix) = (Vec::with_capacity(k * w), Vec::with_capacity(k * w));
+    let mut prefix = Vec::with_capacity(k * w);
+    padded.prefix_of(0..k, &mut prefix);
+    for block in (0..h).step_by(k) {
+        padded.suffix_reversed_of(block..block + k, &mut suffix);
+        // Rows past the block's first reach into the next block's prefix.
+        if block + 1 < h {
+            padded.prefix_of(block + k..block + 2 * k, &mut next_prefix);
+        }
+        for y in block..(block + k).min(h) {
+            let s = &suffix[(k - 1 - (y - block)) * w..][..w];
+            let j = y + k - 1;
+            let p = if y == block {
+                &prefix[(j - block) * w..][..w]
+            } else {
+                &next_prefix[(j - block - k) * w..][..w]
+            };
+            out.extend_from_slice(s);
+            fold_extreme(&mut out[y * w..], p, extreme);
+        }
+        std::mem::swap(&mut prefix, &mut next_prefix);
     }
     out
+}
+
+/// The rows of an image padded by `r` reflected rows at either end, and the extreme
+/// [`running_extreme_down`] folds them with.
+struct PaddedRows<'a> {
+    src: &'a [f32],
+    w: usize,
+    h: usize,
+    r: usize,
+    extreme: Extreme,
+}
+
+impl PaddedRows<'_> {
+    /// Padded row `i` (source row `i − r`, reflected).
+    fn row(&self, i: usize) -> &[f32] {
+        let y = reflect(i as isize - self.r as isize, self.h);
+        &self.src[y * self.w..(y + 1) * self.w]
+    }
+
+    /// Padded rows past the last one asked for by any output row are not made.
+    fn end(&self, rows: std::ops::Range<usize>) -> usize {
+        rows.end.min(self.h + 2 * self.r)
+    }
+
+    /// The prefix extremes of a block of padded rows, in order, into `into` (built row by row
+    /// without zeroing first): each row the extreme of the block's rows up to it.
+    fn prefix_of(&self, rows: std::ops::Range<usize>, into: &mut Vec<f32>) {
+        let w = self.w;
+        into.clear();
+        for (j, i) in (rows.start..self.end(rows)).enumerate() {
+            if j == 0 {
+                into.extend_from_slice(self.row(i));
+            } else {
+                into.extend_from_within((j - 1) * w..j * w);
+                fold_extreme(&mut into[j * w..], self.row(i), self.extreme);
+            }
+        }
+    }
+
+    /// The suffix extremes of a block of padded rows, last row first, into `into`: each row
+    /// the extreme of the block's rows from it to the block's end.
+    fn suffix_reversed_of(&self, rows: std::ops::Range<usize>, into: &mut Vec<f32>) {
+        let w = self.w;
+        into.clear();
+        for (j, i) in (rows.start..self.end(rows)).rev().enumerate() {
+            if j == 0 {
+                into.extend_from_slice(self.row(i));
+            } else {
+                into.extend_from_within((j - 1) * w..j * w);
+                fold_extreme(&mut into[j * w..], self.row(i), self.extreme);
+            }
+        }
+    }
 }
 
 /// Which extreme a running filter keeps.
