@@ -317,20 +317,24 @@ impl LaplaceKernels {
         }
         // Rows y0 - r .. y1 + r (as offsets), each padded to columns x0 - r .. x1 + r and laid
         // end to end, `stride` apart: one row pass over them all filters every row with g0 and
-        // g2 (an output `j · stride + x` with `x < band` is row j's column x; the others
-        // straddle two rows and are never read). One call instead of one per row: a small
-        // object's rows are a vector or two wide, and a call per row cost more than its sums.
+        // g2 (one call instead of one per row: a small object's rows are a vector or two wide,
+        // and a call per row cost more than its sums), keeping each row's first `band`
+        // outputs, the box's columns, `band` apart (the others straddle two rows). The column
+        // pass's outputs are then the box's pixels, `band` apart: for a small object the
+        // kernel's reach either side is about the box's width, and laid `stride` apart most
+        // of that pass's outputs went unread.
         let band = x1 - x0;
         let rows = y1 - y0 + 2 * r;
         let box_rows = y1 - y0;
         let stride = band + 2 * r;
         let all = rows * stride;
         let across = (rows - 1) * stride + band;
-        let box_len = (box_rows - 1) * stride + band;
-        let mut spare = scratch::take(3 * all + box_len);
+        let filtered = rows * band;
+        let box_len = box_rows * band;
+        let mut spare = scratch::take(all + 2 * filtered + box_len);
         let (padded, rest) = spare.split_at_mut(all);
-        let (with_g0, rest) = rest.split_at_mut(all);
-        let (with_g2, rest) = rest.split_at_mut(all);
+        let (with_g0, rest) = rest.split_at_mut(filtered);
+        let (with_g2, rest) = rest.split_at_mut(filtered);
         let laplacian = &mut rest[..box_len];
         // Columns x0 - r .. x1 + r of the frame; those inside it are copied, the rest reflected.
         let inside = r.saturating_sub(x0)..stride.min(width + r - x0);
@@ -342,16 +346,15 @@ impl LaplaceKernels {
                 padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
             }
         }
-        filter_steps_pair(&mut with_g0[..across], &mut with_g2[..across], padded, 1, g0, g2);
+        filter_steps_pair_kept(with_g0, with_g2, &padded[..], across, (stride, band), g0, g2);
         // The two column passes and their sum over the whole box in one call (an output reads
-        // the outputs of the row pass in its own column only, so the straddling ones stay
-        // apart), then the pixels read from it.
-        filter_steps_sum(laplacian, with_g2, with_g0, stride, g0, g2);
+        // the outputs of the row pass in its own column only), then the pixels read from it.
+        filter_steps_sum(laplacian, with_g2, with_g0, band, g0, g2);
         let at = pixels
             .iter()
             .map(|&p| {
                 let (x, y) = column_row(p);
-                laplacian[(y - y0) * stride + x - x0]
+                laplacian[(y - y0) * band + x - x0]
             })
             .collect();
         scratch::give_back(spare);
@@ -688,6 +691,41 @@ crate::multiversioned! {
 }
 
 crate::multiversioned! {
+    /// [`filter_steps_pair`] (step 1) of the first `n` outputs of `src`, rows laid end to end
+    /// `stride` apart, keeping each row's first `band` outputs only, into `out_a` and `out_b`
+    /// with rows `band` apart (`(stride, band)` = `kept`): the row pass of a box narrower
+    /// than its padded rows. The sums run over the rows end to end in whole blocks, as
+    /// [`filter_steps_pair`] does (a block per row cost more than the outputs it skips); each
+    /// block's kept outputs are copied a row's run at a time. The same sums, so the same bits.
+    fn filter_steps_pair_kept / filter_steps_pair_kept_with(
+        out_a: &mut [f32],
+        out_b: &mut [f32],
+        src: &[f32],
+        n: usize,
+        kept: (usize, usize),
+        kernel_a: &[f32],
+        kernel_b: &[f32],
+    ) {
+        let (stride, band) = kept;
+        let line = |_, k: usize| &src[k..];
+        filter_lines(n, line, [kernel_a, kernel_b], |x, [a, b]| {
+            let mut i = 0;
+            while i < a.len() {
+                let (row, column) = ((x + i) / stride, (x + i) % stride);
+                let run = (stride - column).min(a.len() - i);
+                if column < band {
+                    let take = (band - column).min(run);
+                    let at = row * band + column;
+                    out_a[at..at + take].copy_from_slice(&a[i..i + take]);
+                    out_b[at..at + take].copy_from_slice(&b[i..i + take]);
+                }
+                i += run;
+            }
+        });
+    }
+}
+
+crate::multiversioned! {
     /// `out` = [`filter_steps`] of `src_a` with `kernel_a` + [`filter_steps`] of `src_b` with
     /// `kernel_b` (kernels of one length): the two column passes of a Laplacian of Gaussian
     /// and their sum in one pass, without the two intermediate images. Each filtered value is
@@ -879,6 +917,43 @@ mod tests {
                     assert_eq!((bits(&a), bits(&b)), (bits(&expected), bits(&expected_g2)), "{context}");
                     filter_steps_sum_with(level, &mut got, &src, &other, step, &g0, &g2);
                     assert_eq!(bits(&got), bits(&expected_sum), "{context}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn rows_filter_at_their_band_as_the_definition() {
+        // Source: the definition of the filter (each output's taps summed in tap order along
+        // its row) and IEEE 754 lane-by-lane rounding: rows `stride` apart filtered end to
+        // end and kept at their first `band` outputs, `band` apart, equal it bit for bit on
+        // every level, for bands of one pixel to wider than a block, strides just long enough
+        // for the taps and longer, one row to many.
+        let (g0, g2) = (gaussian_derivative_kernel(1.6, 0), gaussian_derivative_kernel(1.6, 2));
+        let taps = g0.len();
+        let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        for band in [1usize, 7, 9, 16, 17, 33, 40] {
+            for (extra, rows) in [(0usize, 1usize), (0, 5), (3, 4), (1, 9)] {
+                let stride = band + taps - 1 + extra;
+                let src: Vec<f32> = (0..rows * stride)
+                    .map(|i| ((i * 7919 + band) % 211) as f32 * 0.37 - 19.0)
+                    .collect();
+                let definition = |kernel: &[f32]| -> Vec<f32> {
+                    (0..rows * band)
+                        .map(|i| {
+                            let at = (i / band) * stride + i % band;
+                            let rest = kernel.iter().enumerate().skip(1);
+                            rest.fold(kernel[0] * src[at], |s, (k, &w)| s + w * src[at + k])
+                        })
+                        .collect()
+                };
+                let (want_a, want_b) = (definition(&g0), definition(&g2));
+                let n = (rows - 1) * stride + band;
+                for level in crate::simd::levels() {
+                    let (mut a, mut b) = (vec![f32::NAN; rows * band], vec![f32::NAN; rows * band]);
+                    filter_steps_pair_kept_with(level, &mut a, &mut b, &src, n, (stride, band), &g0, &g2);
+                    let context = format!("{level:?} band {band} rows {rows} stride {stride}");
+                    assert_eq!((bits(&a), bits(&b)), (bits(&want_a), bits(&want_b)), "{context}");
                 }
             }
         }
