@@ -82,24 +82,29 @@ pub fn log_noise_gain(s: f64) -> f64 {
 ///
 /// Work is bounded: scales from 1.5 to 24 px in steps of 8%, scales of 6 px and more computed
 /// on images binned 2x, 4x, ... (so that the scale on the binned grid stays at 3 px or more;
-/// binning by the mean divides white noise by the factor). The scales are searched in two
-/// runs of about equal work in parallel and the two strongest responses merged, the earlier
-/// run's kept on a tie: the same as one search in scale order.
+/// binning by the mean divides white noise by the factor). The scales are searched in
+/// [`SEARCH_RUNS`] runs of about equal work in parallel and their strongest responses merged
+/// in order, an earlier run's kept on a tie: the same as one search in scale order.
 pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
     let search = ScaleSearch::new(image.clone(), noise_sigma);
-    let (first, second) = rayon::join(|| search.run(0), || search.run(1));
-    search.blobs(first, second)
+    search.blobs(search.all_runs())
 }
 
+/// Runs of scales a frame's search is cut into, of about equal work. More runs than cores,
+/// so that the estimate's last frame does not leave a core idle while the other finishes a
+/// long run (two runs per frame left one idle for about a run's length, ~30 ms at the end of
+/// the estimate); each run keeps a frame-sized array of its strongest responses.
+const SEARCH_RUNS: usize = 4;
+
 /// The scale search of [`significant_blobs`] on one image, in pieces that can run on any
-/// thread: each of its two runs of scales ([`ScaleSearch::run`]), then the blobs found from
-/// both ([`ScaleSearch::blobs`]).
+/// thread: each of its [`SEARCH_RUNS`] runs of scales ([`ScaleSearch::run`]), then the blobs
+/// found from all of them ([`ScaleSearch::blobs`]).
 struct ScaleSearch {
     /// The image (level 0) and its binnings by 2, 4, ... (level `l` by 2^l).
     levels: Vec<Image>,
     scales: Vec<SearchScale>,
-    /// Where the second run of scales starts.
-    cut: usize,
+    /// Where each run of scales starts, and the end of the last.
+    cuts: [usize; SEARCH_RUNS + 1],
 }
 
 impl ScaleSearch {
@@ -108,25 +113,30 @@ impl ScaleSearch {
         let count = scales.iter().map(|s| s.level).max().map_or(1, |l| l as usize + 1);
         let binned: Vec<Image> = (1..count).map(|l| bin(&image, 1 << l)).collect();
         let levels: Vec<Image> = std::iter::once(image).chain(binned).collect();
-        let cut = halfway_by_work(&scales, &|level| &levels[level as usize]);
-        ScaleSearch { levels, scales, cut }
+        let cuts = cuts_by_work(&scales, &|level| &levels[level as usize]);
+        ScaleSearch { levels, scales, cuts }
     }
 
-    /// The strongest responses over the first run of scales (`run` 0) or the second (1).
+    /// The strongest responses over run `run` of the scales (0 to [`SEARCH_RUNS`] − 1).
     fn run(&self, run: usize) -> Strongest {
-        let (first, second) = self.scales.split_at(self.cut);
+        let (start, end) = (self.cuts[run], self.cuts[run + 1]);
         let at_level = |level: u32| &self.levels[level as usize];
-        match run {
-            0 => strongest_over(first, 0, &at_level),
-            _ => strongest_over(second, first.len(), &at_level),
-        }
+        strongest_over(&self.scales[start..end], start, &at_level)
     }
 
-    /// The significant blobs, from the strongest responses of the two runs.
-    fn blobs(&self, mut strongest: Strongest, later: Strongest) -> Vec<Blob> {
+    /// Every run, in parallel, in order.
+    fn all_runs(&self) -> Vec<Strongest> {
+        use rayon::prelude::*;
+        (0..SEARCH_RUNS).into_par_iter().map(|run| self.run(run)).collect()
+    }
+
+    /// The significant blobs, from the strongest responses of the runs, in order.
+    fn blobs(&self, runs: Vec<Strongest>) -> Vec<Blob> {
         let scales = &self.scales;
         let w = self.levels[0].ncols();
-        strongest.merge(&later);
+        let mut runs = runs.into_iter();
+        let mut strongest = runs.next().expect("at least one run");
+        runs.for_each(|later| strongest.merge(&later));
         let Strongest { response: best, scale } = strongest;
         let chosen = |i: usize| (scale[i] as usize).checked_sub(1).map(|k| &scales[k]);
         local_maxima(&best, |i| chosen(i).map_or(0.0, |s| s.sigma))
@@ -188,21 +198,31 @@ fn search_scales((h, w): (usize, usize), noise_sigma: f64) -> Vec<SearchScale> {
     scales
 }
 
-/// Where to cut `scales` into two runs of about equal work (a scale's work: its kernel's
-/// length times the pixels of its binned image).
-fn halfway_by_work<'a>(scales: &[SearchScale], at_level: &dyn Fn(u32) -> &'a Image) -> usize {
+/// Where to cut `scales` into [`SEARCH_RUNS`] runs of about equal work (a scale's work: its
+/// kernel's length times the pixels of its binned image): run `k` starts at the first scale
+/// whose work before it is at least `k / SEARCH_RUNS` of the total.
+fn cuts_by_work<'a>(scales: &[SearchScale], at_level: &dyn Fn(u32) -> &'a Image) -> [usize; SEARCH_RUNS + 1] {
     let work: Vec<usize> = scales
         .iter()
         .map(|s| (2 * gaussian_radius(s.binned_sigma) + 1) * at_level(s.level).len())
         .collect();
     let total: usize = work.iter().sum();
-    let mut done = 0;
-    work.iter()
-        .take_while(|&&w| {
-            done += w;
-            2 * done <= total
-        })
-        .count()
+    let mut before = vec![0usize; work.len() + 1];
+    for (k, w) in work.iter().enumerate() {
+        before[k + 1] = before[k] + w;
+    }
+    std::array::from_fn(|run| {
+        let share = total * run / SEARCH_RUNS;
+        if run == SEARCH_RUNS {
+            scales.len()
+        } else {
+            before
+                .iter()
+                .take(scales.len())
+                .position(|&b| b >= share)
+                .unwrap_or(scales.len())
+        }
+    })
 }
 
 /// Each pixel's strongest normalised response over some scales, and which scale gave it
@@ -377,18 +397,19 @@ pub fn sample_frames(frames: usize) -> Vec<usize> {
 /// kept), refined once at that object size.
 pub fn examine_frame(image: &Image, frame: usize, params_for: &(dyn Fn(f64) -> SegmentParams + Sync)) -> FrameDiameter {
     let examination = Examination::start(std::borrow::Cow::Borrowed(image), frame);
-    let (first, second) = rayon::join(|| examination.search.run(0), || examination.search.run(1));
-    examination.finish(first, second, params_for)
+    let runs = examination.search.all_runs();
+    examination.finish(runs, params_for)
 }
 
 /// [`examine_frame`] of each of `crops` (frame number and image, read in order on the calling
 /// thread), the results in the order read. Every frame's examination is cut into pieces that
-/// wait for nothing: the two runs of its scale search are handed to the worker pool as soon as
-/// the frame is read, and the rest of it as soon as both are done. (Run as one task per frame
-/// with the two runs joined inside, a worker waiting for its stolen run took up the next
-/// frame meanwhile, and the frames' last steps then ran one after another on one worker at
-/// the end while the other had nothing to do: about a third of the estimate's wall time with
-/// one core idle.) The same results on any number of threads.
+/// wait for nothing: its set-up (crop, noise, binnings) is handed to the worker pool as soon
+/// as the frame is read, each run of its scale search as soon as the set-up is done, and the
+/// rest of it as soon as all runs are. (Run as one task per frame with the runs joined
+/// inside, a worker waiting for its stolen run took up the next frame meanwhile, and the
+/// frames' last steps then ran one after another on one worker at the end while the other
+/// had nothing to do: about a third of the estimate's wall time with one core idle.) The
+/// same results on any number of threads.
 ///
 /// # Errors
 /// The first error of reading (the frames read before it are examined and dropped).
@@ -401,28 +422,30 @@ pub fn examine_frames(
     rayon::in_place_scope(|scope| {
         for (k, crop) in crops.enumerate() {
             let (frame, crop) = crop?;
-            let examination = Arc::new(Examination::start(std::borrow::Cow::Owned(crop), frame));
-            let runs: Arc<Mutex<[Option<Strongest>; 2]>> = Arc::new(Mutex::new([None, None]));
-            for run in 0..2 {
-                let (examination, runs, done) = (Arc::clone(&examination), Arc::clone(&runs), &done);
-                scope.spawn(move |scope| {
-                    let found = examination.search.run(run);
-                    let both = {
-                        let mut runs = runs.lock().unwrap_or_else(|e| e.into_inner());
-                        runs[run] = Some(found);
-                        match &mut *runs {
-                            [Some(_), Some(_)] => runs[0].take().zip(runs[1].take()),
-                            _ => None,
+            let done = &done;
+            scope.spawn(move |scope| {
+                let examination = Arc::new(Examination::start(std::borrow::Cow::Owned(crop), frame));
+                let runs: Arc<Mutex<Vec<Option<Strongest>>>> =
+                    Arc::new(Mutex::new((0..SEARCH_RUNS).map(|_| None).collect()));
+                for run in 0..SEARCH_RUNS {
+                    let (examination, runs) = (Arc::clone(&examination), Arc::clone(&runs));
+                    scope.spawn(move |scope| {
+                        let found = examination.search.run(run);
+                        let all = {
+                            let mut runs = runs.lock().unwrap_or_else(|e| e.into_inner());
+                            runs[run] = Some(found);
+                            let complete = runs.iter().all(Option::is_some);
+                            complete.then(|| runs.iter_mut().filter_map(Option::take).collect::<Vec<_>>())
+                        };
+                        if let Some(all) = all {
+                            scope.spawn(move |_| {
+                                let frame = examination.finish(all, params_for);
+                                done.lock().unwrap_or_else(|e| e.into_inner()).push((k, frame));
+                            });
                         }
-                    };
-                    if let Some((first, second)) = both {
-                        scope.spawn(move |_| {
-                            let frame = examination.finish(first, second, params_for);
-                            done.lock().unwrap_or_else(|e| e.into_inner()).push((k, frame));
-                        });
-                    }
-                });
-            }
+                    });
+                }
+            });
         }
         Ok(())
     })?;
@@ -455,8 +478,8 @@ impl Examination {
     }
 
     /// The frame's figures, from the strongest responses of the scale search's two runs.
-    fn finish(&self, first: Strongest, second: Strongest, params_for: &dyn Fn(f64) -> SegmentParams) -> FrameDiameter {
-        let blobs = self.search.blobs(first, second);
+    fn finish(&self, runs: Vec<Strongest>, params_for: &dyn Fn(f64) -> SegmentParams) -> FrameDiameter {
+        let blobs = self.search.blobs(runs);
         let crop = &self.search.levels[0];
         let blob_diameter_px = (blobs.len() >= MIN_BLOBS).then(|| {
             let mut sigmas: Vec<f64> = blobs.iter().map(|b| b.sigma).collect();
@@ -846,12 +869,12 @@ mod tests {
     }
 
     #[test]
-    fn the_search_in_two_runs_keeps_what_one_search_in_scale_order_keeps() {
+    fn the_search_in_runs_keeps_what_one_search_in_scale_order_keeps() {
         // Source: definition (each pixel keeps the first scale whose normalised response is
         // strictly the strongest, scales in order, each response from gaussian_laplace on the
         // image binned for it and read block by block), on a frame of discs of three sizes in
-        // noise, with the scales cut at every point: the two runs merged must keep the same
-        // responses and scales bit for bit.
+        // noise, with the scales cut in two at every point and into the search's own runs:
+        // the runs merged in order must keep the same responses and scales bit for bit.
         let mut rng = Rng::new(12);
         let (h, w) = (90, 70);
         let image = Image::from_shape_fn((h, w), |(y, x)| {
@@ -886,8 +909,17 @@ mod tests {
             );
             assert_eq!(got.scale, want_scale, "cut at {cut}");
         }
-        let cut = halfway_by_work(&scales, &at_level);
-        assert!(0 < cut && cut < scales.len(), "{cut} of {}", scales.len());
+        // The search's own runs, cut by work, merged in order.
+        let cuts = cuts_by_work(&scales, &at_level);
+        assert_eq!((cuts[0], cuts[SEARCH_RUNS]), (0, scales.len()));
+        assert!(cuts.windows(2).all(|c| c[0] < c[1]), "{cuts:?} of {}", scales.len());
+        let mut got = strongest_over(&scales[..cuts[1]], 0, &at_level);
+        for run in cuts.windows(2).skip(1) {
+            got.merge(&strongest_over(&scales[run[0]..run[1]], run[0], &at_level));
+        }
+        let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(got.response.as_slice().unwrap()), bits(&want_response), "{cuts:?}");
+        assert_eq!(got.scale, want_scale, "{cuts:?}");
     }
 
     use crate::numeric::Rng;
