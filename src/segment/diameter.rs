@@ -455,7 +455,7 @@ pub fn examine_frames(
 }
 
 /// One frame's examination ([`examine_frame`]): its crop's noise and scale search, set up by
-/// [`Examination::start`], searched in two runs, and finished by [`Examination::finish`].
+/// [`Examination::start`], searched in [`SEARCH_RUNS`] runs, and finished by [`Examination::finish`].
 struct Examination {
     frame: usize,
     noise_sigma: f64,
@@ -477,7 +477,7 @@ impl Examination {
         }
     }
 
-    /// The frame's figures, from the strongest responses of the scale search's two runs.
+    /// The frame's figures, from the strongest responses of the scale search's runs, in order.
     fn finish(&self, runs: Vec<Strongest>, params_for: &dyn Fn(f64) -> SegmentParams) -> FrameDiameter {
         let blobs = self.search.blobs(runs);
         let crop = &self.search.levels[0];
