@@ -225,31 +225,45 @@ fn set_aside(path: &Path, aside: &Path, taken_out: bool) -> Result<()> {
     }
 }
 
-/// A folder being removed on a thread of its own; dropping this waits until it is gone (so
-/// that the process does not end half-way through). [`Staging::publish`] makes one.
+/// A folder being removed on a thread of its own, and any other clean-up handed to it
+/// ([`Removal::also`]); dropping this waits until all of it is done (so that the process does
+/// not end half-way through). [`Staging::publish`] makes one.
 #[derive(Debug)]
-pub struct Removal(Option<std::thread::JoinHandle<()>>);
+pub struct Removal(Vec<std::thread::JoinHandle<()>>);
 
 impl Removal {
     /// Starts removing `path`; where no thread can be started, removes it before returning.
     fn start(path: PathBuf) -> Removal {
-        let in_thread = path.clone();
-        let thread = std::thread::Builder::new().name("removal".into()).spawn(move || {
-            let _ = std::fs::remove_dir_all(&in_thread);
+        Removal(Vec::new()).also(move || {
+            let _ = std::fs::remove_dir_all(&path);
+        })
+    }
+
+    /// Also runs `work` (clean-up nothing else waits for) on a thread of its own, waited for
+    /// with the rest; where no thread can be started, runs it before returning.
+    pub fn also(mut self, work: impl FnOnce() + Send + 'static) -> Removal {
+        let work = std::sync::Arc::new(std::sync::Mutex::new(Some(work)));
+        let in_thread = std::sync::Arc::clone(&work);
+        let started = std::thread::Builder::new().name("removal".into()).spawn(move || {
+            if let Some(work) = in_thread.lock().ok().and_then(|mut w| w.take()) {
+                work();
+            }
         });
-        match thread {
-            Ok(thread) => Removal(Some(thread)),
+        match started {
+            Ok(thread) => self.0.push(thread),
             Err(_) => {
-                let _ = std::fs::remove_dir_all(&path);
-                Removal(None)
+                if let Some(work) = work.lock().ok().and_then(|mut w| w.take()) {
+                    work();
+                }
             }
         }
+        self
     }
 }
 
 impl Drop for Removal {
     fn drop(&mut self) {
-        if let Some(thread) = self.0.take() {
+        for thread in self.0.drain(..) {
             let _ = thread.join();
         }
     }
