@@ -368,7 +368,8 @@ mod tests {
     fn publishing_replaces_earlier_outputs_and_removes_them_in_the_background() {
         // Source: the contract of Staging::publish (the staged names replace the folder's,
         // the stale names leave it, nothing of the staging folder is left once the removal
-        // is dropped), checked by reading the folder back.
+        // is dropped, nor of what was handed to it with `also`), checked by reading the folder
+        // back.
         let dir = tempfile::tempdir().unwrap();
         let d = dir.path();
         let write = |p: &Path, text: &str| {
@@ -380,12 +381,20 @@ mod tests {
         write(&d.join("page/frames/1.jpg"), "old frame");
         write(&d.join("movie.gif"), "old movie");
         write(&d.join("keep.txt"), "not an output");
+        write(&d.join(".spool/frames.bin"), "a run's own temporary");
         let staging = Staging::new(d).unwrap();
         write(&staging.path().join("table.csv"), "new table");
         write(&staging.path().join("page/index.html"), "new page");
         let removal = staging
             .publish(&["table.csv", "page", "absent.json"], &["movie.gif"])
             .unwrap();
+        // Clean-up handed to the removal is done by the time it is dropped, however late it
+        // finishes.
+        let spool = d.join(".spool");
+        let removal = removal.also(move || {
+            std::thread::sleep(std::time::Duration::from_millis(50));
+            let _ = std::fs::remove_dir_all(spool);
+        });
         drop(removal);
         let read = |p: &str| std::fs::read_to_string(d.join(p)).ok();
         assert_eq!(read("table.csv").as_deref(), Some("new table"));

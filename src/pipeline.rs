@@ -101,10 +101,10 @@ pub struct RunOutcome {
     /// The default migration analysis when [`RunOptions::analysis`] asked for it and it
     /// could be made (nothing of it is written yet), with what the review page was made from.
     pub analysis: Option<RunAnalysis>,
-    /// An earlier run's outputs in this folder that this run replaced, and this run's spool
-    /// and checkpoint, being removed in the background; the last clone dropped waits until
-    /// they are gone.
-    pub replaced_outputs: Option<std::sync::Arc<Removal>>,
+    /// What is being removed in the background once the run is published: an earlier run's
+    /// outputs in this folder that this run replaced, and this run's spool and checkpoint;
+    /// the last clone dropped waits until they are gone.
+    pub removal: Option<std::sync::Arc<Removal>>,
 }
 
 impl RunOutcome {
@@ -253,7 +253,7 @@ pub fn run_recording(
             c.finish();
         }
     });
-    run.replaced_outputs = Some(std::sync::Arc::new(removal));
+    run.removal = Some(std::sync::Arc::new(removal));
     run.dir = dir.to_path_buf();
     Ok(run)
 }
@@ -385,7 +385,7 @@ pub(crate) fn finish_run(
         warnings,
         verdict,
         analysis,
-        replaced_outputs: None,
+        removal: None,
     };
     commits.wait()?;
     let checksum = checksum.join().expect("the checksum thread only reads a file");

@@ -242,7 +242,7 @@ pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Ru
         started,
     )?;
     drop(spool);
-    run.replaced_outputs = Some(std::sync::Arc::new(folder.publish(|name| outputs.writes(name))?));
+    run.removal = Some(std::sync::Arc::new(folder.publish(|name| outputs.writes(name))?));
     run.dir = dir.to_path_buf();
     Ok(run)
 }
