@@ -346,7 +346,7 @@ impl LaplaceKernels {
                 padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
             }
         }
-        filter_steps_pair_kept(with_g0, with_g2, &padded[..], across, (stride, band), g0, g2);
+        filter_steps_pair_kept(with_g0, with_g2, padded, across, (stride, band), g0, g2);
         // The two column passes and their sum over the whole box in one call (an output reads
         // the outputs of the row pass in its own column only), then the pixels read from it.
         filter_steps_sum(laplacian, with_g2, with_g0, band, g0, g2);

@@ -82,9 +82,9 @@ pub fn log_noise_gain(s: f64) -> f64 {
 ///
 /// Work is bounded: scales from 1.5 to 24 px in steps of 8%, scales of 6 px and more computed
 /// on images binned 2x, 4x, ... (so that the scale on the binned grid stays at 3 px or more;
-/// binning by the mean divides white noise by the factor). The scales are searched in
-/// [`SEARCH_RUNS`] runs of about equal work in parallel and their strongest responses merged
-/// in order, an earlier run's kept on a tie: the same as one search in scale order.
+/// binning by the mean divides white noise by the factor). The scales are searched in a few
+/// runs of about equal work in parallel and their strongest responses merged in order, an
+/// earlier run's kept on a tie: the same as one search in scale order.
 pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
     let search = ScaleSearch::new(image.clone(), noise_sigma);
     search.blobs(search.all_runs())
@@ -93,7 +93,7 @@ pub fn significant_blobs(image: &Image, noise_sigma: f64) -> Vec<Blob> {
 /// Runs of scales a frame's search is cut into, of about equal work. More runs than cores,
 /// so that the estimate's last frame does not leave a core idle while the other finishes a
 /// long run (two runs per frame left one idle for about a run's length, ~30 ms at the end of
-/// the estimate); each run keeps a frame-sized array of its strongest responses.
+/// the estimate); each run keeps an array of its strongest responses the size of the image.
 const SEARCH_RUNS: usize = 4;
 
 /// The scale search of [`significant_blobs`] on one image, in pieces that can run on any
