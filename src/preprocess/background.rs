@@ -333,32 +333,24 @@ impl PaddedRows<'_> {
         &self.src[y * self.w..(y + 1) * self.w]
     }
 
-    /// Padded rows past the last one asked for by any output row are not made.
-    fn end(&self, rows: std::ops::Range<usize>) -> usize {
-        rows.end.min(self.h + 2 * self.r)
-    }
-
-    /// The prefix extremes of a block of padded rows, in order, into `into` (built row by row
-    /// without zeroing first): each row the extreme of the block's rows up to it.
+    /// The prefix extremes of a block of padded rows (cut at the last padded row), in order,
+    /// into `into`: each row the extreme of the block's rows up to it.
     fn prefix_of(&self, rows: std::ops::Range<usize>, into: &mut Vec<f32>) {
-        let w = self.w;
-        into.clear();
-        for (j, i) in (rows.start..self.end(rows)).enumerate() {
-            if j == 0 {
-                into.extend_from_slice(self.row(i));
-            } else {
-                into.extend_from_within((j - 1) * w..j * w);
-                fold_extreme(&mut into[j * w..], self.row(i), self.extreme);
-            }
-        }
+        self.folded(rows.start..rows.end.min(self.h + 2 * self.r), into);
     }
 
     /// The suffix extremes of a block of padded rows, last row first, into `into`: each row
     /// the extreme of the block's rows from it to the block's end.
     fn suffix_reversed_of(&self, rows: std::ops::Range<usize>, into: &mut Vec<f32>) {
+        self.folded((rows.start..rows.end.min(self.h + 2 * self.r)).rev(), into);
+    }
+
+    /// Padded rows in `order`, each folded with the ones before it, into `into` (built row by
+    /// row without zeroing first).
+    fn folded(&self, order: impl Iterator<Item = usize>, into: &mut Vec<f32>) {
         let w = self.w;
         into.clear();
-        for (j, i) in (rows.start..self.end(rows)).rev().enumerate() {
+        for (j, i) in order.enumerate() {
             if j == 0 {
                 into.extend_from_slice(self.row(i));
             } else {
