@@ -59,52 +59,67 @@ impl AtomicFile {
 /// [`Commits::wait`] (a caller returning early with an error), it still waits for them, so
 /// that no commit outlives the folder it writes into.
 #[derive(Default)]
-pub struct Commits(Vec<Commit>);
+pub struct Commits(Vec<Started<Result<()>>>);
 
 impl Drop for Commits {
     fn drop(&mut self) {
-        for commit in self.0.drain(..) {
-            if let Commit::OnThread(handle) = commit {
-                let _ = handle.join();
-            }
-        }
+        self.0.drain(..).for_each(Started::wait_quietly);
     }
-}
-
-/// One commit of [`Commits`]: on its thread, or already done where no thread could start.
-enum Commit {
-    OnThread(std::thread::JoinHandle<Result<()>>),
-    Done(Result<()>),
 }
 
 impl Commits {
     /// Starts committing `file` on a thread of its own (in place, where none can start).
     pub fn start(&mut self, file: AtomicFile) {
-        let shared = std::sync::Arc::new(std::sync::Mutex::new(Some(file)));
-        let on_thread = std::sync::Arc::clone(&shared);
-        let spawned = std::thread::Builder::new().spawn(move || {
-            let file = on_thread.lock().unwrap_or_else(|e| e.into_inner()).take();
-            file.map_or(Ok(()), AtomicFile::commit)
-        });
-        self.0.push(match spawned {
-            Ok(handle) => Commit::OnThread(handle),
-            Err(_) => {
-                let file = shared.lock().unwrap_or_else(|e| e.into_inner()).take();
-                Commit::Done(file.map_or(Ok(()), AtomicFile::commit))
-            }
-        });
+        self.0.push(Started::start(move || file.commit()));
     }
 
     /// Waits for every commit; the first error in the order they were started.
     pub fn wait(mut self) -> Result<()> {
-        let results: Vec<Result<()>> = std::mem::take(&mut self.0)
-            .into_iter()
-            .map(|commit| match commit {
-                Commit::OnThread(handle) => handle.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)),
-                Commit::Done(result) => result,
-            })
-            .collect();
+        let results: Vec<Result<()>> = std::mem::take(&mut self.0).into_iter().map(Started::wait).collect();
         results.into_iter().collect()
+    }
+}
+
+/// The work in `slot`, taken out by the one thread that runs it.
+fn taken_once<W>(slot: &std::sync::Mutex<Option<W>>) -> W {
+    let work = slot.lock().unwrap_or_else(|e| e.into_inner()).take();
+    work.expect("work is taken once: by its thread, or here when the thread never started")
+}
+
+/// Work started on a thread of its own, or already done where no thread could be started:
+/// what [`Commits`] and [`Removal`] hold.
+#[derive(Debug)]
+enum Started<T> {
+    OnThread(std::thread::JoinHandle<T>),
+    Done(T),
+}
+
+impl<T: Send + 'static> Started<T> {
+    /// Starts `work` on a thread of its own; where none can start, does it here and now.
+    fn start<W: FnOnce() -> T + Send + 'static>(work: W) -> Started<T> {
+        // Shared so that the work can be taken back from a thread that never started.
+        let shared = std::sync::Arc::new(std::sync::Mutex::new(Some(work)));
+        let on_thread = std::sync::Arc::clone(&shared);
+        let spawned = std::thread::Builder::new().spawn(move || taken_once(&on_thread)());
+        match spawned {
+            Ok(handle) => Started::OnThread(handle),
+            Err(_) => Started::Done(taken_once(&shared)()),
+        }
+    }
+
+    /// Its result, once its thread is done (a panic there is passed on).
+    fn wait(self) -> T {
+        match self {
+            Started::OnThread(handle) => handle.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)),
+            Started::Done(result) => result,
+        }
+    }
+
+    /// Waits for its thread, whatever it gives (for a drop, which cannot report).
+    fn wait_quietly(self) {
+        if let Started::OnThread(handle) = self {
+            let _ = handle.join();
+        }
     }
 }
 
@@ -229,7 +244,7 @@ fn set_aside(path: &Path, aside: &Path, taken_out: bool) -> Result<()> {
 /// ([`Removal::also`]); dropping this waits until all of it is done (so that the process does
 /// not end half-way through). [`Staging::publish`] makes one.
 #[derive(Debug)]
-pub struct Removal(Vec<std::thread::JoinHandle<()>>);
+pub struct Removal(Vec<Started<()>>);
 
 impl Removal {
     /// Starts removing `path`; where no thread can be started, removes it before returning.
@@ -242,30 +257,14 @@ impl Removal {
     /// Also runs `work` (clean-up nothing else waits for) on a thread of its own, waited for
     /// with the rest; where no thread can be started, runs it before returning.
     pub fn also(mut self, work: impl FnOnce() + Send + 'static) -> Removal {
-        let work = std::sync::Arc::new(std::sync::Mutex::new(Some(work)));
-        let in_thread = std::sync::Arc::clone(&work);
-        let started = std::thread::Builder::new().name("removal".into()).spawn(move || {
-            if let Some(work) = in_thread.lock().ok().and_then(|mut w| w.take()) {
-                work();
-            }
-        });
-        match started {
-            Ok(thread) => self.0.push(thread),
-            Err(_) => {
-                if let Some(work) = work.lock().ok().and_then(|mut w| w.take()) {
-                    work();
-                }
-            }
-        }
+        self.0.push(Started::start(work));
         self
     }
 }
 
 impl Drop for Removal {
     fn drop(&mut self) {
-        for thread in self.0.drain(..) {
-            let _ = thread.join();
-        }
+        self.0.drain(..).for_each(Started::wait_quietly);
     }
 }
 

@@ -301,12 +301,13 @@ fn running_extreme_down(src: &[f32], w: usize, h: usize, window: usize, extreme:
             padded.prefix_of(block + k..block + 2 * k, &mut next_prefix);
         }
         for y in block..(block + k).min(h) {
-            let s = &suffix[(k - 1 - (y - block)) * w..][..w];
-            let j = y + k - 1;
+            // Rows y .. y + k − 1: the suffix of this block from y, and the prefix of this
+            // block whole (for its first row) or of the next block up to row y + k − 1.
+            let s = &suffix[(block + k - 1 - y) * w..][..w];
             let p = if y == block {
-                &prefix[(j - block) * w..][..w]
+                &prefix[(k - 1) * w..][..w]
             } else {
-                &next_prefix[(j - block - k) * w..][..w]
+                &next_prefix[(y - block - 1) * w..][..w]
             };
             out.extend_from_slice(s);
             fold_extreme(&mut out[y * w..], p, extreme);

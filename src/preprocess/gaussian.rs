@@ -328,7 +328,6 @@ impl LaplaceKernels {
         let box_rows = y1 - y0;
         let stride = band + 2 * r;
         let all = rows * stride;
-        let across = (rows - 1) * stride + band;
         let filtered = rows * band;
         let box_len = box_rows * band;
         let mut spare = scratch::take(all + 2 * filtered + box_len);
@@ -346,7 +345,7 @@ impl LaplaceKernels {
                 padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
             }
         }
-        filter_steps_pair_kept(with_g0, with_g2, padded, across, (stride, band), g0, g2);
+        filter_steps_pair_kept(with_g0, with_g2, padded, (stride, band), g0, g2);
         // The two column passes and their sum over the whole box in one call (an output reads
         // the outputs of the row pass in its own column only), then the pixels read from it.
         filter_steps_sum(laplacian, with_g2, with_g0, band, g0, g2);
@@ -691,9 +690,9 @@ crate::multiversioned! {
 }
 
 crate::multiversioned! {
-    /// [`filter_steps_pair`] (step 1) of the first `n` outputs of `src`, rows laid end to end
-    /// `stride` apart, keeping each row's first `band` outputs only, into `out_a` and `out_b`
-    /// with rows `band` apart (`(stride, band)` = `kept`): the row pass of a box narrower
+    /// [`filter_steps_pair`] (step 1) of `src`, rows laid end to end `stride` apart, keeping
+    /// each row's first `band` outputs only, into `out_a` and `out_b` with rows `band` apart
+    /// (as many rows as they hold; `(stride, band)` = `kept`): the row pass of a box narrower
     /// than its padded rows. The sums run over the rows end to end in whole blocks, as
     /// [`filter_steps_pair`] does (a block per row cost more than the outputs it skips); each
     /// block's kept outputs are copied a row's run at a time. The same sums, so the same bits.
@@ -701,12 +700,14 @@ crate::multiversioned! {
         out_a: &mut [f32],
         out_b: &mut [f32],
         src: &[f32],
-        n: usize,
         kept: (usize, usize),
         kernel_a: &[f32],
         kernel_b: &[f32],
     ) {
         let (stride, band) = kept;
+        // The sums up to the last row's last kept output.
+        let rows = out_a.len() / band.max(1);
+        let n = rows.checked_sub(1).map_or(0, |last| last * stride + band);
         let line = |_, k: usize| &src[k..];
         filter_lines(n, line, [kernel_a, kernel_b], |x, [a, b]| {
             let mut i = 0;
@@ -948,10 +949,9 @@ mod tests {
                         .collect()
                 };
                 let (want_a, want_b) = (definition(&g0), definition(&g2));
-                let n = (rows - 1) * stride + band;
                 for level in crate::simd::levels() {
                     let (mut a, mut b) = (vec![f32::NAN; rows * band], vec![f32::NAN; rows * band]);
-                    filter_steps_pair_kept_with(level, &mut a, &mut b, &src, n, (stride, band), &g0, &g2);
+                    filter_steps_pair_kept_with(level, &mut a, &mut b, &src, (stride, band), &g0, &g2);
                     let context = format!("{level:?} band {band} rows {rows} stride {stride}");
                     assert_eq!((bits(&a), bits(&b)), (bits(&want_a), bits(&want_b)), "{context}");
                 }
