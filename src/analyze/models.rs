@@ -413,23 +413,18 @@ fn walk_msd(t: f64, theta: &[f64]) -> f64 {
 
 /// Minimises [`walk_rss`] from `theta`; the parameters and their RSS, `None` if it never
 /// became finite. Each step's normal equations are summed in fixed-size arrays (a resampled
-/// analysis fits thousands of walks, and allocating per point and step cost a fifth of it).
+/// analysis fits thousands of walks, and allocating per point and step cost a fifth of it),
+/// and summed again only after a step is taken: a rejected step leaves `theta`, and so them,
+/// as they were, and two steps in three are rejected (a fit ends with λ climbing tenfold per
+/// step to its bound; 47,723 of 71,588 steps in the 2,006 fits of the benchmark recording's
+/// analysis).
 fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>) -> Option<(Vec<f64>, f64)> {
     let k = theta.len();
     let mut lambda = 1e-3;
     let mut current = walk_rss(points, weights, &theta);
+    let mut at_theta = None;
     for _ in 0..500 {
-        let mut a = [[0.0; MAX_PARAMETERS + 1]; MAX_PARAMETERS];
-        for (q, &w) in points.iter().zip(weights) {
-            let (j, msd) = walk_slope_and_msd(q.lag, &theta);
-            let r = q.msd - msd;
-            for i in 0..k {
-                for c in 0..k {
-                    a[i][c] += w * j[i] * j[c];
-                }
-                a[i][k] += w * j[i] * r;
-            }
-        }
+        let mut a = *at_theta.get_or_insert_with(|| normal_equations(points, weights, &theta));
         for (i, row) in a.iter_mut().enumerate().take(k) {
             row[i] *= 1.0 + lambda;
         }
@@ -449,6 +444,7 @@ fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>
         if next < current {
             let converged = (current - next) <= 1e-15 * current.max(1e-300);
             theta = trial;
+            at_theta = None;
             current = next;
             lambda = (lambda / 10.0).max(1e-12);
             if converged {
@@ -462,6 +458,29 @@ fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>
         }
     }
     (current.is_finite() && theta.iter().all(|t| t.is_finite())).then_some((theta, current))
+}
+
+/// The normal equations of a Gauss–Newton step of the walk from `theta` (`k` =
+/// `theta.len()` parameters): row `i` holds Σ w·Jᵢ·J꜀ for each parameter `c`, then
+/// Σ w·Jᵢ·r in column `k` (J the slopes of [`walk_slope_and_msd`], r the residuals).
+fn normal_equations(
+    points: &[MsdPoint],
+    weights: &[f64],
+    theta: &[f64],
+) -> [[f64; MAX_PARAMETERS + 1]; MAX_PARAMETERS] {
+    let k = theta.len();
+    let mut a = [[0.0; MAX_PARAMETERS + 1]; MAX_PARAMETERS];
+    for (q, &w) in points.iter().zip(weights) {
+        let (j, msd) = walk_slope_and_msd(q.lag, theta);
+        let r = q.msd - msd;
+        for i in 0..k {
+            for c in 0..k {
+                a[i][c] += w * j[i] * j[c];
+            }
+            a[i][k] += w * j[i] * r;
+        }
+    }
+    a
 }
 
 /// ∂MSD/∂(D, P[, offset]) of the walk at lag `t` (the offset's entry 1, unused without it),
@@ -498,6 +517,51 @@ mod tests {
             assert!((with_noise.msd_at(t) - want - 1.0).abs() < 1e-12);
         }
         assert!((with_noise.localisation_error().unwrap() - 0.5).abs() < 1e-12);
+    }
+
+    #[test]
+    fn the_normal_equations_are_those_of_the_walks_slopes_by_central_differences() {
+        // Source: the persistent random walk's MSD, 4D(t − P(1 − e^(−t/P))) + offset (R. Fürth
+        // (1920), Z. Phys. 2:244–256), differentiated numerically by central differences
+        // here, and the Gauss–Newton normal equations JᵀWJ and JᵀWr by their definition.
+        let walk = |t: f64, th: &[f64]| 4.0 * th[0] * (t - th[1] * (1.0 - (-t / th[1]).exp())) + th[2];
+        let theta = [1.7, 4.2, 0.3];
+        let points: Vec<MsdPoint> = (1..=9)
+            .map(|lag| MsdPoint {
+                lag_frames: lag,
+                lag: lag as f64 * 0.5,
+                msd: walk(lag as f64 * 0.5, &theta) * (1.0 + 0.05 * (lag as f64).sin()),
+                pairs: 10,
+            })
+            .collect();
+        let weights: Vec<f64> = (1..=9).map(|lag| 1.0 / lag as f64).collect();
+        let got = normal_equations(&points, &weights, &theta);
+        let slope = |t: f64, i: usize| {
+            let h = 1e-6 * theta[i];
+            let (mut up, mut down) = (theta, theta);
+            up[i] += h;
+            down[i] -= h;
+            (walk(t, &up) - walk(t, &down)) / (2.0 * h)
+        };
+        for i in 0..3 {
+            for c in 0..=3 {
+                let want: f64 = (points.iter().zip(&weights))
+                    .map(|(q, w)| {
+                        let other = if c == 3 {
+                            q.msd - walk(q.lag, &theta)
+                        } else {
+                            slope(q.lag, c)
+                        };
+                        w * slope(q.lag, i) * other
+                    })
+                    .sum();
+                assert!(
+                    (got[i][c] - want).abs() <= 1e-6 * want.abs().max(1e-3),
+                    "{i} {c}: {} {want}",
+                    got[i][c]
+                );
+            }
+        }
     }
 
     #[test]
