@@ -543,8 +543,8 @@ mod tests {
             down[i] -= h;
             (walk(t, &up) - walk(t, &down)) / (2.0 * h)
         };
-        for i in 0..3 {
-            for c in 0..=3 {
+        for (i, row) in got.iter().enumerate() {
+            for (c, &value) in row.iter().enumerate() {
                 let want: f64 = (points.iter().zip(&weights))
                     .map(|(q, w)| {
                         let other = if c == 3 {
@@ -556,9 +556,8 @@ mod tests {
                     })
                     .sum();
                 assert!(
-                    (got[i][c] - want).abs() <= 1e-6 * want.abs().max(1e-3),
-                    "{i} {c}: {} {want}",
-                    got[i][c]
+                    (value - want).abs() <= 1e-6 * want.abs().max(1e-3),
+                    "{i} {c}: {value} {want}"
                 );
             }
         }
