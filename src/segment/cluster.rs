@@ -5,6 +5,9 @@
 /// Cuts every object of `labels` (zero outside `pixels`) whose area exceeds `max_area` into
 /// `k = round(area / expected_area)` parts (at least 2) by k-means on its pixel coordinates;
 /// the new parts get labels above the current highest. Returns how many objects were cut.
+/// The pixels' labels are gathered first (loads that wait on nothing else) and the areas
+/// counted from them; only the pixels of oversized objects, rare in most frames, are then
+/// listed (listing every object's cost more than the cuts).
 ///
 /// # Method
 /// k-means by Lloyd's iterations, S. P. Lloyd (1982), "Least squares quantization in PCM",
@@ -15,18 +18,29 @@
 /// area, which is what nuclei of one size packed together look like; where they differ in
 /// size the cut is approximate, but each nucleus keeps a detection near its centre.
 pub fn cut_oversized(labels: &mut [u32], pixels: &[u32], width: usize, max_area: f64, expected_area: f64) -> usize {
-    let top = pixels.iter().map(|&i| labels[i as usize]).max().unwrap_or(0) as usize;
+    let of_pixel: Vec<u32> = pixels.iter().map(|&i| labels[i as usize]).collect();
+    let top = of_pixel.iter().copied().max().unwrap_or(0) as usize;
+    let mut area = vec![0usize; top + 1];
+    for &l in &of_pixel {
+        area[l as usize] += 1;
+    }
+    let oversized = |l: usize| l > 0 && area[l] as f64 > max_area && expected_area > 0.0;
+    if !(0..=top).any(oversized) {
+        return 0;
+    }
     let mut members: Vec<Vec<u32>> = vec![Vec::new(); top + 1];
-    for &i in pixels {
-        members[labels[i as usize] as usize].push(i);
+    for (&i, &l) in pixels.iter().zip(&of_pixel) {
+        if oversized(l as usize) {
+            members[l as usize].push(i);
+        }
     }
     let mut next = top as u32;
     let mut cut = 0;
     for own in members.iter().skip(1) {
-        let area = own.len() as f64;
-        if area <= max_area || expected_area <= 0.0 {
+        if own.is_empty() {
             continue;
         }
+        let area = own.len() as f64;
         let k = ((area / expected_area).round() as usize).max(2);
         let points: Vec<[f64; 2]> = own
             .iter()
@@ -149,6 +163,45 @@ mod tests {
         distinct.sort_unstable();
         distinct.dedup();
         assert_eq!(distinct.len(), 3);
+    }
+
+    #[test]
+    fn only_oversized_objects_are_cut_and_their_parts_numbered_above_the_highest_in_label_order() {
+        // Source: the function's contract (its doc) and construction: object 1 is three 10x10
+        // squares in a row, object 2 one square, object 3 two squares in a row; with an
+        // expected area of 100 and a maximum of 150, object 1 becomes three parts (its own
+        // label and 4, 5), object 2 stays, object 3 becomes two parts (3 and 6), each part one
+        // square.
+        let (w, h) = (40, 40);
+        let mut labels = vec![0u32; w * h];
+        let mut pixels = Vec::new();
+        let mut square = |label: u32, x0: usize, y0: usize, squares: usize| {
+            for y in y0..y0 + 10 {
+                for x in x0..x0 + 10 * squares {
+                    labels[y * w + x] = label;
+                    pixels.push((y * w + x) as u32);
+                }
+            }
+        };
+        square(1, 2, 1, 3);
+        square(2, 2, 14, 1);
+        square(3, 2, 27, 2);
+        assert_eq!(cut_oversized(&mut labels, &pixels, w, 150.0, 100.0), 2);
+        let square_labels = |x0: usize, y0: usize, squares: usize| -> Vec<u32> {
+            let mut found: Vec<u32> = (0..squares)
+                .map(|k| {
+                    let first = labels[y0 * w + x0 + 10 * k];
+                    let whole = (y0..y0 + 10).all(|y| (0..10).all(|x| labels[y * w + x0 + 10 * k + x] == first));
+                    assert!(whole, "square {k} at ({x0}, {y0}) is one part");
+                    first
+                })
+                .collect();
+            found.sort_unstable();
+            found
+        };
+        assert_eq!(square_labels(2, 1, 3), vec![1, 4, 5]);
+        assert_eq!(square_labels(2, 14, 1), vec![2]);
+        assert_eq!(square_labels(2, 27, 2), vec![3, 6]);
     }
 
     #[test]
