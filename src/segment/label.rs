@@ -177,14 +177,23 @@ pub fn filter_and_relabel(labels: &mut [u32], min_area: f64, max_area: f64) -> u
 /// [`filter_and_relabel`] for a label image that is zero outside `pixels` (indices in any
 /// order): only those pixels are read and rewritten.
 pub fn filter_and_relabel_pixels(labels: &mut [u32], pixels: &[u32], min_area: f64, max_area: f64) -> u32 {
-    let top = pixels.iter().map(|&i| labels[i as usize]).max().unwrap_or(0) as usize;
+    filter_and_relabel_counted(labels, pixels, min_area, max_area).0
+}
+
+/// [`filter_and_relabel_pixels`], also returning how many objects there were before (the
+/// distinct non-zero labels among `pixels`), counted from the same areas. The pixels' labels
+/// are gathered once, in a loop of loads that wait on nothing else.
+pub fn filter_and_relabel_counted(labels: &mut [u32], pixels: &[u32], min_area: f64, max_area: f64) -> (u32, usize) {
+    let of_pixel: Vec<u32> = pixels.iter().map(|&i| labels[i as usize]).collect();
+    let top = of_pixel.iter().copied().max().unwrap_or(0) as usize;
     let mut area = vec![0u64; top + 1];
     let mut first = vec![u32::MAX; top + 1];
-    for &i in pixels {
-        let l = labels[i as usize] as usize;
+    for (&i, &l) in pixels.iter().zip(&of_pixel) {
+        let l = l as usize;
         area[l] += 1;
         first[l] = first[l].min(i);
     }
+    let present = area.iter().skip(1).filter(|&&a| a > 0).count();
     let mut kept: Vec<usize> = (1..=top)
         .filter(|&l| area[l] > 0 && (min_area..=max_area).contains(&(area[l] as f64)))
         .collect();
@@ -193,11 +202,10 @@ pub fn filter_and_relabel_pixels(labels: &mut [u32], pixels: &[u32], min_area: f
     for (k, &l) in kept.iter().enumerate() {
         new_id[l] = k as u32 + 1;
     }
-    for &i in pixels {
-        let l = &mut labels[i as usize];
-        *l = new_id[*l as usize];
+    for (&i, &l) in pixels.iter().zip(&of_pixel) {
+        labels[i as usize] = new_id[l as usize];
     }
-    kept.len() as u32
+    (kept.len() as u32, present)
 }
 
 #[cfg(test)]
@@ -330,6 +338,13 @@ mod tests {
         // dropped by the minimum area; 7 becomes 1 and 3 becomes 2.
         let mut l = vec![0, 7, 3, 3, 7, 5, 0, 3];
         assert_eq!(filter_and_relabel(&mut l, 2.0, 10.0), 2);
+        assert_eq!(l, vec![0, 1, 2, 2, 1, 0, 0, 2]);
+        // The same with the pixels listed out of order: three objects before (7, 3 and 5).
+        let mut l = vec![0, 7, 3, 3, 7, 5, 0, 3];
+        assert_eq!(
+            filter_and_relabel_counted(&mut l, &[7, 5, 1, 4, 2, 3], 2.0, 10.0),
+            (2, 3)
+        );
         assert_eq!(l, vec![0, 1, 2, 2, 1, 0, 0, 2]);
     }
 }

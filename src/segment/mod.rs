@@ -130,8 +130,8 @@ fn segment_finite(
         split::split_touching_with_pixels(&mask, w, h, params.seed_h_px, params.distance_smoothing_px, Some(&cues));
     let expected_area = std::f64::consts::PI * params.diameter_px * params.diameter_px / 4.0;
     let clusters_cut = cluster::cut_oversized(&mut labels, &foreground, w, params.max_area_px, expected_area);
-    let before = count_labels(&labels, &foreground);
-    let count = label::filter_and_relabel_pixels(&mut labels, &foreground, params.min_area_px, f64::INFINITY);
+    let (count, before) =
+        label::filter_and_relabel_counted(&mut labels, &foreground, params.min_area_px, f64::INFINITY);
     let size_filter = SizeFilterCounts {
         dropped_small: before - count as usize,
         clusters_cut,
@@ -162,16 +162,6 @@ fn f32_below_or_at(t: f64) -> f32 {
     } else {
         rounded
     }
-}
-
-/// The number of distinct non-zero labels among `pixels`.
-fn count_labels(labels: &[u32], pixels: &[u32]) -> usize {
-    let top = pixels.iter().map(|&i| labels[i as usize]).max().unwrap_or(0) as usize;
-    let mut seen = vec![false; top + 1];
-    for &i in pixels {
-        seen[labels[i as usize] as usize] = true;
-    }
-    seen.iter().skip(1).filter(|&&s| s).count()
 }
 
 /// The noise of the prepared image: the robust standard deviation (median absolute deviation
