@@ -39,7 +39,7 @@ pub(super) fn add_dim_nuclei(
     }
     let low = low as f32;
     clear_slivers(mask, min_area, (w, h));
-    let candidates: Vec<bool> = mask.iter().zip(values).map(|(&m, &v)| !m & (v > low)).collect();
+    let candidates = above_level_outside(values, low, mask);
     let regions = Regions::of(&candidates, (w, h));
     let runs = &regions.runs.spans;
     let mut touches = vec![false; runs.len()];
@@ -66,6 +66,14 @@ pub(super) fn add_dim_nuclei(
     }
     for p in add {
         mask[p] = true;
+    }
+}
+
+crate::multiversioned! {
+    /// Which values lie above `level` where `mask` is not set (the candidates of
+    /// [`add_dim_nuclei`]), as many pixels per instruction as the level's vectors hold.
+    pub(super) fn above_level_outside / above_level_outside_with(values: &[f32], level: f32, mask: &[bool]) -> Vec<bool> {
+        mask.iter().zip(values).map(|(&m, &v)| !m & (v > level)).collect()
     }
 }
 
