@@ -41,19 +41,21 @@ pub fn tophat_in_place(image: &mut Image, window: usize, smooth_sigma: f32) {
 /// rows (by [`TophatMinima::take_rows`], e.g. as a filter made them, so that the frame is not
 /// read once more for them); `minima` is `None` exactly where [`TophatMinima::new`] is.
 pub fn tophat_in_place_from(image: &mut Image, window: usize, smooth_sigma: f32, minima: Option<TophatMinima>) {
-    let subtract = |v: &mut f32, background: f32| *v = (*v - background).max(0.0);
     let dim = image.dim();
     match minima {
         Some(minima) => {
             let (small, factor) = reduced_background(minima, window, smooth_sigma);
             let values = image.as_slice_mut().expect("standard layout");
-            upsample_bilinear_with(&small, factor, dim, values, subtract);
+            upsample_bilinear_with(&small, factor, dim, values, subtract_blend);
         }
         None => {
             let background = gaussian_blur(&grey_opening_square(image, window), smooth_sigma);
             let values = image.as_slice_mut().expect("standard layout");
             let background = background.as_slice().expect("standard layout");
-            values.iter_mut().zip(background).for_each(|(v, &b)| subtract(v, b));
+            values
+                .iter_mut()
+                .zip(background)
+                .for_each(|(v, &b)| *v = (*v - b).max(0.0));
         }
     }
 }
@@ -65,7 +67,11 @@ pub fn background_estimate(image: &Image, window: usize, smooth_sigma: f32) -> I
             let (small, factor) = reduced_background(minima, window, smooth_sigma);
             let mut out = Image::zeros(image.dim());
             let values = out.as_slice_mut().expect("standard layout");
-            upsample_bilinear_with(&small, factor, image.dim(), values, |v, b| *v = b);
+            upsample_bilinear_with(&small, factor, image.dim(), values, |row, top, bottom, fy| {
+                for ((o, &t), &b) in row.iter_mut().zip(top).zip(bottom) {
+                    *o = t * (1.0 - fy) + b * fy;
+                }
+            });
             out
         }
         None => gaussian_blur(&grey_opening_square(image, window), smooth_sigma),
@@ -164,14 +170,27 @@ impl TophatMinima {
     }
 }
 
-/// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points;
-/// each interpolated value is handed to `apply` with the output pixel it belongs to.
+crate::multiversioned! {
+    /// The top-hat of one output row: `row` less the background blended from the rows
+    /// interpolated across above and below it (`top · (1 − fy) + bottom · fy`), at least 0;
+    /// as many pixels per instruction as the level's vectors hold.
+    fn subtract_blend / subtract_blend_with(row: &mut [f32], top: &[f32], bottom: &[f32], fy: f32) {
+        for ((o, &t), &b) in row.iter_mut().zip(top).zip(bottom) {
+            *o = (*o - (t * (1.0 - fy) + b * fy)).max(0.0);
+        }
+    }
+}
+
+/// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points:
+/// each output row is handed to `apply` with the two rows interpolated across that it is
+/// blended from and the weight of the lower one, `apply(row, top, bottom, fy)`, whose
+/// interpolated values are `top · (1 − fy) + bottom · fy`.
 fn upsample_bilinear_with(
     small: &Image,
     f: usize,
     (h, w): (usize, usize),
     out: &mut [f32],
-    apply: impl Fn(&mut f32, f32),
+    mut apply: impl FnMut(&mut [f32], &[f32], &[f32], f32),
 ) {
     let (sh, sw) = small.dim();
     let coordinate = |i: usize, n: usize| {
@@ -206,10 +225,7 @@ fn upsample_bilinear_with(
                 };
             }
         }
-        let (top, bottom) = (&cached[0].1, &cached[1].1);
-        for ((o, &t), &b) in row.iter_mut().zip(top).zip(bottom) {
-            apply(o, t * (1.0 - fy) + b * fy);
-        }
+        apply(row, &cached[0].1, &cached[1].1, fy);
     }
 }
 
@@ -385,6 +401,38 @@ crate::multiversioned! {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_row_top_hat_is_the_blend_subtracted_on_every_level() {
+        // Source: the definition, one pixel at a time (IEEE 754: each product and sum rounded
+        // as a scalar one; `f32::max` returns the number when one side is NaN), against every
+        // instruction level, for lengths around the vectors' widths.
+        let specials = [f32::NAN, f32::INFINITY, f32::NEG_INFINITY, -0.0, 1e30];
+        let mut rng = crate::numeric::Rng::new(11);
+        let mut value = |i: usize| {
+            if i % 7 == 3 {
+                specials[i % specials.len()]
+            } else {
+                (rng.uniform() * 200.0 - 50.0) as f32
+            }
+        };
+        for n in [0usize, 1, 5, 8, 9, 16, 23, 32, 47, 100] {
+            let row: Vec<f32> = (0..n).map(&mut value).collect();
+            let top: Vec<f32> = (0..n).map(&mut value).collect();
+            let bottom: Vec<f32> = (0..n).map(&mut value).collect();
+            for fy in [0.0f32, 0.3, 0.875] {
+                let want: Vec<u32> = (0..n)
+                    .map(|i| (row[i] - (top[i] * (1.0 - fy) + bottom[i] * fy)).max(0.0).to_bits())
+                    .collect();
+                for level in crate::simd::levels() {
+                    let mut got = row.clone();
+                    subtract_blend_with(level, &mut got, &top, &bottom, fy);
+                    let got: Vec<u32> = got.iter().map(|v| v.to_bits()).collect();
+                    assert_eq!(got, want, "{level:?} {n} {fy}");
+                }
+            }
+        }
+    }
 
     #[test]
     fn extremes_fold_as_min_and_max_on_every_level() {
