@@ -69,7 +69,7 @@ pub fn background_estimate(image: &Image, window: usize, smooth_sigma: f32) -> I
             let values = out.as_slice_mut().expect("standard layout");
             upsample_bilinear_with(&small, factor, image.dim(), values, |row, top, bottom, fy| {
                 for ((o, &t), &b) in row.iter_mut().zip(top).zip(bottom) {
-                    *o = t * (1.0 - fy) + b * fy;
+                    *o = blend(t, b, fy);
                 }
             });
             out
@@ -172,13 +172,20 @@ impl TophatMinima {
 
 crate::multiversioned! {
     /// The top-hat of one output row: `row` less the background blended from the rows
-    /// interpolated across above and below it (`top · (1 − fy) + bottom · fy`), at least 0;
+    /// interpolated across above and below it ([`blend`]), at least 0;
     /// as many pixels per instruction as the level's vectors hold.
     fn subtract_blend / subtract_blend_with(row: &mut [f32], top: &[f32], bottom: &[f32], fy: f32) {
         for ((o, &t), &b) in row.iter_mut().zip(top).zip(bottom) {
-            *o = (*o - (t * (1.0 - fy) + b * fy)).max(0.0);
+            *o = (*o - blend(t, b, fy)).max(0.0);
         }
     }
+}
+
+/// The bilinear blend of a value of the row above (`top`) and of the row below (`bottom`),
+/// `fy` of the way down.
+#[inline(always)]
+fn blend(top: f32, bottom: f32, fy: f32) -> f32 {
+    top * (1.0 - fy) + bottom * fy
 }
 
 /// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points:

@@ -751,11 +751,12 @@ crate::multiversioned! {
 /// For `M` filters of one length at once, the sums `Σₖ kernels[m][k] · line(m, k)[x]` for
 /// `x` in `0..n`, taps added in order, every pixel's sums held in registers over all taps:
 /// for one filter blocks of 2 x [`BLOCK`] pixels first (eight AVX2 registers: each tap's
-/// additions wait on the last tap's, and four chains of them left the adder idle two cycles in
-/// three; a frame's Gaussian took ~15% less time), blocks of [`BLOCK`] pixels, then 16 (a small object's box is narrower than a block), then
-/// the last pixels as one block of 16 (more than 8 left) or 8 ([`filter_tail`]; the same sums
-/// for the lanes that count). Each block's sums go to `emit(x, sums)`, one slice per filter as long as
-/// the pixels they stand for. Inlined into each instruction level's copy of its callers.
+/// additions wait on the tap's before, and four chains of them left the adder waiting; a
+/// frame's Gaussian took ~15% less time), then blocks of [`BLOCK`] pixels, then 16 (a small
+/// object's box is narrower than a block), then the last pixels as one block of 16 (more than
+/// 8 left) or 8 ([`filter_tail`]; the same sums for the lanes that count). Each block's sums
+/// go to `emit(x, sums)`, one slice per filter as long as the pixels they stand for. Inlined
+/// into each instruction level's copy of its callers.
 #[inline(always)]
 fn filter_lines<'a, const M: usize>(
     n: usize,

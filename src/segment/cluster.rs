@@ -5,9 +5,9 @@
 /// Cuts every object of `labels` (zero outside `pixels`) whose area exceeds `max_area` into
 /// `k = round(area / expected_area)` parts (at least 2) by k-means on its pixel coordinates;
 /// the new parts get labels above the current highest. Returns how many objects were cut.
-/// The pixels' labels are gathered first (loads that wait on nothing else) and the areas
-/// counted from them; only the pixels of oversized objects, rare in most frames, are then
-/// listed (listing every object's cost more than the cuts).
+/// The pixels' labels are read once ([`super::label::labels_at`]) and the areas counted
+/// from them; only the pixels of oversized objects, rare in most frames, are then listed
+/// (listing every object's cost more than the cuts).
 ///
 /// # Method
 /// k-means by Lloyd's iterations, S. P. Lloyd (1982), "Least squares quantization in PCM",
@@ -18,7 +18,7 @@
 /// area, which is what nuclei of one size packed together look like; where they differ in
 /// size the cut is approximate, but each nucleus keeps a detection near its centre.
 pub fn cut_oversized(labels: &mut [u32], pixels: &[u32], width: usize, max_area: f64, expected_area: f64) -> usize {
-    let of_pixel: Vec<u32> = pixels.iter().map(|&i| labels[i as usize]).collect();
+    let of_pixel = super::label::labels_at(labels, pixels);
     let top = of_pixel.iter().copied().max().unwrap_or(0) as usize;
     let mut area = vec![0usize; top + 1];
     for &l in &of_pixel {

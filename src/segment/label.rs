@@ -180,11 +180,18 @@ pub fn filter_and_relabel_pixels(labels: &mut [u32], pixels: &[u32], min_area: f
     filter_and_relabel_counted(labels, pixels, min_area, max_area).0
 }
 
+/// The label of each of `pixels`, in their order: gathered in a loop of loads that wait on
+/// nothing else, so that a label image's lines missing from the cache are fetched together,
+/// rather than one at a time behind a pass's sums or counts.
+pub fn labels_at(labels: &[u32], pixels: &[u32]) -> Vec<u32> {
+    pixels.iter().map(|&i| labels[i as usize]).collect()
+}
+
 /// [`filter_and_relabel_pixels`], also returning how many objects there were before (the
 /// distinct non-zero labels among `pixels`), counted from the same areas. The pixels' labels
-/// are gathered once, in a loop of loads that wait on nothing else.
+/// are read once ([`labels_at`]).
 pub fn filter_and_relabel_counted(labels: &mut [u32], pixels: &[u32], min_area: f64, max_area: f64) -> (u32, usize) {
-    let of_pixel: Vec<u32> = pixels.iter().map(|&i| labels[i as usize]).collect();
+    let of_pixel = labels_at(labels, pixels);
     let top = of_pixel.iter().copied().max().unwrap_or(0) as usize;
     let mut area = vec![0u64; top + 1];
     let mut first = vec![u32::MAX; top + 1];
