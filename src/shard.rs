@@ -241,8 +241,9 @@ pub fn join_shards(stack: &mut Stack, dirs: &[PathBuf], dir: &Path, outputs: &Ru
         "join",
         started,
     )?;
-    drop(spool);
-    run.removal = Some(std::sync::Arc::new(folder.publish(|name| outputs.writes(name))?));
+    // The spool is closed (its blocks freed) on the removal's thread, as a run's is.
+    let removal = folder.publish(|name| outputs.writes(name))?.also(move || drop(spool));
+    run.removal = Some(std::sync::Arc::new(removal));
     run.dir = dir.to_path_buf();
     Ok(run)
 }

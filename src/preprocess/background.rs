@@ -191,7 +191,7 @@ fn blend(top: f32, bottom: f32, fy: f32) -> f32 {
 /// Bilinear interpolation of a block image back to `(h, w)`, block centres as sample points:
 /// each output row is handed to `apply` with the two rows interpolated across that it is
 /// blended from and the weight of the lower one, `apply(row, top, bottom, fy)`, whose
-/// interpolated values are `top · (1 − fy) + bottom · fy`.
+/// interpolated values are their [`blend`].
 fn upsample_bilinear_with(
     small: &Image,
     f: usize,

@@ -890,6 +890,13 @@ pub(crate) fn reflect(i: isize, n: usize) -> usize {
 mod tests {
     use super::*;
 
+    /// One output of a filter by its definition: `kernel`'s taps times the values under them
+    /// (`value(k)` under tap `k`), added in tap order, as every test here compares with.
+    fn in_tap_order(kernel: &[f32], value: impl Fn(usize) -> f32) -> f32 {
+        let taps = kernel.iter().enumerate().skip(1);
+        taps.fold(kernel[0] * value(0), |s, (k, &w)| s + w * value(k))
+    }
+
     #[test]
     fn rows_a_step_apart_filter_as_the_definition_on_every_level() {
         // Source: the definition of the filter (each pixel's taps summed in tap order) and
@@ -907,12 +914,7 @@ mod tests {
         let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
         for step in [1usize, 75] {
             let definition = |src: &[f32], kernel: &[f32], n: usize| -> Vec<f32> {
-                (0..n)
-                    .map(|x| {
-                        let taps = kernel.iter().enumerate().skip(1);
-                        taps.fold(kernel[0] * src[x], |s, (k, &w)| s + w * src[k * step + x])
-                    })
-                    .collect()
+                (0..n).map(|x| in_tap_order(kernel, |k| src[k * step + x])).collect()
             };
             // Up to two blocks of one filter and the blocks and tails after them.
             for n in 1..=140usize {
@@ -956,8 +958,7 @@ mod tests {
                     (0..rows * band)
                         .map(|i| {
                             let at = (i / band) * stride + i % band;
-                            let rest = kernel.iter().enumerate().skip(1);
-                            rest.fold(kernel[0] * src[at], |s, (k, &w)| s + w * src[at + k])
+                            in_tap_order(kernel, |k| src[at + k])
                         })
                         .collect()
                 };
@@ -982,10 +983,7 @@ mod tests {
         let (kx, ky) = (gaussian_kernel(1.0), gaussian_kernel(2.2));
         let sum = |line: &dyn Fn(isize) -> f32, kernel: &[f32], at: usize| -> f32 {
             let r = (kernel.len() / 2) as isize;
-            let taps = kernel.iter().enumerate().skip(1);
-            taps.fold(kernel[0] * line(at as isize - r), |s, (k, &w)| {
-                s + w * line(at as isize + k as isize - r)
-            })
+            in_tap_order(kernel, |k| line(at as isize + k as isize - r))
         };
         for (h, w) in [
             (1usize, 1usize),

@@ -425,24 +425,17 @@ pub fn examine_frames(
             let done = &done;
             scope.spawn(move |scope| {
                 let examination = Arc::new(Examination::start(std::borrow::Cow::Owned(crop), frame));
-                let runs: Arc<Mutex<Vec<Option<Strongest>>>> =
-                    Arc::new(Mutex::new((0..SEARCH_RUNS).map(|_| None).collect()));
+                let found = Arc::new(RunsFound::new());
                 for run in 0..SEARCH_RUNS {
-                    let (examination, runs) = (Arc::clone(&examination), Arc::clone(&runs));
+                    let (examination, found) = (Arc::clone(&examination), Arc::clone(&found));
                     scope.spawn(move |scope| {
-                        let found = examination.search.run(run);
-                        let all = {
-                            let mut runs = runs.lock().unwrap_or_else(|e| e.into_inner());
-                            runs[run] = Some(found);
-                            let complete = runs.iter().all(Option::is_some);
-                            complete.then(|| runs.iter_mut().filter_map(Option::take).collect::<Vec<_>>())
+                        let Some(all) = found.record(run, examination.search.run(run)) else {
+                            return;
                         };
-                        if let Some(all) = all {
-                            scope.spawn(move |_| {
-                                let frame = examination.finish(all, params_for);
-                                done.lock().unwrap_or_else(|e| e.into_inner()).push((k, frame));
-                            });
-                        }
+                        scope.spawn(move |_| {
+                            let frame = examination.finish(all, params_for);
+                            done.lock().unwrap_or_else(|e| e.into_inner()).push((k, frame));
+                        });
                     });
                 }
             });
@@ -452,6 +445,26 @@ pub fn examine_frames(
     let mut done = done.into_inner().unwrap_or_else(|e| e.into_inner());
     done.sort_by_key(|(k, _)| *k);
     Ok(done.into_iter().map(|(_, frame)| frame).collect())
+}
+
+/// The runs of one frame's scale search as they finish, in any order: the run that completes
+/// them takes them all, in run order, to finish the examination (a rayon join cannot say "the
+/// last to finish goes on" without a worker waiting, which was the idle core
+/// [`examine_frames`] avoids).
+struct RunsFound(std::sync::Mutex<Vec<Option<Strongest>>>);
+
+impl RunsFound {
+    fn new() -> RunsFound {
+        RunsFound(std::sync::Mutex::new((0..SEARCH_RUNS).map(|_| None).collect()))
+    }
+
+    /// Records what run `run` found; every run's, in order, if this was the last to finish.
+    fn record(&self, run: usize, found: Strongest) -> Option<Vec<Strongest>> {
+        let mut runs = self.0.lock().unwrap_or_else(|e| e.into_inner());
+        runs[run] = Some(found);
+        let complete = runs.iter().all(Option::is_some);
+        complete.then(|| runs.iter_mut().filter_map(Option::take).collect())
+    }
 }
 
 /// One frame's examination ([`examine_frame`]): its crop's noise and scale search, set up by
