@@ -512,8 +512,12 @@ mod tests {
             })
             .collect();
         let pixels: Vec<u32> = (0..(w * h) as u32).filter(|&i| labels[i as usize] == 1).collect();
+        let foreground = crate::segment::label::Foreground {
+            labels: vec![1; pixels.len()],
+            pixels,
+        };
         let intensity = vec![100.0f32; w * h];
-        crate::segment::measure::measure_objects(&labels, &pixels, 1, &intensity, w, h, frame).remove(0)
+        crate::segment::measure::measure_objects(&foreground, 1, &intensity, w, h, frame).remove(0)
     }
 
     fn expected(x: f64, y: f64, area_px: f64) -> Expected {

@@ -2,12 +2,14 @@
 //! cut into as many parts as nuclei of the expected size they could hold, never dropped, so a
 //! packed group of nuclei leaves detections (perhaps imperfectly outlined) instead of a hole.
 
-/// Cuts every object of `labels` (zero outside `pixels`) whose area exceeds `max_area` into
-/// `k = round(area / expected_area)` parts (at least 2) by k-means on its pixel coordinates;
-/// the new parts get labels above the current highest. Returns how many objects were cut.
-/// The pixels' labels are read once ([`super::label::labels_at`]) and the areas counted
-/// from them; only the pixels of oversized objects, rare in most frames, are then listed
-/// (listing every object's cost more than the cuts).
+use super::label::Foreground;
+
+/// Cuts every object of `foreground` whose area exceeds `max_area` into
+/// `k = round(area / expected_area)` parts (at least 2) by k-means on its pixel coordinates
+/// (in a frame `width` wide); the new parts get labels above the current highest. Returns how
+/// many objects were cut. The areas are counted from the pixels' labels; only the pixels of
+/// oversized objects, rare in most frames, are then listed (listing every object's cost more
+/// than the cuts).
 ///
 /// # Method
 /// k-means by Lloyd's iterations, S. P. Lloyd (1982), "Least squares quantization in PCM",
@@ -17,21 +19,21 @@
 /// deterministic. On pixel coordinates, k-means cuts a blob into compact parts of similar
 /// area, which is what nuclei of one size packed together look like; where they differ in
 /// size the cut is approximate, but each nucleus keeps a detection near its centre.
-pub fn cut_oversized(labels: &mut [u32], pixels: &[u32], width: usize, max_area: f64, expected_area: f64) -> usize {
-    let of_pixel = super::label::labels_at(labels, pixels);
-    let top = of_pixel.iter().copied().max().unwrap_or(0) as usize;
+pub fn cut_oversized(foreground: &mut Foreground, width: usize, max_area: f64, expected_area: f64) -> usize {
+    let top = foreground.labels.iter().copied().max().unwrap_or(0) as usize;
     let mut area = vec![0usize; top + 1];
-    for &l in &of_pixel {
+    for &l in &foreground.labels {
         area[l as usize] += 1;
     }
     let oversized = |l: usize| l > 0 && area[l] as f64 > max_area && expected_area > 0.0;
     if !(0..=top).any(oversized) {
         return 0;
     }
-    let mut members: Vec<Vec<u32>> = vec![Vec::new(); top + 1];
-    for (&i, &l) in pixels.iter().zip(&of_pixel) {
+    // Each oversized object's members, as positions in the foreground's lists.
+    let mut members: Vec<Vec<usize>> = vec![Vec::new(); top + 1];
+    for (k, &l) in foreground.labels.iter().enumerate() {
         if oversized(l as usize) {
-            members[l as usize].push(i);
+            members[l as usize].push(k);
         }
     }
     let mut next = top as u32;
@@ -44,12 +46,15 @@ pub fn cut_oversized(labels: &mut [u32], pixels: &[u32], width: usize, max_area:
         let k = ((area / expected_area).round() as usize).max(2);
         let points: Vec<[f64; 2]> = own
             .iter()
-            .map(|&i| [(i as usize % width) as f64, (i as usize / width) as f64])
+            .map(|&m| {
+                let i = foreground.pixels[m] as usize;
+                [(i % width) as f64, (i / width) as f64]
+            })
             .collect();
         let parts = k_means(&points, k);
-        for (&i, &part) in own.iter().zip(&parts) {
+        for (&m, &part) in own.iter().zip(&parts) {
             if part > 0 {
-                labels[i as usize] = next + part as u32;
+                foreground.labels[m] = next + part as u32;
             }
         }
         next += k as u32 - 1;
@@ -137,6 +142,24 @@ fn dist2(a: &[f64; 2], b: &[f64; 2]) -> f64 {
 mod tests {
     use super::*;
 
+    /// [`cut_oversized`] of the objects of a label image (zero outside `pixels`), asserting
+    /// that it cut `expected_cuts` of them; the label image after the cut.
+    fn cut_image(
+        labels: &[u32],
+        pixels: Vec<u32>,
+        w: usize,
+        max: f64,
+        expected: f64,
+        expected_cuts: usize,
+    ) -> Vec<u32> {
+        let mut foreground = Foreground {
+            labels: crate::segment::label::labels_at(labels, &pixels),
+            pixels,
+        };
+        assert_eq!(cut_oversized(&mut foreground, w, max, expected), expected_cuts);
+        foreground.label_image(labels.len())
+    }
+
     #[test]
     fn a_row_of_squares_is_cut_into_its_squares() {
         // Source: construction. Three 10x10 squares side by side form one 30x10 object of 300
@@ -152,7 +175,7 @@ mod tests {
                 pixels.push((y * w + x) as u32);
             }
         }
-        assert_eq!(cut_oversized(&mut labels, &pixels, w, 150.0, 100.0), 1);
+        let labels = cut_image(&labels, pixels.clone(), w, 150.0, 100.0, 1);
         for y in 1..11 {
             for x in 5..35 {
                 let first_of_square = labels[y * w + 5 + 10 * ((x - 5) / 10)];
@@ -186,7 +209,7 @@ mod tests {
         square(1, 2, 1, 3);
         square(2, 2, 14, 1);
         square(3, 2, 27, 2);
-        assert_eq!(cut_oversized(&mut labels, &pixels, w, 150.0, 100.0), 2);
+        let labels = cut_image(&labels, pixels, w, 150.0, 100.0, 2);
         let square_labels = |x0: usize, y0: usize, squares: usize| -> Vec<u32> {
             let mut found: Vec<u32> = (0..squares)
                 .map(|k| {
@@ -206,9 +229,7 @@ mod tests {
 
     #[test]
     fn objects_within_the_limit_are_left_alone() {
-        let mut labels = vec![1u32; 100];
-        let pixels: Vec<u32> = (0..100).collect();
-        assert_eq!(cut_oversized(&mut labels, &pixels, 10, 100.0, 30.0), 0);
+        let labels = cut_image(&vec![1u32; 100], (0..100).collect(), 10, 100.0, 30.0, 0);
         assert!(labels.iter().all(|&l| l == 1));
     }
 }

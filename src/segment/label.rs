@@ -170,14 +170,42 @@ pub fn label_components(mask: &[bool], width: usize, height: usize) -> (Vec<u32>
 /// Drops objects whose area is outside `[min_area, max_area]` and renumbers the rest 1, 2, ...
 /// in raster order of their first pixel, so labels do not depend on seed order.
 pub fn filter_and_relabel(labels: &mut [u32], min_area: f64, max_area: f64) -> u32 {
-    let foreground: Vec<u32> = (0..labels.len() as u32).filter(|&i| labels[i as usize] != 0).collect();
-    filter_and_relabel_pixels(labels, &foreground, min_area, max_area)
+    let pixels: Vec<u32> = (0..labels.len() as u32).filter(|&i| labels[i as usize] != 0).collect();
+    let mut foreground = Foreground {
+        labels: labels_at(labels, &pixels),
+        pixels,
+    };
+    let (count, _) = filter_and_relabel_counted(&mut foreground, min_area, max_area);
+    for (&p, &l) in foreground.pixels.iter().zip(&foreground.labels) {
+        labels[p as usize] = l;
+    }
+    count
 }
 
-/// [`filter_and_relabel`] for a label image that is zero outside `pixels` (indices in any
-/// order): only those pixels are read and rewritten.
-pub fn filter_and_relabel_pixels(labels: &mut [u32], pixels: &[u32], min_area: f64, max_area: f64) -> u32 {
-    filter_and_relabel_counted(labels, pixels, min_area, max_area).0
+/// A frame's foreground pixels and the label of each, in one order (grouped by component):
+/// what the stages after the split (the cluster cut, the size filter, the measures) read and
+/// relabel, so that none of them gathers the labels from a frame-sized image, and the label
+/// image is written once, at the end ([`Foreground::label_image`]), instead of at every stage
+/// that changes a label.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Foreground {
+    /// Pixel indices in the frame.
+    pub pixels: Vec<u32>,
+    /// The label of each pixel (0 = background, e.g. a pixel that no seed's flood reached).
+    pub labels: Vec<u32>,
+}
+
+impl Foreground {
+    /// The label image of `len` pixels: each pixel's label, 0 outside the foreground.
+    pub fn label_image(&self, len: usize) -> Vec<u32> {
+        // Written first rather than taken zeroed, so that the writes below do not fault
+        // (see `filled`).
+        let mut image = crate::numeric::filled(len, 0u32);
+        for (&p, &l) in self.pixels.iter().zip(&self.labels) {
+            image[p as usize] = l;
+        }
+        image
+    }
 }
 
 /// The label of each of `pixels`, in their order: gathered in a loop of loads that wait on
@@ -187,15 +215,15 @@ pub fn labels_at(labels: &[u32], pixels: &[u32]) -> Vec<u32> {
     pixels.iter().map(|&i| labels[i as usize]).collect()
 }
 
-/// [`filter_and_relabel_pixels`], also returning how many objects there were before (the
-/// distinct non-zero labels among `pixels`), counted from the same areas. The pixels' labels
-/// are read once ([`labels_at`]).
-pub fn filter_and_relabel_counted(labels: &mut [u32], pixels: &[u32], min_area: f64, max_area: f64) -> (u32, usize) {
-    let of_pixel = labels_at(labels, pixels);
-    let top = of_pixel.iter().copied().max().unwrap_or(0) as usize;
+/// [`filter_and_relabel`] of the objects of `foreground` (pixels in any order), its labels
+/// rewritten; also returns how many objects there were before (the distinct non-zero
+/// labels), counted from the same areas.
+pub fn filter_and_relabel_counted(foreground: &mut Foreground, min_area: f64, max_area: f64) -> (u32, usize) {
+    let Foreground { pixels, labels } = foreground;
+    let top = labels.iter().copied().max().unwrap_or(0) as usize;
     let mut area = vec![0u64; top + 1];
     let mut first = vec![u32::MAX; top + 1];
-    for (&i, &l) in pixels.iter().zip(&of_pixel) {
+    for (&i, &l) in pixels.iter().zip(labels.iter()) {
         let l = l as usize;
         area[l] += 1;
         first[l] = first[l].min(i);
@@ -209,8 +237,8 @@ pub fn filter_and_relabel_counted(labels: &mut [u32], pixels: &[u32], min_area: 
     for (k, &l) in kept.iter().enumerate() {
         new_id[l] = k as u32 + 1;
     }
-    for (&i, &l) in pixels.iter().zip(&of_pixel) {
-        labels[i as usize] = new_id[l as usize];
+    for l in labels.iter_mut() {
+        *l = new_id[*l as usize];
     }
     (kept.len() as u32, present)
 }
@@ -347,11 +375,11 @@ mod tests {
         assert_eq!(filter_and_relabel(&mut l, 2.0, 10.0), 2);
         assert_eq!(l, vec![0, 1, 2, 2, 1, 0, 0, 2]);
         // The same with the pixels listed out of order: three objects before (7, 3 and 5).
-        let mut l = vec![0, 7, 3, 3, 7, 5, 0, 3];
-        assert_eq!(
-            filter_and_relabel_counted(&mut l, &[7, 5, 1, 4, 2, 3], 2.0, 10.0),
-            (2, 3)
-        );
-        assert_eq!(l, vec![0, 1, 2, 2, 1, 0, 0, 2]);
+        let mut foreground = Foreground {
+            pixels: vec![7, 5, 1, 4, 2, 3],
+            labels: vec![3, 5, 7, 7, 3, 3],
+        };
+        assert_eq!(filter_and_relabel_counted(&mut foreground, 2.0, 10.0), (2, 3));
+        assert_eq!(foreground.label_image(8), vec![0, 1, 2, 2, 1, 0, 0, 2]);
     }
 }

@@ -3,6 +3,7 @@
 //! non-zero label is one object, measured on the recording's intensities as segmentation's
 //! own objects are; labels need not be consecutive.
 
+use super::label::Foreground;
 use super::measure::measure_objects;
 use super::{FrameSegmentation, SizeFilterCounts};
 use crate::error::{Error, Result};
@@ -70,16 +71,16 @@ pub fn mask_labels(mask: &Frame, path: &Path) -> Result<Vec<u32>> {
 pub fn segment_from_mask(mask: &[u32], raw: &Image, frame: usize, intensities: bool) -> FrameSegmentation {
     let (h, w) = raw.dim();
     let mut renumber: HashMap<u32, u32> = HashMap::new();
-    let mut labels = vec![0u32; mask.len()];
-    let mut foreground = Vec::new();
+    let mut foreground = Foreground::default();
     for (i, &m) in mask.iter().enumerate().filter(|(_, &m)| m != 0) {
         let next = renumber.len() as u32 + 1;
-        labels[i] = *renumber.entry(m).or_insert(next);
-        foreground.push(i as u32);
+        foreground.labels.push(*renumber.entry(m).or_insert(next));
+        foreground.pixels.push(i as u32);
     }
+    let labels = foreground.label_image(mask.len());
     let count = renumber.len() as u32;
     let intensity = raw.as_slice().expect("standard layout");
-    let mut detections = measure_objects(&labels, &foreground, count, intensity, w, h, frame);
+    let mut detections = measure_objects(&foreground, count, intensity, w, h, frame);
     if !intensities {
         for d in &mut detections {
             d.mean_intensity = f64::NAN;

@@ -1,12 +1,13 @@
 //! Per-object measurements from pixel moments.
 
+use super::label::Foreground;
 use crate::tracks::Detection;
 
 /// Measures every labelled object: centroid (x = column, y = row), area, equivalent diameter,
 /// mean and total intensity of `intensity`, major/minor axis and orientation from second
 /// moments, and whether it touches the image border. Objects are returned in label order.
-/// Only `pixels` (indices in any order) are read, outside which `labels` must be zero, so a
-/// frame is not scanned; sums of integer intensities are exact in any order.
+/// Only the foreground's pixels (in any order, with their labels) are read, so a frame is not
+/// scanned; sums of integer intensities are exact in any order.
 ///
 /// # Method
 /// Image moments, M.-K. Hu (1962), "Visual pattern recognition by moment invariants", IRE
@@ -15,8 +16,7 @@ use crate::tracks::Detection;
 /// covariance (the convention of scikit-image `regionprops`). Orientation is the angle of the
 /// major axis from +x toward +y (image rows grow downward), in degrees within (−90, 90].
 pub fn measure_objects(
-    labels: &[u32],
-    pixels: &[u32],
+    foreground: &Foreground,
     count: u32,
     intensity: &[f32],
     width: usize,
@@ -28,11 +28,9 @@ pub fn measure_objects(
     // Gathered first, in a loop of loads that wait on nothing else, so that the misses to the
     // frame's rows (last read at its smoothing) overlap; in the sums' loop below each one
     // waited behind the object's sums (three fifths of this function's time).
-    let gathered: Vec<(u32, f32)> = pixels
-        .iter()
-        .map(|&i| (labels[i as usize], intensity[i as usize]))
-        .collect();
-    for (&i, &(l, value)) in pixels.iter().zip(&gathered) {
+    let pixels = &foreground.pixels;
+    let gathered: Vec<f32> = pixels.iter().map(|&i| intensity[i as usize]).collect();
+    for ((&i, &l), &value) in pixels.iter().zip(&foreground.labels).zip(&gathered) {
         let i = i as usize;
         if l == 0 {
             continue;
@@ -114,8 +112,11 @@ mod tests {
                 labels[y * w + x] = 1;
             }
         }
-        let every_pixel: Vec<u32> = (0..(w * h) as u32).collect();
-        let d = &measure_objects(&labels, &every_pixel, 1, &vec![2.0; w * h], w, h, 0)[0];
+        let foreground = Foreground {
+            pixels: (0..(w * h) as u32).collect(),
+            labels,
+        };
+        let d = &measure_objects(&foreground, 1, &vec![2.0; w * h], w, h, 0)[0];
         assert_eq!((d.x, d.y, d.area_px), (6.0, 2.0, 27.0));
         assert!((d.major_axis_px - 4.0 * (80.0f64 / 12.0).sqrt()).abs() < 1e-9);
         assert!((d.minor_axis_px - 4.0 * (8.0f64 / 12.0).sqrt()).abs() < 1e-9);

@@ -126,18 +126,18 @@ fn segment_finite(
     }
     label::fill_holes(&mut mask, w, h);
     let cues = split::IntensityCues::new(values, noise, blobs::BlobRule::new(params.diameter_px, noise));
-    let (mut labels, foreground) =
+    let mut foreground =
         split::split_touching_with_pixels(&mask, w, h, params.seed_h_px, params.distance_smoothing_px, Some(&cues));
     let expected_area = std::f64::consts::PI * params.diameter_px * params.diameter_px / 4.0;
-    let clusters_cut = cluster::cut_oversized(&mut labels, &foreground, w, params.max_area_px, expected_area);
-    let (count, before) =
-        label::filter_and_relabel_counted(&mut labels, &foreground, params.min_area_px, f64::INFINITY);
+    let clusters_cut = cluster::cut_oversized(&mut foreground, w, params.max_area_px, expected_area);
+    let (count, before) = label::filter_and_relabel_counted(&mut foreground, params.min_area_px, f64::INFINITY);
     let size_filter = SizeFilterCounts {
         dropped_small: before - count as usize,
         clusters_cut,
     };
     let intensity = raw.as_slice().expect("standard layout");
-    let detections = measure::measure_objects(&labels, &foreground, count, intensity, w, h, frame);
+    let detections = measure::measure_objects(&foreground, count, intensity, w, h, frame);
+    let labels = foreground.label_image(raw.len());
     let segmentation = FrameSegmentation {
         frame,
         threshold,

@@ -5,6 +5,7 @@
 
 use super::blobs::{split_basins_at_blobs, BlobResponse, BlobRule};
 use super::hmaxima::h_maxima_seeds;
+use super::label::Foreground;
 use super::{distance_transform, watershed};
 use crate::numeric::Grid;
 use crate::preprocess::{gaussian_blur, gaussian_radius};
@@ -76,15 +77,16 @@ pub fn split_touching(
     seed_h_px: f64,
     distance_smoothing_px: f64,
 ) -> Vec<u32> {
-    split_touching_with_pixels(mask, width, height, seed_h_px, distance_smoothing_px, None).0
+    let foreground = split_touching_with_pixels(mask, width, height, seed_h_px, distance_smoothing_px, None);
+    foreground.label_image(mask.len())
 }
 
-/// [`split_touching`], also returning every foreground pixel's index (grouped by component),
-/// so later stages can visit the objects without scanning the frame. With `intensity` (the
-/// prepared frame, its background noise σ and the blob rule), seeds and flooding use the
-/// distance weighted by the intensity (see [`intensity_weighted`]) instead of the distance
-/// alone, each basin is split again at its own level ([`each_basin_on_its_own`]), and then at
-/// its blob centres ([`split_basins_at_blobs`]).
+/// [`split_touching`] as the frame's foreground pixels and their labels (grouped by
+/// component), so later stages can visit the objects without scanning the frame. With
+/// `intensity` (the prepared frame, its background noise σ and the blob rule), seeds and
+/// flooding use the distance weighted by the intensity (see [`intensity_weighted`]) instead of
+/// the distance alone, each basin is split again at its own level
+/// ([`each_basin_on_its_own`]), and then at its blob centres ([`split_basins_at_blobs`]).
 pub(crate) fn split_touching_with_pixels(
     mask: &[bool],
     width: usize,
@@ -92,11 +94,9 @@ pub(crate) fn split_touching_with_pixels(
     seed_h_px: f64,
     distance_smoothing_px: f64,
     intensity: Option<&IntensityCues>,
-) -> (Vec<u32>, Vec<u32>) {
+) -> Foreground {
     let (pixels, components) = find_components(mask, width, height);
-    // Background pixels keep the 0 written here, foreground ones get their label below (written
-    // first rather than taken zeroed, so that those writes do not fault: see `filled`).
-    let mut labels = crate::numeric::filled(mask.len(), 0u32);
+    let mut labels = Vec::with_capacity(pixels.len());
     let pad = if distance_smoothing_px > 0.0 {
         gaussian_radius(distance_smoothing_px as f32).max(1)
     } else {
@@ -122,14 +122,14 @@ pub(crate) fn split_touching_with_pixels(
             distance_smoothing_px,
         );
         let mut most = 0;
-        for (&p, &i) in own.iter().zip(&at) {
+        for &i in &at {
             let l = local[i as usize];
-            labels[p as usize] = if l == 0 { 0 } else { next + l };
+            labels.push(if l == 0 { 0 } else { next + l });
             most = most.max(l);
         }
         next += most;
     }
-    (labels, pixels)
+    Foreground { pixels, labels }
 }
 
 /// The 8-connected components of `mask` in raster order of their first pixel, with all their
@@ -564,7 +564,8 @@ mod tests {
         let (mask, values, w, h) = pressed_pair();
         let shape_only = split_touching(&mask, w, h, 0.14, 1.0);
         assert_eq!(object_sizes(&shape_only).len(), 1);
-        let (labels, _) = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)));
+        let labels = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)))
+            .label_image(mask.len());
         let sizes = object_sizes(&labels);
         assert_eq!(sizes.len(), 2, "{sizes:?}");
         let seam = (0..w * h).filter(|&i| mask[i] && values[i] < 50.0).count();
@@ -614,7 +615,8 @@ mod tests {
         let pair_share = (0..w * h).filter(|&i| pair((i % w) as f64, (i / w) as f64)).count() as f64
             / mask.iter().filter(|&&m| m).count() as f64;
         assert!(pair_share < 0.1, "{pair_share}");
-        let (labels, _) = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)));
+        let labels = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)))
+            .label_image(mask.len());
         let (left, right) = (labels[48 * w + 26], labels[48 * w + 37]);
         assert!(left > 0 && right > 0);
         assert_ne!(left, right, "the pair is two nuclei");
@@ -627,7 +629,8 @@ mod tests {
         // the seam's dip (from about 8 px beside the seam to 8 x 0.4 = 3.2 px in it, 4.8 px
         // deep) is below twice that (6.4 px), so it is one object.
         let (mask, values, w, h) = pressed_pair();
-        let (labels, _) = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 40.0)));
+        let labels = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 40.0)))
+            .label_image(mask.len());
         assert_eq!(object_sizes(&labels).len(), 1);
     }
 }
