@@ -41,12 +41,27 @@ pub fn tophat_in_place(image: &mut Image, window: usize, smooth_sigma: f32) {
 /// rows (by [`TophatMinima::take_rows`], e.g. as a filter made them, so that the frame is not
 /// read once more for them); `minima` is `None` exactly where [`TophatMinima::new`] is.
 pub fn tophat_in_place_from(image: &mut Image, window: usize, smooth_sigma: f32, minima: Option<TophatMinima>) {
+    tophat_in_place_watched(image, window, smooth_sigma, minima, &mut |_| {});
+}
+
+/// [`tophat_in_place_from`], handing every row of the result to `watch` once, in order, in
+/// runs of whole rows, as it is finished.
+pub fn tophat_in_place_watched(
+    image: &mut Image,
+    window: usize,
+    smooth_sigma: f32,
+    minima: Option<TophatMinima>,
+    watch: &mut dyn FnMut(&[f32]),
+) {
     let dim = image.dim();
     match minima {
         Some(minima) => {
             let (small, factor) = reduced_background(minima, window, smooth_sigma);
             let values = image.as_slice_mut().expect("standard layout");
-            upsample_bilinear_with(&small, factor, dim, values, subtract_blend);
+            upsample_bilinear_with(&small, factor, dim, values, |row, top, bottom, fy| {
+                subtract_blend(row, top, bottom, fy);
+                watch(row);
+            });
         }
         None => {
             let background = gaussian_blur(&grey_opening_square(image, window), smooth_sigma);
@@ -56,6 +71,7 @@ pub fn tophat_in_place_from(image: &mut Image, window: usize, smooth_sigma: f32,
                 .iter_mut()
                 .zip(background)
                 .for_each(|(v, &b)| *v = (*v - b).max(0.0));
+            watch(values);
         }
     }
 }

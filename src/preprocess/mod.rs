@@ -7,7 +7,7 @@ mod noise;
 
 pub use background::{
     background_estimate, grey_opening_square, max_filter_square, min_filter_square, tophat, tophat_in_place,
-    tophat_in_place_from, TophatMinima,
+    tophat_in_place_from, tophat_in_place_watched, TophatMinima,
 };
 pub use gaussian::{
     convolve_separable, filters_on_this_thread, gaussian_blur, gaussian_blur_watched, gaussian_derivative_kernel,
@@ -24,9 +24,16 @@ use crate::params::{BackgroundMethod, SegmentParams};
 /// The top-hat's block minima are taken from the smoothed rows as the filter makes them
 /// ([`gaussian_blur_watched`]), rather than by reading the smoothed frame once more.
 pub fn prepare(raw: &Image, params: &SegmentParams) -> Image {
+    prepare_watched(raw, params, &mut |_| {})
+}
+
+/// [`prepare`], handing every row of the result to `watch` once, in order, in runs of whole
+/// rows, as it is finished (while it is still in the cache): a later stage that reads every
+/// value (the threshold's range) then needs no pass of its own over the frame.
+pub fn prepare_watched(raw: &Image, params: &SegmentParams, watch: &mut dyn FnMut(&[f32])) -> Image {
     let sigma = params.smoothing_sigma_px as f32;
     match params.background {
-        BackgroundMethod::None => gaussian_blur(raw, sigma),
+        BackgroundMethod::None => gaussian_blur_watched(raw, sigma, watch),
         BackgroundMethod::Tophat => {
             let (h, w) = raw.dim();
             let window = background_window(params.diameter_px);
@@ -36,7 +43,7 @@ pub fn prepare(raw: &Image, params: &SegmentParams) -> Image {
                     m.take_rows(rows);
                 }
             });
-            tophat_in_place_from(&mut smoothed, window, (params.diameter_px / 2.0) as f32, minima);
+            tophat_in_place_watched(&mut smoothed, window, (params.diameter_px / 2.0) as f32, minima, watch);
             smoothed
         }
     }
@@ -84,6 +91,18 @@ mod tests {
                 filters_on_this_thread(|| prepare(&raw, &params)),
                 want,
                 "diameter {diameter_px}, on this thread"
+            );
+            // What is watched is every row of the result once, in order, in whole rows.
+            let mut watched = Vec::new();
+            let prepared = prepare_watched(&raw, &params, &mut |rows| {
+                assert_eq!(rows.len() % w, 0, "whole rows");
+                watched.extend_from_slice(rows);
+            });
+            assert_eq!(prepared, want, "diameter {diameter_px}, watched");
+            assert_eq!(
+                watched,
+                want.as_slice().unwrap(),
+                "diameter {diameter_px}, the rows watched"
             );
         }
     }

@@ -21,7 +21,7 @@ pub use split::split_touching;
 
 use crate::image2d::Image;
 use crate::params::{SegmentParams, ThresholdMethod};
-use crate::preprocess::prepare;
+use crate::preprocess::prepare_watched;
 use crate::tracks::Detection;
 use threshold::Histogram;
 
@@ -107,9 +107,11 @@ fn segment_finite(
     params: &SegmentParams,
 ) -> (FrameSegmentation, Image) {
     let (h, w) = raw.dim();
-    let prepared = prepare(raw, params);
+    // The threshold's histogram takes its range from the rows as they are prepared.
+    let mut range = threshold::ValueRange::default();
+    let prepared = prepare_watched(raw, params, &mut |rows| range.take(rows));
     let values = prepared.as_slice().expect("standard layout");
-    let threshold = choose_threshold(values, params.threshold);
+    let threshold = choose_threshold_within(values, params.threshold, range.extremes());
     let above = f32_below_or_at(threshold);
     let mut mask = above_level(values, above);
     let noise = background_noise(values, &mask);
@@ -228,10 +230,16 @@ fn replace_nonfinite(raw: &Image) -> (std::borrow::Cow<'_, Image>, usize) {
 /// The threshold for one prepared frame. A frame without contrast (all one value) gets an
 /// infinite threshold: nothing is foreground.
 pub fn choose_threshold(values: &[f32], method: ThresholdMethod) -> f64 {
+    choose_threshold_within(values, method, threshold::min_max_all_finite(values))
+}
+
+/// [`choose_threshold`] with the values' extremes already found (see
+/// [`Histogram::of_f32_within`]).
+fn choose_threshold_within(values: &[f32], method: ThresholdMethod, extremes: Option<(f32, f32)>) -> f64 {
     if let ThresholdMethod::Fixed(t) = method {
         return t;
     }
-    let Some(hist) = Histogram::of_f32(values, THRESHOLD_BINS) else {
+    let Some(hist) = Histogram::of_f32_within(values, THRESHOLD_BINS, extremes) else {
         return f64::INFINITY;
     };
     if hist.counts.iter().filter(|&&c| c > 0).count() < 2 {
@@ -248,6 +256,7 @@ pub fn choose_threshold(values: &[f32], method: ThresholdMethod) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::preprocess::prepare;
 
     #[test]
     fn the_masks_above_a_level_are_the_comparisons_on_every_level() {

@@ -45,7 +45,14 @@ impl Histogram {
     /// As [`Histogram::of_floats`] over `f32` values, with the range found in `f32` (exact:
     /// every `f32` is an `f64`), for whole frames.
     pub fn of_f32(values: &[f32], nbins: usize) -> Option<Histogram> {
-        let Some((lo, hi)) = min_max_all_finite(values) else {
+        Self::of_f32_within(values, nbins, min_max_all_finite(values))
+    }
+
+    /// [`Histogram::of_f32`] with the values' extremes already found (as
+    /// `min_max_all_finite` finds them: `None` when a value is not finite or there are
+    /// none), e.g. by a [`ValueRange`] as the values were made.
+    pub fn of_f32_within(values: &[f32], nbins: usize, extremes: Option<(f32, f32)>) -> Option<Histogram> {
+        let Some((lo, hi)) = extremes else {
             return Self::of_floats(values.iter().map(|&v| v as f64), nbins);
         };
         let (lo, hi) = widened_range(lo as f64, hi as f64);
@@ -112,13 +119,43 @@ fn widened_range(lo: f64, hi: f64) -> (f64, f64) {
     }
 }
 
+/// The extremes of values met in runs (e.g. a frame's rows as a stage finishes them), as
+/// `min_max_all_finite` finds them over all the values at once: the histogram's range
+/// without a pass of its own over the frame.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct ValueRange {
+    /// The smallest and largest value of the runs so far, all finite.
+    extremes: Option<(f32, f32)>,
+    /// Whether a value met so far is not finite.
+    not_finite: bool,
+}
+
+impl ValueRange {
+    /// Takes in a run of values.
+    pub fn take(&mut self, values: &[f32]) {
+        match (min_max_all_finite(values), self.extremes) {
+            (None, _) => self.not_finite |= !values.is_empty(),
+            (Some(run), None) => self.extremes = Some(run),
+            (Some((lo, hi)), Some((low, high))) => {
+                self.extremes = Some((if lo < low { lo } else { low }, if hi > high { hi } else { high }));
+            }
+        }
+    }
+
+    /// The smallest and largest value met when every one was finite; `None` when one was not
+    /// or there were none.
+    pub fn extremes(&self) -> Option<(f32, f32)> {
+        self.extremes.filter(|_| !self.not_finite)
+    }
+}
+
 crate::multiversioned! {
     /// Smallest and largest value when every value is finite; `None` when one is not or there
     /// are none. One pass over sixteen lanes (one AVX-512 register, two AVX2), the finiteness
     /// read from the exponent bits, so that the loop vectorises. The extremes do not depend on
     /// the order the values are met in (only which of +0 and −0 is kept for a zero extreme
     /// can, and the two are equal in every later comparison and difference).
-    fn min_max_all_finite / min_max_all_finite_with(values: &[f32]) -> Option<(f32, f32)> {
+    pub(crate) fn min_max_all_finite / min_max_all_finite_with(values: &[f32]) -> Option<(f32, f32)> {
         const LANES: usize = 16;
         const EXPONENT: u32 = 0x7f80_0000;
         let first = *values.first()?;
@@ -475,6 +512,37 @@ mod tests {
                     assert_eq!(min_max_all_finite_with(level, &values), None, "{level:?} {bad} at {at}");
                 }
             }
+        }
+    }
+
+    #[test]
+    fn a_range_taken_in_runs_is_the_range_of_all_the_values() {
+        // Source: the definition (the smallest and largest of all the values, none when one is
+        // not finite or there are none), by a plain scalar fold over all of them, whatever
+        // runs they come in: runs cut at random places, empty runs among them, a non-finite
+        // value (+∞, −∞, NaN) in any run.
+        let mut rng = crate::numeric::Rng::new(23);
+        for case in 0..200 {
+            let n = (rng.next_u64() % 90) as usize;
+            let mut values: Vec<f32> = (0..n).map(|_| (rng.uniform() * 3000.0 - 1000.0) as f32).collect();
+            if case % 5 == 0 && n > 0 {
+                let at = (rng.next_u64() % n as u64) as usize;
+                values[at] = [f32::INFINITY, f32::NEG_INFINITY, f32::NAN][case % 3];
+            }
+            let want = values.iter().all(|v| v.is_finite()) && n > 0;
+            let want = want.then(|| {
+                let lo = values.iter().copied().fold(f32::INFINITY, f32::min);
+                (lo, values.iter().copied().fold(f32::NEG_INFINITY, f32::max))
+            });
+            let mut range = ValueRange::default();
+            let mut start = 0;
+            while start < n {
+                let end = (start + (rng.next_u64() % 20) as usize).min(n);
+                range.take(&values[start..end]);
+                start = end;
+            }
+            range.take(&[]);
+            assert_eq!(range.extremes(), want, "case {case}");
         }
     }
 
