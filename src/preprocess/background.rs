@@ -34,18 +34,14 @@ pub fn tophat(image: &Image, window: usize, smooth_sigma: f32) -> Image {
 /// subtracted in the same pass, without a full-size background image.
 pub fn tophat_in_place(image: &mut Image, window: usize, smooth_sigma: f32) {
     let minima = TophatMinima::of_image(image, window);
-    tophat_in_place_from(image, window, smooth_sigma, minima);
+    tophat_in_place_watched(image, window, smooth_sigma, minima, &mut |_| {});
 }
 
 /// [`tophat_in_place`] with the block minima of the reduced grid already taken from `image`'s
 /// rows (by [`TophatMinima::take_rows`], e.g. as a filter made them, so that the frame is not
-/// read once more for them); `minima` is `None` exactly where [`TophatMinima::new`] is.
-pub fn tophat_in_place_from(image: &mut Image, window: usize, smooth_sigma: f32, minima: Option<TophatMinima>) {
-    tophat_in_place_watched(image, window, smooth_sigma, minima, &mut |_| {});
-}
-
-/// [`tophat_in_place_from`], handing every row of the result to `watch` once, in order, in
-/// runs of whole rows, as it is finished.
+/// read once more for them; `minima` is `None` exactly where [`TophatMinima::new`] is),
+/// handing every row of the result to `watch` once, in order, in runs of whole rows, as it is
+/// finished.
 pub fn tophat_in_place_watched(
     image: &mut Image,
     window: usize,

@@ -1141,9 +1141,10 @@ mod tests {
         // Source: gaussian_laplace (checked against scipy.ndimage.gaussian_laplace in
         // tests/reference.rs): the sparse evaluation must give the same numbers at the
         // pixels asked for, also next to the frame's edges where the kernel reflects: pixels
-        // spread over the frame, a small object inside it (a box narrower than a vector, whose
-        // rows are filtered end to end), one in a corner, one across the frame.
-        let (w, h) = (37, 23);
+        // spread over the frame, a small object well inside it (a box narrower than a vector),
+        // one whose kernel reaches exactly the frame's last row and column, four whose kernel
+        // reaches one pixel past an edge, one in a corner, one across the frame.
+        let (w, h) = (61, 47);
         let values: Vec<f32> = (0..w * h).map(|i| ((i * 7919) % 263) as f32 + (i % w) as f32).collect();
         let image = crate::image2d::from_vec(w, h, values.clone());
         let whole = gaussian_laplace(&image, 2.3);
@@ -1159,7 +1160,16 @@ mod tests {
             .map(|p| p as u32)
             .collect();
         let row: Vec<u32> = (0..w as u32).map(|x| 9 * w as u32 + x).collect();
-        for pixels in [spread, disc(18, 11, 4), disc(1, 21, 3), row] {
+        // σ 2.3 cut at 4: the kernel reaches 9 pixels either side.
+        let at_the_reach = disc(w - 1 - 9 - 3, h - 1 - 9 - 3, 3);
+        let one_past_it = [
+            disc(w - 9 - 3, 20, 3),
+            disc(20, h - 9 - 3, 3),
+            disc(8 + 3, 20, 3),
+            disc(20, 8 + 3, 3),
+        ];
+        let cases = [spread, disc(30, 23, 4), at_the_reach, disc(1, h - 2, 3), row];
+        for pixels in cases.into_iter().chain(one_past_it) {
             let at = LaplaceKernels::new(2.3, 4.0).at(&values, w, &pixels);
             for (&p, v) in pixels.iter().zip(at) {
                 assert_eq!(v.to_bits(), whole[p as usize].to_bits(), "pixel {p}");

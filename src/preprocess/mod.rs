@@ -7,7 +7,7 @@ mod noise;
 
 pub use background::{
     background_estimate, grey_opening_square, max_filter_square, min_filter_square, tophat, tophat_in_place,
-    tophat_in_place_from, tophat_in_place_watched, TophatMinima,
+    tophat_in_place_watched, TophatMinima,
 };
 pub use gaussian::{
     convolve_separable, filters_on_this_thread, gaussian_blur, gaussian_blur_watched, gaussian_derivative_kernel,

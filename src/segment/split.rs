@@ -77,7 +77,7 @@ pub fn split_touching(
     seed_h_px: f64,
     distance_smoothing_px: f64,
 ) -> Vec<u32> {
-    let foreground = split_touching_with_pixels(mask, width, height, seed_h_px, distance_smoothing_px, None);
+    let foreground = split_touching_foreground(mask, width, height, seed_h_px, distance_smoothing_px, None);
     foreground.label_image(mask.len())
 }
 
@@ -87,7 +87,7 @@ pub fn split_touching(
 /// flooding use the distance weighted by the intensity (see [`intensity_weighted`]) instead of
 /// the distance alone, each basin is split again at its own level
 /// ([`each_basin_on_its_own`]), and then at its blob centres ([`split_basins_at_blobs`]).
-pub(crate) fn split_touching_with_pixels(
+pub(crate) fn split_touching_foreground(
     mask: &[bool],
     width: usize,
     height: usize,
@@ -564,7 +564,7 @@ mod tests {
         let (mask, values, w, h) = pressed_pair();
         let shape_only = split_touching(&mask, w, h, 0.14, 1.0);
         assert_eq!(object_sizes(&shape_only).len(), 1);
-        let labels = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)))
+        let labels = split_touching_foreground(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)))
             .label_image(mask.len());
         let sizes = object_sizes(&labels);
         assert_eq!(sizes.len(), 2, "{sizes:?}");
@@ -615,7 +615,7 @@ mod tests {
         let pair_share = (0..w * h).filter(|&i| pair((i % w) as f64, (i / w) as f64)).count() as f64
             / mask.iter().filter(|&&m| m).count() as f64;
         assert!(pair_share < 0.1, "{pair_share}");
-        let labels = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)))
+        let labels = split_touching_foreground(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)))
             .label_image(mask.len());
         let (left, right) = (labels[48 * w + 26], labels[48 * w + 37]);
         assert!(left > 0 && right > 0);
@@ -629,7 +629,7 @@ mod tests {
         // the seam's dip (from about 8 px beside the seam to 8 x 0.4 = 3.2 px in it, 4.8 px
         // deep) is below twice that (6.4 px), so it is one object.
         let (mask, values, w, h) = pressed_pair();
-        let labels = split_touching_with_pixels(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 40.0)))
+        let labels = split_touching_foreground(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 40.0)))
             .label_image(mask.len());
         assert_eq!(object_sizes(&labels).len(), 1);
     }

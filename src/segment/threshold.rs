@@ -120,8 +120,8 @@ fn widened_range(lo: f64, hi: f64) -> (f64, f64) {
 }
 
 /// The extremes of values met in runs (e.g. a frame's rows as a stage finishes them), as
-/// `min_max_all_finite` finds them over all the values at once: the histogram's range
-/// without a pass of its own over the frame.
+/// `min_max_all_finite` finds them over all the values at once (up to which of +0 and −0 a
+/// zero extreme is, as there): the histogram's range without a pass of its own over the frame.
 #[derive(Debug, Clone, Copy, Default)]
 pub struct ValueRange {
     /// The smallest and largest value of the runs so far, all finite.
