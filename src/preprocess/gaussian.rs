@@ -700,8 +700,8 @@ crate::multiversioned! {
     /// into the next row for lanes past the band (dropped), the last rows' blocks taking zeros
     /// past the values ([`filter_tail`]): for a small object's box (14 columns, a reach of 11
     /// either side) 16 sums a row instead of the 36 of running over the rows end to end, as
-    /// this did before (`LaplaceKernels::at`'s row pass 4.5% → 2.8% of a frame's samples).
-    /// The same sums, so the same bits.
+    /// this did before (`LaplaceKernels::at`'s row pass about 4.4% → 2.8% of a frame's
+    /// samples). The same sums, so the same bits.
     fn filter_steps_pair_kept / filter_steps_pair_kept_with(
         out_a: &mut [f32],
         out_b: &mut [f32],
