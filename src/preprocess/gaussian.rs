@@ -716,18 +716,15 @@ crate::multiversioned! {
         }
         let reach = kernel_a.len().saturating_sub(1);
         let rows = out_a.len() / band;
-        // Whether the block of 16 at column `x` of row `j` lies within `src`.
-        let whole = |j: usize, x: usize| j * stride + x + reach + 16 <= src.len();
-        let mut j = 0;
-        while j < rows {
+        let mut put = |row: usize, x: usize, [a, b]: [&[f32]; 2]| {
+            out_a[row * band + x..row * band + x + a.len()].copy_from_slice(a);
+            out_b[row * band + x..row * band + x + b.len()].copy_from_slice(b);
+        };
+        for j in (0..rows).step_by(2) {
             for x in (0..band).step_by(16) {
                 let take = (band - x).min(16);
-                let mut put = |j: usize, x: usize, [a, b]: [&[f32]; 2]| {
-                    out_a[j * band + x..j * band + x + a.len()].copy_from_slice(a);
-                    out_b[j * band + x..j * band + x + b.len()].copy_from_slice(b);
-                };
-                if j + 1 < rows && whole(j + 1, x) {
-                    let (first, second) = (j * stride + x, (j + 1) * stride + x);
+                let (first, second) = (j * stride + x, (j + 1) * stride + x);
+                if j + 1 < rows && second + reach + 16 <= src.len() {
                     let line = |m: usize, k: usize| {
                         let at = if m < 2 { first } else { second } + k;
                         &src[at..at + 16]
@@ -735,15 +732,16 @@ crate::multiversioned! {
                     let sums = filter_block::<16, 4>(&line, [kernel_a, kernel_b, kernel_a, kernel_b]);
                     put(j, x, [&sums[0][..take], &sums[1][..take]]);
                     put(j + 1, x, [&sums[2][..take], &sums[3][..take]]);
-                } else {
-                    for row in j..(j + 2).min(rows) {
-                        let start = row * stride;
-                        let mut emit = |x: usize, sums: [&[f32]; 2]| put(row, x, sums);
-                        filter_tail::<16, 2>(x + take, x, &|_, k| &src[start + k..], [kernel_a, kernel_b], &mut emit);
-                    }
+                    continue;
+                }
+                // The last row, or the last two where the second's block would run past the
+                // values: a row at a time, zeros past them.
+                for row in j..(j + 2).min(rows) {
+                    let start = row * stride;
+                    let line = |_, k: usize| &src[start + k..];
+                    filter_tail::<16, 2>(x + take, x, &line, [kernel_a, kernel_b], &mut |x, sums| put(row, x, sums));
                 }
             }
-            j += 2;
         }
     }
 }
@@ -961,8 +959,8 @@ mod tests {
     #[test]
     fn rows_filter_at_their_band_as_the_definition() {
         // Source: the definition of the filter (each output's taps summed in tap order along
-        // its row) and IEEE 754 lane-by-lane rounding: rows `stride` apart filtered end to
-        // end and kept at their first `band` outputs, `band` apart, equal it bit for bit on
+        // its row) and IEEE 754 lane-by-lane rounding: rows `stride` apart filtered and kept
+        // at their first `band` outputs, `band` apart, equal it bit for bit on
         // every level, for bands of one pixel to wider than a block, strides just long enough
         // for the taps and longer, one row to many (odd and even counts: rows go in pairs),
         // the values ending with the last row or running on past it.

@@ -182,11 +182,11 @@ pub fn filter_and_relabel(labels: &mut [u32], min_area: f64, max_area: f64) -> u
     count
 }
 
-/// A frame's foreground pixels and the label of each, in one order (grouped by component):
-/// what the stages after the split (the cluster cut, the size filter, the measures) read and
-/// relabel, so that none of them gathers the labels from a frame-sized image, and the label
-/// image is written once, at the end ([`Foreground::label_image`]), instead of at every stage
-/// that changes a label.
+/// A frame's foreground pixels and the label of each, in one order (any; the split's groups
+/// them by component): what the stages after the split (the cluster cut, the size filter, the
+/// measures) read and relabel, so that none of them gathers the labels from a frame-sized
+/// image, and the label image is written once, at the end ([`Foreground::label_image`]),
+/// instead of at every stage that changes a label.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Foreground {
     /// Pixel indices in the frame.
