@@ -122,9 +122,9 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
     let mut out = vec![0f32; h * w];
     let bands = out.par_chunks_mut(BAND_ROWS * w).enumerate();
     bands.with_min_len(bands_per_task()).for_each(|(band, dst)| {
-        by_strips(dst, w, band * BAND_ROWS, |out, y, x0| {
+        by_strip_pairs(dst, w, band * BAND_ROWS, |upper, lower, y, x0| {
             let at = y * stride + x0;
-            filter_steps_sum(out, &with_g2[at..], &with_g0[at..], stride, &g0, &g2);
+            laplace_rows(upper, lower, (&with_g2[at..], &with_g0[at..]), stride, (&g0, &g2));
         });
     });
     scratch::give_back(spare);
@@ -174,9 +174,9 @@ pub fn laplace_by_bands(image: &Image, sigma: f32, mut each_band: impl FnMut(usi
             }
         });
         let out = &mut band_out[..band.rows * w];
-        by_strips(out, w, 0, |o, y, x0| {
+        by_strip_pairs(out, w, 0, |upper, lower, y, x0| {
             let at = y * stride + x0;
-            filter_steps_sum(o, &with_g2[at..], &with_g0[at..], stride, &g0, &g2);
+            laplace_rows(upper, lower, (&with_g2[at..], &with_g0[at..]), stride, (&g0, &g2));
         });
         each_band(band.top, out);
         with_g0.copy_within(band.carried(stride), 0);
@@ -215,6 +215,43 @@ fn by_strips(dst: &mut [f32], w: usize, first: usize, mut filter: impl FnMut(&mu
         let x1 = (x0 + STRIP).min(w);
         for (i, row) in dst.chunks_exact_mut(w).enumerate() {
             filter(&mut row[x0..x1], first + i, x0);
+        }
+        x0 = x1;
+    }
+}
+
+/// The column pass of a Laplacian of Gaussian ([`filter_steps_sum`]) for output row `upper`
+/// and, when given, the row below it, `lower`, from the rows filtered across `(a, b)` under
+/// the taps of `(kernel_a, kernel_b)`.
+fn laplace_rows(
+    upper: &mut [f32],
+    lower: Option<&mut [f32]>,
+    (a, b): (&[f32], &[f32]),
+    step: usize,
+    (kernel_a, kernel_b): (&[f32], &[f32]),
+) {
+    match lower {
+        Some(lower) => filter_steps_sum_two_rows(upper, lower, (a, b), step, (kernel_a, kernel_b)),
+        None => filter_steps_sum(upper, a, b, step, kernel_a, kernel_b),
+    }
+}
+
+/// [`by_strips`] two rows at a time: `filter(upper, lower, y, x0)` with the parts of rows `y`
+/// and `y + 1` (image rows, the first of `dst` being `first`) from column `x0` (`lower` is
+/// `None` for a last, odd row).
+fn by_strip_pairs(
+    dst: &mut [f32],
+    w: usize,
+    first: usize,
+    mut filter: impl FnMut(&mut [f32], Option<&mut [f32]>, usize, usize),
+) {
+    let mut x0 = 0;
+    while x0 < w {
+        let x1 = (x0 + STRIP).min(w);
+        for (i, pair) in dst.chunks_mut(2 * w).enumerate() {
+            let (upper, lower) = pair.split_at_mut(w.min(pair.len()));
+            let lower = (!lower.is_empty()).then(|| &mut lower[x0..x1]);
+            filter(&mut upper[x0..x1], lower, first + 2 * i, x0);
         }
         x0 = x1;
     }
@@ -468,8 +505,12 @@ fn convolve_in_bands(
         });
         // Zeroed a band at a time, in cache, just before the column pass writes it.
         out.resize((band.top + band.rows) * w, 0.0);
-        by_strips(&mut out[band.top * w..], w, 0, |o, y, x0| {
-            filter_steps(o, &across[y * stride + x0..], stride, kernel_y);
+        by_strip_pairs(&mut out[band.top * w..], w, 0, |upper, lower, y, x0| {
+            let src = &across[y * stride + x0..];
+            match lower {
+                Some(lower) => filter_steps_two_rows(upper, lower, src, stride, kernel_y),
+                None => filter_steps(upper, src, stride, kernel_y),
+            }
         });
         watch(&out[band.top * w..]);
         across.copy_within(band.carried(stride), 0);
@@ -669,6 +710,102 @@ crate::multiversioned! {
         let line = |_, k: usize| &src[k * step..];
         filter_lines(out.len(), line, [kernel], |x, [sums]| out[x..x + sums.len()].copy_from_slice(sums));
     }
+}
+
+crate::multiversioned! {
+    /// [`filter_steps`] of two output rows one `step` apart at once: `upper[x]` =
+    /// Σₖ `kernel[k]` · `src[k · step + x]` and `lower[x]` = Σₖ `kernel[k]` · `src[(k + 1) ·
+    /// step + x]`, each added in the order of the taps, so the same bits as two calls. The
+    /// rows under the taps are loaded once for both (each but the first and last feeds both
+    /// sums): a column pass waits on its loads (a value and its tap's broadcast per product),
+    /// not on its arithmetic.
+    fn filter_steps_two_rows / filter_steps_two_rows_with(
+        upper: &mut [f32],
+        lower: &mut [f32],
+        src: &[f32],
+        step: usize,
+        kernel: &[f32]
+    ) {
+        let n = upper.len();
+        let mut x = 0;
+        while x + BLOCK <= n {
+            let [a, b] = filter_block_two_rows::<BLOCK>(|k| src[k * step + x..k * step + x + BLOCK].try_into().expect("block"), kernel);
+            upper[x..x + BLOCK].copy_from_slice(&a);
+            lower[x..x + BLOCK].copy_from_slice(&b);
+            x += BLOCK;
+        }
+        if x < n {
+            let (upper, lower) = (&mut upper[x..], &mut lower[x..]);
+            filter_steps(upper, &src[x..], step, kernel);
+            filter_steps(lower, &src[step + x..], step, kernel);
+        }
+    }
+}
+
+crate::multiversioned! {
+    /// [`filter_steps_sum`] of two output rows one `step` apart at once, as
+    /// [`filter_steps_two_rows`] does for one kernel: each of the two sums of each row in the
+    /// order of its taps, then added, so the same bits as two calls.
+    fn filter_steps_sum_two_rows / filter_steps_sum_two_rows_with(
+        upper: &mut [f32],
+        lower: &mut [f32],
+        sources: (&[f32], &[f32]),
+        step: usize,
+        kernels: (&[f32], &[f32])
+    ) {
+        let ((a, b), (kernel_a, kernel_b)) = (sources, kernels);
+        let n = upper.len();
+        let mut x = 0;
+        while x + BLOCK <= n {
+            let block = |src: &[f32], k: usize| -> [f32; BLOCK] {
+                src[k * step + x..k * step + x + BLOCK].try_into().expect("block")
+            };
+            let [upper_a, lower_a] = filter_block_two_rows::<BLOCK>(|k| block(a, k), kernel_a);
+            let [upper_b, lower_b] = filter_block_two_rows::<BLOCK>(|k| block(b, k), kernel_b);
+            for (o, (p, q)) in upper[x..x + BLOCK].iter_mut().zip(upper_a.iter().zip(&upper_b)) {
+                *o = p + q;
+            }
+            for (o, (p, q)) in lower[x..x + BLOCK].iter_mut().zip(lower_a.iter().zip(&lower_b)) {
+                *o = p + q;
+            }
+            x += BLOCK;
+        }
+        if x < n {
+            filter_steps_sum(&mut upper[x..], &a[x..], &b[x..], step, kernel_a, kernel_b);
+            filter_steps_sum(&mut lower[x..], &a[step + x..], &b[step + x..], step, kernel_a, kernel_b);
+        }
+    }
+}
+
+/// The sums of [`filter_steps_two_rows`] over one block of `N` pixels, `row(j)` being the
+/// values of the `j`-th row under the taps (`0..=taps`): row `j` adds its product with tap
+/// `j` to the upper sum and with tap `j − 1` to the lower one, so that each sum still takes
+/// its taps in order and its first product as its start.
+#[inline(always)]
+fn filter_block_two_rows<const N: usize>(row: impl Fn(usize) -> [f32; N], kernel: &[f32]) -> [[f32; N]; 2] {
+    let taps = kernel.len();
+    let mut upper = [0f32; N];
+    let mut lower = [0f32; N];
+    if taps == 0 {
+        return [upper, lower];
+    }
+    let first = row(0);
+    upper.iter_mut().zip(first).for_each(|(a, v)| *a = kernel[0] * v);
+    let second = row(1);
+    lower.iter_mut().zip(second).for_each(|(a, v)| *a = kernel[0] * v);
+    if taps > 1 {
+        upper.iter_mut().zip(second).for_each(|(a, v)| *a += kernel[1] * v);
+    }
+    for j in 2..taps {
+        let v = row(j);
+        upper.iter_mut().zip(v).for_each(|(a, v)| *a += kernel[j] * v);
+        lower.iter_mut().zip(v).for_each(|(a, v)| *a += kernel[j - 1] * v);
+    }
+    if taps > 1 {
+        let v = row(taps);
+        lower.iter_mut().zip(v).for_each(|(a, v)| *a += kernel[taps - 1] * v);
+    }
+    [upper, lower]
 }
 
 crate::multiversioned! {
@@ -951,6 +1088,60 @@ mod tests {
                     assert_eq!((bits(&a), bits(&b)), (bits(&expected), bits(&expected_g2)), "{context}");
                     filter_steps_sum_with(level, &mut got, &src, &other, step, &g0, &g2);
                     assert_eq!(bits(&got), bits(&expected_sum), "{context}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn two_rows_at_once_filter_as_the_definition_on_every_level() {
+        // Source: the definition of the filter (each output's taps summed in tap order) and
+        // IEEE 754 lane-by-lane rounding (crate::simd): two output rows a step apart filtered
+        // at once, alone (`filter_steps_two_rows`) and as the sum of two sources' filters
+        // (`filter_steps_sum_two_rows`, the two definitions added last), equal it bit for bit
+        // for kernels of 1 to 25 taps, steps 1 and 75, widths 1..=140 (blocks and tails).
+        let (g0, g2) = (gaussian_derivative_kernel(1.3, 0), gaussian_derivative_kernel(1.3, 2));
+        let long = gaussian_derivative_kernel(3.0, 0);
+        let kernels: [&[f32]; 6] = [&[0.7], &[0.3, -1.1], &[0.25, 0.5, 0.25], &g0, &g2, &long];
+        let source = |seed: usize| -> Vec<f32> {
+            (0..75 * (long.len() + 2) + 140)
+                .map(|i| ((i * 7919 + seed) % 211) as f32 * 0.29 - 13.0)
+                .collect()
+        };
+        let (src, other) = (source(0), source(57));
+        let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        for step in [1usize, 75] {
+            for kernel in kernels {
+                let definition = |src: &[f32], kernel: &[f32], from: usize, n: usize| -> Vec<f32> {
+                    (0..n)
+                        .map(|x| in_tap_order(kernel, |k| src[from + k * step + x]))
+                        .collect()
+                };
+                let other_kernel: Vec<f32> = kernel.iter().rev().map(|w| w * 0.5 - 0.1).collect();
+                for n in 1..=140usize {
+                    let rows = [0, step].map(|from| definition(&src, kernel, from, n));
+                    let sums = [0, step].map(|from| {
+                        let a = definition(&src, kernel, from, n);
+                        let b = definition(&other, &other_kernel, from, n);
+                        a.iter().zip(&b).map(|(a, b)| a + b).collect::<Vec<f32>>()
+                    });
+                    for level in crate::simd::levels() {
+                        let context = format!("{level:?} step {step} width {n} taps {}", kernel.len());
+                        let (mut upper, mut lower) = (vec![f32::NAN; n], vec![f32::NAN; n]);
+                        filter_steps_two_rows_with(level, &mut upper, &mut lower, &src, step, kernel);
+                        assert_eq!(
+                            [bits(&upper), bits(&lower)],
+                            rows.each_ref().map(|r| bits(r)),
+                            "{context}"
+                        );
+                        let kernels = (kernel, &other_kernel[..]);
+                        filter_steps_sum_two_rows_with(level, &mut upper, &mut lower, (&src, &other), step, kernels);
+                        assert_eq!(
+                            [bits(&upper), bits(&lower)],
+                            sums.each_ref().map(|r| bits(r)),
+                            "{context}"
+                        );
+                    }
                 }
             }
         }
