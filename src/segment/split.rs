@@ -197,10 +197,7 @@ fn split_component(
         return vec![1; mask.len()];
     }
     let squared = distance_transform::squared_edt(mask, width, height, (1.0, 1.0));
-    let distance: Vec<f32> = squared
-        .iter()
-        .map(|&d| if d > 0.0 { d.sqrt() as f32 } else { 0.0 })
-        .collect();
+    let distance = distance_transform::distances_of_squares(&squared);
     let distance = if distance_smoothing_px > 0.0 {
         gaussian_blur(
             &crate::image2d::from_vec(width, height, distance),
