@@ -145,14 +145,12 @@ fn levels_of(h: f64) -> u32 {
 fn only_regional_maximum(levels: &[u32], mask: &[bool], width: usize, height: usize) -> Option<u32> {
     let around = neighbourhood_maxima(levels, width, height);
     // Pixels without a higher neighbour, found in one vectorised pass (most are on slopes).
-    let flat: Vec<bool> = (mask.iter().zip(levels.iter().zip(&around)))
-        .map(|(&m, (&l, &a))| m & (a <= l))
-        .collect();
+    let flat = without_higher_neighbour(mask, levels, &around);
     let grid = Grid::new(width, height);
     let mut visited = vec![false; levels.len()];
     let mut plateau = Vec::new();
     let mut found = None;
-    for start in (0..levels.len()).filter(|&p| flat[p]) {
+    for start in set_positions(&flat) {
         if visited[start] {
             continue;
         }
@@ -180,37 +178,67 @@ fn only_regional_maximum(levels: &[u32], mask: &[bool], width: usize, height: us
     found
 }
 
-/// The largest of each pixel's 3 x 3 neighbourhood (pixels past the edges left out): the
-/// maxima of three neighbouring columns in each row first, then of three rows of those.
-fn neighbourhood_maxima(levels: &[u32], width: usize, height: usize) -> Vec<u32> {
-    let mut across = levels.to_vec();
-    for (row, out) in levels
-        .chunks_exact(width.max(1))
-        .zip(across.chunks_exact_mut(width.max(1)))
-    {
-        for (o, &l) in out[1..].iter_mut().zip(row) {
-            *o = (*o).max(l);
-        }
-        for (o, &r) in out.iter_mut().zip(&row[1.min(row.len())..]) {
-            *o = (*o).max(r);
-        }
+crate::multiversioned! {
+    /// Whether each pixel is in `mask` and no neighbour is higher (`around`: the largest level
+    /// of its 3 x 3 neighbourhood). On the wider instruction levels, whose unsigned
+    /// comparisons take eight pixels at once.
+    fn without_higher_neighbour / without_higher_neighbour_with(mask: &[bool], levels: &[u32], around: &[u32]) -> Vec<bool> {
+        (mask.iter().zip(levels.iter().zip(around)))
+            .map(|(&m, (&l, &a))| m & (a <= l))
+            .collect()
     }
-    let mut around = across.clone();
-    let w = width.max(1);
-    for y in 0..height {
-        let out = &mut around[y * w..(y + 1) * w];
-        if y > 0 {
-            out.iter_mut()
-                .zip(&across[(y - 1) * w..y * w])
-                .for_each(|(o, &a)| *o = (*o).max(a));
+}
+
+/// The positions of the `true` values of `flags`, in order: pieces of 32 with none are
+/// passed over by one test each (a component's pixels without a higher neighbour are few).
+fn set_positions(flags: &[bool]) -> impl Iterator<Item = usize> + '_ {
+    flags.chunks(32).enumerate().flat_map(|(k, piece)| {
+        let any = piece.iter().fold(false, |any, &f| any | f);
+        let start = 32 * k;
+        piece
+            .iter()
+            .enumerate()
+            .take(if any { piece.len() } else { 0 })
+            .filter(|(_, &f)| f)
+            .map(move |(i, _)| start + i)
+    })
+}
+
+crate::multiversioned! {
+    /// The largest of each pixel's 3 x 3 neighbourhood (pixels past the edges left out): the
+    /// maxima of three neighbouring columns in each row first, then of three rows of those.
+    /// On the wider instruction levels, which have the unsigned maximum the baseline lacks
+    /// (AVX2's `vpmaxud`, eight pixels at once).
+    fn neighbourhood_maxima / neighbourhood_maxima_with(levels: &[u32], width: usize, height: usize) -> Vec<u32> {
+        let mut across = levels.to_vec();
+        for (row, out) in levels
+            .chunks_exact(width.max(1))
+            .zip(across.chunks_exact_mut(width.max(1)))
+        {
+            for (o, &l) in out[1..].iter_mut().zip(row) {
+                *o = (*o).max(l);
+            }
+            for (o, &r) in out.iter_mut().zip(&row[1.min(row.len())..]) {
+                *o = (*o).max(r);
+            }
         }
-        if y + 1 < height {
-            out.iter_mut()
-                .zip(&across[(y + 1) * w..(y + 2) * w])
-                .for_each(|(o, &a)| *o = (*o).max(a));
+        let mut around = across.clone();
+        let w = width.max(1);
+        for y in 0..height {
+            let out = &mut around[y * w..(y + 1) * w];
+            if y > 0 {
+                out.iter_mut()
+                    .zip(&across[(y - 1) * w..y * w])
+                    .for_each(|(o, &a)| *o = (*o).max(a));
+            }
+            if y + 1 < height {
+                out.iter_mut()
+                    .zip(&across[(y + 1) * w..(y + 2) * w])
+                    .for_each(|(o, &a)| *o = (*o).max(a));
+            }
         }
+        around
     }
-    around
 }
 
 /// The reconstruction by dilation of `levels − h_levels` (floored at 0) under `levels` (0
@@ -476,6 +504,48 @@ mod tests {
             }
         }
         (want, count)
+    }
+
+    #[test]
+    fn neighbourhood_maxima_and_flat_pixels_by_definition_on_every_level() {
+        // Source: definition (a pixel's 3 x 3 maximum over the neighbours inside the image;
+        // a pixel is flat when it is in the mask and none of them is higher), brute force,
+        // on random levels with many ties, one-row and one-column images included, every
+        // instruction level; and the positions of the flat pixels in order, as a filter over
+        // all of them gives.
+        let mut rng = crate::numeric::Rng::new(31);
+        for (w, h) in [(1usize, 1usize), (1, 9), (9, 1), (7, 5), (40, 33), (65, 3)] {
+            let levels: Vec<u32> = (0..w * h)
+                .map(|_| (rng.uniform() * 5.0) as u32 * 1_000_000_000)
+                .collect();
+            let mask: Vec<bool> = (0..w * h).map(|_| rng.uniform() < 0.8).collect();
+            let want: Vec<u32> = (0..w * h)
+                .map(|p| {
+                    let (x, y) = ((p % w) as isize, (p / w) as isize);
+                    let mut m = 0;
+                    for (dx, dy) in (-1..=1).flat_map(|dy| (-1..=1).map(move |dx| (dx, dy))) {
+                        let (u, v) = (x + dx, y + dy);
+                        if (0..w as isize).contains(&u) && (0..h as isize).contains(&v) {
+                            m = m.max(levels[v as usize * w + u as usize]);
+                        }
+                    }
+                    m
+                })
+                .collect();
+            let flat_want: Vec<bool> = (0..w * h).map(|p| mask[p] && want[p] <= levels[p]).collect();
+            for level in crate::simd::levels() {
+                let around = neighbourhood_maxima_with(level, &levels, w, h);
+                assert_eq!(around, want, "{level:?} {w} x {h}");
+                assert_eq!(
+                    without_higher_neighbour_with(level, &mask, &levels, &around),
+                    flat_want,
+                    "{level:?}"
+                );
+            }
+            let positions: Vec<usize> = set_positions(&flat_want).collect();
+            let by_filter: Vec<usize> = (0..w * h).filter(|&p| flat_want[p]).collect();
+            assert_eq!(positions, by_filter, "{w} x {h}");
+        }
     }
 
     #[test]
