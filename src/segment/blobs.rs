@@ -147,12 +147,28 @@ fn distinct_centres(labels: &[u32], blob: &[f32], rule: &BlobRule, width: usize,
     let basins = labels.iter().copied().max().unwrap_or(0) as usize;
     let grid = Grid::new(width, height);
     let mut centres: Vec<Vec<usize>> = vec![Vec::new(); basins + 1];
-    // Row by row, so that each pixel's column and row are known without a division.
+    // Row by row, so that each pixel's column and row are known without a division; the
+    // test of a row's inner pixels worked out for the row at once (vectorised), the pixels at
+    // the window's edges (with fewer neighbours) one by one.
+    let mut inner = vec![false; width.saturating_sub(2)];
     for (y, row) in labels.chunks_exact(width.max(1)).enumerate() {
+        let inner_row = y > 0 && y + 1 < height && width >= 3;
+        if inner_row {
+            let line = |yy: usize| &blob[yy * width..(yy + 1) * width];
+            above_all_neighbours(line(y - 1), line(y), line(y + 1), rule.floor, &mut inner);
+        }
         for (x, &l) in row.iter().enumerate() {
+            if l == 0 {
+                continue;
+            }
             let p = y * width + x;
-            let b = blob[p];
-            if l > 0 && b >= rule.floor && grid.neighbours8_at(p, (x, y)).all(|q| blob[q] < b) {
+            let centre = if inner_row && x > 0 && x + 1 < width {
+                inner[x - 1]
+            } else {
+                let b = blob[p];
+                b >= rule.floor && grid.neighbours8_at(p, (x, y)).all(|q| blob[q] < b)
+            };
+            if centre {
                 centres[l as usize].push(p);
             }
         }
@@ -176,6 +192,23 @@ fn distinct_centres(labels: &[u32], blob: &[f32], rule: &BlobRule, width: usize,
         *c = kept;
     }
     centres
+}
+
+crate::multiversioned! {
+    /// For each pixel of `row` but the first and last (`out[x − 1]` for pixel `x`), whether
+    /// it is at least `floor` and strictly above its eight neighbours in `above`, `row` and
+    /// `below` (NaN is above nothing and beats nothing): [`distinct_centres`]'s test for a
+    /// row's inner pixels at once. Comparisons only, so the same on every level.
+    fn above_all_neighbours / above_all_neighbours_with(above: &[f32], row: &[f32], below: &[f32], floor: f32, out: &mut [bool]) {
+        let n = out.len();
+        let (a, r, b) = (&above[..n + 2], &row[..n + 2], &below[..n + 2]);
+        for (i, o) in out.iter_mut().enumerate() {
+            let v = r[i + 1];
+            let upper = (a[i] < v) & (a[i + 1] < v) & (a[i + 2] < v) & (r[i] < v);
+            let lower = (r[i + 2] < v) & (b[i] < v) & (b[i + 1] < v) & (b[i + 2] < v);
+            *o = (v >= floor) & upper & lower;
+        }
+    }
 }
 
 /// The lowest of `values` on the straight line between pixels `a` and `b` of a `width`-wide
@@ -270,6 +303,80 @@ mod tests {
             3,
             "background and two parts, each the same in both: {pairs:?}"
         );
+    }
+
+    #[test]
+    fn centre_candidates_are_the_pixels_above_every_neighbour() {
+        // Source: definition (a candidate centre is a basin pixel whose response is at least
+        // the floor and strictly above each of its 8-neighbours inside the window; NaN is
+        // neither), brute force, on windows with many ties and NaN, rows and columns of one
+        // and two pixels included; distinct_centres with no separation and a saddle of 1
+        // keeps every candidate, strongest first. The row test on every instruction level.
+        let mut rng = crate::numeric::Rng::new(44);
+        for (w, h) in [(1usize, 1usize), (2, 5), (6, 1), (3, 3), (17, 11), (40, 23)] {
+            let blob: Vec<f32> = (0..w * h)
+                .map(|_| match (rng.uniform() * 40.0) as u32 {
+                    0 => f32::NAN,
+                    k => (k % 16) as f32 * 0.5,
+                })
+                .collect();
+            let labels: Vec<u32> = (0..w * h).map(|_| (rng.uniform() * 3.0) as u32).collect();
+            let rule = BlobRule {
+                sigma_px: 2.0,
+                floor: 1.0,
+                separation_px: 1.5,
+            };
+            let grid = Grid::new(w, h);
+            let mut want: Vec<Vec<usize>> = vec![Vec::new(); 3];
+            for p in 0..w * h {
+                let (x, y) = (p % w, p / w);
+                let b = blob[p];
+                if labels[p] > 0 && b >= rule.floor && grid.neighbours8_at(p, (x, y)).all(|q| blob[q] < b) {
+                    want[labels[p] as usize].push(p);
+                }
+            }
+            // Then strongest first, each kept if far enough from and parted by a low enough
+            // saddle from every stronger one kept (the rule of distinct_centres, restated).
+            for c in want.iter_mut() {
+                c.sort_by(|&a, &b| blob[b].total_cmp(&blob[a]).then(a.cmp(&b)));
+                let mut kept: Vec<usize> = Vec::new();
+                for &p in c.iter() {
+                    let apart = |k: usize| {
+                        let (dx, dy) = ((p % w) as f64 - (k % w) as f64, (p / w) as f64 - (k / w) as f64);
+                        dx * dx + dy * dy >= 1.5 * 1.5
+                            && lowest_between(&blob, p, k, w) <= SADDLE * blob[p].min(blob[k])
+                    };
+                    if kept.iter().all(|&k| apart(k)) {
+                        kept.push(p);
+                    }
+                }
+                *c = kept;
+            }
+            let got = distinct_centres(&labels, &blob, &rule, w, h);
+            let basins = labels.iter().copied().max().unwrap_or(0) as usize;
+            if w == 3 && h == 3 {
+                // A centre exactly at the floor counts; one a neighbour ties does not.
+                let at_floor = [0.0, 0.5, 0.0, 0.0, 1.0, 0.5, 0.0, 0.0, 0.0];
+                assert_eq!(distinct_centres(&[1; 9], &at_floor, &rule, 3, 3)[1], vec![4]);
+                let tied = [0.0, 0.5, 0.0, 0.0, 1.0, 1.0, 0.0, 0.0, 0.0];
+                assert!(distinct_centres(&[1; 9], &tied, &rule, 3, 3)[1].is_empty());
+            }
+            assert_eq!(got[1..], want[1..=basins], "{w} x {h}");
+            assert!(
+                w * h < 100 || want.iter().map(Vec::len).sum::<usize>() > 3,
+                "centres met"
+            );
+            if w >= 3 && h >= 3 {
+                let row = |y: usize| &blob[y * w..(y + 1) * w];
+                let mut portable = vec![false; w - 2];
+                above_all_neighbours_with(crate::simd::Level::Portable, row(0), row(1), row(2), 1.0, &mut portable);
+                for level in crate::simd::levels() {
+                    let mut got = vec![true; w - 2];
+                    above_all_neighbours_with(level, row(0), row(1), row(2), 1.0, &mut got);
+                    assert_eq!(got, portable, "{level:?}");
+                }
+            }
+        }
     }
 
     #[test]
