@@ -717,8 +717,8 @@ crate::multiversioned! {
     /// Σₖ `kernel[k]` · `src[k · step + x]` and `lower[x]` = Σₖ `kernel[k]` · `src[(k + 1) ·
     /// step + x]`, each added in the order of the taps, so the same bits as two calls. The
     /// rows under the taps are loaded once for both (each but the first and last feeds both
-    /// sums): a column pass waits on its loads (a value and its tap's broadcast per product),
-    /// not on its arithmetic.
+    /// sums): one row at a time, a column pass waited on its loads (each value under each
+    /// tap, and the tap's broadcast per block) more than on its arithmetic.
     fn filter_steps_two_rows / filter_steps_two_rows_with(
         upper: &mut [f32],
         lower: &mut [f32],
@@ -729,7 +729,10 @@ crate::multiversioned! {
         let n = upper.len();
         let mut x = 0;
         while x + BLOCK <= n {
-            let [a, b] = filter_block_two_rows::<BLOCK>(|k| src[k * step + x..k * step + x + BLOCK].try_into().expect("block"), kernel);
+            let block = |k: usize| -> [f32; BLOCK] {
+                src[k * step + x..k * step + x + BLOCK].try_into().expect("block")
+            };
+            let [a, b] = filter_block_two_rows::<BLOCK>(block, kernel);
             upper[x..x + BLOCK].copy_from_slice(&a);
             lower[x..x + BLOCK].copy_from_slice(&b);
             x += BLOCK;

@@ -199,7 +199,13 @@ crate::multiversioned! {
     /// it is at least `floor` and strictly above its eight neighbours in `above`, `row` and
     /// `below` (NaN is above nothing and beats nothing): [`distinct_centres`]'s test for a
     /// row's inner pixels at once. Comparisons only, so the same on every level.
-    fn above_all_neighbours / above_all_neighbours_with(above: &[f32], row: &[f32], below: &[f32], floor: f32, out: &mut [bool]) {
+    fn above_all_neighbours / above_all_neighbours_with(
+        above: &[f32],
+        row: &[f32],
+        below: &[f32],
+        floor: f32,
+        out: &mut [bool]
+    ) {
         let n = out.len();
         let (a, r, b) = (&above[..n + 2], &row[..n + 2], &below[..n + 2]);
         for (i, o) in out.iter_mut().enumerate() {
@@ -310,8 +316,9 @@ mod tests {
         // Source: definition (a candidate centre is a basin pixel whose response is at least
         // the floor and strictly above each of its 8-neighbours inside the window; NaN is
         // neither), brute force, on windows with many ties and NaN, rows and columns of one
-        // and two pixels included; distinct_centres with no separation and a saddle of 1
-        // keeps every candidate, strongest first. The row test on every instruction level.
+        // and two pixels included, then sifted by distinct_centres' rule restated (strongest
+        // first, apart and parted by a saddle); a centre exactly at the floor and one a
+        // neighbour ties. The row test on every instruction level.
         let mut rng = crate::numeric::Rng::new(44);
         for (w, h) in [(1usize, 1usize), (2, 5), (6, 1), (3, 3), (17, 11), (40, 23)] {
             let blob: Vec<f32> = (0..w * h)

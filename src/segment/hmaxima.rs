@@ -182,7 +182,11 @@ crate::multiversioned! {
     /// Whether each pixel is in `mask` and no neighbour is higher (`around`: the largest level
     /// of its 3 x 3 neighbourhood). On the wider instruction levels, whose unsigned
     /// comparisons take eight pixels at once.
-    fn without_higher_neighbour / without_higher_neighbour_with(mask: &[bool], levels: &[u32], around: &[u32]) -> Vec<bool> {
+    fn without_higher_neighbour / without_higher_neighbour_with(
+        mask: &[bool],
+        levels: &[u32],
+        around: &[u32]
+    ) -> Vec<bool> {
         (mask.iter().zip(levels.iter().zip(around)))
             .map(|(&m, (&l, &a))| m & (a <= l))
             .collect()
@@ -194,13 +198,8 @@ crate::multiversioned! {
 fn set_positions(flags: &[bool]) -> impl Iterator<Item = usize> + '_ {
     flags.chunks(32).enumerate().flat_map(|(k, piece)| {
         let any = piece.iter().fold(false, |any, &f| any | f);
-        let start = 32 * k;
-        piece
-            .iter()
-            .enumerate()
-            .take(if any { piece.len() } else { 0 })
-            .filter(|(_, &f)| f)
-            .map(move |(i, _)| start + i)
+        let looked_at = if any { 0..piece.len() } else { 0..0 };
+        looked_at.filter(|&i| piece[i]).map(move |i| 32 * k + i)
     })
 }
 
