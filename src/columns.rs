@@ -250,9 +250,23 @@ pub fn read_named_columns<T: Send>(
     names: &[&str],
     each: impl Fn(&NamedRow) -> crate::error::Result<T> + Sync,
 ) -> crate::error::Result<Vec<T>> {
+    let bytes = std::fs::read(path).map_err(|e| crate::error::Error::input(path, e.to_string()))?;
+    read_named_columns_of(path, &bytes, names, each)
+}
+
+/// [`read_named_columns`] of the bytes of the file at `path` already in memory (e.g. as they
+/// were written); errors name `path`.
+///
+/// # Errors
+/// As [`read_named_columns`], but for reading the file.
+pub fn read_named_columns_of<T: Send>(
+    path: &std::path::Path,
+    bytes: &[u8],
+    names: &[&str],
+    each: impl Fn(&NamedRow) -> crate::error::Result<T> + Sync,
+) -> crate::error::Result<Vec<T>> {
     let bad = |what: String| crate::error::Error::input(path, what);
-    let bytes = std::fs::read(path).map_err(|e| bad(e.to_string()))?;
-    let mut reader = csv::Reader::from_reader(&bytes[..]);
+    let mut reader = csv::Reader::from_reader(bytes);
     let header = reader.headers().map_err(|e| bad(e.to_string()))?.clone();
     let at: Vec<usize> = names
         .iter()

@@ -23,7 +23,7 @@ use crate::render::movie::{
 };
 use crate::render::review::{ReviewOptions, ReviewOutputs, ReviewWriter};
 use crate::reports::RunAnalysis;
-use crate::review::{offer_all_frames, read_linked_points, review_input, ReviewedTracks, RunView};
+use crate::review::{offer_all_frames, read_linked_points_of, review_input, ReviewedTracks, RunView};
 pub use crate::run_folder::{check_output_dir, RunFolder, RUN_OUTPUTS};
 use crate::segment::diameter::{central_window, combine, examine_frames, sample_frames, Confidence, ESTIMATE_CROP_PX};
 use crate::segment::masks::open_masks;
@@ -320,13 +320,17 @@ pub(crate) fn finish_run(
         let path = info.path.clone();
         std::thread::spawn(move || crc32_file(&path).ok().map(|h| format!("{h:08x}")))
     };
+    // The track tables too (their text kept for the review page and the analysis, which read
+    // it from memory rather than from the file being committed).
+    let mut tracks_csv_text = Vec::new();
     let (tracks, linking_qc, resolution, linking) = match linking {
         Some(linking) => {
             let (points, shared_objects_split) = link_detections(detections, &linking);
             tracked = points;
             let mut resolution = resolve_tracks(&mut tracked, &linking.params);
             resolution.shared_objects_split += shared_objects_split;
-            let tracks = write_track_outputs(dir, &mut tracked, &calibration)?;
+            let (tracks, text) = write_track_outputs(dir, &mut tracked, &calibration, &mut commits)?;
+            tracks_csv_text = text;
             let qc = linking_qc(&tracked, &tracks, &mut neighbour_distances, linking.params.max_step_px);
             (tracks, Some(qc), Some(resolution), Some(linking))
         }
@@ -358,12 +362,17 @@ pub(crate) fn finish_run(
     let early = outputs.analysis && linking.is_some();
     let tracks_csv = dir.join("tracks.csv");
     let (passed, analysis) = std::thread::scope(|scope| {
-        let analysis = early.then(|| scope.spawn(|| EarlyAnalysis::of_run(&tracks_csv, &calibration)));
+        let analysis = early.then(|| {
+            scope.spawn(|| {
+                let text = std::str::from_utf8(&tracks_csv_text).ok()?;
+                EarlyAnalysis::of_run(&tracks_csv, text, &calibration)
+            })
+        });
         let passed = second_pass(
             stack,
             spool,
             outputs,
-            linking.is_some(),
+            linking.is_some().then_some(&tracks_csv_text[..]),
             &view,
             (&tracked, divisions),
             dir,
@@ -431,22 +440,23 @@ pub(crate) fn finish_run(
 
 /// The second pass over the frames, after linking: the QC movie and the review page, each
 /// frame read once for both (from the spool of downscaled frames where the first pass kept
-/// them, otherwise decoded again). The review page is made from `tracks.csv` as written, so that
-/// `caravan review` on the folder gives the same page byte for byte; the points read for it
-/// and the moments found in them are returned for the report.
+/// them, otherwise decoded again). The review page is made from `tracks.csv` as written (its
+/// bytes `tracks_csv`, `None` without linking), so that `caravan review` on the folder gives
+/// the same page byte for byte; the points read for it and the moments found in them are
+/// returned for the report.
 fn second_pass(
     stack: &mut Stack,
     spool: Option<&mut OutlineSpool>,
     outputs: &RunOptions,
-    linked: bool,
+    tracks_csv: Option<&[u8]>,
     view: &RunView,
     (tracked, divisions): (&[TrackedDetection], &[DivisionEvent]),
     dir: &Path,
 ) -> Result<SecondPass> {
     let mut reviewed = None;
-    let mut review = match (outputs.review, linked) {
-        (Some(options), true) => {
-            let points = read_linked_points(&dir.join("tracks.csv"))?;
+    let mut review = match (outputs.review, tracks_csv) {
+        (Some(options), Some(text)) => {
+            let points = read_linked_points_of(&dir.join("tracks.csv"), text)?;
             let input = review_input(&points, view);
             let moments = input.moments.clone();
             reviewed = Some(ReviewedTracks { points, moments });
@@ -677,11 +687,14 @@ fn write_track_outputs(
     dir: &Path,
     tracked: &mut [TrackedDetection],
     calibration: &crate::stack::Calibration,
-) -> Result<Vec<TrackSummary>> {
+    commits: &mut Commits,
+) -> Result<(Vec<TrackSummary>, Vec<u8>)> {
     tracked.sort_by_key(|p| (p.track_id, p.detection.frame));
     let mut file = AtomicFile::create(&dir.join("tracks.csv"))?;
-    write_tracks(&mut file, tracked, calibration).map_err(|e| file.error(e))?;
-    file.commit()?;
+    let mut table = Vec::new();
+    write_tracks(&mut table, tracked, calibration).map_err(|e| file.error(e))?;
+    std::io::Write::write_all(&mut file, &table).map_err(|e| file.error(e))?;
+    commits.start(file);
     let summaries: Vec<TrackSummary> = tracked
         .chunk_by(|a, b| a.track_id == b.track_id)
         .map(|run| {
@@ -694,8 +707,8 @@ fn write_track_outputs(
         .collect();
     let mut file = AtomicFile::create(&dir.join("per_track.csv"))?;
     write_per_track(&mut file, &summaries, calibration).map_err(|e| file.error(e))?;
-    file.commit()?;
-    Ok(summaries)
+    commits.start(file);
+    Ok((summaries, table))
 }
 
 /// Per-frame track ids of labels, track positions and division marks, for the movie.

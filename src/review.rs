@@ -7,7 +7,7 @@
 //! and the recording.
 
 use crate::analyze::summarize_track;
-use crate::columns::read_named_columns;
+use crate::columns::read_named_columns_of;
 use crate::error::{Error, Result};
 use crate::record::{FrameSummary, RunRecord};
 use crate::render::review::{
@@ -336,6 +336,16 @@ pub(crate) fn open_recording(record: &RunRecord, given: Option<&Path>) -> Result
 /// # Errors
 /// A missing column or a cell that is not a number, naming the file and line.
 pub fn read_linked_points(path: &Path) -> Result<Vec<LinkedPoint>> {
+    let bytes = std::fs::read(path).map_err(|e| Error::input(path, e.to_string()))?;
+    read_linked_points_of(path, &bytes)
+}
+
+/// [`read_linked_points`] of the bytes of `tracks.csv` at `path`, already in memory (as a
+/// run has just written them).
+///
+/// # Errors
+/// As [`read_linked_points`], but for reading the file.
+pub fn read_linked_points_of(path: &Path, bytes: &[u8]) -> Result<Vec<LinkedPoint>> {
     let names = [
         "track_id",
         "parent_id",
@@ -348,7 +358,7 @@ pub fn read_linked_points(path: &Path) -> Result<Vec<LinkedPoint>> {
         "object",
         "link_confidence",
     ];
-    read_named_columns(path, &names, |row| {
+    read_named_columns_of(path, bytes, &names, |row| {
         Ok(LinkedPoint {
             track: row.whole(0)?,
             parent: row.optional_whole(1)?,

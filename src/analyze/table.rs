@@ -166,15 +166,16 @@ pub fn read_tracks(input: &Path, given: CalibrationOverride) -> Result<TrackTabl
     })
 }
 
-/// [`read_tracks`] of a tracking run's `tracks.csv` before its `run.json` is written, with the
-/// calibration that `run.json` will hold (as read back from it) and no command-line override:
-/// the same table but for `run_record`, which is left empty (see [`read_run_record`]).
+/// [`read_tracks`] of a tracking run's `tracks.csv` (its `text`, as the run wrote it) before
+/// its `run.json` is written, with the calibration that `run.json` will hold (as read back
+/// from it) and no command-line override: the same table but for `run_record`, which is left
+/// empty (see [`read_run_record`]).
 ///
 /// # Errors
-/// As [`read_tracks`].
-pub fn read_run_tracks(csv: &Path, calibration: &crate::stack::Calibration) -> Result<TrackTable> {
+/// As [`read_tracks`], but for reading the file.
+pub fn read_run_tracks(csv: &Path, text: &str, calibration: &crate::stack::Calibration) -> Result<TrackTable> {
     let calibration = as_read_back(calibration);
-    let (units, tracks) = read_table(csv, |rows| {
+    let (units, tracks) = table_of(csv, text, |rows| {
         resolve_units(CalibrationOverride::default(), Some(&calibration), rows)
     })?;
     Ok(TrackTable {
@@ -192,7 +193,16 @@ fn read_table(
     units_of: impl FnOnce(&[crate::tracks::TrackRow]) -> Result<Units>,
 ) -> Result<(Units, Vec<Track>)> {
     let text = std::fs::read_to_string(csv).map_err(|e| Error::input(csv, e.to_string()))?;
-    let rows = crate::tracks::read_track_rows(&text).map_err(|e| Error::input(csv, e))?;
+    table_of(csv, &text, units_of)
+}
+
+/// [`read_table`] of the text of `csv`, already read.
+fn table_of(
+    csv: &Path,
+    text: &str,
+    units_of: impl FnOnce(&[crate::tracks::TrackRow]) -> Result<Units>,
+) -> Result<(Units, Vec<Track>)> {
+    let rows = crate::tracks::read_track_rows(text).map_err(|e| Error::input(csv, e))?;
     let units = units_of(&rows)?;
     let tracks = build_tracks(&rows, &units).map_err(|e| Error::input(csv, e))?;
     Ok((units, tracks))
