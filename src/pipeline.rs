@@ -203,7 +203,10 @@ pub fn run_recording(
             }
         }
         if let Some(c) = checkpoint.as_mut() {
-            c.record(&record, || spool.as_mut().map_or(Ok(0), |s| s.flushed_len()))?;
+            c.record(&record, || match spool.as_mut() {
+                Some(s) => s.flushed().map(|(len, file)| (len, Some(file))),
+                None => Ok((0, None)),
+            })?;
         }
         pass.take(record)?;
         Ok(labels)
@@ -242,6 +245,11 @@ pub fn run_recording(
         command,
         started,
     )?;
+    // The last checkpoint was made durable while the run went on; its failure fails the run,
+    // as it did when it was waited for at once.
+    if let Some(c) = checkpoint.as_mut() {
+        c.settle()?;
+    }
     let removal = folder.publish(|name| outputs.writes(name))?;
     // The spool's files and the checkpoint are removed on the removal's thread: the file
     // system frees a 100-frame run's 100 MB of downscaled frames as the spool closes, and

@@ -138,6 +138,17 @@ impl OutlineSpool {
         w.write_all(bytes).map_err(|e| Error::output(&self.path, e))
     }
 
+    /// Hands everything pushed so far to the file system and returns the spool's length in
+    /// bytes with a handle on its file, to be made durable by whoever holds it
+    /// ([`crate::checkpoint::Unsynced`]).
+    pub fn flushed(&mut self) -> Result<(u64, crate::checkpoint::Unsynced)> {
+        let w = self.writer.as_mut().expect("still writing");
+        w.flush().map_err(|e| Error::output(&self.path, e))?;
+        let file = w.get_ref().try_clone().map_err(|e| Error::output(&self.path, e))?;
+        let len = file.metadata().map_err(|e| Error::output(&self.path, e))?.len();
+        Ok((len, crate::checkpoint::Unsynced::new(&self.path, file)))
+    }
+
     /// Makes everything pushed so far durable and returns the spool's length in bytes.
     pub fn flushed_len(&mut self) -> Result<u64> {
         let w = self.writer.as_mut().expect("still writing");
