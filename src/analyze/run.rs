@@ -78,12 +78,11 @@ pub struct EarlyAnalysis {
 }
 
 impl EarlyAnalysis {
-    /// The default analysis of the run whose `tracks.csv` has just been written (its `text`,
-    /// as written), with the
-    /// calibration its `run.json` will hold (the default options have no border, the one
-    /// figure that needs the rest of the record); `None` when it cannot be made (too few
-    /// tracks, an unreadable table): the analysis after the run then meets the same problem
-    /// and says so.
+    /// The default analysis of the run whose `tracks.csv` (at `tracks_csv`; its `text`, as
+    /// written) has just been made, with the calibration its `run.json` will hold (the
+    /// default options have no border, the one figure that needs the rest of the record);
+    /// `None` when it cannot be made (too few tracks, an unreadable table): the analysis
+    /// after the run then meets the same problem and says so.
     pub fn of_run(tracks_csv: &Path, text: &str, calibration: &crate::stack::Calibration) -> Option<EarlyAnalysis> {
         let table = super::table::read_run_tracks(tracks_csv, text, calibration).ok()?;
         let analysis = analyze_table(&table, &Filters::default(), &AnalysisOptions::default()).ok()?;
