@@ -126,8 +126,9 @@ fn masked_levels(values: &[f32], mask: &[bool]) -> Vec<u32> {
     // enough and `as u32` saturates.
     let mut levels = vec![0u32; values.len()];
     quantise_levels(values, LEVELS_PER_UNIT as f32, 0.5, &mut levels);
-    for (l, _) in levels.iter_mut().zip(mask).filter(|(_, &m)| !m) {
-        *l = 0;
+    // A select per pixel rather than a branch on the mask (which vectorises).
+    for (l, &m) in levels.iter_mut().zip(mask) {
+        *l = if m { *l } else { 0 };
     }
     levels
 }
