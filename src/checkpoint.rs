@@ -198,7 +198,7 @@ impl Unsynced {
     }
 
     /// Waits until the disk holds what was written.
-    fn sync(&self) -> Result<()> {
+    pub fn sync(&self) -> Result<()> {
         self.file.sync_data().map_err(|e| Error::output(&self.path, e))
     }
 }

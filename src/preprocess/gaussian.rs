@@ -185,7 +185,7 @@ pub fn laplace_by_bands(image: &Image, sigma: f32, mut each_band: impl FnMut(usi
     scratch::give_back(spare);
 }
 
-/// Columns per strip of a column pass ([`by_strips`]): the rows under a kernel of up to ~25
+/// Columns per strip of a column pass ([`by_strip_pairs`]): the rows under a kernel of up to ~25
 /// taps, over this many columns and from two images, stay within the first-level cache from
 /// one output row to the next (each row reuses all but one of the rows above it).
 const STRIP: usize = 128;
@@ -206,17 +206,12 @@ fn reflect_rows(rows: &mut [f32], h: usize, r: usize, stride: usize) {
     }
 }
 
-/// Runs `filter(out, y, x0)` over the whole rows of `dst` (`w` wide, the first of them image
-/// row `first`), strip by strip of [`STRIP`] columns, each strip from top to bottom: `out` is
-/// the part of row `y` from column `x0`. Every output value is computed once, as row by row.
-fn by_strips(dst: &mut [f32], w: usize, first: usize, mut filter: impl FnMut(&mut [f32], usize, usize)) {
-    let mut x0 = 0;
-    while x0 < w {
-        let x1 = (x0 + STRIP).min(w);
-        for (i, row) in dst.chunks_exact_mut(w).enumerate() {
-            filter(&mut row[x0..x1], first + i, x0);
-        }
-        x0 = x1;
+/// The column pass of a separable filter ([`filter_steps`]) for output row `upper` and, when
+/// given, the row below it, `lower`, from the rows under the taps of `kernel`, `step` apart.
+fn gaussian_rows(upper: &mut [f32], lower: Option<&mut [f32]>, src: &[f32], step: usize, kernel: &[f32]) {
+    match lower {
+        Some(lower) => filter_steps_two_rows(upper, lower, src, step, kernel),
+        None => filter_steps(upper, src, step, kernel),
     }
 }
 
@@ -236,9 +231,11 @@ fn laplace_rows(
     }
 }
 
-/// [`by_strips`] two rows at a time: `filter(upper, lower, y, x0)` with the parts of rows `y`
-/// and `y + 1` (image rows, the first of `dst` being `first`) from column `x0` (`lower` is
-/// `None` for a last, odd row).
+/// Runs `filter(upper, lower, y, x0)` over the whole rows of `dst` (`w` wide, the first of them
+/// image row `first`), two rows at a time, strip by strip of [`STRIP`] columns, each strip from
+/// top to bottom: `upper` and `lower` are the parts of rows `y` and `y + 1` from column `x0`
+/// (`lower` is `None` for a last, odd row). Every output value is computed once, as row by
+/// row.
 fn by_strip_pairs(
     dst: &mut [f32],
     w: usize,
@@ -466,8 +463,8 @@ fn convolve_in_parallel(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], k
     let mut out = vec![0f32; h * w];
     let bands = out.par_chunks_mut(BAND_ROWS * w).enumerate();
     bands.with_min_len(bands_per_task()).for_each(|(band, dst)| {
-        by_strips(dst, w, band * BAND_ROWS, |out, y, x0| {
-            filter_steps(out, &across[y * stride + x0..], stride, kernel_y);
+        by_strip_pairs(dst, w, band * BAND_ROWS, |upper, lower, y, x0| {
+            gaussian_rows(upper, lower, &across[y * stride + x0..], stride, kernel_y);
         });
     });
     scratch::give_back(spare);
@@ -506,11 +503,7 @@ fn convolve_in_bands(
         // Zeroed a band at a time, in cache, just before the column pass writes it.
         out.resize((band.top + band.rows) * w, 0.0);
         by_strip_pairs(&mut out[band.top * w..], w, 0, |upper, lower, y, x0| {
-            let src = &across[y * stride + x0..];
-            match lower {
-                Some(lower) => filter_steps_two_rows(upper, lower, src, stride, kernel_y),
-                None => filter_steps(upper, src, stride, kernel_y),
-            }
+            gaussian_rows(upper, lower, &across[y * stride + x0..], stride, kernel_y);
         });
         watch(&out[band.top * w..]);
         across.copy_within(band.carried(stride), 0);

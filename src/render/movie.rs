@@ -151,10 +151,9 @@ impl OutlineSpool {
 
     /// Makes everything pushed so far durable and returns the spool's length in bytes.
     pub fn flushed_len(&mut self) -> Result<u64> {
-        let w = self.writer.as_mut().expect("still writing");
-        w.flush().map_err(|e| Error::output(&self.path, e))?;
-        w.get_ref().sync_data().map_err(|e| Error::output(&self.path, e))?;
-        Ok(w.get_ref().metadata().map_err(|e| Error::output(&self.path, e))?.len())
+        let (len, file) = self.flushed()?;
+        file.sync()?;
+        Ok(len)
     }
 
     /// Appends one frame's outline pixels, given as [`outline_pairs`].
