@@ -131,8 +131,8 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
     Image::from_shape_vec((h, w), out).expect("sized buffer")
 }
 
-/// [`gaussian_laplace`] on this thread, handed over a band of rows at a time (at least 32
-/// rows, and twice the kernels' reach): `each_band(first_row, values)` with the band's rows
+/// [`gaussian_laplace`] on this thread, handed over a band of rows at a time
+/// ([`held_band_rows`], and at least twice the kernels' reach): `each_band(first_row, values)` with the band's rows
 /// one after another, from the top down. The rows filtered across that a band's column pass
 /// reads are held in two buffers of a band's size (the kernels' reach below carried over to
 /// the next band, as a frame's Gaussian does on its thread), so they are read back from the
@@ -152,7 +152,7 @@ pub fn laplace_by_bands(image: &Image, sigma: f32, mut each_band: impl FnMut(usi
     let stride = row_stride(w);
     // Bands of at least twice the kernels' reach: the reach carried from band to band is
     // copied, so that it costs at most a pass over half the band's rows.
-    let band_rows = BAND_ROWS.max(4 * r);
+    let band_rows = held_band_rows(2 * stride).max(4 * r);
     let held = band_rows + 2 * r;
     let mut spare = scratch::take(2 * held * stride + w + 2 * r + band_rows * w);
     let (with_g0, rest) = spare.split_at_mut(held * stride);
@@ -257,6 +257,23 @@ fn by_strip_pairs(
 /// Rows per parallel task of the whole-image filters: enough work per task that the threads'
 /// handover costs little, few enough that a frame splits into tasks for both cores.
 const BAND_ROWS: usize = 32;
+
+/// Bytes of the rows filtered across that a band held on the thread ([`convolve_in_bands`],
+/// [`laplace_by_bands`]) keeps: half of a core's second-level cache of 512 KiB (common on
+/// current x86 cores; from memory), so that they are read back from it with the band's input
+/// and output beside them.
+const HELD_BAND_BYTES: usize = 256 << 10;
+
+/// Output rows per band held on the thread whose rows filtered across take `values_per_row`
+/// values (their stride, times the buffers): as many as [`HELD_BAND_BYTES`] holds, from
+/// [`BAND_ROWS`] to eight times that (a narrow image gains nothing from taller). Each band copies the kernel's reach below it to the next band's top, so the
+/// taller the band the less is copied: 64 rows rather than 32 of a 1024-wide frame took its
+/// Gaussian (σ = 1.4) from 1.44-1.51 ms to 1.37 ms on one thread, and the diameter
+/// estimate's frame from 42 ms to 40.5 ms (benches/stages.rs, alternating); taller still
+/// gained nothing.
+fn held_band_rows(values_per_row: usize) -> usize {
+    (HELD_BAND_BYTES / (values_per_row * std::mem::size_of::<f32>())).clamp(BAND_ROWS, 8 * BAND_ROWS)
+}
 
 thread_local! {
     /// Set while [`filters_on_this_thread`] runs: the filters keep their bands on the thread.
@@ -471,8 +488,8 @@ fn convolve_in_parallel(src: &[f32], (w, h): (usize, usize), kernel_x: &[f32], k
     Image::from_shape_vec((h, w), out).expect("sized buffer")
 }
 
-/// [`convolve_separable`] kept on this thread ([`filters_on_this_thread`]), a band of
-/// [`BAND_ROWS`] output rows at a time: the rows filtered across that a band's column pass
+/// [`convolve_separable`] kept on this thread ([`filters_on_this_thread`]), a band of output
+/// rows at a time ([`held_band_rows`]): the rows filtered across that a band's column pass
 /// reads (its own and the kernel's reach above and below, reflected at the image's edges) are
 /// held in a buffer of a band's size, and the reach below is carried over to the next band,
 /// so the row pass's output is read back from the second-level cache instead of from a
@@ -487,12 +504,13 @@ fn convolve_in_bands(
 ) -> Image {
     let (rx, ry) = (kernel_x.len() / 2, kernel_y.len() / 2);
     let stride = row_stride(w);
-    let held = BAND_ROWS + 2 * ry;
+    let band_rows = held_band_rows(stride);
+    let held = band_rows + 2 * ry;
     let mut spare = scratch::take(held * stride + w + 2 * rx);
     let (across, padded) = spare.split_at_mut(held * stride);
     let padded = &mut padded[..w + 2 * rx];
     let mut out = Vec::with_capacity(h * w);
-    for band in Bands::new(h, BAND_ROWS, ry) {
+    for band in Bands::new(h, band_rows, ry) {
         band.fill(|k, source| match source {
             RowSource::Held(from) => across.copy_within(from * stride..from * stride + w, k * stride),
             RowSource::Image(line) => {
@@ -1288,7 +1306,8 @@ mod tests {
         // Source: the definition the fused passes rearrange (scipy.ndimage.gaussian_laplace's
         // too: a second-derivative filter along each axis with the Gaussian along the other,
         // added): two separable filters with reflected borders, then their sum, in f32. Sizes
-        // from one pixel to wider than a band, and kernels reaching several periods of
+        // from one pixel to several bands (narrow and tall, and wide enough that a band is
+        // the fewest rows), and kernels reaching several periods of
         // reflection past images smaller than them; the whole-image and the banded path.
         for (w, h, sigma) in [
             (1, 1, 1.0),
@@ -1299,6 +1318,8 @@ mod tests {
             (5, 40, 6.0),
             (150, 101, 5.5),
             (40, 200, 1.5),
+            (9, 700, 1.6),
+            (1100, 150, 1.2),
         ] {
             let image = Image::from_shape_fn((h, w), |(y, x)| ((y * 131 + x * 7919) % 263) as f32 * 0.71 - 40.0);
             let (g0, g2) = (
