@@ -4,7 +4,8 @@
 use crate::error::{Error, Result};
 use crate::image2d::box_average;
 use crate::params::SegmentParams;
-use crate::render::movie::outline_pairs;
+use crate::render::movie::{outline_pairs, outline_pairs_giving_back};
+use crate::segment::label::give_back_label_image;
 use crate::segment::{masks, segment_frame, segment_whole_number_frame, FrameSegmentation, MovieFrame};
 use crate::stack::Stack;
 use indicatif::{ProgressBar, ProgressStyle};
@@ -174,16 +175,24 @@ fn produce(
         content_crc32: Some(frame.content_crc32()),
         ..segmented
     };
-    if keep.outline {
-        let (w, h) = (frame.width, frame.height);
+    // A label image that is not kept is given back for the next frame's, zeroed (by the
+    // outline search where the movie wants the outline).
+    let (w, h) = (frame.width, frame.height);
+    let outline = match (keep.outline, keep.labels) {
+        (true, true) => Some(outline_pairs(&segmented.labels, w, h)),
+        (true, false) => Some(outline_pairs_giving_back(std::mem::take(&mut segmented.labels), w, h)),
+        (false, true) => None,
+        (false, false) => {
+            give_back_label_image(std::mem::take(&mut segmented.labels));
+            None
+        }
+    };
+    if let Some(outline) = outline {
         let values = image.as_slice().expect("standard layout");
         segmented.movie = Some(MovieFrame {
-            outline: outline_pairs(&segmented.labels, w, h),
+            outline,
             downscaled: keep.downscale.map(|f| box_average(values, w, h, f)),
         });
-    }
-    if !keep.labels {
-        segmented.labels = Vec::new();
     }
     segmented
 }

@@ -16,6 +16,7 @@ use super::{box_average, is_edge, DisplayRange, PALETTE};
 use crate::error::{Error, Result};
 use crate::ordered::in_frame_order;
 use crate::output::{AtomicFile, Commits};
+use crate::segment::label::give_back_zeroed_label_image;
 use crate::stack::Stack;
 use image::{Rgb, RgbImage};
 use imageproc::drawing::draw_line_segment_mut;
@@ -228,40 +229,98 @@ fn outline_pairs_by(
     labels: &[u32],
     width: usize,
     height: usize,
-    edges_in: impl Fn(&[u32], &[u32], &[u32], &[u32], &[u32]) -> u64,
+    edges_in: impl Fn(&[u32], &[u32], &[u32], &[u32], &[u32]) -> u64 + Copy,
 ) -> Vec<u32> {
-    let mut pairs: Vec<u32> = Vec::new();
-    if width == 0 {
-        return pairs;
-    }
-    // Row by row (no division per pixel); most pixels are background, so runs of RUN pixels
-    // are first tested as a whole (one vectorised OR) and only those with an object looked
-    // into, all RUN at once ([`edges_in_run`]) away from the image's border.
-    for (y, row) in labels.chunks_exact(width).take(height).enumerate() {
-        let inner = y > 0 && y + 1 < height;
-        for (k, run) in row.chunks(RUN).enumerate() {
-            if run.iter().fold(0, |any, &l| any | l) == 0 {
-                continue;
-            }
-            let x0 = k * RUN;
-            let mut edges = if inner && x0 > 0 && x0 + RUN < width {
-                let at = |dy: isize, dx: isize| {
-                    let start = (y as isize + dy) as usize * width + (x0 as isize + dx) as usize;
-                    &labels[start..start + RUN]
-                };
-                edges_in(run, at(0, -1), at(0, 1), at(-1, 0), at(1, 0))
-            } else {
-                let edge = |i: usize| run[i] != 0 && is_edge(labels, width, height, x0 + i, y);
-                (0..run.len()).fold(0u64, |m, i| m | (u64::from(edge(i)) << i))
-            };
-            while edges != 0 {
-                let i = edges.trailing_zeros() as usize;
-                pairs.extend([(y * width + x0 + i) as u32, run[i]]);
-                edges &= edges - 1;
-            }
-        }
+    let mut pairs = Vec::new();
+    for y in 0..if width == 0 { 0 } else { height } {
+        row_outline(labels, (width, height), y, edges_in, &mut pairs, |_| {});
     }
     pairs
+}
+
+/// [`outline_pairs`] of a label image no longer needed, which is then given back zeroed for
+/// the next frame's ([`give_back_zeroed_label_image`]): each row's runs that hold labels are
+/// zeroed once the row below has been compared with them, so that the image is read once for
+/// both rather than read again to find what to zero.
+pub fn outline_pairs_giving_back(labels: Vec<u32>, width: usize, height: usize) -> Vec<u32> {
+    let found = outline_pairs_zeroing(labels, width, height, edges_in_run);
+    give_back_zeroed_label_image(found.1);
+    found.0
+}
+
+/// [`outline_pairs_giving_back`] with the runs inside the image compared by `edges_in`, the
+/// image returned zeroed rather than given back.
+fn outline_pairs_zeroing(
+    mut labels: Vec<u32>,
+    width: usize,
+    height: usize,
+    edges_in: impl Fn(&[u32], &[u32], &[u32], &[u32], &[u32]) -> u64 + Copy,
+) -> (Vec<u32>, Vec<u32>) {
+    let mut pairs = Vec::new();
+    if width == 0 {
+        return (pairs, labels);
+    }
+    let (mut above, mut this) = (Vec::new(), Vec::new());
+    for y in 0..height {
+        this.clear();
+        row_outline(&labels, (width, height), y, edges_in, &mut pairs, |k| this.push(k));
+        if y > 0 {
+            zero_runs(&mut labels[(y - 1) * width..y * width], &above);
+        }
+        std::mem::swap(&mut above, &mut this);
+    }
+    if height > 0 {
+        zero_runs(&mut labels[(height - 1) * width..height * width], &above);
+    }
+    (pairs, labels)
+}
+
+/// Zeroes the runs `runs` (indices of [`RUN`]-pixel runs) of one row.
+fn zero_runs(row: &mut [u32], runs: &[usize]) {
+    for &k in runs {
+        let end = (k * RUN + RUN).min(row.len());
+        row[k * RUN..end].fill(0);
+    }
+}
+
+/// Appends row `y`'s outline pixels to `pairs` (see [`outline_pairs`]), the runs inside the
+/// image compared by `edges_in`, and calls `holding(k)` for each [`RUN`]-pixel run `k` that
+/// holds an object pixel.
+fn row_outline(
+    labels: &[u32],
+    (width, height): (usize, usize),
+    y: usize,
+    edges_in: impl Fn(&[u32], &[u32], &[u32], &[u32], &[u32]) -> u64,
+    pairs: &mut Vec<u32>,
+    mut holding: impl FnMut(usize),
+) {
+    // Most pixels are background, so runs of RUN pixels are first tested as a whole (one
+    // vectorised OR) and only those with an object looked into, all RUN at once
+    // ([`edges_in_run`]) away from the image's border.
+    let row = &labels[y * width..(y + 1) * width];
+    let inner = y > 0 && y + 1 < height;
+    for (k, run) in row.chunks(RUN).enumerate() {
+        if run.iter().fold(0, |any, &l| any | l) == 0 {
+            continue;
+        }
+        holding(k);
+        let x0 = k * RUN;
+        let mut edges = if inner && x0 > 0 && x0 + RUN < width {
+            let at = |dy: isize, dx: isize| {
+                let start = (y as isize + dy) as usize * width + (x0 as isize + dx) as usize;
+                &labels[start..start + RUN]
+            };
+            edges_in(run, at(0, -1), at(0, 1), at(-1, 0), at(1, 0))
+        } else {
+            let edge = |i: usize| run[i] != 0 && is_edge(labels, width, height, x0 + i, y);
+            (0..run.len()).fold(0u64, |m, i| m | (u64::from(edge(i)) << i))
+        };
+        while edges != 0 {
+            let i = edges.trailing_zeros() as usize;
+            pairs.extend([(y * width + x0 + i) as u32, run[i]]);
+            edges &= edges - 1;
+        }
+    }
 }
 
 /// Pixels per run of [`outline_pairs`]: a bit each in a `u64`.
@@ -709,7 +768,8 @@ mod tests {
         // another label), pixel by pixel, on label images of blobs with widths that do and do
         // not fill the 64-pixel runs the search skips by (runs inside the image are compared
         // lane by lane, the others pixel by pixel), on every instruction level, and on empty
-        // and one-pixel images.
+        // and one-pixel images; also while zeroing the image for reuse, which must leave no
+        // label behind.
         let mut rng = crate::numeric::Rng::new(4);
         let sizes = [
             (1usize, 1usize),
@@ -749,6 +809,13 @@ mod tests {
                 |a: &[u32], b: &[u32], c: &[u32], d: &[u32], e: &[u32]| edges_in_run_with(level, a, b, c, d, e);
             let found = outline_pairs_by(&labels, w, h, edges_in);
             assert_eq!(found, want, "{w}x{h} on {level:?}");
+            // Found while zeroing the image (for reuse): the same pairs, and nothing left.
+            let (found, zeroed) = outline_pairs_zeroing(labels.clone(), w, h, edges_in);
+            assert_eq!(found, want, "{w}x{h} on {level:?}, zeroing");
+            assert!(
+                zeroed.len() == w * h && zeroed.iter().all(|&l| l == 0),
+                "{w}x{h} zeroed"
+            );
         }
     }
 
