@@ -11,7 +11,7 @@ pub use background::{
 };
 pub use gaussian::{
     convolve_separable, filters_on_this_thread, gaussian_blur, gaussian_blur_watched, gaussian_derivative_kernel,
-    gaussian_kernel, gaussian_laplace, gaussian_radius, laplace_by_bands, LaplaceKernels,
+    gaussian_kernel, gaussian_laplace, gaussian_radius, give_back_image, laplace_by_bands, LaplaceKernels,
 };
 pub use noise::{immerkaer_sigma, robust_noise_sigma, MEDIAN_ABS_OF_STANDARD_NORMAL};
 

@@ -77,14 +77,18 @@ pub struct SizeFilterCounts {
 
 /// Segments one frame (`raw` in stored intensities) with the given parameters.
 pub fn segment_frame(raw: &Image, frame: usize, params: &SegmentParams) -> FrameSegmentation {
-    segment_frame_and_prepared(raw, frame, params).0
+    let (segmented, prepared) = segment_frame_and_prepared(raw, frame, params);
+    crate::preprocess::give_back_image(prepared);
+    segmented
 }
 
 /// [`segment_frame`] of a frame whose samples were whole numbers (8, 16 or 32 bits), which
 /// cannot be NaN or infinite: the frame is not scanned for them (a pass over the frame, ~1.5%
 /// of its segmentation). The same result as [`segment_frame`] for such a frame.
 pub fn segment_whole_number_frame(raw: &Image, frame: usize, params: &SegmentParams) -> FrameSegmentation {
-    segment_finite(raw, 0, frame, params).0
+    let (segmented, prepared) = segment_finite(raw, 0, frame, params);
+    crate::preprocess::give_back_image(prepared);
+    segmented
 }
 
 /// [`segment_frame`], also returning the prepared (smoothed, background-subtracted) frame that
