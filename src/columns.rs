@@ -146,7 +146,8 @@ pub fn push_fixed(out: &mut String, v: f64, decimals: usize) {
         write!(out, "{v:.decimals$}").expect("writing to a String");
         return;
     }
-    let digits = (scaled.round() as u64).to_string();
+    let mut buffer = [0u8; 20];
+    let digits = decimal_digits(scaled.round() as u64, &mut buffer);
     if v.is_sign_negative() {
         out.push('-');
     }
@@ -165,6 +166,21 @@ pub fn push_fixed(out: &mut String, v: f64, decimals: usize) {
             out.push_str(part);
         }
     }
+}
+
+/// The decimal digits of `n` (no sign, no leading zeros; "0" for 0), written into `buffer`
+/// rather than a new string: a table cell costs no allocation.
+fn decimal_digits(mut n: u64, buffer: &mut [u8; 20]) -> &str {
+    let mut start = buffer.len();
+    loop {
+        start -= 1;
+        buffer[start] = b'0' + (n % 10) as u8;
+        n /= 10;
+        if n == 0 {
+            break;
+        }
+    }
+    std::str::from_utf8(&buffer[start..]).expect("ASCII digits")
 }
 
 /// One row of a CSV file read by column names ([`read_named_columns`]): cells by the index of
