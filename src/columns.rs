@@ -156,7 +156,7 @@ pub fn push_fixed(out: &mut String, v: f64, decimals: usize) {
         if decimals > 0 {
             out.push('.');
             (digits.len()..decimals).for_each(|_| out.push('0'));
-            out.push_str(&digits);
+            out.push_str(digits);
         }
     } else {
         let (whole, part) = digits.split_at(digits.len() - decimals);

@@ -132,13 +132,14 @@ pub fn gaussian_laplace(image: &Image, sigma: f32) -> Image {
 }
 
 /// [`gaussian_laplace`] on this thread, handed over a band of rows at a time
-/// ([`held_band_rows`], and at least twice the kernels' reach): `each_band(first_row, values)` with the band's rows
-/// one after another, from the top down. The rows filtered across that a band's column pass
-/// reads are held in two buffers of a band's size (the kernels' reach below carried over to
-/// the next band, as a frame's Gaussian does on its thread), so they are read back from the
-/// second-level cache, and no frame-sized response is made when the caller only folds it
-/// into something else (the diameter estimate keeps each pixel's strongest scale). The same
-/// sums in the same order as [`gaussian_laplace`], so the same bits (tested).
+/// (as many rows as half a second-level cache holds, and at least twice the kernels' reach):
+/// `each_band(first_row, values)` with the band's rows one after another, from the top down.
+/// The rows filtered across that a band's column pass reads are held in two buffers of a
+/// band's size (the kernels' reach below carried over to the next band, as a frame's Gaussian
+/// does on its thread), so they are read back from the second-level cache, and no frame-sized
+/// response is made when the caller only folds it into something else (the diameter estimate
+/// keeps each pixel's strongest scale). The same sums in the same order as
+/// [`gaussian_laplace`], so the same bits (tested).
 pub fn laplace_by_bands(image: &Image, sigma: f32, mut each_band: impl FnMut(usize, &[f32])) {
     let g0 = gaussian_derivative_kernel(sigma, 0);
     let g2 = gaussian_derivative_kernel(sigma, 2);
@@ -266,11 +267,11 @@ const HELD_BAND_BYTES: usize = 256 << 10;
 
 /// Output rows per band held on the thread whose rows filtered across take `values_per_row`
 /// values (their stride, times the buffers): as many as [`HELD_BAND_BYTES`] holds, from
-/// [`BAND_ROWS`] to eight times that (a narrow image gains nothing from taller). Each band copies the kernel's reach below it to the next band's top, so the
-/// taller the band the less is copied: 64 rows rather than 32 of a 1024-wide frame took its
-/// Gaussian (σ = 1.4) from 1.44-1.51 ms to 1.37 ms on one thread, and the diameter
-/// estimate's frame from 42 ms to 40.5 ms (benches/stages.rs, alternating); taller still
-/// gained nothing.
+/// [`BAND_ROWS`] to eight times that (a narrow image gains nothing from taller). Each band
+/// copies the kernel's reach below it to the next band's top, so the taller the band the less
+/// is copied: 63 rows rather than 32 of a 1024-wide frame took its Gaussian (σ = 1.4) from
+/// 1.44-1.51 ms to 1.37 ms on one thread, and the diameter estimate's frame from 42 ms to
+/// 40.5 ms (benches/stages.rs, alternating); taller still gained nothing.
 fn held_band_rows(values_per_row: usize) -> usize {
     (HELD_BAND_BYTES / (values_per_row * std::mem::size_of::<f32>())).clamp(BAND_ROWS, 8 * BAND_ROWS)
 }
@@ -686,9 +687,9 @@ thread_local! {
 }
 
 /// Gives an image no longer needed (a frame's prepared image, once segmented) back to this
-/// thread, so that the next Gaussian of its size filtered on the thread ([`convolve_in_bands`])
-/// writes its output into it rather than into a new buffer of zeros (that frame of zeros was
-/// 1.4% of a frame's segmentation). The larger buffer is kept.
+/// thread, so that the next Gaussian of its size kept on the thread
+/// ([`filters_on_this_thread`]) writes its output into it rather than into a new buffer of
+/// zeros (that frame of zeros was 1.4% of a frame's segmentation). The larger buffer is kept.
 pub fn give_back_image(image: Image) {
     let buffer = image.into_raw_vec_and_offset().0;
     SPARE_IMAGE.with_borrow_mut(|spare| {

@@ -239,13 +239,13 @@ fn outline_pairs_by(
 }
 
 /// [`outline_pairs`] of a label image no longer needed, which is then given back zeroed for
-/// the next frame's ([`give_back_zeroed_label_image`]): each row's runs that hold labels are
-/// zeroed once the row below has been compared with them, so that the image is read once for
-/// both rather than read again to find what to zero.
+/// the next frame's (as [`crate::segment::label::give_back_label_image`] does): each row's
+/// runs that hold labels are zeroed once the row below has been compared with them, so that
+/// the image is read once for both rather than read again to find what to zero.
 pub fn outline_pairs_giving_back(labels: Vec<u32>, width: usize, height: usize) -> Vec<u32> {
-    let found = outline_pairs_zeroing(labels, width, height, edges_in_run);
-    give_back_zeroed_label_image(found.1);
-    found.0
+    let (pairs, zeroed) = outline_pairs_zeroing(labels, width, height, edges_in_run);
+    give_back_zeroed_label_image(zeroed);
+    pairs
 }
 
 /// [`outline_pairs_giving_back`] with the runs inside the image compared by `edges_in`, the
