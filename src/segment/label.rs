@@ -268,10 +268,16 @@ pub fn filter_and_relabel_counted(foreground: &mut Foreground, min_area: f64, ma
     let top = labels.iter().copied().max().unwrap_or(0) as usize;
     let mut area = vec![0u64; top + 1];
     let mut first = vec![u32::MAX; top + 1];
-    for (&i, &l) in pixels.iter().zip(labels.iter()) {
-        let l = l as usize;
-        area[l] += 1;
-        first[l] = first[l].min(i);
+    // A run of pixels with one label (most objects are one run) is counted at once: no chain
+    // of stores and loads through its counters from pixel to pixel.
+    let mut start = 0;
+    while start < labels.len() {
+        let l = labels[start];
+        let run = labels[start..].iter().take_while(|&&other| other == l).count();
+        let lowest = pixels[start..start + run].iter().copied().min().unwrap_or(u32::MAX);
+        area[l as usize] += run as u64;
+        first[l as usize] = first[l as usize].min(lowest);
+        start += run;
     }
     let present = area.iter().skip(1).filter(|&&a| a > 0).count();
     let mut kept: Vec<usize> = (1..=top)
@@ -426,6 +432,14 @@ mod tests {
         };
         assert_eq!(filter_and_relabel_counted(&mut foreground, 2.0, 10.0), (2, 3));
         assert_eq!(foreground.label_image(8), vec![0, 1, 2, 2, 1, 0, 0, 2]);
+        // A label's first pixel in raster order need not come first in the list: label 2's
+        // pixels come as 6 then 4, so it starts before label 1 (pixel 5) and becomes 1.
+        let mut foreground = Foreground {
+            pixels: vec![5, 6, 4],
+            labels: vec![1, 2, 2],
+        };
+        assert_eq!(filter_and_relabel_counted(&mut foreground, 1.0, 10.0), (2, 2));
+        assert_eq!(foreground.labels, vec![2, 1, 1]);
     }
 
     #[test]
