@@ -271,13 +271,12 @@ pub fn filter_and_relabel_counted(foreground: &mut Foreground, min_area: f64, ma
     // A run of pixels with one label (most objects are one run) is counted at once: no chain
     // of stores and loads through its counters from pixel to pixel.
     let mut start = 0;
-    while start < labels.len() {
-        let l = labels[start];
-        let run = labels[start..].iter().take_while(|&&other| other == l).count();
-        let lowest = pixels[start..start + run].iter().copied().min().unwrap_or(u32::MAX);
-        area[l as usize] += run as u64;
-        first[l as usize] = first[l as usize].min(lowest);
-        start += run;
+    for run in labels.chunk_by(|a, b| a == b) {
+        let (l, end) = (run[0] as usize, start + run.len());
+        let lowest = pixels[start..end].iter().copied().min().unwrap_or(u32::MAX);
+        area[l] += run.len() as u64;
+        first[l] = first[l].min(lowest);
+        start = end;
     }
     let present = area.iter().skip(1).filter(|&&a| a > 0).count();
     let mut kept: Vec<usize> = (1..=top)

@@ -33,17 +33,15 @@ pub fn measure_objects(
     // A run of pixels with one label (most objects are one run: a component's pixels come
     // together) is summed in local variables and stored once: the same additions in the same
     // order, without a store and a load of each sum per pixel for the next pixel to wait on.
-    let labels = &foreground.labels;
     let mut start = 0;
-    while start < labels.len() {
-        let l = labels[start];
-        let end = start + labels[start..].iter().take_while(|&&other| other == l).count();
+    for run in foreground.labels.chunk_by(|a, b| a == b) {
+        let (l, end) = (run[0] as usize, start + run.len());
         if l != 0 {
-            let mut m = acc[l as usize].clone();
+            let mut m = acc[l].clone();
             for (&i, &value) in pixels[start..end].iter().zip(&gathered[start..end]) {
                 m.add(grid.column_row(i as usize), value, (width, height));
             }
-            acc[l as usize] = m;
+            acc[l] = m;
         }
         start = end;
     }
