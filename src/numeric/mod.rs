@@ -3,6 +3,7 @@
 //! stages, so every stage may use them without an import circle.
 
 mod rng;
+pub mod spare;
 
 pub use rng::Rng;
 

@@ -3,6 +3,7 @@
 //! checked against it.
 
 use crate::image2d::Image;
+use crate::numeric::spare;
 use std::ops::Range;
 
 /// Normalised Gaussian weights `exp(-x²/2σ²)` for `x = -r..=r`, `r = int(4σ + 0.5)`.
@@ -691,18 +692,13 @@ thread_local! {
 /// ([`filters_on_this_thread`]) writes its output into it rather than into a new buffer of
 /// zeros (that frame of zeros was 1.4% of a frame's segmentation). The larger buffer is kept.
 pub fn give_back_image(image: Image) {
-    let buffer = image.into_raw_vec_and_offset().0;
-    SPARE_IMAGE.with_borrow_mut(|spare| {
-        if buffer.len() >= spare.len() {
-            *spare = buffer;
-        }
-    });
+    spare::keep(&SPARE_IMAGE, image.into_raw_vec_and_offset().0);
 }
 
 /// The spare image's buffer cut to `n` values (their contents stale, every one to be
 /// overwritten), when this thread has one that large.
 fn spare_image_buffer(n: usize) -> Option<Vec<f32>> {
-    let mut buffer = SPARE_IMAGE.with_borrow_mut(|spare| (spare.len() >= n).then(|| std::mem::take(spare)))?;
+    let mut buffer = spare::take(&SPARE_IMAGE, n, 0.0)?;
     buffer.truncate(n);
     Some(buffer)
 }
@@ -711,31 +707,23 @@ fn spare_image_buffer(n: usize) -> Option<Vec<f32>> {
 /// value is written before it is read, so a buffer of the right length is reused as it is
 /// instead of being allocated and zeroed again (4 MB per filtered 1024 x 1024 frame).
 mod scratch {
+    use crate::numeric::spare;
     use std::cell::RefCell;
 
     thread_local! {
         static SPARE: RefCell<Vec<f32>> = const { RefCell::new(Vec::new()) };
     }
 
-    /// A buffer of at least `n` values, contents unspecified (zeroed only where it had to
-    /// grow). Taken out of the thread's slot, so that a filter started on this thread while
-    /// another waits (rayon runs stolen work there) gets its own.
+    /// A buffer of at least `n` values, contents unspecified (zeroed only where new).
     pub(super) fn take(n: usize) -> Vec<f32> {
-        let mut buffer = SPARE.with(|s| std::mem::take(&mut *s.borrow_mut()));
-        if buffer.len() < n {
-            buffer.resize(n, 0.0);
-        }
-        buffer
+        // Written rather than taken zeroed (see `filled`): a zeroed block is the kernel's
+        // shared zero page until written, and its first writes then fault.
+        spare::take(&SPARE, n, 0.0).unwrap_or_else(|| crate::numeric::filled(n, 0.0))
     }
 
     /// Returns a buffer to the thread's slot (the larger one is kept).
     pub(super) fn give_back(buffer: Vec<f32>) {
-        SPARE.with(|s| {
-            let mut spare = s.borrow_mut();
-            if buffer.len() >= spare.len() {
-                *spare = buffer;
-            }
-        });
+        spare::keep(&SPARE, buffer);
     }
 }
 

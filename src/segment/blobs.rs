@@ -317,8 +317,7 @@ mod tests {
         // the floor and strictly above each of its 8-neighbours inside the window; NaN is
         // neither), brute force, on windows with many ties and NaN, rows and columns of one
         // and two pixels included, then sifted by distinct_centres' rule restated (strongest
-        // first, apart and parted by a saddle); a centre exactly at the floor and one a
-        // neighbour ties. The row test on every instruction level.
+        // first, apart and parted by a saddle). The row test on every instruction level.
         let mut rng = crate::numeric::Rng::new(44);
         for (w, h) in [(1usize, 1usize), (2, 5), (6, 1), (3, 3), (17, 11), (40, 23)] {
             let blob: Vec<f32> = (0..w * h)
@@ -361,29 +360,41 @@ mod tests {
             }
             let got = distinct_centres(&labels, &blob, &rule, w, h);
             let basins = labels.iter().copied().max().unwrap_or(0) as usize;
-            if w == 3 && h == 3 {
-                // A centre exactly at the floor counts; one a neighbour ties does not.
-                let at_floor = [0.0, 0.5, 0.0, 0.0, 1.0, 0.5, 0.0, 0.0, 0.0];
-                assert_eq!(distinct_centres(&[1; 9], &at_floor, &rule, 3, 3)[1], vec![4]);
-                let tied = [0.0, 0.5, 0.0, 0.0, 1.0, 1.0, 0.0, 0.0, 0.0];
-                assert!(distinct_centres(&[1; 9], &tied, &rule, 3, 3)[1].is_empty());
-            }
             assert_eq!(got[1..], want[1..=basins], "{w} x {h}");
             assert!(
                 w * h < 100 || want.iter().map(Vec::len).sum::<usize>() > 3,
                 "centres met"
             );
             if w >= 3 && h >= 3 {
+                // The row test itself, on every level, against the definition for row 1.
                 let row = |y: usize| &blob[y * w..(y + 1) * w];
-                let mut portable = vec![false; w - 2];
-                above_all_neighbours_with(crate::simd::Level::Portable, row(0), row(1), row(2), 1.0, &mut portable);
+                let defined: Vec<bool> = (1..w - 1)
+                    .map(|x| {
+                        let (p, b) = (w + x, blob[w + x]);
+                        b >= 1.0 && grid.neighbours8_at(p, (x, 1)).all(|q| blob[q] < b)
+                    })
+                    .collect();
                 for level in crate::simd::levels() {
                     let mut got = vec![true; w - 2];
                     above_all_neighbours_with(level, row(0), row(1), row(2), 1.0, &mut got);
-                    assert_eq!(got, portable, "{level:?}");
+                    assert_eq!(got, defined, "{level:?}");
                 }
             }
         }
+    }
+
+    #[test]
+    fn a_centre_at_the_floor_counts_and_a_tied_one_does_not() {
+        // Source: definition (at least the floor, strictly above every neighbour).
+        let rule = BlobRule {
+            sigma_px: 2.0,
+            floor: 1.0,
+            separation_px: 1.5,
+        };
+        let at_floor = [0.0, 0.5, 0.0, 0.0, 1.0, 0.5, 0.0, 0.0, 0.0];
+        assert_eq!(distinct_centres(&[1; 9], &at_floor, &rule, 3, 3)[1], vec![4]);
+        let tied = [0.0, 0.5, 0.0, 0.0, 1.0, 1.0, 0.0, 0.0, 0.0];
+        assert!(distinct_centres(&[1; 9], &tied, &rule, 3, 3)[1].is_empty());
     }
 
     #[test]

@@ -197,8 +197,8 @@ pub struct Foreground {
 
 impl Foreground {
     /// The label image of `len` pixels: each pixel's label, 0 outside the foreground.
-    /// The image is one given back on this thread ([`give_back_label_image`]) where there is
-    /// one of that size, already zeroed, so that a frame of zeros is not written again.
+    /// The image is the one given back on this thread ([`give_back_label_image`]) where it is
+    /// large enough, already zeroed, so that a frame of zeros is not written again.
     pub fn label_image(&self, len: usize) -> Vec<u32> {
         let mut image = zeroed_label_image(len);
         for (&p, &l) in self.pixels.iter().zip(&self.labels) {
@@ -209,23 +209,22 @@ impl Foreground {
 }
 
 thread_local! {
-    /// Label images given back once used ([`give_back_label_image`]), zeroed, for the next
+    /// A label image given back once used ([`give_back_label_image`]), zeroed, for the next
     /// frame labelled on this thread.
-    static SPARE_LABEL_IMAGES: std::cell::RefCell<Vec<Vec<u32>>> = const { std::cell::RefCell::new(Vec::new()) };
+    static SPARE_LABEL_IMAGE: std::cell::RefCell<Vec<u32>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
-/// Label images kept per thread for reuse: a thread segments one frame at a time.
-const SPARE_LABEL_IMAGES_KEPT: usize = 1;
-
-/// A label image of `len` zeros: a spare of this thread's if one has that size, else a new
+/// A label image of `len` zeros: this thread's spare where it is large enough, else a new
 /// one, written first rather than taken zeroed, so that the writes that follow do not fault
 /// (see `filled`).
 fn zeroed_label_image(len: usize) -> Vec<u32> {
-    let spare = SPARE_LABEL_IMAGES.with_borrow_mut(|spares| {
-        let at = spares.iter().position(|image| image.len() == len)?;
-        Some(spares.swap_remove(at))
-    });
-    spare.unwrap_or_else(|| crate::numeric::filled(len, 0u32))
+    match crate::numeric::spare::take(&SPARE_LABEL_IMAGE, len, 0) {
+        Some(mut image) => {
+            image.truncate(len);
+            image
+        }
+        None => crate::numeric::filled(len, 0u32),
+    }
 }
 
 /// Gives a label image no longer needed back to this thread, for the next
@@ -246,11 +245,7 @@ pub fn give_back_label_image(mut image: Vec<u32>) {
 /// search zeroes the runs it finds labels in, `render::movie::outline_pairs_giving_back`):
 /// every value must be 0, or a later label image would hold stale labels.
 pub(crate) fn give_back_zeroed_label_image(image: Vec<u32>) {
-    SPARE_LABEL_IMAGES.with_borrow_mut(|spares| {
-        if spares.len() < SPARE_LABEL_IMAGES_KEPT {
-            spares.push(image);
-        }
-    });
+    crate::numeric::spare::keep(&SPARE_LABEL_IMAGE, image);
 }
 
 /// The label of each of `pixels`, in their order: gathered in a loop of loads that wait on
@@ -468,11 +463,22 @@ mod tests {
                     give_back_label_image(got);
                 }
             }
-            // Another size is not taken from the spares; the same size is, zeroed.
+            // A spare too small is not taken; one large enough is, zeroed and cut to size.
             let _ = Foreground::default().label_image(len);
             give_back_label_image(vec![3; 10]);
             assert_eq!(Foreground::default().label_image(11), vec![0; 11]);
             assert_eq!(Foreground::default().label_image(10), vec![0; 10]);
+            give_back_label_image(vec![3; 10]);
+            assert_eq!(
+                Foreground::label_image(
+                    &Foreground {
+                        pixels: vec![2],
+                        labels: vec![4]
+                    },
+                    6
+                ),
+                vec![0, 0, 4, 0, 0, 0]
+            );
         })
         .join()
         .unwrap();
