@@ -2,7 +2,7 @@
 //! handed over in frame order, with progress on a terminal.
 
 use crate::error::{Error, Result};
-use crate::image2d::box_average;
+use crate::image2d::{box_average, box_average_of_samples};
 use crate::params::SegmentParams;
 use crate::render::movie::{outline_pairs, outline_pairs_giving_back};
 use crate::segment::label::give_back_label_image;
@@ -191,10 +191,20 @@ fn produce(
         let values = image.as_slice().expect("standard layout");
         segmented.movie = Some(MovieFrame {
             outline,
-            downscaled: keep.downscale.map(|f| box_average(values, w, h, f)),
+            downscaled: keep.downscale.map(|f| downscale(&frame.pixels, values, (w, h), f)),
         });
     }
     segmented
+}
+
+/// The frame's block average by `factor` for the movie: from its 16-bit samples as decoded
+/// where that gives the same values ([`box_average_of_samples`]), otherwise from its image.
+fn downscale(pixels: &crate::stack::Pixels, image: &[f32], (w, h): (usize, usize), factor: usize) -> Vec<f32> {
+    let of_samples = match pixels {
+        crate::stack::Pixels::U16(samples) => box_average_of_samples(samples, w, h, factor),
+        _ => None,
+    };
+    of_samples.unwrap_or_else(|| box_average(image, w, h, factor))
 }
 
 impl Iterator for SegmentedFrames<'_> {

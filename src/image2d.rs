@@ -66,6 +66,62 @@ fn add_blocks<const F: usize>(sums: &mut [f32], row: &[f32]) {
     }
 }
 
+/// [`box_average`] of whole-number samples below 2^16 as decoded (a 16-bit frame), without
+/// their `f32` copy: the same values to the last bit, since every partial sum of a block (at
+/// most 16 x 16 values below 2^16) is a whole number below 2^24, which `f32` holds exactly
+/// whatever the order of the additions. The movie's downscale reads the frame's 2 bytes per
+/// pixel instead of the 4 of its converted image, and adds them as integers. `None` for a
+/// factor above 16, whose blocks could exceed that.
+pub fn box_average_of_samples(raw: &[u16], w: usize, h: usize, factor: usize) -> Option<Vec<f32>> {
+    let factor = factor.max(1);
+    if factor > 16 {
+        return None;
+    }
+    let (bw, bh) = (w.div_ceil(factor), h.div_ceil(factor));
+    let side = |b: usize, n: usize| (n - b * factor).min(factor) as f32;
+    let across: Vec<f32> = (0..bw).map(|bx| side(bx, w)).collect();
+    let mut sums = vec![0u32; bw];
+    let mut mean = Vec::with_capacity(bw * bh);
+    for (by, rows) in raw.get(..w * h)?.chunks(w.max(1) * factor).enumerate() {
+        sums.fill(0);
+        for row in rows.chunks_exact(w.max(1)) {
+            add_samples_by_blocks(&mut sums, row, factor);
+        }
+        let down = side(by, h);
+        mean.extend(sums.iter().zip(&across).map(|(&s, &a)| s as f32 / (a * down)));
+    }
+    Some(mean)
+}
+
+crate::multiversioned! {
+    /// Adds each run of `factor` samples of `row` to its block's sum (a last, shorter run too),
+    /// the common factors known to the compiler so that whole blocks are added as vectors.
+    fn add_samples_by_blocks / add_samples_by_blocks_with(sums: &mut [u32], row: &[u16], factor: usize) {
+        match factor {
+            2 => add_sample_blocks::<2>(sums, row),
+            3 => add_sample_blocks::<3>(sums, row),
+            4 => add_sample_blocks::<4>(sums, row),
+            _ => {
+                for (s, block) in sums.iter_mut().zip(row.chunks(factor)) {
+                    *s += block.iter().map(|&v| u32::from(v)).sum::<u32>();
+                }
+            }
+        }
+    }
+}
+
+/// [`add_samples_by_blocks`] for a factor `F` known when compiled.
+#[inline(always)]
+fn add_sample_blocks<const F: usize>(sums: &mut [u32], row: &[u16]) {
+    let whole = row.len() / F;
+    for (s, block) in sums.iter_mut().zip(row.chunks_exact(F)) {
+        *s += block.iter().map(|&v| u32::from(v)).sum::<u32>();
+    }
+    if let Some(s) = sums.get_mut(whole) {
+        *s += row[whole * F..].iter().map(|&v| u32::from(v)).sum::<u32>();
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -99,6 +155,64 @@ mod tests {
                 got.iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits()),
                 "factor {factor}"
             );
+        }
+    }
+
+    #[test]
+    fn box_average_of_samples_is_the_definitions_to_the_last_bit() {
+        // Source: definition (each block's values added row by row, left to right, in f32,
+        // then divided by the block's pixel count), written out pixel by pixel on the samples
+        // converted to f32: the same bits for 16-bit samples up to the top of their range
+        // (where the sums come nearest 2^24), every factor up to 16, widths and heights that
+        // leave partial blocks; none above 16, or for fewer samples than the frame holds.
+        let mut rng = crate::numeric::Rng::new(5);
+        for (w, h) in [(37usize, 23usize), (16, 16), (5, 40), (1, 1), (133, 6)] {
+            for top in [1000.0, 65535.0] {
+                let raw: Vec<u16> = (0..w * h)
+                    .map(|i| {
+                        if i % 5 == 0 {
+                            65535
+                        } else {
+                            (rng.uniform() * top) as u16
+                        }
+                    })
+                    .collect();
+                for factor in 1..=16usize {
+                    let (bw, bh) = (w.div_ceil(factor), h.div_ceil(factor));
+                    let mut want = vec![0f32; bw * bh];
+                    for by in 0..bh {
+                        for bx in 0..bw {
+                            let (mut s, mut n) = (0f32, 0);
+                            for y in by * factor..((by + 1) * factor).min(h) {
+                                for x in bx * factor..((bx + 1) * factor).min(w) {
+                                    s += raw[y * w + x] as f32;
+                                    n += 1;
+                                }
+                            }
+                            want[by * bw + bx] = s / n as f32;
+                        }
+                    }
+                    let got = box_average_of_samples(&raw, w, h, factor).expect("factor up to 16");
+                    assert_eq!(got.len(), want.len());
+                    assert!(
+                        got.iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits()),
+                        "{w} x {h}, factor {factor}"
+                    );
+                    // Each row's block sums on every instruction level, by definition.
+                    let row = &raw[..w];
+                    let defined: Vec<u32> = row
+                        .chunks(factor)
+                        .map(|b| b.iter().map(|&v| u32::from(v)).sum())
+                        .collect();
+                    for level in crate::simd::levels() {
+                        let mut sums = vec![0u32; bw];
+                        add_samples_by_blocks_with(level, &mut sums, row, factor);
+                        assert_eq!(sums, defined, "{w} wide, factor {factor}, {level:?}");
+                    }
+                }
+                assert_eq!(box_average_of_samples(&raw, w, h, 17), None);
+                assert_eq!(box_average_of_samples(&raw[1..], w, h, 2), None);
+            }
         }
     }
 
