@@ -440,7 +440,14 @@ fn levenberg_marquardt(points: &[MsdPoint], weights: &[f64], mut theta: Vec<f64>
             .zip(&step)
             .map(|(t, s)| t * (s / t).clamp(-5.0, 5.0).exp())
             .collect();
-        let next = walk_rss(points, weights, &trial);
+        // A step too small to move any parameter gives the same sum, not a smaller one: the
+        // step is rejected without the sum (the last steps of a fit, as λ climbs to its bound).
+        let unmoved = trial.iter().zip(&theta).all(|(a, b)| a.to_bits() == b.to_bits());
+        let next = if unmoved {
+            current
+        } else {
+            walk_rss(points, weights, &trial)
+        };
         if next < current {
             let converged = (current - next) <= 1e-15 * current.max(1e-300);
             theta = trial;
