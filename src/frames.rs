@@ -165,14 +165,14 @@ fn produce(
     intensities: bool,
     keep: Keep,
 ) -> FrameSegmentation {
-    let image = frame.to_image();
+    let (image, content_crc32) = frame.image_and_content_crc32();
     let segmented = match labels {
         Some(l) => masks::segment_from_mask(&l, &image, frame.index, intensities),
         None if frame.pixels.are_whole_numbers() => segment_whole_number_frame(&image, frame.index, params),
         None => segment_frame(&image, frame.index, params),
     };
     let mut segmented = FrameSegmentation {
-        content_crc32: Some(frame.content_crc32()),
+        content_crc32: Some(content_crc32),
         ..segmented
     };
     // A label image that is not kept is given back for the next frame's, zeroed (by the

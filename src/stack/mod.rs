@@ -114,12 +114,34 @@ impl Frame {
     /// identifies a frame's content whatever the file's compression or layout. Checkpoints and
     /// shards log it to refuse mixing two recordings.
     pub fn content_crc32(&self) -> u32 {
+        self.hash_content(|_| {})
+    }
+
+    /// [`Frame::to_image`] and [`Frame::content_crc32`] in one pass over the samples: each
+    /// block is converted while the checksum's read of it is still in the first-level cache,
+    /// instead of the frame being read twice from further away. The same image and checksum.
+    pub fn image_and_content_crc32(&self) -> (Image, u32) {
+        let mut values = Vec::with_capacity(self.pixels.len());
+        let crc = self.hash_content(|block| match block {
+            Samples::U8(b) => values.extend(b.iter().map(|&p| p as f32)),
+            Samples::U16(b) => values.extend(b.iter().map(|&p| p as f32)),
+            Samples::U32(b) => values.extend(b.iter().map(|&p| p as f32)),
+            Samples::F32(b) => values.extend_from_slice(b),
+        });
+        (image2d::from_vec(self.width, self.height, values), crc)
+    }
+
+    /// The content checksum, handing each block of samples to `also` after it is hashed.
+    fn hash_content(&self, mut also: impl FnMut(Samples)) -> u32 {
         let mut hasher = crc32fast::Hasher::new();
         match &self.pixels {
-            Pixels::U8(v) => hasher.update(v),
-            Pixels::U16(v) => update_little_endian(&mut hasher, v, |p| p.to_le_bytes()),
-            Pixels::U32(v) => update_little_endian(&mut hasher, v, |p| p.to_le_bytes()),
-            Pixels::F32(v) => update_little_endian(&mut hasher, v, |p| p.to_le_bytes()),
+            Pixels::U8(v) => v.chunks(HASH_BLOCK).for_each(|block| {
+                hasher.update(block);
+                also(Samples::U8(block));
+            }),
+            Pixels::U16(v) => update_little_endian(&mut hasher, v, |p| p.to_le_bytes(), |b| also(Samples::U16(b))),
+            Pixels::U32(v) => update_little_endian(&mut hasher, v, |p| p.to_le_bytes(), |b| also(Samples::U32(b))),
+            Pixels::F32(v) => update_little_endian(&mut hasher, v, |p| p.to_le_bytes(), |b| also(Samples::F32(b))),
         }
         hasher.finalize()
     }
@@ -287,21 +309,35 @@ pub(crate) fn io_reason(e: &std::io::Error) -> String {
 }
 
 /// Feeds `values` to `hasher` as their little-endian bytes, a block of pixels at a time (the
-/// bytes of a block written in one vectorised pass, then hashed in one call).
+/// bytes of a block written in one vectorised pass, then hashed in one call), handing each
+/// block to `also` once hashed.
 fn update_little_endian<T: Copy, const N: usize>(
     hasher: &mut crc32fast::Hasher,
     values: &[T],
     bytes_of: impl Fn(T) -> [u8; N],
+    mut also: impl FnMut(&[T]),
 ) {
-    const BLOCK: usize = 8192;
-    let mut buffer = vec![0u8; BLOCK * N];
-    for block in values.chunks(BLOCK) {
+    let mut buffer = vec![0u8; HASH_BLOCK * N];
+    for block in values.chunks(HASH_BLOCK) {
         let bytes = &mut buffer[..block.len() * N];
         for (out, &v) in bytes.chunks_exact_mut(N).zip(block) {
             out.copy_from_slice(&bytes_of(v));
         }
         hasher.update(bytes);
+        also(block);
     }
+}
+
+/// Samples hashed at a time by [`Frame::content_crc32`]: a block and its bytes stay in the
+/// first-level cache.
+const HASH_BLOCK: usize = 8192;
+
+/// A block of a frame's samples, of its type.
+enum Samples<'a> {
+    U8(&'a [u8]),
+    U16(&'a [u16]),
+    U32(&'a [u32]),
+    F32(&'a [f32]),
 }
 
 #[cfg(test)]
@@ -340,18 +376,38 @@ mod tests {
 
     #[test]
     fn a_frame_hashes_as_zlib_hashes_its_little_endian_samples() {
-        // Source: Python's zlib.crc32 of struct.pack('<20001H', *[(i * 7919) % 65536 ...]) and
-        // of struct.pack('<9000f', *[i * 0.5 - 3.25 ...]) (more samples than one hashed block,
-        // so the blocks' seams are covered).
-        let frame = |pixels| Frame {
+        // Source: Python's zlib.crc32 of struct.pack('<20001H', *[(i * 7919) % 65536 ...]), of
+        // struct.pack('<9000f', *[i * 0.5 - 3.25 ...]), of bytes((i * 31) % 256 for i in
+        // range(20001)) and of struct.pack('<9000I', *[(i * 2654435761) % 2**32 ...]) (more
+        // samples than one hashed block, so the blocks' seams are covered).
+        // The checksum made with the image (`image_and_content_crc32`) is the same, and the
+        // image holds each sample as f32 (exact for these: definition).
+        let frame = |pixels: Pixels| Frame {
             index: 0,
-            width: 1,
+            width: pixels.len(),
             height: 1,
             pixels,
         };
-        let u16s = (0..20001u32).map(|i| ((i * 7919) % 65536) as u16).collect();
-        assert_eq!(format!("{:08x}", frame(Pixels::U16(u16s)).content_crc32()), "56bd2204");
-        let f32s = (0..9000).map(|i| i as f32 * 0.5 - 3.25).collect();
-        assert_eq!(format!("{:08x}", frame(Pixels::F32(f32s)).content_crc32()), "42ed730f");
+        let u16s: Vec<u16> = (0..20001u32).map(|i| ((i * 7919) % 65536) as u16).collect();
+        let f32s: Vec<f32> = (0..9000).map(|i| i as f32 * 0.5 - 3.25).collect();
+        let u8s: Vec<u8> = (0..20001u32).map(|i| ((i * 31) % 256) as u8).collect();
+        let u32s: Vec<u32> = (0..9000u64).map(|i| ((i * 2_654_435_761) % (1 << 32)) as u32).collect();
+        let as_f32 = |v: &[u16]| v.iter().map(|&v| f32::from(v)).collect::<Vec<f32>>();
+        let (u8_values, u32_values) = (
+            u8s.iter().map(|&v| f32::from(v)).collect(),
+            u32s.iter().map(|&v| v as f32).collect(),
+        );
+        for (frame, crc, values) in [
+            (frame(Pixels::U16(u16s.clone())), "56bd2204", as_f32(&u16s)),
+            (frame(Pixels::F32(f32s.clone())), "42ed730f", f32s),
+            (frame(Pixels::U8(u8s)), "b577241e", u8_values),
+            (frame(Pixels::U32(u32s)), "bfa0fabe", u32_values),
+        ] {
+            assert_eq!(format!("{:08x}", frame.content_crc32()), crc);
+            let (image, with_image) = frame.image_and_content_crc32();
+            assert_eq!(format!("{with_image:08x}"), crc);
+            assert_eq!(image.dim(), (1, values.len()));
+            assert_eq!(image.as_slice().unwrap(), &values[..]);
+        }
     }
 }
