@@ -10,6 +10,14 @@ use crate::numeric::Grid;
 /// union-find ([`Runs`]), so the cost follows the number of runs rather than a flood over
 /// every background pixel.
 pub fn fill_holes(mask: &mut [bool], width: usize, height: usize) {
+    fill_holes_giving_runs(mask, width, height);
+}
+
+/// [`fill_holes`], returning the foreground runs of the filled mask (what
+/// `Runs::of(mask, width, height, true)` would find in it): the gaps of each row between the
+/// background runs left, which the filling has at hand, so the split need not scan the frame
+/// again for them.
+pub(crate) fn fill_holes_giving_runs(mask: &mut [bool], width: usize, height: usize) -> Runs {
     let runs = Runs::of(mask, width, height, false);
     let mut sets = runs.joined(Connectivity::Four);
     let mut outside = vec![false; runs.len()];
@@ -19,12 +27,30 @@ pub fn fill_holes(mask: &mut [bool], width: usize, height: usize) {
             outside[root] = true;
         }
     }
-    for (k, &(y, s, e)) in runs.spans.iter().enumerate() {
-        let root = sets.find(k);
-        if !outside[root] {
-            mask[y * width + s..y * width + e].iter_mut().for_each(|m| *m = true);
+    let mut foreground = Runs {
+        spans: Vec::new(),
+        row_start: Vec::with_capacity(height + 1),
+    };
+    for y in 0..height {
+        foreground.row_start.push(foreground.spans.len());
+        let mut x = 0;
+        for k in runs.row_start[y]..runs.row_start[y + 1] {
+            let (_, s, e) = runs.spans[k];
+            if outside[sets.find(k)] {
+                if s > x {
+                    foreground.spans.push((y, x, s));
+                }
+                x = e;
+            } else {
+                mask[y * width + s..y * width + e].iter_mut().for_each(|m| *m = true);
+            }
+        }
+        if x < width {
+            foreground.spans.push((y, x, width));
         }
     }
+    foreground.row_start.push(foreground.spans.len());
+    foreground
 }
 
 /// Which neighbours join two pixels into one region.
@@ -387,6 +413,65 @@ mod tests {
                     let want = (from..row.len()).find(|&x| row[x] == value).unwrap_or(row.len());
                     assert_eq!(next_equal(row, from, value), want, "{} px, from {from}", row.len());
                 }
+            }
+        }
+    }
+
+    #[test]
+    fn holes_are_filled_and_the_foreground_runs_given_by_definition() {
+        // Source: definition. The background pixels that a 4-connected flood from the border
+        // reaches stay background, every other pixel is foreground; the runs given back are
+        // the maximal stretches of foreground in each row, found pixel by pixel. Random masks
+        // of every density (rings, holes, rows all foreground, rows all background) and sizes
+        // down to one pixel.
+        let mut rng = crate::numeric::Rng::new(23);
+        for (w, h) in [(1usize, 1usize), (1, 7), (9, 1), (17, 13), (40, 31)] {
+            for fill in [0.0, 0.3, 0.55, 0.7, 0.9, 1.0] {
+                let mask: Vec<bool> = (0..w * h).map(|_| rng.uniform() < fill).collect();
+                let mut reached = vec![false; w * h];
+                let mut stack: Vec<usize> = (0..w * h)
+                    .filter(|&p| !mask[p] && (p % w == 0 || p % w == w - 1 || p / w == 0 || p / w == h - 1))
+                    .collect();
+                stack.iter().for_each(|&p| reached[p] = true);
+                while let Some(p) = stack.pop() {
+                    let (x, y) = (p % w, p / w);
+                    let near = [
+                        (x > 0).then(|| p - 1),
+                        (x + 1 < w).then(|| p + 1),
+                        (y > 0).then(|| p - w),
+                        (y + 1 < h).then(|| p + w),
+                    ];
+                    for q in near.into_iter().flatten() {
+                        if !mask[q] && !reached[q] {
+                            reached[q] = true;
+                            stack.push(q);
+                        }
+                    }
+                }
+                let filled: Vec<bool> = reached.iter().map(|&r| !r).collect();
+                let mut defined = Vec::new();
+                for y in 0..h {
+                    let mut x = 0;
+                    while x < w {
+                        if filled[y * w + x] {
+                            let start = x;
+                            while x < w && filled[y * w + x] {
+                                x += 1;
+                            }
+                            defined.push((y, start, x));
+                        } else {
+                            x += 1;
+                        }
+                    }
+                }
+                let mut got = mask.clone();
+                let runs = fill_holes_giving_runs(&mut got, w, h);
+                assert_eq!(got, filled, "{w} x {h}, fill {fill}");
+                assert_eq!(runs.spans, defined, "{w} x {h}, fill {fill}");
+                for (y, row) in defined.chunk_by(|a, b| a.0 == b.0).map(|r| (r[0].0, r)) {
+                    assert_eq!(&runs.spans[runs.row_start[y]..runs.row_start[y + 1]], row);
+                }
+                assert_eq!(runs.row_start.len(), h + 1);
             }
         }
     }

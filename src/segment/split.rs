@@ -5,7 +5,7 @@
 
 use super::blobs::{split_basins_at_blobs, BlobResponse, BlobRule};
 use super::hmaxima::h_maxima_seeds;
-use super::label::Foreground;
+use super::label::{Foreground, Runs};
 use super::{distance_transform, watershed};
 use crate::numeric::Grid;
 use crate::preprocess::{gaussian_blur, gaussian_radius};
@@ -77,7 +77,8 @@ pub fn split_touching(
     seed_h_px: f64,
     distance_smoothing_px: f64,
 ) -> Vec<u32> {
-    let foreground = split_touching_foreground(mask, width, height, seed_h_px, distance_smoothing_px, None);
+    let runs = Runs::of(mask, width, height, true);
+    let foreground = split_touching_foreground((mask, &runs), width, height, seed_h_px, distance_smoothing_px, None);
     foreground.label_image(mask.len())
 }
 
@@ -88,14 +89,14 @@ pub fn split_touching(
 /// the distance alone, each basin is split again at its own level
 /// ([`each_basin_on_its_own`]), and then at its blob centres ([`split_basins_at_blobs`]).
 pub(crate) fn split_touching_foreground(
-    mask: &[bool],
+    (mask, runs): (&[bool], &Runs),
     width: usize,
     height: usize,
     seed_h_px: f64,
     distance_smoothing_px: f64,
     intensity: Option<&IntensityCues>,
 ) -> Foreground {
-    let (pixels, components) = find_components(mask, width, height);
+    let (pixels, components) = find_components(mask, runs, width, height);
     let mut labels = Vec::with_capacity(pixels.len());
     let pad = if distance_smoothing_px > 0.0 {
         gaussian_radius(distance_smoothing_px as f32).max(1)
@@ -138,7 +139,7 @@ pub(crate) fn split_touching_foreground(
 /// The search reads one byte per neighbour (a copy of the mask in which reached pixels are
 /// marked) rather than the mask and a frame-sized map of marks: on a 1024² frame that is 1 MB
 /// of memory to jump about in instead of 5 MB.
-fn find_components(mask: &[bool], width: usize, height: usize) -> (Vec<u32>, Vec<Component>) {
+fn find_components(mask: &[bool], runs: &Runs, width: usize, height: usize) -> (Vec<u32>, Vec<Component>) {
     const UNREACHED: u8 = 1;
     const REACHED: u8 = 2;
     let grid = Grid::new(width, height);
@@ -146,7 +147,6 @@ fn find_components(mask: &[bool], width: usize, height: usize) -> (Vec<u32>, Vec
     let mut pixels: Vec<u32> = Vec::new();
     let mut components = Vec::new();
     // Most of a frame is background: only the foreground runs are walked, in raster order.
-    let runs = super::label::Runs::of(mask, width, height, true);
     let starts = (runs.spans.iter()).flat_map(|&(y, s, e)| y * width + s..y * width + e);
     for start in starts {
         if state[start] != UNREACHED {
@@ -477,7 +477,8 @@ mod tests {
         let mut rng = crate::numeric::Rng::new(7);
         for (w, h, fill) in [(1, 1, 1.0), (7, 5, 0.5), (40, 30, 0.45), (64, 9, 0.6)] {
             let mask: Vec<bool> = (0..w * h).map(|_| rng.uniform() < fill).collect();
-            let (pixels, components) = find_components(&mask, w, h);
+            let runs = Runs::of(&mask, w, h, true);
+            let (pixels, components) = find_components(&mask, &runs, w, h);
             let (labels, count) = super::super::label::label_components(&mask, w, h);
             assert_eq!(components.len(), count as usize, "{w} x {h}");
             let grid = Grid::new(w, h);
@@ -561,8 +562,15 @@ mod tests {
         let (mask, values, w, h) = pressed_pair();
         let shape_only = split_touching(&mask, w, h, 0.14, 1.0);
         assert_eq!(object_sizes(&shape_only).len(), 1);
-        let labels = split_touching_foreground(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)))
-            .label_image(mask.len());
+        let labels = split_touching_foreground(
+            (&mask, &Runs::of(&mask, w, h, true)),
+            w,
+            h,
+            0.14,
+            1.0,
+            Some(&landscape_only(&values, 0.0)),
+        )
+        .label_image(mask.len());
         let sizes = object_sizes(&labels);
         assert_eq!(sizes.len(), 2, "{sizes:?}");
         let seam = (0..w * h).filter(|&i| mask[i] && values[i] < 50.0).count();
@@ -612,8 +620,15 @@ mod tests {
         let pair_share = (0..w * h).filter(|&i| pair((i % w) as f64, (i / w) as f64)).count() as f64
             / mask.iter().filter(|&&m| m).count() as f64;
         assert!(pair_share < 0.1, "{pair_share}");
-        let labels = split_touching_foreground(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 0.0)))
-            .label_image(mask.len());
+        let labels = split_touching_foreground(
+            (&mask, &Runs::of(&mask, w, h, true)),
+            w,
+            h,
+            0.14,
+            1.0,
+            Some(&landscape_only(&values, 0.0)),
+        )
+        .label_image(mask.len());
         let (left, right) = (labels[48 * w + 26], labels[48 * w + 37]);
         assert!(left > 0 && right > 0);
         assert_ne!(left, right, "the pair is two nuclei");
@@ -626,8 +641,15 @@ mod tests {
         // the seam's dip (from about 8 px beside the seam to 8 x 0.4 = 3.2 px in it, 4.8 px
         // deep) is below twice that (6.4 px), so it is one object.
         let (mask, values, w, h) = pressed_pair();
-        let labels = split_touching_foreground(&mask, w, h, 0.14, 1.0, Some(&landscape_only(&values, 40.0)))
-            .label_image(mask.len());
+        let labels = split_touching_foreground(
+            (&mask, &Runs::of(&mask, w, h, true)),
+            w,
+            h,
+            0.14,
+            1.0,
+            Some(&landscape_only(&values, 40.0)),
+        )
+        .label_image(mask.len());
         assert_eq!(object_sizes(&labels).len(), 1);
     }
 }
