@@ -4,8 +4,8 @@
 use crate::error::{Error, Result};
 use crate::image2d::{box_average, box_average_of_samples};
 use crate::params::SegmentParams;
-use crate::render::movie::{outline_pairs, outline_pairs_giving_back};
-use crate::segment::label::give_back_label_image;
+use crate::render::movie::{outline_pairs, outline_pairs_of_objects};
+use crate::segment::label::{give_back_label_image, give_back_label_image_of};
 use crate::segment::{masks, segment_frame, segment_whole_number_frame, FrameSegmentation, MovieFrame};
 use crate::stack::Stack;
 use indicatif::{ProgressBar, ProgressStyle};
@@ -175,18 +175,21 @@ fn produce(
         content_crc32: Some(content_crc32),
         ..segmented
     };
-    // A label image that is not kept is given back for the next frame's, zeroed (by the
-    // outline search where the movie wants the outline).
+    // The movie's outline is found from the objects' pixels where segmentation gives them, and
+    // a label image that is not kept is given back for the next frame's, zeroed there alone.
     let (w, h) = (frame.width, frame.height);
-    let outline = match (keep.outline, keep.labels) {
-        (true, true) => Some(outline_pairs(&segmented.labels, w, h)),
-        (true, false) => Some(outline_pairs_giving_back(std::mem::take(&mut segmented.labels), w, h)),
-        (false, true) => None,
-        (false, false) => {
-            give_back_label_image(std::mem::take(&mut segmented.labels));
-            None
+    let objects = segmented.object_pixels.take();
+    let outline = keep.outline.then(|| match objects.as_deref() {
+        Some(objects) => outline_pairs_of_objects(&segmented.labels, objects, w, h),
+        None => outline_pairs(&segmented.labels, w, h),
+    });
+    if !keep.labels {
+        let labels = std::mem::take(&mut segmented.labels);
+        match objects.as_deref() {
+            Some(objects) => give_back_label_image_of(labels, objects),
+            None => give_back_label_image(labels),
         }
-    };
+    }
     if let Some(outline) = outline {
         let values = image.as_slice().expect("standard layout");
         segmented.movie = Some(MovieFrame {

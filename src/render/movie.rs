@@ -16,7 +16,6 @@ use super::{box_average, is_edge, DisplayRange, PALETTE};
 use crate::error::{Error, Result};
 use crate::ordered::in_frame_order;
 use crate::output::{AtomicFile, Commits};
-use crate::segment::label::give_back_zeroed_label_image;
 use crate::stack::Stack;
 use image::{Rgb, RgbImage};
 use imageproc::drawing::draw_line_segment_mut;
@@ -233,66 +232,53 @@ fn outline_pairs_by(
 ) -> Vec<u32> {
     let mut pairs = Vec::new();
     for y in 0..if width == 0 { 0 } else { height } {
-        row_outline(labels, (width, height), y, edges_in, &mut pairs, |_| {});
+        row_outline(labels, (width, height), y, edges_in, &mut pairs);
     }
     pairs
 }
 
-/// [`outline_pairs`] of a label image no longer needed, which is then given back zeroed for
-/// the next frame's (as [`crate::segment::label::give_back_label_image`] does): each row's
-/// runs that hold labels are zeroed once the row below has been compared with them, so that
-/// the image is read once for both rather than read again to find what to zero.
-pub fn outline_pairs_giving_back(labels: Vec<u32>, width: usize, height: usize) -> Vec<u32> {
-    let (pairs, zeroed) = outline_pairs_zeroing(labels, width, height, edges_in_run);
-    give_back_zeroed_label_image(zeroed);
-    pairs
-}
-
-/// [`outline_pairs_giving_back`] with the runs inside the image compared by `edges_in`, the
-/// image returned zeroed rather than given back.
-fn outline_pairs_zeroing(
-    mut labels: Vec<u32>,
-    width: usize,
-    height: usize,
-    edges_in: impl Fn(&[u32], &[u32], &[u32], &[u32], &[u32]) -> u64 + Copy,
-) -> (Vec<u32>, Vec<u32>) {
-    let mut pairs = Vec::new();
-    if width == 0 {
-        return (pairs, labels);
-    }
-    let (mut above, mut this) = (Vec::new(), Vec::new());
-    for y in 0..height {
-        this.clear();
-        row_outline(&labels, (width, height), y, edges_in, &mut pairs, |k| this.push(k));
-        if y > 0 {
-            zero_runs(&mut labels[(y - 1) * width..y * width], &above);
+/// [`outline_pairs`] of a label image whose labelled pixels are all among `objects` (each
+/// once, in any order; pixels of label 0 may be among them too): the same pairs in the same
+/// order, found by looking at those pixels and their four neighbours only (a frame's nuclei
+/// cover a few percent of it) instead of reading the whole image. The outline pixels are
+/// marked in a bitmap of the frame, which is then read in raster order.
+pub fn outline_pairs_of_objects(labels: &[u32], objects: &[u32], width: usize, height: usize) -> Vec<u32> {
+    let words = labels.len().div_ceil(64);
+    let mut marks = crate::numeric::spare::take(&SPARE_MARKS, words, 0).unwrap_or_else(|| vec![0; words]);
+    let grid = crate::numeric::Grid::new(width, height);
+    for &p in objects {
+        let p = p as usize;
+        let (x, y) = grid.column_row(p);
+        if labels[p] != 0 && is_edge(labels, width, height, x, y) {
+            marks[p / 64] |= 1 << (p % 64);
         }
-        std::mem::swap(&mut above, &mut this);
     }
-    if height > 0 {
-        zero_runs(&mut labels[(height - 1) * width..height * width], &above);
+    let mut pairs = Vec::new();
+    for (k, word) in marks[..words].iter_mut().enumerate() {
+        while *word != 0 {
+            let p = k * 64 + word.trailing_zeros() as usize;
+            pairs.extend([p as u32, labels[p]]);
+            *word &= *word - 1;
+        }
     }
-    (pairs, labels)
+    crate::numeric::spare::keep(&SPARE_MARKS, marks);
+    pairs
 }
 
-/// Zeroes the runs `runs` (indices of [`RUN`]-pixel runs) of one row.
-fn zero_runs(row: &mut [u32], runs: &[usize]) {
-    for &k in runs {
-        let end = (k * RUN + RUN).min(row.len());
-        row[k * RUN..end].fill(0);
-    }
+thread_local! {
+    /// The bitmap of [`outline_pairs_of_objects`], kept zeroed between frames (each word is
+    /// cleared as it is read).
+    static SPARE_MARKS: std::cell::RefCell<Vec<u64>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
 /// Appends row `y`'s outline pixels to `pairs` (see [`outline_pairs`]), the runs inside the
-/// image compared by `edges_in`, and calls `holding(k)` for each [`RUN`]-pixel run `k` that
-/// holds an object pixel.
+/// image compared by `edges_in`.
 fn row_outline(
     labels: &[u32],
     (width, height): (usize, usize),
     y: usize,
     edges_in: impl Fn(&[u32], &[u32], &[u32], &[u32], &[u32]) -> u64,
     pairs: &mut Vec<u32>,
-    mut holding: impl FnMut(usize),
 ) {
     // Most pixels are background, so runs of RUN pixels are first tested as a whole (one
     // vectorised OR) and only those with an object looked into, all RUN at once
@@ -303,7 +289,6 @@ fn row_outline(
         if run.iter().fold(0, |any, &l| any | l) == 0 {
             continue;
         }
-        holding(k);
         let x0 = k * RUN;
         let mut edges = if inner && x0 > 0 && x0 + RUN < width {
             let at = |dy: isize, dx: isize| {
@@ -768,8 +753,8 @@ mod tests {
         // another label), pixel by pixel, on label images of blobs with widths that do and do
         // not fill the 64-pixel runs the search skips by (runs inside the image are compared
         // lane by lane, the others pixel by pixel), on every instruction level, and on empty
-        // and one-pixel images; also while zeroing the image for reuse, which must leave no
-        // label behind.
+        // and one-pixel images; also from the objects' pixels alone, giving the image back with
+        // no label left behind.
         let mut rng = crate::numeric::Rng::new(4);
         let sizes = [
             (1usize, 1usize),
@@ -809,13 +794,27 @@ mod tests {
                 |a: &[u32], b: &[u32], c: &[u32], d: &[u32], e: &[u32]| edges_in_run_with(level, a, b, c, d, e);
             let found = outline_pairs_by(&labels, w, h, edges_in);
             assert_eq!(found, want, "{w}x{h} on {level:?}");
-            // Found while zeroing the image (for reuse): the same pairs, and nothing left.
-            let (found, zeroed) = outline_pairs_zeroing(labels.clone(), w, h, edges_in);
-            assert_eq!(found, want, "{w}x{h} on {level:?}, zeroing");
-            assert!(
-                zeroed.len() == w * h && zeroed.iter().all(|&l| l == 0),
-                "{w}x{h} zeroed"
+            // Found from the objects' pixels (shuffled, with some background among them): the
+            // same pairs; the image given back by clearing them holds no label for the next
+            // frame's.
+            let mut objects: Vec<u32> = (0..w * h)
+                .filter(|&i| labels[i] != 0 || i % 7 == 0)
+                .map(|i| i as u32)
+                .collect();
+            for k in (1..objects.len()).rev() {
+                objects.swap(k, (rng.uniform() * (k + 1) as f64) as usize % (k + 1));
+            }
+            assert_eq!(
+                outline_pairs_of_objects(&labels, &objects, w, h),
+                want,
+                "{w}x{h}, objects"
             );
+            crate::segment::label::give_back_label_image_of(labels.clone(), &objects);
+            let next = crate::segment::label::Foreground {
+                pixels: Vec::new(),
+                labels: Vec::new(),
+            };
+            assert!(next.label_image(w * h).iter().all(|&l| l == 0), "{w}x{h} given back");
         }
     }
 

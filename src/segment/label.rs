@@ -267,10 +267,20 @@ pub fn give_back_label_image(mut image: Vec<u32>) {
     give_back_zeroed_label_image(image);
 }
 
-/// [`give_back_label_image`] of an image its caller has zeroed already (the movie's outline
-/// search zeroes the runs it finds labels in, `render::movie::outline_pairs_giving_back`):
-/// every value must be 0, or a later label image would hold stale labels.
-pub(crate) fn give_back_zeroed_label_image(image: Vec<u32>) {
+/// [`give_back_label_image`] of an image whose labelled pixels are all among `objects` (each
+/// in any order; pixels of label 0 may be among them too, as in [`Foreground::pixels`]):
+/// zeroed by clearing those alone, without reading the image (a frame's nuclei cover a few
+/// percent of it).
+pub(crate) fn give_back_label_image_of(mut image: Vec<u32>, objects: &[u32]) {
+    for &p in objects {
+        image[p as usize] = 0;
+    }
+    give_back_zeroed_label_image(image);
+}
+
+/// Keeps a label image whose every value is 0 for the next [`Foreground::label_image`] on
+/// this thread.
+fn give_back_zeroed_label_image(image: Vec<u32>) {
     crate::numeric::spare::keep(&SPARE_LABEL_IMAGE, image);
 }
 

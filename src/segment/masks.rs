@@ -96,6 +96,7 @@ pub fn segment_from_mask(mask: &[u32], raw: &Image, frame: usize, intensities: b
         size_filter: SizeFilterCounts::default(),
         content_crc32: None,
         movie: None,
+        object_pixels: None,
     }
 }
 

@@ -49,6 +49,10 @@ pub struct FrameSegmentation {
     /// What frame production kept of the frame for the QC movie, when asked
     /// ([`crate::frames::Keep`]); `None` otherwise.
     pub movie: Option<MovieFrame>,
+    /// Every pixel that holds a label (some holding 0 may be among them), each once, in no
+    /// particular order, where segmentation has them at hand (`None` for masks): the movie's
+    /// outline is then found from them rather than by reading the whole label image.
+    pub object_pixels: Option<Vec<u32>>,
 }
 
 /// What the QC movie needs of a frame, taken by frame production on the worker that
@@ -153,6 +157,7 @@ fn segment_finite(
         size_filter,
         content_crc32: None,
         movie: None,
+        object_pixels: Some(foreground.pixels),
     };
     (segmentation, prepared)
 }
