@@ -69,14 +69,19 @@ fn whole_frame(b: Bencher) {
 
 /// A frame as a run segments it: its filters kept on its thread, without the scan for NaN
 /// (the benchmark frame's samples are whole numbers, as a 16-bit recording's), and its label
-/// image given back once used, as a run that writes no label images does.
+/// image given back once used (cleared where its objects are), as a run that writes no label
+/// images does.
 #[divan::bench]
 fn whole_frame_as_a_run_does(b: Bencher) {
     b.bench(|| {
         let segmented = caravan::preprocess::filters_on_this_thread(|| {
             caravan::segment::segment_whole_number_frame(black_box(&FRAME), 0, &PARAMS)
         });
-        caravan::segment::label::give_back_label_image(black_box(segmented).labels);
+        let segmented = black_box(segmented);
+        match segmented.object_pixels {
+            Some(objects) => caravan::segment::label::give_back_label_image_of(segmented.labels, &objects),
+            None => caravan::segment::label::give_back_label_image(segmented.labels),
+        }
     });
 }
 

@@ -271,7 +271,7 @@ pub fn give_back_label_image(mut image: Vec<u32>) {
 /// in any order; pixels of label 0 may be among them too, as in [`Foreground::pixels`]):
 /// zeroed by clearing those alone, without reading the image (a frame's nuclei cover a few
 /// percent of it).
-pub(crate) fn give_back_label_image_of(mut image: Vec<u32>, objects: &[u32]) {
+pub fn give_back_label_image_of(mut image: Vec<u32>, objects: &[u32]) {
     for &p in objects {
         image[p as usize] = 0;
     }
