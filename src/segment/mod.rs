@@ -137,7 +137,7 @@ fn segment_finite(
     let runs = label::fill_holes_giving_runs(&mut mask, w, h);
     let cues = split::IntensityCues::new(values, noise, blobs::BlobRule::new(params.diameter_px, noise));
     let (seed_h, smoothing) = (params.seed_h_px, params.distance_smoothing_px);
-    let mut foreground = split::split_touching_foreground((&mask, &runs), w, h, seed_h, smoothing, Some(&cues));
+    let mut foreground = split::split_touching_foreground(&mask, &runs, w, h, seed_h, smoothing, Some(&cues));
     let expected_area = std::f64::consts::PI * params.diameter_px * params.diameter_px / 4.0;
     let clusters_cut = cluster::cut_oversized(&mut foreground, w, params.max_area_px, expected_area);
     let (count, before) = label::filter_and_relabel_counted(&mut foreground, params.min_area_px, f64::INFINITY);

@@ -78,7 +78,7 @@ pub fn split_touching(
     distance_smoothing_px: f64,
 ) -> Vec<u32> {
     let runs = Runs::of(mask, width, height, true);
-    let foreground = split_touching_foreground((mask, &runs), width, height, seed_h_px, distance_smoothing_px, None);
+    let foreground = split_touching_foreground(mask, &runs, width, height, seed_h_px, distance_smoothing_px, None);
     foreground.label_image(mask.len())
 }
 
@@ -88,8 +88,11 @@ pub fn split_touching(
 /// flooding use the distance weighted by the intensity (see [`intensity_weighted`]) instead of
 /// the distance alone, each basin is split again at its own level
 /// ([`each_basin_on_its_own`]), and then at its blob centres ([`split_basins_at_blobs`]).
+/// `runs` are the mask's foreground runs (`Runs::of(mask, width, height, true)`, or what the
+/// hole filling that made the mask gave back), where the search for its components starts.
 pub(crate) fn split_touching_foreground(
-    (mask, runs): (&[bool], &Runs),
+    mask: &[bool],
+    runs: &Runs,
     width: usize,
     height: usize,
     seed_h_px: f64,
@@ -550,6 +553,13 @@ mod tests {
         IntensityCues::new(values, noise, blobs)
     }
 
+    /// The label image of `mask` split on the landscape of `cues` (seed dynamic 0.14 px, the
+    /// distance smoothed by 1 px).
+    fn split_on_landscape(mask: &[bool], w: usize, h: usize, cues: &IntensityCues) -> Vec<u32> {
+        let runs = Runs::of(mask, w, h, true);
+        split_touching_foreground(mask, &runs, w, h, 0.14, 1.0, Some(cues)).label_image(mask.len())
+    }
+
     fn object_sizes(labels: &[u32]) -> Vec<usize> {
         let top = labels.iter().copied().max().unwrap_or(0) as usize;
         (1..=top)
@@ -565,15 +575,7 @@ mod tests {
         let (mask, values, w, h) = pressed_pair();
         let shape_only = split_touching(&mask, w, h, 0.14, 1.0);
         assert_eq!(object_sizes(&shape_only).len(), 1);
-        let labels = split_touching_foreground(
-            (&mask, &Runs::of(&mask, w, h, true)),
-            w,
-            h,
-            0.14,
-            1.0,
-            Some(&landscape_only(&values, 0.0)),
-        )
-        .label_image(mask.len());
+        let labels = split_on_landscape(&mask, w, h, &landscape_only(&values, 0.0));
         let sizes = object_sizes(&labels);
         assert_eq!(sizes.len(), 2, "{sizes:?}");
         let seam = (0..w * h).filter(|&i| mask[i] && values[i] < 50.0).count();
@@ -623,15 +625,7 @@ mod tests {
         let pair_share = (0..w * h).filter(|&i| pair((i % w) as f64, (i / w) as f64)).count() as f64
             / mask.iter().filter(|&&m| m).count() as f64;
         assert!(pair_share < 0.1, "{pair_share}");
-        let labels = split_touching_foreground(
-            (&mask, &Runs::of(&mask, w, h, true)),
-            w,
-            h,
-            0.14,
-            1.0,
-            Some(&landscape_only(&values, 0.0)),
-        )
-        .label_image(mask.len());
+        let labels = split_on_landscape(&mask, w, h, &landscape_only(&values, 0.0));
         let (left, right) = (labels[48 * w + 26], labels[48 * w + 37]);
         assert!(left > 0 && right > 0);
         assert_ne!(left, right, "the pair is two nuclei");
@@ -644,15 +638,7 @@ mod tests {
         // the seam's dip (from about 8 px beside the seam to 8 x 0.4 = 3.2 px in it, 4.8 px
         // deep) is below twice that (6.4 px), so it is one object.
         let (mask, values, w, h) = pressed_pair();
-        let labels = split_touching_foreground(
-            (&mask, &Runs::of(&mask, w, h, true)),
-            w,
-            h,
-            0.14,
-            1.0,
-            Some(&landscape_only(&values, 40.0)),
-        )
-        .label_image(mask.len());
+        let labels = split_on_landscape(&mask, w, h, &landscape_only(&values, 40.0));
         assert_eq!(object_sizes(&labels).len(), 1);
     }
 }
