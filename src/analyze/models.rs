@@ -595,6 +595,31 @@ mod tests {
     }
 
     #[test]
+    fn a_walk_fit_reports_the_residual_sum_of_its_own_parameters() {
+        // Source: definition (Σ w·(MSD − walk MSD at the returned parameters)², in lag order),
+        // for the walk with and without an offset from several starts on a wavy curve: each
+        // fit ends with λ climbing to its bound through steps too small to move a parameter,
+        // whose sum is not computed again; the sum returned must still be that of the
+        // parameters returned, to the last bit.
+        let pts = model_points(1..=20, 1.0, |t| furth_msd(t, 2.0, 5.0) * (1.0 + 0.05 * (1.7 * t).sin()));
+        let weights: Vec<f64> = pts.iter().map(|q| 1.0 / (q.msd * q.msd)).collect();
+        for start in [
+            vec![0.5, 1.0],
+            vec![3.0, 20.0],
+            vec![1.0, 2.0, 0.1],
+            vec![2.0, 5.0, 1.0],
+        ] {
+            let (theta, rss) = levenberg_marquardt(&pts, &weights, start.clone()).expect("converges");
+            let mut defined = 0.0;
+            for (q, w) in pts.iter().zip(&weights) {
+                let offset = theta.get(2).copied().unwrap_or(0.0);
+                defined += w * (q.msd - (furth_msd(q.lag, theta[0], theta[1]) + offset)).powi(2);
+            }
+            assert_eq!(rss.to_bits(), defined.to_bits(), "from {start:?}: {rss} {defined}");
+        }
+    }
+
+    #[test]
     fn the_noise_offset_removes_the_bias_of_the_walk() {
         // Source: fixtures/methods/check_values.md §11: exact PRW values D = 2, P = 5 plus
         // 4σ² with σ² = 0.25, lags 1–20: the walk with offset recovers D = 2, P = 5, σ² = 0.25
