@@ -460,6 +460,12 @@ impl ReviewWriter {
 /// chunks of frames. They need the tracks alone, not the frames, so [`ReviewWriter::new`] has
 /// them made on a thread of their own while the frames are drawn and compressed: made after
 /// the frames, they were ~25 ms at the end of a 100-frame run with one core idle.
+///
+/// That thread does all its work itself and never hands any to the worker pool: `finish`
+/// waits for it, and may be called on a worker (the movie pass finishes the page beside the
+/// contact sheet in `rayon::join`). A pool task waiting outside the pool's own waits for
+/// work that is queued behind it on the pool is a deadlock (rayon's documentation on
+/// blocking inside the pool, from memory); it hung one CI run in about a hundred.
 struct DataScripts {
     run: String,
     tracks: String,
@@ -468,18 +474,13 @@ struct DataScripts {
 
 impl DataScripts {
     /// The scripts of `input` shown `factor` times smaller with full frames by `plan`, made
-    /// at once (the shapes, the largest, frame by frame in parallel within).
+    /// on the calling thread alone (see the type).
     fn of(input: &ReviewInput, factor: usize, plan: &FullFramePlan) -> DataScripts {
-        let (run, (tracks, shapes)) = rayon::join(
-            || page::run_script(input, factor, plan),
-            || {
-                rayon::join(
-                    || page::tracks_script(&input.tracks),
-                    || page::shape_scripts(input, FRAMES_PER_CHUNK),
-                )
-            },
-        );
-        DataScripts { run, tracks, shapes }
+        DataScripts {
+            run: page::run_script(input, factor, plan),
+            tracks: page::tracks_script(&input.tracks),
+            shapes: page::shape_scripts(input, FRAMES_PER_CHUNK),
+        }
     }
 }
 
@@ -583,5 +584,67 @@ mod tests {
                 assert_eq!(compact(v, d), by_definition(v, d), "{v:e} at {d}");
             }
         }
+    }
+
+    #[test]
+    fn the_data_scripts_are_made_while_every_worker_is_busy() {
+        // Source: rayon's documentation on blocking inside the pool (from memory): a pool
+        // task that waits, outside the pool's own waits, for work queued behind it on the
+        // pool never wakes. `finish` waits for the scripts' thread and may run on a worker, so
+        // that thread must not hand work to the pool: here every worker of the global pool is
+        // held until the scripts arrive. Handing their parts to the pool (`rayon::join`, a
+        // `par_iter`) hangs this test until its minute is out, and it fails.
+        let workers = rayon::current_num_threads();
+        let (started, all_started) = std::sync::mpsc::channel();
+        let releases: Vec<std::sync::mpsc::Sender<()>> = (0..workers)
+            .map(|_| {
+                let (release, held) = std::sync::mpsc::channel::<()>();
+                let started = started.clone();
+                rayon::spawn(move || {
+                    let _ = started.send(());
+                    let _ = held.recv();
+                });
+                release
+            })
+            .collect();
+        for _ in 0..workers {
+            all_started.recv().expect("every worker takes a holder");
+        }
+        let point = |frame: usize| ReviewPoint {
+            frame,
+            x: 10.0 + frame as f64,
+            y: 20.0,
+            axes: (8.0, 6.0),
+            angle_deg: 30.0,
+            link_confidence: Some(0.9),
+        };
+        let input = ReviewInput {
+            title: "held".into(),
+            size: (64, 64),
+            frames: 250,
+            interval_s: Some(60.0),
+            pixel_size_um: None,
+            verdict: vec!["ok".into()],
+            tracks: vec![ReviewTrack {
+                id: 1,
+                parent: None,
+                daughters: Vec::new(),
+                speed_px_per_frame: Some(1.0),
+                directionality: Some(1.0),
+                points: (0..250).map(point).collect(),
+            }],
+            moments: vec![moment(3, MomentKind::CountJump)],
+        };
+        let (sent, arrived) = std::sync::mpsc::channel();
+        std::thread::spawn(move || {
+            let _ = sent.send(DataScripts::of(&input, 1, &FullFramePlan::none()));
+        });
+        let scripts = arrived.recv_timeout(std::time::Duration::from_secs(60));
+        drop(releases);
+        // One shapes script per FRAMES_PER_CHUNK frames (the page's layout): 250 frames, 3.
+        assert_eq!(
+            scripts.expect("the scripts, made with every worker held").shapes.len(),
+            3
+        );
     }
 }

@@ -4,7 +4,6 @@
 
 use super::{compact, push_numbers, FullFramePlan, MomentKind, ReviewInput, ReviewTrack};
 use crate::render::PALETTE;
-use rayon::prelude::*;
 use std::fmt::Write as _;
 
 const STYLE: &str = include_str!("page.css");
@@ -109,12 +108,10 @@ pub(super) fn shape_scripts(input: &ReviewInput, chunk: usize) -> Vec<String> {
         .chunks(chunk.max(1))
         .enumerate()
         .map(|(k, frames)| {
-            // Each frame's line on its own (in parallel), then joined in frame order.
-            let lines: Vec<String> = frames.par_iter().map(|objects| frame_shapes(objects)).collect();
             let mut out = format!("caravanShapes({k},[\n");
-            for (i, line) in lines.iter().enumerate() {
-                out.push_str(line);
-                out.push_str(if i + 1 < lines.len() { ",\n" } else { "\n" });
+            for (i, objects) in frames.iter().enumerate() {
+                out.push_str(&frame_shapes(objects));
+                out.push_str(if i + 1 < frames.len() { ",\n" } else { "\n" });
             }
             out.push_str("]);\n");
             out
