@@ -465,7 +465,8 @@ impl ReviewWriter {
 /// waits for it, and may be called on a worker (the movie pass finishes the page beside the
 /// contact sheet in `rayon::join`). A pool task waiting outside the pool's own waits for
 /// work that is queued behind it on the pool is a deadlock (rayon's documentation on
-/// blocking inside the pool, from memory); it hung one CI run in about a hundred.
+/// blocking inside the pool, from memory): it hung a CI run, and one `caravan join` in 150
+/// here.
 struct DataScripts {
     run: String,
     tracks: String,
