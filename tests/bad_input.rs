@@ -261,7 +261,7 @@ fn a_run_that_cannot_write_leaves_the_earlier_outputs() {
         rec.display(),
         run.display()
     );
-    let failed = Command::new("sh").args(["-c", &script]).output().unwrap();
+    let failed = common::output_within(Command::new("sh").args(["-c", &script]));
     let stderr = String::from_utf8_lossy(&failed.stderr);
     assert_eq!(failed.status.code(), Some(3), "{stderr}");
     assert_eq!(stderr.trim_end().lines().count(), 1, "{stderr}");
@@ -370,14 +370,15 @@ fn unreadable_input_and_unwritable_output_are_named() {
     std::fs::set_permissions(&bin, std::fs::Permissions::from_mode(0o755)).unwrap();
     let run = |args: &[&str]| -> Output {
         if root {
-            Command::new("setpriv")
-                .args(["--reuid=65534", "--regid=65534", "--clear-groups", "--"])
-                .arg(&bin)
-                .args(args)
-                .output()
-                .expect("setpriv (util-linux) runs the command as nobody")
+            // setpriv (util-linux) runs the command as nobody.
+            common::output_within(
+                Command::new("setpriv")
+                    .args(["--reuid=65534", "--regid=65534", "--clear-groups", "--"])
+                    .arg(&bin)
+                    .args(args),
+            )
         } else {
-            Command::new(&bin).args(args).output().unwrap()
+            common::output_within(Command::new(&bin).args(args))
         }
     };
     let unreadable = run(&["inspect", secret.to_str().unwrap()]);

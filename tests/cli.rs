@@ -7,11 +7,11 @@ use std::path::Path;
 use std::process::{Command, Output};
 
 fn caravan(args: &[&str], threads: &str) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_caravan"))
-        .args(args)
-        .env("RAYON_NUM_THREADS", threads)
-        .output()
-        .unwrap()
+    common::output_within(
+        Command::new(env!("CARGO_BIN_EXE_caravan"))
+            .args(args)
+            .env("RAYON_NUM_THREADS", threads),
+    )
 }
 
 fn ok(out: &Output) -> String {
@@ -70,7 +70,7 @@ fn track_is_identical_on_every_instruction_level() {
         if let Some(level) = level {
             command.env("CARAVAN_SIMD", level);
         }
-        ok(&command.output().unwrap());
+        ok(&common::output_within(&mut command));
         out
     };
     let (wide, portable) = (run(None, "wide"), run(Some("portable"), "portable"));
@@ -1002,4 +1002,29 @@ fn copy_folder(from: &Path, to: &Path) {
             std::fs::copy(e.path(), target).unwrap();
         }
     }
+}
+
+#[test]
+fn a_command_is_run_as_the_standard_library_runs_it_and_killed_when_it_hangs() {
+    // Source: the standard library's `Command::output` on the same command (exit code, both
+    // streams, standard input closed) for the tests' watchdog; and a command that outlives
+    // its limit fails the test naming it (common practice for a watchdog) rather than
+    // holding CI until its time is out, as a hang once did.
+    let script = "printf 'out'; printf 'err' >&2; read line; exit 3";
+    let ours = common::output_within(Command::new("sh").args(["-c", script]));
+    let std = Command::new("sh").args(["-c", script]).output().unwrap();
+    assert_eq!(ours.status.code(), Some(3));
+    assert_eq!(
+        (ours.status.code(), &ours.stdout, &ours.stderr),
+        (std.status.code(), &std.stdout, &std.stderr)
+    );
+    let hung = std::panic::catch_unwind(|| {
+        common::output_within_limit(Command::new("sleep").arg("30"), std::time::Duration::from_millis(300))
+    });
+    let message = hung.expect_err("killed and failed");
+    let message = message.downcast_ref::<String>().cloned().unwrap_or_default();
+    assert!(
+        message.contains("still running after") && message.contains("sleep"),
+        "{message}"
+    );
 }

@@ -64,11 +64,11 @@ fn the_review_page_is_written_rewritten_identically_and_works_in_a_browser() {
 
     // `caravan review` on the finished folder, on one thread: the same page, byte for byte.
     std::fs::remove_dir_all(run.join("review")).unwrap();
-    let out = std::process::Command::new(env!("CARGO_BIN_EXE_caravan"))
-        .args(["review", run.to_str().unwrap()])
-        .env("RAYON_NUM_THREADS", "1")
-        .output()
-        .unwrap();
+    let out = common::output_within(
+        std::process::Command::new(env!("CARGO_BIN_EXE_caravan"))
+            .args(["review", run.to_str().unwrap()])
+            .env("RAYON_NUM_THREADS", "1"),
+    );
     assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
     assert!(
         files(&run.join("review")) == written,

@@ -3,15 +3,12 @@
 //! (`--cores 2`) on the same manifest: every result identical. Snakemake comes from the Python
 //! package index (installed by .ci/run; set CARAVAN_SNAKEMAKE elsewhere).
 
+mod common;
 use std::path::Path;
 use std::process::{Command, Output};
 
 fn caravan(args: &[&str], cwd: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_caravan"))
-        .args(args)
-        .current_dir(cwd)
-        .output()
-        .unwrap()
+    common::output_within(Command::new(env!("CARGO_BIN_EXE_caravan")).args(args).current_dir(cwd))
 }
 
 fn ok(out: Output) -> String {
@@ -80,11 +77,11 @@ fn batch_skips_what_is_done_and_the_workflow_gives_the_same_results() {
             return;
         }
     };
-    let run = Command::new(snakemake)
-        .args(["--cores", "2", "--quiet"])
-        .current_dir(d.join("wf"))
-        .output()
-        .unwrap();
+    let run = common::output_within(
+        Command::new(snakemake)
+            .args(["--cores", "2", "--quiet"])
+            .current_dir(d.join("wf")),
+    );
     assert!(
         run.status.success(),
         "{}\n{}",

@@ -51,10 +51,61 @@ pub fn track_synthetic(p: &SynthParams, link: LinkOptions) -> TrackedScene {
 /// it).
 #[allow(dead_code)]
 pub fn caravan(args: &[&str]) -> std::process::Output {
-    std::process::Command::new(env!("CARGO_BIN_EXE_caravan"))
-        .args(args)
-        .output()
-        .unwrap()
+    output_within(std::process::Command::new(env!("CARGO_BIN_EXE_caravan")).args(args))
+}
+
+/// How long one command of a test may run: far beyond the slowest (a few seconds), short of
+/// CI's own limit.
+pub const COMMAND_LIMIT: std::time::Duration = std::time::Duration::from_secs(300);
+
+/// `command.output()` (standard input closed, as there), but a command still running after
+/// [`COMMAND_LIMIT`] is killed and fails the test with its command line: a hang (a deadlock in
+/// the binary, say) then names the command within minutes instead of holding CI until its
+/// time is out, as one did (not every test crate that shares this module runs a command).
+#[allow(dead_code)]
+pub fn output_within(command: &mut std::process::Command) -> std::process::Output {
+    output_within_limit(command, COMMAND_LIMIT)
+}
+
+/// [`output_within`] with the given limit.
+#[allow(dead_code)]
+pub fn output_within_limit(command: &mut std::process::Command, limit: std::time::Duration) -> std::process::Output {
+    use std::io::Read;
+    use std::process::Stdio;
+    let mut child = command
+        .stdin(Stdio::null())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap_or_else(|e| panic!("{command:?} did not start: {e}"));
+    let drain = |mut from: Box<dyn Read + Send>| {
+        std::thread::spawn(move || {
+            let mut bytes = Vec::new();
+            let _ = from.read_to_end(&mut bytes);
+            bytes
+        })
+    };
+    let stdout = drain(Box::new(child.stdout.take().expect("piped")));
+    let stderr = drain(Box::new(child.stderr.take().expect("piped")));
+    let started = std::time::Instant::now();
+    let mut pause = std::time::Duration::from_millis(1);
+    let status = loop {
+        if let Some(status) = child.try_wait().unwrap() {
+            break status;
+        }
+        if started.elapsed() > limit {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("{command:?} still running after {limit:?}: killed");
+        }
+        std::thread::sleep(pause);
+        pause = (pause * 2).min(std::time::Duration::from_millis(20));
+    };
+    std::process::Output {
+        status,
+        stdout: stdout.join().expect("reader"),
+        stderr: stderr.join().expect("reader"),
+    }
 }
 
 /// Runs `caravan ARGS...`, failing the test with its error output unless it succeeds (not every
