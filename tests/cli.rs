@@ -1018,13 +1018,30 @@ fn a_command_is_run_as_the_standard_library_runs_it_and_killed_when_it_hangs() {
         (ours.status.code(), &ours.stdout, &ours.stderr),
         (std.status.code(), &std.stdout, &std.stderr)
     );
+    // A shell whose child hangs: the child is killed with it, not left running.
+    let dir = tempfile::tempdir().unwrap();
+    let pid_file = dir.path().join("pid");
+    let script = format!("sleep 30 & echo $! > '{}'; wait", pid_file.display());
     let hung = std::panic::catch_unwind(|| {
-        common::output_within_limit(Command::new("sleep").arg("30"), std::time::Duration::from_millis(300))
+        common::output_within_limit(
+            Command::new("sh").args(["-c", &script]),
+            std::time::Duration::from_millis(500),
+        )
     });
+    let pid = std::fs::read_to_string(&pid_file).unwrap();
+    let gone = (0..100).any(|_| {
+        let stat = std::fs::read_to_string(format!("/proc/{}/stat", pid.trim())).unwrap_or_default();
+        let dead = stat.is_empty() || stat.split(") ").nth(1).is_some_and(|rest| rest.starts_with('Z'));
+        dead || {
+            std::thread::sleep(std::time::Duration::from_millis(20));
+            false
+        }
+    });
+    assert!(gone, "the shell's child {pid} still runs");
     let message = hung.expect_err("killed and failed");
     let message = message.downcast_ref::<String>().cloned().unwrap_or_default();
     assert!(
-        message.contains("still running after") && message.contains("sleep"),
+        message.contains("still running after") && message.contains("sleep 30 &"),
         "{message}"
     );
 }

@@ -54,7 +54,7 @@ pub fn caravan(args: &[&str]) -> std::process::Output {
     output_within(std::process::Command::new(env!("CARGO_BIN_EXE_caravan")).args(args))
 }
 
-/// How long one command of a test may run: far beyond the slowest (a few seconds), short of
+/// How long one command of a test may run: far beyond the slowest (seconds), far short of
 /// CI's own limit.
 pub const COMMAND_LIMIT: std::time::Duration = std::time::Duration::from_secs(300);
 
@@ -71,8 +71,11 @@ pub fn output_within(command: &mut std::process::Command) -> std::process::Outpu
 #[allow(dead_code)]
 pub fn output_within_limit(command: &mut std::process::Command, limit: std::time::Duration) -> std::process::Output {
     use std::io::Read;
+    use std::os::unix::process::CommandExt;
     use std::process::Stdio;
+    // A process group of its own, so that a shell's or a workflow's children go with it.
     let mut child = command
+        .process_group(0)
         .stdin(Stdio::null())
         .stdout(Stdio::piped())
         .stderr(Stdio::piped())
@@ -94,6 +97,10 @@ pub fn output_within_limit(command: &mut std::process::Command, limit: std::time
             break status;
         }
         if started.elapsed() > limit {
+            let group = format!("-{}", child.id());
+            let _ = std::process::Command::new("kill")
+                .args(["-KILL", "--", &group])
+                .status();
             let _ = child.kill();
             let _ = child.wait();
             panic!("{command:?} still running after {limit:?}: killed");
