@@ -97,10 +97,9 @@ pub fn output_within_limit(command: &mut std::process::Command, limit: std::time
             break status;
         }
         if started.elapsed() > limit {
-            let group = format!("-{}", child.id());
-            let _ = std::process::Command::new("kill")
-                .args(["-KILL", "--", &group])
-                .status();
+            // The shell's own `kill`, which every shell has (a `kill` program may be missing).
+            let group = format!("kill -KILL -{}", child.id());
+            let _ = std::process::Command::new("sh").args(["-c", &group]).status();
             let _ = child.kill();
             let _ = child.wait();
             panic!("{command:?} still running after {limit:?}: killed");
