@@ -1029,14 +1029,19 @@ fn a_command_is_run_as_the_standard_library_runs_it_and_killed_when_it_hangs() {
         )
     });
     let pid = std::fs::read_to_string(&pid_file).unwrap();
-    let gone = (0..100).any(|_| {
+    // Ended: no entry in /proc, or a zombie (state Z) waiting to be reaped.
+    let ended = || {
         let stat = std::fs::read_to_string(format!("/proc/{}/stat", pid.trim())).unwrap_or_default();
-        let dead = stat.is_empty() || stat.split(") ").nth(1).is_some_and(|rest| rest.starts_with('Z'));
-        dead || {
-            std::thread::sleep(std::time::Duration::from_millis(20));
-            false
+        stat.is_empty() || stat.split(") ").nth(1).is_some_and(|rest| rest.starts_with('Z'))
+    };
+    let mut gone = ended();
+    for _ in 0..100 {
+        if gone {
+            break;
         }
-    });
+        std::thread::sleep(std::time::Duration::from_millis(20));
+        gone = ended();
+    }
     assert!(gone, "the shell's child {pid} still runs");
     let message = hung.expect_err("killed and failed");
     let message = message.downcast_ref::<String>().cloned().unwrap_or_default();
