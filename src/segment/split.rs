@@ -149,8 +149,11 @@ fn find_components(mask: &[bool], runs: &Runs, width: usize, height: usize) -> (
     let mut state: Vec<u8> = mask.iter().map(|&m| u8::from(m)).collect();
     let mut pixels: Vec<u32> = Vec::new();
     let mut components = Vec::new();
-    // Most of a frame is background: only the foreground runs are walked, in raster order.
-    let starts = (runs.spans.iter()).flat_map(|&(y, s, e)| y * width + s..y * width + e);
+    // Most of a frame is background: only the foreground runs are looked at, in raster order,
+    // and of each only its first pixel. A run lies in one component, which is searched whole
+    // once any of its pixels is found, so a run's other pixels are unreached only while its
+    // first one is, and a component's first pixel in raster order starts a run.
+    let starts = (runs.spans.iter()).map(|&(y, s, _)| y * width + s);
     for start in starts {
         if state[start] != UNREACHED {
             continue;
