@@ -559,6 +559,8 @@ impl RunOptions {
             "tracks.csv" | "per_track.csv" => linked,
             "qc_movie.gif" | "qc_sheet.png" => linked && self.movie.is_some(),
             "review" => linked && self.review.is_some(),
+            // Made after publishing, from the run's outputs (if asked for).
+            "analysis" | "lookalike" => false,
             _ => true,
         }
     }

@@ -8,9 +8,13 @@ use crate::error::{Error, Result};
 use crate::output::{ensure_dir, Removal, Staging};
 use std::path::Path;
 
-/// Every file (and the `review` folder) a run may write; a replacing run removes the ones it
-/// did not write this time, so that a folder never mixes two runs.
-pub const RUN_OUTPUTS: [&str; 8] = [
+/// Every file (and the `review`, `analysis` and `lookalike` folders) a run may write; a
+/// replacing run removes the ones it did not write this time, so that a folder never mixes
+/// two runs. The analysis and the look-alikes are made after the run is published, from its
+/// outputs, so an earlier run's are always removed: a run without them (`--no-analysis`,
+/// tracks too short, no `--lookalike`) must not sit beside the earlier run's report, nor its
+/// report show the earlier run's expected accuracy.
+pub const RUN_OUTPUTS: [&str; 10] = [
     "detections.csv",
     "labels.tif",
     "tracks.csv",
@@ -18,6 +22,8 @@ pub const RUN_OUTPUTS: [&str; 8] = [
     "qc_movie.gif",
     "qc_sheet.png",
     "review",
+    "analysis",
+    "lookalike",
     "run.json",
 ];
 

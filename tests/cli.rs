@@ -443,6 +443,60 @@ fn an_earlier_run_is_kept_unless_forced() {
 }
 
 #[test]
+fn a_replacing_run_leaves_no_report_of_the_earlier_tracks() {
+    // The run folder's promise (a folder never mixes two runs) for the analysis and the
+    // look-alikes, made after the run is published: a replacing run without them, asked away
+    // or with tracks too short to analyse, must not leave the earlier run's beside its tracks,
+    // nor its report show the earlier run's expected accuracy.
+    let dir = tempfile::tempdir().unwrap();
+    let long = synth_into(
+        &dir.path().join("long"),
+        &["--size", "160x128", "--frames", "12", "--nuclei", "6", "--seed", "8"],
+    );
+    let out = dir.path().join("run");
+    let out_s = out.to_str().unwrap();
+    let report = out.join("analysis").join("report.html");
+    ok(&caravan(
+        &["track", &long, "-o", out_s, "--diameter", "14px", "--lookalike"],
+        "2",
+    ));
+    assert!(report.exists() && out.join("lookalike").exists(), "the first run's");
+    let without = [
+        "track",
+        &long,
+        "-o",
+        out_s,
+        "--diameter",
+        "12px",
+        "--force",
+        "--no-analysis",
+    ];
+    ok(&caravan(&without, "2"));
+    assert!(
+        out.join("tracks.csv").exists() && !out.join("analysis").exists() && !out.join("lookalike").exists(),
+        "asked away"
+    );
+    ok(&caravan(
+        &["track", &long, "-o", out_s, "--diameter", "14px", "--force"],
+        "2",
+    ));
+    let third = std::fs::read_to_string(&report).unwrap();
+    assert!(
+        !third.contains("lookalike/"),
+        "no look-alikes of an earlier run in the report"
+    );
+    // Five frames: every track is shorter than the analysis asks for.
+    let short = synth(dir.path());
+    let again = caravan(&["track", &short, "-o", out_s, "--diameter", "14px", "--force"], "2");
+    ok(&again);
+    assert!(String::from_utf8_lossy(&again.stdout).contains("no migration analysis"));
+    assert!(
+        out.join("tracks.csv").exists() && !out.join("analysis").exists(),
+        "too short"
+    );
+}
+
+#[test]
 fn score_writes_json_that_an_independent_reader_confirms() {
     // A dividing dish, tracked and scored through the command line; then scipy's
     // linear_sum_assignment re-derives the detection counts, and the published AOGM and
