@@ -65,6 +65,17 @@ const ZIGZAG: [usize; 64] = [
     58, 59, 52, 45, 38, 31, 39, 46, 53, 60, 61, 54, 47, 55, 62, 63,
 ];
 
+/// [`ZIGZAG`] inverted: the zig-zag index of each coefficient, by its row-major position.
+const ZIGZAG_INDEX: [u8; 64] = {
+    let mut index = [0u8; 64];
+    let mut z = 0;
+    while z < 64 {
+        index[ZIGZAG[z]] = z as u8;
+        z += 1;
+    }
+    index
+};
+
 /// Largest side a baseline JPEG can state (16-bit fields of the frame header).
 pub const MAX_SIDE: usize = u16::MAX as usize;
 
@@ -158,14 +169,12 @@ fn gather_band(grey: &[u8], width: usize, height: usize, top: usize, band: &mut 
 
 crate::multiversioned! {
     /// Forward DCT and quantisation of every block of a band ([`gather_band`]'s layout), the
-    /// quantised coefficients in zig-zag order.
+    /// quantised coefficients in row-major order (one vectorised loop; the entropy coder
+    /// visits the few non-zero ones in zig-zag order, [`BitSink::block`]: putting all 64 in
+    /// that order here was over a quarter of this function's time).
     fn transform_band / transform_band_with(band: &[u8], divisors: &Divisors, blocks: &mut [[i32; 64]]) {
         for (samples, block) in band.chunks_exact(64).zip(blocks.iter_mut()) {
-            // Quantised in row-major order (one vectorised loop), then put in zig-zag order.
-            let quantised = divisors.quantise_block(&forward_dct(samples));
-            for (out, &k) in block.iter_mut().zip(&ZIGZAG) {
-                *out = quantised[k];
-            }
+            *block = divisors.quantise_block(&forward_dct(samples));
         }
     }
 }
@@ -380,15 +389,16 @@ impl BitSink {
         }
     }
 
-    /// One block, its coefficients in zig-zag order (T.81 F.1.2.1 and F.1.2.2): the DC
-    /// difference from `previous_dc` as a category and its bits, then each non-zero AC
-    /// coefficient with the run of zeros before it (runs over 15 as ZRL symbols), and
-    /// end-of-block if the last is zero. The non-zero coefficients are found as the set bits
-    /// of one mask, not by testing each. Returns this block's DC.
+    /// One block (its coefficients row-major), coded in zig-zag order (T.81 F.1.2.1 and
+    /// F.1.2.2): the DC difference from `previous_dc` as a category and its bits, then each
+    /// non-zero AC coefficient with the run of zeros before it (runs over 15 as ZRL symbols),
+    /// and end-of-block if the last is zero. The non-zero coefficients are found as the set
+    /// bits of one mask, not by testing each, and that mask put in zig-zag order bit by bit.
+    /// Returns this block's DC.
     fn block(&mut self, block: &[i32; 64], previous_dc: i32, dc: &HuffmanCodes, ac: &HuffmanCodes) -> i32 {
         let (size, bits) = category(block[0] - previous_dc);
         self.symbol_and_bits(dc, size, (size, bits));
-        let mut nonzero = nonzero_mask(block) & !1;
+        let mut nonzero = in_zigzag_order(nonzero_mask(block)) & !1;
         let mut last = 0;
         while nonzero != 0 {
             let k = nonzero.trailing_zeros();
@@ -397,7 +407,7 @@ impl BitSink {
                 self.symbol(ac, 0xf0);
                 run -= 16;
             }
-            let (size, bits) = category(block[k as usize]);
+            let (size, bits) = category(block[ZIGZAG[k as usize]]);
             self.symbol_and_bits(ac, ((run as u8) << 4) | size, (size, bits));
             last = k;
             nonzero &= nonzero - 1;
@@ -451,6 +461,19 @@ fn nonzero_mask(block: &[i32; 64]) -> u64 {
         mask |= gathered << (8 * k);
     }
     mask
+}
+
+/// A mask over a block's coefficients in row-major order (bit `r` for position `r`) as the
+/// same mask in zig-zag order (bit `z` for the `z`-th coefficient of [`ZIGZAG`]): one step per
+/// set bit, and a block at review quality has a handful.
+#[inline(always)]
+fn in_zigzag_order(mut row_major: u64) -> u64 {
+    let mut zigzag = 0u64;
+    while row_major != 0 {
+        zigzag |= 1 << ZIGZAG_INDEX[row_major.trailing_zeros() as usize];
+        row_major &= row_major - 1;
+    }
+    zigzag
 }
 
 /// The magnitude category of a coefficient (its bit length) and its additional bits: the
