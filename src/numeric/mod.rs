@@ -2,9 +2,11 @@
 //! generator, numbers printed for people). They sit at the bottom of the module graph: they import nothing from the
 //! stages, so every stage may use them without an import circle.
 
+mod point_grid;
 mod rng;
 pub mod spare;
 
+pub(crate) use point_grid::PointGrid;
 pub use rng::Rng;
 
 /// `x` with four significant figures for people to read (`452.1`, `0.3308`), whole numbers
