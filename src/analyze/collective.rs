@@ -53,7 +53,7 @@ impl PairCorrelation {
     /// as given (unit vectors give cosines; [`scaled_fluctuations`] give Cavagna's C(r)).
     ///
     /// The candidates within reach come from a grid of cells a millionth wider than the reach
-    /// (each point's own cell and the eight around it, [`PointGrid::for_each_near`]; a
+    /// (each point's own cell and the eight around it, `numeric::PointGrid::for_each_near`; a
     /// squared distance within that wider radius, so that rounding drops no pair the distance
     /// below keeps), so the work grows with the number of points times their neighbours
     /// within reach, not with the square of the points; each point's partners are then taken
