@@ -58,8 +58,8 @@ impl PairCorrelation {
     /// below keeps), so the work grows with the number of points times their neighbours
     /// within reach, not with the square of the points; each point's partners are then taken
     /// in index order, the order of the plain double loop, so the sums are the same to the
-    /// last bit. (A k-d tree's radius queries, as before, took about twice as long: a
-    /// frame's pairs were ~2% of a default run's samples.) Frames with a point that is not
+    /// last bit. (With a k-d tree's radius queries, as before, the pairs took about twice as
+    /// long: ~2% of a default run's samples.) Frames with a point that is not
     /// finite, or a reach that is not a positive number, compare every pair.
     pub fn add_frame(&mut self, positions: &[[f64; 2]], vectors: &[[f64; 2]]) {
         let pairs = self.frame_pairs(positions, vectors);

@@ -28,8 +28,9 @@ impl<'a> PointGrid<'a> {
     }
 
     /// Cells `cell` wide (finite and positive), at most 4096 along a side: beyond that the
-    /// last column (or row) holds the rest, so that two points one cell apart or nearer still
-    /// lie in the same or neighbouring cells.
+    /// last column (or row) holds the rest. Clamping keeps neighbours neighbours: two points
+    /// less than a cell apart along an axis (less by more than the division's rounding) lie
+    /// in the same or neighbouring columns (rows).
     pub(crate) fn with_cell(points: &'a [[f64; 2]], cell: f64) -> Self {
         let (lo, span) = bounds(points);
         let count = |extent: f64| ((extent / cell) as usize + 1).min(1 << 12);
@@ -66,10 +67,10 @@ impl<'a> PointGrid<'a> {
     /// For one query: the index of its nearest point, and the squared distances to the
     /// nearest and the second nearest (ties for the nearest go to the lower index). Ring `r`
     /// holds the cells `r` steps away (Chebyshev) from the query's cell (or the nearest cell,
-    /// for a query outside the grid); a point in ring `r`
-    /// or beyond lies outside the square of rings `0..r`, at least the query's distance to the
-    /// edge of its own cell plus `r − 1` cells away along one axis, so once that bound squared
-    /// exceeds the second nearest squared distance, no unseen point can come nearer or tie.
+    /// for a query outside the grid); a point in ring `r` or beyond lies outside the square of
+    /// rings `0..r`, at least the query's distance to the edge of its own cell plus `r − 1`
+    /// cells away along one axis, so once that bound squared exceeds the second nearest
+    /// squared distance, no unseen point can come nearer or tie.
     pub(crate) fn nearest_two(&self, q: &[f64; 2]) -> (usize, f64, f64) {
         let (cx, cy) = self.column_row(q);
         let mut best = (usize::MAX, f64::INFINITY, f64::INFINITY);
