@@ -33,7 +33,9 @@ impl<'a> PointGrid<'a> {
     /// in the same or neighbouring columns (rows).
     pub(crate) fn with_cell(points: &'a [[f64; 2]], cell: f64) -> Self {
         let (lo, span) = bounds(points);
-        let count = |extent: f64| ((extent / cell) as usize + 1).min(1 << 12);
+        // Saturating: a box wider than the largest float (points near ±1e308) has an
+        // infinite extent, whose cell count converts to the largest integer.
+        let count = |extent: f64| ((extent / cell) as usize).saturating_add(1).min(1 << 12);
         let (columns, rows) = (count(span[0]), count(span[1]));
         let mut grid = PointGrid {
             points,
@@ -146,4 +148,26 @@ fn bounds(points: &[[f64; 2]]) -> ([f64; 2], [f64; 2]) {
         }
     }
     (lo, [(hi[0] - lo[0]).max(0.0), (hi[1] - lo[1]).max(0.0)])
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_box_wider_than_the_largest_float_keeps_neighbours_neighbours() {
+        // Source: IEEE 754 (a difference of finite numbers can overflow to infinity, and a
+        // float converts to an integer saturating): points near ±1e308 span an infinite width,
+        // the grid clamps to its largest size, and two points within a cell of each other are
+        // still found from either; no index runs past the grid.
+        let points = [[-1e308, 0.0], [1e308, 0.0], [1e308, 0.5], [0.0, 0.0]];
+        let grid = PointGrid::with_cell(&points, 1.0);
+        let near = |i: usize| {
+            let mut found = Vec::new();
+            grid.for_each_near(&points[i], |j| found.push(j));
+            found
+        };
+        assert!(near(1).contains(&2) && near(2).contains(&1));
+        assert!(near(0).contains(&0) && !near(0).contains(&1));
+    }
 }
