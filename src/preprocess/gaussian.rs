@@ -349,10 +349,10 @@ impl LaplaceKernels {
     /// only, with these kernels (cut at 4 standard deviations they give exactly the whole-frame
     /// result: the same kernels, reflection at the borders and order of additions). The row
     /// passes run over the pixels' columns and the rows within the kernel's reach of them, so
-    /// the work follows the pixels' box, not the frame. Its images (the padded rows where the
-    /// kernel's reach crosses the frame's edge, the two row passes and their column sum) are
-    /// cut from the thread's spare buffer: every value that reaches a pixel asked for is
-    /// written before it is read, and a frame asks for one box per object.
+    /// the work follows the pixels' box, not the frame. Its four images (the padded rows, the
+    /// two row passes and their column sum) are cut from the thread's spare buffer: every value
+    /// that reaches a pixel asked for is written before it is read, and a frame asks for one
+    /// box per object.
     pub fn at(&self, values: &[f32], width: usize, pixels: &[u32]) -> Vec<f32> {
         let height = values.len() / width.max(1);
         let (Some(&first), true) = (pixels.first(), width > 0) else {
@@ -368,21 +368,19 @@ impl LaplaceKernels {
             let (x, y) = column_row(p);
             (x0, x1, y0, y1) = (x0.min(x), x1.max(x + 1), y0.min(y), y1.max(y + 1));
         }
-        // Rows y0 - r .. y1 + r, each cut to columns x0 - r .. x1 + r, `stride` apart: one
-        // row pass over them all filters every row with g0 and g2 (one call instead of one per
-        // row: a small object's rows are a vector or two wide, and a call per row cost more
-        // than its sums), keeping each row's first `band` outputs, the box's columns, `band`
-        // apart. The column pass's outputs are then the box's pixels, `band` apart: for a
-        // small object the kernel's reach either side is about the box's width, and laid
-        // `stride` apart most of that pass's outputs went unread. A box whose reach stays
-        // inside the frame (most of them) is read where it lies, rows `width` apart; the
-        // others from a copy, padded by reflection, rows laid end to end.
+        // Rows y0 - r .. y1 + r (as offsets), each padded to columns x0 - r .. x1 + r and laid
+        // end to end, `stride` apart: one row pass over them all filters every row with g0 and
+        // g2 (one call instead of one per row: a small object's rows are a vector or two wide,
+        // and a call per row cost more than its sums), keeping each row's first `band`
+        // outputs, the box's columns, `band` apart (the others straddle two rows). The column
+        // pass's outputs are then the box's pixels, `band` apart: for a small object the
+        // kernel's reach either side is about the box's width, and laid `stride` apart most
+        // of that pass's outputs went unread.
         let band = x1 - x0;
         let rows = y1 - y0 + 2 * r;
         let box_rows = y1 - y0;
-        let inside_frame = x0 >= r && x1 + r <= width && y0 >= r && y1 + r <= height;
-        let stride = if inside_frame { width } else { band + 2 * r };
-        let all = if inside_frame { 0 } else { rows * stride };
+        let stride = band + 2 * r;
+        let all = rows * stride;
         let filtered = rows * band;
         let box_len = box_rows * band;
         let mut spare = scratch::take(all + 2 * filtered + box_len);
@@ -390,13 +388,17 @@ impl LaplaceKernels {
         let (with_g0, rest) = rest.split_at_mut(filtered);
         let (with_g2, rest) = rest.split_at_mut(filtered);
         let laplacian = &mut rest[..box_len];
-        let source: &[f32] = if inside_frame {
-            &values[(y0 - r) * width + x0 - r..]
-        } else {
-            pad_box_rows(padded, values, (width, height), (x0, y0), r, stride);
-            padded
-        };
-        filter_steps_pair_kept(with_g0, with_g2, source, (stride, band), g0, g2);
+        // Columns x0 - r .. x1 + r of the frame; those inside it are copied, the rest reflected.
+        let inside = r.saturating_sub(x0)..stride.min(width + r - x0);
+        for (j, padded) in padded.chunks_exact_mut(stride).enumerate() {
+            let sy = reflect(y0 as isize + j as isize - r as isize, height);
+            let line = &values[sy * width..(sy + 1) * width];
+            padded[inside.clone()].copy_from_slice(&line[x0 + inside.start - r..x0 + inside.end - r]);
+            for i in (0..inside.start).chain(inside.end..stride) {
+                padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
+            }
+        }
+        filter_steps_pair_kept(with_g0, with_g2, padded, (stride, band), g0, g2);
         // The two column passes and their sum over the whole box in one call (an output reads
         // the outputs of the row pass in its own column only), then the pixels read from it.
         filter_steps_sum(laplacian, with_g2, with_g0, band, g0, g2);
@@ -409,30 +411,6 @@ impl LaplaceKernels {
             .collect();
         scratch::give_back(spare);
         at
-    }
-}
-
-/// Fills `padded` with rows `y0 − reach ..` of a `width` x `height` frame (`values`,
-/// row-major), laid end to end `stride` apart, each cut to columns `x0 − reach .. x0 − reach +
-/// stride`: the columns inside the frame copied, the rest reflected (`d c b a | a b c d | d c
-/// b a`).
-fn pad_box_rows(
-    padded: &mut [f32],
-    values: &[f32],
-    (width, height): (usize, usize),
-    corner: (usize, usize),
-    reach: usize,
-    stride: usize,
-) {
-    let ((x0, y0), r) = (corner, reach);
-    let inside = r.saturating_sub(x0)..stride.min(width + r - x0);
-    for (j, padded) in padded.chunks_exact_mut(stride).enumerate() {
-        let sy = reflect(y0 as isize + j as isize - r as isize, height);
-        let line = &values[sy * width..(sy + 1) * width];
-        padded[inside.clone()].copy_from_slice(&line[x0 + inside.start - r..x0 + inside.end - r]);
-        for i in (0..inside.start).chain(inside.end..stride) {
-            padded[i] = line[reflect(x0 as isize + i as isize - r as isize, width)];
-        }
     }
 }
 
