@@ -2,7 +2,7 @@
 //! distance and local density, and the correlation of neighbours' velocity fluctuations
 //! against their distance.
 
-use crate::numeric::PointGrid;
+use crate::numeric::{squared_distance, PointGrid};
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use serde::Serialize;
 
@@ -79,14 +79,13 @@ impl PairCorrelation {
         let cell = reach * (1.0 + 1e-6);
         let grid = (finite && cell.is_finite() && cell > 0.0).then(|| PointGrid::with_cell(positions, cell));
         let wider = cell * cell;
-        let squared = |a: [f64; 2], b: [f64; 2]| (a[0] - b[0]) * (a[0] - b[0]) + (a[1] - b[1]) * (a[1] - b[1]);
         let mut partners = Vec::new();
         for i in 0..positions.len() {
             let ui = vectors[i];
             partners.clear();
             match &grid {
                 Some(grid) => grid.for_each_near(&positions[i], |j| {
-                    if j > i && squared(positions[i], positions[j]) <= wider {
+                    if j > i && squared_distance(&positions[i], &positions[j]) <= wider {
                         partners.push(j);
                     }
                 }),

@@ -38,6 +38,12 @@ pub fn filled<T: Clone>(n: usize, value: T) -> Vec<T> {
     v
 }
 
+/// The squared Euclidean distance between two points of the plane, `dx² + dy²` (each square
+/// one rounding, then the sum: the same bits wherever it is asked for).
+pub fn squared_distance(a: &[f64; 2], b: &[f64; 2]) -> f64 {
+    (a[0] - b[0]) * (a[0] - b[0]) + (a[1] - b[1]) * (a[1] - b[1])
+}
+
 /// Values grouped by a key in `0..keys`, each group in the order the values came in, all in one
 /// list (a compressed sparse row layout, made by a counting sort): one allocation for all the
 /// groups instead of a list per key.

@@ -21,10 +21,11 @@ impl<'a> PointGrid<'a> {
     /// [`PointGrid::nearest_two`]), and never more cells along a side than half the points (a
     /// box as thin as a line).
     pub(crate) fn new(points: &'a [[f64; 2]]) -> Self {
-        let (_, span) = bounds(points);
+        let (lo, span) = bounds(points);
         let n = points.len().max(1) as f64;
         let cell = (span[0] * span[1] / n).sqrt().max(2.0 * span[0].max(span[1]) / n);
-        Self::with_cell(points, if cell.is_finite() && cell > 0.0 { cell } else { 1.0 })
+        let cell = if cell.is_finite() && cell > 0.0 { cell } else { 1.0 };
+        Self::over_box(points, (lo, span), cell)
     }
 
     /// Cells `cell` wide (finite and positive), at most 4096 along a side: beyond that the
@@ -32,7 +33,11 @@ impl<'a> PointGrid<'a> {
     /// less than a cell apart along an axis (less by more than the division's rounding) lie
     /// in the same or neighbouring columns (rows).
     pub(crate) fn with_cell(points: &'a [[f64; 2]], cell: f64) -> Self {
-        let (lo, span) = bounds(points);
+        Self::over_box(points, bounds(points), cell)
+    }
+
+    /// [`PointGrid::with_cell`] with the points' box ([`bounds`]) already found.
+    fn over_box(points: &'a [[f64; 2]], (lo, span): ([f64; 2], [f64; 2]), cell: f64) -> Self {
         // Saturating: a box wider than the largest float (points near ±1e308) has an
         // infinite extent, whose cell count converts to the largest integer.
         let count = |extent: f64| ((extent / cell) as usize).saturating_add(1).min(1 << 12);
@@ -53,7 +58,7 @@ impl<'a> PointGrid<'a> {
     }
 
     /// The (column, row) of the cell holding `p`, clamped to the grid.
-    pub(crate) fn column_row(&self, p: &[f64; 2]) -> (usize, usize) {
+    fn column_row(&self, p: &[f64; 2]) -> (usize, usize) {
         let at = |v: f64, lo: f64, n: usize| (((v - lo) / self.cell).max(0.0) as usize).min(n - 1);
         (
             at(p[0], self.origin[0], self.columns),
@@ -90,8 +95,7 @@ impl<'a> PointGrid<'a> {
                 break;
             }
             self.for_each_in_ring(cx, cy, r, |i| {
-                let p = self.points[i];
-                let d = (q[0] - p[0]) * (q[0] - p[0]) + (q[1] - p[1]) * (q[1] - p[1]);
+                let d = super::squared_distance(q, &self.points[i]);
                 // Without branches: which way a comparison goes is not predictable.
                 let nearer = d < best.1 || (d == best.1 && i < best.0);
                 best.2 = if nearer { best.1 } else { best.2.min(d) };

@@ -3,6 +3,7 @@
 //! packed group of nuclei leaves detections (perhaps imperfectly outlined) instead of a hole.
 
 use super::label::Foreground;
+use crate::numeric::squared_distance;
 
 /// Cuts every object of `foreground` whose area exceeds `max_area` into
 /// `k = round(area / expected_area)` parts (at least 2) by k-means on its pixel coordinates
@@ -104,10 +105,13 @@ fn maximin_start(points: &[[f64; 2]], k: usize) -> Vec<[f64; 2]> {
     let centroid = points
         .iter()
         .fold([0.0, 0.0], |a, p| [a[0] + p[0] / n, a[1] + p[1] / n]);
-    let mut centres = vec![farthest(points, |p| dist2(p, &centroid))];
+    let mut centres = vec![farthest(points, |p| squared_distance(p, &centroid))];
     while centres.len() < k.min(points.len()) {
         let next = farthest(points, |p| {
-            centres.iter().map(|c| dist2(p, c)).fold(f64::INFINITY, f64::min)
+            centres
+                .iter()
+                .map(|c| squared_distance(p, c))
+                .fold(f64::INFINITY, f64::min)
         });
         centres.push(next);
     }
@@ -128,16 +132,12 @@ fn farthest(points: &[[f64; 2]], score: impl Fn(&[f64; 2]) -> f64) -> [f64; 2] {
 fn nearest_centre(p: &[f64; 2], centres: &[[f64; 2]]) -> usize {
     let mut best = (f64::INFINITY, 0);
     for (g, c) in centres.iter().enumerate() {
-        let d = dist2(p, c);
+        let d = squared_distance(p, c);
         if d < best.0 {
             best = (d, g);
         }
     }
     best.1
-}
-
-fn dist2(a: &[f64; 2], b: &[f64; 2]) -> f64 {
-    (a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2)
 }
 
 #[cfg(test)]
